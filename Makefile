@@ -1,0 +1,100 @@
+# doubletty — plain Makefile, dependencies through pkg-config.
+#
+#   make              build build/doubletty
+#   make check        build and run every test (closing line: N passed, N failed)
+#   make bench        benchmarks against the Python/SciPy peer
+#   make install PREFIX=/usr/local
+#   make deps         install the Debian/Ubuntu packages (apt-get, as root or via sudo)
+#   make sanitize     ASan+UBSan build running the whole suite
+
+CC       ?= cc
+PREFIX   ?= /usr/local
+BUILD    ?= build
+VERSION  := 0.1.0
+
+PKGS      := gsl cfitsio libcerf ncursesw libcrypto
+DEB_PKGS  := build-essential pkg-config libgsl-dev libcfitsio-dev libcerf-dev \
+             libncurses-dev libssl-dev
+TEST_DEBS := python3 python3-numpy python3-scipy python3-astropy tmux parallel
+
+PKG_OK := $(shell pkg-config --exists $(PKGS) 2>/dev/null && echo yes)
+ifneq ($(PKG_OK),yes)
+ifeq ($(filter deps clean,$(MAKECMDGOALS)),)
+$(error missing build dependencies ($(PKGS)); on Debian/Ubuntu install: \
+  apt-get install $(DEB_PKGS)   (or run: make deps))
+endif
+endif
+
+WARN     := -Wall -Wextra -Werror
+CSTD     := -std=c11
+OPT      ?= -O2 -g
+CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -DDT_VERSION=\"$(VERSION)\" \
+            -DDT_DATADIR=\"$(PREFIX)/share/doubletty\"
+CFLAGS   += $(CSTD) $(WARN) $(OPT) $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+LDLIBS   += $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lm
+
+CORE_SRC := $(sort $(wildcard src/core/*.c))
+UI_SRC   := $(sort $(wildcard src/ui/*.c))
+CMD_SRC  := $(sort $(wildcard src/cmd/*.c))
+TEST_SRC := $(sort $(wildcard tests/unit/test_*.c))
+
+CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o)
+UI_OBJ   := $(UI_SRC:%.c=$(BUILD)/%.o)
+CMD_OBJ  := $(CMD_SRC:%.c=$(BUILD)/%.o)
+TEST_BIN := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
+
+LIBCORE  := $(BUILD)/libdoubletty.a
+LIBUI    := $(BUILD)/libdoubletty-ui.a
+BIN      := $(BUILD)/doubletty
+
+.PHONY: all check bench install uninstall deps clean sanitize fuzz tests
+all: $(BIN)
+
+$(BUILD)/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CPPFLAGS) $(CFLAGS) -MMD -MP -c $< -o $@
+
+$(LIBCORE): $(CORE_OBJ)
+	$(AR) rcs $@ $^
+
+$(LIBUI): $(UI_OBJ)
+	$(AR) rcs $@ $^
+
+$(BIN): $(CMD_OBJ) $(LIBUI) $(LIBCORE)
+	$(CC) $(CFLAGS) $(LDFLAGS) $(CMD_OBJ) $(LIBUI) $(LIBCORE) $(LDLIBS) -o $@
+
+# Unit tests link the core and the pure parts of the UI (no terminal needed).
+$(BUILD)/tests/%: tests/unit/%.c tests/harness.h $(LIBUI) $(LIBCORE)
+	@mkdir -p $(dir $@)
+	$(CC) $(CPPFLAGS) -Itests $(CFLAGS) $< $(LIBUI) $(LIBCORE) $(LDLIBS) -o $@
+
+tests: $(BIN) $(TEST_BIN)
+
+check: tests
+	@BUILD=$(BUILD) sh tests/run
+
+bench: $(BIN)
+	@BUILD=$(BUILD) sh tests/bench/run
+
+sanitize:
+	$(MAKE) BUILD=build-san OPT="-O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
+	  LDFLAGS="-fsanitize=address,undefined" check
+
+install: $(BIN)
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/doubletty $(DESTDIR)$(PREFIX)/share/man/man1
+	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/doubletty
+	install -m 644 share/doubletty/*.dat $(DESTDIR)$(PREFIX)/share/doubletty/
+	install -m 644 share/doubletty.1 $(DESTDIR)$(PREFIX)/share/man/man1/doubletty.1
+
+uninstall:
+	rm -f $(DESTDIR)$(PREFIX)/bin/doubletty $(DESTDIR)$(PREFIX)/share/man/man1/doubletty.1
+	rm -rf $(DESTDIR)$(PREFIX)/share/doubletty
+
+deps:
+	@if [ "$$(id -u)" = 0 ]; then SUDO=; else SUDO=sudo; fi; \
+	$$SUDO apt-get update && DEBIAN_FRONTEND=noninteractive $$SUDO apt-get install -y $(DEB_PKGS) $(TEST_DEBS)
+
+clean:
+	rm -rf build build-san
+
+-include $(CORE_OBJ:.o=.d) $(UI_OBJ:.o=.d) $(CMD_OBJ:.o=.d)

@@ -1,0 +1,41 @@
+/* Atomic data of resonance doublets, read from a small text table.
+ *
+ * Each doublet has two lines (the stronger first); each line its vacuum
+ * wavelength, oscillator strength f and damping constant Gamma. */
+#ifndef DOUBLETTY_ATOMIC_H
+#define DOUBLETTY_ATOMIC_H
+#include <stddef.h>
+#include "doubletty/status.h"
+
+#define DT_C_KMS 299792.458          /* speed of light [km/s] (CODATA, exact) */
+
+typedef struct dt_line {
+  char label[16];       /* e.g. "NaI 5891" */
+  double lambda0;       /* vacuum wavelength [Angstrom] */
+  double f;             /* oscillator strength */
+  double gamma;         /* damping constant [s^-1] */
+} dt_line;
+
+typedef struct dt_doublet {
+  char name[16];        /* e.g. "NaI" (matched ignoring case and spaces) */
+  dt_line line[2];      /* line[0] is the stronger (larger f*lambda) */
+  char source[64];      /* reference for the values */
+} dt_doublet;
+
+typedef struct dt_atomic dt_atomic;
+
+/* Load a table; a malformed line is DT_EFORMAT with e->where = "line N". */
+int dt_atomic_load(const char *path, dt_atomic **out, dt_err *e);
+/* Add (or replace, by name) doublets from another table file. */
+int dt_atomic_merge(dt_atomic *t, const char *path, dt_err *e);
+/* Parse a table from memory (used by the loaders and the fuzzer). */
+int dt_atomic_parse(dt_atomic *t, const char *text, size_t len, dt_err *e);
+dt_atomic *dt_atomic_new(void);
+void dt_atomic_free(dt_atomic *t);
+
+size_t dt_atomic_count(const dt_atomic *t);
+const dt_doublet *dt_atomic_get(const dt_atomic *t, size_t i);
+/* By name: "NaI", "Na I", "nai" all match; NULL if unknown. */
+const dt_doublet *dt_atomic_find(const dt_atomic *t, const char *name);
+
+#endif

@@ -1,0 +1,95 @@
+/* The judgement of one spectrum, and the actions that change it.
+ *
+ * Everything a person decides about a spectrum lives in a dt_judgement; every
+ * change is a dt_action applied with dt_judgement_apply().  The inspector
+ * turns keys into actions, the session log writes actions as text lines and
+ * replays them, so "what the screen shows" and "what the log says" are the
+ * same state by construction.  Fitted values enter the state only through a
+ * DT_ACT_FIT action carrying the fit's result, so a replay restores them
+ * exactly and may re-run the fit to verify them. */
+#ifndef DOUBLETTY_JUDGE_H
+#define DOUBLETTY_JUDGE_H
+#include <stddef.h>
+#include "doubletty/fit.h"
+#include "doubletty/model.h"
+
+#define DT_MAX_WINDOWS 32
+#define DT_NOTE_MAX 512
+
+typedef enum dt_verdict {
+  DT_VERDICT_NONE = 0,        /* not judged yet */
+  DT_VERDICT_DETECTED,
+  DT_VERDICT_NOT_DETECTED,
+  DT_VERDICT_UNSURE,
+  DT_VERDICT_UNUSABLE         /* the data cannot tell */
+} dt_verdict;
+
+/* "none", "detected", "not-detected", "unsure", "unusable" */
+const char *dt_verdict_name(dt_verdict v);
+int dt_verdict_parse(const char *s, dt_verdict *v);   /* DT_OK or DT_EINVAL */
+
+enum { DT_FREEZE_N = 1, DT_FREEZE_B = 2, DT_FREEZE_V = 4 };
+
+typedef struct dt_window { double lo, hi; } dt_window;   /* vacuum Angstrom */
+
+typedef struct dt_judgement {
+  char doublet[16];           /* doublet name, e.g. "NaI" */
+  double vsys;                /* rest frame [km/s] */
+  double resolution;          /* R (> 0) or ... */
+  double fwhm_kms;            /* ... LSF FWHM [km/s] when resolution <= 0 */
+  double vlo, vhi;            /* velocity window [km/s] for fit and measurement */
+  int cont_order;             /* Legendre order >= 0; -1: continuum fixed at 1 */
+  size_t nwin;                /* continuum windows; none = automatic continuum */
+  dt_window win[DT_MAX_WINDOWS];
+  size_t ncomp;
+  dt_component comp[DT_MAX_COMP];
+  unsigned char frozen[DT_MAX_COMP];   /* DT_FREEZE_* bits */
+  int tie_b;                  /* 1: all components share one b */
+  dt_verdict verdict;
+  char note[DT_NOTE_MAX];
+  int has_fit;                /* fit below is the result for the state above */
+  dt_fit_result fit;
+} dt_judgement;
+
+typedef enum dt_action_kind {
+  DT_ACT_WINDOW_ADD,     /* x[0], x[1]: window lo, hi [Angstrom] */
+  DT_ACT_WINDOW_REMOVE,  /* index: window */
+  DT_ACT_COMP_ADD,       /* x[0..2]: logN, b, v */
+  DT_ACT_COMP_REMOVE,    /* index: component */
+  DT_ACT_COMP_SET,       /* index; x[0..2]: new logN, b, v (a nudge) */
+  DT_ACT_FREEZE,         /* index; ival: new DT_FREEZE_* bits */
+  DT_ACT_TIE_B,          /* ival: 0/1 */
+  DT_ACT_CONT_ORDER,     /* ival: order (-1 .. DT_MAX_CONT-1) */
+  DT_ACT_DOUBLET,        /* text: doublet name */
+  DT_ACT_RESOLUTION,     /* x[0]: R, x[1]: FWHM km/s */
+  DT_ACT_VSYS,           /* x[0]: vsys */
+  DT_ACT_VWINDOW,        /* x[0], x[1]: vlo, vhi */
+  DT_ACT_FIT,            /* fit: result; components take its values */
+  DT_ACT_VERDICT,        /* ival: dt_verdict */
+  DT_ACT_NOTE,           /* text: the note (replaces) */
+  DT_ACT_RESTORE,        /* state: whole judgement (undo / redo) */
+  DT_ACT__COUNT
+} dt_action_kind;
+
+typedef struct dt_action {
+  dt_action_kind kind;
+  int index;
+  int ival;
+  double x[3];
+  char text[DT_NOTE_MAX];
+  dt_fit_result fit;                 /* DT_ACT_FIT */
+  const dt_judgement *state;         /* DT_ACT_RESTORE (not owned) */
+} dt_action;
+
+/* Defaults: doublet "NaI", vsys 0, R 3000, window [-600, 600], order 2. */
+void dt_judgement_init(dt_judgement *j);
+
+/* Apply an action; DT_EINVAL (state unchanged) when it does not fit the
+ * state (index out of range, too many components/windows, bad values). */
+int dt_judgement_apply(dt_judgement *j, const dt_action *a);
+
+/* Short lower-case name of an action kind ("comp-add", ...) and back. */
+const char *dt_action_name(dt_action_kind k);
+int dt_action_kind_parse(const char *s, dt_action_kind *k);
+
+#endif

@@ -1,0 +1,94 @@
+/* Messages at the edge and location of the bundled data. */
+#include "cli.h"
+
+#include <errno.h>
+#include <limits.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#ifndef DT_DATADIR
+#define DT_DATADIR "/usr/local/share/doubletty"
+#endif
+
+void cli_report(const char *file, const dt_err *e) {
+  fprintf(stderr, "doubletty: ");
+  if (file && *file) fprintf(stderr, "%s: ", file);
+  if (e && e->where[0]) fprintf(stderr, "%s: ", e->where);
+  fprintf(stderr, "%s\n", e && e->what[0] ? e->what : dt_status_str(e ? e->code : DT_EINVAL));
+}
+
+void cli_errorf(const char *fmt, ...) {
+  va_list ap;
+  va_start(ap, fmt);
+  fprintf(stderr, "doubletty: ");
+  vfprintf(stderr, fmt, ap);
+  fputc('\n', stderr);
+  va_end(ap);
+}
+
+static int has_table(const char *dir) {
+  char p[PATH_MAX + 16];
+  snprintf(p, sizeof p, "%s/atomic.dat", dir);
+  return access(p, R_OK) == 0;
+}
+
+const char *cli_datadir(void) {
+  static char dir[PATH_MAX];
+  const char *env = getenv("DOUBLETTY_DATA");
+  if (env && *env) return env;
+  char exe[PATH_MAX];
+  ssize_t n = readlink("/proc/self/exe", exe, sizeof exe - 1);
+  if (n > 0) {
+    exe[n] = '\0';
+    char *slash = strrchr(exe, '/');
+    if (slash) {
+      *slash = '\0';
+      snprintf(dir, sizeof dir, "%.*s/../share/doubletty", (int)(sizeof dir - 32), exe);
+      if (has_table(dir)) return dir;
+    }
+  }
+  return DT_DATADIR;
+}
+
+dt_atomic *cli_load_atomic(const char *user_table) {
+  char path[PATH_MAX + 16];
+  snprintf(path, sizeof path, "%s/atomic.dat", cli_datadir());
+  dt_atomic *t = NULL;
+  dt_err e;
+  if (dt_atomic_load(path, &t, &e) != DT_OK) {
+    cli_report(path, &e);
+    return NULL;
+  }
+  if (user_table && dt_atomic_merge(t, user_table, &e) != DT_OK) {
+    cli_report(user_table, &e);
+    dt_atomic_free(t);
+    return NULL;
+  }
+  return t;
+}
+
+int cli_parse_double(const char *opt, const char *text, double *out) {
+  char *end;
+  errno = 0;
+  double v = strtod(text ? text : "", &end);
+  if (!text || end == text || *end != '\0' || errno == ERANGE) {
+    cli_errorf("%s: '%s' is not a number", opt, text ? text : "");
+    return 1;
+  }
+  *out = v;
+  return 0;
+}
+
+int cli_parse_long(const char *opt, const char *text, long *out) {
+  char *end;
+  errno = 0;
+  long v = strtol(text ? text : "", &end, 10);
+  if (!text || end == text || *end != '\0' || errno == ERANGE) {
+    cli_errorf("%s: '%s' is not a whole number", opt, text ? text : "");
+    return 1;
+  }
+  *out = v;
+  return 0;
+}

@@ -1,0 +1,28 @@
+/* Helpers shared by the subcommands: messages at the edge, data files. */
+#ifndef DT_CLI_H
+#define DT_CLI_H
+#include <stdio.h>
+#include "doubletty/atomic.h"
+#include "doubletty/status.h"
+
+/* Print "doubletty: FILE: WHERE: WHAT" (parts omitted when empty) on stderr. */
+void cli_report(const char *file, const dt_err *e);
+/* printf-style "doubletty: ..." on stderr. */
+void cli_errorf(const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 1, 2)))
+#endif
+    ;
+/* Directory holding atomic.dat etc.: $DOUBLETTY_DATA, else ../share/doubletty
+ * beside the executable, else the compiled-in install path. */
+const char *cli_datadir(void);
+/* Load the bundled atomic table, plus an optional user table (NULL = none).
+ * Prints the error and returns NULL on failure. */
+dt_atomic *cli_load_atomic(const char *user_table);
+
+/* Parse a double / long option value; print an error naming the option and
+ * return nonzero when the text is not a number. */
+int cli_parse_double(const char *opt, const char *text, double *out);
+int cli_parse_long(const char *opt, const char *text, long *out);
+
+#endif

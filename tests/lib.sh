@@ -1,0 +1,36 @@
+# Shell helpers for doubletty's script tests (sourced by tests/scripts/*.sh).
+# Each script ends with `finish`, which prints "N passed, N failed".
+# DT is the binary under test; PY an interpreter with numpy, scipy and astropy
+# (empty when there is none: cross-checks then print a SKIPPED line).
+set -u
+ROOT=$(cd "$(dirname "$0")/../.." && pwd)
+BUILD=${BUILD:-build}
+case $BUILD in /*) ;; *) BUILD=$ROOT/$BUILD ;; esac
+DT=${DT:-$BUILD/doubletty}
+SHARED=${SHARED:-$ROOT/../shared}
+T_PASS=0; T_FAIL=0
+TMP=$(mktemp -d "${TMPDIR:-/tmp}/dt-test.XXXXXX")
+trap 'rm -rf "$TMP"' EXIT
+
+PY=
+for p in /usr/bin/python3 python3; do
+  if command -v "$p" >/dev/null 2>&1 && "$p" -c 'import numpy, scipy, astropy' 2>/dev/null; then
+    PY=$(command -v "$p"); break
+  fi
+done
+
+ok()   { T_PASS=$((T_PASS+1)); echo "ok   - $*"; }
+bad()  { T_FAIL=$((T_FAIL+1)); echo "FAIL - $*"; }
+# check "description" command...   (passes when the command exits 0)
+check() { d=$1; shift; if "$@"; then ok "$d"; else bad "$d"; fi; }
+skip() { echo "SKIPPED - $*"; }
+# expect_fail "description" "message regex" command...:
+# the command must exit nonzero and print a message matching the regex on stderr.
+expect_fail() {
+  d=$1; re=$2; shift 2
+  "$@" >"$TMP/ef.out" 2>"$TMP/ef.err"; rc=$?
+  if [ $rc -ne 0 ] && [ $rc -lt 128 ] && grep -Eq -- "$re" "$TMP/ef.err"; then ok "$d"
+  else bad "$d (exit $rc, stderr: $(head -c 300 "$TMP/ef.err"))"; fi
+}
+need_py() { if [ -z "$PY" ]; then skip "$* (no python3 with numpy, scipy and astropy)"; return 1; fi; return 0; }
+finish() { echo "$T_PASS passed, $T_FAIL failed"; [ $T_FAIL -eq 0 ]; }
