@@ -1,7 +1,13 @@
 /* Atomic data of resonance doublets, read from a small text table.
  *
  * Each doublet has two lines (the stronger first); each line its vacuum
- * wavelength, oscillator strength f and damping constant Gamma. */
+ * wavelength, oscillator strength f and damping constant Gamma.
+ *
+ * Table format (share/doubletty/atomic.dat explains it at its top): one
+ * doublet per line, "NAME WAVE F GAMMA WAVE F GAMMA SOURCE...", a one-word
+ * name of at most 15 characters, wavelengths in vacuum Angstrom, Gamma in
+ * s^-1, then the source of the values as free text (required); '#' starts a
+ * comment.  The lines may come in either order. */
 #ifndef DOUBLETTY_ATOMIC_H
 #define DOUBLETTY_ATOMIC_H
 #include <stddef.h>
@@ -28,7 +34,9 @@ typedef struct dt_atomic dt_atomic;
 int dt_atomic_load(const char *path, dt_atomic **out, dt_err *e);
 /* Add (or replace, by name) doublets from another table file. */
 int dt_atomic_merge(dt_atomic *t, const char *path, dt_err *e);
-/* Parse a table from memory (used by the loaders and the fuzzer). */
+/* Parse a table from memory (used by the loaders and the fuzzer): its
+ * doublets are added to t, replacing any of the same name.  A doublet named
+ * twice within one text is an error.  On any error t is left unchanged. */
 int dt_atomic_parse(dt_atomic *t, const char *text, size_t len, dt_err *e);
 dt_atomic *dt_atomic_new(void);
 void dt_atomic_free(dt_atomic *t);

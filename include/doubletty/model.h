@@ -3,7 +3,7 @@
  *
  * A component (logN, b, v) gives each line of the doublet the optical depth
  *     tau(nu) = N * sigma0 * f * H(a, x) / (sqrt(pi) * dnu_D)
- * with sigma0 = pi e^2/(m_e c) = 0.02654008854 cm^2 s^-1, dnu_D = b/lambda0,
+ * with sigma0 = pi e^2/(m_e c) = 0.02654008856 cm^2 s^-1, dnu_D = b/lambda0,
  * x = (nu_rest - nu0)/dnu_D, a = Gamma/(4 pi dnu_D) and H(a,x) = Re w(x + i a)
  * (w is the Faddeeva function, from libcerf).  nu_rest is the frequency in
  * the component's rest frame: lambda_rest = lambda / ((1+vsys/c)(1+v/c)).
@@ -12,7 +12,17 @@
  * constant velocity FWHM (c/R) and averaged back over each pixel.
  *
  * Both lines share N, b, v.  The model is normalised (continuum = 1); the
- * fitter multiplies by the continuum. */
+ * fitter multiplies by the continuum.
+ *
+ * The discretisation: pixel edges lie half-way between pixel centres (the
+ * first and last pixels are symmetric about their centres).  The sub-pixel
+ * cells are uniform in ln(lambda), of width (narrowest pixel)/oversample,
+ * starting a kernel half-width hw below the first pixel's lower edge and
+ * reaching hw beyond the last pixel; each cell is represented by its centre.
+ * The LSF kernel is the Gaussian sampled at whole cells out to
+ * hw = ceil(DT_MODEL_LSF_NSIGMA sigma / cell) and normalised to sum 1.  A
+ * pixel's value is the mean of the convolved cells over the pixel's extent
+ * in ln(lambda), each cell weighted by its overlap with the pixel. */
 #ifndef DOUBLETTY_MODEL_H
 #define DOUBLETTY_MODEL_H
 #include <stddef.h>
@@ -20,7 +30,7 @@
 #include "doubletty/status.h"
 
 #define DT_MAX_COMP 8
-#define DT_SIGMA0 0.02654008854   /* pi e^2 / (m_e c) [cm^2 s^-1] (CODATA) */
+#define DT_SIGMA0 0.02654008856   /* pi e^2/(m_e c) = pi r_e c [cm^2 s^-1], CODATA 2018 */
 
 typedef struct dt_component {
   double logN;   /* log10 column density [cm^-2] */
@@ -36,22 +46,68 @@ typedef struct dt_model_config {
                          both <= 0: no instrumental broadening */
   int oversample;     /* sub-samples per pixel (>= 1; 0 = default 5) */
   double tau_cut;     /* wings are evaluated until tau < tau_cut
-                         (0 = default 1e-7): the truncation error bound */
+                         (0 = default DT_MODEL_TAU_CUT): the truncation
+                         error bound */
+  int exact_wings;    /* 1: call w(z) at every sub-pixel cell (reference,
+                         slow); 0: interpolate w(z) from exact values at
+                         nodes where that is cheaper (error in tau below
+                         0.1 tau_cut) */
 } dt_model_config;
+
+/* Defaults used when the config leaves a field at 0.
+ *
+ * Accuracy of dt_model_eval: a line is evaluated only where its tau can
+ * exceed tau_cut, and w(z) is interpolated from exact values (quintic
+ * Hermite in the core, cubic in 1/x in the far wings) with errors of at most
+ * 0.1 tau_cut in tau; so each line changes exp(-tau), and hence the pixel
+ * flux, by at most 1.1 tau_cut.  The default 1e-5 is a thousand times below
+ * the noise of S/N = 100 data and loses under 1e-3 of the equivalent width
+ * of any line with central tau above 0.01; 1e-7 costs about four times as
+ * much (tests/bench/bench_model.c). */
+#define DT_MODEL_OVERSAMPLE 5
+#define DT_MODEL_TAU_CUT 1e-5
+/* The Gaussian LSF kernel is cut at this many standard deviations and
+ * renormalised (the weight dropped is 2*Phi(-4.5) = 6.8e-6). */
+#define DT_MODEL_LSF_NSIGMA 4.5
 
 typedef struct dt_model dt_model;
 
-/* Allocate a model on n pixel centres wave[] (vacuum Angstrom, strictly
+/* What dt_model_alloc derived from the pixels and the config. */
+typedef struct dt_model_info {
+  size_t npix;          /* pixels */
+  size_t nfine;         /* points of the sub-pixel grid (including padding) */
+  int oversample;       /* as used */
+  double step_kms;      /* sub-pixel step = c * d(ln lambda) [km/s] */
+  double lnlam0;        /* ln(lambda [A]) of the lower edge of fine cell 0 */
+  double lsf_sigma_kms; /* Gaussian LSF sigma [km/s]; 0 = none */
+  int lsf_halfwidth;    /* kernel half-width in sub-pixel steps */
+  double tau_cut;       /* as used */
+} dt_model_info;
+
+/* Allocate a model on n >= 2 pixel centres wave[] (vacuum Angstrom, strictly
  * increasing; typically the fit window of a spectrum), for up to max_comp
- * components.  All work arrays are allocated here, none in dt_model_eval. */
+ * components.  All work arrays are allocated here, none in dt_model_eval.
+ * cfg->doublet is referenced, not copied: it must outlive the model. */
 dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cfg,
                          size_t max_comp, dt_err *e);
 void dt_model_free(dt_model *m);
 size_t dt_model_npix(const dt_model *m);
+void dt_model_get_info(const dt_model *m, dt_model_info *info);
+/* Total optical depth on the sub-pixel grid from the last dt_model_eval
+ * (info.nfine values, cell j centred at ln(lambda) = lnlam0 + (j+0.5) step/c;
+ * zero where every line is below tau_cut).  For tests and diagnostics. */
+const double *dt_model_fine_tau(const dt_model *m);
+
+/* Components outside these limits are refused by dt_model_eval. */
+#define DT_MODEL_B_MIN 1e-4     /* km/s */
+#define DT_MODEL_LOGN_MAX 30.0  /* log10 cm^-2 */
 
 /* Normalised model flux on the pixels, and optionally its Jacobian:
  * jac[i*ldj + 3k + 0,1,2] = d flux_i / d(logN_k, b_k, v_k).  jac may be NULL.
- * Returns DT_EINVAL for ncomp > max_comp or non-physical b (<= 0). */
+ * Returns DT_EINVAL for ncomp > max_comp, ldj < 3 ncomp, or a non-physical
+ * component (b < DT_MODEL_B_MIN, logN > DT_MODEL_LOGN_MAX, |v| >= c, or
+ * anything not finite).  The work of the last evaluation is kept: asking for
+ * the Jacobian at the same components again costs only the pixel sums. */
 int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp,
                   double *flux, double *jac, size_t ldj);
 

@@ -2,7 +2,46 @@
  *
  * Whatever the file layout (FITS image, FITS table, plain text), a spectrum is
  * read into vacuum wavelengths in Angstrom, strictly increasing, with flux, a
- * 1-sigma uncertainty and a mask.  Air wavelengths are converted on reading. */
+ * 1-sigma uncertainty and a mask.  Air wavelengths are converted on reading;
+ * a spectrum stored with decreasing wavelengths is reversed.
+ *
+ * Formats understood by dt_spectrum_read (the file's first bytes decide):
+ *
+ * FITS 1-D image (NAXIS = 1, or further axes of length 1).  Pixel p = 1..N:
+ *   linear   CTYPE1 'WAVE', 'AWAV', 'LINEAR' or absent:
+ *              lambda = CRVAL1 + CDELT1 * (p - CRPIX1)
+ *   WAVE-LOG CTYPE1 'WAVE-LOG' / 'AWAV-LOG' (FITS WCS Paper III, Greisen et
+ *            al. 2006, A&A 446, 747):
+ *              lambda = CRVAL1 * exp(CDELT1 * (p - CRPIX1) / CRVAL1)
+ *   log10    CTYPE1 'LOG10' or 'LOGLAM', or keyword DC-FLAG = 1:
+ *              lambda = 10^(CRVAL1 + CDELT1 * (p - CRPIX1))
+ *   CD1_1 replaces CDELT1 when present (else CDELT1 * PC1_1); CRPIX1
+ *   defaults to 0 (FITS WCS Paper I).  CUNIT1 'Angstrom', 'nm', 'um', 'm';
+ *   without CUNIT1: Angstrom, except metres (the FITS default) for CTYPE1
+ *   WAVE/AWAV with CRVAL1 < 1e-3.  Air wavelengths: CTYPE1 'AWAV...', or
+ *   AIRORVAC = 'air' when CTYPE1 does not say 'WAVE...' (vacuum).
+ *   Uncertainty: another image HDU whose EXTNAME, split at '_' or '-', has a
+ *   word ERR, ERROR, SIGMA, NOISE, STDDEV, UNCERT (1-sigma), IVAR, INVVAR
+ *   (inverse variance) or VAR, VARIANCE (variance); a mask: EXTNAME MASK or
+ *   AND_MASK (nonzero = masked).
+ * FITS binary (or ASCII) table.  Columns by name, case-insensitively:
+ *   wavelength WAVE, WAVELENGTH, LAMBDA, LOGLAM (log10 Angstrom); flux FLUX;
+ *   uncertainty IVAR, ERR, ERROR, SIGMA, VAR, VARIANCE; mask MASK, AND_MASK.
+ *   Scalar columns: one spectrum, one row per pixel ("table-columns").
+ *   Vector (or variable-length) columns: one spectrum per row
+ *   ("table-rows").  Wavelength units from TUNITn as for CUNIT1; air
+ *   wavelengths with AIRORVAC = 'air'.
+ * Resolving power R from the keyword SPECRES, else RESOLUTN (both R =
+ *   lambda / FWHM), in the spectrum's HDU or the primary header.
+ * Plain text: columns "wave flux [sigma [mask]]" separated by blanks or
+ *   commas, vacuum Angstrom; '#' starts a comment; blank lines are skipped;
+ *   a first line of column names is skipped.
+ *
+ * Masked: non-finite flux, non-finite or non-positive sigma (or inverse
+ * variance, or variance), nonzero mask.  Masked pixels keep the values read
+ * from the file (which may be NaN or Inf).  Without an uncertainty in the
+ * file, sigma is estimated from the pixel-to-pixel scatter of the flux
+ * (dt_spectrum_estimate_sigma) and has_sigma is 0. */
 #ifndef DOUBLETTY_SPECTRUM_H
 #define DOUBLETTY_SPECTRUM_H
 #include <stddef.h>
@@ -16,25 +55,35 @@ typedef struct dt_spectrum {
   unsigned char *mask;   /* nonzero = masked: never fitted, shown as masked */
   int has_sigma;         /* 0: no uncertainty in the file (sigma estimated) */
   double resolution;     /* resolving power R read from the header, 0 if none */
-  char layout[32];       /* "image-linear", "image-log", "table-columns",
-                            "table-rows", "text" */
+  char layout[32];       /* "image-linear", "image-log" (WAVE-LOG),
+                            "image-log10", "table-columns", "table-rows",
+                            "text" */
   int hdu;               /* 1-based HDU number (primary = 1); 0 for text */
   long row;              /* 1-based table row; 0 when not a row of a table */
   int air;               /* 1 if the file gave air wavelengths (now converted) */
   char object[72];       /* OBJECT keyword or "" */
+  char extname[72];      /* EXTNAME of the spectrum's HDU or "" */
+  char sigma_from[48];   /* where sigma came from: "HDU 2 'ERR' (sigma)",
+                            "column IVAR (inverse variance)", "column 3",
+                            "estimated" */
+  char unit[16];         /* wavelength unit in the file: "Angstrom", "nm", ... */
 } dt_spectrum;
 
 typedef struct dt_read_opts {
   const char *wave_col;  /* column-name overrides for tables; NULL = find by */
   const char *flux_col;  /*   common names, case-insensitively               */
-  const char *err_col;
+  const char *err_col;   /* kind by name: ...IVAR/INVVAR... inverse variance,
+                            VAR or VARIANCE variance, else 1-sigma */
   const char *mask_col;
   int hdu;               /* 1-based HDU; 0 = from "FILE[ext]" or the first with data */
   long row;              /* 1-based row of a multi-row table; 0 = the first */
 } dt_read_opts;
 
-/* Read one spectrum.  path may carry an extension selector "FILE[2]" or
- * "FILE[NAME]".  opts may be NULL.  On error *out is NULL and e says where. */
+/* Read one spectrum.  path may carry an extension selector "FILE[N]" (N the
+ * extension number as in cfitsio: [0] is the primary HDU, [1] the first
+ * extension = HDU 2) or "FILE[NAME]" (EXTNAME).  opts may be NULL.
+ * On error *out is NULL and e says where ("HDU 2", "line 17",
+ * "HDU 2, row 3, column FLUX", ...). */
 int dt_spectrum_read(const char *path, const dt_read_opts *opts,
                      dt_spectrum **out, dt_err *e);
 
@@ -42,17 +91,28 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts,
 int dt_spectrum_count(const char *path, const dt_read_opts *opts,
                       long *count, dt_err *e);
 
+/* Arrays of n pixels, zeroed; NULL when out of memory. */
 dt_spectrum *dt_spectrum_alloc(size_t n);
 void dt_spectrum_free(dt_spectrum *s);
 
-/* Validate: strictly increasing finite wavelengths, at least one unmasked
- * pixel.  Readers call it; DT_EFORMAT / DT_EMASKED with e filled. */
+/* Validate: at least 2 pixels, strictly increasing finite wavelengths, at
+ * least one unmasked pixel, finite flux and positive finite sigma where
+ * unmasked.  DT_EFORMAT / DT_EMASKED with e->where = "pixel N" (1-based). */
 int dt_spectrum_validate(const dt_spectrum *s, dt_err *e);
+
+/* Replace sigma by an estimate from the flux alone and set has_sigma = 0.
+ * Noise per pixel from the second differences f[i] - (f[i-2] + f[i+2])/2 of
+ * unmasked pixels: sigma = 1.482602 / sqrt(6) * median |2 f[i] - f[i-2] -
+ * f[i+2]| over a window of about 201 pixels around i (the DER_SNR estimator of
+ * Stoehr et al. 2008, ASP Conf. Ser. 394, 505, made local).  Steps two
+ * pixels apart keep correlations between neighbours out.  Where the flux has
+ * no measurable scatter, 1e-3 of the median |flux| is used. */
+void dt_spectrum_estimate_sigma(dt_spectrum *s);
 
 /* Median signal-to-noise (flux/sigma) over unmasked pixels; 0 if none. */
 double dt_spectrum_median_snr(const dt_spectrum *s);
 
-/* Median pixel size in km/s. */
+/* Median pixel size in km/s: c * ln(wave[i+1] / wave[i]). */
 double dt_spectrum_pixel_kms(const dt_spectrum *s);
 
 /* Number of masked pixels. */

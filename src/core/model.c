@@ -1,0 +1,759 @@
+/* The doublet absorption model: Voigt optical depths on a sub-pixel grid,
+ * exp(-tau), a Gaussian line-spread function and averaging over pixels,
+ * with the analytic Jacobian with respect to (logN, b, v) of each component.
+ *
+ * The discretisation (fixed in dt_model_alloc):
+ *  - pixel edges lie half-way between pixel centres; the first and last
+ *    pixels are symmetric about their centres;
+ *  - the sub-pixel grid is uniform in y = ln(lambda): cells of width
+ *    dy = (narrowest pixel, in ln lambda) / oversample, the first cell
+ *    starting hw cells below the lower edge of the first pixel and the grid
+ *    extending hw cells beyond the last pixel; each cell is represented by
+ *    its centre;
+ *  - the LSF is a Gaussian of constant velocity FWHM (c/R or the FWHM in
+ *    km/s), sampled at the cell centres k*dy, k = -hw..hw with
+ *    hw = ceil(DT_MODEL_LSF_NSIGMA * sigma / dy), and normalised to sum 1;
+ *  - a pixel's value is the average of the convolved cell values over the
+ *    pixel's [lo, hi] extent in ln lambda, each cell weighted by its
+ *    overlap with the pixel (so unequal pixels are handled).
+ * Convolution and averaging are linear, so they are folded into one banded
+ * matrix (row i = weights of the cells that reach pixel i), built once.
+ *
+ * Speed: each line of each component is evaluated only over the cells where
+ * its optical depth can exceed tau_cut (the range follows from the Gaussian
+ * core and the Lorentzian wing, then is verified against the exact Voigt
+ * function, which falls monotonically away from the centre); elsewhere it is
+ * exactly zero.  Within the range, w(z) comes from libcerf either at every
+ * cell or, where that is cheaper, at the nodes of two small tables per line
+ * (core: quintic Hermite in x; far wings: cubic Hermite in 1/x), built from
+ * exact values and derivatives with the step chosen from the error bound so
+ * that tau is off by at most 0.1 tau_cut.  Only pixels whose band meets the
+ * ranges are touched; the rest have flux 1 and zero derivatives.  The
+ * derivatives of tau are always kept, so a Jacobian asked for at the point
+ * of the previous evaluation (what a least-squares solver does after
+ * accepting a step) costs only the pixel sums.  All buffers are allocated in
+ * dt_model_alloc; dt_model_eval never allocates. */
+#include "doubletty/model.h"
+
+#include <cerf.h>
+#include <complex.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define PI 3.14159265358979323846
+#define SQRT_PI 1.7724538509055160273
+#define LN10 2.3025850929940456840
+#define FWHM_PER_SIGMA 2.3548200450309493820 /* 2 sqrt(2 ln 2) */
+#define MAX_FINE 20000000L                   /* refuse absurd grids */
+
+/* Unit conversion for the optical depth and damping parameter with lambda
+ * in Angstrom and b in km/s: lambda[cm]/b[cm/s] = 1e-8/1e5 lambda/b. */
+#define ANG_PER_KMS 1e-13
+
+/* Far wings: |x| > Xc is interpolated in s = 1/|x| on at most WING_KMAX
+ * equal intervals of at most WING_HMAX, Xc >= WING_XMIN + 2a (see
+ * wing_start).  Core: |x| <= Xc is interpolated in x on at most CORE_KMAX
+ * intervals of at most CORE_HMAX.  Beyond those sizes w(z) is called at
+ * every cell. */
+#define WING_KMAX 512
+#define WING_HMAX 0.05
+#define WING_XMIN 4.0
+#define CORE_KMAX 256
+#define CORE_HMAX 0.25
+
+typedef struct span {
+  long lo, hi; /* inclusive cell indices; lo > hi = empty */
+} span;
+
+/* Per line of a component, set up at the start of an evaluation. */
+typedef struct line_setup {
+  double lc;  /* observed line centre [A] */
+  double t0;  /* N sigma0 f / (sqrt(pi) dnu_D): tau = t0 H(a, x) */
+  double a;   /* damping parameter */
+  double cb;  /* c / b */
+  double dxdv_fac; /* dx/dv = dxdv_fac * r, r = lc/lambda */
+  span r;
+} line_setup;
+
+struct dt_model {
+  const dt_doublet *dbl;
+  double s;         /* 1 + vsys/c */
+  double tau_cut;
+  int ovs;
+  size_t n, nf, max_comp;
+  double y0, dy;    /* cell j spans [y0 + j dy, y0 + (j+1) dy] in ln(lambda/A) */
+  double sigma_kms; /* LSF sigma; 0 = none */
+  int hw;           /* kernel half-width in cells */
+  double *invlam;   /* 1/lambda at the cell centres [1/A] */
+  long *m0, *m1;    /* band of pixel i: cells m0[i]..m1[i] */
+  size_t *off;      /* start of row i in coef */
+  double *coef;     /* banded pixel operator (LSF convolution + averaging) */
+  double *tau;      /* total optical depth per cell */
+  double *dep;      /* 1 - exp(-tau) */
+  double *ex;       /* exp(-tau) */
+  double *q;        /* per component k: q[(k*nf + j)*3 + p] = d tau_k / d p */
+  int exact;        /* no wing interpolation */
+  double wing[WING_KMAX][12]; /* per interval: cubic coefficients of H, Re w', Im w' */
+  double core[CORE_KMAX][18]; /* per interval: quintic coefficients of H, Re w', Im w' */
+  span prev[2 * DT_MAX_COMP]; /* cells where tau was set by the last evaluation */
+  int nprev;
+  /* The last evaluation's components and flux: a Jacobian asked for at the
+   * parameters of the previous call (as a least-squares solver does after
+   * accepting a step) reuses the optical depths and their derivatives. */
+  dt_component last[DT_MAX_COMP];
+  size_t nlast;
+  int have_last;
+  double *last_flux;
+  line_setup ls[2 * DT_MAX_COMP];
+  span uni[2 * DT_MAX_COMP];    /* union of all line ranges, disjoint, sorted */
+  span cspan[DT_MAX_COMP][2];   /* each component's own ranges */
+  int ncspan[DT_MAX_COMP];
+};
+
+double dt_velocity(double lambda, double lambda0, double vsys) {
+  return DT_C_KMS * (lambda / (lambda0 * (1.0 + vsys / DT_C_KMS)) - 1.0);
+}
+
+double dt_wavelength(double v, double lambda0, double vsys) {
+  return lambda0 * (1.0 + vsys / DT_C_KMS) * (1.0 + v / DT_C_KMS);
+}
+
+/* x + i y without CMPLX (not every C library provides it); a complex is
+ * laid out as double[2] (C11 6.2.5). */
+static inline double complex cplx(double x, double y) {
+  double complex z;
+  ((double *)&z)[0] = x;
+  ((double *)&z)[1] = y;
+  return z;
+}
+
+double dt_voigt_H(double a, double u) { return creal(w_of_z(cplx(u, a))); }
+
+/* Optical depth scale and damping parameter of a line for (N, b):
+ *   tau = N sigma0 f H(a,x) / (sqrt(pi) dnu_D),  dnu_D = b / lambda0,
+ *   a = Gamma / (4 pi dnu_D)
+ * (e.g. Spitzer 1978, Physical Processes in the Interstellar Medium, ch. 3)
+ * with sigma0 [cm^2 s^-1], lambda0 [A], b [km/s], Gamma [s^-1]. */
+static void line_scales(const dt_line *l, double N, double b, double *t0, double *a) {
+  double lam_over_b = ANG_PER_KMS * l->lambda0 / b; /* 1/dnu_D [s] */
+  *t0 = N * DT_SIGMA0 * l->f * lam_over_b / SQRT_PI;
+  *a = l->gamma * lam_over_b / (4.0 * PI);
+}
+
+double dt_line_tau(const dt_line *l, const dt_component *c, double vsys, double lambda) {
+  double t0, a;
+  line_scales(l, pow(10.0, c->logN), c->b, &t0, &a);
+  double lc = dt_wavelength(c->v, l->lambda0, vsys);
+  /* x = (nu_rest - nu0)/dnu_D = (c/b)(lambda0/lambda_rest - 1) = (c/b)(lc/lambda - 1) */
+  double x = DT_C_KMS / c->b * (lc / lambda - 1.0);
+  return t0 * dt_voigt_H(a, x);
+}
+
+size_t dt_model_npix(const dt_model *m) { return m ? m->n : 0; }
+
+void dt_model_get_info(const dt_model *m, dt_model_info *info) {
+  memset(info, 0, sizeof *info);
+  if (!m) return;
+  info->npix = m->n;
+  info->nfine = m->nf;
+  info->oversample = m->ovs;
+  info->step_kms = DT_C_KMS * m->dy;
+  info->lnlam0 = m->y0;
+  info->lsf_sigma_kms = m->sigma_kms;
+  info->lsf_halfwidth = m->hw;
+  info->tau_cut = m->tau_cut;
+}
+
+void dt_model_free(dt_model *m) {
+  if (!m) return;
+  free(m->invlam);
+  free(m->m0);
+  free(m->m1);
+  free(m->off);
+  free(m->coef);
+  free(m->tau);
+  free(m->dep);
+  free(m->ex);
+  free(m->q);
+  free(m->last_flux);
+  free(m);
+}
+
+dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cfg,
+                         size_t max_comp, dt_err *e) {
+  dt_err_clear(e);
+  if (!wave || !cfg || !cfg->doublet) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: no pixels or no doublet given");
+    return NULL;
+  }
+  if (n < 2) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: need at least 2 pixels, got %zu", n);
+    return NULL;
+  }
+  if (max_comp > DT_MAX_COMP) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: at most %d components, asked for %zu", DT_MAX_COMP,
+               max_comp);
+    return NULL;
+  }
+  for (size_t i = 0; i < n; i++) {
+    if (!isfinite(wave[i]) || wave[i] <= 0 || (i > 0 && !(wave[i] > wave[i - 1]))) {
+      dt_err_set(e, DT_EINVAL, NULL,
+                 "model: pixel wavelengths must be positive and strictly increasing (pixel %zu)",
+                 i);
+      return NULL;
+    }
+  }
+  double edge0 = wave[0] - 0.5 * (wave[1] - wave[0]);
+  if (!(edge0 > 0)) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: first pixel extends to non-positive wavelength");
+    return NULL;
+  }
+  if (!isfinite(cfg->vsys) || fabs(cfg->vsys) >= DT_C_KMS) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: systemic velocity %g km/s out of range", cfg->vsys);
+    return NULL;
+  }
+  if (!isfinite(cfg->resolution) || !isfinite(cfg->fwhm_kms)) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: resolution or LSF width is not a number");
+    return NULL;
+  }
+  if (cfg->oversample < 0 || cfg->oversample > 1000) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: oversampling %d outside 1..1000", cfg->oversample);
+    return NULL;
+  }
+  if (!(cfg->tau_cut >= 0 && cfg->tau_cut < 1)) {
+    dt_err_set(e, DT_EINVAL, NULL, "model: tau cut %g outside [0, 1)", cfg->tau_cut);
+    return NULL;
+  }
+  for (int j = 0; j < 2; j++) {
+    const dt_line *l = &cfg->doublet->line[j];
+    if (!(l->lambda0 > 0) || !(l->f > 0) || !(l->gamma >= 0) || !isfinite(l->gamma)) {
+      dt_err_set(e, DT_EINVAL, NULL, "model: doublet %s has unusable atomic data",
+                 cfg->doublet->name);
+      return NULL;
+    }
+  }
+
+  dt_model *m = calloc(1, sizeof *m);
+  double *lo = NULL, *hi = NULL, *g = NULL;
+  long *clo = NULL, *chi = NULL;
+  if (!m) goto nomem;
+  m->dbl = cfg->doublet;
+  m->s = 1.0 + cfg->vsys / DT_C_KMS;
+  m->tau_cut = cfg->tau_cut > 0 ? cfg->tau_cut : DT_MODEL_TAU_CUT;
+  m->ovs = cfg->oversample > 0 ? cfg->oversample : DT_MODEL_OVERSAMPLE;
+  m->exact = cfg->exact_wings != 0;
+  m->n = n;
+  m->max_comp = max_comp;
+  double fwhm = cfg->resolution > 0 ? DT_C_KMS / cfg->resolution
+                                    : (cfg->fwhm_kms > 0 ? cfg->fwhm_kms : 0.0);
+  m->sigma_kms = fwhm / FWHM_PER_SIGMA;
+
+  /* Pixel edges in ln(lambda): half-way between centres. */
+  lo = malloc(n * sizeof *lo);
+  hi = malloc(n * sizeof *hi);
+  clo = malloc(n * sizeof *clo);
+  chi = malloc(n * sizeof *chi);
+  if (!lo || !hi || !clo || !chi) goto nomem;
+  double minw = INFINITY;
+  for (size_t i = 0; i < n; i++) {
+    double el = i == 0 ? edge0 : 0.5 * (wave[i - 1] + wave[i]);
+    double eh = i == n - 1 ? wave[n - 1] + 0.5 * (wave[n - 1] - wave[n - 2])
+                           : 0.5 * (wave[i] + wave[i + 1]);
+    lo[i] = log(el);
+    hi[i] = log(eh);
+    if (hi[i] - lo[i] < minw) minw = hi[i] - lo[i];
+  }
+  m->dy = minw / m->ovs;
+  double sig_cells = m->sigma_kms / (DT_C_KMS * m->dy);
+  double hwd = m->sigma_kms > 0 ? ceil(DT_MODEL_LSF_NSIGMA * sig_cells) : 0.0;
+  double nfd = ceil((hi[n - 1] - lo[0]) / m->dy) + 2.0 * hwd + 1.0;
+  if (!(minw > 0) || !isfinite(nfd) || nfd > (double)MAX_FINE || hwd > (double)MAX_FINE / 4) {
+    dt_err_set(e, DT_EINVAL, NULL,
+               "model: sub-pixel grid would be too large (pixels span a factor %g in "
+               "wavelength, narrowest is %g km/s, LSF sigma %g km/s)",
+               exp(hi[n - 1] - lo[0]), DT_C_KMS * minw, m->sigma_kms);
+    goto fail;
+  }
+  m->hw = (int)hwd;
+  m->nf = (size_t)nfd;
+  m->y0 = lo[0] - m->hw * m->dy;
+  const size_t nf = m->nf;
+  const int hw = m->hw;
+
+  g = malloc((size_t)(2 * hw + 1) * sizeof *g);
+  m->invlam = malloc(nf * sizeof *m->invlam);
+  m->m0 = malloc(n * sizeof *m->m0);
+  m->m1 = malloc(n * sizeof *m->m1);
+  m->off = malloc(n * sizeof *m->off);
+  m->tau = calloc(nf, sizeof *m->tau);
+  m->dep = calloc(nf, sizeof *m->dep);
+  m->ex = calloc(nf, sizeof *m->ex);
+  m->q = calloc((max_comp ? max_comp : 1) * nf * 3, sizeof *m->q);
+  m->last_flux = malloc(n * sizeof *m->last_flux);
+  if (!g || !m->invlam || !m->m0 || !m->m1 || !m->off || !m->tau || !m->dep || !m->ex || !m->q ||
+      !m->last_flux)
+    goto nomem;
+
+  /* The kernel, sampled at whole cells and normalised. */
+  double gsum = 0;
+  for (int k = -hw; k <= hw; k++) {
+    double t = hw ? k / sig_cells : 0.0;
+    g[k + hw] = exp(-0.5 * t * t);
+    gsum += g[k + hw];
+  }
+  for (int k = 0; k <= 2 * hw; k++) g[k] /= gsum;
+  for (size_t j = 0; j < nf; j++) m->invlam[j] = exp(-(m->y0 + (j + 0.5) * m->dy));
+
+  /* Bands: pixel i overlaps cells clo..chi; the kernel widens that by hw. */
+  size_t total = 0;
+  for (size_t i = 0; i < n; i++) {
+    long a = (long)floor((lo[i] - m->y0) / m->dy);
+    long b = (long)ceil((hi[i] - m->y0) / m->dy) - 1;
+    if (a < hw) a = hw;
+    if (b > (long)nf - 1 - hw) b = (long)nf - 1 - hw;
+    if (b < a) b = a;
+    clo[i] = a;
+    chi[i] = b;
+    m->m0[i] = a - hw;
+    m->m1[i] = b + hw;
+    m->off[i] = total;
+    total += (size_t)(m->m1[i] - m->m0[i] + 1);
+  }
+  m->coef = calloc(total, sizeof *m->coef);
+  if (!m->coef) goto nomem;
+  for (size_t i = 0; i < n; i++) {
+    double *row = m->coef + m->off[i];
+    double wsum = 0;
+    for (long j = clo[i]; j <= chi[i]; j++) {
+      double cl = m->y0 + j * m->dy, ch = cl + m->dy;
+      double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
+      if (ov > 0) wsum += ov;
+    }
+    for (long j = clo[i]; j <= chi[i]; j++) {
+      double cl = m->y0 + j * m->dy, ch = cl + m->dy;
+      double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
+      if (!(ov > 0)) continue;
+      double p = ov / wsum;
+      /* convolved cell j = sum_k g[k] * cell(j - k) */
+      for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * g[k + hw];
+    }
+  }
+  free(clo);
+  free(chi);
+  free(g);
+  free(lo);
+  free(hi);
+  return m;
+
+nomem:
+  dt_err_set(e, DT_ENOMEM, NULL, "model: out of memory");
+fail:
+  free(clo);
+  free(chi);
+  free(g);
+  free(lo);
+  free(hi);
+  dt_model_free(m);
+  return NULL;
+}
+
+/* Cells where a line with scale t0, damping a, centre lc and width b can
+ * have tau > tau_cut.  Starting from |x| where the Gaussian core
+ * t0 exp(-x^2) or the Lorentzian wing t0 a/(sqrt(pi) x^2) falls to tau_cut,
+ * X is widened until the exact t0 H(a, X) <= tau_cut; H falls monotonically
+ * in |x| (a convolution of two symmetric unimodal profiles), so nothing
+ * beyond X exceeds the cut. */
+static span line_range(const dt_model *m, double t0, double a, double b, double lc) {
+  span r = {0, -1};
+  double tc = m->tau_cut;
+  if (!(t0 > tc)) return r; /* H <= H(a,0) = erfcx(a) <= 1 */
+  double X = fmax(sqrt(log(t0 / tc)), sqrt(t0 * a / (SQRT_PI * tc)));
+  for (int it = 0; it < 200 && t0 * dt_voigt_H(a, X) > tc; it++) X *= 1.1;
+  double u = X * b / DT_C_KMS; /* |x| <= X  <=>  lc/lambda in [1-u, 1+u] */
+  double ylo = log(lc) - log1p(u);
+  double yhi = u < 1 ? log(lc) - log1p(-u) : INFINITY;
+  double jl = ceil((ylo - m->y0) / m->dy - 0.5);
+  double jh = floor((yhi - m->y0) / m->dy - 0.5);
+  double top = (double)m->nf - 1;
+  if (jl < 0) jl = 0;
+  if (jh > top) jh = top;
+  if (!(jl <= jh)) return r; /* also refuses NaN */
+  r.lo = (long)jl;
+  r.hi = (long)jh;
+  return r;
+}
+
+/* First pixel whose band reaches cell c (bands are sorted at both ends). */
+static size_t first_pixel(const dt_model *m, long c) {
+  size_t a = 0, b = m->n;
+  while (a < b) {
+    size_t mid = a + (b - a) / 2;
+    if (m->m1[mid] < c)
+      a = mid + 1;
+    else
+      b = mid;
+  }
+  return a;
+}
+
+/* Merge the spans sp[0..n-1] (in place) into sorted disjoint spans. */
+static int merge_spans(span *sp, int n) {
+  for (int i = 1; i < n; i++) {
+    span t = sp[i];
+    int j = i - 1;
+    while (j >= 0 && sp[j].lo > t.lo) {
+      sp[j + 1] = sp[j];
+      j--;
+    }
+    sp[j + 1] = t;
+  }
+  int k = 0;
+  for (int i = 0; i < n; i++) {
+    if (k > 0 && sp[i].lo <= sp[k - 1].hi + 1) {
+      if (sp[i].hi > sp[k - 1].hi) sp[k - 1].hi = sp[i].hi;
+    } else {
+      sp[k++] = sp[i];
+    }
+  }
+  return k;
+}
+
+/* The far wing, |x| > Xc, is interpolated by cubic Hermite polynomials in
+ * s = 1/|x| with step h; the error is at most h^4/384 max|d^4 f/ds^4|.
+ * There w(z) = i/(sqrt(pi) z) (1 + 1/(2z^2) + 3/(4z^4) + ...) (Abramowitz &
+ * Stegun 1964, 7.1.23), so H = (a/sqrt(pi)) s^2 (1 + 3s^2/2 + 15s^4/4 + ...):
+ * the s^2 term is reproduced exactly and the rest has |d^4/ds^4| < 400 a/sqrt(pi)
+ * for s <= 1/4.  h^4 = 0.01 tau_cut sqrt(pi) / (t0 a) therefore keeps the error
+ * in tau below 0.01 tau_cut.  Returns h (<= WING_HMAX). */
+static double wing_step(double t0, double a, double tc) {
+  double h = a > 0 ? pow(0.01 * tc * SQRT_PI / (t0 * a), 0.25) : WING_HMAX;
+  return h < WING_HMAX ? h : WING_HMAX;
+}
+
+/* Where the far-wing interpolation starts.  Of w(z) = exp(-z^2) erfc(-iz)
+ * the part exp(-z^2), of size exp(a^2 - x^2), has d^4/ds^4 ~ 16 x^12 exp(-x^2);
+ * Xc is raised until its interpolation error is below 1e-3 tau_cut, so that
+ * only the smooth asymptotic part is interpolated; that part is analytic in s
+ * for s < 1/a, hence Xc >= 4 + 2a. */
+static double wing_start(double t0, double a, double tc, double h) {
+  double X = WING_XMIN + 2.0 * a, h4 = h * h * h * h;
+  for (int it = 0; it < 400; it++, X += 0.25) {
+    double x2 = X * X, x4 = x2 * x2;
+    double bound = t0 * exp(a * a - x2) * (1.0 + 16.0 / 384.0 * x4 * x4 * x4 * h4);
+    if (bound <= 1e-3 * tc) break;
+  }
+  return X;
+}
+
+/* Table of the wing interpolant on s in [smin, smax] with k intervals: for
+ * each the cubic (in t = (s - s_k)/h) through the exact values and
+ * s-derivatives of H = Re w, Re w' and Im w' at both ends, from libcerf's
+ * w(z) and
+ *   w'(z) = -2z w(z) + 2i/sqrt(pi),  w''(z) = -2 w(z) - 2z w'(z),
+ * with d/ds = -x^2 d/dx.  Returns 1/h. */
+static double wing_table(dt_model *m, double a, double smin, double smax, int K) {
+  const double h = (smax - smin) / K;
+  double f0[3] = {0}, d0[3] = {0};
+  for (int k = 0; k <= K; k++) {
+    double sk = k == K ? smax : smin + k * h;
+    double x = 1.0 / sk;
+    double complex z = cplx(x, a);
+    double complex w = w_of_z(z);
+    double complex w1 = -2.0 * z * w + cplx(0.0, 2.0 / SQRT_PI);
+    double complex w2 = -2.0 * w - 2.0 * z * w1;
+    double hx2 = -h * x * x;
+    double f1[3] = {creal(w), creal(w1), cimag(w1)};
+    double d1[3] = {hx2 * creal(w1), hx2 * creal(w2), hx2 * cimag(w2)};
+    if (k > 0) {
+      double *c = m->wing[k - 1];
+      for (int q = 0; q < 3; q++) {
+        c[4 * q + 0] = f0[q];
+        c[4 * q + 1] = d0[q];
+        c[4 * q + 2] = -3.0 * f0[q] - 2.0 * d0[q] + 3.0 * f1[q] - d1[q];
+        c[4 * q + 3] = 2.0 * f0[q] + d0[q] - 2.0 * f1[q] + d1[q];
+      }
+    }
+    memcpy(f0, f1, sizeof f0);
+    memcpy(d0, d1, sizeof d0);
+  }
+  return 1.0 / h;
+}
+
+/* Table of the core interpolant on x in [0, Xc] (H is even in x, so the
+ * table serves both sides): for each interval the quintic Hermite polynomial
+ * in t = (x - x_k)/h through the exact values and first two x-derivatives
+ * of H = Re w, Re w' and Im w' at both ends, from libcerf's w(z) and
+ *   w^(n+1)(z) = -2z w^(n)(z) - 2n w^(n-1)(z),  w'(z) = -2z w(z) + 2i/sqrt(pi).
+ * Error bound h^6/46080 max|f^(6)| (|d^6 exp(-x^2)/dx^6| <= 120), so
+ * h <= (38.4 tau_cut/t0)^(1/6) keeps the error in tau below 0.1 tau_cut. */
+static int core_table(dt_model *m, double t0, double a, double Xc, double *invh) {
+  double h = pow(38.4 * m->tau_cut / t0, 1.0 / 6.0);
+  if (h > CORE_HMAX) h = CORE_HMAX;
+  double kd = ceil(Xc / h);
+  if (kd > CORE_KMAX) return -1;
+  int K = (int)kd;
+  h = Xc / K;
+  double f0[3] = {0}, d0[3] = {0}, e0[3] = {0};
+  for (int k = 0; k <= K; k++) {
+    double complex z = cplx(k * h, a);
+    double complex w = w_of_z(z);
+    double complex w1 = -2.0 * z * w + cplx(0.0, 2.0 / SQRT_PI);
+    double complex w2 = -2.0 * z * w1 - 2.0 * w;
+    double complex w3 = -2.0 * z * w2 - 4.0 * w1;
+    double f1[3] = {creal(w), creal(w1), cimag(w1)};
+    double d1[3] = {h * creal(w1), h * creal(w2), h * cimag(w2)};
+    double e1[3] = {h * h * creal(w2), h * h * creal(w3), h * h * cimag(w3)};
+    if (k > 0) {
+      double *c = m->core[k - 1];
+      for (int q = 0; q < 3; q++) {
+        double D = f1[q] - f0[q];
+        c[6 * q + 0] = f0[q];
+        c[6 * q + 1] = d0[q];
+        c[6 * q + 2] = 0.5 * e0[q];
+        c[6 * q + 3] = 10.0 * D - 6.0 * d0[q] - 4.0 * d1[q] - 1.5 * e0[q] + 0.5 * e1[q];
+        c[6 * q + 4] = -15.0 * D + 8.0 * d0[q] + 7.0 * d1[q] + 1.5 * e0[q] - e1[q];
+        c[6 * q + 5] = 6.0 * D - 3.0 * d0[q] - 3.0 * d1[q] - 0.5 * e0[q] + 0.5 * e1[q];
+      }
+    }
+    memcpy(f0, f1, sizeof f0);
+    memcpy(d0, d1, sizeof d0);
+    memcpy(e0, e1, sizeof e0);
+  }
+  *invh = 1.0 / h;
+  return K;
+}
+
+/* Optical depth of one line of component k over its cells, added to the
+ * total; with qk, also d tau/d(logN, b, v) added to qk[3j + 0,1,2]. */
+static void eval_line(dt_model *m, const line_setup *s, double b, double *qk) {
+  const double t0 = s->t0, a = s->a, cb = s->cb, lc = s->lc;
+  const double *invlam = m->invlam;
+  double *tau = m->tau;
+  if (s->r.lo > s->r.hi) return;
+  /* x falls along the cells.  The far wings (|x| > Xc) and the core are
+   * each interpolated when they hold clearly more cells than their table
+   * has nodes; otherwise w(z) is called at every cell. */
+  double xfirst = cb * (lc * invlam[s->r.lo] - 1.0), xlast = cb * (lc * invlam[s->r.hi] - 1.0);
+  double xmax = fmax(fabs(xfirst), fabs(xlast));
+  double cells_per_x = 1.0 / (cb * m->dy); /* about: dx/dj = -cb r dy */
+  double Xc = INFINITY, smin = 0, winvh = 0, cinvh = 0;
+  int kcore = -1, kwing = 0;
+  if (!m->exact) {
+    double hw = wing_step(t0, a, m->tau_cut);
+    Xc = wing_start(t0, a, m->tau_cut, hw);
+    double xin = fmin(Xc, xmax);
+    double wing_cells = (double)(s->r.hi - s->r.lo + 1) - 2.0 * xin * cells_per_x;
+    double kw = ceil((1.0 / Xc - 1.0 / xmax) / hw);
+    if (xmax > 1.5 * Xc && kw <= WING_KMAX && wing_cells > 2.0 * (kw + 1)) {
+      kwing = (int)kw;
+      smin = 1.0 / xmax;
+      winvh = wing_table(m, a, smin, 1.0 / Xc, kwing);
+    } else {
+      Xc = xmax; /* everything is core */
+    }
+    /* core cells (both sides) against table nodes (one side) */
+    double nodes = Xc * fmax(pow(t0 / (38.4 * m->tau_cut), 1.0 / 6.0), 1.0 / CORE_HMAX) + 1.0;
+    if (2.0 * Xc * cells_per_x > 1.3 * nodes) kcore = core_table(m, t0, a, Xc, &cinvh);
+  }
+  const double dxdv = s->dxdv_fac;
+  for (long j = s->r.lo; j <= s->r.hi; j++) {
+    double r = lc * invlam[j];
+    double x = cb * (r - 1.0);
+    double ax = fabs(x), H, Hx = 0, Ha = 0;
+    /* w(-x + ia) = conj w(x + ia): H even in x, Re w' odd, Im w' even. */
+    if (ax <= Xc && kcore > 0) {
+      double u = ax * cinvh;
+      int k = (int)u;
+      if (k > kcore - 1) k = kcore - 1;
+      double t = u - k;
+      const double *c = m->core[k];
+      H = c[0] + t * (c[1] + t * (c[2] + t * (c[3] + t * (c[4] + t * c[5]))));
+      if (qk) {
+        double wr = c[6] + t * (c[7] + t * (c[8] + t * (c[9] + t * (c[10] + t * c[11]))));
+        double wi = c[12] + t * (c[13] + t * (c[14] + t * (c[15] + t * (c[16] + t * c[17]))));
+        Hx = x < 0 ? -wr : wr;
+        Ha = -wi;
+      }
+    } else if (ax <= Xc) {
+      double complex w = w_of_z(cplx(x, a));
+      H = creal(w);
+      if (qk) {
+        /* w'(z) = -2 z w(z) + 2i/sqrt(pi), z = x + i a, H = Re w, L = Im w:
+         *   dH/dx = Re w' = 2(a L - x H),  dH/da = -Im w' = 2(x L + a H) - 2/sqrt(pi) */
+        double L = cimag(w);
+        Hx = 2.0 * (a * L - x * H);
+        Ha = 2.0 * (x * L + a * H) - 2.0 / SQRT_PI;
+      }
+    } else {
+      double u = (1.0 / ax - smin) * winvh;
+      int k = (int)u;
+      if (k < 0) k = 0;
+      if (k > kwing - 1) k = kwing - 1;
+      double t = u - k;
+      const double *c = m->wing[k];
+      H = c[0] + t * (c[1] + t * (c[2] + t * c[3]));
+      if (qk) {
+        double wr = c[4] + t * (c[5] + t * (c[6] + t * c[7]));
+        double wi = c[8] + t * (c[9] + t * (c[10] + t * c[11]));
+        Hx = x < 0 ? -wr : wr;
+        Ha = -wi;
+      }
+    }
+    double tj = t0 * H;
+    tau[j] += tj;
+    if (qk) {
+      /* tau = t0 H(a, x) with t0, a and x proportional to 1/b:
+       *   dtau/db = -(tau + t0 (a dH/da + x dH/dx)) / b;
+       * x = (c/b)(lc/lambda - 1) with lc proportional to (1 + v/c). */
+      double *qq = qk + 3 * j;
+      qq[0] += LN10 * tj;
+      qq[1] -= (tj + t0 * (a * Ha + x * Hx)) / b;
+      qq[2] += t0 * Hx * dxdv * r;
+    }
+  }
+}
+
+const double *dt_model_fine_tau(const dt_model *m) { return m ? m->tau : NULL; }
+
+int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *flux, double *jac,
+                  size_t ldj) {
+  if (!m || !flux || (ncomp && !comp) || ncomp > m->max_comp) return DT_EINVAL;
+  if (jac && ldj < 3 * ncomp) return DT_EINVAL;
+  for (size_t k = 0; k < ncomp; k++) {
+    const dt_component *c = &comp[k];
+    if (!(c->logN <= DT_MODEL_LOGN_MAX) || !(c->b >= DT_MODEL_B_MIN) || !isfinite(c->logN) ||
+        !isfinite(c->b) || !isfinite(c->v) || fabs(c->v) >= DT_C_KMS)
+      return DT_EINVAL;
+    for (int l = 0; l < 2; l++) { /* cannot happen within the limits above */
+      double t0, a;
+      line_scales(&m->dbl->line[l], pow(10.0, c->logN), c->b, &t0, &a);
+      if (!isfinite(t0) || !isfinite(a) || !isfinite(DT_C_KMS / c->b)) return DT_EINVAL;
+    }
+  }
+  const size_t n = m->n, nf = m->nf;
+  const dt_doublet *d = m->dbl;
+  if (m->have_last && ncomp == m->nlast &&
+      (ncomp == 0 || memcmp(comp, m->last, ncomp * sizeof *comp) == 0)) {
+    memcpy(flux, m->last_flux, n * sizeof *flux);
+    goto jacobian;
+  }
+  m->have_last = 0;
+
+  /* Clear what the last evaluation left, so tau is zero outside the ranges. */
+  for (int u = 0; u < m->nprev; u++)
+    memset(m->tau + m->prev[u].lo, 0, (size_t)(m->prev[u].hi - m->prev[u].lo + 1) * sizeof(double));
+
+  /* Set up every line of every component and find where it matters. */
+  int nl = 0;
+  for (size_t k = 0; k < ncomp; k++) {
+    const dt_component *c = &comp[k];
+    double N = pow(10.0, c->logN);
+    for (int l = 0; l < 2; l++) {
+      line_setup *s = &m->ls[2 * k + l];
+      const dt_line *li = &d->line[l];
+      line_scales(li, N, c->b, &s->t0, &s->a);
+      s->lc = li->lambda0 * m->s * (1.0 + c->v / DT_C_KMS);
+      s->cb = DT_C_KMS / c->b;
+      s->dxdv_fac = 1.0 / (c->b * (1.0 + c->v / DT_C_KMS));
+      s->r = line_range(m, s->t0, s->a, c->b, s->lc);
+      if (s->r.lo <= s->r.hi) m->uni[nl++] = s->r;
+    }
+    int nc = 0;
+    for (int l = 0; l < 2; l++)
+      if (m->ls[2 * k + l].r.lo <= m->ls[2 * k + l].r.hi) m->cspan[k][nc++] = m->ls[2 * k + l].r;
+    m->ncspan[k] = merge_spans(m->cspan[k], nc);
+  }
+  int nu = merge_spans(m->uni, nl);
+  memcpy(m->prev, m->uni, (size_t)nu * sizeof(span));
+  m->nprev = nu;
+
+  /* Optical depth and its derivatives on the cells (the derivatives cost
+   * little next to w(z), and a Jacobian usually follows at the same point). */
+  for (size_t k = 0; k < ncomp; k++) {
+    double *qk = m->q + k * nf * 3;
+    for (int u = 0; u < m->ncspan[k]; u++)
+      memset(qk + 3 * m->cspan[k][u].lo, 0,
+             (size_t)(m->cspan[k][u].hi - m->cspan[k][u].lo + 1) * 3 * sizeof(double));
+    eval_line(m, &m->ls[2 * k], comp[k].b, qk);
+    eval_line(m, &m->ls[2 * k + 1], comp[k].b, qk);
+  }
+  for (int u = 0; u < nu; u++)
+    for (long j = m->uni[u].lo; j <= m->uni[u].hi; j++) {
+      double t = m->tau[j];
+      if (t < 0.5) {
+        double dd = -expm1(-t);
+        m->dep[j] = dd;
+        m->ex[j] = 1.0 - dd;
+      } else {
+        double ee = exp(-t);
+        m->ex[j] = ee;
+        m->dep[j] = 1.0 - ee;
+      }
+    }
+
+  /* Through the LSF and onto the pixels: flux = 1 - B (1 - exp(-tau)). */
+  for (size_t i = 0; i < n; i++) flux[i] = 1.0;
+  for (int u = 0; u < nu; u++) {
+    const long A = m->uni[u].lo, B = m->uni[u].hi;
+    for (size_t i = first_pixel(m, A); i < n && m->m0[i] <= B; i++) {
+      long j0 = m->m0[i] > A ? m->m0[i] : A, j1 = m->m1[i] < B ? m->m1[i] : B;
+      const double *row = m->coef + m->off[i] + (j0 - m->m0[i]), *dp = m->dep + j0;
+      const long len = j1 - j0 + 1;
+      double a0 = 0, a1 = 0, a2 = 0, a3 = 0;
+      long t = 0;
+      for (; t + 3 < len; t += 4) {
+        a0 += row[t] * dp[t];
+        a1 += row[t + 1] * dp[t + 1];
+        a2 += row[t + 2] * dp[t + 2];
+        a3 += row[t + 3] * dp[t + 3];
+      }
+      for (; t < len; t++) a0 += row[t] * dp[t];
+      flux[i] -= (a0 + a1) + (a2 + a3);
+    }
+  }
+  memcpy(m->last_flux, flux, n * sizeof *flux);
+  if (ncomp) memcpy(m->last, comp, ncomp * sizeof *comp);
+  m->nlast = ncomp;
+  m->have_last = 1;
+
+jacobian:
+  if (!jac) return DT_OK;
+
+  /* d flux / dp = B (-exp(-tau) dtau/dp), only where component k lives. */
+  for (size_t i = 0; i < n; i++) memset(jac + i * ldj, 0, 3 * ncomp * sizeof(double));
+  for (size_t k = 0; k < ncomp; k++) {
+    const double *qk = m->q + k * nf * 3;
+    for (int u = 0; u < m->ncspan[k]; u++) {
+      const long A = m->cspan[k][u].lo, B = m->cspan[k][u].hi;
+      for (size_t i = first_pixel(m, A); i < n && m->m0[i] <= B; i++) {
+        long j0 = m->m0[i] > A ? m->m0[i] : A, j1 = m->m1[i] < B ? m->m1[i] : B;
+        const double *row = m->coef + m->off[i] + (j0 - m->m0[i]), *ep = m->ex + j0;
+        const double *qp = qk + 3 * j0;
+        const long len = j1 - j0 + 1;
+        double s0 = 0, s1 = 0, s2 = 0, r0 = 0, r1 = 0, r2 = 0;
+        long t = 0;
+        for (; t + 1 < len; t += 2) {
+          double w0 = row[t] * ep[t], w1 = row[t + 1] * ep[t + 1];
+          s0 += w0 * qp[3 * t];
+          s1 += w0 * qp[3 * t + 1];
+          s2 += w0 * qp[3 * t + 2];
+          r0 += w1 * qp[3 * t + 3];
+          r1 += w1 * qp[3 * t + 4];
+          r2 += w1 * qp[3 * t + 5];
+        }
+        if (t < len) {
+          double w0 = row[t] * ep[t];
+          s0 += w0 * qp[3 * t];
+          s1 += w0 * qp[3 * t + 1];
+          s2 += w0 * qp[3 * t + 2];
+        }
+        double *ji = jac + i * ldj + 3 * k;
+        ji[0] -= s0 + r0;
+        ji[1] -= s1 + r1;
+        ji[2] -= s2 + r2;
+      }
+    }
+  }
+  return DT_OK;
+}

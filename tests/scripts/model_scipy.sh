@@ -1,0 +1,20 @@
+#!/bin/sh
+# The doublet model against an independent evaluation in Python with SciPy's
+# Faddeeva function (scipy.special.wofz): optical depths of thin, saturated
+# and damped lines; the pixel model against a re-implementation of the
+# discretisation documented in include/doubletty/model.h; and against a far
+# finer direct convolution, within the midpoint-rule error bound.
+. "$(dirname "$0")/../lib.sh"
+
+DRIVER=$BUILD/tests/test_model
+if need_py "model against scipy.special.wofz"; then
+  for what in tau pixels fine; do
+    if "$PY" "$ROOT/tests/py/model_scipy.py" "$what" "$DRIVER" >"$TMP/$what.out" 2>&1; then
+      ok "model vs SciPy: $what ($(tail -n 1 "$TMP/$what.out"))"
+    else
+      bad "model vs SciPy: $what"
+      sed 's/^/       /' "$TMP/$what.out"
+    fi
+  done
+fi
+finish

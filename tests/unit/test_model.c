@@ -1,0 +1,595 @@
+/* The doublet model: the linear curve of growth, the doublet ratio, the
+ * accuracy of the fast evaluation (truncated and interpolated wings) against
+ * the exact optical depth, the Jacobian against finite differences, the
+ * sub-pixel grid as documented, and bad arguments.
+ *
+ * Run with an argument it prints model values for tests/py/model_scipy.py
+ * (called by tests/scripts/model_scipy.sh):
+ *   test_model --tau      dt_line_tau on a grid of lines and wavelengths
+ *   test_model --pixels   the pixel model for a few configurations */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "doubletty/atomic.h"
+#include "doubletty/model.h"
+#include "harness.h"
+
+/* Na I D: vacuum wavelengths [A], oscillator strengths and damping
+ * constants [s^-1] from Morton (2003, ApJS 149, 205). */
+static dt_doublet nai(void) {
+  dt_doublet d;
+  memset(&d, 0, sizeof d);
+  strcpy(d.name, "NaI");
+  strcpy(d.line[0].label, "NaI 5891");
+  d.line[0].lambda0 = 5891.5833;
+  d.line[0].f = 0.6408;
+  d.line[0].gamma = 6.16e7;
+  strcpy(d.line[1].label, "NaI 5897");
+  d.line[1].lambda0 = 5897.5581;
+  d.line[1].f = 0.3201;
+  d.line[1].gamma = 6.14e7;
+  strcpy(d.source, "Morton (2003) ApJS 149, 205");
+  return d;
+}
+
+static double *grid(double lo, double step, size_t n) {
+  double *w = malloc(n * sizeof *w);
+  for (size_t i = 0; i < n; i++) w[i] = lo + step * i;
+  return w;
+}
+
+/* Equivalent width [A] of the absorption in pixels whose centre lies within
+ * +-halfwin km/s of lambda_c: sum of (1 - flux) times the pixel width. */
+static double eq_width(const double *wave, const double *flux, size_t n, double lc,
+                       double halfwin) {
+  double w = 0;
+  for (size_t i = 1; i + 1 < n; i++) {
+    if (fabs(DT_C_KMS * (wave[i] / lc - 1.0)) > halfwin) continue;
+    w += (1.0 - flux[i]) * 0.5 * (wave[i + 1] - wave[i - 1]);
+  }
+  return w;
+}
+
+/* W = (pi e^2 / m_e c^2) N f lambda^2 = 8.85e-13 cm N f lambda^2, i.e.
+ * W[A] = 8.85e-21 N f lambda[A]^2  (N = 1.13e20 W/(f lambda^2), Spitzer 1978,
+ * Physical Processes in the Interstellar Medium, eq. 3-48). */
+static double w_linear(double N, double f, double lambda) { return 8.85e-21 * N * f * lambda * lambda; }
+
+static void test_curve_of_growth(void) {
+  dt_doublet d = nai();
+  const size_t n = 1200;
+  double *wave = grid(5880.0, 0.025, n), flux[1200];
+  const double R[2] = {0.0, 20000.0};
+  for (int r = 0; r < 2; r++) {
+    dt_model_config cfg = {.doublet = &d, .resolution = R[r], .oversample = 5};
+    dt_err e;
+    dt_model *m = dt_model_alloc(wave, n, &cfg, 1, &e);
+    CHECK(m != NULL, "model on 0.025 A pixels allocates (R = %g)", R[r]);
+    if (!m) continue;
+    dt_component c = {10.5, 15.0, 0.0};
+    CHECK(dt_model_eval(m, &c, 1, flux, NULL, 0) == DT_OK, "thin Na I component evaluates");
+    for (int l = 0; l < 2; l++) {
+      double W = eq_width(wave, flux, n, d.line[l].lambda0, 140.0);
+      double Wl = w_linear(pow(10.0, 10.5), d.line[l].f, d.line[l].lambda0);
+      /* b = 15 km/s keeps tau0 < 0.013, so saturation lowers W by < 0.5% */
+      CHECK_REL(W, Wl, 0.01,
+                "linear curve of growth, %s, log N 10.5, R = %g: W = %.4g mA (Spitzer 1978: %.4g mA)",
+                d.line[l].label, R[r], 1e3 * W, 1e3 * Wl);
+    }
+    dt_model_free(m);
+  }
+  free(wave);
+}
+
+static void test_doublet_ratio(void) {
+  /* Nachman & Hobbs (1973, ApJ 182, 481): W(D2)/W(D1) equals
+   * f1 lambda1^2 / (f2 lambda2^2) = 2.00 for thin gas and falls toward 1 as
+   * the lines saturate (on the flat part of the curve of growth the ratio
+   * is sqrt(ln(tau1/ln2) / ln(tau2/ln2)), about 1.06 at log N = 14 and
+   * b = 2 km/s; Spitzer 1978, eq. 3-54). */
+  dt_doublet d = nai();
+  const size_t n = 2000;
+  double *wave = grid(5885.0, 0.009, n), flux[2000];
+  dt_model_config cfg = {.doublet = &d, .oversample = 5};
+  dt_err e;
+  dt_model *m = dt_model_alloc(wave, n, &cfg, 1, &e);
+  CHECK(m != NULL, "model on 0.009 A pixels allocates");
+  if (!m) return;
+  double thin = d.line[0].f * d.line[0].lambda0 * d.line[0].lambda0 /
+                (d.line[1].f * d.line[1].lambda0 * d.line[1].lambda0);
+  double prev = INFINITY, first = 0, last = 0;
+  int mono = 1;
+  for (double logN = 9.5; logN <= 14.01; logN += 0.25) {
+    dt_component c = {logN, 2.0, 0.0};
+    dt_model_eval(m, &c, 1, flux, NULL, 0);
+    double r = eq_width(wave, flux, n, d.line[0].lambda0, 140.0) /
+               eq_width(wave, flux, n, d.line[1].lambda0, 140.0);
+    if (r > prev + 1e-9) mono = 0;
+    if (logN < 9.6) first = r;
+    last = r;
+    prev = r;
+  }
+  CHECK_REL(first, thin, 0.01, "doublet ratio of thin gas (log N 9.5) is f1 l1^2/(f2 l2^2) = %.3f",
+            thin);
+  CHECK(mono, "doublet ratio falls monotonically from log N 9.5 to 14 (b = 2 km/s)");
+  CHECK(last > 1.0 && last < 1.12, "doublet ratio at log N 14, b = 2 km/s is %.3f (flat part: 1.06)",
+        last);
+  dt_model_free(m);
+  free(wave);
+}
+
+/* Cell centres of the sub-pixel grid, as documented in model.h. */
+static double cell_lambda(const dt_model_info *in, size_t j) {
+  return exp(in->lnlam0 + (j + 0.5) * in->step_kms / DT_C_KMS);
+}
+
+static void test_fast_vs_exact(void) {
+  dt_doublet d = nai();
+  const size_t n = 700;
+  double *wave = grid(5860.0, 0.1, n), flux_f[700], flux_x[700];
+  const double logNs[] = {10.0, 11.5, 12.5, 13.5, 14.5, 16.0, 18.0};
+  const double bs[] = {0.7, 2.0, 6.0, 20.0, 60.0};
+  const double cuts[] = {0.0, 1e-7, 1e-3};
+  double worst_tau = 0, worst_ref = 0, worst_flux = 0;
+  int ok_alloc = 1;
+  for (size_t ic = 0; ic < 3; ic++) {
+    dt_model_config fast = {.doublet = &d, .resolution = 20000, .oversample = 5, .tau_cut = cuts[ic]};
+    dt_model_config exact = fast;
+    exact.exact_wings = 1;
+    dt_err e;
+    dt_model *mf = dt_model_alloc(wave, n, &fast, 2, &e), *mx = dt_model_alloc(wave, n, &exact, 2, &e);
+    if (!mf || !mx) {
+      ok_alloc = 0;
+      dt_model_free(mf);
+      dt_model_free(mx);
+      continue;
+    }
+    dt_model_info in;
+    dt_model_get_info(mf, &in);
+    for (size_t i = 0; i < sizeof logNs / sizeof *logNs; i++)
+      for (size_t k = 0; k < sizeof bs / sizeof *bs; k++) {
+        dt_component c[2] = {{logNs[i], bs[k], 12.3}, {logNs[i] - 0.7, 0.5 * bs[k] + 1, -150.0}};
+        dt_model_eval(mf, c, 2, flux_f, NULL, 0);
+        dt_model_eval(mx, c, 2, flux_x, NULL, 0);
+        const double *tf = dt_model_fine_tau(mf), *tx = dt_model_fine_tau(mx);
+        for (size_t j = 0; j < in.nfine; j++) {
+          double lam = cell_lambda(&in, j), ref = 0;
+          for (int q = 0; q < 2; q++)
+            for (int l = 0; l < 2; l++) ref += dt_line_tau(&d.line[l], &c[q], 0.0, lam);
+          /* what the pixels see is exp(-tau): its error from interpolation
+           * (against exact w(z) on the same cells) and in total (against
+           * the exact, untruncated tau), in units of tau_cut */
+          double di = fabs(exp(-tf[j]) - exp(-tx[j])) / in.tau_cut;
+          double dr = fabs(exp(-tf[j]) - exp(-ref)) / in.tau_cut;
+          if (di > worst_tau) worst_tau = di;
+          if (dr > worst_ref) worst_ref = dr;
+        }
+        for (size_t j = 0; j < n; j++) {
+          double df = fabs(flux_f[j] - flux_x[j]) / in.tau_cut;
+          if (df > worst_flux) worst_flux = df;
+        }
+      }
+    dt_model_free(mf);
+    dt_model_free(mx);
+  }
+  CHECK(ok_alloc, "fast and exact-wing models allocate");
+  /* error budget (model.c): core table 0.1 tau_cut, wing table 0.01 tau_cut */
+  CHECK(worst_tau <= 0.11,
+        "interpolated exp(-tau) within 0.11 tau_cut of exact w(z) at every cell (worst %.3g)",
+        worst_tau);
+  /* plus truncation: every line below tau_cut where it is not evaluated;
+   * two components x two lines */
+  CHECK(worst_ref <= 4 * 1.11,
+        "fast exp(-tau) within 4 x 1.11 tau_cut of the exact one (worst %.3g)",
+        worst_ref);
+  CHECK(worst_flux <= 0.44, "pixel flux of fast and exact-wing models differ by <= 0.44 tau_cut (worst %.3g)",
+        worst_flux);
+  free(wave);
+}
+
+static double urand(unsigned long long *s) {
+  *s = *s * 6364136223846793005ULL + 1442695040888963407ULL;
+  return (double)(*s >> 11) / 9007199254740992.0;
+}
+
+static void test_random(void) {
+  /* random components and set-ups (fixed seed): the fast evaluation stays
+   * finite, within [0, 1], and within its interpolation budget of the
+   * exact-wing evaluation (0.1 tau_cut per line) */
+  dt_doublet d = nai();
+  unsigned long long seed = 7;
+  int finite = 1, inrange = 1, within = 1;
+  double worst = 0;
+  for (int t = 0; t < 60; t++) {
+    size_t n = 50 + (size_t)(400 * urand(&seed));
+    double step = 0.02 + 0.5 * urand(&seed), *wave = malloc(n * sizeof *wave);
+    double *ff = malloc(n * sizeof *ff), *fx = malloc(n * sizeof *fx);
+    wave[0] = 5894.5 - 0.5 * n * step;
+    for (size_t i = 1; i < n; i++) wave[i] = wave[i - 1] + step * (0.5 + urand(&seed));
+    dt_model_config cf = {.doublet = &d, .resolution = urand(&seed) < 0.3 ? 0 : 1000 + 40000 * urand(&seed),
+                          .oversample = 1 + (int)(8 * urand(&seed)),
+                          .tau_cut = pow(10, -3 - 9 * urand(&seed))};
+    dt_model_config cx = cf;
+    cx.exact_wings = 1;
+    dt_err e;
+    dt_model *mf = dt_model_alloc(wave, n, &cf, 4, &e), *mx = dt_model_alloc(wave, n, &cx, 4, &e);
+    if (mf && mx)
+      for (int r = 0; r < 5; r++) {
+        dt_component c[4];
+        size_t nc = 1 + (size_t)(4 * urand(&seed));
+        for (size_t k = 0; k < nc; k++) {
+          c[k].logN = 9 + 13 * urand(&seed);
+          c[k].b = pow(10, -0.5 + 3 * urand(&seed));
+          c[k].v = -800 + 1600 * urand(&seed);
+        }
+        dt_model_eval(mf, c, nc, ff, NULL, 0);
+        dt_model_eval(mx, c, nc, fx, NULL, 0);
+        for (size_t i = 0; i < n; i++) {
+          finite = finite && isfinite(ff[i]);
+          inrange = inrange && ff[i] >= -1e-12 && ff[i] <= 1 + 1e-12;
+          double dd = fabs(ff[i] - fx[i]) / (0.1 * cf.tau_cut * 2 * nc);
+          if (dd > worst) worst = dd;
+          within = within && dd <= 1.0;
+        }
+      }
+    else
+      finite = 0;
+    dt_model_free(mf);
+    dt_model_free(mx);
+    free(wave);
+    free(ff);
+    free(fx);
+  }
+  CHECK(finite, "random set-ups: every flux is finite");
+  CHECK(inrange, "random set-ups: every flux lies in [0, 1]");
+  CHECK(within, "random set-ups: fast within 0.1 tau_cut per line of exact wings (worst %.2f of that)", worst);
+}
+
+/* Central finite differences of the pixel model against the analytic
+ * Jacobian, column by column, relative to the column's largest entry. */
+static double jac_error(dt_model *m, const dt_component *c0, size_t nc, size_t n) {
+  double *f = malloc(n * sizeof *f), *fp = malloc(n * sizeof *fp), *fm = malloc(n * sizeof *fm);
+  double *jac = malloc(n * 3 * nc * sizeof *jac);
+  dt_component c[DT_MAX_COMP];
+  memcpy(c, c0, nc * sizeof *c);
+  double worst = 0;
+  if (dt_model_eval(m, c, nc, f, jac, 3 * nc) != DT_OK) worst = INFINITY;
+  for (size_t k = 0; k < nc && isfinite(worst); k++)
+    for (int p = 0; p < 3; p++) {
+      double *par = p == 0 ? &c[k].logN : p == 1 ? &c[k].b : &c[k].v;
+      double save = *par, h = p == 0 ? 1e-5 : p == 1 ? 1e-5 * save : 1e-4;
+      *par = save + h;
+      dt_model_eval(m, c, nc, fp, NULL, 0);
+      *par = save - h;
+      dt_model_eval(m, c, nc, fm, NULL, 0);
+      *par = save;
+      double big = 0, err = 0;
+      for (size_t i = 0; i < n; i++) {
+        double fd = (fp[i] - fm[i]) / (2 * h);
+        if (fabs(fd) > big) big = fabs(fd);
+        if (fabs(fd - jac[i * 3 * nc + 3 * k + p]) > err) err = fabs(fd - jac[i * 3 * nc + 3 * k + p]);
+      }
+      if (big > 0 && err / big > worst) worst = err / big;
+    }
+  free(f);
+  free(fp);
+  free(fm);
+  free(jac);
+  return worst;
+}
+
+static void test_jacobian(void) {
+  dt_doublet d = nai();
+  /* non-uniform pixels: 0.08 A growing to 0.12 A */
+  const size_t n = 600;
+  double *wave = malloc(n * sizeof *wave);
+  wave[0] = 5870.0;
+  for (size_t i = 1; i < n; i++) wave[i] = wave[i - 1] + 0.08 + 0.04 * i / n;
+  struct {
+    const char *what;
+    dt_component c[3];
+    size_t nc;
+  } cases[] = {
+      {"thin", {{11.0, 5.0, 10.0}}, 1},
+      {"saturated", {{13.6, 3.0, -20.0}}, 1},
+      {"damped", {{16.5, 20.0, 0.0}}, 1},
+      {"blend of three", {{12.2, 4.0, -10.0}, {12.5, 8.0, 3.0}, {11.8, 15.0, 30.0}}, 3},
+  };
+  const double R[2] = {0.0, 15000.0};
+  for (int r = 0; r < 2; r++)
+    for (int exact = 0; exact < 2; exact++) {
+      dt_model_config cfg = {.doublet = &d, .resolution = R[r], .oversample = 4, .tau_cut = 1e-14,
+                             .exact_wings = exact};
+      dt_err e;
+      dt_model *m = dt_model_alloc(wave, n, &cfg, 3, &e);
+      if (!m) {
+        CHECK(0, "model allocates: %s", e.what);
+        continue;
+      }
+      for (size_t t = 0; t < sizeof cases / sizeof *cases; t++) {
+        double err = jac_error(m, cases[t].c, cases[t].nc, n);
+        CHECK(err < 1e-5, "Jacobian of %s gas matches central differences (R = %g, %s wings): %.2g",
+              cases[t].what, R[r], exact ? "exact" : "interpolated", err);
+      }
+      dt_model_free(m);
+    }
+  /* at the default truncation the fitter's Jacobian is still good to 1e-3 */
+  dt_model_config cfg = {.doublet = &d, .resolution = 20000, .oversample = 5};
+  dt_err e;
+  dt_model *m = dt_model_alloc(wave, n, &cfg, 3, &e);
+  if (m) {
+    double err = jac_error(m, cases[3].c, 3, n);
+    CHECK(err < 1e-3, "Jacobian at the default tau cut matches central differences to %.2g", err);
+    dt_model_free(m);
+  }
+  free(wave);
+}
+
+static void test_cache(void) {
+  /* a Jacobian at the point of the previous evaluation reuses its work; it
+   * must equal one computed from scratch */
+  dt_doublet d = nai();
+  const size_t n = 300;
+  double *wave = grid(5880.0, 0.1, n);
+  dt_model_config cfg = {.doublet = &d, .resolution = 20000};
+  dt_err e;
+  dt_model *a = dt_model_alloc(wave, n, &cfg, 2, &e), *b = dt_model_alloc(wave, n, &cfg, 2, &e);
+  double fa[300], fb[300], ja[1800], jb[1800];
+  dt_component c[2] = {{12.3, 5.0, 0.0}, {12.0, 9.0, 40.0}}, other = {13.0, 2.0, 100.0};
+  dt_model_eval(a, &other, 1, fa, NULL, 0);
+  dt_model_eval(a, c, 2, fa, NULL, 0);
+  dt_model_eval(a, c, 2, fa, ja, 6);
+  dt_model_eval(b, c, 2, fb, jb, 6);
+  CHECK(memcmp(fa, fb, sizeof fa) == 0 && memcmp(ja, jb, sizeof ja) == 0,
+        "Jacobian after a flux-only call at the same point equals a fresh one");
+  dt_model_eval(a, c, 1, fa, ja, 6);
+  dt_model_eval(b, &other, 1, fb, NULL, 0);
+  dt_model_eval(b, c, 1, fb, jb, 6);
+  int same = memcmp(fa, fb, sizeof fa) == 0;
+  for (size_t i = 0; i < n; i++)
+    for (int p = 0; p < 3; p++) same = same && ja[i * 6 + p] == jb[i * 6 + p];
+  CHECK(same, "a change of the number of components is not mistaken for the same point");
+  dt_model_free(a);
+  dt_model_free(b);
+  free(wave);
+}
+
+static void test_grid_and_helpers(void) {
+  dt_doublet d = nai();
+  const size_t n = 660;
+  double *wave = grid(5862.0, 0.1, n), flux[660];
+  dt_model_config cfg = {.doublet = &d, .resolution = 20000};
+  dt_err e;
+  dt_model *m = dt_model_alloc(wave, n, &cfg, 2, &e);
+  CHECK(m != NULL, "660 pixels of 0.1 A at R = 20000 allocate");
+  if (!m) return;
+  dt_model_info in;
+  dt_model_get_info(m, &in);
+  /* the narrowest pixel (in velocity) is the reddest: edges half-way */
+  double vmin = DT_C_KMS * log((wave[n - 1] + 0.05) / (wave[n - 1] - 0.05));
+  CHECK(in.oversample == DT_MODEL_OVERSAMPLE, "default oversampling is %d", DT_MODEL_OVERSAMPLE);
+  CHECK_REL(in.step_kms, vmin / in.oversample, 1e-9, "sub-pixel step is the narrowest pixel / oversample");
+  CHECK_REL(in.lsf_sigma_kms, DT_C_KMS / 20000 / (2 * sqrt(2 * log(2))), 1e-12,
+            "LSF sigma = c / R / (2 sqrt(2 ln 2))");
+  CHECK(in.lsf_halfwidth == (int)ceil(DT_MODEL_LSF_NSIGMA * in.lsf_sigma_kms / in.step_kms),
+        "kernel half-width is %.1f sigma", DT_MODEL_LSF_NSIGMA);
+  CHECK_CLOSE(in.lnlam0, log(wave[0] - 0.05) - in.lsf_halfwidth * in.step_kms / DT_C_KMS, 1e-12,
+              "grid starts a kernel half-width below the first pixel's lower edge");
+  CHECK(in.tau_cut == DT_MODEL_TAU_CUT, "default tau cut is %g", DT_MODEL_TAU_CUT);
+  CHECK(dt_model_npix(m) == n, "npix");
+
+  dt_component none[1];
+  CHECK(dt_model_eval(m, none, 0, flux, NULL, 0) == DT_OK, "no components evaluates");
+  int ones = 1;
+  for (size_t i = 0; i < n; i++) ones = ones && flux[i] == 1.0;
+  CHECK(ones, "no components: flux is exactly 1");
+
+  /* a narrow line's deepest pixel is the one holding dt_wavelength(v) */
+  dt_component c = {12.0, 3.0, -123.4};
+  double vsys = 0;
+  dt_model_eval(m, &c, 1, flux, NULL, 0);
+  size_t imin = 0;
+  for (size_t i = 0; i < n; i++)
+    if (flux[i] < flux[imin]) imin = i;
+  double lc = dt_wavelength(c.v, d.line[0].lambda0, vsys);
+  CHECK(fabs(wave[imin] - lc) <= 0.05 + 1e-9, "deepest pixel %.2f holds the line centre %.3f",
+        wave[imin], lc);
+  /* velocity <-> wavelength: lambda = lambda0 (1 + vsys/c)(1 + v/c) (relativistic
+   * composition of the two Doppler factors is not used; common practice) */
+  CHECK_REL(dt_wavelength(299.792458, 5000.0, 0.0), 5005.0, 1e-15, "v = c/1000 shifts by 1/1000");
+  CHECK_CLOSE(dt_velocity(dt_wavelength(-250.0, 5891.5833, 1500.0), 5891.5833, 1500.0), -250.0,
+              1e-9, "dt_velocity inverts dt_wavelength");
+  /* the same absorber seen with vsys: a line at (vsys, v) equals (0, v') where
+   * 1 + v'/c = (1 + vsys/c)(1 + v/c) */
+  dt_component c1 = {12.5, 7.0, 20.0};
+  dt_component c2 = {12.5, 7.0, DT_C_KMS * ((1 + 300.0 / DT_C_KMS) * (1 + 20.0 / DT_C_KMS) - 1)};
+  double t1 = dt_line_tau(&d.line[0], &c1, 300.0, 5898.0), t2 = dt_line_tau(&d.line[0], &c2, 0.0, 5898.0);
+  CHECK_REL(t1, t2, 1e-9, "vsys and v compose as Doppler factors");
+  dt_model_free(m);
+  free(wave);
+}
+
+static void test_lsf_conserves_w(void) {
+  /* convolution with a normalised kernel and averaging over pixels keep the
+   * equivalent width (common practice) */
+  dt_doublet d = nai();
+  const size_t n = 800;
+  double *wave = grid(5870.0, 0.05, n), f0[800], f1[800];
+  dt_model_config a = {.doublet = &d}, b = {.doublet = &d, .fwhm_kms = 40.0};
+  dt_err e;
+  dt_model *ma = dt_model_alloc(wave, n, &a, 1, &e), *mb = dt_model_alloc(wave, n, &b, 1, &e);
+  dt_component c = {13.0, 4.0, 30.0};
+  dt_model_eval(ma, &c, 1, f0, NULL, 0);
+  dt_model_eval(mb, &c, 1, f1, NULL, 0);
+  double wa = eq_width(wave, f0, n, d.line[0].lambda0, 140), wb = eq_width(wave, f1, n, d.line[0].lambda0, 140);
+  CHECK_REL(wb, wa, 2e-4, "a 40 km/s LSF keeps W (%.5f vs %.5f A)", wb, wa);
+  double mina = 1, minb = 1;
+  for (size_t i = 0; i < n; i++) {
+    mina = fmin(mina, f0[i]);
+    minb = fmin(minb, f1[i]);
+  }
+  CHECK(minb > mina + 0.1, "the LSF makes a saturated line shallower (%.3f -> %.3f)", mina, minb);
+  dt_model_free(ma);
+  dt_model_free(mb);
+  free(wave);
+}
+
+static void test_bad_input(void) {
+  dt_doublet d = nai();
+  double wave[5] = {5890, 5891, 5892, 5893, 5894}, flux[5], jac[30];
+  dt_err e;
+  dt_model_config cfg = {.doublet = &d, .resolution = 20000};
+  CHECK(dt_model_alloc(wave, 1, &cfg, 1, &e) == NULL && e.code == DT_EINVAL, "one pixel is refused");
+  double bad[5] = {5890, 5891, 5891, 5893, 5894};
+  CHECK(dt_model_alloc(bad, 5, &cfg, 1, &e) == NULL && e.code == DT_EINVAL,
+        "repeated wavelength is refused: %s", e.what);
+  double nanw[5] = {5890, 5891, NAN, 5893, 5894};
+  CHECK(dt_model_alloc(nanw, 5, &cfg, 1, &e) == NULL && e.code == DT_EINVAL, "NaN wavelength is refused");
+  dt_model_config c2 = cfg;
+  c2.doublet = NULL;
+  CHECK(dt_model_alloc(wave, 5, &c2, 1, &e) == NULL && e.code == DT_EINVAL, "no doublet is refused");
+  c2 = cfg;
+  c2.oversample = -2;
+  CHECK(dt_model_alloc(wave, 5, &c2, 1, &e) == NULL && e.code == DT_EINVAL, "negative oversampling is refused");
+  c2 = cfg;
+  c2.tau_cut = 2;
+  CHECK(dt_model_alloc(wave, 5, &c2, 1, &e) == NULL && e.code == DT_EINVAL, "tau cut >= 1 is refused");
+  c2 = cfg;
+  c2.vsys = -4e5;
+  CHECK(dt_model_alloc(wave, 5, &c2, 1, &e) == NULL && e.code == DT_EINVAL, "|vsys| >= c is refused");
+  c2 = cfg;
+  c2.resolution = NAN;
+  CHECK(dt_model_alloc(wave, 5, &c2, 1, &e) == NULL && e.code == DT_EINVAL, "NaN resolution is refused");
+  CHECK(dt_model_alloc(wave, 5, &cfg, DT_MAX_COMP + 1, &e) == NULL && e.code == DT_EINVAL,
+        "more than DT_MAX_COMP components is refused");
+  double wide[3] = {1000.0, 5000.0, 1e6};
+  c2 = cfg;
+  c2.oversample = 1000;
+  CHECK(dt_model_alloc(wide, 3, &c2, 1, &e) == NULL && e.code == DT_EINVAL,
+        "an absurd sub-pixel grid is refused: %s", e.what);
+
+  dt_model *m = dt_model_alloc(wave, 5, &cfg, 2, &e);
+  CHECK(m != NULL, "5 pixels allocate");
+  if (!m) return;
+  dt_component c[3] = {{12, 5, 0}, {12, 5, 0}, {12, 5, 0}};
+  CHECK(dt_model_eval(m, c, 3, flux, NULL, 0) == DT_EINVAL, "more components than allocated");
+  dt_component zb = {12, 0, 0}, nb = {12, -1, 0}, nl = {NAN, 5, 0}, hl = {400, 5, 0}, iv = {12, 5, INFINITY};
+  CHECK(dt_model_eval(m, &zb, 1, flux, NULL, 0) == DT_EINVAL, "b = 0 is refused");
+  CHECK(dt_model_eval(m, &nb, 1, flux, NULL, 0) == DT_EINVAL, "b < 0 is refused");
+  CHECK(dt_model_eval(m, &nl, 1, flux, NULL, 0) == DT_EINVAL, "NaN log N is refused");
+  CHECK(dt_model_eval(m, &hl, 1, flux, NULL, 0) == DT_EINVAL, "log N = 400 is refused");
+  dt_component big = {DT_MODEL_LOGN_MAX, DT_MODEL_B_MIN, 0};
+  CHECK(dt_model_eval(m, &big, 1, flux, jac, 3) == DT_OK && isfinite(flux[2]) && isfinite(jac[6]),
+        "the extreme allowed component (log N %g, b %g km/s) evaluates to finite numbers",
+        DT_MODEL_LOGN_MAX, DT_MODEL_B_MIN);
+  CHECK(dt_model_eval(m, &iv, 1, flux, NULL, 0) == DT_EINVAL, "infinite v is refused");
+  dt_component tb = {12, 1e-300, 0}, fc = {12, 5, -DT_C_KMS};
+  CHECK(dt_model_eval(m, &tb, 1, flux, NULL, 0) == DT_EINVAL, "b = 1e-300 km/s is refused");
+  CHECK(dt_model_eval(m, &fc, 1, flux, NULL, 0) == DT_EINVAL, "v = -c is refused");
+  dt_component ok1 = {12, 5, 0};
+  CHECK(dt_model_eval(m, &ok1, 1, flux, NULL, 0) == DT_OK && flux[1] < 1,
+        "after refusals the model still evaluates");
+  CHECK(dt_model_eval(m, c, 2, flux, jac, 5) == DT_EINVAL, "Jacobian stride too small is refused");
+  dt_component far = {12, 5, 90000};
+  CHECK(dt_model_eval(m, &far, 1, flux, jac, 3) == DT_OK && flux[2] == 1.0 && jac[6] == 0.0,
+        "a line far outside the pixels leaves flux 1 and zero derivatives");
+  dt_model_free(m);
+  dt_model_free(NULL);
+}
+
+/* ---- printing for the SciPy cross-check ---- */
+
+static int print_tau(void) {
+  dt_doublet d = nai();
+  const double logNs[] = {10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21};
+  const double bs[] = {0.5, 1.5, 5, 15, 50};
+  const double dv[] = {0, 0.3, -0.3, 1, -1, 3, -3, 10, -10};
+  const double dkms[] = {0, 30, -100, 1000, -3000};
+  printf("# logN b v vsys line lambda tau\n");
+  for (size_t i = 0; i < sizeof logNs / sizeof *logNs; i++)
+    for (size_t k = 0; k < sizeof bs / sizeof *bs; k++)
+      for (int vs = 0; vs < 2; vs++)
+        for (int l = 0; l < 2; l++) {
+          dt_component c = {logNs[i], bs[k], vs ? -37.5 : 0.0};
+          double vsys = vs ? 1234.5 : 0.0;
+          for (size_t a = 0; a < sizeof dv / sizeof *dv; a++)
+            for (size_t q = 0; q < sizeof dkms / sizeof *dkms; q++) {
+              double v = c.v + dv[a] * c.b + dkms[q];
+              double lam = dt_wavelength(v, d.line[l].lambda0, vsys);
+              printf("%.17g %.17g %.17g %.17g %d %.17g %.17g\n", c.logN, c.b, c.v, vsys, l, lam,
+                     dt_line_tau(&d.line[l], &c, vsys, lam));
+            }
+        }
+  return 0;
+}
+
+static int print_pixels(void) {
+  dt_doublet d = nai();
+  struct {
+    double R, fwhm, vsys, tau_cut;
+    int ovs, uneven, ncomp;
+    dt_component c[3];
+  } cases[] = {
+      {20000, 0, 0, 0, 5, 0, 2, {{12.3, 5.0, 3.0}, {12.0, 9.0, -215.0}}},
+      {20000, 0, 0, 1e-12, 5, 0, 2, {{12.3, 5.0, 3.0}, {12.0, 9.0, -215.0}}},
+      {5000, 0, 250.0, 1e-12, 3, 1, 3, {{13.5, 3.0, 0.0}, {12.5, 20.0, 35.0}, {11.5, 6.0, -80.0}}},
+      {0, 45.0, -120.0, 1e-12, 7, 1, 1, {{15.5, 12.0, 10.0}}},
+      {0, 0, 0, 1e-12, 5, 1, 1, {{12.8, 1.5, -40.0}}},
+      {3000, 0, 0, 0, 5, 0, 2, {{13.0, 8.0, 0.0}, {12.2, 30.0, 60.0}}},
+  };
+  for (size_t t = 0; t < sizeof cases / sizeof *cases; t++) {
+    size_t n = cases[t].R == 3000 ? 300 : 660;
+    double step = cases[t].R == 3000 ? 0.5 : 0.1;
+    double *wave = malloc(n * sizeof *wave), *flux = malloc(n * sizeof *flux);
+    double x = 5862.0 + cases[t].vsys / DT_C_KMS * 5890.0 - (cases[t].R == 3000 ? 60 : 0);
+    unsigned s = 12345u + (unsigned)t;
+    for (size_t i = 0; i < n; i++) {
+      wave[i] = x;
+      double jit = 1.0;
+      if (cases[t].uneven) {
+        s = s * 1103515245u + 12345u;
+        jit = 0.6 + 0.8 * ((s >> 8) & 0xffff) / 65535.0;
+      }
+      x += step * jit;
+    }
+    dt_model_config cfg = {.doublet = &d, .vsys = cases[t].vsys, .resolution = cases[t].R,
+                           .fwhm_kms = cases[t].fwhm, .oversample = cases[t].ovs,
+                           .tau_cut = cases[t].tau_cut};
+    dt_err e;
+    dt_model *m = dt_model_alloc(wave, n, &cfg, 3, &e);
+    if (!m || dt_model_eval(m, cases[t].c, (size_t)cases[t].ncomp, flux, NULL, 0) != DT_OK) {
+      fprintf(stderr, "case %zu: %s\n", t, m ? "eval failed" : e.what);
+      return 1;
+    }
+    dt_model_info in;
+    dt_model_get_info(m, &in);
+    printf("case %zu R %.17g fwhm %.17g vsys %.17g ovs %d tau_cut %.17g npix %zu ncomp %d"
+           " lnlam0 %.17g dy %.17g nfine %zu hw %d",
+           t, cases[t].R, cases[t].fwhm, cases[t].vsys, in.oversample, in.tau_cut, n, cases[t].ncomp,
+           in.lnlam0, in.step_kms / DT_C_KMS, in.nfine, in.lsf_halfwidth);
+    for (int k = 0; k < cases[t].ncomp; k++)
+      printf(" %.17g %.17g %.17g", cases[t].c[k].logN, cases[t].c[k].b, cases[t].c[k].v);
+    printf("\n");
+    for (size_t i = 0; i < n; i++) printf("%.17g %.17g\n", wave[i], flux[i]);
+    dt_model_free(m);
+    free(wave);
+    free(flux);
+  }
+  return 0;
+}
+
+int main(int argc, char **argv) {
+  if (argc > 1 && strcmp(argv[1], "--tau") == 0) return print_tau();
+  if (argc > 1 && strcmp(argv[1], "--pixels") == 0) return print_pixels();
+  test_curve_of_growth();
+  test_doublet_ratio();
+  test_grid_and_helpers();
+  test_lsf_conserves_w();
+  test_fast_vs_exact();
+  test_random();
+  test_jacobian();
+  test_cache();
+  test_bad_input();
+  return dt_test_done();
+}
