@@ -83,7 +83,7 @@ sanitize:
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/doubletty $(DESTDIR)$(PREFIX)/share/man/man1
 	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/doubletty
-	install -m 644 share/doubletty/*.dat $(DESTDIR)$(PREFIX)/share/doubletty/
+	install -m 644 share/doubletty/*.dat share/doubletty/*.txt $(DESTDIR)$(PREFIX)/share/doubletty/
 	install -m 644 share/doubletty.1 $(DESTDIR)$(PREFIX)/share/man/man1/doubletty.1
 
 uninstall:
