@@ -1,0 +1,779 @@
+/* doubletty fit — the automatic first pass over many spectra, as CSV.
+ *
+ * Inputs are taken in command-line order: FILE arguments, the targets of
+ * --list files (with their per-target vsys, R, doublet, row) and the paths
+ * of --files-from files.  Every input gets an index 0, 1, 2, ... in that
+ * order; --shard K/N keeps the inputs with index % N == K, and each CSV row
+ * carries the index, so `doubletty merge` can put shard outputs back into
+ * input order exactly.  All of it is streamed: a list of a million targets
+ * costs one line of memory.
+ *
+ * Every spectrum yields rows: one per fitted component, one with empty
+ * component fields when there is none, and one with status "failed" and the
+ * message in `reason` when it could not be fitted (so a merged table
+ * accounts for every input).  Settings on the command line override those
+ * of a target list; without either, R comes from the file's header. */
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "cli.h"
+#include "commands.h"
+#include "doubletty/analysis.h"
+#include "doubletty/atomic.h"
+#include "doubletty/autofit.h"
+#include "doubletty/judge.h"
+#include "doubletty/model.h"
+#include "doubletty/spectrum.h"
+#include "doubletty/targets.h"
+
+/* The CSV columns, in order (the first must stay "index" for merge). */
+static const char *const COLUMNS[] = {
+    "index", "file", "name", "hdu", "row", "object", "doublet", "vsys", "status",
+    "ncomp", "component", "v_kms", "v_err", "b_kms", "b_err", "logN", "logN_err",
+    "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
+    "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
+    "logN_limit", "suggested", "reason"};
+#define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
+
+typedef enum { SRC_FILE, SRC_LIST, SRC_FILES_FROM } src_kind;
+typedef struct {
+  src_kind kind;
+  const char *arg;
+} source;
+
+typedef struct {
+  const char *doublet;          /* NULL: target's, else NaI */
+  int have_R, have_fwhm, have_vsys, have_window, have_order;
+  double R, fwhm, vsys, vlo, vhi;
+  int cont_order;
+  int ncomp;
+  size_t nseed;
+  double seed_v[DT_MAX_COMP];
+  double limit_nsigma;
+  int joint_cont;               /* Legendre coefficients fitted with the components */
+  dt_read_opts ropts;
+  long row;                     /* --row: only this row of tables */
+  long shard_k, shard_n;
+  const char *out_path;
+} config;
+
+typedef struct {
+  FILE *out;
+  const dt_atomic *atomic;
+  const config *cfg;
+  long index;                   /* of the current input */
+  long ninputs;                 /* inputs seen (all shards) */
+  long total;                   /* inputs known in advance (-1 unknown) */
+  long fitted, failed, noconv;
+  int progress;                 /* draw a progress line on stderr */
+  int bar_shown;
+  double bar_last;              /* when it was last drawn [s, monotonic] */
+} run;
+
+static void usage(FILE *f) {
+  fprintf(f,
+          "usage: doubletty fit [options] FILE...\n"
+          "Automatic first pass: fit and measure each spectrum, write CSV.\n\n"
+          "  --doublet NAME          doublet of the atomic table (default NaI)\n"
+          "  --resolution R          resolving power (default: the file's header)\n"
+          "  --fwhm KMS              line-spread FWHM in km/s instead of R\n"
+          "  --vsys KMS              rest frame of the absorber [km/s] (default 0)\n"
+          "  --window VLO:VHI        velocity window around each line [km/s]\n"
+          "  --ncomp N               fit exactly N components\n"
+          "  --seed-v V1,V2,...      start components at these velocities\n"
+          "  --continuum-order K     Legendre order of the continuum; -1 = fixed at 1\n"
+          "  --joint-continuum K     also fit K multiplicative Legendre coefficients\n"
+          "                          of the continuum together with the components\n"
+          "  --limit-sigma S         significance of upper limits (default 3)\n"
+          "  --atomic FILE           extra atomic table (adds or replaces doublets)\n"
+          "  --row N                 only row N of multi-row tables (default: all rows)\n"
+          "  --wave-col C --flux-col C --err-col C --mask-col C   table columns\n"
+          "  --list FILE             targets from a list file (path vsys= R= ...)\n"
+          "  --files-from FILE       spectrum paths, one a line ('-': standard input)\n"
+          "  --shard K/N             only inputs with index %% N == K (0 <= K < N)\n"
+          "  -o FILE                 write the CSV to FILE (default: standard output)\n"
+          "Command-line settings override a list's.  Summary on standard error;\n"
+          "exit status 1 when any spectrum failed, 2 for bad options.\n");
+}
+
+/* ---- CSV output ------------------------------------------------------ */
+
+/* A text field: quoted when it holds a comma, quote or line break; line
+ * breaks become spaces so every record stays on one line. */
+static void csv_text(FILE *f, const char *s) {
+  if (!s) s = "";
+  if (!strpbrk(s, ",\"\n\r")) {
+    fputs(s, f);
+    return;
+  }
+  fputc('"', f);
+  for (; *s; s++) {
+    if (*s == '"') fputs("\"\"", f);
+    else if (*s == '\n' || *s == '\r') fputc(' ', f);
+    else fputc(*s, f);
+  }
+  fputc('"', f);
+}
+
+static void csv_num(FILE *f, double x, int prec) {
+  if (isfinite(x)) fprintf(f, "%.*f", prec, x);
+}
+
+static void csv_sep(FILE *f) { fputc(',', f); }
+
+/* ---- messages and progress ------------------------------------------- */
+
+static void bar_clear(run *r) {
+  if (r->bar_shown) {
+    fputs("\r\033[K", stderr);
+    r->bar_shown = 0;
+  }
+}
+
+static double now_s(void) {
+  struct timespec ts;
+  clock_gettime(CLOCK_MONOTONIC, &ts);
+  return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+/* Redrawn at most ten times a second (and for the last input). */
+static void bar_draw(run *r) {
+  if (!r->progress) return;
+  double t = now_s();
+  if (r->bar_shown && t - r->bar_last < 0.1 && r->ninputs != r->total) return;
+  r->bar_last = t;
+  long done = r->fitted + r->failed;
+  if (r->total > 0) {
+    int width = 30, fill = (int)(width * (double)r->ninputs / (double)r->total);
+    if (fill > width) fill = width;
+    fprintf(stderr, "\r\033[Kfit [%.*s%*s] %ld/%ld inputs, %ld failed",
+            fill, "==============================", width - fill, "", r->ninputs,
+            r->total, r->failed);
+  } else {
+    fprintf(stderr, "\r\033[Kfit: %ld inputs, %ld spectra, %ld failed", r->ninputs, done,
+            r->failed);
+  }
+  fflush(stderr);
+  r->bar_shown = 1;
+}
+
+/* Message for spectrum `label` (file, with row when from a table). */
+static void report(run *r, const char *file, long row, const dt_err *e) {
+  bar_clear(r);
+  dt_err e2 = *e;
+  if (row > 0) {
+    char where[sizeof e2.where + 32];
+    int len = e->where[0] ? snprintf(where, sizeof where, "row %ld, %s", row, e->where)
+                          : snprintf(where, sizeof where, "row %ld", row);
+    size_t n = len < 0 ? 0 : (size_t)len;
+    if (n >= sizeof e2.where) n = sizeof e2.where - 1;
+    memcpy(e2.where, where, n);
+    e2.where[n] = '\0';
+  }
+  cli_report(file, &e2);
+}
+
+/* ---- one spectrum ---------------------------------------------------- */
+
+static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                     const char *doublet, double vsys, const char *status) {
+  FILE *f = r->out;
+  fprintf(f, "%ld,", r->index);
+  csv_text(f, t->path);
+  csv_sep(f);
+  csv_text(f, t->name);
+  csv_sep(f);
+  if (s && s->hdu > 0) fprintf(f, "%d", s->hdu);
+  csv_sep(f);
+  if (row > 0) fprintf(f, "%ld", row);
+  csv_sep(f);
+  csv_text(f, s ? s->object : "");
+  csv_sep(f);
+  csv_text(f, doublet);
+  csv_sep(f);
+  csv_num(f, vsys, 3);
+  csv_sep(f);
+  fputs(status, f);
+}
+
+static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                         const char *doublet, double vsys, const dt_err *e) {
+  char msg[sizeof e->where + sizeof e->what + 4];
+  if (e->where[0]) snprintf(msg, sizeof msg, "%s: %s", e->where, e->what);
+  else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
+  row_head(r, t, s, row, doublet, vsys, "failed");
+  /* ncomp .. suggested: empty */
+  for (size_t k = 9; k + 1 < NCOLUMNS; k++) csv_sep(r->out);
+  csv_sep(r->out);
+  csv_text(r->out, msg);
+  fputc('\n', r->out);
+}
+
+static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                         const dt_judgement *j, const dt_autofit_out *o, int st) {
+  const dt_analysis_out *an = &o->an;
+  const dt_fit_result *fr = &an->fit;
+  size_t nrows = j->ncomp ? j->ncomp : 1;
+  for (size_t k = 0; k < nrows; k++) {
+    FILE *f = r->out;
+    row_head(r, t, s, row, j->doublet, j->vsys, st == DT_OK ? "ok" : "not-converged");
+    fprintf(f, ",%zu,", j->ncomp);
+    if (j->ncomp) {
+      fprintf(f, "%zu,", k + 1);
+      csv_num(f, fr->comp[k].v, 3);
+      csv_sep(f);
+      csv_num(f, fr->err[k].v, 3);
+      csv_sep(f);
+      csv_num(f, fr->comp[k].b, 3);
+      csv_sep(f);
+      csv_num(f, fr->err[k].b, 3);
+      csv_sep(f);
+      csv_num(f, fr->comp[k].logN, 4);
+      csv_sep(f);
+      csv_num(f, fr->err[k].logN, 4);
+      csv_sep(f);
+    } else {
+      fputs(",,,,,,,", f);
+    }
+    csv_num(f, fr->chi2_red, 4);
+    csv_sep(f);
+    fprintf(f, "%ld,", fr->dof);
+    csv_num(f, fr->bic, 3);
+    csv_sep(f);
+    const dt_analysis_line *a = &an->line[0], *b = &an->line[1];
+    csv_num(f, 1e3 * a->W, 2);
+    csv_sep(f);
+    csv_num(f, 1e3 * a->W_err, 2);
+    csv_sep(f);
+    csv_num(f, a->W_sig, 2);
+    csv_sep(f);
+    csv_num(f, a->logN_aod, 4);
+    csv_sep(f);
+    csv_num(f, a->logN_aod_err, 4);
+    csv_sep(f);
+    csv_num(f, 1e3 * b->W, 2);
+    csv_sep(f);
+    csv_num(f, 1e3 * b->W_err, 2);
+    csv_sep(f);
+    csv_num(f, b->logN_aod, 4);
+    csv_sep(f);
+    csv_num(f, b->logN_aod_err, 4);
+    csv_sep(f);
+    fputs(an->saturated ? "1" : "0", f);
+    csv_sep(f);
+    /* the limit is given unless the first pass calls it a detection */
+    if (o->suggested != DT_VERDICT_DETECTED) csv_num(f, a->logN_limit, 4);
+    csv_sep(f);
+    fputs(dt_verdict_name(o->suggested), f);
+    csv_sep(f);
+    csv_text(f, o->reason);
+    fputc('\n', f);
+  }
+}
+
+/* Resolution: command line, else the target list, else the header. */
+static int pick_resolution(const config *c, const dt_target_spec *t, const dt_spectrum *s,
+                           dt_judgement *j, dt_err *e) {
+  j->resolution = 0;
+  j->fwhm_kms = 0;
+  if (c->have_R) j->resolution = c->R;
+  else if (c->have_fwhm) j->fwhm_kms = c->fwhm;
+  else if (t->resolution > 0) j->resolution = t->resolution;
+  else if (t->fwhm_kms > 0) j->fwhm_kms = t->fwhm_kms;
+  else if (s->resolution > 0) j->resolution = s->resolution;
+  else
+    return dt_err_set(e, DT_EINVAL, NULL,
+                      "no resolving power in the file: give --resolution R or --fwhm KMS");
+  return DT_OK;
+}
+
+/* Both lines of the doublet at vsys must fall inside the data. */
+static int check_coverage(const dt_spectrum *s, const dt_doublet *d, double vsys,
+                          dt_err *e) {
+  double lo = s->wave[0], hi = s->wave[s->n - 1];
+  for (int l = 0; l < 2; l++) {
+    double lam = dt_wavelength(0.0, d->line[l].lambda0, vsys);
+    if (lam < lo || lam > hi)
+      return dt_err_set(e, DT_ERANGE, NULL,
+                        "%s (%.2f A at vsys %g km/s) lies outside the data (%.2f-%.2f A)",
+                        d->line[l].label, lam, vsys, lo, hi);
+  }
+  return DT_OK;
+}
+
+/* Fit one spectrum (one row of a table, or the only one). */
+static void fit_one(run *r, const dt_target_spec *t, long row) {
+  const config *c = r->cfg;
+  dt_err e;
+  dt_err_clear(&e);
+  const char *dname = c->doublet ? c->doublet : (t->doublet[0] ? t->doublet : "NaI");
+  double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
+  dt_read_opts ro = c->ropts;
+  ro.row = row;
+  dt_spectrum *s = NULL;
+  dt_analysis *an = NULL;
+  int st = dt_spectrum_read(t->path, &ro, &s, &e);
+  const dt_doublet *d = NULL;
+  if (st == DT_OK) {
+    d = dt_atomic_find(r->atomic, dname);
+    if (!d) st = dt_err_set(&e, DT_ENOTFOUND, NULL, "unknown doublet '%s'", dname);
+  }
+  dt_judgement j;
+  dt_judgement_init(&j);
+  if (st == DT_OK) {
+    snprintf(j.doublet, sizeof j.doublet, "%s", d->name);
+    j.vsys = vsys;
+    if (c->have_window) {
+      j.vlo = c->vlo;
+      j.vhi = c->vhi;
+    }
+    if (c->have_order) j.cont_order = c->cont_order;
+    st = pick_resolution(c, t, s, &j, &e);
+  }
+  if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
+  dt_autofit_out o;
+  memset(&o, 0, sizeof o);
+  if (st == DT_OK) {
+    an = dt_analysis_alloc(s, r->atomic);
+    if (!an) st = dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
+  }
+  if (st == DT_OK) {
+    dt_analysis_opts ao;
+    dt_analysis_opts_init(&ao);
+    ao.limit_nsigma = c->limit_nsigma;
+    ao.joint_cont = (size_t)c->joint_cont;
+    dt_analysis_set_opts(an, &ao);
+    dt_autofit_opts fo;
+    dt_autofit_opts_init(&fo);
+    fo.ncomp = c->ncomp;
+    fo.nseed = c->nseed;
+    for (size_t k = 0; k < c->nseed; k++) fo.seed_v[k] = c->seed_v[k];
+    st = dt_autofit_run(an, &j, &fo, &o, &e);
+  }
+  long shown_row = s ? s->row : row;
+  if (st == DT_OK || st == DT_ENOCONV) {
+    write_result(r, t, s, shown_row, &j, &o, st);
+    r->fitted++;
+    if (st == DT_ENOCONV) r->noconv++;
+  } else {
+    report(r, t->path, shown_row, &e);
+    write_failed(r, t, s, shown_row, d ? d->name : dname, vsys, &e);
+    r->failed++;
+  }
+  dt_analysis_free(an);
+  dt_spectrum_free(s);
+}
+
+/* One input: every row of a multi-row table (or --row), else the spectrum. */
+static void fit_input(run *r, const dt_target_spec *t) {
+  const config *c = r->cfg;
+  long row = c->row > 0 ? c->row : t->row;
+  if (row > 0) {
+    fit_one(r, t, row);
+    return;
+  }
+  long count = 1;
+  dt_err e;
+  if (dt_spectrum_count(t->path, &c->ropts, &count, &e) != DT_OK) {
+    const char *dname = c->doublet ? c->doublet : (t->doublet[0] ? t->doublet : "NaI");
+    double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
+    report(r, t->path, 0, &e);
+    write_failed(r, t, NULL, 0, dname, vsys, &e);
+    r->failed++;
+    return;
+  }
+  if (count <= 1) {
+    fit_one(r, t, 0);
+    return;
+  }
+  for (long k = 1; k <= count; k++) fit_one(r, t, k);
+}
+
+/* Next input of the run: counts it, and fits it when it is in our shard. */
+static void take(run *r, const dt_target_spec *t) {
+  r->index = r->ninputs++;
+  if (r->index % r->cfg->shard_n == r->cfg->shard_k) fit_input(r, t);
+  bar_draw(r);
+}
+
+/* A bad line of a list is an input too (it has an index in every shard). */
+static void take_bad(run *r, const char *file, const dt_err *e) {
+  r->index = r->ninputs++;
+  if (r->index % r->cfg->shard_n == r->cfg->shard_k) {
+    dt_target_spec t;
+    dt_target_spec_init(&t, file);
+    report(r, file, 0, e);
+    write_failed(r, &t, NULL, 0, r->cfg->doublet ? r->cfg->doublet : "", NAN, e);
+    r->failed++;
+  }
+  bar_draw(r);
+}
+
+static void run_list(run *r, const char *path) {
+  dt_targets *l = NULL;
+  dt_err e;
+  if (dt_targets_open(path, &l, &e) != DT_OK) {
+    take_bad(r, path, &e);
+    return;
+  }
+  dt_target_spec *t = malloc(sizeof *t);
+  if (!t) {
+    dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
+    take_bad(r, path, &e);
+    dt_targets_close(l);
+    return;
+  }
+  for (;;) {
+    int got = 0;
+    int st = dt_targets_next(l, t, &got, &e);
+    if (st != DT_OK) {
+      take_bad(r, path, &e);
+      continue;
+    }
+    if (!got) break;
+    take(r, t);
+  }
+  free(t);
+  dt_targets_close(l);
+}
+
+static void run_files_from(run *r, const char *path) {
+  FILE *f = strcmp(path, "-") ? fopen(path, "r") : stdin;
+  dt_err e;
+  if (!f) {
+    dt_err_set(&e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
+    take_bad(r, path, &e);
+    return;
+  }
+  dt_target_spec *t = malloc(sizeof *t);
+  char *line = NULL;
+  size_t cap = 0;
+  ssize_t len;
+  while (t && (len = getline(&line, &cap, f)) != -1) {
+    while (len > 0 && (line[len - 1] == '\n' || line[len - 1] == '\r')) line[--len] = '\0';
+    char *p = line;
+    while (*p == ' ' || *p == '\t') p++;
+    if (!*p || *p == '#') continue;
+    dt_target_spec_init(t, p);
+    take(r, t);
+  }
+  free(line);
+  free(t);
+  if (f != stdin) fclose(f);
+}
+
+/* ---- options ---------------------------------------------------------- */
+
+static int parse_window(const char *text, double *lo, double *hi) {
+  const char *colon = text ? strchr(text, ':') : NULL;
+  if (!colon) {
+    cli_errorf("--window: '%s' is not VLO:VHI (e.g. -400:300)", text ? text : "");
+    return 1;
+  }
+  char a[64], b[64];
+  snprintf(a, sizeof a, "%.*s", (int)(colon - text), text);
+  snprintf(b, sizeof b, "%s", colon + 1);
+  if (cli_parse_double("--window", a, lo) || cli_parse_double("--window", b, hi)) return 1;
+  if (!isfinite(*lo) || !isfinite(*hi) || *lo >= *hi) {
+    cli_errorf("--window: empty velocity window %s (VLO must be below VHI)", text);
+    return 1;
+  }
+  return 0;
+}
+
+static int parse_shard(const char *text, long *k, long *n) {
+  const char *slash = text ? strchr(text, '/') : NULL;
+  char a[32], b[32];
+  if (!slash) {
+    cli_errorf("--shard: '%s' is not K/N (e.g. 0/4)", text ? text : "");
+    return 1;
+  }
+  snprintf(a, sizeof a, "%.*s", (int)(slash - text), text);
+  snprintf(b, sizeof b, "%s", slash + 1);
+  if (cli_parse_long("--shard", a, k) || cli_parse_long("--shard", b, n)) return 1;
+  if (*n < 1 || *k < 0 || *k >= *n) {
+    cli_errorf("--shard %s: need 0 <= K < N and N >= 1", text);
+    return 1;
+  }
+  return 0;
+}
+
+static int parse_seeds(const char *text, config *c) {
+  char buf[512];
+  snprintf(buf, sizeof buf, "%s", text ? text : "");
+  c->nseed = 0;
+  char *save = NULL;
+  for (char *tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
+    if (c->nseed == DT_MAX_COMP) {
+      cli_errorf("--seed-v: at most %d velocities", DT_MAX_COMP);
+      return 1;
+    }
+    double v;
+    if (cli_parse_double("--seed-v", tok, &v)) return 1;
+    if (!isfinite(v)) {
+      cli_errorf("--seed-v: '%s' is not a finite velocity", tok);
+      return 1;
+    }
+    c->seed_v[c->nseed++] = v;
+  }
+  if (c->nseed == 0) {
+    cli_errorf("--seed-v: no velocity given");
+    return 1;
+  }
+  return 0;
+}
+
+/* Option value: "--opt=value" or the next argument. */
+static const char *value(int argc, char **argv, int *i, const char *name) {
+  size_t n = strlen(name);
+  if (argv[*i][n] == '=') return argv[*i] + n + 1;
+  if (*i + 1 >= argc) {
+    cli_errorf("%s needs a value", name);
+    return NULL;
+  }
+  return argv[++*i];
+}
+
+static int is_opt(const char *arg, const char *name) {
+  size_t n = strlen(name);
+  return !strncmp(arg, name, n) && (arg[n] == '\0' || arg[n] == '=');
+}
+
+int cmd_fit(int argc, char **argv) {
+  config c;
+  memset(&c, 0, sizeof c);
+  c.shard_n = 1;
+  c.limit_nsigma = 3.0;
+  const char *atomic_file = NULL;
+  source *src = calloc((size_t)argc + 1, sizeof *src);
+  size_t nsrc = 0;
+  int rc = 2;
+  FILE *out = NULL;
+  dt_atomic *atomic = NULL;
+  if (!src) {
+    cli_errorf("out of memory");
+    return 2;
+  }
+  int only_files = 1;
+  for (int i = 1; i < argc; i++) {
+    const char *a = argv[i], *v = NULL;
+    double x;
+    long l;
+#define VAL(name)                                  \
+  do {                                             \
+    if (!(v = value(argc, argv, &i, name))) goto done; \
+  } while (0)
+    if (!strcmp(a, "-h") || !strcmp(a, "--help")) {
+      usage(stdout);
+      rc = 0;
+      goto done;
+    } else if (is_opt(a, "--doublet")) {
+      VAL("--doublet");
+      c.doublet = v;
+    } else if (is_opt(a, "--resolution")) {
+      VAL("--resolution");
+      if (cli_parse_double("--resolution", v, &x)) goto done;
+      if (!(x > 0) || !isfinite(x)) {
+        cli_errorf("--resolution: R must be positive (got %s)", v);
+        goto done;
+      }
+      c.R = x;
+      c.have_R = 1;
+    } else if (is_opt(a, "--fwhm")) {
+      VAL("--fwhm");
+      if (cli_parse_double("--fwhm", v, &x)) goto done;
+      if (!(x > 0) || !isfinite(x)) {
+        cli_errorf("--fwhm: the FWHM must be positive (got %s km/s)", v);
+        goto done;
+      }
+      c.fwhm = x;
+      c.have_fwhm = 1;
+    } else if (is_opt(a, "--vsys")) {
+      VAL("--vsys");
+      if (cli_parse_double("--vsys", v, &x)) goto done;
+      if (!isfinite(x) || x <= -DT_C_KMS) {
+        cli_errorf("--vsys: %s km/s is not a velocity", v);
+        goto done;
+      }
+      c.vsys = x;
+      c.have_vsys = 1;
+    } else if (is_opt(a, "--window")) {
+      VAL("--window");
+      if (parse_window(v, &c.vlo, &c.vhi)) goto done;
+      c.have_window = 1;
+    } else if (is_opt(a, "--ncomp")) {
+      VAL("--ncomp");
+      if (cli_parse_long("--ncomp", v, &l)) goto done;
+      if (l < 0 || l > DT_MAX_COMP) {
+        cli_errorf("--ncomp: %ld is outside 0..%d", l, DT_MAX_COMP);
+        goto done;
+      }
+      c.ncomp = (int)l;
+    } else if (is_opt(a, "--seed-v")) {
+      VAL("--seed-v");
+      if (parse_seeds(v, &c)) goto done;
+    } else if (is_opt(a, "--continuum-order")) {
+      VAL("--continuum-order");
+      if (cli_parse_long("--continuum-order", v, &l)) goto done;
+      if (l < -1 || l > DT_MAX_CONT - 1) {
+        cli_errorf("--continuum-order: %ld is outside -1..%d", l, DT_MAX_CONT - 1);
+        goto done;
+      }
+      c.cont_order = (int)l;
+      c.have_order = 1;
+    } else if (is_opt(a, "--joint-continuum")) {
+      VAL("--joint-continuum");
+      if (cli_parse_long("--joint-continuum", v, &l)) goto done;
+      if (l < 0 || l > DT_MAX_CONT) {
+        cli_errorf("--joint-continuum: %ld is outside 0..%d", l, DT_MAX_CONT);
+        goto done;
+      }
+      c.joint_cont = (int)l;
+    } else if (is_opt(a, "--limit-sigma")) {
+      VAL("--limit-sigma");
+      if (cli_parse_double("--limit-sigma", v, &x)) goto done;
+      if (!(x > 0) || !isfinite(x)) {
+        cli_errorf("--limit-sigma: must be positive (got %s)", v);
+        goto done;
+      }
+      c.limit_nsigma = x;
+    } else if (is_opt(a, "--atomic")) {
+      VAL("--atomic");
+      atomic_file = v;
+    } else if (is_opt(a, "--row")) {
+      VAL("--row");
+      if (cli_parse_long("--row", v, &l)) goto done;
+      if (l < 1) {
+        cli_errorf("--row: rows are numbered from 1 (got %ld)", l);
+        goto done;
+      }
+      c.row = l;
+    } else if (is_opt(a, "--wave-col")) {
+      VAL("--wave-col");
+      c.ropts.wave_col = v;
+    } else if (is_opt(a, "--flux-col")) {
+      VAL("--flux-col");
+      c.ropts.flux_col = v;
+    } else if (is_opt(a, "--err-col")) {
+      VAL("--err-col");
+      c.ropts.err_col = v;
+    } else if (is_opt(a, "--mask-col")) {
+      VAL("--mask-col");
+      c.ropts.mask_col = v;
+    } else if (is_opt(a, "--list")) {
+      VAL("--list");
+      src[nsrc++] = (source){SRC_LIST, v};
+      only_files = 0;
+    } else if (is_opt(a, "--files-from")) {
+      VAL("--files-from");
+      src[nsrc++] = (source){SRC_FILES_FROM, v};
+      only_files = 0;
+    } else if (is_opt(a, "--shard")) {
+      VAL("--shard");
+      if (parse_shard(v, &c.shard_k, &c.shard_n)) goto done;
+    } else if (!strcmp(a, "-o") || is_opt(a, "--output")) {
+      VAL(a[1] == 'o' ? "-o" : "--output");
+      c.out_path = v;
+    } else if (!strcmp(a, "--")) {
+      for (i++; i < argc; i++) src[nsrc++] = (source){SRC_FILE, argv[i]};
+    } else if (a[0] == '-' && a[1] != '\0') {
+      cli_errorf("fit: unknown option '%s' (see doubletty fit --help)", a);
+      goto done;
+    } else {
+      src[nsrc++] = (source){SRC_FILE, a};
+    }
+#undef VAL
+  }
+  if (nsrc == 0) {
+    cli_errorf("fit: no spectrum given");
+    usage(stderr);
+    goto done;
+  }
+  if (c.have_R && c.have_fwhm) {
+    cli_errorf("fit: give --resolution or --fwhm, not both");
+    goto done;
+  }
+  if (c.ncomp > 0 && c.nseed > 0 && (size_t)c.ncomp != c.nseed) {
+    cli_errorf("fit: --ncomp %d disagrees with %zu --seed-v velocities", c.ncomp, c.nseed);
+    goto done;
+  }
+  if (c.nseed > 0) {
+    dt_judgement tmp;
+    dt_judgement_init(&tmp);
+    double lo = c.have_window ? c.vlo : tmp.vlo, hi = c.have_window ? c.vhi : tmp.vhi;
+    for (size_t k = 0; k < c.nseed; k++)
+      if (c.seed_v[k] <= lo || c.seed_v[k] >= hi) {
+        cli_errorf("--seed-v: %g km/s lies outside the velocity window %g:%g", c.seed_v[k],
+                   lo, hi);
+        goto done;
+      }
+  }
+  atomic = cli_load_atomic(atomic_file);
+  if (!atomic) goto done;
+  if (c.doublet && !dt_atomic_find(atomic, c.doublet)) {
+    char known[256] = "";
+    for (size_t k = 0; k < dt_atomic_count(atomic); k++) {
+      size_t len = strlen(known);
+      snprintf(known + len, sizeof known - len, "%s%s", k ? ", " : "",
+               dt_atomic_get(atomic, k)->name);
+    }
+    cli_errorf("--doublet: unknown doublet '%s' (known: %s)", c.doublet, known);
+    goto done;
+  }
+  out = stdout;
+  if (c.out_path && strcmp(c.out_path, "-")) {
+    out = fopen(c.out_path, "w");
+    if (!out) {
+      cli_errorf("%s: cannot write: %s", c.out_path, strerror(errno));
+      out = NULL;
+      goto done;
+    }
+  }
+
+  run r;
+  memset(&r, 0, sizeof r);
+  r.out = out;
+  r.atomic = atomic;
+  r.cfg = &c;
+  r.total = only_files ? (long)nsrc : -1;
+  r.progress = isatty(STDERR_FILENO);
+  for (size_t k = 0; k < NCOLUMNS; k++) fprintf(out, "%s%s", k ? "," : "", COLUMNS[k]);
+  fputc('\n', out);
+  for (size_t k = 0; k < nsrc; k++) {
+    if (src[k].kind == SRC_FILE) {
+      dt_target_spec t;
+      dt_target_spec_init(&t, src[k].arg);
+      take(&r, &t);
+    } else if (src[k].kind == SRC_LIST) {
+      run_list(&r, src[k].arg);
+    } else {
+      run_files_from(&r, src[k].arg);
+    }
+    fflush(out);
+  }
+  bar_clear(&r);
+  int werr = ferror(out);
+  if (out != stdout) werr |= fclose(out) != 0;
+  else werr |= fflush(out) != 0;
+  out = NULL;
+  if (werr) {
+    cli_errorf("%s: write error", c.out_path ? c.out_path : "standard output");
+    r.failed++;
+  }
+  if (r.noconv)
+    fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed (%ld fits did not converge)\n",
+            r.fitted, r.failed, r.noconv);
+  else
+    fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed\n", r.fitted, r.failed);
+  rc = r.failed ? 1 : 0;
+done:
+  if (out && out != stdout) fclose(out);
+  dt_atomic_free(atomic);
+  free(src);
+  return rc;
+}
