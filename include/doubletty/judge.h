@@ -92,4 +92,26 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a);
 const char *dt_action_name(dt_action_kind k);
 int dt_action_kind_parse(const char *s, dt_action_kind *k);
 
+/* Which actions change the model (and so clear has_fit): every kind except
+ * DT_ACT_VERDICT and DT_ACT_NOTE; DT_ACT_FIT sets has_fit, DT_ACT_RESTORE
+ * takes has_fit from the restored state.  A DT_ACT_FIT whose result has
+ * status DT_OK gives the components its values; a failed fit is recorded
+ * (has_fit = 1, fit.status != DT_OK) and leaves the components as they were.
+ * Its fit.ncomp must equal the judgement's ncomp. */
+
+/* An action of kind k with every other field zero (state NULL). */
+void dt_action_init(dt_action *a, dt_action_kind k);
+
+/* 1 when two judgements are the same state: every setting, component,
+ * freeze, verdict, note and (when has_fit) the fit, compared exactly (NaN
+ * equals NaN). */
+int dt_judgement_same(const dt_judgement *a, const dt_judgement *b);
+/* The same for two fit results (every field, NaN equals NaN). */
+int dt_fit_result_same(const dt_fit_result *a, const dt_fit_result *b);
+
+/* DT_FREEZE_* bits as letters in the order "N", "b", "v" ("" for none) and
+ * back; buf holds at least 4 bytes.  Parse: DT_OK or DT_EINVAL. */
+const char *dt_freeze_str(unsigned bits, char buf[4]);
+int dt_freeze_parse(const char *s, unsigned *bits);
+
 #endif

@@ -1,0 +1,458 @@
+/* doubletty export — the final state of every spectrum of a session, as a
+ * CSV file or a FITS binary table.
+ *
+ * One row per component (a spectrum without components gets one row with
+ * component 0 and empty component fields), the spectrum's columns repeated
+ * on each: verdict, note, who judged it and when, the components with the
+ * 1-sigma errors of the fit that gave them (empty when they were changed by
+ * hand after the fit), the fit's chi2, and the measurements last recorded
+ * (equivalent widths, apparent column densities, upper limits).  The FITS
+ * table (cfitsio) carries TUNITn for every physical column and header
+ * keywords for the program version and the SHA-256 of the session file.
+ *
+ * The output is written to a temporary file beside it and moved into place
+ * at the end, so a failed export leaves no half file; an existing file is
+ * never replaced without --force, and never when it is the session itself. */
+#include <errno.h>
+#include <fitsio.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "cli.h"
+#include "commands.h"
+#include "doubletty/digest.h"
+#include "doubletty/journal.h"
+#include "session_util.h"
+
+static void usage(FILE *f) {
+  fprintf(f,
+          "usage: doubletty export SESSION -o FILE.csv|FILE.fits [--force]\n"
+          "Write the final state of every spectrum in a session file: verdict, note,\n"
+          "components with errors, chi2, equivalent widths, apparent column densities,\n"
+          "upper limits, who judged it and when.  One row per component.\n\n"
+          "options:\n"
+          "  -o FILE        output; the format follows the name: .csv, or .fits/.fit/.fts\n"
+          "                 ('-o -' writes CSV to standard output)\n"
+          "  --force        replace FILE if it exists\n"
+          "  -h, --help     this text\n");
+}
+
+/* ---- the table: columns and their values per row ---- */
+
+typedef enum { C_STR, C_INT, C_DBL, C_BOOL } ctype;
+
+typedef struct column {
+  const char *name;
+  ctype type;
+  const char *unit; /* FITS TUNITn ("" for none) */
+} column;
+
+/* Standard FITS units (FITS 4.0 section 4.3); "log(cm-2)" is the standard's
+ * notation for a common logarithm of a column density. */
+static const column COLS[] = {
+    {"file", C_STR, ""},          {"hdu", C_INT, ""},
+    {"row", C_INT, ""},           {"verdict", C_STR, ""},
+    {"note", C_STR, ""},          {"judged_by", C_STR, ""},
+    {"judged_at", C_STR, ""},     {"last_user", C_STR, ""},
+    {"last_change", C_STR, ""},   {"changes", C_INT, ""},
+    {"flags", C_STR, ""},         {"sha256", C_STR, ""},
+    {"doublet", C_STR, ""},       {"vsys_kms", C_DBL, "km s-1"},
+    {"ncomp", C_INT, ""},         {"component", C_INT, ""},
+    {"logN", C_DBL, "log(cm-2)"}, {"logN_err", C_DBL, "log(cm-2)"},
+    {"b_kms", C_DBL, "km s-1"},   {"b_err", C_DBL, "km s-1"},
+    {"v_kms", C_DBL, "km s-1"},   {"v_err", C_DBL, "km s-1"},
+    {"frozen", C_STR, ""},        {"fit_status", C_STR, ""},
+    {"chi2", C_DBL, ""},          {"dof", C_INT, ""},
+    {"chi2_red", C_DBL, ""},      {"W_A", C_DBL, "Angstrom"},
+    {"W_err_A", C_DBL, "Angstrom"}, {"W_lim_A", C_DBL, "Angstrom"},
+    {"logN_aod", C_DBL, "log(cm-2)"}, {"logN_aod_err", C_DBL, "log(cm-2)"},
+    {"logN_limit", C_DBL, "log(cm-2)"}, {"W2_A", C_DBL, "Angstrom"},
+    {"W2_err_A", C_DBL, "Angstrom"}, {"W2_lim_A", C_DBL, "Angstrom"},
+    {"logN_aod2", C_DBL, "log(cm-2)"}, {"logN_aod2_err", C_DBL, "log(cm-2)"},
+    {"logN_limit2", C_DBL, "log(cm-2)"}, {"nsigma", C_DBL, ""},
+    {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
+};
+#define NCOL (sizeof COLS / sizeof COLS[0])
+
+typedef union cell {
+  const char *s;
+  long long i;
+  double d;
+} cell;
+
+/* The cells of one row: spectrum en, component k (0 = none). */
+static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags, char *frozen) {
+  const dt_judgement *s = &en->state;
+  const dt_meas_summary *m = &en->meas;
+  dt_meas_summary none;
+  if (!en->has_meas) {
+    dt_meas_summary_clear(&none);
+    m = &none;
+  }
+  flags[0] = '\0';
+  if (en->flags & DT_JFLAG_FILE_CHANGED) strcat(flags, "file-changed");
+  if (en->flags & DT_JFLAG_REPLAY_MISMATCH) {
+    if (flags[0]) strcat(flags, ";");
+    strcat(flags, "replay-mismatch");
+  }
+  /* errors belong to the components only while they are the fit's values */
+  const dt_component *comp = k ? &s->comp[k - 1] : NULL, *err = NULL;
+  if (comp && s->has_fit && s->fit.status == DT_OK && s->fit.ncomp == s->ncomp &&
+      !memcmp(&s->fit.comp[k - 1], comp, sizeof *comp))
+    err = &s->fit.err[k - 1];
+  frozen[0] = '\0';
+  if (comp) dt_freeze_str(s->frozen[k - 1], frozen);
+  static char status[32];
+  if (!s->has_fit) status[0] = '\0';
+  else snprintf(status, sizeof status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
+  size_t i = 0;
+  c[i++].s = en->target.path;
+  c[i++].i = en->target.hdu;
+  c[i++].i = en->target.row;
+  c[i++].s = dt_verdict_name(s->verdict);
+  c[i++].s = s->note;
+  c[i++].s = en->judged_by;
+  c[i++].s = en->judged_at;
+  c[i++].s = en->user;
+  c[i++].s = en->time;
+  c[i++].i = en->nchanges;
+  c[i++].s = flags;
+  c[i++].s = en->target.sha256;
+  c[i++].s = s->doublet;
+  c[i++].d = s->vsys;
+  c[i++].i = (long long)s->ncomp;
+  c[i++].i = (long long)k;
+  c[i++].d = comp ? comp->logN : NAN;
+  c[i++].d = err ? err->logN : NAN;
+  c[i++].d = comp ? comp->b : NAN;
+  c[i++].d = err ? err->b : NAN;
+  c[i++].d = comp ? comp->v : NAN;
+  c[i++].d = err ? err->v : NAN;
+  c[i++].s = frozen;
+  c[i++].s = status;
+  c[i++].d = s->has_fit ? s->fit.chi2 : NAN;
+  c[i++].i = s->has_fit ? s->fit.dof : -1;
+  c[i++].d = s->has_fit ? s->fit.chi2_red : NAN;
+  for (int l = 0; l < 2; l++) {
+    const dt_meas_line *ml = &m->line[l];
+    c[i++].d = ml->w;
+    c[i++].d = ml->w_err;
+    c[i++].d = ml->w_lim;
+    c[i++].d = ml->logN_aod;
+    c[i++].d = ml->logN_aod_err;
+    c[i++].d = ml->logN_lim;
+  }
+  c[i++].d = m->nsigma;
+  c[i++].i = m->saturated;
+  c[i++].s = m->suggested == DT_VERDICT_NONE ? "" : dt_verdict_name(m->suggested);
+}
+
+/* ---- CSV ---- */
+
+static void csv_str(FILE *f, const char *s) {
+  if (!strpbrk(s, ",\"\n\r")) {
+    fputs(s, f);
+    return;
+  }
+  fputc('"', f);
+  for (; *s; s++) {
+    if (*s == '"') fputc('"', f);
+    fputc(*s, f);
+  }
+  fputc('"', f);
+}
+
+static int write_csv(FILE *f, const dt_journal *j) {
+  for (size_t c = 0; c < NCOL; c++) fprintf(f, "%s%s", c ? "," : "", COLS[c].name);
+  fputc('\n', f);
+  cell cells[NCOL];
+  char flags[64], frozen[4], num[40];
+  for (size_t i = 0; i < dt_journal_count(j); i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    size_t nc = en->state.ncomp;
+    for (size_t k = nc ? 1 : 0; k <= nc; k++) {
+      fill_row(en, k, cells, flags, frozen);
+      for (size_t c = 0; c < NCOL; c++) {
+        if (c) fputc(',', f);
+        switch (COLS[c].type) {
+        case C_STR: csv_str(f, cells[c].s); break;
+        case C_INT:
+          if (!(cells[c].i < 0 && !strcmp(COLS[c].name, "dof"))) fprintf(f, "%lld", cells[c].i);
+          break;
+        case C_BOOL: fputs(cells[c].i ? "1" : "0", f); break;
+        case C_DBL: fputs(su_num(num, sizeof num, cells[c].d), f); break;
+        }
+      }
+      fputc('\n', f);
+    }
+  }
+  return ferror(f) ? DT_EIO : DT_OK;
+}
+
+/* ---- FITS ---- */
+
+static int fits_fail(int status, dt_err *e) {
+  char msg[FLEN_ERRMSG] = "";
+  fits_get_errstatus(status, msg);
+  return dt_err_set(e, DT_EIO, NULL, "cannot write the FITS table: %s", msg);
+}
+
+static int write_fits(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, dt_err *e) {
+  /* string widths: the longest value of each string column */
+  long width[NCOL];
+  for (size_t c = 0; c < NCOL; c++) width[c] = 1;
+  cell cells[NCOL];
+  char flags[64], frozen[4];
+  for (size_t i = 0; i < dt_journal_count(j); i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    for (size_t k = en->state.ncomp ? 1 : 0; k <= en->state.ncomp; k++) {
+      fill_row(en, k, cells, flags, frozen);
+      for (size_t c = 0; c < NCOL; c++)
+        if (COLS[c].type == C_STR && (long)strlen(cells[c].s) > width[c])
+          width[c] = (long)strlen(cells[c].s);
+    }
+  }
+  char *ttype[NCOL], *tform[NCOL], *tunit[NCOL];
+  char forms[NCOL][24];
+  for (size_t c = 0; c < NCOL; c++) {
+    ttype[c] = (char *)COLS[c].name;
+    tunit[c] = (char *)COLS[c].unit;
+    switch (COLS[c].type) {
+    case C_STR: snprintf(forms[c], sizeof forms[c], "%ldA", width[c]); break;
+    case C_INT: snprintf(forms[c], sizeof forms[c], "K"); break;
+    case C_DBL: snprintf(forms[c], sizeof forms[c], "D"); break;
+    case C_BOOL: snprintf(forms[c], sizeof forms[c], "L"); break;
+    }
+    tform[c] = forms[c];
+  }
+  fitsfile *f = NULL;
+  int st = 0;
+  char name[4200];
+  snprintf(name, sizeof name, "!%s", path); /* the temporary file we made */
+  fits_create_file(&f, name, &st);
+  if (st) return fits_fail(st, e);
+  fits_create_tbl(f, BINARY_TBL, 0, (int)NCOL, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
+  char creator[64];
+  snprintf(creator, sizeof creator, "doubletty %s", DT_VERSION);
+  fits_update_key_str(f, "CREATOR", creator, "program that wrote this file", &st);
+  fits_update_key_str(f, "DTVERSN", (char *)DT_VERSION, "doubletty version", &st);
+  const char *base = strrchr(session, '/');
+  base = base ? base + 1 : session;
+  char sbase[69];
+  snprintf(sbase, sizeof sbase, "%s", base);
+  fits_update_key_str(f, "SESSFILE", sbase, "session file (name)", &st);
+  fits_update_key_str(f, "SESSSHA", (char *)session_sha, "SHA-256 of the session file", &st);
+  long long nspec = (long long)dt_journal_count(j);
+  fits_update_key_lng(f, "NSPEC", nspec, "spectra in the session", &st);
+  fits_write_date(f, &st);
+  for (size_t c = 0; c < NCOL; c++)
+    if (!strcmp(COLS[c].name, "dof")) { /* -1 = no fit */
+      char key[16];
+      snprintf(key, sizeof key, "TNULL%zu", c + 1);
+      fits_update_key_lng(f, key, -1, "no fit", &st);
+    }
+  if (st) {
+    fits_close_file(f, &st);
+    return fits_fail(st, e);
+  }
+  /* row by row: cfitsio buffers the table, so this is not slow */
+  long long row = 0;
+  for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    for (size_t k = en->state.ncomp ? 1 : 0; k <= en->state.ncomp && !st; k++) {
+      fill_row(en, k, cells, flags, frozen);
+      row++;
+      for (size_t c = 0; c < NCOL && !st; c++) {
+        int col = (int)c + 1;
+        switch (COLS[c].type) {
+        case C_STR: {
+          char *s = (char *)cells[c].s;
+          if (!*s) s = " "; /* cfitsio writes an empty string as blanks anyway */
+          fits_write_col(f, TSTRING, col, row, 1, 1, &s, &st);
+          break;
+        }
+        case C_INT: {
+          LONGLONG v = cells[c].i;
+          fits_write_col(f, TLONGLONG, col, row, 1, 1, &v, &st);
+          break;
+        }
+        case C_DBL: {
+          double v = cells[c].d;
+          fits_write_col(f, TDOUBLE, col, row, 1, 1, &v, &st);
+          break;
+        }
+        case C_BOOL: {
+          char v = cells[c].i ? 1 : 0;
+          fits_write_col(f, TLOGICAL, col, row, 1, 1, &v, &st);
+          break;
+        }
+        }
+      }
+    }
+  }
+  if (st) {
+    int st2 = 0;
+    fits_close_file(f, &st2);
+    return fits_fail(st, e);
+  }
+  fits_close_file(f, &st);
+  if (st) return fits_fail(st, e);
+  return DT_OK;
+}
+
+/* ---- the command ---- */
+
+static int ends_with(const char *s, const char *suffix) {
+  size_t n = strlen(s), m = strlen(suffix);
+  return n > m && !strcasecmp(s + n - m, suffix);
+}
+
+/* Read the session and its digest from the same bytes: digest, replay,
+ * digest again (a writer may be appending meanwhile). */
+static dt_journal *load_with_digest(const char *session, char sha[DT_SHA256_HEX]) {
+  for (int attempt = 0; attempt < 5; attempt++) {
+    dt_err e;
+    char sha2[DT_SHA256_HEX];
+    if (dt_digest_file(session, sha, &e) != DT_OK) {
+      cli_report(session, &e);
+      return NULL;
+    }
+    dt_journal *j = su_open(session);
+    if (!j) return NULL;
+    if (dt_digest_file(session, sha2, &e) == DT_OK && !strcmp(sha, sha2)) return j;
+    dt_journal_close(j);
+  }
+  cli_errorf("%s: the session keeps changing while it is read; try again", session);
+  return NULL;
+}
+
+int cmd_export(int argc, char **argv) {
+  const char *session = NULL, *out = NULL;
+  int force = 0;
+  for (int i = 1; i < argc; i++) {
+    const char *v;
+    int r;
+    if (!strcmp(argv[i], "-h") || !strcmp(argv[i], "--help")) {
+      usage(stdout);
+      return 0;
+    }
+    if (!strcmp(argv[i], "--force")) {
+      force = 1;
+    } else if ((r = su_opt("export", "-o", argc, argv, &i, &v)) != 0 ||
+               (r = su_opt("export", "--output", argc, argv, &i, &v)) != 0) {
+      if (r < 0) return 2;
+      out = v;
+    } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
+      cli_errorf("export: unknown option '%s'", argv[i]);
+      usage(stderr);
+      return 2;
+    } else if (!session) {
+      session = argv[i];
+    } else {
+      cli_errorf("export: one session file at a time ('%s' is extra)", argv[i]);
+      return 2;
+    }
+  }
+  if (!session || !out || !*out) {
+    if (session && !out) cli_errorf("export: no output file (-o FILE.csv or -o FILE.fits)");
+    usage(stderr);
+    return 2;
+  }
+  int to_stdout = !strcmp(out, "-");
+  struct stat so, ss;
+  if (!to_stdout && stat(session, &ss) == 0 && stat(out, &so) == 0 && so.st_dev == ss.st_dev &&
+      so.st_ino == ss.st_ino) {
+    cli_errorf("export: %s: that is the session file itself; choose another output", out);
+    return 2;
+  }
+  int fits = !to_stdout && (ends_with(out, ".fits") || ends_with(out, ".fit") || ends_with(out, ".fts"));
+  if (!to_stdout && !fits && !ends_with(out, ".csv")) {
+    cli_errorf("export: %s: cannot tell the format from the name; use .csv or .fits", out);
+    return 2;
+  }
+  if (!to_stdout && lstat(out, &so) == 0) {
+    if (!force) {
+      cli_errorf("export: %s: file exists; use --force to replace it", out);
+      return 1;
+    }
+    if (S_ISDIR(so.st_mode)) {
+      cli_errorf("export: %s: is a directory", out);
+      return 1;
+    }
+  }
+
+  char sha[DT_SHA256_HEX];
+  dt_journal *j = load_with_digest(session, sha);
+  if (!j) return 1;
+
+  int status = 0;
+  if (to_stdout) {
+    if (write_csv(stdout, j) != DT_OK || fflush(stdout) != 0) {
+      cli_errorf("export: cannot write to standard output");
+      status = 1;
+    }
+    dt_journal_close(j);
+    return status;
+  }
+
+  /* a temporary file beside the output, moved into place at the end */
+  size_t len = strlen(out);
+  char *tmp = malloc(len + 16);
+  if (!tmp) {
+    dt_journal_close(j);
+    cli_errorf("out of memory");
+    return 1;
+  }
+  snprintf(tmp, len + 16, "%s.tmp-XXXXXX", out);
+  int fd = mkstemp(tmp);
+  if (fd < 0) {
+    cli_errorf("export: %s: cannot create: %s", out, strerror(errno));
+    free(tmp);
+    dt_journal_close(j);
+    return 1;
+  }
+  dt_err e;
+  dt_err_clear(&e);
+  int rc;
+  if (fits) {
+    close(fd);
+    rc = write_fits(tmp, j, session, sha, &e);
+  } else {
+    FILE *f = fdopen(fd, "w");
+    rc = f ? write_csv(f, j) : DT_EIO;
+    if (f && (fflush(f) != 0 || fsync(fileno(f)) != 0)) rc = DT_EIO;
+    if (f) {
+      if (fclose(f) != 0) rc = DT_EIO;
+    } else {
+      close(fd);
+    }
+    if (rc != DT_OK) dt_err_set(&e, DT_EIO, NULL, "cannot write: %s", strerror(errno));
+  }
+  if (rc == DT_OK) {
+    mode_t um = umask(0);
+    umask(um);
+    (void)chmod(tmp, 0666 & ~um);
+    if (force) {
+      if (rename(tmp, out) != 0) rc = dt_err_set(&e, DT_EIO, NULL, "cannot move into place: %s", strerror(errno));
+    } else if (link(tmp, out) != 0) {
+      int err = errno;
+      if (err == EEXIST) rc = dt_err_set(&e, DT_EIO, NULL, "file exists; use --force to replace it");
+      else if (access(out, F_OK) != 0 && rename(tmp, out) == 0) rc = DT_OK; /* no hard links here */
+      else rc = dt_err_set(&e, DT_EIO, NULL, "cannot move into place: %s", strerror(err));
+    }
+  }
+  unlink(tmp); /* after link(), or on failure; after rename() it is gone already */
+  if (rc != DT_OK) {
+    cli_report(out, &e);
+    status = 1;
+  }
+  free(tmp);
+  dt_journal_close(j);
+  return status;
+}
