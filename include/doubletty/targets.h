@@ -1,0 +1,56 @@
+/* Target lists: the queue of spectra a person vets, one per line.
+ *
+ *   # comment
+ *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
+ *
+ * Fields are separated by blanks; '#' starts a comment anywhere on a line;
+ * blank lines are ignored.  A relative path is taken relative to the
+ * directory of the list file.  A path may carry a FITS extension selector
+ * "file.fits[2]".  Unknown keys, repeated keys, malformed values and lines
+ * longer than DT_TARGET_LINE_MAX are errors naming the line.
+ *
+ * The reader streams: it holds one line at a time, so a list of any length
+ * costs the same memory; opening the spectra is the caller's business. */
+#ifndef DOUBLETTY_TARGETS_H
+#define DOUBLETTY_TARGETS_H
+#include <stddef.h>
+#include "doubletty/status.h"
+
+#define DT_TARGET_PATH_MAX 4096
+#define DT_TARGET_LINE_MAX 8192
+#define DT_TARGET_NAME_MAX 64
+
+typedef struct dt_target_spec {
+  char path[DT_TARGET_PATH_MAX];  /* resolved path, with any "[ext]" selector */
+  long row;                       /* 1-based row of a multi-row table; 0 = not given */
+  int has_vsys;
+  double vsys;                    /* rest frame [km/s] */
+  double resolution;              /* resolving power R; 0 = not given */
+  double fwhm_kms;                /* LSF FWHM [km/s]; 0 = not given */
+  char doublet[16];               /* "" = not given */
+  char name[DT_TARGET_NAME_MAX];  /* "" = not given */
+  long line;                      /* line number in the list (0 = not from a list) */
+} dt_target_spec;
+
+/* A target with nothing but a path (as given, not resolved). */
+void dt_target_spec_init(dt_target_spec *t, const char *path);
+
+/* Parse one line (without or with its trailing newline).  basedir (may be
+ * NULL or "") is prefixed to a relative path.  *got = 1 when the line holds
+ * a target, 0 for a blank or comment line.  Errors: DT_EFORMAT with
+ * e->where = "line N" (lineno) and e->what naming the problem. */
+int dt_targets_parse_line(const char *line, const char *basedir, long lineno,
+                          dt_target_spec *t, int *got, dt_err *e);
+
+typedef struct dt_targets dt_targets;
+
+/* Open a list file for streaming.  DT_EIO when it cannot be opened. */
+int dt_targets_open(const char *path, dt_targets **out, dt_err *e);
+/* The next target: DT_OK with *got = 1, or *got = 0 at the end of the list.
+ * A bad line is DT_EFORMAT ("line N"); reading may continue after it. */
+int dt_targets_next(dt_targets *l, dt_target_spec *t, int *got, dt_err *e);
+/* Line number of the last line read. */
+long dt_targets_lineno(const dt_targets *l);
+void dt_targets_close(dt_targets *l);
+
+#endif

@@ -1,0 +1,44 @@
+/* The inspector: vet a queue of spectra full-screen, one keystroke per
+ * judgement, with the fit following every change.
+ *
+ * The command layer builds the queue and opens the session journal; the
+ * inspector runs the event loop: key -> command (keymap.h) -> action on the
+ * judgement (judge.h) -> journal append -> refit (analysis.h) -> FIT
+ * action appended -> screen drawn.  Nothing is shown as done before the
+ * journal has it on disk. */
+#ifndef DT_UI_INSPECTOR_H
+#define DT_UI_INSPECTOR_H
+#include <stddef.h>
+#include "doubletty/atomic.h"
+#include "doubletty/journal.h"
+#include "queue.h"
+
+typedef struct dt_inspect_opts {
+  /* defaults for targets whose list line does not set them */
+  const char *doublet;     /* NULL: "NaI" */
+  double resolution;       /* > 0: R */
+  double fwhm_kms;         /* > 0: LSF FWHM [km/s] */
+  int has_vsys;
+  double vsys;             /* [km/s] */
+  /* screen */
+  int colour;              /* -1 auto, 0 never */
+  int ascii;               /* 1: no Unicode even in a UTF-8 locale */
+  /* headless runs (benchmarks, tests): keys from a file, output discarded */
+  const char *replay;      /* key file: one action name or key name a line,
+                              "type TEXT" types TEXT; NULL: interactive */
+  const char *dump;        /* write the last screen as text here (or NULL) */
+  int width, height;       /* headless screen size (0: 100 x 32) */
+  int bench;               /* print per-keystroke timing at the end */
+} dt_inspect_opts;
+
+void dt_inspect_opts_init(dt_inspect_opts *o);
+
+/* Run the inspector on queue q (n >= 1) with the atomic table t, recording
+ * into journal jn (opened by the caller, read-only or not; may be NULL for
+ * a look without a record, which then accepts no judgement).  Returns the
+ * exit status: 0 after quit, 128 + signal after SIGINT/SIGTERM/SIGHUP/
+ * SIGQUIT, 1 when the screen cannot be used (msg says why). */
+int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_inspect_opts *o,
+                   char *msg, size_t msgsize);
+
+#endif

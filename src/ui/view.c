@@ -1,0 +1,571 @@
+/* The inspector's screen, drawn from its state into a grid of cells.
+ *
+ * Layout, top to bottom (our own design):
+ *   title bar     queue position, judged count, target, doublet, frame, R
+ *   overview      the whole spectrum in wavelength: flux, continuum, the two
+ *                 lines' positions, continuum windows; a wavelength axis
+ *   line panels   one per line of the doublet, stacked on one velocity axis:
+ *                 flux, 1-sigma error, continuum, total model, each
+ *                 component's model, component numbers, continuum windows
+ *                 (shaded), masked pixels, the cursor column
+ *   velocity axis
+ *   table         components with errors and frozen/tied marks; chi2, BIC,
+ *                 continuum; W, significance, N_a and limits per line;
+ *                 suggested and current verdict, note
+ *   status line   the last message, or the note being edited
+ * On terminals at least 150 columns wide the table moves to the right of
+ * the plots.  Below 80 x 24 only a "too small" message is drawn.
+ *
+ * Nothing here touches the terminal: the result is s->g. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "doubletty/model.h"
+#include "insp.h"
+#include "keymap.h"
+
+#define DEPARTS 0.002 /* a model "departs" from the continuum by this fraction */
+
+typedef struct layout {
+  int w, h;
+  int ov_y, ov_h, ovaxis_y;
+  int pan_y[2], pan_h;
+  int vaxis_y;
+  int gutter, plot_x, plot_w;
+  int tab_x, tab_y, tab_w, tab_h;
+  int status_y;
+} layout;
+
+/* Symbols with ASCII stand-ins. */
+typedef struct syms {
+  const char *pm, *sig, *chi, *mA, *ang, *vbar, *hbar, *arrow, *ell;
+} syms;
+
+static syms symbols(const dt_insp *s) {
+  if (s->utf8)
+    return (syms){"\xc2\xb1", "\xcf\x83", "\xcf\x87\xc2\xb2\xce\xbd", "m\xc3\x85", "\xc3\x85", "\xe2\x94\x82",
+                  "\xe2\x94\x80", "\xe2\x96\xb6", "\xe2\x80\xa6"};
+  return (syms){"+-", "sig", "chi2r", "mA", "A", "|", "-", ">", "..."};
+}
+
+const char *dt_view_pm(const dt_insp *s, char *buf, size_t size, double v, double err, int dec) {
+  syms y = symbols(s);
+  if (!isfinite(v)) snprintf(buf, size, "-");
+  else if (err >= 1e3 || (isinf(err) && err > 0)) snprintf(buf, size, "%.*f%s?", dec, v, y.pm); /* unconstrained */
+  else if (isfinite(err) && err > 0) snprintf(buf, size, "%.*f%s%.*f", dec, v, y.pm, dec, err);
+  else snprintf(buf, size, "%.*f", dec, v);
+  return buf;
+}
+
+static const char *keyname_of_cmd(dt_cmd c, char *buf, size_t n) {
+  const dt_keybind *b = dt_keymap_of(c);
+  return b ? dt_keymap_keyname(b->key, buf, n) : "?";
+}
+
+static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
+  memset(L, 0, sizeof *L);
+  L->w = w;
+  L->h = h;
+  L->status_y = h - 1;
+  L->gutter = 7;
+  int side = w >= 150;
+  int body = h - 2; /* minus title and status */
+  if (side) {
+    L->tab_w = 60;
+    L->tab_x = w - L->tab_w;
+    L->tab_y = 1;
+    L->tab_h = body;
+  } else {
+    L->tab_w = w;
+    L->tab_x = 0;
+    /* rule, heading, components, fit, two lines, verdict: as many rows as
+       the components need, within a share of the screen */
+    int need = 6 + (int)(s->j.ncomp > 1 ? s->j.ncomp : 1) - (h < 28);
+    int cap = h < 28 ? 7 : h < 36 ? 9 : 13;
+    L->tab_h = need < 7 ? 7 : need > cap ? cap : need;
+    L->tab_y = L->status_y - L->tab_h;
+    body -= L->tab_h;
+  }
+  L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 3;
+  int rest = body - L->ov_h - 1 - 1; /* overview axis, velocity axis */
+  L->pan_h = rest / 2;
+  L->ov_h += rest % 2; /* an odd row goes to the overview */
+  L->ov_y = 1;
+  L->ovaxis_y = L->ov_y + L->ov_h;
+  L->pan_y[0] = L->ovaxis_y + 1;
+  L->pan_y[1] = L->pan_y[0] + L->pan_h;
+  L->vaxis_y = L->pan_y[1] + L->pan_h;
+  L->plot_x = L->gutter;
+  L->plot_w = (side ? L->tab_x - 1 : w) - L->gutter;
+}
+
+/* ------------------------------------------------------------------ axes */
+
+static double nice_step(double span, int cols, int min_cols) {
+  double raw = span * min_cols / (cols > 0 ? cols : 1);
+  double p = pow(10, floor(log10(raw)));
+  double m = raw / p;
+  return (m <= 1 ? 1 : m <= 2 ? 2 : m <= 5 ? 5 : 10) * p;
+}
+
+/* Tick labels of the x axis in grid row y, within the first `room` columns. */
+static void axis_row(dt_grid *g, const dt_plot *p, int x0, int y, int dec, int room) {
+  double step = nice_step(p->xmax - p->xmin, p->w, 10);
+  int last_end = -2;
+  for (double v = ceil(p->xmin / step) * step; v <= p->xmax + 1e-9 * step; v += step) {
+    char lab[32];
+    double vv = fabs(v) < 1e-9 * step ? 0 : v;
+    snprintf(lab, sizeof lab, "%.*f", dec, vv);
+    int col = dt_plot_column(p, vv);
+    if (col < 0) continue;
+    int len = (int)strlen(lab);
+    int start = x0 + col - len / 2;
+    if (start <= last_end + 1 || start + len > x0 + room) continue;
+    dt_grid_text(g, start, y, lab, DT_R_AXIS, 0, -1);
+    last_end = start + len - 1;
+  }
+}
+
+/* y tick labels in the gutter at the rows of the given values */
+static void ytick(dt_grid *g, const dt_plot *p, int gx, int gy, double v, const char *lab) {
+  if (!(v >= p->ymin && v <= p->ymax)) return;
+  int row = (int)floor((p->ymax - v) / (p->ymax - p->ymin) * p->h);
+  if (row >= p->h) row = p->h - 1;
+  if (row < 0) row = 0;
+  dt_grid_printf(g, gx, gy + row, DT_R_AXIS, 0, 5, "%5s", lab);
+}
+
+static void fmt_val(char *buf, size_t n, double v) {
+  if (v == 0) snprintf(buf, n, "0");
+  else if (fabs(v) >= 1000 || fabs(v) < 0.01) snprintf(buf, n, "%.0e", v);
+  else snprintf(buf, n, "%.3g", v);
+}
+
+/* ------------------------------------------------------------------ title */
+
+static void draw_title(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  dt_grid_fill(g, 0, 0, L->w, 1, " ", DT_R_TITLE, DT_R_TITLE, 0);
+  const dt_qentry *e = &s->q->e[s->cur];
+  const char *name = dt_queue_name(s->q, s->cur);
+  const char *path = dt_queue_path(s->q, s->cur);
+  const char *base = strrchr(path, '/');
+  base = base ? base + 1 : path;
+  char row[32] = "";
+  if (e->row > 0) snprintf(row, sizeof row, " row %ld", e->row);
+  char res[32] = "R ?";
+  if (s->j.resolution > 0) snprintf(res, sizeof res, "R %.0f", s->j.resolution);
+  else if (s->j.fwhm_kms > 0) snprintf(res, sizeof res, "FWHM %.0f km/s", s->j.fwhm_kms);
+  char buf[600];
+  snprintf(buf, sizeof buf, " doubletty  %zu/%zu  judged %zu  | %s%s%s%s | %s  vsys %+.0f  %s ", s->cur + 1,
+           s->q->n, s->njudged, name[0] ? name : "", name[0] ? " " : "", base, row, s->j.doublet, s->j.vsys,
+           res);
+  const char *flag = NULL;
+  int role = DT_R_BAD;
+  if (s->jn && dt_journal_failed(s->jn)) flag = " SESSION NOT WRITABLE ";
+  else if (s->file_changed) flag = " FILE CHANGED SINCE JUDGED ";
+  else if (!s->jn || dt_journal_read_only(s->jn)) {
+    flag = " read-only ";
+    role = DT_R_WARN;
+  } else if (s->pending) {
+    flag = " first pass ";
+    role = DT_R_TITLE;
+  }
+  int flen = flag ? (int)strlen(flag) : 0;
+  dt_grid_text(g, 0, 0, buf, DT_R_TITLE, DT_A_BOLD, L->w - flen);
+  if (flag) dt_grid_text(g, L->w - flen, 0, flag, role, DT_A_BOLD | DT_A_REVERSE, -1);
+  for (int i = 0; i < L->w; i++) dt_grid_at(g, i, 0)->bg = DT_R_TITLE;
+}
+
+/* ------------------------------------------------------------------ plots */
+
+static double *scratch(dt_insp *s, size_t n, int k) {
+  size_t need = n * 6;
+  if (need > s->tmp_cap) {
+    double *t = realloc(s->tmp, need * sizeof *t);
+    if (!t) return NULL;
+    s->tmp = t;
+    s->tmp_cap = need;
+  }
+  return s->tmp + (size_t)k * n;
+}
+
+static void draw_overview(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  syms y = symbols(s);
+  if (!s->loaded) {
+    dt_grid_printf(g, L->plot_x, L->ov_y + L->ov_h / 2, DT_R_BAD, 0, L->plot_w, "cannot read this spectrum: %s",
+                   s->load_msg);
+    return;
+  }
+  const dt_spectrum *sp = s->spec;
+  dt_plot *p = &s->p;
+  if (dt_plot_begin(p, s->mode, L->plot_w, L->ov_h, sp->wave[0], sp->wave[sp->n - 1], s->ov_ymin, s->ov_ymax))
+    return;
+  for (size_t k = 0; k < s->j.nwin; k++) dt_plot_vspan(p, s->j.win[k].lo, s->j.win[k].hi, DT_R_WINDOW);
+  dt_plot_hline(p, 0, DT_R_REF);
+  dt_plot_line(p, sp->wave, sp->flux, sp->mask, sp->n, DT_R_FLUX, DT_PLOT_MARK_OFF);
+  dt_plot_points(p, sp->wave, sp->flux, sp->mask, sp->n, DT_R_MASKED, DT_PLOT_MARK_OFF);
+  if (s->an_ok) {
+    const double *w = dt_analysis_wave(s->an), *c = dt_analysis_continuum(s->an);
+    dt_plot_line(p, w, c, NULL, s->out.n, DT_R_CONT, 0);
+  }
+  const dt_doublet *d = dt_atomic_find(s->atomic, s->j.doublet);
+  if (d)
+    for (int l = 0; l < 2; l++) {
+      double lam = dt_wavelength(0, d->line[l].lambda0, s->j.vsys);
+      dt_plot_mark(p, lam, 0, l == 0 ? "1" : "2", DT_R_LABEL, DT_A_BOLD);
+    }
+  dt_plot_render(p, g, L->plot_x, L->ov_y);
+  char lab[16];
+  fmt_val(lab, sizeof lab, s->ov_ymax);
+  dt_grid_printf(g, 0, L->ov_y, DT_R_AXIS, 0, 5, "%5s", lab);
+  ytick(g, p, 0, L->ov_y, 0, "0");
+  for (int r = 0; r < L->ov_h; r++) dt_grid_text(g, L->gutter - 1, L->ov_y + r, y.vbar, DT_R_AXIS, 0, 1);
+  dt_grid_printf(g, 0, L->ovaxis_y, DT_R_AXIS, 0, L->gutter - 1, "%s vac", y.ang);
+  axis_row(g, p, L->plot_x, L->ovaxis_y, 0, p->w);
+}
+
+static void draw_panel(dt_insp *s, const layout *L, int l) {
+  dt_grid *g = &s->g;
+  syms y = symbols(s);
+  int gy = L->pan_y[l];
+  const dt_doublet *d = dt_atomic_find(s->atomic, s->j.doublet);
+  /* the gutter: which line, is the cursor here */
+  if (d) {
+    char lab[16];
+    snprintf(lab, sizeof lab, "%.0f", floor(d->line[l].lambda0)); /* lines go by their integer part */
+    if (s->panel == l) dt_grid_text(g, 0, gy, y.arrow, DT_R_LABEL, DT_A_BOLD, 1);
+    dt_grid_text(g, 1, gy, lab, DT_R_LABEL, DT_A_BOLD, 5);
+  }
+  for (int r = 0; r < L->pan_h; r++) dt_grid_text(g, L->gutter - 1, gy + r, y.vbar, DT_R_AXIS, 0, 1);
+  if (!s->loaded || !s->an_ok) {
+    if (l == 0)
+      dt_grid_printf(g, L->plot_x + 1, gy + L->pan_h / 2, DT_R_BAD, 0, L->plot_w - 2, "%s",
+                     !s->loaded ? "no data" : s->an_msg[0] ? s->an_msg : "no analysis");
+    return;
+  }
+  size_t n = s->out.n;
+  const double *vel = dt_analysis_velocity(s->an, l), *flux = dt_analysis_flux(s->an),
+               *sig = dt_analysis_sigma(s->an), *cont = dt_analysis_continuum(s->an),
+               *model = dt_analysis_model(s->an);
+  const unsigned char *mask = dt_analysis_mask(s->an);
+  if (!vel || !flux || !cont) return;
+  double *yf = scratch(s, n, 0), *ys = scratch(s, n, 1), *yc = scratch(s, n, 2), *ym = scratch(s, n, 3),
+         *yk = scratch(s, n, 4);
+  if (!yf) return;
+  double ymin, ymax;
+  int norm = s->normalised;
+  /* The model is drawn where it departs from the continuum (and one pixel
+     beyond), so the continuum stays visible elsewhere. */
+  for (size_t i = 0; i < n; i++) {
+    double c = norm ? cont[i] : 1.0;
+    yf[i] = flux[i] / c;
+    ys[i] = sig[i] / c;
+    yc[i] = cont[i] / c;
+    ym[i] = model && fabs(model[i] / cont[i] - 1) > DEPARTS ? model[i] / c : NAN;
+  }
+  for (size_t i = 0; model && i < n; i++)
+    if (!isnan(ym[i]) && ((i > 0 && isnan(ym[i - 1])) || (i + 1 < n && isnan(ym[i + 1])))) {
+      if (i > 0 && isnan(ym[i - 1])) ym[i - 1] = model[i - 1] / (norm ? cont[i - 1] : 1.0);
+      if (i + 1 < n && isnan(ym[i + 1])) {
+        ym[i + 1] = model[i + 1] / (norm ? cont[i + 1] : 1.0);
+        i++;
+      }
+    }
+  if (norm) {
+    ymin = -0.15;
+    ymax = 1.35;
+  } else {
+    double cmax = 0;
+    for (size_t i = 0; i < n; i++)
+      if (vel[i] >= s->view_lo && vel[i] <= s->view_hi && cont[i] > cmax) cmax = cont[i];
+    if (!(cmax > 0)) cmax = 1;
+    ymin = -0.15 * cmax;
+    ymax = 1.35 * cmax;
+  }
+  dt_plot *p = &s->p;
+  if (dt_plot_begin(p, s->mode, L->plot_w, L->pan_h, s->view_lo, s->view_hi, ymin, ymax)) return;
+  /* continuum windows, and the one being marked */
+  if (d)
+    for (size_t k = 0; k < s->j.nwin; k++)
+      dt_plot_vspan(p, dt_velocity(s->j.win[k].lo, d->line[l].lambda0, s->j.vsys),
+                    dt_velocity(s->j.win[k].hi, d->line[l].lambda0, s->j.vsys), DT_R_WINDOW);
+  if (s->anchor && s->anchor_panel == l) dt_plot_vspan(p, s->anchor_v, s->cursor_v, DT_R_WINDOW);
+  dt_plot_hline(p, 0, DT_R_REF);
+  /* a dotted guide at v = 0 (the rest frame) */
+  double zx[64], zy[64];
+  int nz = p->dh / 2 < 64 ? p->dh / 2 : 64;
+  for (int i = 0; i < nz; i++) {
+    zx[i] = 0;
+    zy[i] = ymax - (2 * i + 0.5) * (ymax - ymin) / p->dh;
+  }
+  dt_plot_points(p, zx, zy, NULL, (size_t)nz, DT_R_REF, 0);
+  dt_plot_line(p, vel, ys, mask, n, DT_R_SIGMA, 0);
+  dt_plot_line(p, vel, yc, NULL, n, DT_R_CONT, 0);
+  if (s->j.ncomp > 1) /* one component's model is the total model */
+    for (size_t k = 0; k < s->j.ncomp; k++) {
+      const double *cm = dt_analysis_component_model(s->an, k);
+      if (!cm) continue;
+      for (size_t i = 0; i < n; i++)
+        yk[i] = fabs(cm[i] / cont[i] - 1) > DEPARTS ? cm[i] / (norm ? cont[i] : 1.0) : NAN;
+      dt_plot_line(p, vel, yk, NULL, n, k == s->sel ? DT_R_COMPSEL : DT_R_COMP, 0);
+    }
+  dt_plot_line(p, vel, yf, mask, n, DT_R_FLUX, DT_PLOT_MARK_OFF);
+  dt_plot_points(p, vel, yf, mask, n, DT_R_MASKED, DT_PLOT_MARK_OFF);
+  if (model) dt_plot_line(p, vel, ym, NULL, n, DT_R_MODEL, 0);
+  /* component numbers along the top row */
+  for (size_t k = 0; k < s->j.ncomp; k++) {
+    char num[4];
+    snprintf(num, sizeof num, "%zu", (k + 1) % 10);
+    dt_plot_mark(p, s->j.comp[k].v, 0, num, k == s->sel ? DT_R_COMPSEL : DT_R_COMP,
+                 k == s->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
+  }
+  dt_plot_render(p, g, L->plot_x, gy);
+  /* the cursor column */
+  int col = dt_plot_column(p, s->cursor_v);
+  if (col >= 0) dt_grid_shade(g, L->plot_x + col, gy, 1, L->pan_h, DT_R_CURSOR, 0);
+  ytick(g, p, 1, gy, norm ? 1.0 : ymax / 1.35, norm ? "1" : "C");
+  ytick(g, p, 1, gy, 0, "0");
+  if (l == 1) {
+    dt_grid_printf(g, 0, L->vaxis_y, DT_R_AXIS, 0, L->gutter - 1, "km/s");
+    /* the cursor's position at the right end, tick labels before it */
+    char cur[80];
+    syms ys = symbols(s);
+    snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
+             d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->j.vsys) : NAN, ys.ang);
+    int len = dt_utf8_len(cur);
+    axis_row(g, p, L->plot_x, L->vaxis_y, 0, p->w - len - 1);
+    dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
+  }
+}
+
+/* ------------------------------------------------------------------ table */
+
+/* Column positions of the component table (relative to its left edge). */
+enum { TC_NUM = 1, TC_V = 5, TC_B = 24, TC_N = 40, TC_FIX = 57 };
+
+static void draw_table(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  syms y = symbols(s);
+  int x = L->tab_x + 1, row = L->tab_y, maxw = L->tab_w - 2;
+  const dt_judgement *j = &s->j;
+  int side = L->tab_x > 0;
+  int end = L->tab_y + L->tab_h; /* first row not ours */
+  if (side)
+    for (int r = L->tab_y; r < end; r++) dt_grid_text(g, L->tab_x - 1, r, y.vbar, DT_R_AXIS, 0, 1);
+  else if (L->h >= 28)
+    dt_grid_fill(g, 0, row++, L->w, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  char b1[64], b2[64];
+  /* components: heading, then as many rows as fit around the selection */
+  int errs = j->has_fit && j->fit.status == 0 && j->fit.ncomp == j->ncomp;
+  int rows = end - row - 5;
+  if (rows < 1) rows = 1;
+  size_t first = 0, shown = (size_t)rows;
+  if (j->ncomp > shown && s->sel >= shown) first = s->sel - shown + 1;
+  dt_grid_fill(g, x - 1, row, maxw + 2, 1, " ", DT_R_LABEL, DT_R_NONE, DT_A_UNDERLINE);
+  dt_grid_text(g, x + TC_NUM, row, "#", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
+  dt_grid_text(g, x + TC_V, row, "v [km/s]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
+  dt_grid_text(g, x + TC_B, row, "b [km/s]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
+  dt_grid_text(g, x + TC_N, row, "log N [cm-2]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
+  int hx = dt_grid_text(g, x + TC_FIX, row, "fixed", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, maxw - TC_FIX);
+  if (j->ncomp > shown)
+    dt_grid_printf(g, x + TC_FIX + hx + 1, row, DT_R_LABEL, DT_A_UNDERLINE, maxw - TC_FIX - hx - 1, "%zu-%zu of %zu",
+                   first + 1, first + shown, j->ncomp);
+  row++;
+  if (j->ncomp == 0) {
+    char k[16];
+    dt_grid_printf(g, x, row++, DT_R_TEXT, DT_A_DIM, maxw, "  no components  (%s adds one at the cursor)",
+                   keyname_of_cmd(DT_CMD_ADD_COMPONENT, k, sizeof k));
+  }
+  for (size_t k = first; k < j->ncomp && k < first + shown; k++) {
+    const dt_component *c = &j->comp[k], *e = errs ? &j->fit.err[k] : NULL;
+    int sel = k == s->sel, role = sel ? DT_R_COMPSEL : DT_R_TEXT, attr = sel ? DT_A_BOLD : 0;
+    if (sel) dt_grid_text(g, x, row, y.arrow, role, attr, 1);
+    dt_grid_printf(g, x + TC_NUM, row, role, attr, 3, "%zu", k + 1);
+    snprintf(b2, sizeof b2, "%s%s", c->v >= 0 ? "+" : "", dt_view_pm(s, b1, sizeof b1, c->v, e ? e->v : NAN, 1));
+    dt_grid_text(g, x + TC_V, row, b2, role, attr, TC_B - TC_V - 1);
+    dt_grid_text(g, x + TC_B, row, dt_view_pm(s, b1, sizeof b1, c->b, e ? e->b : NAN, 1), role, attr, TC_N - TC_B - 1);
+    dt_grid_text(g, x + TC_N, row, dt_view_pm(s, b1, sizeof b1, c->logN, e ? e->logN : NAN, 2), role, attr,
+                 TC_FIX - TC_N - 1);
+    char fz[4];
+    dt_freeze_str(j->frozen[k], fz);
+    snprintf(b1, sizeof b1, "%s%s%s", fz, j->tie_b && fz[0] ? " " : "", j->tie_b ? "tied-b" : "");
+    dt_grid_text(g, x + TC_FIX, row, b1, DT_R_WARN, 0, maxw - TC_FIX);
+    row++;
+  }
+  if (row > end - 4) row = end - 4;
+  /* the fit */
+  double chi2r = NAN, bic = NAN;
+  long dof = 0;
+  int status = 0;
+  const dt_fit_result *f = j->has_fit ? &j->fit : s->an_ok ? &s->out.fit : NULL;
+  if (f) {
+    chi2r = f->chi2_red;
+    bic = f->bic;
+    dof = f->dof;
+    status = j->has_fit ? f->status : 0;
+  }
+  char cont[80];
+  if (j->cont_order < 0) snprintf(cont, sizeof cont, "continuum fixed at 1");
+  else if (j->nwin) snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
+  else snprintf(cont, sizeof cont, "continuum order %d, auto", j->cont_order);
+  int cx = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "fit ");
+  cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s", y.chi, chi2r, dof,
+                       bic, cont, s->auto_refit ? "" : "  refit: manual");
+  if (status != 0 && cx < maxw)
+    dt_grid_printf(g, x + cx, row, DT_R_BAD, DT_A_BOLD, maxw - cx, "  %s",
+                   status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");
+  row++;
+  /* measurements, one row per line */
+  for (int l = 0; l < 2; l++) {
+    const dt_analysis_line *m = &s->out.line[l];
+    if (!s->an_ok || s->out.measure_status != 0 || !m->line) {
+      dt_grid_printf(g, x, row++, DT_R_TEXT, DT_A_DIM, maxw, "line %d   no measurement", l + 1);
+      continue;
+    }
+    int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", m->line->label);
+    int n1 = dt_grid_printf(g, x + n0, row, m->W_sig >= 3 ? DT_R_GOOD : DT_R_TEXT, 0, maxw - n0, " W %s %s (%.1f%s)",
+                            dt_view_pm(s, b2, sizeof b2, 1e3 * m->W, 1e3 * m->W_err, 0), y.mA, m->W_sig, y.sig);
+    if (isfinite(m->logN_aod)) snprintf(b1, sizeof b1, "%s", dt_view_pm(s, b2, sizeof b2, m->logN_aod, m->logN_aod_err, 2));
+    else snprintf(b1, sizeof b1, "-");
+    int n2 = dt_grid_printf(g, x + n0 + n1, row, DT_R_TEXT, 0, maxw - n0 - n1, "  logNa %s  3%s lim %.0f %s, %.2f", b1,
+                            y.sig, 1e3 * m->W_limit, y.mA, m->logN_limit);
+    const char *sat = m->nsat ? "  saturated px" : l == 1 && s->out.saturated ? "  ratio: saturated" : "";
+    if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
+    row++;
+  }
+  /* verdicts and note */
+  int vx = x;
+  if (s->has_suggest) {
+    vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw, "suggested ");
+    vx += dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", dt_verdict_name(s->suggested));
+    if (s->reason[0]) vx += dt_grid_printf(g, vx, row, DT_R_TEXT, DT_A_DIM, maxw - (vx - x), " (%s)", s->reason);
+    vx += 3;
+  }
+  int vrole = j->verdict == DT_VERDICT_DETECTED ? DT_R_GOOD : j->verdict == DT_VERDICT_NONE ? DT_R_TEXT :
+              j->verdict == DT_VERDICT_UNUSABLE ? DT_R_BAD : DT_R_WARN;
+  if (vx - x < maxw) vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw - (vx - x), "verdict ");
+  if (vx - x < maxw)
+    vx += dt_grid_printf(g, vx, row, vrole, DT_A_BOLD, maxw - (vx - x), "%s",
+                         j->verdict == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(j->verdict));
+  if (j->note[0] && vx - x + 3 < maxw) {
+    vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw - (vx - x), "   note ");
+    if (vx - x < maxw) dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", j->note);
+  }
+}
+
+/* ------------------------------------------------------------------ status */
+
+static void draw_status(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  int y = L->status_y;
+  if (s->editing) {
+    int n = dt_grid_text(g, 0, y, "note> ", DT_R_LABEL, DT_A_BOLD, -1);
+    /* show the end of a long note */
+    int room = L->w - n - 1;
+    const char *t = s->edit;
+    int before = 0;
+    for (const char *p = s->edit; p < s->edit + s->edit_pos; p++)
+      if (((unsigned char)*p & 0xC0) != 0x80) before++;
+    while (before > room && *t) {
+      t++;
+      while (*t && ((unsigned char)*t & 0xC0) == 0x80) t++;
+      before--;
+    }
+    dt_grid_text(g, n, y, t, DT_R_TEXT, 0, room);
+    dt_cell *c = dt_grid_at(g, n + before, y);
+    if (c) c->bg = DT_R_CURSOR;
+    return;
+  }
+  char k1[16], k2[16], right[64];
+  snprintf(right, sizeof right, " %s help  %s quit ", keyname_of_cmd(DT_CMD_HELP, k1, sizeof k1),
+           keyname_of_cmd(DT_CMD_QUIT, k2, sizeof k2));
+  int rw = (int)strlen(right);
+  dt_grid_text(g, 0, y, s->msg, s->msg_role ? s->msg_role : DT_R_TEXT,
+               s->msg_role == DT_R_BAD ? DT_A_BOLD : 0, L->w - rw - 1);
+  dt_grid_text(g, L->w - rw, y, right, DT_R_AXIS, DT_A_DIM, -1);
+}
+
+/* ------------------------------------------------------------------ help */
+
+static void draw_help(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  size_t n;
+  const dt_keybind *t = dt_keymap_table(&n);
+  int bw = L->w - 4, bh = L->h - 4, bx = 2, by = 2;
+  int ncol = bw >= 100 ? 2 : 1;
+  int colw = (bw - 2) / ncol;
+  int lines = bh - 3; /* frame top, title, frame bottom */
+  /* lay the table out: group headings, then "key  help (action)" lines */
+  int per_page = lines * ncol;
+  int total = 0;
+  const char *group = NULL;
+  for (size_t i = 0; i < n; i++) {
+    if (!group || strcmp(group, t[i].group)) {
+      total++;
+      group = t[i].group;
+    }
+    total++;
+  }
+  s->help_pages = (total + per_page - 1) / per_page;
+  if (s->help_page > s->help_pages) s->help_page = s->help_pages;
+  int page = s->help_page - 1;
+  dt_grid_fill(g, bx, by, bw, bh, " ", DT_R_TEXT, DT_R_NONE, 0);
+  syms y = symbols(s);
+  dt_grid_fill(g, bx, by, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  char k1[16];
+  dt_grid_printf(g, bx + 2, by + 1, DT_R_LABEL, DT_A_BOLD, bw - 4,
+                 "keys of the inspector  (page %d of %d: %s shows the next page, any other key closes)", page + 1,
+                 s->help_pages, keyname_of_cmd(DT_CMD_HELP, k1, sizeof k1));
+  int idx = 0;
+  group = NULL;
+  for (size_t i = 0; i < n; i++) {
+    int heading = !group || strcmp(group, t[i].group);
+    for (int h = heading ? 0 : 1; h < 2; h++) {
+      int slot = idx - page * per_page;
+      idx++;
+      if (slot < 0 || slot >= per_page) continue;
+      int cx = bx + 1 + (slot / lines) * colw, cy = by + 2 + slot % lines;
+      if (h == 0) {
+        dt_grid_printf(g, cx, cy, DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, colw - 1, "%s", t[i].group);
+      } else {
+        char kn[16];
+        dt_keymap_keyname(t[i].key, kn, sizeof kn);
+        int w = dt_grid_printf(g, cx, cy, DT_R_GOOD, DT_A_BOLD, colw - 1, " %-6s", kn);
+        dt_grid_printf(g, cx + w, cy, DT_R_TEXT, 0, colw - 1 - w, "%s", t[i].help);
+      }
+    }
+    group = t[i].group;
+  }
+}
+
+/* ------------------------------------------------------------------ all */
+
+void dt_view_draw(dt_insp *s, int w, int h) {
+  if (dt_grid_reset(&s->g, w, h)) return;
+  if (w < DT_MIN_W || h < DT_MIN_H) {
+    char m1[96], m2[96];
+    snprintf(m1, sizeof m1, "terminal too small: %dx%d", w, h);
+    snprintf(m2, sizeof m2, "the inspector needs at least %dx%d", DT_MIN_W, DT_MIN_H);
+    int y = h / 2 - 1;
+    if (y < 0) y = 0;
+    int x1 = (w - (int)strlen(m1)) / 2, x2 = (w - (int)strlen(m2)) / 2;
+    dt_grid_text(&s->g, x1 < 0 ? 0 : x1, y, m1, DT_R_WARN, DT_A_BOLD, -1);
+    dt_grid_text(&s->g, x2 < 0 ? 0 : x2, y + 1, m2, DT_R_TEXT, 0, -1);
+    return;
+  }
+  layout L;
+  compute_layout(s, w, h, &L);
+  s->plot_w = L.plot_w;
+  draw_title(s, &L);
+  draw_overview(s, &L);
+  draw_panel(s, &L, 0);
+  draw_panel(s, &L, 1);
+  draw_table(s, &L);
+  draw_status(s, &L);
+  if (s->help_page) draw_help(s, &L);
+}

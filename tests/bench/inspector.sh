@@ -1,0 +1,63 @@
+#!/bin/sh
+# Inspector frame time: a fixed vetting session (cursor moves, components
+# added and nudged, undo, refits, verdicts) replayed headless against the
+# demo survey; every keystroke is timed from the key to the finished screen,
+# including the refit and the fsync'd session record.  Reports the median
+# over all keys and over the keys that refitted (the budget is one frame,
+# 16 ms).  The session file lives in the working directory's file system
+# (a real disk: fsync costs what it costs there); a second run on /dev/shm,
+# when there is one, shows the part that is the disk.
+set -u
+BUILD=${BUILD:-build}
+DT=${DT:-$BUILD/doubletty}
+case $DT in /*) ;; *) DT=$(pwd)/$DT ;; esac
+WORK=$(mktemp -d "${TMPDIR:-/tmp}/dt-bench-inspector.XXXXXX")
+trap 'rm -rf "$WORK"' EXIT
+export LANG=C.UTF-8 LC_ALL=C.UTF-8
+
+"$DT" demo "$WORK/demo" >/dev/null || exit 1
+
+# one pass over every spectrum of the demo
+keys="$WORK/keys"
+: >"$keys"
+for i in $(seq 26); do
+  cat >>"$keys" <<'EOF'
+cursor-right-fast
+cursor-right-fast
+cursor-left
+zoom-in
+zoom-out
+add-component
+nudge-v-up
+nudge-b-up
+nudge-logn-down
+next-component
+nudge-v-down-coarse
+undo
+undo
+refit
+window-mark
+cursor-right-fast
+window-mark
+continuum-order-down
+undo
+undo
+verdict-unsure
+EOF
+done
+
+run() {
+  rm -f "$1"
+  (cd "$WORK" && "$DT" inspect --list demo/targets.list --session "$1" --replay-keys "$keys" --bench) || exit 1
+}
+
+echo "inspector: $(grep -c . "$keys") keystrokes over the demo survey, 100x32 screen, braille"
+echo "  session on the working disk ($(df -P "$WORK" | awk 'NR == 2 { print $1 }')):"
+run "$WORK/bench.session" | sed 's/^/    /'
+if [ -d /dev/shm ] && [ -w /dev/shm ]; then
+  s=$(mktemp /dev/shm/dt-bench.XXXXXX)
+  echo "  session in memory (/dev/shm, fsync nearly free):"
+  run "$s" | sed 's/^/    /'
+  rm -f "$s"
+fi
+echo "  budget: 16 ms median per refit keystroke (one frame at 60 Hz)"

@@ -1,0 +1,195 @@
+# The inspector run headless (--replay-keys): bad input inside the queue,
+# the session's refusals (read-only, second writer, disk full), options and
+# target lists that are wrong, and a few commands end to end.  Keys are
+# given by action name, as `doubletty keys` prints them.
+. "$(dirname "$0")/../lib.sh"
+
+export LANG=C.UTF-8 LC_ALL=C.UTF-8
+"$DT" demo "$TMP/demo" >/dev/null 2>&1 || { bad "demo survey written"; finish; exit 1; }
+D="$TMP/demo"
+S="$TMP/s.session"
+
+# run KEYS... : replay the actions (one per argument) and dump the screen
+run() {
+  sess=$1
+  shift
+  : >"$TMP/keys"
+  for k in "$@"; do printf '%s\n' "$k" >>"$TMP/keys"; done
+  "$DT" inspect --list "$TMP/q.list" --session "$sess" --replay-keys "$TMP/keys" \
+    --screen-dump "$TMP/screen" >"$TMP/out" 2>"$TMP/err"
+}
+on_screen() { grep -Fq -- "$1" "$TMP/screen"; }
+
+# ---- a file that cannot be read: shown, and the queue goes on
+head -c 3000 /dev/urandom >"$TMP/broken.fits"
+cat >"$TMP/q.list" <<EOF
+# two demo spectra with a broken file between them
+demo/vpq01.fits  vsys=512 R=3690 name=FIRST
+broken.fits      vsys=512 R=3000 name=BROKEN
+demo/vpq03.fits  vsys=512 R=3460 name=THIRD
+EOF
+run "$S" verdict-detected
+check "verdict on the first moves to the broken file (exit $?)" on_screen " 2/3  judged 1"
+check "the read error is on the status line" grep -q '^cannot read .*broken.fits' "$TMP/screen"
+check "the screen says there is no data" on_screen "cannot read this spectrum"
+run "$S"
+check "resume opens on the broken file (first without a verdict)" on_screen " 2/3  judged 1"
+run "$S" verdict-detected
+check "a broken file cannot be 'detected'" on_screen "only 'unusable'"
+check "... and stays in place" on_screen " 2/3  judged 1"
+run "$S" verdict-unusable
+check "marked unusable, the queue goes on to 3/3" on_screen " 3/3  judged 2"
+check "the session records the unusable verdict" \
+  grep -q 'file=[^	]*broken.fits#NaI	.*act=verdict	verdict=unusable' "$S"
+run "$S" previous-spectrum previous-spectrum next-unjudged
+check "next-unjudged finds the third" on_screen " 3/3  judged 2"
+
+# ---- commands through the session: component, note, window, doublet
+run "$S" add-component "type " edit-note "type faint; check red arm" Enter
+check "note typed in the editor is saved" on_screen "note faint; check red arm"
+check "note recorded" grep -q 'act=note	note=faint; check red arm' "$S"
+run "$S" cursor-left-fast window-mark cursor-left-fast cursor-left-fast window-mark
+check "a continuum window marked with two presses" on_screen "continuum window"
+check "the fit line counts it" on_screen "1 window"
+check "window recorded in Angstrom" grep -q 'act=window-add	lo=5[89][0-9][0-9]\.[0-9]*	hi=' "$S"
+run "$S" cursor-left-fast cursor-left-fast window-unmark
+check "window under the cursor removed" on_screen "continuum window removed"
+run "$S" continuum-order-down continuum-order-down continuum-order-down
+check "continuum fixed at 1 at order -1" on_screen "continuum fixed at 1"
+n0=$(wc -l <"$S")
+run "$S" nudge-logn-up-coarse undo
+check "undo after a nudge: two records" test "$(wc -l <"$S")" -eq $((n0 + 2))
+
+# a wide spectrum covers Ca II too: switch the doublet
+cat >"$TMP/q.list" <<EOF
+demo/vpq09.fits vsys=512 R=4330 name=WIDE
+EOF
+run "$TMP/w.session" switch-doublet
+check "switch-doublet goes to Ca II" on_screen "| CaII  vsys +512"
+check "the doublet change is recorded" grep -q 'act=doublet	doublet=CaII' "$TMP/w.session"
+
+# ---- a file changed since it was judged is flagged
+cp "$D/vpq04.txt" "$TMP/changing.txt"
+cat >"$TMP/q.list" <<EOF
+changing.txt vsys=512 R=2640 name=CHANGING
+EOF
+run "$TMP/c.session" verdict-not-detected
+check "judged: 1/1 judged 1" on_screen " 1/1  judged 1"
+run "$TMP/c.session"
+check "unchanged file: no flag" sh -c "! grep -q 'FILE CHANGED' '$TMP/screen'"
+echo "# recalibrated later" >>"$TMP/changing.txt"
+run "$TMP/c.session"
+check "changed file flagged in the title" on_screen "FILE CHANGED SINCE JUDGED"
+check "... and explained on the status line" on_screen "the file has changed since it was judged"
+run "$TMP/c.session" verdict-unsure
+check "the next record notes the earlier checksum" grep -q 'was=[0-9a-f]\{64\}.*act=verdict' "$TMP/c.session"
+
+# ---- read-only: looks, refuses
+cat >"$TMP/q.list" <<EOF
+demo/vpq01.fits  vsys=512 R=3690 name=FIRST
+EOF
+n0=$(wc -l <"$S")
+"$DT" inspect --list "$TMP/q.list" --session "$S" --read-only --replay-keys /dev/null >/dev/null 2>&1
+printf 'add-component\nverdict-detected\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$S" --read-only --replay-keys "$TMP/keys" \
+  --screen-dump "$TMP/screen" >/dev/null 2>&1
+check "read-only: judgements refused on screen" on_screen "read-only session"
+check "read-only: title says so" on_screen "read-only"
+check "read-only: nothing appended" test "$(wc -l <"$S")" -eq "$n0"
+expect_fail "read-only needs an existing session" "missing.session" \
+  "$DT" inspect --list "$TMP/q.list" --session "$TMP/missing.session" --read-only --replay-keys /dev/null
+
+# ---- a second writer is refused while the first holds the session
+mkfifo "$TMP/fifo"
+"$DT" inspect --list "$TMP/q.list" --session "$S" --replay-keys "$TMP/fifo" >/dev/null 2>&1 &
+first=$!
+exec 3<>"$TMP/fifo" # read-write: never blocks; the first inspector waits for keys, holding the lock
+sleep 0.3
+expect_fail "a second writer is refused" "open for writing by another|only one writer" \
+  "$DT" inspect --list "$TMP/q.list" --session "$S" --replay-keys /dev/null
+"$DT" inspect --list "$TMP/q.list" --session "$S" --read-only --replay-keys /dev/null >/dev/null 2>&1
+check "a reader may look meanwhile" test $? -eq 0
+echo quit >&3
+exec 3>&-
+wait "$first"
+check "the first inspector quits normally" test $? -eq 0
+
+# ---- the session file cannot grow (file size limit): said at once, then refused
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/full.session" --replay-keys /dev/null >/dev/null 2>&1
+size0=$(wc -c <"$TMP/full.session")
+printf 'verdict-detected\nverdict-detected\n' >"$TMP/keys"
+# no file may grow under the limit: the screen and stderr go out through pipes
+mkfifo "$TMP/dump.fifo" "$TMP/err.fifo"
+timeout 30 cat "$TMP/dump.fifo" >"$TMP/screen" &
+c1=$!
+timeout 30 cat "$TMP/err.fifo" >"$TMP/err" &
+c2=$!
+sh -c "ulimit -f 0; trap '' XFSZ; exec '$DT' inspect --list '$TMP/q.list' --session '$TMP/full.session' \
+  --replay-keys '$TMP/keys' --screen-dump '$TMP/dump.fifo' >/dev/null 2>'$TMP/err.fifo'"
+rc=$?
+wait $c1 $c2
+check "a failed append ends with status 1 ($rc)" test $rc -eq 1
+check "the screen says the session failed" on_screen "SESSION FILE FAILED"
+check "the title says so" on_screen "SESSION NOT WRITABLE"
+check "the verdict was not taken: still 1/1, none judged" on_screen " 1/1  judged 0"
+check "stderr names the session file" grep -q "full.session" "$TMP/err"
+check "nothing half-written in the session" test "$(wc -c <"$TMP/full.session")" -eq "$size0"
+
+# ---- two people disagree: a queue of the disagreements
+cat >"$TMP/q.list" <<EOF
+demo/vpq01.fits vsys=512 R=3690 name=ONE
+demo/vpq03.fits vsys=512 R=3460 name=TWO
+demo/vpq07.fits vsys=512 R=3770 name=THREE
+EOF
+printf 'verdict-detected\nverdict-not-detected\nverdict-detected\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/alice" --user alice --replay-keys "$TMP/keys" >/dev/null 2>&1
+printf 'verdict-detected\nverdict-detected\nverdict-detected\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/bob" --user bob --replay-keys "$TMP/keys" >/dev/null 2>&1
+"$DT" inspect --only-disagreements "$TMP/alice" "$TMP/bob" --session "$TMP/third" \
+  --replay-keys /dev/null --screen-dump "$TMP/screen" >/dev/null 2>"$TMP/err"
+check "only the disagreement is queued: 1/1" on_screen " 1/1  judged 0"
+check "... and it is the second spectrum" on_screen "vpq03.fits"
+
+# ---- plain `doubletty FILE` opens the inspector; ASCII without UTF-8
+printf 'cursor-right\n' >"$TMP/keys"
+(cd "$D" && LANG=C LC_ALL=C "$DT" vpq01.fits --session "$TMP/plain.session" --resolution 3690 --vsys 512 \
+  --replay-keys "$TMP/keys" --screen-dump "$TMP/screen" >/dev/null 2>&1)
+check "doubletty FILE opens the inspector" on_screen " 1/1  judged 0"
+check "C locale: plain ASCII screen" sh -c "! LC_ALL=C grep -q '[^ -~]' '$TMP/screen'"
+check "ASCII plot glyphs" grep -q '|.*\*' "$TMP/screen"
+"$DT" inspect "$D/vpq01.fits" --ascii --session "$TMP/plain.session" --replay-keys /dev/null \
+  --screen-dump "$TMP/screen" >/dev/null 2>&1
+check "--ascii in a UTF-8 locale: plain ASCII" sh -c "! LC_ALL=C grep -q '[^ -~]' '$TMP/screen'"
+"$DT" inspect "$D/vpq01.fits" --session "$TMP/plain.session" --replay-keys /dev/null --size 80x24 \
+  --screen-dump "$TMP/screen" >/dev/null 2>&1
+check "80x24 screen: 24 rows" test "$(wc -l <"$TMP/screen")" -eq 24
+check "80x24 screen: the table is there" on_screen "v [km/s]"
+"$DT" inspect "$D/vpq01.fits" --session "$TMP/plain.session" --replay-keys /dev/null --size 79x24 \
+  --screen-dump "$TMP/screen" >/dev/null 2>&1
+check "79x24: too small" on_screen "terminal too small: 79x24"
+
+# ---- wrong options and lists: one clear message, nonzero exit, no screen
+printf 'demo/vpq01.fits vsys=512\nbad.fits colour=blue\ndemo/vpq03.fits R=-3\n\ndemo/vpq07.fits row=0\n' >"$TMP/bad.list"
+expect_fail "bad list: line 2 named" "bad.list: line 2: unknown key 'colour'" \
+  "$DT" inspect --list "$TMP/bad.list" --replay-keys /dev/null --session "$TMP/x.session"
+expect_fail "bad list: line 3 named" "bad.list: line 3: R must be" \
+  "$DT" inspect --list "$TMP/bad.list" --replay-keys /dev/null --session "$TMP/x.session"
+expect_fail "bad list: line 5 named" "bad.list: line 5: row must be" \
+  "$DT" inspect --list "$TMP/bad.list" --replay-keys /dev/null --session "$TMP/x.session"
+check "bad list: exit status 2" sh -c "'$DT' inspect --list '$TMP/bad.list' --replay-keys /dev/null --session '$TMP/x.session' 2>/dev/null; [ \$? -eq 2 ]"
+check "bad list: no session file made" test ! -e "$TMP/x.session"
+printf 'demo/vpq01.fits doublet=FeII\n' >"$TMP/bad2.list"
+expect_fail "unknown doublet in a list" "line 1: unknown doublet 'FeII'" \
+  "$DT" inspect --list "$TMP/bad2.list" --replay-keys /dev/null --session "$TMP/x.session"
+expect_fail "missing list file" "nolist: cannot open" "$DT" inspect --list "$TMP/nolist" --replay-keys /dev/null
+expect_fail "no spectra at all" "no spectra" "$DT" inspect --session "$TMP/x.session"
+expect_fail "negative resolution" "resolution must be a positive" "$DT" inspect --resolution -3000 "$D/vpq01.fits"
+expect_fail "R and FWHM together" "not both" "$DT" inspect --resolution 3000 --fwhm 80 "$D/vpq01.fits"
+expect_fail "unknown doublet option" "unknown doublet 'XyZ'" "$DT" inspect --doublet XyZ "$D/vpq01.fits"
+expect_fail "unknown option" "unknown option '--frobnicate'" "$DT" inspect --frobnicate "$D/vpq01.fits"
+expect_fail "bad --size" "WIDTHxHEIGHT" "$DT" inspect --size 100 --replay-keys /dev/null "$D/vpq01.fits"
+expect_fail "--bench without --replay-keys" "go with --replay-keys" "$DT" inspect --bench "$D/vpq01.fits"
+printf 'add-component\nfly-to-the-moon\n' >"$TMP/keys"
+expect_fail "unknown action in a key file" "line 2: 'fly-to-the-moon' is neither" \
+  "$DT" inspect "$D/vpq01.fits" --session "$TMP/y.session" --replay-keys "$TMP/keys"
+finish

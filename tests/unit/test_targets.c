@@ -1,0 +1,168 @@
+/* Target list parser: good lines, comments, and every bad line reported
+ * with its line number; streaming a long list. */
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "doubletty/targets.h"
+#include "harness.h"
+#include "../../src/ui/queue.h"
+
+static int parse(const char *line, const char *base, dt_target_spec *t, int *got, dt_err *e) {
+  dt_err_clear(e);
+  return dt_targets_parse_line(line, base, 7, t, got, e);
+}
+
+static void bad_line(const char *line, const char *want_what) {
+  dt_target_spec t;
+  dt_err e;
+  int got = -1;
+  int rc = parse(line, NULL, &t, &got, &e);
+  CHECK(rc == DT_EFORMAT && !strcmp(e.where, "line 7") && strstr(e.what, want_what) && got == 0,
+        "bad line '%s' -> line 7: '%s' (got rc %d, where '%s', what '%s')", line, want_what, rc,
+        e.where, e.what);
+}
+
+int main(void) {
+  dt_target_spec t;
+  dt_err e;
+  int got;
+
+  /* a full line */
+  int rc = parse("spec/a.fits[2]  row=3 vsys=512.5 R=3500 doublet=NaI name=QSO-J1\n", "/data", &t, &got, &e);
+  CHECK(rc == DT_OK && got == 1, "full line parses");
+  CHECK(!strcmp(t.path, "/data/spec/a.fits[2]"), "relative path joined to the list directory: %s", t.path);
+  CHECK(t.row == 3 && t.has_vsys && t.vsys == 512.5 && t.resolution == 3500 && t.fwhm_kms == 0,
+        "row, vsys, R");
+  CHECK(!strcmp(t.doublet, "NaI") && !strcmp(t.name, "QSO-J1") && t.line == 7, "doublet, name, line");
+
+  /* absolute path, fwhm, tabs, trailing comment, CRLF */
+  rc = parse("\t/abs/b.txt\tfwhm=85  # a comment\r\n", "/data", &t, &got, &e);
+  CHECK(rc == DT_OK && got == 1 && !strcmp(t.path, "/abs/b.txt") && t.fwhm_kms == 85 &&
+            t.resolution == 0 && t.row == 0 && !t.has_vsys && !t.doublet[0],
+        "absolute path kept, fwhm, comment and CRLF stripped");
+
+  /* base directory "." or none: path as written */
+  rc = parse("c.fits", ".", &t, &got, &e);
+  CHECK(rc == DT_OK && got && !strcmp(t.path, "c.fits"), "base '.' leaves the path alone");
+  rc = parse("c.fits", "dir/", &t, &got, &e);
+  CHECK(rc == DT_OK && got && !strcmp(t.path, "dir/c.fits"), "base with a trailing slash");
+  rc = parse("c.fits vsys=-120", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.has_vsys && t.vsys == -120, "negative vsys");
+
+  /* comments and blank lines */
+  const char *empty[] = {"", "\n", "   \t ", "# just a comment", "   # indented comment\n"};
+  for (size_t i = 0; i < sizeof empty / sizeof empty[0]; i++) {
+    rc = parse(empty[i], NULL, &t, &got, &e);
+    CHECK(rc == DT_OK && got == 0, "blank/comment line %zu holds no target", i);
+  }
+
+  /* every kind of bad line names line 7 and the problem */
+  bad_line("a.fits speed=3", "unknown key 'speed'");
+  bad_line("a.fits row", "not key=value");
+  bad_line("a.fits row=0", "row must be");
+  bad_line("a.fits row=-2", "row must be");
+  bad_line("a.fits row=2.5", "row must be");
+  bad_line("a.fits row=", "has no value");
+  bad_line("a.fits vsys=fast", "vsys must be");
+  bad_line("a.fits vsys=nan", "vsys must be");
+  bad_line("a.fits vsys=1e9", "vsys must be");
+  bad_line("a.fits R=-3000", "R must be");
+  bad_line("a.fits R=0", "R must be");
+  bad_line("a.fits fwhm=inf", "fwhm must be");
+  bad_line("a.fits R=3000 fwhm=80", "not both");
+  bad_line("a.fits vsys=1 vsys=2", "given twice");
+  bad_line("a.fits doublet=ABCDEFGHIJKLMNOPQRSTUVWXYZ", "too long");
+  bad_line("a.fits name=0123456789012345678901234567890123456789012345678901234567890123456789", "too long");
+  bad_line("a.fits =3", "unknown key ''");
+  bad_line("a.fits\x01 row=1", "control character");
+  {
+    static char huge[DT_TARGET_LINE_MAX + 64];
+    memset(huge, 'x', sizeof huge - 1);
+    huge[sizeof huge - 1] = '\0';
+    bad_line(huge, "longer than");
+  }
+
+  /* streaming a file: errors name the line, reading goes on after them */
+  char path[] = "/tmp/dt-test-targets-XXXXXX";
+  int fd = mkstemp(path);
+  CHECK(fd >= 0, "temporary list");
+  FILE *f = fdopen(fd, "w");
+  fprintf(f, "# demo list\n\nsub/one.fits vsys=300\nbad.fits colour=red\n  two.txt R=2000 # ok\n");
+  fwrite("nul\0byte\n", 1, 9, f);
+  fwrite("three.fits\n", 1, 11, f);
+  fclose(f);
+  dt_targets *l;
+  rc = dt_targets_open(path, &l, &e);
+  CHECK(rc == DT_OK, "open list");
+  const char *dir = "/tmp";
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.line == 3 && !strncmp(t.path, dir, 4) && strstr(t.path, "/sub/one.fits"),
+        "first target on line 3: %s", t.path);
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_EFORMAT && !strcmp(e.where, "line 4") && strstr(e.what, "colour"),
+        "bad key reported on line 4 (%s: %s)", e.where, e.what);
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.line == 5 && t.resolution == 2000, "reading goes on: line 5");
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_EFORMAT && !strcmp(e.where, "line 6") && strstr(e.what, "NUL"), "NUL byte on line 6");
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.line == 7 && strstr(t.path, "three.fits"), "last line without a newline");
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_OK && got == 0, "end of list");
+  dt_targets_close(l);
+
+  rc = dt_targets_open("/nonexistent/dir/list", &l, &e);
+  CHECK(rc == DT_EIO && strstr(e.what, "cannot open"), "missing list file: %s", e.what);
+
+  /* a long list streams in constant memory and quickly */
+  f = fopen(path, "w");
+  for (int i = 0; i < 100000; i++) fprintf(f, "spectra/s%06d.fits row=%d vsys=512 R=3000 name=t%d\n", i, i % 7 + 1, i);
+  fclose(f);
+  rc = dt_targets_open(path, &l, &e);
+  long n = 0, rowsum = 0;
+  while ((rc = dt_targets_next(l, &t, &got, &e)) == DT_OK && got) {
+    n++;
+    rowsum += t.row;
+  }
+  CHECK(rc == DT_OK && n == 100000 && dt_targets_lineno(l) == 100000, "100000 targets streamed (%ld)", n);
+  CHECK(rowsum == 100000L / 7 * 28 + (1 + 2 + 3 + 4 + 5), "every row read (%ld)", rowsum);
+  dt_targets_close(l);
+  unlink(path);
+
+  /* session names of queue entries: absolute and tidied, the same from
+     any working directory */
+  char c[512];
+  CHECK(!strcmp(dt_queue_canonical("/home/ann/survey", "spec/./q1.fits", c, sizeof c), "/home/ann/survey/spec/q1.fits"),
+        "relative path made absolute: %s", c);
+  CHECK(!strcmp(dt_queue_canonical("/home/bob", "../ann/survey//spec/q1.fits", c, sizeof c),
+                "/home/ann/survey/spec/q1.fits"),
+        "'..' and '//' resolved: %s", c);
+  CHECK(!strcmp(dt_queue_canonical("/x", "/data/a/../b/t.fits[2]", c, sizeof c), "/data/b/t.fits[2]"),
+        "absolute path tidied, extension selector kept: %s", c);
+  CHECK(!strcmp(dt_queue_canonical("/", "../../q.fits", c, sizeof c), "/q.fits"), "'..' stops at the root: %s", c);
+  char fp[64], d[16];
+  dt_queue_split_key("/data/b/t.fits[2]#CaII", fp, sizeof fp, d, sizeof d);
+  CHECK(!strcmp(fp, "/data/b/t.fits[2]") && !strcmp(d, "CaII"), "session name split into file and doublet");
+  dt_queue_split_key("/data/x#y/t.fits", fp, sizeof fp, d, sizeof d);
+  CHECK(!strcmp(fp, "/data/x#y/t.fits") && !d[0], "a '#' in a directory name is not a doublet");
+
+  /* a queue of many targets stays compact */
+  dt_queue q;
+  dt_queue_init(&q);
+  int qrc = DT_OK;
+  for (int i = 0; i < 100000 && qrc == DT_OK; i++) {
+    dt_target_spec_init(&t, NULL);
+    snprintf(t.path, sizeof t.path, "spectra/s%06d.fits", i);
+    t.row = i % 3;
+    qrc = dt_queue_add(&q, &t, &e);
+  }
+  CHECK(qrc == DT_OK && q.n == 100000, "100000 entries queued");
+  size_t bytes = q.cap * sizeof q.e[0] + q.pool_cap;
+  CHECK(bytes < 40u * 1000 * 1000, "... in %zu bytes (no spectra, no fixed-size paths)", bytes);
+  CHECK(!strcmp(dt_queue_path(&q, 12345), "spectra/s012345.fits") && q.e[12345].row == 12345 % 3,
+        "entry 12345 kept its path and row");
+  dt_queue_free(&q);
+  return dt_test_done();
+}
