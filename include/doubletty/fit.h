@@ -1,10 +1,42 @@
 /* Fitting Voigt components (and optionally the continuum) to a spectrum.
- * Declarations of the workspace API are added by the fitting module;
- * the result type is fixed here because the session log and the UI use it. */
+ *
+ * A non-linear least-squares fit (GSL gsl_multifit_nlinear, trust-region
+ * Levenberg-Marquardt) of the doublet model of model.h, multiplied by a
+ * continuum, to the unmasked pixels.  Every component shares (logN, b, v)
+ * between the two lines of the doublet (the model does that).  The Jacobian
+ * is analytic: the model's derivatives, chained through the bounding
+ * transforms and the optional joint continuum polynomial.
+ *
+ * Bounds are smooth transforms, so the solver works on unbounded internal
+ * parameters:
+ *   logN = lo + (hi - lo) / (1 + exp(-u))      lo, hi = DT_FIT_LOGN_MIN/MAX
+ *   ln b = lo + (hi - lo) / (1 + exp(-u))      lo, hi = ln DT_FIT_B_MIN/MAX
+ *   v    = vlo + (vhi - vlo) / (1 + exp(-u))   the problem's velocity window
+ * Starting values on or beyond a bound are moved just inside it.  Frozen
+ * parameters (DT_FREEZE_* bits of judge.h) keep their initial values and are
+ * not fitted.  tie_b: all components share one b, starting from (and frozen
+ * with) component 0's; its error is reported on component 0 only.
+ *
+ * Reported uncertainties are 1-sigma errors from the covariance matrix
+ * (J^T J)^-1 at the solution, mapped back through the transforms; they are
+ * NOT scaled by chi2_red: they assume the pixel sigmas are right.  Multiply
+ * by sqrt(chi2_red) yourself if you trust the scatter more than the sigmas.
+ * Near a bound the mapped error shrinks towards 0 and means little; the fit
+ * info flags such parameters (at_bound).  A parameter the data do not
+ * constrain at all (a singular covariance) gets an error of +infinity.
+ *
+ * BIC = chi2 + k ln n (Schwarz 1978, Ann. Stat. 6, 461) with k the number of
+ * fitted parameters (components and joint continuum) and n the number of
+ * pixels used.
+ *
+ * A fit that does not converge within the iteration or time limit, or whose
+ * chi2 is not finite, returns DT_ENOCONV with the result filled with the
+ * best parameters reached (status DT_ENOCONV) -- never a silent NaN. */
 #ifndef DOUBLETTY_FIT_H
 #define DOUBLETTY_FIT_H
 #include <stddef.h>
 #include "doubletty/model.h"
+#include "doubletty/status.h"
 
 #define DT_MAX_CONT 8   /* continuum polynomial coefficients at most */
 
@@ -23,5 +55,82 @@ typedef struct dt_fit_result {
   double bic;                      /* chi2 + k ln n */
   size_t npix;                     /* pixels used */
 } dt_fit_result;
+
+/* Physical ranges of the bounding transforms. */
+#define DT_FIT_LOGN_MIN 8.0        /* log10 N [cm^-2] */
+#define DT_FIT_LOGN_MAX 23.0
+#define DT_FIT_B_MIN 0.3           /* Doppler parameter [km/s] */
+#define DT_FIT_B_MAX 300.0
+
+/* Defaults used when the problem leaves a limit at 0. */
+#define DT_FIT_MAX_ITER 200
+#define DT_FIT_TIME_LIMIT 2.0      /* seconds per fit */
+
+typedef struct dt_fit_problem {
+  dt_model *model;               /* the doublet model on the fit pixels */
+  const double *wave;            /* pixel centres [Angstrom] (the model's);
+                                    needed only when ncont > 0 */
+  const double *flux;            /* data over the model's pixels */
+  const double *sigma;           /* 1-sigma errors (> 0 where used) */
+  const unsigned char *mask;     /* nonzero = not fitted; NULL = none */
+  const double *cont;            /* fixed multiplicative continuum; NULL = 1 */
+  /* Joint continuum: ncont Legendre coefficients c_j fitted together with
+   * the components; the fitted flux is
+   *   cont_i * sum_j c_j P_j(x_i) * model_i,
+   * x mapped linearly from [wave[0], wave[n-1]] to [-1, 1].  ncont = 0: no
+   * joint continuum.  cont_init: starting coefficients (NULL: the linear
+   * least-squares solution for the starting components). */
+  size_t ncont;
+  const double *cont_init;
+  size_t ncomp;                  /* components (0 allowed: chi2 of the continuum) */
+  const dt_component *comp;      /* starting values, inside the bounds */
+  const unsigned char *frozen;   /* DT_FREEZE_* bits per component; NULL = none */
+  int tie_b;                     /* 1: one b for all components */
+  double vlo, vhi;               /* velocity bounds [km/s], vlo < vhi */
+  int max_iter;                  /* 0: DT_FIT_MAX_ITER */
+  double time_limit;             /* seconds (monotonic clock); 0: DT_FIT_TIME_LIMIT;
+                                    < 0: none (the iteration limit still holds) */
+} dt_fit_problem;
+
+/* Extra diagnostics of the last run (optional, dt_fit_last_info). */
+typedef struct dt_fit_info {
+  int at_bound[DT_MAX_COMP];     /* DT_FREEZE_* style bits: parameter within
+                                    1% of its range from a bound (ln b for b) */
+  int reason;                    /* 1 small step, 2 small gradient (GSL tests),
+                                    3 converged with parameters at bounds */
+  size_t nparam;                 /* fitted parameters */
+  double seconds;                /* duration of the fit */
+} dt_fit_info;
+
+typedef struct dt_fit_workspace dt_fit_workspace;
+
+/* Workspace for fits of up to max_pix pixels, max_comp components and
+ * max_cont joint continuum coefficients.  Everything the iterations need is
+ * allocated here; dt_fit_run does not allocate.  NULL when out of memory or
+ * the sizes are out of range (max_comp > DT_MAX_COMP, max_cont > DT_MAX_CONT). */
+dt_fit_workspace *dt_fit_alloc(size_t max_pix, size_t max_comp, size_t max_cont);
+void dt_fit_free(dt_fit_workspace *w);
+
+/* Fit.  r is always filled (status = return value).  Returns DT_OK;
+ * DT_EINVAL for a malformed problem (sizes beyond the workspace, non-finite
+ * starting values, vlo >= vhi); DT_EMASKED when there are fewer usable
+ * pixels than free parameters + 1; DT_ENOCONV when the solver fails, runs
+ * out of iterations or time, or reaches a non-finite chi2.  e may be NULL. */
+int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r,
+               dt_err *e);
+
+/* chi2 and model of given parameters without fitting: flux_out (may be
+ * NULL) receives cont * joint-continuum * model over the model's pixels.
+ * comp NULL: p->comp; cont_coef NULL: p->cont_init, or when that is NULL
+ * too the linear least-squares coefficients for these components. */
+int dt_fit_chi2(dt_fit_workspace *w, const dt_fit_problem *p,
+                const dt_component *comp, const double *cont_coef,
+                double *flux_out, double *chi2, size_t *npix);
+/* The joint continuum coefficients (p->ncont of them) the last dt_fit_chi2
+ * used, into coef. */
+void dt_fit_chi2_coef(const dt_fit_workspace *w, double *coef);
+
+/* Diagnostics of the last dt_fit_run on this workspace. */
+const dt_fit_info *dt_fit_last_info(const dt_fit_workspace *w);
 
 #endif

@@ -1,0 +1,144 @@
+/* The analysis of one spectrum under one judgement: the glue between a
+ * dt_judgement (doublet, rest frame, resolution, windows, continuum settings,
+ * components) and the numbers and arrays shown to a person or written to a
+ * table.
+ *
+ * dt_analysis_run selects the pixels covering both lines' velocity windows,
+ * builds the doublet model on them (kept and reused while the doublet, rest
+ * frame, resolution and window stay the same), computes the continuum
+ * (continuum.h: from the judgement's windows, or automatically; Legendre
+ * order j->cont_order; order -1 = continuum fixed at 1), fits the
+ * judgement's components (fit.h) and measures both lines (measure.h).
+ * Buffers live in the dt_analysis and are reused run after run, so the
+ * inspector can call it after every keystroke.
+ *
+ * Pixels used by the fit: unmasked pixels whose velocity relative to either
+ * line (dt_velocity with the judgement's vsys) lies in [j->vlo, j->vhi].
+ * The arrays returned by the accessors cover the selected range, pixels
+ * [i0, i0 + n) of the spectrum (out->i0, out->n), and stay valid until the
+ * next run or dt_analysis_free.
+ *
+ * Measurement window: opts.int_vlo..int_vhi when given; otherwise, with
+ * components, from the lowest v - (2b + FWHM) to the highest v + (2b + FWHM)
+ * (FWHM of the LSF in km/s), and without components +-max(FWHM, 3 pixels)
+ * around v = 0, clipped to the judgement's window.  (A close doublet puts
+ * the other line inside a wide window: Na I's lines are 304 km/s apart.)
+ * With a joint continuum, the continuum shown and measured against is the
+ * fixed continuum times the fitted polynomial; its error is that of the
+ * fixed part only. */
+#ifndef DOUBLETTY_ANALYSIS_H
+#define DOUBLETTY_ANALYSIS_H
+#include <stddef.h>
+#include "doubletty/atomic.h"
+#include "doubletty/fit.h"
+#include "doubletty/judge.h"
+#include "doubletty/spectrum.h"
+#include "doubletty/status.h"
+
+typedef struct dt_analysis_opts {
+  size_t joint_cont;    /* 0: the continuum is fixed during the fit; k > 0:
+                           k multiplicative Legendre coefficients are fitted
+                           jointly with the components on top of it */
+  int oversample;       /* model sub-samples per pixel (0: model default) */
+  double tau_cut;       /* model wing truncation (0: model default) */
+  double limit_nsigma;  /* significance of upper limits (default 3) */
+  double int_vlo, int_vhi; /* measurement (integration) window [km/s];
+                              int_vlo >= int_vhi: the judgement's vlo..vhi */
+  int max_iter;         /* fit iteration limit (0: fit default) */
+  double time_limit;    /* fit time limit [s] (0: fit default) */
+} dt_analysis_opts;
+
+/* Defaults as documented above. */
+void dt_analysis_opts_init(dt_analysis_opts *o);
+
+/* Measurements of one line of the doublet (see measure.h for the
+ * definitions: integration over the measurement window, continuum error
+ * included). */
+typedef struct dt_analysis_line {
+  const dt_line *line;      /* atomic data */
+  double W, W_err;          /* equivalent width and 1-sigma error [Angstrom],
+                               rest frame */
+  double W_sig;             /* W / W_err */
+  double logN_aod;          /* log10 apparent column density N_a [cm^-2]
+                               (Savage & Sembach 1991); NaN if N_a <= 0 */
+  double logN_aod_err;      /* its 1-sigma error [dex] */
+  double W_limit;           /* limit_nsigma * W_err [Angstrom] */
+  double logN_limit;        /* log10 N upper limit from W_limit on the linear
+                               curve of growth */
+  size_t nsat;              /* saturated pixels in the window */
+  size_t npix;              /* pixels in the window */
+} dt_analysis_line;
+
+typedef struct dt_analysis_out {
+  const dt_doublet *doublet;
+  size_t i0, n;             /* selected pixels [i0, i0 + n) of the spectrum */
+  size_t nused;             /* pixels entering the fit */
+  int fitted;               /* 1: components were fitted in this run */
+  int fit_status;           /* DT_OK or the fit's failure (DT_ENOCONV ...) */
+  dt_fit_result fit;        /* fit of the components (ncomp = 0: chi2 of the
+                               continuum alone); with dt_analysis_eval the
+                               judgement's components and their chi2 */
+  int measure_status;        /* DT_OK or why the measurements failed (then
+                               the line values are NaN) */
+  double meas_vlo, meas_vhi; /* measurement window used [km/s] */
+  dt_analysis_line line[2]; /* line[0] the stronger */
+  int saturated;            /* the two lines' N_a disagree beyond their
+                               errors (weaker line larger): saturation */
+  int cont_order;           /* continuum order used (may be lower than asked
+                               when the windows hold too few pixels) */
+  dt_fit_info fit_info;     /* the fit's diagnostics (parameters at a bound,
+                               convergence reason, time); zeros when nothing
+                               was fitted */
+} dt_analysis_out;
+
+typedef struct dt_analysis dt_analysis;
+
+/* An analysis of spectrum s with atomic table t (both must outlive it).
+ * NULL when out of memory. */
+dt_analysis *dt_analysis_alloc(const dt_spectrum *s, const dt_atomic *t);
+void dt_analysis_free(dt_analysis *a);
+/* Replace the options (NULL: defaults).  Takes effect at the next run. */
+void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o);
+
+/* Continuum, fit of j's components (j->comp as starting values, j->frozen,
+ * j->tie_b) and measurements.  j is not changed: to keep the fit, apply a
+ * DT_ACT_FIT action with out->fit.  Returns DT_OK; DT_ENOTFOUND unknown
+ * doublet; DT_ERANGE the doublet's windows are not covered by the
+ * spectrum; DT_EMASKED every pixel there is masked; DT_EINVAL bad settings
+ * (e.g. vlo >= vhi, continuum order out of range); the fit's status (DT_ENOCONV) when the
+ * fit failed -- out is then still complete, with the best parameters the
+ * fit reached.  e may be NULL. */
+int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                    dt_err *e);
+
+/* The same without fitting: the model of j's components as they are, its
+ * chi2, the continuum and the measurements (e.g. to show a restored state
+ * or a component being nudged). */
+int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                     dt_err *e);
+
+/* Arrays over the selected pixels (n values) of the last run; NULL before
+ * a successful run. */
+const double *dt_analysis_wave(const dt_analysis *a);       /* [Angstrom] */
+const double *dt_analysis_flux(const dt_analysis *a);
+const double *dt_analysis_sigma(const dt_analysis *a);
+const unsigned char *dt_analysis_mask(const dt_analysis *a); /* spectrum mask */
+const unsigned char *dt_analysis_used(const dt_analysis *a); /* 1 = in the fit */
+/* Velocity [km/s] of each pixel relative to line 0 or 1 (rest frame vsys). */
+const double *dt_analysis_velocity(const dt_analysis *a, int line);
+const double *dt_analysis_continuum(const dt_analysis *a);     /* incl. joint part */
+const double *dt_analysis_continuum_err(const dt_analysis *a); /* 1 sigma */
+/* Total model flux: continuum * exp(-sum tau) through the LSF. */
+const double *dt_analysis_model(const dt_analysis *a);
+/* Model flux of component k alone (continuum * its own absorption),
+ * computed on first request after a run; NULL for k out of range. */
+const double *dt_analysis_component_model(dt_analysis *a, size_t k);
+/* (flux - model) / sigma; 0 at masked pixels. */
+const double *dt_analysis_residual(const dt_analysis *a);
+/* Apparent column density profile N_a(v) [cm^-2 (km/s)^-1] of a line and its
+ * 1-sigma error, over the selected pixels: the line's velocity window
+ * [j->vlo, j->vhi]; NaN outside it and at masked pixels. */
+const double *dt_analysis_na_profile(const dt_analysis *a, int line);
+const double *dt_analysis_na_profile_err(const dt_analysis *a, int line);
+
+#endif

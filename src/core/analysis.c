@@ -1,0 +1,578 @@
+/* The analysis of one spectrum under one judgement: pixels, model,
+ * continuum, fit and measurements, with buffers kept between runs.
+ *
+ * The inspector calls this after every keystroke, so the expensive pieces
+ * are cached by the settings they depend on: the doublet model (doublet,
+ * rest frame, resolution, window) and the continuum (also the continuum
+ * windows and order).  A nudge of a component therefore costs one fit (or,
+ * with dt_analysis_eval, one model evaluation) plus the O(n) measurements.
+ *
+ * Default measurement window (when the options give none): with components,
+ * from the lowest v - (2b + FWHM) to the highest v + (2b + FWHM) of the
+ * components, FWHM the LSF's in km/s; without, +-max(FWHM, 3 pixels) around
+ * v = 0; clipped to the judgement's window.  A close doublet (Na I: the lines
+ * are 304 km/s apart) puts the other line inside a wide window, which is why
+ * the integration does not default to the whole window. */
+#include "doubletty/analysis.h"
+
+#include <gsl/gsl_sf_legendre.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "doubletty/continuum.h"
+#include "doubletty/measure.h"
+#include "doubletty/model.h"
+
+typedef struct model_key {
+  const dt_doublet *doublet;
+  double vsys, resolution, fwhm, vlo, vhi, tau_cut;
+  int oversample;
+  size_t i0, n;
+} model_key;
+
+typedef struct cont_key {
+  const dt_doublet *doublet;
+  double vsys;
+  int order;
+  size_t nwin;
+  dt_window win[DT_MAX_WINDOWS];
+  size_t i0, n;
+} cont_key;
+
+struct dt_analysis {
+  const dt_spectrum *s;
+  const dt_atomic *t;
+  dt_analysis_opts opts;
+  /* selection-sized buffers, capacity cap */
+  size_t cap;
+  double *vel[2], *cont_fixed, *cont_err, *cont, *model, *resid, *na[2], *na_err[2];
+  double *poly, *tmp;
+  unsigned char *used, *fitmask;
+  double *compmod;               /* DT_MAX_COMP * cap */
+  int compmod_ok[DT_MAX_COMP];
+  /* continuum region buffers, capacity rcap */
+  size_t rcap;
+  double *rcont, *rerr;
+  /* cached pieces */
+  int have_model, have_cont, have_run;
+  model_key mkey;
+  cont_key ckey;
+  int cont_status, cont_order_used;
+  dt_err cont_e;
+  dt_model *m;
+  dt_fit_workspace *fw;
+  size_t fw_cap;
+  dt_cont_work *cw;
+  /* the last run */
+  size_t i0, n, ncomp;
+  dt_component comp[DT_MAX_COMP];
+  double fwhm_kms;
+};
+
+void dt_analysis_opts_init(dt_analysis_opts *o) {
+  memset(o, 0, sizeof *o);
+  o->limit_nsigma = 3.0;
+}
+
+dt_analysis *dt_analysis_alloc(const dt_spectrum *s, const dt_atomic *t) {
+  if (!s || !t) return NULL;
+  dt_analysis *a = calloc(1, sizeof *a);
+  if (!a) return NULL;
+  a->s = s;
+  a->t = t;
+  dt_analysis_opts_init(&a->opts);
+  a->cw = dt_cont_alloc(0, NULL);
+  if (!a->cw) {
+    free(a);
+    return NULL;
+  }
+  return a;
+}
+
+static void free_buffers(dt_analysis *a) {
+  for (int l = 0; l < 2; l++) {
+    free(a->vel[l]);
+    free(a->na[l]);
+    free(a->na_err[l]);
+    a->vel[l] = a->na[l] = a->na_err[l] = NULL;
+  }
+  free(a->cont_fixed); free(a->cont_err); free(a->cont); free(a->model);
+  free(a->resid); free(a->poly); free(a->tmp); free(a->used); free(a->fitmask);
+  free(a->compmod);
+  a->cont_fixed = a->cont_err = a->cont = a->model = a->resid = a->poly = a->tmp = NULL;
+  a->used = a->fitmask = NULL;
+  a->compmod = NULL;
+  a->cap = 0;
+}
+
+void dt_analysis_free(dt_analysis *a) {
+  if (!a) return;
+  free_buffers(a);
+  free(a->rcont);
+  free(a->rerr);
+  dt_model_free(a->m);
+  dt_fit_free(a->fw);
+  dt_cont_free(a->cw);
+  free(a);
+}
+
+void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o) {
+  if (o) a->opts = *o;
+  else dt_analysis_opts_init(&a->opts);
+  if (a->opts.joint_cont > DT_MAX_CONT) a->opts.joint_cont = DT_MAX_CONT;
+  a->have_model = 0;   /* oversample / tau_cut may have changed */
+  a->have_run = 0;
+}
+
+static int ensure_cap(dt_analysis *a, size_t n) {
+  if (n <= a->cap) return DT_OK;
+  free_buffers(a);
+  int bad = 0;
+#define GET(p, cnt) do { (p) = malloc((cnt) * sizeof *(p)); bad |= !(p); } while (0)
+  for (int l = 0; l < 2; l++) {
+    GET(a->vel[l], n);
+    GET(a->na[l], n);
+    GET(a->na_err[l], n);
+  }
+  GET(a->cont_fixed, n); GET(a->cont_err, n); GET(a->cont, n); GET(a->model, n);
+  GET(a->resid, n); GET(a->poly, n); GET(a->tmp, n); GET(a->used, n); GET(a->fitmask, n);
+  GET(a->compmod, n * DT_MAX_COMP);
+#undef GET
+  if (bad) {
+    free_buffers(a);
+    return DT_ENOMEM;
+  }
+  a->cap = n;
+  a->have_cont = 0;
+  return DT_OK;
+}
+
+static int ensure_rcap(dt_analysis *a, size_t n) {
+  if (n <= a->rcap) return DT_OK;
+  free(a->rcont);
+  free(a->rerr);
+  a->rcont = malloc(n * sizeof *a->rcont);
+  a->rerr = malloc(n * sizeof *a->rerr);
+  if (!a->rcont || !a->rerr) {
+    free(a->rcont);
+    free(a->rerr);
+    a->rcont = a->rerr = NULL;
+    a->rcap = 0;
+    return DT_ENOMEM;
+  }
+  a->rcap = n;
+  return DT_OK;
+}
+
+/* LSF FWHM in km/s of the judgement's settings (0: none). */
+static double lsf_fwhm(const dt_judgement *j) {
+  if (j->resolution > 0) return DT_C_KMS / j->resolution;
+  if (j->fwhm_kms > 0) return j->fwhm_kms;
+  return 0;
+}
+
+/* Choose the pixels, check coverage and masking, (re)build the model and
+ * the continuum.  Everything the fit and the measurements need. */
+static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
+  const dt_spectrum *s = a->s;
+  dt_err_clear(e);
+  memset(out, 0, sizeof *out);
+  out->fit_status = DT_OK;
+  a->have_run = 0;
+  const dt_doublet *d = dt_atomic_find(a->t, j->doublet);
+  if (!d) return dt_err_set(e, DT_ENOTFOUND, "doublet", "unknown doublet '%s'", j->doublet);
+  out->doublet = d;
+  if (!(isfinite(j->vlo) && isfinite(j->vhi) && j->vlo < j->vhi))
+    return dt_err_set(e, DT_EINVAL, "window", "empty velocity window [%g, %g] km/s", j->vlo,
+                      j->vhi);
+  if (!isfinite(j->vsys) || !isfinite(j->resolution) || !isfinite(j->fwhm_kms))
+    return dt_err_set(e, DT_EINVAL, "settings", "non-finite rest frame or resolution");
+  if (j->ncomp > DT_MAX_COMP)
+    return dt_err_set(e, DT_EINVAL, "components", "more than %d components", DT_MAX_COMP);
+  if (j->cont_order < -1 || j->cont_order > DT_CONT_MAX_ORDER)
+    return dt_err_set(e, DT_EINVAL, "continuum", "continuum order %d outside -1..%d",
+                      j->cont_order, DT_CONT_MAX_ORDER);
+  if (s->n < 2) return dt_err_set(e, DT_ERANGE, "spectrum", "fewer than 2 pixels");
+
+  /* Each line's window in wavelength; both must be at least half covered. */
+  double lo = INFINITY, hi = -INFINITY;
+  for (int l = 0; l < 2; l++) {
+    const dt_line *ln = &d->line[l];
+    double wl = dt_wavelength(j->vlo, ln->lambda0, j->vsys);
+    double wh = dt_wavelength(j->vhi, ln->lambda0, j->vsys);
+    double cl = fmax(wl, s->wave[0]), ch = fmin(wh, s->wave[s->n - 1]);
+    if (!(ch - cl >= 0.5 * (wh - wl)))
+      return dt_err_set(e, DT_ERANGE, ln->label,
+                        "window %g..%g km/s (%.2f-%.2f A) is not covered by the spectrum "
+                        "(%.2f-%.2f A)",
+                        j->vlo, j->vhi, wl, wh, s->wave[0], s->wave[s->n - 1]);
+    if (wl < lo) lo = wl;
+    if (wh > hi) hi = wh;
+  }
+  size_t i0 = dt_spectrum_index(s, lo), i1 = dt_spectrum_index(s, hi);
+  if (i1 < s->n && s->wave[i1] == hi) i1++;
+  if (i1 <= i0 + 1) return dt_err_set(e, DT_ERANGE, d->name, "fewer than 2 pixels in the window");
+  size_t n = i1 - i0;
+  int st = ensure_cap(a, n);
+  if (st) return dt_err_set(e, st, NULL, "out of memory");
+
+  /* velocities, fit mask */
+  size_t nused = 0;
+  for (size_t i = 0; i < n; i++) {
+    double w = s->wave[i0 + i];
+    int inwin = 0;
+    for (int l = 0; l < 2; l++) {
+      a->vel[l][i] = dt_velocity(w, d->line[l].lambda0, j->vsys);
+      if (a->vel[l][i] >= j->vlo && a->vel[l][i] <= j->vhi) inwin = 1;
+    }
+    int ok = inwin && !s->mask[i0 + i] && isfinite(s->flux[i0 + i]) &&
+             isfinite(s->sigma[i0 + i]) && s->sigma[i0 + i] > 0;
+    a->fitmask[i] = !ok;
+    a->used[i] = (unsigned char)ok;
+    nused += (size_t)ok;
+  }
+  if (nused == 0)
+    return dt_err_set(e, DT_EMASKED, d->name, "every pixel in the window is masked");
+  out->i0 = i0;
+  out->n = n;
+  out->nused = nused;
+  a->i0 = i0;
+  a->n = n;
+  a->fwhm_kms = lsf_fwhm(j);
+
+  /* the model, rebuilt only when its settings change */
+  model_key mk;
+  memset(&mk, 0, sizeof mk);
+  mk.doublet = d; mk.vsys = j->vsys; mk.resolution = j->resolution; mk.fwhm = j->fwhm_kms;
+  mk.vlo = j->vlo; mk.vhi = j->vhi; mk.tau_cut = a->opts.tau_cut;
+  mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n;
+  if (!a->have_model || memcmp(&mk, &a->mkey, sizeof mk) != 0) {
+    dt_model_free(a->m);
+    a->have_model = 0;
+    dt_model_config cfg;
+    memset(&cfg, 0, sizeof cfg);
+    cfg.doublet = d;
+    cfg.vsys = j->vsys;
+    cfg.resolution = j->resolution;
+    cfg.fwhm_kms = j->fwhm_kms;
+    cfg.oversample = a->opts.oversample;
+    cfg.tau_cut = a->opts.tau_cut;
+    dt_err me;
+    dt_err_clear(&me);
+    a->m = dt_model_alloc(s->wave + i0, n, &cfg, DT_MAX_COMP, &me);
+    if (!a->m) {
+      if (me.code == DT_OK) dt_err_set(&me, DT_ENOMEM, NULL, "out of memory");
+      if (e) *e = me;
+      return me.code;
+    }
+    if (!a->fw || a->fw_cap < n) {
+      dt_fit_free(a->fw);
+      a->fw = dt_fit_alloc(n, DT_MAX_COMP, DT_MAX_CONT);
+      a->fw_cap = n;
+      if (!a->fw) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+    }
+    a->mkey = mk;
+    a->have_model = 1;
+  }
+
+  /* the continuum, refitted only when its settings change */
+  cont_key ck;
+  memset(&ck, 0, sizeof ck);
+  ck.doublet = d; ck.vsys = j->vsys; ck.order = j->cont_order; ck.i0 = i0; ck.n = n;
+  ck.nwin = j->nwin < DT_MAX_WINDOWS ? j->nwin : DT_MAX_WINDOWS;
+  memcpy(ck.win, j->win, ck.nwin * sizeof ck.win[0]);
+  if (!a->have_cont || memcmp(&ck, &a->ckey, sizeof ck) != 0) {
+    a->have_cont = 0;
+    a->cont_status = DT_OK;
+    dt_err_clear(&a->cont_e);
+    if (j->cont_order < 0) {
+      for (size_t i = 0; i < n; i++) {
+        a->cont_fixed[i] = 1.0;
+        a->cont_err[i] = 0.0;
+      }
+      a->cont_order_used = -1;
+    } else {
+      /* the region: the selection, widened to take in the user windows */
+      size_t r0 = i0, r1 = i1;
+      for (size_t k = 0; k < ck.nwin; k++) {
+        size_t w0 = dt_spectrum_index(s, ck.win[k].lo), w1 = dt_spectrum_index(s, ck.win[k].hi);
+        if (w1 <= w0) continue;
+        if (w0 < r0) r0 = w0;
+        if (w1 > r1) r1 = w1;
+      }
+      st = ensure_rcap(a, r1 - r0);
+      if (st) return dt_err_set(e, st, NULL, "out of memory");
+      dt_cont_opts co;
+      dt_cont_opts_init(&co);
+      co.kind = DT_CONT_LEGENDRE;
+      co.order = j->cont_order;
+      co.nwin = ck.nwin;
+      co.win = ck.win;
+      co.doublet = d;
+      co.vsys = j->vsys;
+      co.allow_lower = 1;
+      dt_cont_result cr;
+      st = dt_cont_fit(a->cw, s, r0, r1, &co, a->rcont, a->rerr, NULL, &cr, &a->cont_e);
+      if (st != DT_OK) {
+        a->cont_status = st;
+        if (e) *e = a->cont_e;
+        return st;
+      }
+      int bad = 0;
+      for (size_t i = 0; i < n; i++) {
+        a->cont_fixed[i] = a->rcont[i0 - r0 + i];
+        a->cont_err[i] = a->rerr[i0 - r0 + i];
+        if (!(a->cont_fixed[i] > 0) || !isfinite(a->cont_fixed[i])) bad = 1;
+      }
+      if (bad)
+        return dt_err_set(e, DT_EINVAL, "continuum",
+                          "the fitted continuum is not positive everywhere in the window");
+      a->cont_order_used = cr.order;
+    }
+    a->ckey = ck;
+    a->have_cont = 1;
+  }
+  out->cont_order = a->cont_order_used;
+  return DT_OK;
+}
+
+static void fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *p) {
+  memset(p, 0, sizeof *p);
+  p->model = a->m;
+  p->wave = a->s->wave + a->i0;
+  p->flux = a->s->flux + a->i0;
+  p->sigma = a->s->sigma + a->i0;
+  p->mask = a->fitmask;
+  p->cont = j->cont_order < 0 ? NULL : a->cont_fixed;
+  p->ncont = a->opts.joint_cont;
+  p->ncomp = j->ncomp;
+  p->comp = j->comp;
+  p->frozen = j->frozen;
+  p->tie_b = j->tie_b;
+  p->vlo = j->vlo;
+  p->vhi = j->vhi;
+  p->max_iter = a->opts.max_iter;
+  p->time_limit = a->opts.time_limit;
+}
+
+/* The joint polynomial per pixel (1 without), continuum = fixed * poly. */
+static void set_continuum(dt_analysis *a, const double *coef, size_t ncoef) {
+  size_t n = a->n;
+  const double *w = a->s->wave + a->i0;
+  for (size_t i = 0; i < n; i++) {
+    double poly = 1.0;
+    if (ncoef > 0) {
+      double pl[DT_MAX_CONT];
+      double x = w[n - 1] > w[0] ? 2.0 * (w[i] - w[0]) / (w[n - 1] - w[0]) - 1.0 : 0.0;
+      if (ncoef == 1) pl[0] = 1.0;
+      else gsl_sf_legendre_Pl_array((int)ncoef - 1, x, pl);
+      poly = 0;
+      for (size_t k = 0; k < ncoef; k++) poly += coef[k] * pl[k];
+    }
+    a->poly[i] = poly;
+    a->cont[i] = a->cont_fixed[i] * poly;
+  }
+}
+
+/* Residuals, measurements; the model must be in a->model. */
+static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *comp,
+                   size_t ncomp, dt_analysis_out *out) {
+  const dt_spectrum *s = a->s;
+  size_t n = a->n, i0 = a->i0;
+  for (size_t i = 0; i < n; i++) {
+    double r = (s->flux[i0 + i] - a->model[i]) / s->sigma[i0 + i];
+    a->resid[i] = (s->mask[i0 + i] || !isfinite(r)) ? 0.0 : r;
+  }
+  a->ncomp = ncomp;
+  memcpy(a->comp, comp, ncomp * sizeof comp[0]);
+  memset(a->compmod_ok, 0, sizeof a->compmod_ok);
+
+  /* measurement window */
+  double v1 = a->opts.int_vlo, v2 = a->opts.int_vhi;
+  if (!(v1 < v2)) {
+    double fw = a->fwhm_kms;
+    if (ncomp > 0) {
+      v1 = INFINITY;
+      v2 = -INFINITY;
+      for (size_t k = 0; k < ncomp; k++) {
+        double hw = 2.0 * comp[k].b + fw;
+        if (comp[k].v - hw < v1) v1 = comp[k].v - hw;
+        if (comp[k].v + hw > v2) v2 = comp[k].v + hw;
+      }
+    } else {
+      double pix = fabs(a->vel[0][n - 1] - a->vel[0][0]) / (double)(n - 1);
+      double hw = fmax(fw, 3.0 * pix);
+      v1 = -hw;
+      v2 = hw;
+    }
+    if (v1 < j->vlo) v1 = j->vlo;
+    if (v2 > j->vhi) v2 = j->vhi;
+    if (!(v1 < v2)) { v1 = j->vlo; v2 = j->vhi; }
+  }
+  dt_measure_input in;
+  in.n = n;
+  in.wave = s->wave + i0;
+  in.flux = s->flux + i0;
+  in.sigma = s->sigma + i0;
+  in.mask = s->mask + i0;
+  in.cont = a->cont;
+  in.cont_err = a->cont_err;
+  in.vsys = j->vsys;
+  dt_measure_opts mo;
+  dt_measure_opts_init(&mo);
+  if (a->opts.limit_nsigma > 0) mo.limit_nsigma = a->opts.limit_nsigma;
+  const dt_doublet *d = out->doublet;
+  dt_doublet_measure dm;
+  out->measure_status = dt_measure_doublet(&in, d, v1, v2, &mo, &dm, NULL);
+  out->meas_vlo = v1;
+  out->meas_vhi = v2;
+  for (int l = 0; l < 2; l++) {
+    dt_analysis_line *L = &out->line[l];
+    L->line = &d->line[l];
+    if (out->measure_status == DT_OK) {
+      const dt_line_measure *m = &dm.line[l];
+      L->W = m->W;
+      L->W_err = m->W_err;
+      L->W_sig = m->signif;
+      L->logN_aod = m->logNa;
+      L->logN_aod_err = m->logNa_err;
+      L->W_limit = m->W_limit;
+      L->logN_limit = m->logN_limit;
+      L->nsat = m->nfloor;
+      L->npix = m->npix;
+    } else {
+      L->W = L->W_err = L->W_sig = L->logN_aod = L->logN_aod_err = NAN;
+      L->W_limit = L->logN_limit = NAN;
+    }
+    /* the N_a(v) profile over the whole window, for plots and the first pass */
+    dt_line_measure pm;
+    if (dt_measure_line(&in, &d->line[l], j->vlo, j->vhi, &mo, &pm, a->na[l], a->na_err[l],
+                        NULL) != DT_OK) {
+      for (size_t i = 0; i < n; i++) a->na[l][i] = a->na_err[l][i] = NAN;
+    }
+  }
+  out->saturated = out->measure_status == DT_OK ? dm.saturated : 0;
+  a->have_run = 1;
+}
+
+/* Fitted parameters counted for BIC and dof when nothing is fitted. */
+static size_t count_free(const dt_judgement *j, size_t joint) {
+  size_t k = joint;
+  for (size_t c = 0; c < j->ncomp; c++) {
+    unsigned fr = j->frozen[c];
+    k += !(fr & DT_FREEZE_N) + !(fr & DT_FREEZE_V);
+    if (j->tie_b ? c == 0 && !(j->frozen[0] & DT_FREEZE_B) : !(fr & DT_FREEZE_B)) k++;
+  }
+  return k;
+}
+
+int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
+  int st = prepare(a, j, out, e);
+  if (st != DT_OK) return st;
+  dt_fit_problem p;
+  fill_problem(a, j, &p);
+  dt_err fe;
+  dt_err_clear(&fe);
+  int fst = dt_fit_run(a->fw, &p, &out->fit, &fe);
+  out->fit_status = fst;
+  out->fit_info = *dt_fit_last_info(a->fw);
+  out->fitted = j->ncomp > 0 || p.ncont > 0;
+  if (fst != DT_OK && fst != DT_ENOCONV) {
+    if (e) *e = fe;
+    return fst;
+  }
+  /* the model at the fit's parameters (the best reached if it failed) */
+  size_t npix;
+  double chi2;
+  dt_fit_problem q = p;
+  q.frozen = NULL;
+  dt_fit_chi2(a->fw, &q, out->fit.comp, out->fit.cont_coef, a->model, &chi2, &npix);
+  set_continuum(a, out->fit.cont_coef, out->fit.ncont);
+  finish(a, j, out->fit.comp, out->fit.ncomp, out);
+  if (fst != DT_OK) {
+    if (e) *e = fe;
+    return fst;
+  }
+  return DT_OK;
+}
+
+int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
+  int st = prepare(a, j, out, e);
+  if (st != DT_OK) return st;
+  dt_fit_problem p;
+  fill_problem(a, j, &p);
+  const double *coef = NULL;
+  if (p.ncont && j->has_fit && j->fit.ncont == p.ncont) coef = j->fit.cont_coef;
+  double chi2 = NAN;
+  size_t npix = 0;
+  st = dt_fit_chi2(a->fw, &p, j->comp, coef, a->model, &chi2, &npix);
+  if (st != DT_OK) return dt_err_set(e, st, "components", "the model cannot be evaluated");
+  dt_fit_result *r = &out->fit;
+  memset(r, 0, sizeof *r);
+  r->status = DT_OK;
+  r->ncomp = j->ncomp;
+  memcpy(r->comp, j->comp, j->ncomp * sizeof r->comp[0]);
+  if (j->has_fit && j->fit.ncomp == j->ncomp) memcpy(r->err, j->fit.err, sizeof r->err);
+  r->ncont = p.ncont;
+  if (p.ncont) dt_fit_chi2_coef(a->fw, r->cont_coef);
+  size_t k = count_free(j, p.ncont);
+  r->chi2 = chi2;
+  r->npix = npix;
+  r->dof = (long)npix - (long)k;
+  r->chi2_red = r->dof > 0 ? chi2 / (double)r->dof : NAN;
+  r->bic = chi2 + (double)k * log((double)npix);
+  out->fit_status = DT_OK;
+  out->fitted = 0;
+  set_continuum(a, r->cont_coef, p.ncont);
+  finish(a, j, j->comp, j->ncomp, out);
+  return DT_OK;
+}
+
+const double *dt_analysis_wave(const dt_analysis *a) {
+  return a->have_run ? a->s->wave + a->i0 : NULL;
+}
+const double *dt_analysis_flux(const dt_analysis *a) {
+  return a->have_run ? a->s->flux + a->i0 : NULL;
+}
+const double *dt_analysis_sigma(const dt_analysis *a) {
+  return a->have_run ? a->s->sigma + a->i0 : NULL;
+}
+const unsigned char *dt_analysis_mask(const dt_analysis *a) {
+  return a->have_run ? a->s->mask + a->i0 : NULL;
+}
+const unsigned char *dt_analysis_used(const dt_analysis *a) {
+  return a->have_run ? a->used : NULL;
+}
+const double *dt_analysis_velocity(const dt_analysis *a, int line) {
+  return a->have_run && (line == 0 || line == 1) ? a->vel[line] : NULL;
+}
+const double *dt_analysis_continuum(const dt_analysis *a) {
+  return a->have_run ? a->cont : NULL;
+}
+const double *dt_analysis_continuum_err(const dt_analysis *a) {
+  return a->have_run ? a->cont_err : NULL;
+}
+const double *dt_analysis_model(const dt_analysis *a) {
+  return a->have_run ? a->model : NULL;
+}
+const double *dt_analysis_residual(const dt_analysis *a) {
+  return a->have_run ? a->resid : NULL;
+}
+const double *dt_analysis_na_profile(const dt_analysis *a, int line) {
+  return a->have_run && (line == 0 || line == 1) ? a->na[line] : NULL;
+}
+const double *dt_analysis_na_profile_err(const dt_analysis *a, int line) {
+  return a->have_run && (line == 0 || line == 1) ? a->na_err[line] : NULL;
+}
+
+const double *dt_analysis_component_model(dt_analysis *a, size_t k) {
+  if (!a->have_run || k >= a->ncomp) return NULL;
+  double *out = a->compmod + k * a->cap;
+  if (!a->compmod_ok[k]) {
+    if (dt_model_eval(a->m, &a->comp[k], 1, a->tmp, NULL, 0) != DT_OK) return NULL;
+    for (size_t i = 0; i < a->n; i++) out[i] = a->cont[i] * a->tmp[i];
+    a->compmod_ok[k] = 1;
+  }
+  return out;
+}

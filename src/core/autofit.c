@@ -1,0 +1,509 @@
+/* The automatic first pass: find doublet absorption, seed components, grow
+ * the model while the BIC says so, and suggest a verdict.
+ *
+ * Everything works on the apparent column density profiles N_a(v) of the
+ * two lines (Savage & Sembach 1991, ApJ 379, 245) over the same pixels.
+ * Significance is judged on running sums over a box of about one LSF FWHM
+ * (a matched filter for unresolved lines): S = sum N_a dv / sqrt(sum
+ * (err dv)^2).  Runs of pixels with S above detect_sigma are "groups".
+ *
+ * Doublet coincidence test for a group seen in the stronger line over
+ * [va, vb]: A = integral of N_a(v) of the stronger line there, B the same of
+ * the weaker line over the same velocities.  Optically thin gas gives B = A;
+ * saturation raises B/A towards f1 lambda1 / (f2 lambda2) (the ratio of the
+ * lines' f lambda, ~2 for Na I), never beyond.  The group is confirmed when
+ * B is itself significant (B >= CONFIRM_SIGMA sigma_B) and B/A is within
+ * RATIO_SIGMA of that range; "odd" when B is significant but the ratio is
+ * not plausible; "weak" when B is not significant.
+ *
+ * Because the lines of a close doublet fall in each other's windows, a
+ * confirmed component at v also makes a group at v + Delta in the stronger
+ * line's frame (Delta = the velocity of the weaker line's rest wavelength
+ * seen from the stronger line's), and the stronger line's absorption shows
+ * at v - Delta in the weaker line's frame; such groups are "explained" and
+ * not held against the doublet. */
+#include "doubletty/autofit.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "doubletty/model.h"
+
+#define MAX_GROUPS 32
+#define CONFIRM_SIGMA 2.0   /* weaker line's own significance to confirm */
+#define RATIO_SIGMA 3.0     /* tolerance of the ratio test */
+#define UNSURE_SIGMA 5.0    /* unconfirmed absorption this strong: unsure */
+#define POOR_CHI2 3.0       /* reduced chi2 of a poor fit */
+#define RESID_SIGMA 3.0     /* residual significance worth a new component */
+
+enum { G_WEAK, G_CONFIRMED, G_ODD };
+
+typedef struct group {
+  size_t a, b;          /* pixel range [a, b] */
+  double va, vb;        /* velocity range in the line's frame */
+  double sig;           /* significance of the integral over the group */
+  double v;             /* N_a-weighted mean velocity */
+  double bseed;         /* Doppler parameter estimate [km/s] */
+  double A, sA, B, sB;  /* integrals of N_a: stronger, weaker line */
+  int kind;             /* G_* (stronger-line groups) */
+  int explained;
+} group;
+
+void dt_autofit_opts_init(dt_autofit_opts *o) {
+  memset(o, 0, sizeof *o);
+  o->max_comp = DT_AUTOFIT_MAX_COMP;
+  o->detect_sigma = 3.0;
+  o->bic_min = 10.0;
+}
+
+typedef struct ctx {
+  dt_analysis *a;
+  const dt_doublet *d;
+  size_t n;
+  const double *vel[2], *na[2], *ne[2];
+  const unsigned char *used;
+  double fwhm, pix;
+  size_t box;
+  double r_thin;        /* f lambda of the stronger over the weaker line */
+  double delta;         /* weaker line's rest velocity in the stronger's frame */
+  double vlo, vhi;
+} ctx;
+
+static double pixel_dv(const ctx *c, int l, size_t i) {
+  const double *v = c->vel[l];
+  if (c->n < 2) return 1.0;
+  if (i == 0) return v[1] - v[0];
+  if (i == c->n - 1) return v[i] - v[i - 1];
+  return 0.5 * (v[i + 1] - v[i - 1]);
+}
+
+/* Integral of N_a of line l over velocities [va, vb] of its own frame. */
+static void integrate(const ctx *c, int l, double va, double vb, double *sum, double *err) {
+  double s = 0, e2 = 0;
+  for (size_t i = 0; i < c->n; i++) {
+    double v = c->vel[l][i];
+    if (v < va || v > vb || !isfinite(c->na[l][i]) || !isfinite(c->ne[l][i])) continue;
+    double dv = pixel_dv(c, l, i);
+    s += c->na[l][i] * dv;
+    e2 += c->ne[l][i] * c->ne[l][i] * dv * dv;
+  }
+  *sum = s;
+  *err = sqrt(e2);
+}
+
+/* Groups of significant absorption in line l. */
+static size_t find_groups(const ctx *c, int l, double thresh, group *g, size_t maxg) {
+  size_t ng = 0, h = c->box / 2;
+  long start = -1;
+  for (size_t i = 0; i <= c->n; i++) {
+    int hit = 0;
+    if (i < c->n && isfinite(c->na[l][i])) {
+      double s = 0, e2 = 0;
+      size_t lo = i > h ? i - h : 0, hi = i + h < c->n ? i + h : c->n - 1;
+      for (size_t k = lo; k <= hi; k++) {
+        if (!isfinite(c->na[l][k]) || !isfinite(c->ne[l][k])) continue;
+        double dv = pixel_dv(c, l, k);
+        s += c->na[l][k] * dv;
+        e2 += c->ne[l][k] * c->ne[l][k] * dv * dv;
+      }
+      hit = e2 > 0 && s / sqrt(e2) > thresh;
+    }
+    if (hit && start < 0) start = (long)i;
+    if (!hit && start >= 0) {
+      if (ng < maxg) {
+        group *q = &g[ng++];
+        memset(q, 0, sizeof *q);
+        q->a = (size_t)start;
+        q->b = i - 1;
+        q->va = c->vel[l][q->a] - 0.5 * fabs(pixel_dv(c, l, q->a));
+        q->vb = c->vel[l][q->b] + 0.5 * fabs(pixel_dv(c, l, q->b));
+      }
+      start = -1;
+    }
+  }
+  /* significance, mean velocity and width of each group */
+  for (size_t k = 0; k < ng; k++) {
+    group *q = &g[k];
+    double s, e;
+    integrate(c, l, q->va, q->vb, &s, &e);
+    q->sig = e > 0 ? s / e : 0;
+    double w = 0, m1 = 0, m2 = 0;
+    for (size_t i = q->a; i <= q->b; i++) {
+      double x = c->na[l][i];
+      if (!isfinite(x) || x <= 0) continue;
+      w += x;
+      m1 += x * c->vel[l][i];
+    }
+    q->v = w > 0 ? m1 / w : 0.5 * (q->va + q->vb);
+    for (size_t i = q->a; i <= q->b; i++) {
+      double x = c->na[l][i];
+      if (!isfinite(x) || x <= 0) continue;
+      m2 += x * (c->vel[l][i] - q->v) * (c->vel[l][i] - q->v);
+    }
+    double var = w > 0 ? m2 / w : 0;
+    double sl = c->fwhm / 2.3548;
+    double bi = sqrt(2.0 * fmax(var - sl * sl, c->pix * c->pix));
+    q->bseed = fmin(fmax(bi, 2.0), 80.0);
+  }
+  return ng;
+}
+
+/* N_a-weighted mean velocity of line l over [va, vb] (positive N_a only);
+ * dflt when there is none. */
+static double centroid(const ctx *c, int l, double va, double vb, double dflt) {
+  double w = 0, m = 0;
+  for (size_t i = 0; i < c->n; i++) {
+    double v = c->vel[l][i], x = c->na[l][i];
+    if (v < va || v > vb || !isfinite(x) || x <= 0) continue;
+    w += x;
+    m += x * v;
+  }
+  return w > 0 ? m / w : dflt;
+}
+
+static int overlaps(double a0, double a1, double b0, double b1) {
+  return a0 <= b1 && b0 <= a1;
+}
+
+/* The doublet coincidence test of a stronger-line group. */
+static void classify(const ctx *c, group *q) {
+  integrate(c, 0, q->va, q->vb, &q->A, &q->sA);
+  integrate(c, 1, q->va, q->vb, &q->B, &q->sB);
+  double rho = q->A > 0 ? q->B / q->A : 1.0;
+  if (rho < 1.0) rho = 1.0;
+  if (rho > c->r_thin) rho = c->r_thin;
+  double tol = RATIO_SIGMA * sqrt(q->sB * q->sB + rho * rho * q->sA * q->sA);
+  int consistent = fabs(q->B - rho * q->A) <= tol;
+  int bsig = q->sB > 0 && q->B >= CONFIRM_SIGMA * q->sB;
+  q->kind = !bsig ? G_WEAK : consistent ? G_CONFIRMED : G_ODD;
+}
+
+/* Seed column density from an integral of N_a [cm^-2]. */
+static double seed_logN(double N) {
+  double x = N > 0 ? log10(N) : 10.0;
+  if (x < 9.0) x = 9.0;
+  if (x > 21.0) x = 21.0;
+  return x;
+}
+
+/* Velocity of the most significant absorption left in the residuals of
+ * both lines together; returns 0 when nothing is left above RESID_SIGMA. */
+static int residual_seed(const ctx *c, dt_component *out) {
+  const double *r = dt_analysis_residual(c->a);
+  const double *model = dt_analysis_model(c->a);
+  const double *flux = dt_analysis_flux(c->a);
+  if (!r || !model || !flux) return 0;
+  size_t h = c->box / 2;
+  double best = 0;
+  size_t bi = 0;
+  int found = 0;
+  for (size_t i = 0; i < c->n; i++) {
+    double v = c->vel[0][i];
+    if (v < c->vlo || v > c->vhi || !c->used[i]) continue;
+    /* the weaker line's pixel at the same velocity */
+    size_t lo = 0, hi = c->n - 1;
+    while (lo < hi) {
+      size_t mid = (lo + hi) / 2;
+      if (c->vel[1][mid] < v) lo = mid + 1;
+      else hi = mid;
+    }
+    double sum = 0;
+    size_t cnt = 0;
+    for (int l = 0; l < 2; l++) {
+      size_t ctr = l == 0 ? i : lo;
+      size_t a = ctr > h ? ctr - h : 0, b = ctr + h < c->n ? ctr + h : c->n - 1;
+      for (size_t k = a; k <= b; k++)
+        if (c->used[k]) {
+          sum += r[k];
+          cnt++;
+        }
+    }
+    if (cnt == 0) continue;
+    double z = sum / sqrt((double)cnt);
+    if (z < best) {
+      best = z;
+      bi = i;
+      found = 1;
+    }
+  }
+  if (!found || best > -RESID_SIGMA) return 0;
+  /* column from the missing optical depth of the stronger line */
+  double tau = 0;
+  size_t a = bi > h ? bi - h : 0, b = bi + h < c->n ? bi + h : c->n - 1;
+  for (size_t k = a; k <= b; k++) {
+    if (!c->used[k] || !(model[k] > 0)) continue;
+    double f = flux[k] / model[k];
+    if (f < 0.05) f = 0.05;
+    if (f < 1) tau += -log(f) * fabs(pixel_dv(c, 0, k));
+  }
+  const dt_line *ln = &c->d->line[0];
+  double N = 3.768e14 * tau / (ln->f * ln->lambda0); /* Savage & Sembach 1991 */
+  out->logN = seed_logN(N);
+  out->b = fmax(c->fwhm / 3.0, 5.0);
+  out->v = c->vel[0][bi];
+  return 1;
+}
+
+static int fit_with(dt_analysis *a, const dt_judgement *base, const dt_component *comp,
+                    size_t nc, dt_analysis_out *out, dt_err *e) {
+  dt_judgement w = *base;
+  w.ncomp = nc;
+  memcpy(w.comp, comp, nc * sizeof comp[0]);
+  memset(w.frozen, 0, sizeof w.frozen);
+  w.has_fit = 0;
+  return dt_analysis_run(a, &w, out, e);
+}
+
+static int by_sig(const void *x, const void *y) {
+  const group *a = x, *b = y;
+  return (a->sig < b->sig) - (a->sig > b->sig);
+}
+
+int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
+                   dt_autofit_out *o, dt_err *e) {
+  dt_autofit_opts op;
+  if (opts) op = *opts;
+  else dt_autofit_opts_init(&op);
+  if (op.max_comp == 0) op.max_comp = DT_AUTOFIT_MAX_COMP;
+  if (op.max_comp > DT_MAX_COMP) op.max_comp = DT_MAX_COMP;
+  if (!(op.detect_sigma > 0)) op.detect_sigma = 3.0;
+  if (!(op.bic_min > 0)) op.bic_min = 10.0;
+  if (op.ncomp > DT_MAX_COMP || op.ncomp < 0 || op.nseed > DT_MAX_COMP)
+    return dt_err_set(e, DT_EINVAL, "components", "at most %d components", DT_MAX_COMP);
+  memset(o, 0, sizeof *o);
+  o->suggested = DT_VERDICT_UNSURE;
+
+  /* 1. the profiles without components */
+  dt_judgement base = *j;
+  base.ncomp = 0;
+  memset(base.frozen, 0, sizeof base.frozen);
+  base.has_fit = 0;
+  dt_analysis_out an0;
+  int st = dt_analysis_eval(a, &base, &an0, e);
+  if (st != DT_OK) return st;
+
+  ctx c;
+  memset(&c, 0, sizeof c);
+  c.a = a;
+  c.d = an0.doublet;
+  c.n = an0.n;
+  for (int l = 0; l < 2; l++) {
+    c.vel[l] = dt_analysis_velocity(a, l);
+    c.na[l] = dt_analysis_na_profile(a, l);
+    c.ne[l] = dt_analysis_na_profile_err(a, l);
+  }
+  c.used = dt_analysis_used(a);
+  c.fwhm = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0;
+  c.pix = fabs(c.vel[0][c.n - 1] - c.vel[0][0]) / (double)(c.n - 1);
+  double bw = c.fwhm > 0 ? c.fwhm / c.pix : 3.0;
+  c.box = bw < 1 ? 1 : bw > 31 ? 31 : (size_t)lround(bw);
+  const dt_line *l0 = &c.d->line[0], *l1 = &c.d->line[1];
+  c.r_thin = (l0->f * l0->lambda0) / (l1->f * l1->lambda0);
+  if (c.r_thin < 1) c.r_thin = 1;
+  c.delta = dt_velocity(l1->lambda0, l0->lambda0, 0.0);
+  c.vlo = j->vlo;
+  c.vhi = j->vhi;
+
+  /* 2. groups in both lines, the coincidence test */
+  group g0[MAX_GROUPS], g1[MAX_GROUPS];
+  size_t n0 = find_groups(&c, 0, op.detect_sigma, g0, MAX_GROUPS);
+  size_t n1 = find_groups(&c, 1, op.detect_sigma, g1, MAX_GROUPS);
+  qsort(g0, n0, sizeof g0[0], by_sig);
+  for (size_t k = 0; k < n0; k++) {
+    group *q = &g0[k];
+    if (q->explained) continue;
+    classify(&c, q);
+    if (q->kind != G_CONFIRMED) continue;
+    /* its weaker line, seen in the stronger line's frame, and the stronger
+       line seen in the weaker's frame */
+    for (size_t m = 0; m < n0; m++)
+      if (m != k && g0[m].kind != G_CONFIRMED &&
+          overlaps(g0[m].va, g0[m].vb, q->va + c.delta, q->vb + c.delta))
+        g0[m].explained = 1;
+    for (size_t m = 0; m < n1; m++)
+      if (overlaps(g1[m].va, g1[m].vb, q->va, q->vb) ||
+          overlaps(g1[m].va, g1[m].vb, q->va - c.delta, q->vb - c.delta))
+        g1[m].explained = 1;
+  }
+  size_t nconf = 0;
+  int odd = 0, weak = 0, weak_only = 0;
+  group *strongest_unconf = NULL;
+  for (size_t k = 0; k < n0; k++) {
+    group *q = &g0[k];
+    if (q->explained) continue;
+    if (q->kind == G_CONFIRMED) {
+      if (o->ncand < DT_MAX_COMP) {
+        o->cand_v[o->ncand] = q->v;
+        o->cand_confirmed[o->ncand++] = 1;
+      }
+      nconf++;
+    } else if (q->sig >= UNSURE_SIGMA) {
+      if (q->kind == G_ODD) odd = 1;
+      else weak = 1;
+      if (!strongest_unconf) strongest_unconf = q;
+      if (o->ncand < DT_MAX_COMP) {
+        o->cand_v[o->ncand] = q->v;
+        o->cand_confirmed[o->ncand++] = 0;
+      }
+    }
+  }
+  for (size_t m = 0; m < n1; m++) {
+    if (g1[m].explained) continue;
+    /* absorption only where the weaker line would be */
+    int seen = 0;
+    for (size_t k = 0; k < n0; k++)
+      if (overlaps(g0[k].va, g0[k].vb, g1[m].va, g1[m].vb)) seen = 1;
+    if (!seen && g1[m].sig >= UNSURE_SIGMA) weak_only = 1;
+  }
+
+  /* 3. seeds */
+  dt_component seed[DT_MAX_COMP];
+  size_t ns = 0;
+  if (op.nseed > 0) {
+    /* Around each given velocity (within 2 FWHM + 20 km/s): the column from
+     * the apparent optical depth, at least what 3 sigma of noise allows,
+     * and the velocity moved to the centroid of significant absorption. */
+    for (size_t k = 0; k < op.nseed; k++) {
+      double hw = 2.0 * fmax(c.fwhm, 3 * c.pix) + 20.0, v = op.seed_v[k];
+      double A, sA, B, sB;
+      integrate(&c, 0, v - hw, v + hw, &A, &sA);
+      integrate(&c, 1, v - hw, v + hw, &B, &sB);
+      if (A > 3.0 * sA) v = centroid(&c, 0, v - hw, v + hw, v);
+      seed[ns].logN = seed_logN(fmax(fmax(A, B), 3.0 * sA));
+      seed[ns].b = fmax(c.fwhm / 3.0, 5.0);
+      seed[ns].v = v;
+      ns++;
+    }
+  } else {
+    for (size_t k = 0; k < n0 && ns < op.max_comp; k++) {
+      group *q = &g0[k];
+      if (q->explained || q->kind != G_CONFIRMED) continue;
+      seed[ns].logN = seed_logN(fmax(q->A, q->B));
+      seed[ns].b = q->bseed;
+      seed[ns].v = q->v;
+      ns++;
+    }
+    if (ns == 0 && strongest_unconf) {
+      seed[0].logN = seed_logN(strongest_unconf->A);
+      seed[0].b = strongest_unconf->bseed;
+      seed[0].v = strongest_unconf->v;
+      ns = 1;
+    }
+  }
+  size_t want = op.ncomp > 0 ? (size_t)op.ncomp : 0;
+  if (want && ns > want) ns = want;
+  for (size_t k = 0; k < ns; k++) {
+    if (seed[k].v < j->vlo) seed[k].v = j->vlo;
+    if (seed[k].v > j->vhi) seed[k].v = j->vhi;
+  }
+
+  /* 4. fit; grow while the BIC improves (or up to the fixed number) */
+  dt_analysis_out best = an0;
+  int best_st = DT_OK;
+  dt_err fe;
+  dt_err_clear(&fe);
+  if (ns > 0) {
+    best_st = fit_with(a, &base, seed, ns, &best, &fe);
+    if (best_st == DT_ENOCONV) {   /* one retry from broader lines */
+      for (size_t k = 0; k < ns; k++) seed[k].b = fmin(seed[k].b * 2.0 + 5.0, 150.0);
+      dt_analysis_out again;
+      int st2 = fit_with(a, &base, seed, ns, &again, &fe);
+      if (st2 == DT_OK || st2 == DT_ENOCONV) {
+        best = again;
+        best_st = st2;
+      }
+    }
+    if (best_st != DT_OK && best_st != DT_ENOCONV) {
+      if (e) *e = fe;
+      return best_st;
+    }
+  } else {
+    /* no components: the zero-component "fit" gives chi2 and BIC */
+    best_st = dt_analysis_run(a, &base, &best, &fe);
+    if (best_st != DT_OK) {
+      if (e) *e = fe;
+      return best_st;
+    }
+  }
+  int grow = want ? ns < want : (ns > 0 && op.nseed == 0);
+  while (grow && best_st == DT_OK && best.fit.ncomp < (want ? want : op.max_comp)) {
+    /* the analysis holds the state of `best` (the last successful run) */
+    dt_component next[DT_MAX_COMP];
+    size_t nc = best.fit.ncomp;
+    memcpy(next, best.fit.comp, nc * sizeof next[0]);
+    if (!residual_seed(&c, &next[nc])) {
+      if (!want) break;
+      next[nc].logN = nc ? best.fit.comp[0].logN - 0.5 : 11.0;
+      next[nc].b = fmax(c.fwhm / 3.0, 5.0);
+      next[nc].v = 0.5 * (j->vlo + j->vhi);
+    }
+    dt_analysis_out trial;
+    int ts = fit_with(a, &base, next, nc + 1, &trial, &fe);
+    int accept = ts == DT_OK && (want || trial.fit.bic < best.fit.bic - op.bic_min);
+    if (!accept) {
+      if (want) {   /* a fixed number: keep the attempt even if it failed */
+        best = trial;
+        best_st = ts;
+      }
+      break;
+    }
+    best = trial;
+    best_st = ts;
+  }
+  /* make sure the analysis holds the state we report */
+  if (best.fit.ncomp > 0) {
+    dt_judgement fin = base;
+    fin.ncomp = best.fit.ncomp;
+    memcpy(fin.comp, best.fit.comp, fin.ncomp * sizeof fin.comp[0]);
+    fin.has_fit = 1;
+    fin.fit = best.fit;
+    dt_analysis_out tmp;
+    if (dt_analysis_eval(a, &fin, &tmp, NULL) == DT_OK) {
+      tmp.fit = best.fit;
+      tmp.fit_status = best.fit_status;
+      tmp.fit_info = best.fit_info;
+      tmp.fitted = 1;
+      best = tmp;
+    }
+  }
+  o->an = best;
+
+  /* 5. verdict */
+  const char *why;
+  char buf[64];
+  if (best_st == DT_ENOCONV) {
+    o->suggested = DT_VERDICT_UNSURE;
+    why = "fit did not converge";
+  } else if (nconf > 0) {
+    if (best.fit.dof > 0 && best.fit.chi2_red > POOR_CHI2) {
+      o->suggested = DT_VERDICT_UNSURE;
+      snprintf(buf, sizeof buf, "poor fit (chi2_red %.1f)", best.fit.chi2_red);
+      why = buf;
+    } else {
+      o->suggested = DT_VERDICT_DETECTED;
+      why = "doublet confirmed";
+    }
+  } else if (odd) {
+    why = "implausible doublet ratio";
+  } else if (weak || weak_only) {
+    why = "single line, no doublet partner";
+  } else {
+    o->suggested = DT_VERDICT_NOT_DETECTED;
+    why = n0 > 0 ? "no confirmed absorption" : "no significant absorption";
+  }
+  snprintf(o->reason, sizeof o->reason, "%s", why);
+
+  /* 6. the judgement takes the components and the fit */
+  j->ncomp = best.fit.ncomp;
+  memcpy(j->comp, best.fit.comp, j->ncomp * sizeof j->comp[0]);
+  memset(j->frozen, 0, sizeof j->frozen);
+  j->fit = best.fit;
+  j->has_fit = 1;
+  if (best_st != DT_OK) {
+    dt_err_set(e, best_st, "fit", "%s", fe.what[0] ? fe.what : "the fit did not converge");
+    return best_st;
+  }
+  return DT_OK;
+}

@@ -1,0 +1,111 @@
+/* Timing of the doublet model: one evaluation of flux + Jacobian for the
+ * benchmark configuration (Na I, 660 pixels of 0.1 A from 5862 A, R = 20000,
+ * oversampling 5, two components drawn in 11.3 < logN < 12.8, 3 < b < 15,
+ * one near 0 and one near -220 km/s), for several tau cuts, and how the
+ * time grows with pixels and components.  Prints medians in microseconds.
+ *
+ *   cc -std=c11 -O2 -Iinclude -D_POSIX_C_SOURCE=200809L tests/bench/bench_model.c \
+ *      build/libdoubletty.a $(pkg-config --libs gsl cfitsio libcerf libcrypto) -lm
+ */
+#include "doubletty/atomic.h"
+#include "doubletty/model.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+static double now_us(void) {
+  struct timespec t;
+  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t); /* CPU time: robust to a busy machine */
+  return t.tv_sec * 1e6 + t.tv_nsec * 1e-3;
+}
+
+static int cmpd(const void *a, const void *b) {
+  double x = *(const double *)a, y = *(const double *)b;
+  return (x > y) - (x < y);
+}
+
+/* A small deterministic generator so the bench needs nothing else. */
+static double urand(unsigned long long *s) {
+  *s = *s * 6364136223846793005ULL + 1442695040888963407ULL;
+  return (double)(*s >> 11) / 9007199254740992.0;
+}
+
+static double bench(const dt_doublet *d, size_t npix, size_t ncomp, double tau_cut, int with_jac,
+                    int *nrep_out) {
+  double *wave = malloc(npix * sizeof *wave);
+  double *flux = malloc(npix * sizeof *flux);
+  double *jac = malloc(npix * 3 * DT_MAX_COMP * sizeof *jac);
+  double start = 5895.0 - 0.05 * npix;
+  for (size_t i = 0; i < npix; i++) wave[i] = start + 0.1 * i;
+  dt_model_config cfg = {.doublet = d, .resolution = 20000.0, .oversample = 5, .tau_cut = tau_cut};
+  dt_err e;
+  dt_model *m = dt_model_alloc(wave, npix, &cfg, DT_MAX_COMP, &e);
+  if (!m) {
+    fprintf(stderr, "bench: %s\n", e.what);
+    exit(1);
+  }
+  enum { NSET = 64, NREP = 40 };
+  static double t[NSET * NREP];
+  unsigned long long seed = 20261202;
+  int nt = 0;
+  for (int s = 0; s < NSET; s++) {
+    dt_component c[DT_MAX_COMP];
+    for (size_t k = 0; k < ncomp; k++) {
+      c[k].logN = 11.3 + 1.5 * urand(&seed);
+      c[k].b = 3.0 + 12.0 * urand(&seed);
+      c[k].v = -220.0 * (k % 2) - 60.0 * (double)(k / 2) + 60.0 * (urand(&seed) - 0.5);
+    }
+    for (int r = 0; r < NREP; r++) {
+      c[0].v += 1e-3; /* new parameters each time */
+      double t0 = now_us();
+      dt_model_eval(m, c, ncomp, flux, with_jac == 1 ? jac : NULL, 3 * DT_MAX_COMP);
+      if (with_jac == 2) dt_model_eval(m, c, ncomp, flux, jac, 3 * DT_MAX_COMP);
+      t[nt++] = now_us() - t0;
+    }
+  }
+  qsort(t, (size_t)nt, sizeof t[0], cmpd);
+  dt_model_free(m);
+  free(wave);
+  free(flux);
+  free(jac);
+  *nrep_out = nt;
+  return t[nt / 2];
+}
+
+int main(int argc, char **argv) {
+  const char *table = argc > 1 ? argv[1] : "share/doubletty/atomic.dat";
+  dt_atomic *at;
+  dt_err e;
+  if (dt_atomic_load(table, &at, &e) != DT_OK) {
+    fprintf(stderr, "bench: %s: %s %s\n", table, e.where, e.what);
+    return 1;
+  }
+  const dt_doublet *d = dt_atomic_find(at, "NaI");
+  int nrep;
+  printf("doublet model, Na I, R = 20000, 0.1 A pixels, oversample 5 (median of evaluations)\n");
+  printf("flux: model only; flux+jac: model and Jacobian at new parameters; step: model at new\n"
+         "parameters then the Jacobian at the same ones (one solver iteration)\n");
+  printf("%-8s %6s %5s %12s %14s %10s\n", "tau_cut", "pixels", "comp", "flux [us]", "flux+jac [us]",
+         "step [us]");
+  const double cuts[] = {1e-7, 1e-6, 1e-5, 1e-4};
+  for (size_t c = 0; c < sizeof cuts / sizeof cuts[0]; c++) {
+    double a = bench(d, 660, 2, cuts[c], 0, &nrep);
+    double b = bench(d, 660, 2, cuts[c], 1, &nrep);
+    double st = bench(d, 660, 2, cuts[c], 2, &nrep);
+    printf("%-8.0e %6d %5d %12.1f %14.1f %10.1f\n", cuts[c], 660, 2, a, b, st);
+  }
+  printf("growth with pixels and components (default tau cut %g):\n", DT_MODEL_TAU_CUT);
+  const size_t pix[] = {200, 660, 2000, 6000};
+  const size_t nc[] = {1, 2, 4, 8};
+  for (size_t p = 0; p < 4; p++)
+    for (size_t k = 0; k < 4; k++) {
+      double a = bench(d, pix[p], nc[k], 0.0, 0, &nrep);
+      double b = bench(d, pix[p], nc[k], 0.0, 1, &nrep);
+      double st = bench(d, pix[p], nc[k], 0.0, 2, &nrep);
+      printf("%-8s %6zu %5zu %12.1f %14.1f %10.1f\n", "default", pix[p], nc[k], a, b, st);
+    }
+  dt_atomic_free(at);
+  return 0;
+}
