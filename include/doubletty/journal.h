@@ -104,6 +104,12 @@ int dt_journal_open(const char *path, dt_journal_mode mode, const char *user,
                     dt_journal **out, dt_err *e);
 void dt_journal_close(dt_journal *j);
 
+/* Replay a session file's bytes in memory (buf[0..len), only read) as a
+ * read-only session: the same entries, warnings and errors as
+ * dt_journal_open(..., DT_JOURNAL_READ_ONLY, ...) on a file holding these
+ * bytes.  dt_journal_path gives "(memory)". */
+int dt_journal_open_mem(const void *buf, size_t len, dt_journal **out, dt_err *e);
+
 /* Record one change: action a was applied to target t, giving the state
  * *after (whose fit, for a DT_ACT_FIT, is the action's result).  meas (may be
  * NULL) are the measurements for that state.  The line is written with one
@@ -201,6 +207,9 @@ typedef struct dt_journal_reader dt_journal_reader;
 /* Open a session file for reading and check its header line (DT_EFORMAT,
  * DT_EVERSION, DT_EIO as for dt_journal_open). */
 int dt_journal_reader_open(const char *path, dt_journal_reader **out, dt_err *e);
+/* The same on a session file's bytes in memory; buf must stay valid and
+ * unchanged until dt_journal_reader_close. */
+int dt_journal_reader_open_mem(const void *buf, size_t len, dt_journal_reader **out, dt_err *e);
 /* Next record.  DT_OK: *rec filled.  DT_ENOTFOUND: end of file.
  * DT_EFORMAT: this line is damaged or incomplete and was skipped (e says
  * which line and why); reading may continue.  DT_EIO: read error (stop). */

@@ -87,6 +87,13 @@ typedef struct dt_read_opts {
 int dt_spectrum_read(const char *path, const dt_read_opts *opts,
                      dt_spectrum **out, dt_err *e);
 
+/* Read one spectrum from a file's bytes in memory (buf[0..len), only read):
+ * the same spectrum, or the same error, as dt_spectrum_read on a file
+ * holding these bytes.  There is no "[ext]" selector; opts->hdu and
+ * opts->row choose (opts may be NULL). */
+int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
+                         dt_spectrum **out, dt_err *e);
+
 /* Number of spectra in a file: rows of a multi-row table, otherwise 1. */
 int dt_spectrum_count(const char *path, const dt_read_opts *opts,
                       long *count, dt_err *e);

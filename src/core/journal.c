@@ -56,6 +56,8 @@
  * last line (no newline at the end: a write cut short) is skipped with a
  * warning; a writer first ends it with a newline so that new records start on
  * a line of their own (the damaged line then stays, skipped, in the record).
+ * The same reading works on a session file's bytes in memory
+ * (dt_journal_reader_open_mem, dt_journal_open_mem).
  *
  * WRITING.  One writer at a time (flock on the session file; a refused
  * second writer is told the holder's process id and user from /proc/locks
@@ -944,6 +946,28 @@ static int read_header(dt_journal_reader *r, dt_err *e) {
   return DT_OK;
 }
 
+/* A reader of a session file's bytes in memory (through a stdio stream). */
+int dt_journal_reader_open_mem(const void *buf, size_t len, dt_journal_reader **out, dt_err *e) {
+  *out = NULL;
+  if (!buf && len) return dt_err_set(e, DT_EINVAL, NULL, "no bytes to read");
+  dt_journal_reader *r = calloc(1, sizeof *r);
+  if (!r) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  /* fmemopen cannot open zero bytes: an empty file then reads from "/dev/null" */
+  r->f = len ? fmemopen((void *)buf, len, "r") : fopen("/dev/null", "r");
+  if (!r->f) {
+    int err = errno;
+    free(r);
+    return dt_err_set(e, DT_EIO, NULL, "cannot read from memory: %s", strerror(err));
+  }
+  int rc = read_header(r, e);
+  if (rc != DT_OK) {
+    dt_journal_reader_close(r);
+    return rc;
+  }
+  *out = r;
+  return DT_OK;
+}
+
 int dt_journal_reader_open(const char *path, dt_journal_reader **out, dt_err *e) {
   *out = NULL;
   dt_journal_reader *r = calloc(1, sizeof *r);
@@ -1159,10 +1183,9 @@ static int replay(dt_journal *j, const dt_journal_record *rec) {
   return DT_OK;
 }
 
-static int load(dt_journal *j, dt_err *e) {
-  dt_journal_reader *r;
-  int rc = dt_journal_reader_open(j->path, &r, e);
-  if (rc != DT_OK) return rc;
+/* Replay every record of an opened reader into j, then close the reader. */
+static int load_from(dt_journal *j, dt_journal_reader *r, dt_err *e) {
+  int rc;
   dt_journal_record *rec = malloc(sizeof *rec);
   if (!rec) {
     dt_journal_reader_close(r);
@@ -1193,6 +1216,13 @@ static int load(dt_journal *j, dt_err *e) {
   free(rec);
   dt_journal_reader_close(r);
   return rc;
+}
+
+static int load(dt_journal *j, dt_err *e) {
+  dt_journal_reader *r;
+  int rc = dt_journal_reader_open(j->path, &r, e);
+  if (rc != DT_OK) return rc;
+  return load_from(j, r, e);
 }
 
 /* ---------- open / close ---------- */
@@ -1337,6 +1367,26 @@ static int open_rw(dt_journal *j, dt_err *e) {
       }
     }
   }
+  return DT_OK;
+}
+
+int dt_journal_open_mem(const void *buf, size_t len, dt_journal **out, dt_err *e) {
+  *out = NULL;
+  dt_journal *j = calloc(1, sizeof *j);
+  if (!j) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  j->fd = -1;
+  j->ro = 1;
+  j->path = strdup("(memory)");
+  copy_str(j->user, sizeof j->user, "unknown");
+  dt_journal_reader *r = NULL;
+  int rc = j->path ? dt_journal_reader_open_mem(buf, len, &r, e)
+                   : dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  if (rc == DT_OK) rc = load_from(j, r, e);
+  if (rc != DT_OK) {
+    dt_journal_close(j);
+    return rc;
+  }
+  *out = j;
   return DT_OK;
 }
 

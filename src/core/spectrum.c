@@ -6,6 +6,7 @@
  * layout shares: wavelengths finite and strictly monotonic (a decreasing
  * spectrum is reversed), masks for non-finite flux and bad uncertainties, an
  * estimated sigma when the file has none, and at least one usable pixel.
+ * dt_spectrum_read_mem does the same for a file's bytes already in memory.
  * The summaries used by `doubletty info` (median S/N, pixel size) live here
  * too. */
 #include "doubletty/spectrum.h"
@@ -309,19 +310,8 @@ static int split_path(const char *path, char **base, char **sel) {
 
 typedef enum { KIND_FITS, KIND_TEXT } file_kind;
 
-/* Open the file and decide how to read it from its first bytes. */
-static int sniff(const char *file, file_kind *kind, dt_err *e) {
-  struct stat st;
-  if (stat(file, &st) != 0)
-    return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  if (S_ISDIR(st.st_mode)) return dt_err_set(e, DT_EIO, NULL, "is a directory, not a spectrum file");
-  FILE *fp = fopen(file, "rb");
-  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  unsigned char head[4096];
-  size_t got = fread(head, 1, sizeof head, fp);
-  int err = ferror(fp);
-  fclose(fp);
-  if (err) return dt_err_set(e, DT_EIO, NULL, "cannot read: %s", strerror(errno));
+/* Decide how to read a file from its first bytes head[0..got). */
+static int sniff_bytes(const unsigned char *head, size_t got, file_kind *kind, dt_err *e) {
   if (got == 0) return dt_err_set(e, DT_EFORMAT, NULL, "empty file");
   static const struct { const char *magic; size_t len; const char *name; } packed[] = {
       {"\x1f\x8b", 2, "gzip"},        {"\x1f\x9d", 2, "compress"},
@@ -348,6 +338,24 @@ static int sniff(const char *file, file_kind *kind, dt_err *e) {
   return DT_OK;
 }
 
+enum { SNIFF_BYTES = 4096 }; /* how much of the start sniff_bytes looks at */
+
+/* Open the file and decide how to read it from its first bytes. */
+static int sniff(const char *file, file_kind *kind, dt_err *e) {
+  struct stat st;
+  if (stat(file, &st) != 0)
+    return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
+  if (S_ISDIR(st.st_mode)) return dt_err_set(e, DT_EIO, NULL, "is a directory, not a spectrum file");
+  FILE *fp = fopen(file, "rb");
+  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
+  unsigned char head[SNIFF_BYTES];
+  size_t got = fread(head, 1, sizeof head, fp);
+  int err = ferror(fp);
+  fclose(fp);
+  if (err) return dt_err_set(e, DT_EIO, NULL, "cannot read: %s", strerror(errno));
+  return sniff_bytes(head, got, kind, e);
+}
+
 static int parse_sel(const char *sel, dt_hdu_sel *hs, dt_err *e) {
   hs->number = 0;
   hs->name = NULL;
@@ -368,6 +376,20 @@ static int parse_sel(const char *sel, dt_hdu_sel *hs, dt_err *e) {
   return DT_OK;
 }
 
+/* The options against the kind of file and the HDU selector of its name. */
+static int check_opts(const dt_read_opts *opts, file_kind kind, dt_hdu_sel *hs, dt_err *e) {
+  if (opts && opts->hdu > 0) {
+    hs->number = opts->hdu;
+    hs->name = NULL;
+  }
+  if (opts && opts->hdu < 0) return dt_err_set(e, DT_EINVAL, NULL, "HDU %d: HDUs count from 1", opts->hdu);
+  if (opts && opts->row < 0) return dt_err_set(e, DT_EINVAL, NULL, "row %ld: rows count from 1", opts->row);
+  if (kind == KIND_TEXT && (hs->number || hs->name))
+    return dt_err_set(e, DT_EINVAL, NULL,
+                      "an extension selector applies to FITS files; this is a text file");
+  return DT_OK;
+}
+
 static int prepare(const char *path, const dt_read_opts *opts, char **base, char **sel,
                    file_kind *kind, dt_hdu_sel *hs, dt_err *e) {
   dt_err_clear(e);
@@ -377,16 +399,7 @@ static int prepare(const char *path, const dt_read_opts *opts, char **base, char
   if (rc != DT_OK) return rc;
   rc = parse_sel(*sel, hs, e);
   if (rc != DT_OK) return rc;
-  if (opts && opts->hdu > 0) {
-    hs->number = opts->hdu;
-    hs->name = NULL;
-  }
-  if (opts && opts->hdu < 0) return dt_err_set(e, DT_EINVAL, NULL, "HDU %d: HDUs count from 1", opts->hdu);
-  if (opts && opts->row < 0) return dt_err_set(e, DT_EINVAL, NULL, "row %ld: rows count from 1", opts->row);
-  if (*kind == KIND_TEXT && (hs->number || hs->name))
-    return dt_err_set(e, DT_EINVAL, NULL,
-                      "an extension selector applies to FITS files; this is a text file");
-  return DT_OK;
+  return check_opts(opts, *kind, hs, e);
 }
 
 int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **out, dt_err *e) {
@@ -407,6 +420,30 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **o
   }
   free(base);
   free(sel);
+  if (rc != DT_OK && *out) {
+    dt_spectrum_free(*out);
+    *out = NULL;
+  }
+  return rc;
+}
+
+int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
+                         dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  dt_err_clear(e);
+  if (!buf && len) return dt_err_set(e, DT_EINVAL, NULL, "no bytes to read");
+  file_kind kind = KIND_TEXT;
+  dt_hdu_sel hs = {0, NULL};
+  int rc = sniff_bytes(buf, len < SNIFF_BYTES ? len : SNIFF_BYTES, &kind, e);
+  if (rc == DT_OK) rc = check_opts(opts, kind, &hs, e);
+  if (rc == DT_OK) {
+    if (kind == KIND_FITS)
+      rc = dt_spectrum_read_fits_mem(buf, len, &hs, opts, out, e);
+    else if (opts && opts->row > 1)
+      rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
+    else
+      rc = dt_spectrum_read_text_mem(buf, len, out, e);
+  }
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);
     *out = NULL;

@@ -12,7 +12,8 @@
  *     (a row per pixel), vector or variable-length columns one spectrum per
  *     row.
  * Air wavelengths are converted to vacuum (airvac.c); everything else that
- * all layouts share is done by dt_spectrum_finish (spectrum.c). */
+ * all layouts share is done by dt_spectrum_finish (spectrum.c).  A file can
+ * also be read from its bytes in memory (cfitsio's memory driver). */
 #include <ctype.h>
 #include <math.h>
 #include <stdio.h>
@@ -28,6 +29,7 @@
 typedef struct fctx {
   fitsfile *f;
   const char *file;
+  const unsigned char *mem; /* the file's bytes when read from memory, else NULL */
   long long fsize;
   /* values from the primary header, used when the spectrum's HDU lacks them */
   double prim_res;
@@ -166,11 +168,16 @@ static int check_complete(fctx *c, int hdu, dt_err *e) {
 static int check_tail(fctx *c, int hdu, long long last_end, dt_err *e) {
   if (last_end <= 0 || c->fsize <= last_end) return DT_OK;
   char head[8] = {0};
-  FILE *fp = fopen(c->file, "rb");
-  if (!fp) return DT_OK;
   size_t got = 0;
-  if (fseeko(fp, (off_t)last_end, SEEK_SET) == 0) got = fread(head, 1, sizeof head, fp);
-  fclose(fp);
+  if (c->mem) {
+    got = c->fsize - last_end < (long long)sizeof head ? (size_t)(c->fsize - last_end) : sizeof head;
+    memcpy(head, c->mem + last_end, got);
+  } else {
+    FILE *fp = fopen(c->file, "rb");
+    if (!fp) return DT_OK;
+    if (fseeko(fp, (off_t)last_end, SEEK_SET) == 0) got = fread(head, 1, sizeof head, fp);
+    fclose(fp);
+  }
   if (got == sizeof head && !memcmp(head, "XTENSION", 8)) {
     char where[32];
     snprintf(where, sizeof where, "HDU %d", hdu);
@@ -255,13 +262,23 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
   return dt_err_set(e, DT_EFORMAT, NULL, "no HDU holds a spectrum (no image data, no table rows)");
 }
 
-static int open_fits(const char *file, fctx *c, dt_err *e) {
+/* Open the file (file != NULL) or the bytes mem[0..len) read-only. */
+static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_err *e) {
   memset(c, 0, sizeof *c);
   c->file = file;
-  struct stat st_;
-  c->fsize = stat(file, &st_) == 0 ? (long long)st_.st_size : 0;
   int st = 0;
-  fits_open_diskfile(&c->f, file, READONLY, &st);
+  if (file) {
+    struct stat st_;
+    c->fsize = stat(file, &st_) == 0 ? (long long)st_.st_size : 0;
+    fits_open_diskfile(&c->f, file, READONLY, &st);
+  } else {
+    /* cfitsio only reads a READONLY memory file: the buffer is not changed */
+    void *p = (void *)mem;
+    size_t size = len;
+    c->mem = mem;
+    c->fsize = (long long)len;
+    fits_open_memfile(&c->f, "memory.fits", READONLY, &p, &size, 0, NULL, &st);
+  }
   if (st) {
     c->f = NULL;
     char txt[FLEN_STATUS];
@@ -764,14 +781,11 @@ static int read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out
 
 /* ---- entry points ---------------------------------------------------------- */
 
-int dt_spectrum_read_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
-                          dt_spectrum **out, dt_err *e) {
-  *out = NULL;
-  fctx c;
-  int rc = open_fits(file, &c, e);
-  if (rc) return rc;
+/* Read the spectrum from an opened file, then close it. */
+static int read_opened(fctx *c, const dt_hdu_sel *sel, const dt_read_opts *o, dt_spectrum **out,
+                       dt_err *e) {
   int hdu = 0, type = 0;
-  rc = select_hdu(&c, sel, &hdu, &type, e);
+  int rc = select_hdu(c, sel, &hdu, &type, e);
   if (!rc) {
     if (type == IMAGE_HDU) {
       if (o && o->row > 1) {
@@ -779,21 +793,39 @@ int dt_spectrum_read_fits(const char *file, const dt_hdu_sel *sel, const dt_read
         snprintf(where, sizeof where, "HDU %d", hdu);
         rc = dt_err_set(e, DT_EINVAL, where, "row %ld requested, but this HDU is an image", o->row);
       } else {
-        rc = read_image(&c, hdu, out, e);
+        rc = read_image(c, hdu, out, e);
       }
     } else {
-      rc = read_table(&c, hdu, o, out, e);
+      rc = read_table(c, hdu, o, out, e);
     }
   }
-  close_fits(&c);
+  close_fits(c);
   return rc;
+}
+
+int dt_spectrum_read_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
+                          dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  fctx c;
+  int rc = open_fits(file, NULL, 0, &c, e);
+  if (rc) return rc;
+  return read_opened(&c, sel, o, out, e);
+}
+
+int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
+                              const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  fctx c;
+  int rc = open_fits(NULL, buf, len, &c, e);
+  if (rc) return rc;
+  return read_opened(&c, sel, o, out, e);
 }
 
 int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                            long *count, dt_err *e) {
   *count = 0;
   fctx c;
-  int rc = open_fits(file, &c, e);
+  int rc = open_fits(file, NULL, 0, &c, e);
   if (rc) return rc;
   int hdu = 0, type = 0;
   rc = select_hdu(&c, sel, &hdu, &type, e);

@@ -26,6 +26,13 @@ int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_rea
                            long *count, dt_err *e);
 int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e);
 
+/* The same readers on a file's bytes in memory (buf is only read, and
+ * must stay valid during the call); the results, errors included, are
+ * those of the file readers on a file holding these bytes. */
+int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
+                              const dt_read_opts *o, dt_spectrum **out, dt_err *e);
+int dt_spectrum_read_text_mem(const void *buf, size_t len, dt_spectrum **out, dt_err *e);
+
 /* Wavelength unit -> factor to Angstrom.  Empty/NULL = Angstrom.  Returns 0
  * and fills *scale and the canonical name, or -1 for an unknown unit. */
 int dt_spectrum_unit_scale(const char *unit, double *scale, char *canon, size_t canon_size);

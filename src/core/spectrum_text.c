@@ -3,7 +3,8 @@
  * Fields are separated by blanks, tabs or commas (so CSV works too); '#'
  * starts a comment; blank lines are skipped; a first line of column names
  * ("wave,flux,err") is skipped.  Wavelengths are vacuum Angstrom.  Every
- * line must have the same number of fields.  Errors name the line. */
+ * line must have the same number of fields.  Errors name the line.  The
+ * same parser reads a file or bytes in memory (through a stdio stream). */
 #include <ctype.h>
 #include <errno.h>
 #include <math.h>
@@ -76,10 +77,10 @@ static int is_number(const char *t, double *v) {
   return end != t && *end == '\0';
 }
 
-int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e) {
+/* Read a text spectrum from an open stream (NULL = no bytes at all); the
+ * stream is closed here. */
+static int read_text_stream(FILE *fp, dt_spectrum **out, dt_err *e) {
   *out = NULL;
-  FILE *fp = fopen(file, "r");
-  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
   growing g = {{NULL}, NULL, 0, 0};
   char *buf = NULL;
   size_t bufcap = 0;
@@ -88,7 +89,7 @@ int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e) {
   int ncol = 0, header_skipped = 0;
   int rc = DT_OK;
   char where[32];
-  while ((len = getline(&buf, &bufcap, fp)) != -1) {
+  while (fp && (len = getline(&buf, &bufcap, fp)) != -1) {
     lineno++;
     snprintf(where, sizeof where, "line %ld", lineno);
     if (memchr(buf, '\0', (size_t)len)) {
@@ -147,8 +148,9 @@ int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e) {
     g.line[g.n] = lineno;
     g.n++;
   }
-  if (rc == DT_OK && ferror(fp)) rc = dt_err_set(e, DT_EIO, NULL, "read error: %s", strerror(errno));
-  fclose(fp);
+  if (rc == DT_OK && fp && ferror(fp))
+    rc = dt_err_set(e, DT_EIO, NULL, "read error: %s", strerror(errno));
+  if (fp) fclose(fp);
   free(buf);
   if (rc == DT_OK && g.n == 0)
     rc = dt_err_set(e, DT_EFORMAT, NULL, "no data lines (expected columns: wave flux [sigma [mask]])");
@@ -175,4 +177,20 @@ int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e) {
   }
   *out = s;
   return DT_OK;
+}
+
+int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  FILE *fp = fopen(file, "r");
+  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
+  return read_text_stream(fp, out, e);
+}
+
+int dt_spectrum_read_text_mem(const void *buf, size_t len, dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  FILE *fp = NULL;
+  /* fmemopen reads the bytes in place; a zero-length buffer is an empty file */
+  if (len > 0 && !(fp = fmemopen((void *)buf, len, "r")))
+    return dt_err_set(e, DT_ENOMEM, NULL, "cannot read from memory: %s", strerror(errno));
+  return read_text_stream(fp, out, e);
 }
