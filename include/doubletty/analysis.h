@@ -35,6 +35,8 @@
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
 
+#define DT_ANALYSIS_CONT_MARGIN 1500.0  /* km/s */
+
 typedef struct dt_analysis_opts {
   size_t joint_cont;    /* 0: the continuum is fixed during the fit; k > 0:
                            k multiplicative Legendre coefficients are fitted
@@ -44,6 +46,11 @@ typedef struct dt_analysis_opts {
   double limit_nsigma;  /* significance of upper limits (default 3) */
   double int_vlo, int_vhi; /* measurement (integration) window [km/s];
                               int_vlo >= int_vhi: the judgement's vlo..vhi */
+  double cont_margin_kms; /* automatic continuum: fitted over the selection
+                              widened by this much on each side [km/s], with
+                              each line's velocity window excluded (default
+                              DT_ANALYSIS_CONT_MARGIN; 0: only the selection,
+                              excluding the continuum module's default band) */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
 } dt_analysis_opts;

@@ -33,7 +33,7 @@ typedef struct model_key {
 
 typedef struct cont_key {
   const dt_doublet *doublet;
-  double vsys;
+  double vsys, vlo, vhi, margin;
   int order;
   size_t nwin;
   dt_window win[DT_MAX_WINDOWS];
@@ -73,6 +73,7 @@ struct dt_analysis {
 void dt_analysis_opts_init(dt_analysis_opts *o) {
   memset(o, 0, sizeof *o);
   o->limit_nsigma = 3.0;
+  o->cont_margin_kms = DT_ANALYSIS_CONT_MARGIN;
 }
 
 dt_analysis *dt_analysis_alloc(const dt_spectrum *s, const dt_atomic *t) {
@@ -280,6 +281,7 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
   cont_key ck;
   memset(&ck, 0, sizeof ck);
   ck.doublet = d; ck.vsys = j->vsys; ck.order = j->cont_order; ck.i0 = i0; ck.n = n;
+  ck.vlo = j->vlo; ck.vhi = j->vhi; ck.margin = a->opts.cont_margin_kms;
   ck.nwin = j->nwin < DT_MAX_WINDOWS ? j->nwin : DT_MAX_WINDOWS;
   memcpy(ck.win, j->win, ck.nwin * sizeof ck.win[0]);
   if (!a->have_cont || memcmp(&ck, &a->ckey, sizeof ck) != 0) {
@@ -293,8 +295,19 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
       }
       a->cont_order_used = -1;
     } else {
-      /* the region: the selection, widened to take in the user windows */
+      /* The region: the selection, widened to take in the user windows.
+       * The automatic continuum needs the spectrum around the lines: the
+       * selection widened by the margin on both sides, with each line's
+       * whole velocity window excluded (absorption may be anywhere in it;
+       * sigma clipping takes care of anything else). */
       size_t r0 = i0, r1 = i1;
+      if (ck.nwin == 0 && ck.margin > 0) {
+        double f = ck.margin / DT_C_KMS;
+        r0 = dt_spectrum_index(s, s->wave[i0] * (1.0 - f));
+        r1 = dt_spectrum_index(s, s->wave[i1 - 1] * (1.0 + f));
+        if (r0 > i0) r0 = i0;
+        if (r1 < i1) r1 = i1;
+      }
       for (size_t k = 0; k < ck.nwin; k++) {
         size_t w0 = dt_spectrum_index(s, ck.win[k].lo), w1 = dt_spectrum_index(s, ck.win[k].hi);
         if (w1 <= w0) continue;
@@ -311,6 +324,10 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
       co.win = ck.win;
       co.doublet = d;
       co.vsys = j->vsys;
+      if (ck.margin > 0) {
+        co.exclude_lo = j->vlo;
+        co.exclude_hi = j->vhi;
+      }
       co.allow_lower = 1;
       dt_cont_result cr;
       st = dt_cont_fit(a->cw, s, r0, r1, &co, a->rcont, a->rerr, NULL, &cr, &a->cont_e);

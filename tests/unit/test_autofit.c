@@ -202,6 +202,40 @@ static void test_errors(const dt_atomic *t, gsl_rng *r) {
   unmake(&sp);
 }
 
+/* Absorption near the edge of the velocity window (here gas of a foreground
+ * galaxy 450 km/s below the target's rest frame) must not be absorbed into
+ * an automatic continuum: the continuum is fitted outside the lines' whole
+ * windows (common practice: continuum regions free of any absorption that
+ * is searched for), so it stays at the true level under the line and the
+ * first pass finds the component. */
+static void test_window_edge(const dt_atomic *t, gsl_rng *r) {
+  spec sp = make(t, 0.3, 4000);
+  dt_component c = {12.3, 8.0, -450.0};
+  fill(&sp, 0, &c, 1, 30.0, r);
+  dt_analysis *a = dt_analysis_alloc(sp.s, t);
+  dt_judgement j;
+  judgement(&j, 4000);
+  dt_autofit_out o;
+  int st = dt_autofit_run(a, &j, NULL, &o, NULL);
+  CHECK(st == DT_OK && o.suggested == DT_VERDICT_DETECTED,
+        "line 450 km/s off the rest frame is detected (status %d, verdict %d)", st,
+        (int)o.suggested);
+  int near = 0;
+  for (size_t k = 0; k < j.ncomp; k++) near |= fabs(j.comp[k].v - c.v) < 30.0;
+  CHECK(near, "a component within 30 km/s of %.0f km/s", c.v);
+  const double *w = dt_analysis_wave(a), *cont = dt_analysis_continuum(a);
+  double lc = dt_wavelength(c.v, 5891.5833, 0.0), worst = 0.0;
+  for (size_t i = 0; w && i < o.an.n; i++) {
+    if (fabs(w[i] - lc) > 1.0) continue;
+    double x = (w[i] - 5895.0) / 55.0, truth = 40.0 * (1.0 + 0.15 * x - 0.05 * x * x);
+    worst = fmax(worst, fabs(cont[i] / truth - 1.0));
+  }
+  CHECK(w && worst < 0.01, "continuum under the line within 1%% of the truth (worst %.4f)",
+        worst);
+  dt_analysis_free(a);
+  unmake(&sp);
+}
+
 int main(void) {
   dt_atomic *t = dt_atomic_new();
   CHECK(dt_atomic_parse(t, table, sizeof table - 1, NULL) == DT_OK, "atomic table");
@@ -211,6 +245,7 @@ int main(void) {
   test_detections(t, r);
   test_odd(t, r);
   test_errors(t, r);
+  test_window_edge(t, r);
   gsl_rng_free(r);
   dt_atomic_free(t);
   return dt_test_done();
