@@ -12,6 +12,13 @@ fi
 SOCK="dt-e2e-$$"
 T="tmux -L $SOCK -f /dev/null"
 trap '$T kill-server >/dev/null 2>&1; rm -rf "$TMP"' EXIT
+# Run the program as a user gets it: installed with `make install`.
+if make -C "$ROOT" -s install BUILD="$BUILD" PREFIX="$TMP/inst" >"$TMP/install.log" 2>&1; then
+  ok "make install into a fresh prefix"
+  DT=$TMP/inst/bin/doubletty
+else
+  bad "make install into a fresh prefix: $(tail -n 3 "$TMP/install.log")"
+fi
 KEYS=$("$DT" keys)
 export LANG=C.UTF-8 LC_ALL=C.UTF-8
 
