@@ -46,7 +46,6 @@ enum { EV_NONE = 0, EV_REDRAW = 1, EV_QUIT = 2 };
 #define STEP_LOGN 0.02
 #define STEP_LOGN_COARSE 0.2
 #define NEW_B 10.0          /* Doppler b of a new component [km/s] */
-#define REFIT_TOL 0.2       /* agreement of a resumed fit with its record [sigma] */
 
 void dt_inspect_opts_init(dt_inspect_opts *o) {
   memset(o, 0, sizeof *o);
@@ -378,7 +377,7 @@ static void load(dt_insp *s, size_t idx) {
     char why[160] = "";
     if (s->j.has_fit && s->j.fit.status == DT_OK && s->j.ncomp > 0) {
       analyse(s, 1);
-      if (s->an_ok && !dt_journal_check_refit(&s->j.fit, &s->out.fit, REFIT_TOL, why, sizeof why)) {
+      if (s->an_ok && !dt_journal_check_refit(&s->j.fit, &s->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
         dt_journal_set_flag(s->jn, s->key, 0, qe->row, DT_JFLAG_REFIT_MISMATCH, 1);
         say(s, DT_R_WARN, "a refit differs from the recorded fit: %s", why);
       }
