@@ -233,9 +233,12 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
   }
   fitsfile *f = NULL;
   int st = 0;
-  char name[4200];
-  snprintf(name, sizeof name, "!%s", path); /* the temporary file we made */
-  fits_create_file(&f, name, &st);
+  /* The temporary file we made (mkstemp) is replaced by cfitsio's own,
+   * under its literal name: fits_create_diskfile, because fits_create_file
+   * would read brackets, parentheses or a leading '!' in a user's file
+   * name as cfitsio's extended syntax and write to another file. */
+  unlink(path);
+  fits_create_diskfile(&f, path, &st);
   if (st) return fits_fail(st, e);
   fits_create_tbl(f, BINARY_TBL, 0, (int)NCOL, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
   char creator[64];

@@ -67,8 +67,12 @@
  * (ftruncate to the previous size) and the journal is marked failed: every
  * later append fails too, so nothing is dropped silently.  Before writing, the
  * journal checks that its path still names the file it holds open (a removed
- * or replaced session file fails the append).  Spectrum paths are only ever
- * recorded and compared, never opened, run or written. */
+ * or replaced session file fails the append; what the file held, still
+ * readable through the open descriptor, is first written back to the path
+ * if nothing is there, else beside it as PATH.rescued, so nothing recorded
+ * is lost -- and the same happens at close when no append came after the
+ * removal).  Spectrum paths are only ever recorded and compared, never
+ * opened, run or written. */
 #ifndef _XOPEN_SOURCE
 #define _XOPEN_SOURCE 700 /* realpath */
 #endif
@@ -106,6 +110,7 @@ struct dt_journal {
   int fd;
   int ro;
   int failed;
+  int live; /* opened for writing and holding the lock */
   dt_err err;
   dev_t dev;
   ino_t ino;
@@ -1411,12 +1416,25 @@ int dt_journal_open(const char *path, dt_journal_mode mode, const char *user, dt
     dt_journal_close(j);
     return rc;
   }
+  j->live = !j->ro;
   *out = j;
   return DT_OK;
 }
 
+static const char *rescue(dt_journal *j, char *out, size_t size, int *absent);
+
 void dt_journal_close(dt_journal *j) {
   if (!j) return;
+  if (j->live && !j->failed && j->fd >= 0) {
+    /* removed or replaced since the last append: keep what it held */
+    struct stat st;
+    if (stat(j->abspath ? j->abspath : j->path, &st) != 0 || st.st_dev != j->dev ||
+        st.st_ino != j->ino) {
+      char saved[4096];
+      int absent;
+      (void)rescue(j, saved, sizeof saved, &absent);
+    }
+  }
   if (j->fd >= 0) close(j->fd); /* releases both locks */
   for (size_t i = 0; i < j->nent; i++) {
     free((char *)j->ent[i]->target.path);
@@ -1431,6 +1449,44 @@ void dt_journal_close(dt_journal *j) {
 }
 
 /* ---------- append ---------- */
+
+/* The session file was removed or replaced while open.  What it held is
+ * still readable through the descriptor: write it back where it was when
+ * nothing is there now (*absent = 1), else beside it as PATH.rescued --
+ * never over an existing file -- so that no recorded judgement is lost.
+ * Returns out (the name written) or NULL. */
+static const char *rescue(dt_journal *j, char *out, size_t size, int *absent) {
+  const char *name = j->abspath ? j->abspath : j->path;
+  struct stat st;
+  *absent = stat(name, &st) != 0 && errno == ENOENT;
+  if ((size_t)snprintf(out, size, "%s%s", name, *absent ? "" : ".rescued") >= size) return NULL;
+  int fd = open(out, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0644);
+  if (fd < 0) return NULL;
+  char buf[16384];
+  off_t off = 0;
+  int ok = 1, err = 0;
+  for (;;) {
+    ssize_t k = pread(j->fd, buf, sizeof buf, off);
+    if (k < 0 && errno == EINTR) continue;
+    if (k <= 0) {
+      ok = k == 0;
+      break;
+    }
+    if (write_all(fd, buf, (size_t)k, &err) != 0) {
+      ok = 0;
+      break;
+    }
+    off += k;
+  }
+  if (ok && fsync(fd) != 0) ok = 0;
+  close(fd);
+  if (!ok) {
+    unlink(out);
+    return NULL;
+  }
+  sync_dir(out);
+  return out;
+}
 
 static int set_failed(dt_journal *j, dt_err *e, const char *fmt, const char *arg) {
   j->failed = DT_EIO;
@@ -1487,8 +1543,19 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
   /* the path must still name the file we hold */
   struct stat st, fst;
   if (stat(j->abspath ? j->abspath : j->path, &st) != 0 || st.st_dev != j->dev ||
-      st.st_ino != j->ino)
+      st.st_ino != j->ino) {
+    char saved[4096], what[4200];
+    int absent = 0;
+    if (rescue(j, saved, sizeof saved, &absent)) {
+      snprintf(what, sizeof what,
+               absent ? "the session file was removed while open; what it held was written "
+                        "back to %s (reopen it to go on)"
+                      : "the session file was replaced while open; what it held was saved as %s",
+               saved);
+      return set_failed(j, e, "%.190s", what);
+    }
     return set_failed(j, e, "the session file %s was removed or replaced", j->path);
+  }
   if (fstat(j->fd, &fst) != 0)
     return set_failed(j, e, "cannot stat the session file: %s", strerror(errno));
   int err = 0;

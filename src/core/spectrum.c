@@ -13,6 +13,7 @@
 
 #include <ctype.h>
 #include <errno.h>
+#include <fcntl.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -340,19 +341,41 @@ static int sniff_bytes(const unsigned char *head, size_t got, file_kind *kind, d
 
 enum { SNIFF_BYTES = 4096 }; /* how much of the start sniff_bytes looks at */
 
-/* Open the file and decide how to read it from its first bytes. */
+/* Open the file and decide how to read it from its first bytes.  Only a
+ * regular file is a spectrum: a named pipe or a device (a path in a list
+ * may name anything) would block the reader or never end, so it is refused
+ * -- and opened without waiting (O_NONBLOCK) to find out what it is. */
 static int sniff(const char *file, file_kind *kind, dt_err *e) {
+  int fd = open(file, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+  if (fd < 0) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
   struct stat st;
-  if (stat(file, &st) != 0)
-    return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  if (S_ISDIR(st.st_mode)) return dt_err_set(e, DT_EIO, NULL, "is a directory, not a spectrum file");
-  FILE *fp = fopen(file, "rb");
-  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
+  if (fstat(fd, &st) != 0) {
+    int err = errno;
+    close(fd);
+    return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(err));
+  }
+  if (!S_ISREG(st.st_mode)) {
+    close(fd);
+    return dt_err_set(e, DT_EIO, NULL, "%s, not a spectrum file",
+                      S_ISDIR(st.st_mode)    ? "is a directory"
+                      : S_ISFIFO(st.st_mode) ? "is a named pipe"
+                      : S_ISCHR(st.st_mode) || S_ISBLK(st.st_mode) ? "is a device"
+                                                                   : "is not a regular file");
+  }
   unsigned char head[SNIFF_BYTES];
-  size_t got = fread(head, 1, sizeof head, fp);
-  int err = ferror(fp);
-  fclose(fp);
-  if (err) return dt_err_set(e, DT_EIO, NULL, "cannot read: %s", strerror(errno));
+  size_t got = 0;
+  while (got < sizeof head) {
+    ssize_t k = read(fd, head + got, sizeof head - got);
+    if (k < 0 && errno == EINTR) continue;
+    if (k < 0) {
+      int err = errno;
+      close(fd);
+      return dt_err_set(e, DT_EIO, NULL, "cannot read: %s", strerror(err));
+    }
+    if (k == 0) break;
+    got += (size_t)k;
+  }
+  close(fd);
   return sniff_bytes(head, got, kind, e);
 }
 

@@ -13,7 +13,9 @@
  * restores the saved terminal modes with tcsetattr and writes the
  * terminal's "leave full-screen" strings with write(2) -- both
  * async-signal-safe -- before re-raising the signal.  SIGWINCH and SIGTSTP
- * are left to curses (a resize arrives as a key). */
+ * are left to curses (a resize arrives as a key).  A terminal that goes
+ * away without a SIGHUP (the key read fails, the input reports a hangup)
+ * counts as a SIGHUP. */
 #define NCURSES_WIDECHAR 1
 #include "term.h"
 
@@ -21,6 +23,7 @@
 #include <errno.h>
 #include <langinfo.h>
 #include <locale.h>
+#include <poll.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -232,13 +235,25 @@ void dt_term_size(int *w, int *h) {
   *h = LINES;
 }
 
+/* A read that waits for a key and fails without a signal: has the terminal
+ * gone (the connection closed without a SIGHUP reaching us, e.g. when this
+ * terminal is not our controlling one)?  Then it is a hangup; reading again
+ * would fail again at once, for ever. */
+static int terminal_gone(void) {
+  struct pollfd p = {STDIN_FILENO, POLLIN, 0};
+  return poll(&p, 1, 0) > 0 && (p.revents & (POLLHUP | POLLERR | POLLNVAL));
+}
+
 int dt_term_getkey(int timeout_ms) {
   if (!g_open) return DT_KEY_NONE;
   if (g_signal) return DT_KEY_NONE;
   wtimeout(stdscr, timeout_ms);
   wint_t ch;
   int rc = wget_wch(stdscr, &ch);
-  if (rc == ERR) return DT_KEY_NONE;
+  if (rc == ERR) {
+    if (timeout_ms < 0 && !g_signal && !g_headless && terminal_gone()) g_signal = SIGHUP;
+    return DT_KEY_NONE;
+  }
   if (rc == KEY_CODE_YES) {
     switch (ch) {
     case KEY_LEFT: return DT_KEY_LEFT;
