@@ -15,7 +15,7 @@ VERSION  := 0.1.0
 PKGS      := gsl cfitsio libcerf ncursesw libcrypto
 DEB_PKGS  := build-essential pkg-config libgsl-dev libcfitsio-dev libcerf-dev \
              libncurses-dev libssl-dev
-TEST_DEBS := python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind
+TEST_DEBS := python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time
 
 PKG_OK := $(shell pkg-config --exists $(PKGS) 2>/dev/null && echo yes)
 ifneq ($(PKG_OK),yes)
@@ -79,6 +79,20 @@ bench: $(BIN)
 sanitize:
 	$(MAKE) BUILD=build-san OPT="-O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
 	  LDFLAGS="-fsanitize=address,undefined" check
+
+# Coverage-guided fuzzing with libFuzzer (clang): the libraries are built
+# with coverage instrumentation and sanitizers into build-fuzz/, then
+# tests/fuzz/run links each tests/fuzz/fuzz_*.c and runs it for FUZZ_SECONDS
+# on its seed corpus (FUZZ_TARGETS="fits text" runs a subset).
+FUZZ_CC      ?= clang
+FUZZ_SECONDS ?= 60
+FUZZ_SAN     := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
+fuzz:
+	$(MAKE) BUILD=build-fuzz CC=$(FUZZ_CC) OPT="-O1 -g -fsanitize=fuzzer-no-link $(FUZZ_SAN)" \
+	  build-fuzz/libdoubletty.a build-fuzz/libdoubletty-ui.a
+	@FUZZ_CC="$(FUZZ_CC)" FUZZ_SECONDS="$(FUZZ_SECONDS)" FUZZ_TARGETS="$(FUZZ_TARGETS)" FUZZ_BUILD=build-fuzz \
+	  FUZZ_CFLAGS="$(CPPFLAGS) $(CSTD) $(WARN) -O1 -g $(FUZZ_SAN) $(shell pkg-config --cflags $(PKGS) 2>/dev/null)" \
+	  FUZZ_LIBS="$(LDLIBS)" sh tests/fuzz/run
 
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/doubletty $(DESTDIR)$(PREFIX)/share/man/man1
