@@ -9,7 +9,7 @@
  *    dy = (narrowest pixel, in ln lambda) / oversample, the first cell
  *    starting hw cells below the lower edge of the first pixel and the grid
  *    extending hw cells beyond the last pixel; each cell is represented by
- *    its centre;
+ *    its centre, or by its mean near lines narrower than the cells (below);
  *  - the LSF is a Gaussian of constant velocity FWHM (c/R or the FWHM in
  *    km/s), sampled at the cell centres k*dy, k = -hw..hw with
  *    hw = ceil(DT_MODEL_LSF_NSIGMA * sigma / dy), and normalised to sum 1;
@@ -18,6 +18,25 @@
  *    overlap with the pixel (so unequal pixels are handled).
  * Convolution and averaging are linear, so they are folded into one banded
  * matrix (row i = weights of the cells that reach pixel i), built once.
+ *
+ * Lines narrower than the cells.  Sampling exp(-tau) once per cell is the
+ * midpoint rule with step dy; for a line of Doppler width b (velocity) it
+ * is accurate only while c dy is below a fraction h of b (see sub_setup).
+ * Survey spectra have cells of 5-15 km/s and cold gas b of 0.3-3 km/s, so
+ * such a line is "narrow": every cell where it varies faster than the cell
+ * resolves (its Gaussian core, and its damping wings while they are curved
+ * on the scale of a cell) is represented by the mean of exp(-tau) over r
+ * equal sub-cells instead of its centre value, with r chosen per cell from
+ * what each narrow line nearby needs.  All lines (narrow or not) whose range
+ * reaches such a cell are evaluated at its sub-cell centres, so blends are
+ * exact; so are the derivatives (the cell mean of -exp(-tau) dtau/dp).  A
+ * cell mean alone would put a narrow line at the cell's centre; so where a
+ * line sits within its cell reaches the pixels too: through the LSF kernel
+ * moved by the sub-cells' offsets (sub_moments), or without an LSF by
+ * splitting cells at pixel edges (sub_edges).  The sub-cells of a cell are
+ * fixed by the cell and r alone, and r depends on v only through the cell
+ * that holds a line's centre, so between changes of r the model is one
+ * smooth quadrature and its Jacobian is exact.
  *
  * Speed: each line of each component is evaluated only over the cells where
  * its optical depth can exceed tau_cut (the range follows from the Gaussian
@@ -43,6 +62,7 @@
 
 #define PI 3.14159265358979323846
 #define SQRT_PI 1.7724538509055160273
+#define SQRT2 1.4142135623730950488
 #define LN10 2.3025850929940456840
 #define FWHM_PER_SIGMA 2.3548200450309493820 /* 2 sqrt(2 ln 2) */
 #define MAX_FINE 20000000L                   /* refuse absurd grids */
@@ -62,6 +82,26 @@
 #define CORE_KMAX 256
 #define CORE_HMAX 0.25
 
+/* Sub-sampling of cells near narrow lines (see sub_setup for the reasons):
+ *  - core sub-cell width h b with h = min(SUB_H_THIN, SUB_H_SAT/sqrt(ln t0))
+ *    Doppler widths, over |x| <= sqrt(ln max(t0, 1) + SUB_GAUSS_LN);
+ *  - damping wings: sub-cells whose midpoint-rule error stays below
+ *    SUB_EPS_W (SUB_KAPPA = sqrt(1.21 / (24 SUB_EPS_W)));
+ *  - ln t0 is capped at SUB_LNT_MAX (t0 = 7.7e23, reached only by absurd
+ *    columns, whose damping wings are black far beyond the capped core). */
+#define SUB_H_THIN 0.7
+#define SUB_H_SAT 0.9
+#define SUB_GAUSS_LN 9.2103403719761836 /* ln 1e4 */
+#define SUB_EPS_W 2e-5
+#define SUB_KAPPA 50.2
+#define SUB_LNT_MAX 55.0
+#define SUB_LINE_CAP 2560.0 /* sub-points reserved per line at most */
+/* Moments of sub-sampled cells through the LSF (sub_moments): at most
+ * MOM_MAX terms, none when sigma < MOM_SMIN cells; cells per pass. */
+#define MOM_MAX 16
+#define MOM_SMIN 1.0
+#define MOM_CHUNK 64
+
 typedef struct span {
   long lo, hi; /* inclusive cell indices; lo > hi = empty */
 } span;
@@ -74,6 +114,15 @@ typedef struct line_setup {
   double cb;  /* c / b */
   double dxdv_fac; /* dx/dv = dxdv_fac * r, r = lc/lambda */
   span r;
+  /* narrow lines (sub_setup); widths and distances in ln(lambda) */
+  int narrow;
+  double yc;       /* ln lc */
+  double dc;       /* sub-cell width in the core */
+  double wc;       /* half-width of the core */
+  double c2;       /* wing: sub-cell width may be c2 d^2 at distance d */
+  long jc;         /* the cell holding the centre */
+  span sr;         /* cells it sub-samples */
+  size_t nsp;      /* sub-points in its range (any line) */
 } line_setup;
 
 struct dt_model {
@@ -90,9 +139,10 @@ struct dt_model {
   size_t *off;      /* start of row i in coef */
   double *coef;     /* banded pixel operator (LSF convolution + averaging) */
   double *tau;      /* total optical depth per cell */
-  double *dep;      /* 1 - exp(-tau) */
-  double *ex;       /* exp(-tau) */
-  double *q;        /* per component k: q[(k*nf + j)*3 + p] = d tau_k / d p */
+  double *dep;      /* 1 - exp(-tau) (sub-sampled cells: its mean) */
+  double *ex;       /* exp(-tau) (sub-sampled cells: its mean) */
+  double *q;        /* per component k: q[(k*nf + j)*3 + p] = d tau_k / d p;
+                       after fold the cell value of exp(-tau) d tau_k / d p */
   int exact;        /* no wing interpolation */
   double wing[WING_KMAX][12]; /* per interval: cubic coefficients of H, Re w', Im w' */
   double core[CORE_KMAX][18]; /* per interval: quintic coefficients of H, Re w', Im w' */
@@ -109,6 +159,29 @@ struct dt_model {
   span uni[2 * DT_MAX_COMP];    /* union of all line ranges, disjoint, sorted */
   span cspan[DT_MAX_COMP][2];   /* each component's own ranges */
   int ncspan[DT_MAX_COMP];
+  /* Sub-sampled cells of the last evaluation: the disjoint sorted spans
+   * sub[0..nsub-1]; cell j of span u has the sub-points
+   * sfirst[sbase[u] + j - lo] .. sfirst[sbase[u] + j - lo + 1] - 1. */
+  span sub[2 * DT_MAX_COMP];
+  int nsub;
+  size_t sbase[2 * DT_MAX_COMP];
+  size_t *sfirst;   /* pmax + 2 DT_MAX_COMP entries */
+  size_t pmax, np;  /* sub-points reserved, used */
+  double *sinv;     /* 1/lambda at each sub-point [1/A] */
+  double *stau;     /* total optical depth at each sub-point */
+  double *sex;      /* exp(-stau) */
+  double *sq;       /* per component k: sq[(k*pmax + p)*3 + i] = d tau_k / d p_i */
+  int folded;       /* q has been through fold (for the Jacobian) */
+  /* For the moments of sub-sampled cells (sub_moments): the pixel averaging
+   * alone (pixel i = sum of pw[pwoff[i] + c - pc0[i]] * cell c over
+   * c = pc0[i]..pc1[i]), nmom kernel terms hk[(n-1)(2hw+1) + k + hw],
+   * moments of a chunk of cells and scratch on the cells. */
+  long *pc0, *pc1;
+  size_t *pwoff;
+  int nmom;
+  double *pw, *hk, *mom, *scr;
+  double *pedge; /* ln lambda of pixel edges: pixel i spans pedge[i]..pedge[i+1] */
+  double g0;     /* the kernel's centre weight */
 };
 
 double dt_velocity(double lambda, double lambda0, double vsys) {
@@ -177,7 +250,34 @@ void dt_model_free(dt_model *m) {
   free(m->ex);
   free(m->q);
   free(m->last_flux);
+  free(m->sfirst);
+  free(m->sinv);
+  free(m->stau);
+  free(m->sex);
+  free(m->sq);
+  free(m->pc0);
+  free(m->pc1);
+  free(m->pwoff);
+  free(m->pw);
+  free(m->hk);
+  free(m->mom);
+  free(m->scr);
+  free(m->pedge);
   free(m);
+}
+
+/* Sub-points one narrow line can ask for on cells of dyv km/s when
+ * b >= DT_MODEL_B_RESOLVED (bounds of the rules of sub_setup, sub_build):
+ *  - core: at most 3 + 2 wc/dy cells of at most dy/dc + 1 sub-cells, with
+ *    dc = h b < dy, i.e. 3 (dy/dc + 1) + 4 X/h, X/h largest at ln t0 max;
+ *  - each wing: the n-th cell beyond at most SUB_KAPPA/n + 1, over at most
+ *    SUB_KAPPA + 1 cells. */
+static double sub_points_per_line(double dyv) {
+  double hmin = SUB_H_SAT / sqrt(SUB_LNT_MAX), xg = sqrt(SUB_LNT_MAX + SUB_GAUSS_LN);
+  double rcore = dyv / (hmin * DT_MODEL_B_RESOLVED) + 1.0;
+  double core = 4.0 * xg / hmin + 3.0 * rcore;
+  double wing = SUB_KAPPA * (log(SUB_KAPPA + 1.0) + 1.0) + SUB_KAPPA + 1.0;
+  return core + 2.0 * wing;
 }
 
 dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cfg,
@@ -291,8 +391,28 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   m->ex = calloc(nf, sizeof *m->ex);
   m->q = calloc((max_comp ? max_comp : 1) * nf * 3, sizeof *m->q);
   m->last_flux = malloc(n * sizeof *m->last_flux);
+  /* Sub-points for narrow lines: the bound for b >= DT_MODEL_B_RESOLVED,
+   * at most SUB_LINE_CAP per line (sub_setup coarsens beyond; malloc, so
+   * pages never used are never touched). */
+  size_t kc = max_comp ? max_comp : 1;
+  double ppl = fmin(sub_points_per_line(DT_C_KMS * m->dy), SUB_LINE_CAP);
+  m->pmax = 2 * kc * (size_t)ppl;
+  m->sfirst = malloc((m->pmax + 2 * DT_MAX_COMP + 1) * sizeof *m->sfirst);
+  m->sinv = malloc(m->pmax * sizeof *m->sinv);
+  m->stau = malloc(m->pmax * sizeof *m->stau);
+  m->sex = malloc(m->pmax * sizeof *m->sex);
+  m->sq = malloc(kc * m->pmax * 3 * sizeof *m->sq);
+  m->pc0 = malloc(n * sizeof *m->pc0);
+  m->pc1 = malloc(n * sizeof *m->pc1);
+  m->pwoff = malloc(n * sizeof *m->pwoff);
+  m->hk = malloc((size_t)MOM_MAX * (size_t)(2 * hw + 1) * sizeof *m->hk);
+  m->mom = malloc(MOM_CHUNK * 3 * MOM_MAX * sizeof *m->mom);
+  m->scr = malloc(3 * nf * sizeof *m->scr);
+  m->pedge = malloc((n + 1) * sizeof *m->pedge);
   if (!g || !m->invlam || !m->m0 || !m->m1 || !m->off || !m->tau || !m->dep || !m->ex || !m->q ||
-      !m->last_flux)
+      !m->last_flux || !m->sfirst || !m->sinv || !m->stau || !m->sex || !m->sq || !m->pc0 ||
+      !m->pc1 || !m->pwoff || !m->hk || !m->mom || !m->scr ||
+      !m->pedge)
     goto nomem;
 
   /* The kernel, sampled at whole cells and normalised. */
@@ -303,7 +423,45 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
     gsum += g[k + hw];
   }
   for (int k = 0; k <= 2 * hw; k++) g[k] /= gsum;
+  m->g0 = g[hw];
+  /* Content moved by t cells reaches cell j + k with the weight
+   *   g(k - t) = g(k) exp(x tau - tau^2/2) = g(k) sum_n He_n(x) tau^n / n!,
+   * x = k/s, tau = t/s, s = sigma in cells (the generating function of the
+   * probabilists' Hermite polynomials He_n(x) = 2^(-n/2) H_n(x/sqrt 2);
+   * Abramowitz & Stegun 1964, ch. 22, eq. 22.9.17 from memory).  With
+   * |t| <= 1/2 and |He_n(x)| exp(-x^2/4) <= 1.09 sqrt(n!) (Cramer's
+   * inequality, A&S 22.14.17 from memory) the terms after n are below
+   * (1/(2s))^(n+1)/sqrt((n+1)!); enough are kept
+   * for 1e-8.  Each row is made to sum to zero, so that moving content
+   * never changes its total (the equivalent width). */
+  m->nmom = 0;
+  if (hw > 0 && sig_cells >= MOM_SMIN) {
+    int nm = 1;
+    double lf = 0; /* ln (n+1)! */
+    for (nm = 1; nm < MOM_MAX; nm++) {
+      lf += log(nm + 1.0);
+      if ((nm + 1) * log(0.5 / sig_cells) - 0.5 * lf <= log(1e-8)) break;
+    }
+    m->nmom = nm;
+    for (int k = -hw; k <= hw; k++) {
+      double x = k / sig_cells, he0 = 1.0, he1 = x, fac = 1.0 / sig_cells;
+      for (int q = 1; q <= nm; q++) {
+        m->hk[(size_t)(q - 1) * (size_t)(2 * hw + 1) + (size_t)(k + hw)] = g[k + hw] * he1 * fac;
+        double he2 = x * he1 - q * he0; /* He_{q+1} = x He_q - q He_{q-1} */
+        he0 = he1;
+        he1 = he2;
+        fac /= (q + 1) * sig_cells;
+      }
+    }
+    for (int q = 0; q < nm; q++) {
+      double *row = m->hk + (size_t)q * (size_t)(2 * hw + 1), sum = 0;
+      for (int k = 0; k <= 2 * hw; k++) sum += row[k];
+      for (int k = 0; k <= 2 * hw; k++) row[k] -= sum * g[k];
+    }
+  }
   for (size_t j = 0; j < nf; j++) m->invlam[j] = exp(-(m->y0 + (j + 0.5) * m->dy));
+  for (size_t i = 0; i < n; i++) m->pedge[i] = lo[i];
+  m->pedge[n] = hi[n - 1];
 
   /* Bands: pixel i overlaps cells clo..chi; the kernel widens that by hw. */
   size_t total = 0;
@@ -315,13 +473,21 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
     if (b < a) b = a;
     clo[i] = a;
     chi[i] = b;
+    m->pc0[i] = a;
+    m->pc1[i] = b;
     m->m0[i] = a - hw;
     m->m1[i] = b + hw;
     m->off[i] = total;
     total += (size_t)(m->m1[i] - m->m0[i] + 1);
   }
   m->coef = calloc(total, sizeof *m->coef);
-  if (!m->coef) goto nomem;
+  size_t ptotal = 0;
+  for (size_t i = 0; i < n; i++) {
+    m->pwoff[i] = ptotal;
+    ptotal += (size_t)(chi[i] - clo[i] + 1);
+  }
+  m->pw = calloc(ptotal, sizeof *m->pw);
+  if (!m->coef || !m->pw) goto nomem;
   for (size_t i = 0; i < n; i++) {
     double *row = m->coef + m->off[i];
     double wsum = 0;
@@ -335,6 +501,7 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
       double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
       if (!(ov > 0)) continue;
       double p = ov / wsum;
+      m->pw[m->pwoff[i] + (size_t)(j - clo[i])] = p;
       /* convolved cell j = sum_k g[k] * cell(j - k) */
       for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * g[k + hw];
     }
@@ -363,8 +530,10 @@ fail:
  * t0 exp(-x^2) or the Lorentzian wing t0 a/(sqrt(pi) x^2) falls to tau_cut,
  * X is widened until the exact t0 H(a, X) <= tau_cut; H falls monotonically
  * in |x| (a convolution of two symmetric unimodal profiles), so nothing
- * beyond X exceeds the cut. */
-static span line_range(const dt_model *m, double t0, double a, double b, double lc) {
+ * beyond X exceeds the cut.  The range is the cells whose centre lies
+ * within |x| <= X, or with overlap set (narrow lines, which may fit between
+ * two centres) every cell that meets it. */
+static span line_range(const dt_model *m, double t0, double a, double b, double lc, int overlap) {
   span r = {0, -1};
   double tc = m->tau_cut;
   if (!(t0 > tc)) return r; /* H <= H(a,0) = erfcx(a) <= 1 */
@@ -373,8 +542,8 @@ static span line_range(const dt_model *m, double t0, double a, double b, double 
   double u = X * b / DT_C_KMS; /* |x| <= X  <=>  lc/lambda in [1-u, 1+u] */
   double ylo = log(lc) - log1p(u);
   double yhi = u < 1 ? log(lc) - log1p(-u) : INFINITY;
-  double jl = ceil((ylo - m->y0) / m->dy - 0.5);
-  double jh = floor((yhi - m->y0) / m->dy - 0.5);
+  double jl = overlap ? floor((ylo - m->y0) / m->dy) : ceil((ylo - m->y0) / m->dy - 0.5);
+  double jh = overlap ? ceil((yhi - m->y0) / m->dy) - 1.0 : floor((yhi - m->y0) / m->dy - 0.5);
   double top = (double)m->nf - 1;
   if (jl < 0) jl = 0;
   if (jh > top) jh = top;
@@ -524,85 +693,253 @@ static int core_table(dt_model *m, double t0, double a, double Xc, double *invh)
   return K;
 }
 
+/* ---- narrow lines ---------------------------------------------------- */
+
+/* Decide whether line s (t0, a, b set) is narrow on this grid and, if so,
+ * how finely it must be sampled (all in ln lambda, c dy = cell in km/s).
+ *
+ * Core.  Over a whole line, the midpoint rule with step h (in Doppler
+ * widths) integrates 1 - exp(-t0 H(a,x)) with an error set by the profile's
+ * Fourier transform at 2 pi/h, which falls exponentially as h shrinks but
+ * more slowly the sharper the edges of a saturated line (of width about
+ * 1/(2 sqrt(ln t0))).  With h = min(0.7, 0.9/sqrt(ln t0)) the error of the
+ * equivalent width stays below 3e-4 of it for t0 = 1e-3..1e8, a = 0..0.1
+ * (worst over the position of the line on the grid; found by direct
+ * computation, and checked in tests/unit/test_model.c against adaptive
+ * integration).  A line whose cells are finer than that (dy <= h b/c) is
+ * sampled as before; otherwise it is narrow, and the cells meeting its core
+ * |x| <= X, X^2 = ln max(t0, 1) + ln 1e4 (beyond, the Gaussian part is
+ * below 1e-4, absolutely and relative to t0), get sub-cells of h b.  All
+ * core cells share that step, so the sub-cells form one uniform lattice
+ * across the core and the whole-line accuracy above holds.
+ *
+ * Wings.  Beyond X the profile is the damping wing tau = A/V^2 at velocity
+ * V from the centre, A = t0 a b^2/sqrt(pi).  For f = 1 - exp(-tau),
+ * |f''| = exp(-tau) tau |6 - 4 tau| / V^2 <= min(6 tau, 1.21)/V^2, and the
+ * midpoint rule on sub-cells of width w errs by at most w^2/24 max|f''|
+ * (e.g. Press et al., Numerical Recipes, 3rd ed., sec. 4.1).  So a cell at
+ * nearest distance V needs w <= max(V sqrt(24 e/1.21), V^2 sqrt(4 e/A)) for
+ * an error e in its mean, or at least dc; e = SUB_EPS_W min(t0, 1), i.e.
+ * relative to the depth of weak lines.  Cells are sub-sampled out to where
+ * w reaches the cell width. */
+static void sub_setup(const dt_model *m, line_setup *s, double b) {
+  s->narrow = 0;
+  s->sr.lo = 0;
+  s->sr.hi = -1;
+  if (!(s->t0 > m->tau_cut)) return;
+  double lt = s->t0 > 1.0 ? fmin(log(s->t0), SUB_LNT_MAX) : 0.0;
+  double h = lt > 0 ? fmin(SUB_H_THIN, SUB_H_SAT / sqrt(lt)) : SUB_H_THIN;
+  double byc = b / DT_C_KMS; /* b in ln lambda */
+  s->dc = h * byc;
+  if (!(s->dc < m->dy)) return;
+  s->narrow = 1;
+  s->yc = log(s->lc);
+  s->wc = sqrt(lt + SUB_GAUSS_LN) * byc;
+  double A = s->t0 * s->a * b * b / SQRT_PI; /* [km^2/s^2] */
+  /* w = c2v V^2 in km/s becomes c2 d^2 with d = V/c, c2 = c2v c */
+  double eps = SUB_EPS_W * fmin(s->t0, 1.0); /* of the line's depth, for weak lines */
+  s->c2 = A > 0 ? sqrt(4.0 * eps / A) * DT_C_KMS : INFINITY;
+  double reach = fmax(s->wc, fmin(SUB_KAPPA * m->dy, sqrt(m->dy / s->c2)));
+  /* Distances are counted in whole cells from the cell holding the centre
+   * (sub_build), so that the sub-cells change with v only when the centre
+   * moves to another cell.  Cell jc + n is sub-sampled while (|n| - 1) dy,
+   * the least its distance from the centre can be, is below reach. */
+  double jcd = floor((s->yc - m->y0) / m->dy), nr = ceil(reach / m->dy);
+  if (!(fabs(jcd) < 4e18)) return; /* not finite, or absurdly far */
+  s->jc = (long)jcd;
+  double jl = jcd - nr, jh = jcd + nr;
+  double top = (double)m->nf - 1;
+  if (jl < 0) jl = 0;
+  if (jh > top) jh = top;
+  if (!(jl <= jh)) return; /* (the caller clips to the line's range) */
+  s->sr.lo = (long)jl;
+  s->sr.hi = (long)jh;
+}
+
+/* Sub-cell width narrow line s needs at distance d (ln lambda) from its
+ * centre (sub_setup). */
+static double sub_width(const line_setup *s, double d) {
+  if (d <= s->wc) return s->dc;
+  double w = fmax(d / SUB_KAPPA, s->c2 * d * d);
+  return w > s->dc ? w : s->dc;
+}
+
+static size_t *sub_first(dt_model *m, int u, long j) {
+  return m->sfirst + m->sbase[u] + (size_t)(j - m->sub[u].lo);
+}
+
+/* The sub-sampled cells of this evaluation, their numbers of sub-cells and
+ * the sub-cell centres.  r of a cell is the most any narrow line asks for
+ * there; if all together exceed the buffer (possible only with many narrow
+ * lines of b < DT_MODEL_B_RESOLVED or with cells over ~14 km/s) every r is
+ * reduced in the same proportion. */
+static void sub_build(dt_model *m, int nl) {
+  line_setup *ls = m->ls;
+  int nn = 0;
+  for (int l = 0; l < nl; l++)
+    if (ls[l].narrow && ls[l].sr.lo <= ls[l].sr.hi) m->sub[nn++] = ls[l].sr;
+  m->nsub = merge_spans(m->sub, nn);
+  m->np = 0;
+  for (int l = 0; l < nl; l++) ls[l].nsp = 0;
+  if (m->nsub == 0) return;
+  const double dy = m->dy;
+  double total = 0;
+  size_t ncell = 0, base = 0;
+  for (int u = 0; u < m->nsub; u++) {
+    m->sbase[u] = base;
+    size_t *rr = m->sfirst + base; /* holds r for now */
+    for (long j = m->sub[u].lo; j <= m->sub[u].hi; j++) {
+      double r = 1.0;
+      for (int l = 0; l < nl; l++) {
+        const line_setup *s = &ls[l];
+        if (!s->narrow || j < s->sr.lo || j > s->sr.hi) continue;
+        long na = labs(j - s->jc);
+        double d = na > 1 ? (double)(na - 1) * dy : 0.0;
+        double rl = ceil(dy / sub_width(s, d));
+        if (rl > r) r = rl;
+      }
+      if (r > (double)m->pmax) r = (double)m->pmax;
+      rr[j - m->sub[u].lo] = (size_t)r;
+      total += r;
+      ncell++;
+    }
+    base += (size_t)(m->sub[u].hi - m->sub[u].lo + 2);
+  }
+  /* ncell <= pmax: each line sub-samples at most 3 + 2 X/h + 2 (SUB_KAPPA + 1)
+   * cells, well below what sub_points_per_line reserves. */
+  double scale = total > (double)m->pmax ? ((double)m->pmax - ncell) / (total - ncell) : 1.0;
+  size_t p = 0;
+  for (int u = 0; u < m->nsub; u++) {
+    size_t *rr = m->sfirst + m->sbase[u];
+    long len = m->sub[u].hi - m->sub[u].lo + 1;
+    for (long t = 0; t < len; t++) {
+      size_t r = rr[t];
+      if (scale < 1.0) r = 1 + (size_t)floor((double)(r - 1) * scale);
+      rr[t] = p;
+      double lo = m->y0 + (m->sub[u].lo + t) * dy, w = dy / (double)r;
+      for (size_t i = 0; i < r; i++) m->sinv[p++] = exp(-(lo + (i + 0.5) * w));
+    }
+    rr[len] = p;
+  }
+  m->np = p;
+  for (int l = 0; l < nl; l++) {
+    const span r = ls[l].r;
+    for (int u = 0; u < m->nsub; u++) {
+      long a = r.lo > m->sub[u].lo ? r.lo : m->sub[u].lo;
+      long b = r.hi < m->sub[u].hi ? r.hi : m->sub[u].hi;
+      if (a <= b) ls[l].nsp += *sub_first(m, u, b + 1) - *sub_first(m, u, a);
+    }
+  }
+}
+
+/* ---- evaluation of one line ------------------------------------------- */
+
+/* How H = Re w(x + ia) and its derivatives are obtained for one line. */
+typedef struct voigt_src {
+  double a, Xc;     /* |x| <= Xc: core table (kcore > 0) or w(z) */
+  double cinvh;
+  int kcore, kwing; /* wing table for Xc < |x| <= xw when kwing > 0 */
+  double smin, winvh, xw;
+} voigt_src;
+
+/* H(a, x) and, with deriv, Hx = dH/dx and Ha = dH/da. */
+static inline double voigt_at(const dt_model *m, const voigt_src *v, double x, int deriv,
+                              double *Hx, double *Ha) {
+  const double a = v->a, ax = fabs(x);
+  double H;
+  /* w(-x + ia) = conj w(x + ia): H even in x, Re w' odd, Im w' even. */
+  if (ax <= v->Xc && v->kcore > 0) {
+    double u = ax * v->cinvh;
+    int k = (int)u;
+    if (k > v->kcore - 1) k = v->kcore - 1;
+    double t = u - k;
+    const double *c = m->core[k];
+    H = c[0] + t * (c[1] + t * (c[2] + t * (c[3] + t * (c[4] + t * c[5]))));
+    if (deriv) {
+      double wr = c[6] + t * (c[7] + t * (c[8] + t * (c[9] + t * (c[10] + t * c[11]))));
+      double wi = c[12] + t * (c[13] + t * (c[14] + t * (c[15] + t * (c[16] + t * c[17]))));
+      *Hx = x < 0 ? -wr : wr;
+      *Ha = -wi;
+    }
+  } else if (ax > v->Xc && v->kwing > 0 && ax <= v->xw) {
+    double u = (1.0 / ax - v->smin) * v->winvh;
+    int k = (int)u;
+    if (k < 0) k = 0;
+    if (k > v->kwing - 1) k = v->kwing - 1;
+    double t = u - k;
+    const double *c = m->wing[k];
+    H = c[0] + t * (c[1] + t * (c[2] + t * c[3]));
+    if (deriv) {
+      double wr = c[4] + t * (c[5] + t * (c[6] + t * c[7]));
+      double wi = c[8] + t * (c[9] + t * (c[10] + t * c[11]));
+      *Hx = x < 0 ? -wr : wr;
+      *Ha = -wi;
+    }
+  } else {
+    double complex w = w_of_z(cplx(x, a));
+    H = creal(w);
+    if (deriv) {
+      /* w'(z) = -2 z w(z) + 2i/sqrt(pi), z = x + i a, H = Re w, L = Im w:
+       *   dH/dx = Re w' = 2(a L - x H),  dH/da = -Im w' = 2(x L + a H) - 2/sqrt(pi) */
+      double L = cimag(w);
+      *Hx = 2.0 * (a * L - x * H);
+      *Ha = 2.0 * (x * L + a * H) - 2.0 / SQRT_PI;
+    }
+  }
+  return H;
+}
+
 /* Optical depth of one line of component k over its cells, added to the
- * total; with qk, also d tau/d(logN, b, v) added to qk[3j + 0,1,2]. */
-static void eval_line(dt_model *m, const line_setup *s, double b, double *qk) {
+ * total; with qk, also d tau/d(logN, b, v) added to qk[3j + 0,1,2].  The
+ * same at the sub-points of sub-sampled cells in its range (stau, and sqk
+ * when qk is given). */
+static void eval_line(dt_model *m, const line_setup *s, double b, double *qk, double *sqk) {
   const double t0 = s->t0, a = s->a, cb = s->cb, lc = s->lc;
   const double *invlam = m->invlam;
   double *tau = m->tau;
   if (s->r.lo > s->r.hi) return;
   /* x falls along the cells.  The far wings (|x| > Xc) and the core are
    * each interpolated when they hold clearly more cells than their table
-   * has nodes; otherwise w(z) is called at every cell. */
-  double xfirst = cb * (lc * invlam[s->r.lo] - 1.0), xlast = cb * (lc * invlam[s->r.hi] - 1.0);
+   * has nodes; otherwise w(z) is called at every cell.  Sub-points reach
+   * the outer edges of the range's end cells. */
+  double xfirst, xlast;
+  if (s->nsp) {
+    xfirst = cb * (lc * exp(-(m->y0 + s->r.lo * m->dy)) - 1.0);
+    xlast = cb * (lc * exp(-(m->y0 + (s->r.hi + 1) * m->dy)) - 1.0);
+  } else {
+    xfirst = cb * (lc * invlam[s->r.lo] - 1.0);
+    xlast = cb * (lc * invlam[s->r.hi] - 1.0);
+  }
   double xmax = fmax(fabs(xfirst), fabs(xlast));
   double cells_per_x = 1.0 / (cb * m->dy); /* about: dx/dj = -cb r dy */
-  double Xc = INFINITY, smin = 0, winvh = 0, cinvh = 0;
-  int kcore = -1, kwing = 0;
+  voigt_src v = {.a = a, .Xc = INFINITY, .kcore = -1, .kwing = 0, .xw = xmax};
   if (!m->exact) {
     double hw = wing_step(t0, a, m->tau_cut);
-    Xc = wing_start(t0, a, m->tau_cut, hw);
-    double xin = fmin(Xc, xmax);
+    v.Xc = wing_start(t0, a, m->tau_cut, hw);
+    double xin = fmin(v.Xc, xmax);
     double wing_cells = (double)(s->r.hi - s->r.lo + 1) - 2.0 * xin * cells_per_x;
-    double kw = ceil((1.0 / Xc - 1.0 / xmax) / hw);
-    if (xmax > 1.5 * Xc && kw <= WING_KMAX && wing_cells > 2.0 * (kw + 1)) {
-      kwing = (int)kw;
-      smin = 1.0 / xmax;
-      winvh = wing_table(m, a, smin, 1.0 / Xc, kwing);
+    double kw = ceil((1.0 / v.Xc - 1.0 / xmax) / hw);
+    if (xmax > 1.5 * v.Xc && kw <= WING_KMAX && wing_cells > 2.0 * (kw + 1)) {
+      v.kwing = (int)kw;
+      v.smin = 1.0 / xmax;
+      v.winvh = wing_table(m, a, v.smin, 1.0 / v.Xc, v.kwing);
     } else {
-      Xc = xmax; /* everything is core */
+      v.Xc = xmax; /* everything is core */
     }
-    /* core cells (both sides) against table nodes (one side) */
-    double nodes = Xc * fmax(pow(t0 / (38.4 * m->tau_cut), 1.0 / 6.0), 1.0 / CORE_HMAX) + 1.0;
-    if (2.0 * Xc * cells_per_x > 1.3 * nodes) kcore = core_table(m, t0, a, Xc, &cinvh);
+    /* core cells (both sides) and sub-points against table nodes (one side) */
+    double nodes = v.Xc * fmax(pow(t0 / (38.4 * m->tau_cut), 1.0 / 6.0), 1.0 / CORE_HMAX) + 1.0;
+    if (2.0 * v.Xc * cells_per_x + (double)s->nsp > 1.3 * nodes)
+      v.kcore = core_table(m, t0, a, v.Xc, &v.cinvh);
   }
   const double dxdv = s->dxdv_fac;
+  const int deriv = qk != NULL;
   for (long j = s->r.lo; j <= s->r.hi; j++) {
     double r = lc * invlam[j];
     double x = cb * (r - 1.0);
-    double ax = fabs(x), H, Hx = 0, Ha = 0;
-    /* w(-x + ia) = conj w(x + ia): H even in x, Re w' odd, Im w' even. */
-    if (ax <= Xc && kcore > 0) {
-      double u = ax * cinvh;
-      int k = (int)u;
-      if (k > kcore - 1) k = kcore - 1;
-      double t = u - k;
-      const double *c = m->core[k];
-      H = c[0] + t * (c[1] + t * (c[2] + t * (c[3] + t * (c[4] + t * c[5]))));
-      if (qk) {
-        double wr = c[6] + t * (c[7] + t * (c[8] + t * (c[9] + t * (c[10] + t * c[11]))));
-        double wi = c[12] + t * (c[13] + t * (c[14] + t * (c[15] + t * (c[16] + t * c[17]))));
-        Hx = x < 0 ? -wr : wr;
-        Ha = -wi;
-      }
-    } else if (ax <= Xc) {
-      double complex w = w_of_z(cplx(x, a));
-      H = creal(w);
-      if (qk) {
-        /* w'(z) = -2 z w(z) + 2i/sqrt(pi), z = x + i a, H = Re w, L = Im w:
-         *   dH/dx = Re w' = 2(a L - x H),  dH/da = -Im w' = 2(x L + a H) - 2/sqrt(pi) */
-        double L = cimag(w);
-        Hx = 2.0 * (a * L - x * H);
-        Ha = 2.0 * (x * L + a * H) - 2.0 / SQRT_PI;
-      }
-    } else {
-      double u = (1.0 / ax - smin) * winvh;
-      int k = (int)u;
-      if (k < 0) k = 0;
-      if (k > kwing - 1) k = kwing - 1;
-      double t = u - k;
-      const double *c = m->wing[k];
-      H = c[0] + t * (c[1] + t * (c[2] + t * c[3]));
-      if (qk) {
-        double wr = c[4] + t * (c[5] + t * (c[6] + t * c[7]));
-        double wi = c[8] + t * (c[9] + t * (c[10] + t * c[11]));
-        Hx = x < 0 ? -wr : wr;
-        Ha = -wi;
-      }
-    }
-    double tj = t0 * H;
+    double Hx = 0, Ha = 0;
+    double tj = t0 * voigt_at(m, &v, x, deriv, &Hx, &Ha);
     tau[j] += tj;
-    if (qk) {
+    if (deriv) {
       /* tau = t0 H(a, x) with t0, a and x proportional to 1/b:
        *   dtau/db = -(tau + t0 (a dH/da + x dH/dx)) / b;
        * x = (c/b)(lc/lambda - 1) with lc proportional to (1 + v/c). */
@@ -612,9 +949,228 @@ static void eval_line(dt_model *m, const line_setup *s, double b, double *qk) {
       qq[2] += t0 * Hx * dxdv * r;
     }
   }
+  if (!s->nsp) return;
+  for (int u = 0; u < m->nsub; u++) {
+    long ja = s->r.lo > m->sub[u].lo ? s->r.lo : m->sub[u].lo;
+    long jb = s->r.hi < m->sub[u].hi ? s->r.hi : m->sub[u].hi;
+    if (ja > jb) continue;
+    size_t p1 = *sub_first(m, u, jb + 1);
+    for (size_t p = *sub_first(m, u, ja); p < p1; p++) {
+      double r = lc * m->sinv[p];
+      double x = cb * (r - 1.0);
+      double Hx = 0, Ha = 0;
+      double tj = t0 * voigt_at(m, &v, x, deriv, &Hx, &Ha);
+      m->stau[p] += tj;
+      if (deriv) {
+        double *qq = sqk + 3 * p;
+        qq[0] += LN10 * tj;
+        qq[1] -= (tj + t0 * (a * Ha + x * Hx)) / b;
+        qq[2] += t0 * Hx * dxdv * r;
+      }
+    }
+  }
 }
 
 const double *dt_model_fine_tau(const dt_model *m) { return m ? m->tau : NULL; }
+
+/* For the Jacobian, turn q (d tau_k/dp per cell) into the cell values of
+ * exp(-tau) d tau_k/dp: times exp(-tau) at ordinary cells, the mean over
+ * the sub-points at sub-sampled ones. */
+static void fold(dt_model *m, size_t ncomp) {
+  const size_t nf = m->nf;
+  for (size_t k = 0; k < ncomp; k++) {
+    double *qk = m->q + k * nf * 3;
+    const double *sqk = m->sq + k * m->pmax * 3;
+    for (int c = 0; c < m->ncspan[k]; c++) {
+      long j = m->cspan[k][c].lo;
+      const long B = m->cspan[k][c].hi;
+      int u = 0;
+      while (j <= B) {
+        while (u < m->nsub && m->sub[u].hi < j) u++;
+        long end = u < m->nsub ? (m->sub[u].lo > j ? m->sub[u].lo - 1 : m->sub[u].hi) : B;
+        if (end > B) end = B;
+        if (u < m->nsub && m->sub[u].lo <= j) {
+          for (; j <= end; j++) {
+            size_t p0 = *sub_first(m, u, j), p1 = *sub_first(m, u, j + 1);
+            double s0 = 0, s1 = 0, s2 = 0;
+            for (size_t p = p0; p < p1; p++) {
+              double e = m->sex[p];
+              s0 += e * sqk[3 * p];
+              s1 += e * sqk[3 * p + 1];
+              s2 += e * sqk[3 * p + 2];
+            }
+            double w = 1.0 / (double)(p1 - p0);
+            qk[3 * j] = s0 * w;
+            qk[3 * j + 1] = s1 * w;
+            qk[3 * j + 2] = s2 * w;
+          }
+        } else {
+          for (; j <= end; j++) {
+            double e = m->ex[j];
+            qk[3 * j] *= e;
+            qk[3 * j + 1] *= e;
+            qk[3 * j + 2] *= e;
+          }
+        }
+      }
+    }
+  }
+  m->folded = 1;
+}
+
+/* Moments.  A sub-sampled cell stands for its mean, which the kernel,
+ * sampled at cell centres, places at the cell's centre; but a line narrower
+ * than the cell may sit anywhere in it, and with an LSF that matters.  So
+ * the content of each sub-sampled cell also reaches cell j + k through the
+ * kernel moved by the offsets t of its sub-points (alloc):
+ *   sum_n hk_n(k) mu_n,  mu_n = mean over the sub-points of (d - m) t^n,
+ * d = 1 - exp(-tau) at the sub-point, m its cell mean, t in cells.  Only
+ * the departure from the mean moves: a cell of uniform content is treated
+ * like any other cell (which keeps saturated stretches at zero flux), a
+ * narrow line at offset t0 acts as if at t0.  Without an LSF (or one below
+ * MOM_SMIN cells, nmom = 0) the pixel mean of cell means is already right.
+ *
+ * For cells j0..j1 of sub-span u: the moments, through the kernel into scr,
+ * then each pixel they reach loses its share in out[i*ld].  With sqk (the
+ * Jacobian of component k) the same for the derivatives: d = exp(-tau)
+ * dtau/dp at the sub-points, m = their cell mean (q after fold), 3 at once
+ * into out[i*ld + 0..2]. */
+static void sub_moments(dt_model *m, int u, long j0, long j1, const double *sqk, const double *qk,
+                        double *out, size_t ld) {
+  const int hw = m->hw, nm = m->nmom, nv = sqk ? 3 : 1;
+  const size_t kw = (size_t)(2 * hw + 1), nf = m->nf;
+  double *mom = m->mom; /* [cell][v][n] */
+  for (long j = j0; j <= j1; j++) {
+    size_t p0 = *sub_first(m, u, j), p1 = *sub_first(m, u, j + 1);
+    double w = 1.0 / (double)(p1 - p0), *mj = mom + (size_t)(j - j0) * 3 * MOM_MAX;
+    memset(mj, 0, (size_t)nv * MOM_MAX * sizeof *mj);
+    for (size_t p = p0; p < p1; p++) {
+      double t = ((double)(p - p0) + 0.5) * w - 0.5;
+      for (int v = 0; v < nv; v++) {
+        double x = sqk ? m->sex[p] * sqk[3 * p + v] - qk[3 * j + v]
+                       : (1.0 - m->sex[p]) - m->dep[j];
+        double *mv = mj + v * MOM_MAX;
+        for (int q = 0; q < nm; q++) {
+          x *= t;
+          mv[q] += x;
+        }
+      }
+    }
+    for (int v = 0; v < nv; v++)
+      for (int q = 0; q < nm; q++) mj[v * MOM_MAX + q] *= w;
+  }
+  /* through the kernel: plane v of scr over cells A..B */
+  long A = j0 - hw, B = j1 + hw;
+  if (A < 0) A = 0;
+  if (B > (long)nf - 1) B = (long)nf - 1;
+  for (int v = 0; v < nv; v++)
+    memset(m->scr + (size_t)v * nf + A, 0, (size_t)(B - A + 1) * sizeof *m->scr);
+  for (long j = j0; j <= j1; j++) {
+    const double *mj = mom + (size_t)(j - j0) * 3 * MOM_MAX;
+    long k0 = A - (j - hw) > 0 ? A - (j - hw) : 0;
+    long k1 = B - (j - hw) < 2 * hw ? B - (j - hw) : 2 * hw;
+    for (int v = 0; v < nv; v++) {
+      double *sv = m->scr + (size_t)v * nf + (j - hw);
+      for (int q = 0; q < nm; q++) {
+        const double mu = mj[v * MOM_MAX + q], *hq = m->hk + (size_t)q * kw;
+        if (mu == 0) continue;
+        for (long k = k0; k <= k1; k++) sv[k] += mu * hq[k];
+      }
+    }
+  }
+  /* pixels whose cells meet A..B (pc0, pc1 increase with i) */
+  size_t a = 0, b = m->n;
+  while (a < b) {
+    size_t mid = a + (b - a) / 2;
+    if (m->pc1[mid] < A)
+      a = mid + 1;
+    else
+      b = mid;
+  }
+  for (size_t i = a; i < m->n && m->pc0[i] <= B; i++) {
+    long c0 = m->pc0[i] > A ? m->pc0[i] : A, c1 = m->pc1[i] < B ? m->pc1[i] : B;
+    const double *pw = m->pw + m->pwoff[i] - m->pc0[i];
+    for (int v = 0; v < nv; v++) {
+      const double *sv = m->scr + (size_t)v * nf;
+      double acc = 0;
+      for (long c = c0; c <= c1; c++) acc += pw[c] * sv[c];
+      out[i * ld + (size_t)v] -= acc;
+    }
+  }
+}
+
+/* With no LSF, or one narrower than MOM_SMIN cells (nmom = 0), the
+ * kernel does not carry a line's place within its cell, but a pixel edge
+ * may cut the cell: the pixel value is the mean of its convolved cells by
+ * overlap, while a narrow line lies on one side of the edge.  So each such
+ * cell is split at the edge by its sub-points (the sub-cell the edge cuts
+ * by its fraction on each side), and of the part of its content the kernel
+ * leaves in the cell (g0, all of it without an LSF) each pixel gets what
+ * lies on its side instead of its overlap share.  For content spread
+ * evenly nothing changes; each pixel's share stays >= 0.  Values as in
+ * sub_moments. */
+static void sub_edges(dt_model *m, int u, long j0, long j1, const double *sqk, const double *qk,
+                      double *out, size_t ld) {
+  const int nv = sqk ? 3 : 1;
+  const double g0 = m->g0;
+  /* pixels i, i+1 sharing a cell c of j0..j1: c = pc1[i] = pc0[i+1] */
+  size_t a = 0, b = m->n;
+  while (a < b) {
+    size_t mid = a + (b - a) / 2;
+    if (m->pc1[mid] < j0)
+      a = mid + 1;
+    else
+      b = mid;
+  }
+  for (size_t i = a; i + 1 < m->n && m->pc1[i] <= j1; i++) {
+    long c = m->pc1[i];
+    if (m->pc0[i + 1] != c) continue;
+    double cl = m->y0 + c * m->dy, ye = m->pedge[i + 1];
+    double f = (ye - cl) / m->dy; /* fraction of the cell below the edge */
+    if (!(f > 0 && f < 1)) continue;
+    size_t p0 = *sub_first(m, u, c), p1 = *sub_first(m, u, c + 1);
+    double r = (double)(p1 - p0), wl = ye - m->pedge[i], wr = m->pedge[i + 2] - ye;
+    for (int v = 0; v < nv; v++) {
+      double left = 0;
+      for (size_t p = p0; p < p1; p++) {
+        double fp = f * r - (double)(p - p0); /* of sub-cell p below the edge */
+        if (fp <= 0) break;
+        double x = sqk ? m->sex[p] * sqk[3 * p + v] : 1.0 - m->sex[p];
+        left += (fp < 1 ? fp : 1.0) * x;
+      }
+      double mean = sqk ? qk[3 * c + v] : m->dep[c];
+      double d = g0 * (left / r - f * mean) * m->dy; /* content moved below the edge */
+      out[i * ld + (size_t)v] -= d / wl;
+      out[(i + 1) * ld + (size_t)v] += d / wr;
+    }
+  }
+}
+
+/* The corrections for every sub-sampled cell (k < 0, the flux) or for those
+ * in the ranges of component k (its Jacobian; its q is valid only there),
+ * sub_moments in chunks of MOM_CHUNK cells. */
+static void sub_corrections(dt_model *m, long k, double *out, size_t ld) {
+  const double *sqk = k < 0 ? NULL : m->sq + (size_t)k * m->pmax * 3;
+  const double *qk = k < 0 ? NULL : m->q + (size_t)k * m->nf * 3;
+  int nc = k < 0 ? 1 : m->ncspan[k];
+  for (int u = 0; u < m->nsub; u++)
+    for (int c = 0; c < nc; c++) {
+      long lo = m->sub[u].lo, hi = m->sub[u].hi;
+      if (k >= 0) {
+        if (m->cspan[k][c].lo > lo) lo = m->cspan[k][c].lo;
+        if (m->cspan[k][c].hi < hi) hi = m->cspan[k][c].hi;
+      }
+      if (lo > hi) continue;
+      if (!m->nmom) {
+        sub_edges(m, u, lo, hi, sqk, qk, out, ld);
+        continue;
+      }
+      for (long j0 = lo; j0 <= hi; j0 += MOM_CHUNK) {
+        long j1 = j0 + MOM_CHUNK - 1 < hi ? j0 + MOM_CHUNK - 1 : hi;
+        sub_moments(m, u, j0, j1, sqk, qk, out, ld);
+      }
+    }
+}
 
 int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *flux, double *jac,
                   size_t ldj) {
@@ -639,6 +1195,7 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
     goto jacobian;
   }
   m->have_last = 0;
+  m->folded = 0;
 
   /* Clear what the last evaluation left, so tau is zero outside the ranges. */
   for (int u = 0; u < m->nprev; u++)
@@ -656,7 +1213,10 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
       s->lc = li->lambda0 * m->s * (1.0 + c->v / DT_C_KMS);
       s->cb = DT_C_KMS / c->b;
       s->dxdv_fac = 1.0 / (c->b * (1.0 + c->v / DT_C_KMS));
-      s->r = line_range(m, s->t0, s->a, c->b, s->lc);
+      sub_setup(m, s, c->b);
+      s->r = line_range(m, s->t0, s->a, c->b, s->lc, s->narrow);
+      if (s->sr.lo < s->r.lo) s->sr.lo = s->r.lo;
+      if (s->sr.hi > s->r.hi) s->sr.hi = s->r.hi;
       if (s->r.lo <= s->r.hi) m->uni[nl++] = s->r;
     }
     int nc = 0;
@@ -667,16 +1227,22 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
   int nu = merge_spans(m->uni, nl);
   memcpy(m->prev, m->uni, (size_t)nu * sizeof(span));
   m->nprev = nu;
+  sub_build(m, (int)(2 * ncomp));
+  const size_t np = m->np;
+  if (np) {
+    memset(m->stau, 0, np * sizeof *m->stau);
+    for (size_t k = 0; k < ncomp; k++) memset(m->sq + k * m->pmax * 3, 0, np * 3 * sizeof *m->sq);
+  }
 
   /* Optical depth and its derivatives on the cells (the derivatives cost
    * little next to w(z), and a Jacobian usually follows at the same point). */
   for (size_t k = 0; k < ncomp; k++) {
-    double *qk = m->q + k * nf * 3;
+    double *qk = m->q + k * nf * 3, *sqk = m->sq + k * m->pmax * 3;
     for (int u = 0; u < m->ncspan[k]; u++)
       memset(qk + 3 * m->cspan[k][u].lo, 0,
              (size_t)(m->cspan[k][u].hi - m->cspan[k][u].lo + 1) * 3 * sizeof(double));
-    eval_line(m, &m->ls[2 * k], comp[k].b, qk);
-    eval_line(m, &m->ls[2 * k + 1], comp[k].b, qk);
+    eval_line(m, &m->ls[2 * k], comp[k].b, qk, sqk);
+    eval_line(m, &m->ls[2 * k + 1], comp[k].b, qk, sqk);
   }
   for (int u = 0; u < nu; u++)
     for (long j = m->uni[u].lo; j <= m->uni[u].hi; j++) {
@@ -690,6 +1256,27 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
         m->ex[j] = ee;
         m->dep[j] = 1.0 - ee;
       }
+    }
+  /* Sub-sampled cells: the means over their sub-points instead. */
+  for (int u = 0; u < m->nsub; u++)
+    for (long j = m->sub[u].lo; j <= m->sub[u].hi; j++) {
+      size_t p0 = *sub_first(m, u, j), p1 = *sub_first(m, u, j + 1);
+      double sd = 0, se = 0, w = 1.0 / (double)(p1 - p0);
+      for (size_t p = p0; p < p1; p++) {
+        double t = m->stau[p], ee, dd;
+        if (t < 0.5) {
+          dd = -expm1(-t);
+          ee = 1.0 - dd;
+        } else {
+          ee = exp(-t);
+          dd = 1.0 - ee;
+        }
+        m->sex[p] = ee;
+        sd += dd;
+        se += ee;
+      }
+      m->dep[j] = sd * w;
+      m->ex[j] = se * w;
     }
 
   /* Through the LSF and onto the pixels: flux = 1 - B (1 - exp(-tau)). */
@@ -712,6 +1299,12 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
       flux[i] -= (a0 + a1) + (a2 + a3);
     }
   }
+  if (m->nsub) {
+    sub_corrections(m, -1, flux, 1);
+    /* the corrections keep 0 <= flux <= 1 only to ~1e-7 for an LSF of
+     * about one cell (their kernels have small negative lobes there) */
+    for (size_t i = 0; i < n; i++) flux[i] = flux[i] < 0 ? 0.0 : (flux[i] > 1 ? 1.0 : flux[i]);
+  }
   memcpy(m->last_flux, flux, n * sizeof *flux);
   if (ncomp) memcpy(m->last, comp, ncomp * sizeof *comp);
   m->nlast = ncomp;
@@ -719,6 +1312,7 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
 
 jacobian:
   if (!jac) return DT_OK;
+  if (!m->folded) fold(m, ncomp);
 
   /* d flux / dp = B (-exp(-tau) dtau/dp), only where component k lives. */
   for (size_t i = 0; i < n; i++) memset(jac + i * ldj, 0, 3 * ncomp * sizeof(double));
@@ -728,13 +1322,13 @@ jacobian:
       const long A = m->cspan[k][u].lo, B = m->cspan[k][u].hi;
       for (size_t i = first_pixel(m, A); i < n && m->m0[i] <= B; i++) {
         long j0 = m->m0[i] > A ? m->m0[i] : A, j1 = m->m1[i] < B ? m->m1[i] : B;
-        const double *row = m->coef + m->off[i] + (j0 - m->m0[i]), *ep = m->ex + j0;
+        const double *row = m->coef + m->off[i] + (j0 - m->m0[i]);
         const double *qp = qk + 3 * j0;
         const long len = j1 - j0 + 1;
         double s0 = 0, s1 = 0, s2 = 0, r0 = 0, r1 = 0, r2 = 0;
         long t = 0;
         for (; t + 1 < len; t += 2) {
-          double w0 = row[t] * ep[t], w1 = row[t + 1] * ep[t + 1];
+          double w0 = row[t], w1 = row[t + 1];
           s0 += w0 * qp[3 * t];
           s1 += w0 * qp[3 * t + 1];
           s2 += w0 * qp[3 * t + 2];
@@ -743,7 +1337,7 @@ jacobian:
           r2 += w1 * qp[3 * t + 5];
         }
         if (t < len) {
-          double w0 = row[t] * ep[t];
+          double w0 = row[t];
           s0 += w0 * qp[3 * t];
           s1 += w0 * qp[3 * t + 1];
           s2 += w0 * qp[3 * t + 2];
@@ -755,5 +1349,9 @@ jacobian:
       }
     }
   }
+  /* and through the moments of sub-sampled cells */
+  if (m->nsub)
+    for (size_t k = 0; k < ncomp; k++)
+      sub_corrections(m, (long)k, jac + 3 * k, ldj);
   return DT_OK;
 }

@@ -2,7 +2,9 @@
  * benchmark configuration (Na I, 660 pixels of 0.1 A from 5862 A, R = 20000,
  * oversampling 5, two components drawn in 11.3 < logN < 12.8, 3 < b < 15,
  * one near 0 and one near -220 km/s), for several tau cuts, and how the
- * time grows with pixels and components.  Prints medians in microseconds.
+ * time grows with pixels and components; then lines narrower than the
+ * sub-pixel cells (sub-sampled), on those pixels and on survey pixels of
+ * 0.5 A at R 3000 and 1 A at R 2000.  Prints medians in microseconds.
  *
  *   cc -std=c11 -O2 -Iinclude -D_POSIX_C_SOURCE=200809L tests/bench/bench_model.c \
  *      build/libdoubletty.a $(pkg-config --libs gsl cfitsio libcerf libcrypto) -lm
@@ -74,6 +76,46 @@ static double bench(const dt_doublet *d, size_t npix, size_t ncomp, double tau_c
   return t[nt / 2];
 }
 
+/* One narrow component (logN, b) near 0 km/s plus a broad one near -220
+ * km/s, on pixels of dlam A over 66 A at resolving power R. */
+static void bench_narrow(const dt_doublet *d, double dlam, double R, double logN, double b) {
+  size_t npix = (size_t)(66.0 / dlam);
+  double *wave = malloc(npix * sizeof *wave), *flux = malloc(npix * sizeof *flux);
+  double *jac = malloc(npix * 6 * sizeof *jac);
+  for (size_t i = 0; i < npix; i++) wave[i] = 5862.0 + dlam * i;
+  dt_model_config cfg = {.doublet = d, .resolution = R};
+  dt_err e;
+  dt_model *m = dt_model_alloc(wave, npix, &cfg, 2, &e);
+  if (!m) {
+    fprintf(stderr, "bench: %s\n", e.what);
+    exit(1);
+  }
+  enum { NSET = 16, NREP = 40 };
+  static double t[3][NSET * NREP];
+  unsigned long long seed = 7;
+  int nt = 0;
+  for (int s = 0; s < NSET; s++) {
+    dt_component c[2] = {{logN, b, 10.0 * (urand(&seed) - 0.5)}, {12.0, 8.0, -220.0}};
+    for (int r = 0; r < NREP; r++, nt++)
+      for (int mode = 0; mode < 3; mode++) {
+        c[0].v += 1e-3;
+        double t0 = now_us();
+        dt_model_eval(m, c, 2, flux, mode == 1 ? jac : NULL, 6);
+        if (mode == 2) dt_model_eval(m, c, 2, flux, jac, 6);
+        t[mode][nt] = now_us() - t0;
+      }
+  }
+  for (int mode = 0; mode < 3; mode++) qsort(t[mode], (size_t)nt, sizeof t[mode][0], cmpd);
+  dt_model_info in;
+  dt_model_get_info(m, &in);
+  printf("%5.1f %6.0f %6.1f %5.1f %5.1f %12.1f %14.1f %10.1f\n", dlam, R, in.step_kms, logN, b,
+         t[0][nt / 2], t[1][nt / 2], t[2][nt / 2]);
+  dt_model_free(m);
+  free(wave);
+  free(flux);
+  free(jac);
+}
+
 int main(int argc, char **argv) {
   const char *table = argc > 1 ? argv[1] : "share/doubletty/atomic.dat";
   dt_atomic *at;
@@ -106,6 +148,14 @@ int main(int argc, char **argv) {
       double st = bench(d, pix[p], nc[k], 0.0, 2, &nrep);
       printf("%-8s %6zu %5zu %12.1f %14.1f %10.1f\n", "default", pix[p], nc[k], a, b, st);
     }
+  printf("lines narrower than the cells (one such component and one of b = 8 km/s, default tau cut):\n");
+  printf("%5s %6s %6s %5s %5s %12s %14s %10s\n", "A/pix", "R", "cell", "logN", "b", "flux [us]",
+         "flux+jac [us]", "step [us]");
+  const double setups[3][2] = {{0.1, 20000}, {0.5, 3000}, {1.0, 2000}};
+  const double bs[] = {0.3, 1.0, 2.5}, lns[] = {12.0, 14.0};
+  for (int s = 0; s < 3; s++)
+    for (int ib = 0; ib < 3; ib++)
+      for (int il = 0; il < 2; il++) bench_narrow(d, setups[s][0], setups[s][1], lns[il], bs[ib]);
   dt_atomic_free(at);
   return 0;
 }

@@ -2,8 +2,10 @@
 # The doublet model against an independent evaluation in Python with SciPy's
 # Faddeeva function (scipy.special.wofz): optical depths of thin, saturated
 # and damped lines; the pixel model against a re-implementation of the
-# discretisation documented in include/doubletty/model.h; and against a far
-# finer direct convolution, within the midpoint-rule error bound.
+# discretisation documented in include/doubletty/model.h (cases whose lines
+# the cells resolve); and every case, also lines far narrower than the cells
+# on survey-like pixels, against a far finer direct convolution, within the
+# documented error bounds.
 . "$(dirname "$0")/../lib.sh"
 
 DRIVER=$BUILD/tests/test_model

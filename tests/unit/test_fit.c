@@ -102,7 +102,9 @@ static void test_recovery(const dt_doublet *d, dt_fit_workspace *w) {
     CHECK(r.err[k].logN > 0 && r.err[k].b > 0 && r.err[k].v > 0 && isfinite(r.err[k].v),
           "component %d has finite positive errors", k + 1);
   }
-  CHECK(r.chi2 < 1e-6, "noiseless chi2 ~ 0 (%g)", r.chi2);
+  /* The fit stops when the Newton decrement (the chi2 still to gain) is
+     below 1e-4, so a noiseless fit ends within about that of chi2 = 0. */
+  CHECK(r.chi2 < 1e-3, "noiseless chi2 ~ 0 (%g)", r.chi2);
   CHECK(r.npix == s.n && r.dof == (long)s.n - 6, "npix %zu, dof %ld = n - 6", r.npix, r.dof);
   CHECK(r.niter > 0 && r.niter < DT_FIT_MAX_ITER, "iterations %d", r.niter);
 
