@@ -15,7 +15,15 @@
  *    hw = ceil(DT_MODEL_LSF_NSIGMA * sigma / dy), and normalised to sum 1;
  *  - a pixel's value is the average of the convolved cell values over the
  *    pixel's [lo, hi] extent in ln lambda, each cell weighted by its
- *    overlap with the pixel (so unequal pixels are handled).
+ *    overlap with the pixel (so unequal pixels are handled);
+ *  - except when the pixels are much finer than the LSF (the rule above
+ *    would give cells below sigma / (2 DT_MODEL_LSF_CELLS)): then the
+ *    cells are sigma / DT_MODEL_LSF_CELLS wide (coarser), the
+ *    grid reaches hw + 2 cells beyond the pixels, and a pixel's value is
+ *    the mean over its extent of a piecewise-cubic interpolation of the
+ *    convolved cells (pixel_weights), so that the matrix keeps
+ *    ~2 DT_MODEL_LSF_NSIGMA DT_MODEL_LSF_CELLS entries per pixel however
+ *    fine the pixels are.
  * Convolution and averaging are linear, so they are folded into one banded
  * matrix (row i = weights of the cells that reach pixel i), built once.
  *
@@ -182,6 +190,8 @@ struct dt_model {
   double *pw, *hk, *mom, *scr;
   double *pedge; /* ln lambda of pixel edges: pixel i spans pedge[i]..pedge[i+1] */
   double g0;     /* the kernel's centre weight */
+  int interp;    /* cells of sigma / DT_MODEL_LSF_CELLS, read by interpolation */
+  size_t ncoef;  /* entries of coef */
 };
 
 double dt_velocity(double lambda, double lambda0, double vsys) {
@@ -236,6 +246,8 @@ void dt_model_get_info(const dt_model *m, dt_model_info *info) {
   info->lsf_sigma_kms = m->sigma_kms;
   info->lsf_halfwidth = m->hw;
   info->tau_cut = m->tau_cut;
+  info->interpolated = m->interp;
+  info->ncoef = m->ncoef;
 }
 
 void dt_model_free(dt_model *m) {
@@ -278,6 +290,45 @@ static double sub_points_per_line(double dyv) {
   double core = 4.0 * xg / hmin + 3.0 * rcore;
   double wing = SUB_KAPPA * (log(SUB_KAPPA + 1.0) + 1.0) + SUB_KAPPA + 1.0;
   return core + 2.0 * wing;
+}
+
+/* Pixels finer than the LSF (m->interp): the weights with which pixel
+ * [ylo, yhi] (ln lambda) reads the convolved cells, the mean over the pixel
+ * of the piecewise-cubic interpolant through the cell centres (node j at
+ * u = (y - y0)/dy - 1/2 = j).  Between nodes J and J+1 (t = u - J in
+ * [0, 1]) it is the Lagrange cubic through nodes J-1..J+2, basis
+ *   l0 = -t(t-1)(t-2)/6, l1 = (t+1)(t-1)(t-2)/2,
+ *   l2 = -(t+1)t(t-2)/2, l3 = (t+1)t(t-1)/6
+ * (four-point Lagrange interpolation, Abramowitz & Stegun 1964, 25.2.13,
+ * from memory), integrated exactly: lagrange_int gives the integrals from 0
+ * to t.  Its error is below (9/16)/24 max|f''''| dy^4, for a profile
+ * smoothed by a Gaussian of DT_MODEL_LSF_CELLS = 8 cells some 2e-5 of its
+ * depth; piecewise-linear interpolation would err by up to
+ * dy^2/8 max|f''|, 2e-3 of the depth.  The weights go to w[clo..chi] and
+ * sum to 1. */
+static void lagrange_int(double t, double out[4]) {
+  double t2 = t * t, t3 = t2 * t, t4 = t2 * t2;
+  out[0] = -(0.25 * t4 - t3 + t2) / 6.0;
+  out[1] = (0.25 * t4 - 2.0 / 3.0 * t3 - 0.5 * t2 + 2.0 * t) / 2.0;
+  out[2] = -(0.25 * t4 - t3 / 3.0 - t2) / 2.0;
+  out[3] = (0.25 * t4 - 0.5 * t2) / 6.0;
+}
+
+static void pixel_weights(const dt_model *m, double ylo, double yhi, long clo, long chi,
+                          double *w) {
+  double ua = (ylo - m->y0) / m->dy - 0.5, ub = (yhi - m->y0) / m->dy - 0.5;
+  long Ja = (long)floor(ua), Jb = (long)floor(ub);
+  for (long J = Ja; J <= Jb; J++) {
+    double ta = J == Ja ? ua - (double)J : 0.0, tb = J == Jb ? ub - (double)J : 1.0;
+    if (!(tb > ta)) continue;
+    double fa[4], fb[4];
+    lagrange_int(ta, fa);
+    lagrange_int(tb, fb);
+    for (int k = 0; k < 4; k++) {
+      long j = J - 1 + k;
+      if (j >= clo && j <= chi) w[j] += (fb[k] - fa[k]) / (ub - ua);
+    }
+  }
 }
 
 dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cfg,
@@ -366,8 +417,23 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   }
   m->dy = minw / m->ovs;
   double sig_cells = m->sigma_kms / (DT_C_KMS * m->dy);
+  /* Pixels much finer than the LSF (cells below sigma / (2 LSF_CELLS)):
+   * cells of sigma / DT_MODEL_LSF_CELLS sample the convolved profile well
+   * enough, and the pixels read it by interpolation (pixel_weights); the
+   * matrix then holds about 2 DT_MODEL_LSF_NSIGMA DT_MODEL_LSF_CELLS
+   * entries per pixel instead of that times sig_cells / DT_MODEL_LSF_CELLS.
+   * Between sigma / (2 LSF_CELLS) and sigma / LSF_CELLS (e.g. 0.5 A pixels
+   * at R 3000) the cells are left as they are: at most twice the entries,
+   * and no change for a few per cent coarser cells. */
+  m->interp = m->sigma_kms > 0 && sig_cells > 2.0 * DT_MODEL_LSF_CELLS;
+  if (m->interp) {
+    m->dy = m->sigma_kms / DT_C_KMS / DT_MODEL_LSF_CELLS;
+    sig_cells = DT_MODEL_LSF_CELLS;
+  }
   double hwd = m->sigma_kms > 0 ? ceil(DT_MODEL_LSF_NSIGMA * sig_cells) : 0.0;
-  double nfd = ceil((hi[n - 1] - lo[0]) / m->dy) + 2.0 * hwd + 1.0;
+  /* interpolation reaches two cell centres beyond a pixel's ends */
+  double pad = hwd + (m->interp ? 2.0 : 0.0);
+  double nfd = ceil((hi[n - 1] - lo[0]) / m->dy) + 2.0 * pad + 1.0;
   if (!(minw > 0) || !isfinite(nfd) || nfd > (double)MAX_FINE || hwd > (double)MAX_FINE / 4) {
     dt_err_set(e, DT_EINVAL, NULL,
                "model: sub-pixel grid would be too large (pixels span a factor %g in "
@@ -377,7 +443,7 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   }
   m->hw = (int)hwd;
   m->nf = (size_t)nfd;
-  m->y0 = lo[0] - m->hw * m->dy;
+  m->y0 = lo[0] - pad * m->dy;
   const size_t nf = m->nf;
   const int hw = m->hw;
 
@@ -463,11 +529,17 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   for (size_t i = 0; i < n; i++) m->pedge[i] = lo[i];
   m->pedge[n] = hi[n - 1];
 
-  /* Bands: pixel i overlaps cells clo..chi; the kernel widens that by hw. */
+  /* Bands: pixel i reads cells clo..chi (those it overlaps, or with
+   * interpolation the nodes its interpolant uses); the kernel widens that
+   * by hw. */
   size_t total = 0;
   for (size_t i = 0; i < n; i++) {
     long a = (long)floor((lo[i] - m->y0) / m->dy);
     long b = (long)ceil((hi[i] - m->y0) / m->dy) - 1;
+    if (m->interp) {
+      a = (long)floor((lo[i] - m->y0) / m->dy - 0.5) - 1;
+      b = (long)floor((hi[i] - m->y0) / m->dy - 0.5) + 2;
+    }
     if (a < hw) a = hw;
     if (b > (long)nf - 1 - hw) b = (long)nf - 1 - hw;
     if (b < a) b = a;
@@ -488,20 +560,27 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   }
   m->pw = calloc(ptotal, sizeof *m->pw);
   if (!m->coef || !m->pw) goto nomem;
+  m->ncoef = total;
   for (size_t i = 0; i < n; i++) {
-    double *row = m->coef + m->off[i];
-    double wsum = 0;
-    for (long j = clo[i]; j <= chi[i]; j++) {
-      double cl = m->y0 + j * m->dy, ch = cl + m->dy;
-      double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
-      if (ov > 0) wsum += ov;
+    double *row = m->coef + m->off[i], *pwi = m->pw + m->pwoff[i] - clo[i];
+    if (m->interp) {
+      pixel_weights(m, lo[i], hi[i], clo[i], chi[i], pwi);
+    } else {
+      double wsum = 0;
+      for (long j = clo[i]; j <= chi[i]; j++) {
+        double cl = m->y0 + j * m->dy, ch = cl + m->dy;
+        double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
+        if (ov > 0) wsum += ov;
+      }
+      for (long j = clo[i]; j <= chi[i]; j++) {
+        double cl = m->y0 + j * m->dy, ch = cl + m->dy;
+        double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
+        if (ov > 0) pwi[j] = ov / wsum;
+      }
     }
     for (long j = clo[i]; j <= chi[i]; j++) {
-      double cl = m->y0 + j * m->dy, ch = cl + m->dy;
-      double ov = fmin(hi[i], ch) - fmax(lo[i], cl);
-      if (!(ov > 0)) continue;
-      double p = ov / wsum;
-      m->pw[m->pwoff[i] + (size_t)(j - clo[i])] = p;
+      double p = pwi[j];
+      if (p == 0) continue;
       /* convolved cell j = sum_k g[k] * cell(j - k) */
       for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * g[k + hw];
     }
@@ -1299,10 +1378,11 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp, double *f
       flux[i] -= (a0 + a1) + (a2 + a3);
     }
   }
-  if (m->nsub) {
-    sub_corrections(m, -1, flux, 1);
+  if (m->nsub) sub_corrections(m, -1, flux, 1);
+  if (m->nsub || m->interp) {
     /* the corrections keep 0 <= flux <= 1 only to ~1e-7 for an LSF of
-     * about one cell (their kernels have small negative lobes there) */
+     * about one cell (their kernels have small negative lobes there), and
+     * cubic interpolation overshoots by up to ~1e-5 of a line's depth */
     for (size_t i = 0; i < n; i++) flux[i] = flux[i] < 0 ? 0.0 : (flux[i] > 1 ? 1.0 : flux[i]);
   }
   memcpy(m->last_flux, flux, n * sizeof *flux);

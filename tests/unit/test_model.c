@@ -714,6 +714,168 @@ static void test_narrow_many(void) {
   free(wave);
 }
 
+/* ---- pixels much finer than the line-spread function ---- */
+
+/* Reference pixel values, computed apart from the model: the absorption
+ * 1 - exp(-tau) from ref_tau on a grid uniform in ln(lambda) with steps of
+ * sigma/250, convolved with the untruncated Gaussian (out to 9 sigma, by
+ * the trapezoid rule, whose error for a Gaussian sampled this finely is
+ * negligible; common practice) and averaged over the pixel's extent in
+ * ln(lambda) by Simpson's rule (Abramowitz & Stegun 1964, 25.4.5). */
+typedef struct ref_conv {
+  double y0, hs, sy; /* grid start and step, sigma (ln lambda) */
+  size_t ng;
+  double *dep;       /* 1 - exp(-tau) on the grid */
+} ref_conv;
+
+static double ref_conv_at(const ref_conv *r, double y) {
+  const double norm = r->hs / (r->sy * sqrt(2.0 * 3.14159265358979323846));
+  double u = (y - r->y0) / r->hs;
+  long reach = (long)ceil(9.0 * r->sy / r->hs), c = (long)floor(u);
+  long a = c - reach < 0 ? 0 : c - reach, b = c + reach > (long)r->ng - 1 ? (long)r->ng - 1 : c + reach;
+  double s = 0;
+  for (long m = a; m <= b; m++) {
+    double z = (y - (r->y0 + m * r->hs)) / r->sy;
+    s += exp(-0.5 * z * z) * r->dep[m];
+  }
+  return s * norm;
+}
+
+static void test_fine_pixels(void) {
+  /* R 40000 (sigma = c/R/2.3548 = 3.18 km/s) on pixels of sigma/50 (0.064
+   * km/s): the sub-pixel cells are sigma/DT_MODEL_LSF_CELLS, the pixels
+   * interpolate them.  A saturated, a weak and a narrow component (b
+   * below the cell, sub-sampled). */
+  dt_doublet d = nai();
+  const double R = 40000, sig = DT_C_KMS / R / (2 * sqrt(2 * log(2)));
+  const double lam_mid = 5894.5, dl = lam_mid * sig / 50 / DT_C_KMS;
+  const size_t n = (size_t)(12.0 / dl);
+  double *wave = grid(5888.5, dl, n), *flux = malloc(n * sizeof *flux);
+  dt_component c[3] = {{12.9, 4.0, -8.0}, {11.6, 1.2, 14.0}, {11.3, 0.15, 30.0}};
+  dt_model_config cfg = {.doublet = &d, .resolution = R};
+  dt_err e;
+  dt_model *m = dt_model_alloc(wave, n, &cfg, 3, &e);
+  CHECK(m != NULL, "%zu pixels of sigma/50 at R 40000 allocate", n);
+  if (!m) {
+    free(wave);
+    free(flux);
+    return;
+  }
+  dt_model_info in;
+  dt_model_get_info(m, &in);
+  CHECK(in.interpolated == 1, "pixels 50 times finer than the LSF sigma: interpolated cells");
+  CHECK_REL(in.step_kms, sig / DT_MODEL_LSF_CELLS, 1e-9, "cell = sigma / %d (%.4f km/s)",
+            DT_MODEL_LSF_CELLS, in.step_kms);
+  /* per pixel: the kernel (2 hw + 1) and at most 4 nodes of the cubic */
+  double per_pix = (double)in.ncoef / (double)n;
+  double bound = 2 * ceil(DT_MODEL_LSF_NSIGMA * DT_MODEL_LSF_CELLS) + 5;
+  CHECK(per_pix <= bound, "matrix entries per pixel %.1f <= %.0f (cells of pixel/5: ~%.0f)", per_pix,
+        bound, 2 * DT_MODEL_LSF_NSIGMA * 50 * DT_MODEL_OVERSAMPLE);
+
+  /* (a) against the reference convolution, every pixel */
+  CHECK(dt_model_eval(m, c, 3, flux, NULL, 0) == DT_OK, "fine pixels evaluate");
+  ref_conv rc;
+  rc.sy = sig / DT_C_KMS;
+  rc.hs = rc.sy / 250;
+  double ylo = log(wave[0]) - 10 * rc.sy, yhi = log(wave[n - 1]) + 10 * rc.sy;
+  rc.y0 = ylo;
+  rc.ng = (size_t)((yhi - ylo) / rc.hs) + 1;
+  rc.dep = malloc(rc.ng * sizeof *rc.dep);
+  for (size_t g = 0; g < rc.ng; g++) {
+    double lam = exp(rc.y0 + g * rc.hs), t = 0;
+    for (int k = 0; k < 3; k++)
+      for (int l = 0; l < 2; l++) t += ref_tau(&d.line[l], &c[k], lam);
+    rc.dep[g] = -expm1(-t);
+  }
+  double *edge = malloc((n + 1) * sizeof *edge);
+  pixel_edges(wave, n, edge);
+  double worst = 0, at = 0, deepest = 1;
+  for (size_t i = 0; i < n; i += 3) {
+    double a = log(edge[i]), b = log(edge[i + 1]);
+    double ref = 1.0 - (ref_conv_at(&rc, a) + 4 * ref_conv_at(&rc, 0.5 * (a + b)) + ref_conv_at(&rc, b)) / 6;
+    if (fabs(flux[i] - ref) > worst) {
+      worst = fabs(flux[i] - ref);
+      at = wave[i];
+    }
+    if (ref < deepest) deepest = ref;
+  }
+  CHECK(deepest < 0.2, "the saturated line is deep after the LSF (%.3f)", deepest);
+  CHECK(worst <= 1e-4, "fine pixels: flux within 1e-4 of a direct high-resolution convolution "
+        "(worst %.2g at %.3f A)", worst, at);
+  /* and the equivalent width against adaptive integration of its definition */
+  gsl_integration_workspace *ws = gsl_integration_workspace_alloc(20000);
+  ref_abs ra = {&d, c, 3};
+  double wref = ref_width(&ra, edge[0], edge[n], ws), wmod = model_width(edge, flux, n);
+  CHECK_REL(wmod, wref, 3e-4, "fine pixels: W %.6f A against %.6f A", wmod, wref);
+  gsl_integration_workspace_free(ws);
+
+  /* (b) the Jacobian against central differences */
+  dt_model_config cj = cfg;
+  cj.tau_cut = 1e-14;
+  dt_model *mj = dt_model_alloc(wave, n, &cj, 3, &e);
+  if (mj) {
+    double err = jac_error_b(mj, c, 3, n);
+    CHECK(err < 1e-5, "fine pixels: Jacobian matches central differences (%.2g)", err);
+    dt_model_free(mj);
+  }
+  free(rc.dep);
+  free(edge);
+  dt_model_free(m);
+  free(wave);
+  free(flux);
+
+  /* where the rule switches: cells of pixel/oversample are kept down to
+   * sigma / (2 DT_MODEL_LSF_CELLS) (0.5 A at R 3000: sigma / 8.3; 0.1 A at
+   * R 20000: sigma / 6.2), coarsened below (0.1 A at R 3000: sigma / 42) */
+  const struct {
+    double pix, R;
+    int interp;
+  } sw[] = {{0.5, 3000, 0}, {0.1, 20000, 0}, {0.1, 3000, 1}};
+  for (size_t s = 0; s < sizeof sw / sizeof *sw; s++) {
+    double *ws = grid(5880.0, sw[s].pix, 200);
+    dt_model_config cs = {.doublet = &d, .resolution = sw[s].R};
+    dt_model *ms = dt_model_alloc(ws, 200, &cs, 1, &e);
+    if (ms) {
+      dt_model_get_info(ms, &in);
+      double sg = DT_C_KMS / sw[s].R / (2 * sqrt(2 * log(2)));
+      double vmin = DT_C_KMS * log((ws[199] + 0.5 * sw[s].pix) / (ws[199] - 0.5 * sw[s].pix));
+      double want = sw[s].interp ? sg / DT_MODEL_LSF_CELLS : vmin / DT_MODEL_OVERSAMPLE;
+      CHECK(in.interpolated == sw[s].interp && fabs(in.step_kms / want - 1) < 1e-9,
+            "%.1f A pixels at R %g: cell %.3f km/s = %s", sw[s].pix, sw[s].R, in.step_kms,
+            sw[s].interp ? "sigma / 8" : "pixel / oversample");
+      dt_model_free(ms);
+    } else {
+      CHECK(0, "model allocates: %s", e.what);
+    }
+    free(ws);
+  }
+
+  /* (c) a fit window of 47 000 pixels of 0.028 km/s at R 40000 keeps a
+   * small matrix (with cells of a fifth of a pixel it would hold some
+   * 5 000 entries per pixel, 2 GB) */
+  const size_t nb = 47000;
+  double dlb = 5894.0 * 0.028 / DT_C_KMS;
+  double *wb = grid(5894.0 - 0.5 * nb * dlb, dlb, nb), *fb = malloc(nb * sizeof *fb);
+  dt_model *mb = dt_model_alloc(wb, nb, &cfg, 2, &e);
+  CHECK(mb != NULL, "47000 pixels of 0.028 km/s at R 40000 allocate");
+  if (mb) {
+    dt_model_get_info(mb, &in);
+    CHECK((double)in.ncoef <= bound * nb, "47000 fine pixels: %.1f MB of matrix (%.1f entries per pixel)",
+          in.ncoef * 8e-6, (double)in.ncoef / nb);
+    dt_component cb[2] = {{12.5, 3.0, -5.0}, {12.0, 6.0, 20.0}};
+    int ok = dt_model_eval(mb, cb, 2, fb, NULL, 0) == DT_OK, fin = 1;
+    double fmin_ = 1;
+    for (size_t i = 0; i < nb; i++) {
+      fin = fin && isfinite(fb[i]) && fb[i] >= 0 && fb[i] <= 1;
+      if (fb[i] < fmin_) fmin_ = fb[i];
+    }
+    CHECK(ok && fin && fmin_ < 0.9, "47000 fine pixels evaluate (deepest %.3f)", fmin_);
+    dt_model_free(mb);
+  }
+  free(wb);
+  free(fb);
+}
+
 static void test_grid_and_helpers(void) {
   dt_doublet d = nai();
   const size_t n = 660;
@@ -892,8 +1054,9 @@ static int print_pixels(void) {
   } cases[] = {
       {20000, 0, 0, 0, 5, 0, 2, {{12.3, 5.0, 3.0}, {12.0, 9.0, -215.0}}},
       {20000, 0, 0, 1e-12, 5, 0, 2, {{12.3, 5.0, 3.0}, {12.0, 9.0, -215.0}}},
-      {5000, 0, 250.0, 1e-12, 3, 1, 3, {{13.5, 3.0, 0.0}, {12.5, 20.0, 35.0}, {11.5, 6.0, -80.0}}},
-      {0, 45.0, -120.0, 1e-12, 7, 1, 1, {{15.5, 12.0, 10.0}}},
+      /* (cells of at least sigma/16, as the documented grid keeps them) */
+      {8000, 0, 250.0, 1e-12, 3, 1, 3, {{13.5, 3.0, 0.0}, {12.5, 20.0, 35.0}, {11.5, 6.0, -80.0}}},
+      {0, 15.0, -120.0, 1e-12, 7, 1, 1, {{15.5, 12.0, 10.0}}},
       {0, 0, 0, 1e-12, 5, 1, 1, {{12.8, 1.5, -40.0}}},
       {3000, 0, 0, 0, 5, 0, 2, {{13.0, 8.0, 0.0}, {12.2, 30.0, 60.0}}},
       /* lines narrower than the sub-pixel cells (sub-sampled) */
@@ -963,6 +1126,7 @@ int main(int argc, char **argv) {
   test_narrow_position();
   test_narrow_cache();
   test_narrow_many();
+  test_fine_pixels();
   test_bad_input();
   return dt_test_done();
 }
