@@ -111,7 +111,8 @@ void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o);
  * j->tie_b) and measurements.  j is not changed: to keep the fit, apply a
  * DT_ACT_FIT action with out->fit.  Returns DT_OK; DT_ENOTFOUND unknown
  * doublet; DT_ERANGE the doublet's windows are not covered by the
- * spectrum; DT_EMASKED every pixel there is masked; DT_EINVAL bad settings
+ * spectrum, or the continuum fitted beside them is not positive (no
+ * unabsorbed flux there, e.g. damping wings over the whole spectrum); DT_EMASKED every pixel there is masked; DT_EINVAL bad settings
  * (e.g. vlo >= vhi, continuum order out of range); the fit's status (DT_ENOCONV) when the
  * fit failed -- out is then still complete, with the best parameters the
  * fit reached.  e may be NULL. */

@@ -21,6 +21,14 @@
  *                     one line only), "implausible doublet ratio", "poor fit
  *                     (chi2_red X)" (confirmed, but chi2_red > 3), "fit did
  *                     not converge"
+ * Black cores: when pixels of either line reach zero flux (the floor of
+ * the apparent optical depth, measure.h) N_a is no measurement there, and
+ * steps 1-3 run on the depth 1 - F/C instead: both lines' equivalent
+ * widths at detect_sigma or more over the same velocities, their ratio
+ * W1/W2 between 1 and f1 lambda1^2 / (f2 lambda2^2) within the errors; the
+ * seed at the depth-weighted velocity of both lines, with the column both
+ * from the apparent column and from the damping wings (the better fit is
+ * kept).
  * Options fix the number of components or give seed velocities instead:
  * around a seed the velocity moves to the centroid of significant
  * absorption within 2 FWHM + 20 km/s, and the column starts from the

@@ -342,9 +342,21 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
         a->cont_err[i] = a->rerr[i0 - r0 + i];
         if (!(a->cont_fixed[i] > 0) || !isfinite(a->cont_fixed[i])) bad = 1;
       }
-      if (bad)
-        return dt_err_set(e, DT_EINVAL, "continuum",
-                          "the fitted continuum is not positive everywhere in the window");
+      /* The settings were valid (checked above) and the fit itself worked,
+       * so a continuum at or below zero says something about the data: the
+       * pixels it was fitted to hold no flux, as when the lines (damping
+       * wings, a black trough) or anything else absorb the whole spectrum
+       * around them.  That is a property of this spectrum, not a bad
+       * argument: DT_ERANGE, the lines not covered by usable data. */
+      if (bad) {
+        a->cont_status = DT_ERANGE;
+        return dt_err_set(e, DT_ERANGE, "continuum",
+                          "no continuum beside the lines: the continuum fitted to %zu "
+                          "pixels is not positive everywhere in the window (%s)",
+                          cr.nused,
+                          ck.nwin ? "are the continuum windows free of absorption?"
+                                  : "no unabsorbed flux near them; give continuum windows");
+      }
       a->cont_order_used = cr.order;
     }
     a->ckey = ck;

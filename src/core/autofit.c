@@ -21,14 +21,41 @@
  * line's frame (Delta = the velocity of the weaker line's rest wavelength
  * seen from the stronger line's), and the stronger line's absorption shows
  * at v - Delta in the weaker line's frame; such groups are "explained" and
- * not held against the doublet. */
+ * not held against the doublet.
+ *
+ * Black cores.  Where the flux reaches zero, N_a(v) is no measurement: the
+ * optical depth is undefined, the flux is raised to a floor (measure.h) and
+ * N_a is a lower limit with an error as large as itself, so a strongly
+ * saturated or damped doublet can show no significant N_a at all although
+ * both lines absorb at ten sigma.  When any pixel of either line's window
+ * is at that floor, the same steps run on the absorption depth
+ * D(v) = 1 - F/C instead (linear in the flux, its error sigma/C with the
+ * continuum's added in quadrature), and the coincidence test compares
+ * equivalent widths: W = (lambda/c) integral D dv of each line, both at
+ * least detect_sigma, their ratio W1/W2 between 1 (saturated) and
+ * f1 lambda1^2 / (f2 lambda2^2) (thin: the linear curve of growth, W
+ * proportional to N f lambda^2; Spitzer 1978, Physical Processes in the
+ * Interstellar Medium, ch. 3 -- from memory) within RATIO_SIGMA.  A
+ * confirmed group is then seeded at the depth-weighted mean velocity of
+ * both lines, each in its own frame (where a trough blends the two lines,
+ * the two frames' centres lie about Delta/2 either side of the truth and
+ * their mean is near it), and, if the group holds black pixels, fitted
+ * twice: from the apparent column (a lower limit) and from the column whose
+ * damping wings give the stronger line's W (damped_N), b held for a first
+ * fit and then freed; the lower chi2 is kept.
+ * Limits: a single line whose black trough is wider than the separation of
+ * the doublet covers both lines' positions and cannot be told from a
+ * doublet by the depth alone; a trough wider than the window leaves the
+ * velocity to the fit (nothing in the window places it). */
 #include "doubletty/autofit.h"
 
+#include <gsl/gsl_math.h>   /* M_PI */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/measure.h"
 #include "doubletty/model.h"
 
 #define MAX_GROUPS 32
@@ -58,11 +85,24 @@ void dt_autofit_opts_init(dt_autofit_opts *o) {
   o->bic_min = 10.0;
 }
 
+/* A profile of each line over the selected pixels, NaN where it is not
+ * measured: N_a(v) [cm^-2 (km/s)^-1] or the depth 1 - F/C, with 1-sigma
+ * errors. */
+typedef struct profile {
+  const double *y[2], *e[2];
+} profile;
+
 typedef struct ctx {
   dt_analysis *a;
   const dt_doublet *d;
   size_t n;
-  const double *vel[2], *na[2], *ne[2];
+  const double *vel[2];
+  profile na;           /* apparent column density */
+  profile dep;          /* absorption depth */
+  const profile *p;     /* the one the groups are found in */
+  int black;            /* pixels at the N_a floor: groups from the depth */
+  const double *flux, *sigma, *cont;
+  double floor_nsigma, floor_frac;  /* the N_a floor (measure.h defaults) */
   const unsigned char *used;
   double fwhm, pix;
   size_t box;
@@ -79,34 +119,37 @@ static double pixel_dv(const ctx *c, int l, size_t i) {
   return 0.5 * (v[i + 1] - v[i - 1]);
 }
 
-/* Integral of N_a of line l over velocities [va, vb] of its own frame. */
-static void integrate(const ctx *c, int l, double va, double vb, double *sum, double *err) {
+/* Integral of profile p of line l over velocities [va, vb] of its own frame. */
+static void integrate(const ctx *c, const profile *p, int l, double va, double vb, double *sum,
+                      double *err) {
+  const double *y = p->y[l], *ye = p->e[l];
   double s = 0, e2 = 0;
   for (size_t i = 0; i < c->n; i++) {
     double v = c->vel[l][i];
-    if (v < va || v > vb || !isfinite(c->na[l][i]) || !isfinite(c->ne[l][i])) continue;
+    if (v < va || v > vb || !isfinite(y[i]) || !isfinite(ye[i])) continue;
     double dv = pixel_dv(c, l, i);
-    s += c->na[l][i] * dv;
-    e2 += c->ne[l][i] * c->ne[l][i] * dv * dv;
+    s += y[i] * dv;
+    e2 += ye[i] * ye[i] * dv * dv;
   }
   *sum = s;
   *err = sqrt(e2);
 }
 
-/* Groups of significant absorption in line l. */
+/* Groups of significant absorption in line l (profile c->p). */
 static size_t find_groups(const ctx *c, int l, double thresh, group *g, size_t maxg) {
+  const double *y = c->p->y[l], *ye = c->p->e[l];
   size_t ng = 0, h = c->box / 2;
   long start = -1;
   for (size_t i = 0; i <= c->n; i++) {
     int hit = 0;
-    if (i < c->n && isfinite(c->na[l][i])) {
+    if (i < c->n && isfinite(y[i])) {
       double s = 0, e2 = 0;
       size_t lo = i > h ? i - h : 0, hi = i + h < c->n ? i + h : c->n - 1;
       for (size_t k = lo; k <= hi; k++) {
-        if (!isfinite(c->na[l][k]) || !isfinite(c->ne[l][k])) continue;
+        if (!isfinite(y[k]) || !isfinite(ye[k])) continue;
         double dv = pixel_dv(c, l, k);
-        s += c->na[l][k] * dv;
-        e2 += c->ne[l][k] * c->ne[l][k] * dv * dv;
+        s += y[k] * dv;
+        e2 += ye[k] * ye[k] * dv * dv;
       }
       hit = e2 > 0 && s / sqrt(e2) > thresh;
     }
@@ -127,18 +170,18 @@ static size_t find_groups(const ctx *c, int l, double thresh, group *g, size_t m
   for (size_t k = 0; k < ng; k++) {
     group *q = &g[k];
     double s, e;
-    integrate(c, l, q->va, q->vb, &s, &e);
+    integrate(c, c->p, l, q->va, q->vb, &s, &e);
     q->sig = e > 0 ? s / e : 0;
     double w = 0, m1 = 0, m2 = 0;
     for (size_t i = q->a; i <= q->b; i++) {
-      double x = c->na[l][i];
+      double x = y[i];
       if (!isfinite(x) || x <= 0) continue;
       w += x;
       m1 += x * c->vel[l][i];
     }
     q->v = w > 0 ? m1 / w : 0.5 * (q->va + q->vb);
     for (size_t i = q->a; i <= q->b; i++) {
-      double x = c->na[l][i];
+      double x = y[i];
       if (!isfinite(x) || x <= 0) continue;
       m2 += x * (c->vel[l][i] - q->v) * (c->vel[l][i] - q->v);
     }
@@ -150,16 +193,20 @@ static size_t find_groups(const ctx *c, int l, double thresh, group *g, size_t m
   return ng;
 }
 
-/* N_a-weighted mean velocity of line l over [va, vb] (positive N_a only);
- * dflt when there is none. */
-static double centroid(const ctx *c, int l, double va, double vb, double dflt) {
+/* Profile-weighted mean velocity of line l over [va, vb] (positive values
+ * only); dflt when there is none.  *wsum (may be NULL) receives the
+ * integral of the positive values over dv. */
+static double centroid(const ctx *c, const profile *p, int l, double va, double vb,
+                       double dflt, double *wsum) {
   double w = 0, m = 0;
   for (size_t i = 0; i < c->n; i++) {
-    double v = c->vel[l][i], x = c->na[l][i];
+    double v = c->vel[l][i], x = p->y[l][i];
     if (v < va || v > vb || !isfinite(x) || x <= 0) continue;
-    w += x;
-    m += x * v;
+    double dv = fabs(pixel_dv(c, l, i));
+    w += x * dv;
+    m += x * dv * v;
   }
+  if (wsum) *wsum = w;
   return w > 0 ? m / w : dflt;
 }
 
@@ -167,17 +214,50 @@ static int overlaps(double a0, double a1, double b0, double b1) {
   return a0 <= b1 && b0 <= a1;
 }
 
-/* The doublet coincidence test of a stronger-line group. */
-static void classify(const ctx *c, group *q) {
-  integrate(c, 0, q->va, q->vb, &q->A, &q->sA);
-  integrate(c, 1, q->va, q->vb, &q->B, &q->sB);
-  double rho = q->A > 0 ? q->B / q->A : 1.0;
+/* The doublet coincidence test of a stronger-line group.  A, B: integrals
+ * of N_a; with black cores equivalent widths [Angstrom] instead (the header
+ * comment). */
+static void classify(const ctx *c, group *q, double detect_sigma) {
+  if (!c->black) {
+    integrate(c, &c->na, 0, q->va, q->vb, &q->A, &q->sA);
+    integrate(c, &c->na, 1, q->va, q->vb, &q->B, &q->sB);
+    double rho = q->A > 0 ? q->B / q->A : 1.0;
+    if (rho < 1.0) rho = 1.0;
+    if (rho > c->r_thin) rho = c->r_thin;
+    double tol = RATIO_SIGMA * sqrt(q->sB * q->sB + rho * rho * q->sA * q->sA);
+    int consistent = fabs(q->B - rho * q->A) <= tol;
+    int bsig = q->sB > 0 && q->B >= CONFIRM_SIGMA * q->sB;
+    q->kind = !bsig ? G_WEAK : consistent ? G_CONFIRMED : G_ODD;
+    return;
+  }
+  /* W = (lambda0 / c) integral (1 - F/C) dv, rest frame [Angstrom] */
+  const dt_line *l0 = &c->d->line[0], *l1 = &c->d->line[1];
+  integrate(c, &c->dep, 0, q->va, q->vb, &q->A, &q->sA);
+  integrate(c, &c->dep, 1, q->va, q->vb, &q->B, &q->sB);
+  double k0 = l0->lambda0 / DT_C_KMS, k1 = l1->lambda0 / DT_C_KMS;
+  q->A *= k0;
+  q->sA *= k0;
+  q->B *= k1;
+  q->sB *= k1;
+  /* stronger over weaker: 1 (saturated) .. f1 lambda1^2 / (f2 lambda2^2) */
+  double rmax = (l0->f * l0->lambda0 * l0->lambda0) / (l1->f * l1->lambda0 * l1->lambda0);
+  if (rmax < 1) rmax = 1;
+  double rho = q->B > 0 ? q->A / q->B : 1.0;
   if (rho < 1.0) rho = 1.0;
-  if (rho > c->r_thin) rho = c->r_thin;
-  double tol = RATIO_SIGMA * sqrt(q->sB * q->sB + rho * rho * q->sA * q->sA);
-  int consistent = fabs(q->B - rho * q->A) <= tol;
-  int bsig = q->sB > 0 && q->B >= CONFIRM_SIGMA * q->sB;
-  q->kind = !bsig ? G_WEAK : consistent ? G_CONFIRMED : G_ODD;
+  if (rho > rmax) rho = rmax;
+  double tol = RATIO_SIGMA * sqrt(q->sA * q->sA + rho * rho * q->sB * q->sB);
+  int consistent = fabs(q->A - rho * q->B) <= tol;
+  int asig = q->sA > 0 && q->A >= detect_sigma * q->sA;
+  int bsig = q->sB > 0 && q->B >= detect_sigma * q->sB;
+  q->kind = !(asig && bsig) ? G_WEAK : consistent ? G_CONFIRMED : G_ODD;
+  if (q->kind == G_CONFIRMED) {
+    /* a doublet: the depth-weighted mean velocity of both lines, each in
+       its own frame (the header comment) */
+    double w0, w1;
+    double v0 = centroid(c, &c->dep, 0, q->va, q->vb, q->v, &w0);
+    double v1 = centroid(c, &c->dep, 1, q->va, q->vb, q->v, &w1);
+    if (w0 + w1 > 0) q->v = (w0 * v0 + w1 * v1) / (w0 + w1);
+  }
 }
 
 /* Seed column density from an integral of N_a [cm^-2]. */
@@ -186,6 +266,49 @@ static double seed_logN(double N) {
   if (x < 9.0) x = 9.0;
   if (x > 21.0) x = 21.0;
   return x;
+}
+
+/* Pixel i at the floor of the apparent optical depth (measure.h): black. */
+static int is_black(const ctx *c, size_t i) {
+  double fl = fmax(c->floor_nsigma * c->sigma[i], c->floor_frac * c->cont[i]);
+  return c->used[i] && !(c->flux[i] >= fl);
+}
+
+/* Column density [cm^-2] of a line whose damping wings alone give it the
+ * rest-frame equivalent width W [Angstrom].  Far from the core the optical
+ * depth is tau = A / dnu^2 with A = N sigma0 f Gamma / (4 pi^2) (Lorentzian
+ * wing), and integral (1 - exp(-A/x^2)) dx = 2 sqrt(pi A), so
+ *     N = pi W_nu^2 / (sigma0 f Gamma),   W_nu = c W / lambda^2
+ * (the square-root part of the curve of growth; e.g. Spitzer 1978,
+ * Physical Processes in the Interstellar Medium, ch. 3 -- from memory).
+ * sigma0 = pi e^2 / (m_e c) [cm^2 s^-1], c in cm/s, lambda and W in cm. */
+static double damped_N(double W, const dt_line *ln) {
+  double lam = ln->lambda0 * 1e-8, wnu = DT_C_KMS * 1e5 * (W * 1e-8) / (lam * lam);
+  if (!(W > 0) || !(ln->f > 0) || !(ln->gamma > 0)) return 0;
+  return M_PI * wnu * wnu / (DT_SIGMA0 * ln->f * ln->gamma);
+}
+
+/* Starting component of a group found in the depth (black cores): at the
+ * group's velocity (classify), the column from the apparent column (a lower
+ * limit) and, when the group holds black pixels, *logN_damp from its
+ * damping wings (0 otherwise). */
+static void depth_seed(const ctx *c, const group *q, dt_component *s, double *logN_damp) {
+  s->v = q->v;
+  double A, sA, B, sB;
+  integrate(c, &c->na, 0, q->va, q->vb, &A, &sA);
+  integrate(c, &c->na, 1, q->va, q->vb, &B, &sB);
+  s->logN = seed_logN(fmax(A, B));
+  s->b = q->bseed;
+  *logN_damp = 0;
+  int black = 0;
+  for (size_t i = 0; i < c->n && !black; i++) {
+    int in0 = c->vel[0][i] >= q->va && c->vel[0][i] <= q->vb;
+    int in1 = c->vel[1][i] >= q->va && c->vel[1][i] <= q->vb;
+    black = (in0 || in1) && is_black(c, i);
+  }
+  if (!black) return;
+  double Nd = damped_N(q->A, &c->d->line[0]);  /* q->A: W of the stronger line */
+  if (Nd > 0 && log10(Nd) > s->logN) *logN_damp = seed_logN(Nd);
 }
 
 /* Velocity of the most significant absorption left in the residuals of
@@ -246,14 +369,33 @@ static int residual_seed(const ctx *c, dt_component *out) {
   return 1;
 }
 
-static int fit_with(dt_analysis *a, const dt_judgement *base, const dt_component *comp,
-                    size_t nc, dt_analysis_out *out, dt_err *e) {
+/* Fit components comp (nc) on the settings of base; freeze: DT_FREEZE_*
+ * bits held on every component (0: all free). */
+static int fit_frozen(dt_analysis *a, const dt_judgement *base, const dt_component *comp,
+                      size_t nc, unsigned char freeze, dt_analysis_out *out, dt_err *e) {
   dt_judgement w = *base;
   w.ncomp = nc;
   memcpy(w.comp, comp, nc * sizeof comp[0]);
-  memset(w.frozen, 0, sizeof w.frozen);
+  memset(w.frozen, freeze, sizeof w.frozen);
   w.has_fit = 0;
   return dt_analysis_run(a, &w, out, e);
+}
+
+static int fit_with(dt_analysis *a, const dt_judgement *base, const dt_component *comp,
+                    size_t nc, dt_analysis_out *out, dt_err *e) {
+  return fit_frozen(a, base, comp, nc, 0, out, e);
+}
+
+/* Make the analysis hold the state of a fit result again (model, residuals)
+ * after another fit was tried. */
+static void restore_state(dt_analysis *a, const dt_judgement *base, const dt_analysis_out *r) {
+  dt_judgement w = *base;
+  w.ncomp = r->fit.ncomp;
+  memcpy(w.comp, r->fit.comp, w.ncomp * sizeof w.comp[0]);
+  memset(w.frozen, 0, sizeof w.frozen);
+  w.has_fit = 0;
+  dt_analysis_out tmp;
+  (void)dt_analysis_eval(a, &w, &tmp, NULL);
 }
 
 static int by_sig(const void *x, const void *y) {
@@ -261,40 +403,49 @@ static int by_sig(const void *x, const void *y) {
   return (a->sig < b->sig) - (a->sig > b->sig);
 }
 
-int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
-                   dt_autofit_out *o, dt_err *e) {
-  dt_autofit_opts op;
-  if (opts) op = *opts;
-  else dt_autofit_opts_init(&op);
-  if (op.max_comp == 0) op.max_comp = DT_AUTOFIT_MAX_COMP;
-  if (op.max_comp > DT_MAX_COMP) op.max_comp = DT_MAX_COMP;
-  if (!(op.detect_sigma > 0)) op.detect_sigma = 3.0;
-  if (!(op.bic_min > 0)) op.bic_min = 10.0;
-  if (op.ncomp > DT_MAX_COMP || op.ncomp < 0 || op.nseed > DT_MAX_COMP)
-    return dt_err_set(e, DT_EINVAL, "components", "at most %d components", DT_MAX_COMP);
-  memset(o, 0, sizeof *o);
-  o->suggested = DT_VERDICT_UNSURE;
-
-  /* 1. the profiles without components */
-  dt_judgement base = *j;
-  base.ncomp = 0;
-  memset(base.frozen, 0, sizeof base.frozen);
-  base.has_fit = 0;
-  dt_analysis_out an0;
-  int st = dt_analysis_eval(a, &base, &an0, e);
-  if (st != DT_OK) return st;
-
+/* Steps 2 to 6 of dt_autofit_run, the analysis holding the state of an0
+ * (no components); work: 4 an0.n doubles for the depth profiles. */
+static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *basep,
+                      const dt_autofit_opts *opp, const dt_analysis_out *an0p, double *work,
+                      dt_autofit_out *o, dt_err *e) {
+  const dt_autofit_opts op = *opp;
+  const dt_judgement base = *basep;
+  const dt_analysis_out an0 = *an0p;
   ctx c;
   memset(&c, 0, sizeof c);
   c.a = a;
   c.d = an0.doublet;
   c.n = an0.n;
+  c.used = dt_analysis_used(a);
+  c.flux = dt_analysis_flux(a);
+  c.sigma = dt_analysis_sigma(a);
+  c.cont = dt_analysis_continuum(a);
+  const double *cerr = dt_analysis_continuum_err(a);
+  dt_measure_opts mo;
+  dt_measure_opts_init(&mo);
+  c.floor_nsigma = mo.floor_nsigma;
+  c.floor_frac = mo.floor_frac;
   for (int l = 0; l < 2; l++) {
     c.vel[l] = dt_analysis_velocity(a, l);
-    c.na[l] = dt_analysis_na_profile(a, l);
-    c.ne[l] = dt_analysis_na_profile_err(a, l);
+    c.na.y[l] = dt_analysis_na_profile(a, l);
+    c.na.e[l] = dt_analysis_na_profile_err(a, l);
+    /* the depth where N_a is measured (the line's window, used pixels) */
+    double *y = work + (size_t)(2 * l) * c.n, *ye = y + c.n;
+    for (size_t i = 0; i < c.n; i++) {
+      double C = c.cont[i];
+      if (!isfinite(c.na.y[l][i]) || !(C > 0)) {
+        y[i] = ye[i] = NAN;
+        continue;
+      }
+      double sc = isfinite(cerr[i]) ? cerr[i] : 0.0;
+      y[i] = 1.0 - c.flux[i] / C;
+      ye[i] = hypot(c.sigma[i] / C, c.flux[i] * sc / (C * C));
+      if (is_black(&c, i)) c.black = 1;
+    }
+    c.dep.y[l] = y;
+    c.dep.e[l] = ye;
   }
-  c.used = dt_analysis_used(a);
+  c.p = c.black ? &c.dep : &c.na;
   c.fwhm = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0;
   c.pix = fabs(c.vel[0][c.n - 1] - c.vel[0][0]) / (double)(c.n - 1);
   double bw = c.fwhm > 0 ? c.fwhm / c.pix : 3.0;
@@ -314,7 +465,7 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
   for (size_t k = 0; k < n0; k++) {
     group *q = &g0[k];
     if (q->explained) continue;
-    classify(&c, q);
+    classify(&c, q, op.detect_sigma);
     if (q->kind != G_CONFIRMED) continue;
     /* its weaker line, seen in the stronger line's frame, and the stronger
        line seen in the weaker's frame */
@@ -359,8 +510,9 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
   }
 
   /* 3. seeds */
-  dt_component seed[DT_MAX_COMP];
+  dt_component seed[DT_MAX_COMP], alt[DT_MAX_COMP];  /* alt: damped columns */
   size_t ns = 0;
+  int have_alt = 0;
   if (op.nseed > 0) {
     /* Around each given velocity (within 2 FWHM + 20 km/s): the column from
      * the apparent optical depth, at least what 3 sigma of noise allows,
@@ -368,9 +520,9 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
     for (size_t k = 0; k < op.nseed; k++) {
       double hw = 2.0 * fmax(c.fwhm, 3 * c.pix) + 20.0, v = op.seed_v[k];
       double A, sA, B, sB;
-      integrate(&c, 0, v - hw, v + hw, &A, &sA);
-      integrate(&c, 1, v - hw, v + hw, &B, &sB);
-      if (A > 3.0 * sA) v = centroid(&c, 0, v - hw, v + hw, v);
+      integrate(&c, &c.na, 0, v - hw, v + hw, &A, &sA);
+      integrate(&c, &c.na, 1, v - hw, v + hw, &B, &sB);
+      if (A > 3.0 * sA) v = centroid(&c, &c.na, 0, v - hw, v + hw, v, NULL);
       seed[ns].logN = seed_logN(fmax(fmax(A, B), 3.0 * sA));
       seed[ns].b = fmax(c.fwhm / 3.0, 5.0);
       seed[ns].v = v;
@@ -380,15 +532,31 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
     for (size_t k = 0; k < n0 && ns < op.max_comp; k++) {
       group *q = &g0[k];
       if (q->explained || q->kind != G_CONFIRMED) continue;
-      seed[ns].logN = seed_logN(fmax(q->A, q->B));
-      seed[ns].b = q->bseed;
-      seed[ns].v = q->v;
+      if (c.black) {
+        double ld;
+        depth_seed(&c, q, &seed[ns], &ld);
+        alt[ns] = seed[ns];
+        if (ld > 0) {   /* b of an unresolved line: the core is black anyway */
+          alt[ns].logN = ld;
+          alt[ns].b = fmax(c.fwhm / 3.0, 5.0);
+          have_alt = 1;
+        }
+      } else {
+        seed[ns].logN = seed_logN(fmax(q->A, q->B));
+        seed[ns].b = q->bseed;
+        seed[ns].v = q->v;
+      }
       ns++;
     }
     if (ns == 0 && strongest_unconf) {
-      seed[0].logN = seed_logN(strongest_unconf->A);
-      seed[0].b = strongest_unconf->bseed;
-      seed[0].v = strongest_unconf->v;
+      if (c.black) {
+        double ld;
+        depth_seed(&c, strongest_unconf, &seed[0], &ld);
+      } else {
+        seed[0].logN = seed_logN(strongest_unconf->A);
+        seed[0].b = strongest_unconf->bseed;
+        seed[0].v = strongest_unconf->v;
+      }
       ns = 1;
     }
   }
@@ -397,6 +565,7 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
   for (size_t k = 0; k < ns; k++) {
     if (seed[k].v < j->vlo) seed[k].v = j->vlo;
     if (seed[k].v > j->vhi) seed[k].v = j->vhi;
+    alt[k].v = seed[k].v;
   }
 
   /* 4. fit; grow while the BIC improves (or up to the fixed number) */
@@ -418,6 +587,36 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
     if (best_st != DT_OK && best_st != DT_ENOCONV) {
       if (e) *e = fe;
       return best_st;
+    }
+    /* black cores: the column lies anywhere between the apparent column
+     * and the damped one; start from the latter too, keep the better fit */
+    if (have_alt) {
+      dt_analysis_out trial;
+      dt_err te;
+      dt_err_clear(&te);
+      /* In a black core b is not measured (the core is black whatever
+       * it is) and a free b wanders to its bound and stalls the solver:
+       * place the column and velocity with b held first, then free it,
+       * and keep the held fit when the free one does not converge. */
+      int ts = fit_frozen(a, &base, alt, ns, DT_FREEZE_B, &trial, &te);
+      if (ts == DT_OK) {
+        dt_component from[DT_MAX_COMP];
+        memcpy(from, trial.fit.comp, ns * sizeof from[0]);
+        dt_analysis_out freed;
+        dt_err fre;
+        dt_err_clear(&fre);
+        if (fit_with(a, &base, from, ns, &freed, &fre) == DT_OK) trial = freed;
+        else restore_state(a, &base, &trial);
+      }
+      int better = (ts == DT_OK && (best_st != DT_OK || trial.fit.chi2 < best.fit.chi2)) ||
+                   (ts == DT_ENOCONV && best_st == DT_ENOCONV && trial.fit.chi2 < best.fit.chi2);
+      if (better) {
+        best = trial;
+        best_st = ts;
+        fe = te;
+      } else {
+        restore_state(a, &base, &best);  /* the grown fits read the residuals */
+      }
     }
   } else {
     /* no components: the zero-component "fit" gives chi2 and BIC */
@@ -506,4 +705,34 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
     return best_st;
   }
   return DT_OK;
+}
+
+int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
+                   dt_autofit_out *o, dt_err *e) {
+  dt_autofit_opts op;
+  if (opts) op = *opts;
+  else dt_autofit_opts_init(&op);
+  if (op.max_comp == 0) op.max_comp = DT_AUTOFIT_MAX_COMP;
+  if (op.max_comp > DT_MAX_COMP) op.max_comp = DT_MAX_COMP;
+  if (!(op.detect_sigma > 0)) op.detect_sigma = 3.0;
+  if (!(op.bic_min > 0)) op.bic_min = 10.0;
+  if (op.ncomp > DT_MAX_COMP || op.ncomp < 0 || op.nseed > DT_MAX_COMP)
+    return dt_err_set(e, DT_EINVAL, "components", "at most %d components", DT_MAX_COMP);
+  memset(o, 0, sizeof *o);
+  o->suggested = DT_VERDICT_UNSURE;
+
+  /* 1. the profiles without components */
+  dt_judgement base = *j;
+  base.ncomp = 0;
+  memset(base.frozen, 0, sizeof base.frozen);
+  base.has_fit = 0;
+  dt_analysis_out an0;
+  int st = dt_analysis_eval(a, &base, &an0, e);
+  if (st != DT_OK) return st;
+  /* the depth profiles of both lines with their errors */
+  double *work = malloc(4 * an0.n * sizeof *work);
+  if (!work) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  st = first_pass(a, j, &base, &op, &an0, work, o, e);
+  free(work);
+  return st;
 }
