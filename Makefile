@@ -15,7 +15,7 @@ VERSION  := 0.1.0
 PKGS      := gsl cfitsio libcerf ncursesw libcrypto
 DEB_PKGS  := build-essential pkg-config libgsl-dev libcfitsio-dev libcerf-dev \
              libncurses-dev libssl-dev
-TEST_DEBS := python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time
+TEST_DEBS := python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time clang libclang-rt-14-dev
 
 PKG_OK := $(shell pkg-config --exists $(PKGS) 2>/dev/null && echo yes)
 ifneq ($(PKG_OK),yes)
@@ -109,6 +109,6 @@ deps:
 	$$SUDO apt-get update && DEBIAN_FRONTEND=noninteractive $$SUDO apt-get install -y $(DEB_PKGS) $(TEST_DEBS)
 
 clean:
-	rm -rf build build-san
+	rm -rf build build-san build-fuzz
 
 -include $(CORE_OBJ:.o=.d) $(UI_OBJ:.o=.d) $(CMD_OBJ:.o=.d)

@@ -15,6 +15,7 @@
  * all layouts share is done by dt_spectrum_finish (spectrum.c).  A file can
  * also be read from its bytes in memory (cfitsio's memory driver). */
 #include <ctype.h>
+#include <limits.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -30,6 +31,9 @@ typedef struct fctx {
   fitsfile *f;
   const char *file;
   const unsigned char *mem; /* the file's bytes when read from memory, else NULL */
+  void *mem_ptr;            /* cfitsio keeps the addresses of these two for */
+  size_t mem_size;          /*   as long as the memory file is open */
+  unsigned char *padded;    /* mem copied into whole blocks, or NULL */
   long long fsize;
   /* values from the primary header, used when the spectrum's HDU lacks them */
   double prim_res;
@@ -127,7 +131,8 @@ static void read_common_keys(fctx *c, dt_spectrum *s) {
   }
 }
 
-/* Bytes of data an HDU declares (without the padding to 2880). */
+/* Bytes of data an HDU declares (without the padding to 2880); LLONG_MAX
+ * when the keywords give more than any file holds, or nonsense. */
 static long long declared_data_bytes(fitsfile *f) {
   double bitpix = 8, naxis = 0, pcount = 0, gcount = 1, v;
   key_dbl(f, "BITPIX", &bitpix);
@@ -135,15 +140,17 @@ static long long declared_data_bytes(fitsfile *f) {
   if (key_dbl(f, "PCOUNT", &v) == 1) pcount = v;
   if (key_dbl(f, "GCOUNT", &v) == 1) gcount = v;
   if (naxis < 1) return 0;
-  long long prod = 1;
-  for (int i = 1; i <= (int)naxis && i <= 999; i++) {
+  /* in floating point: damaged keywords must not overflow an integer */
+  double prod = 1;
+  for (int i = 1; i <= naxis && i <= 999; i++) {
     char key[FLEN_KEYWORD];
     snprintf(key, sizeof key, "NAXIS%d", i);
     double len = 0;
     key_dbl(f, key, &len);
-    prod *= (long long)len;
+    prod *= trunc(len);
   }
-  return (long long)(fabs(bitpix) / 8) * (long long)gcount * ((long long)pcount + prod);
+  double bytes = trunc(fabs(bitpix) / 8) * trunc(gcount) * (trunc(pcount) + prod);
+  return bytes >= 0 && bytes < 9e18 ? (long long)bytes : LLONG_MAX;
 }
 
 /* Is the current HDU's data entirely inside the file? */
@@ -154,11 +161,23 @@ static int check_complete(fctx *c, int hdu, dt_err *e) {
   snprintf(where, sizeof where, "HDU %d", hdu);
   fits_get_hduaddrll(c->f, &head, &data, &end, &st);
   if (st) return cfitsio_err(e, st, where, "locating the data");
-  long long need = data + declared_data_bytes(c->f);
+  long long bytes = declared_data_bytes(c->f);
+  long long need = bytes > LLONG_MAX - data ? LLONG_MAX : data + bytes;
+  if (need == LLONG_MAX)
+    return dt_err_set(e, DT_EFORMAT, where,
+                      "damaged FITS header: its data sizes (BITPIX, NAXISn, PCOUNT, GCOUNT) make "
+                      "no sense");
   if (need > c->fsize)
     return dt_err_set(e, DT_EFORMAT, where,
                       "truncated FITS file: the data end at byte %lld but the file has only %lld bytes",
                       need, c->fsize);
+  /* cfitsio reads the data in whole 2880-byte blocks: the last one must be
+   * whole too (the FITS standard pads it) */
+  if (need > data && (need + 2879) / 2880 * 2880 > c->fsize)
+    return dt_err_set(e, DT_EFORMAT, where,
+                      "truncated FITS file: the last 2880-byte block of the data is cut short at "
+                      "byte %lld",
+                      c->fsize);
   return DT_OK;
 }
 
@@ -211,12 +230,20 @@ static int count_hdus(fitsfile *f) {
   return n;
 }
 
+/* cfitsio's status after moving to an HDU.  From memory it is given the
+ * whole blocks only: running out of them where the bytes go on into a
+ * cut-off last block is, on disk, a failed read of that block. */
+static int moved(const fctx *c, int st) {
+  return (st == END_OF_FILE && c->mem && c->fsize % 2880 != 0) ? READ_ERROR : st;
+}
+
 /* Move to the HDU holding the spectrum. */
 static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_err *e) {
   int st = 0;
   char where[32];
   if (sel->number > 0) {
     fits_movabs_hdu(c->f, sel->number, type, &st);
+    st = moved(c, st);
     if (st == END_OF_FILE || st == BAD_HDU_NUM) {
       fits_clear_errmsg();
       int have = count_hdus(c->f);
@@ -230,6 +257,7 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
   }
   if (sel->name) {
     fits_movnam_hdu(c->f, ANY_HDU, (char *)sel->name, 0, &st);
+    st = moved(c, st);
     if (st == BAD_HDU_NUM || st == END_OF_FILE) {
       fits_clear_errmsg();
       return dt_err_set(e, DT_ENOTFOUND, NULL, "no HDU with EXTNAME '%s'", sel->name);
@@ -242,6 +270,7 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
   for (int i = 1;; i++) {
     st = 0;
     fits_movabs_hdu(c->f, i, type, &st);
+    st = moved(c, st);
     if (st == END_OF_FILE) {
       fits_clear_errmsg();
       break;
@@ -262,6 +291,119 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
   return dt_err_set(e, DT_EFORMAT, NULL, "no HDU holds a spectrum (no image data, no table rows)");
 }
 
+/* ---- a guard against a cfitsio defect -------------------------------------
+ *
+ * cfitsio 4.2 copies the value of a TTYPEn card that is not a quoted string
+ * into a field of 70 bytes without checking its length: 70 characters or
+ * more overflow it, which the C library's checks turn into an abort.  And it
+ * takes memory for as many columns as TFIELDS says, however many that is.
+ * The FITS standard makes TTYPEn a character string and limits TFIELDS to
+ * 0..999, so either can only be damage; every header is searched for them
+ * before cfitsio reads it.  The headers are found as cfitsio finds them: a
+ * header ends with the END card, and its data take
+ * |BITPIX|/8 * GCOUNT * (PCOUNT + NAXIS1 * ... * NAXISn) bytes (NAXIS1 left
+ * out for random groups), padded to 2880-byte blocks (FITS Standard 4.0).
+ * Anything the walk cannot follow is left to cfitsio. */
+
+/* Bytes pos.. of the file into buf[0..n): the count read (0 at the end). */
+static size_t raw_read(const fctx *c, FILE *fp, long long pos, unsigned char *buf, size_t n) {
+  if (pos < 0 || pos >= c->fsize) return 0;
+  if ((long long)n > c->fsize - pos) n = (size_t)(c->fsize - pos);
+  if (c->mem) {
+    memcpy(buf, c->mem + pos, n);
+    return n;
+  }
+  if (fseeko(fp, (off_t)pos, SEEK_SET) != 0) return 0;
+  return fread(buf, 1, n, fp);
+}
+
+/* The value of a card as text (up to a '/', blanks trimmed) into v[71];
+ * returns 1 when it is a quoted string. */
+static int card_value(const unsigned char *card, char *v) {
+  size_t a = 9, b;
+  while (a < 80 && card[a] == ' ') a++;
+  if (a < 80 && card[a] == '\'') {
+    v[0] = '\0';
+    return 1;
+  }
+  for (b = a; b < 80 && card[b] != '/'; b++) {}
+  while (b > a && card[b - 1] == ' ') b--;
+  memcpy(v, card + a, b - a);
+  v[b - a] = '\0';
+  return 0;
+}
+
+static int guard_headers(const fctx *c, dt_err *e) {
+  FILE *fp = NULL;
+  if (!c->mem && !(fp = fopen(c->file, "rb"))) return DT_OK; /* cfitsio will say why */
+  static const long long max_axes = 999;
+  unsigned char block[2880];
+  long long pos = 0, nax[1000];
+  int rc = DT_OK;
+  for (int hdu = 1; rc == DT_OK && pos < c->fsize && hdu <= 100000; hdu++) {
+    long long bitpix = 0, naxis = 0, pcount = 0, gcount = 1;
+    memset(nax, 0, sizeof nax);
+    int ended = 0;
+    while (rc == DT_OK && !ended) {
+      size_t got = raw_read(c, fp, pos, block, sizeof block);
+      if (got == 0) break;
+      memset(block + got, 0, sizeof block - got);
+      pos += (long long)sizeof block;
+      for (int k = 0; k < 36 && !ended; k++) {
+        const unsigned char *card = block + 80 * k;
+        if (!memcmp(card, "END     ", 8)) {
+          ended = 1;
+          break;
+        }
+        if (card[8] != '=') continue;
+        char key[9], v[72];
+        memcpy(key, card, 8);
+        key[8] = '\0';
+        for (int i = 7; i >= 0 && key[i] == ' '; i--) key[i] = '\0';
+        int quoted = card_value(card, v);
+        if (!strncmp(key, "TTYPE", 5) && !quoted && strlen(v) >= 60) {
+          char where[32];
+          snprintf(where, sizeof where, "HDU %d", hdu);
+          rc = dt_err_set(e, DT_EFORMAT, where,
+                          "damaged FITS header: %s is not a quoted string (%zu characters)", key,
+                          strlen(v));
+          break;
+        }
+        char *end;
+        long long x = strtoll(v, &end, 10); /* the first number, as cfitsio reads it */
+        if (quoted || end == v) continue;
+        if (!strcmp(key, "TFIELDS") && (x < 0 || x > 999)) {
+          char where[32];
+          snprintf(where, sizeof where, "HDU %d", hdu);
+          rc = dt_err_set(e, DT_EFORMAT, where,
+                          "damaged FITS header: TFIELDS = %lld (a table has 0 to 999 columns)", x);
+          break;
+        }
+        if (!strcmp(key, "BITPIX")) bitpix = x;
+        else if (!strcmp(key, "NAXIS")) naxis = x;
+        else if (!strcmp(key, "PCOUNT")) pcount = x;
+        else if (!strcmp(key, "GCOUNT")) gcount = x;
+        else if (!strncmp(key, "NAXIS", 5) && isdigit((unsigned char)key[5])) {
+          long n = strtol(key + 5, &end, 10);
+          if (!*end && n >= 1 && n <= max_axes) nax[n] = x;
+        }
+      }
+    }
+    if (!ended || naxis < 0 || naxis > max_axes || pcount < 0 || gcount < 0) break;
+    double bytes = 0;
+    if (naxis > 0) {
+      double prod = 1;
+      long long first = (hdu == 1 && nax[1] == 0 && naxis > 1) ? 2 : 1; /* random groups */
+      for (long long i = first; i <= naxis; i++) prod *= (double)nax[i];
+      bytes = fabs((double)bitpix) / 8 * (double)gcount * ((double)pcount + prod);
+    }
+    if (!(bytes >= 0) || bytes > (double)c->fsize) break;
+    pos += ((long long)bytes + 2879) / 2880 * 2880;
+  }
+  if (fp) fclose(fp);
+  return rc;
+}
+
 /* Open the file (file != NULL) or the bytes mem[0..len) read-only. */
 static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_err *e) {
   memset(c, 0, sizeof *c);
@@ -270,17 +412,34 @@ static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_
   if (file) {
     struct stat st_;
     c->fsize = stat(file, &st_) == 0 ? (long long)st_.st_size : 0;
+    int rc = guard_headers(c, e);
+    if (rc) return rc;
     fits_open_diskfile(&c->f, file, READONLY, &st);
   } else {
-    /* cfitsio only reads a READONLY memory file: the buffer is not changed */
-    void *p = (void *)mem;
-    size_t size = len;
+    /* cfitsio only reads a READONLY memory file: the buffer is not changed.
+     * It is told of the whole 2880-byte blocks only, so that a cut-off last
+     * block is as unreadable as in a file on disk (the checks for a
+     * truncated file use the true length).  But its memory driver reads
+     * the blocks of an HDU's data without looking at that size: bytes that
+     * end inside a block are copied into whole blocks first. */
     c->mem = mem;
     c->fsize = (long long)len;
-    fits_open_memfile(&c->f, "memory.fits", READONLY, &p, &size, 0, NULL, &st);
+    int rc = guard_headers(c, e);
+    if (rc) return rc;
+    c->mem_ptr = (void *)mem;
+    c->mem_size = len - len % 2880;
+    if (len % 2880 != 0) {
+      c->padded = calloc(1, c->mem_size + 2880);
+      if (!c->padded) return dt_err_set(e, DT_ENOMEM, "HDU 1", "out of memory");
+      memcpy(c->padded, mem, len);
+      c->mem_ptr = c->padded;
+    }
+    fits_open_memfile(&c->f, "memory.fits", READONLY, &c->mem_ptr, &c->mem_size, 0, NULL, &st);
   }
   if (st) {
     c->f = NULL;
+    free(c->padded);
+    c->padded = NULL;
     char txt[FLEN_STATUS];
     fits_get_errstatus(st, txt);
     fits_clear_errmsg();
@@ -308,6 +467,8 @@ static void close_fits(fctx *c) {
   if (c->f) fits_close_file(c->f, &st);
   fits_clear_errmsg();
   c->f = NULL;
+  free(c->padded);
+  c->padded = NULL;
 }
 
 static void air_to_vacuum(dt_spectrum *s) {
@@ -725,6 +886,12 @@ static int read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out
                           cols[k]->name, cols[k]->vla ? "several" : "multiple", t.flux.name);
   }
   if (n < 1) return dt_err_set(e, DT_EFORMAT, where, "no pixels");
+  /* Every value takes at least one byte of the file: a longer row comes from
+   * a damaged array descriptor, and must not decide how much memory to take. */
+  if (n > c->fsize)
+    return dt_err_set(e, DT_EFORMAT, where,
+                      "damaged FITS file: %lld values per column cannot fit in its %lld bytes", n,
+                      c->fsize);
   dt_spectrum *s = dt_spectrum_alloc((size_t)n);
   double *buf = malloc((size_t)n * sizeof *buf);
   if (!s || !buf) {
