@@ -64,7 +64,7 @@ $(BIN): $(CMD_OBJ) $(LIBUI) $(LIBCORE)
 	$(CC) $(CFLAGS) $(LDFLAGS) $(CMD_OBJ) $(LIBUI) $(LIBCORE) $(LDLIBS) -o $@
 
 # Unit tests link the core and the pure parts of the UI (no terminal needed).
-$(BUILD)/tests/%: tests/unit/%.c tests/harness.h $(LIBUI) $(LIBCORE)
+$(BUILD)/tests/%: tests/unit/%.c tests/harness.h tests/fixtures.h $(LIBUI) $(LIBCORE)
 	@mkdir -p $(dir $@)
 	$(CC) $(CPPFLAGS) -Itests $(CFLAGS) $< $(LIBUI) $(LIBCORE) $(LDLIBS) -o $@
 

@@ -11,6 +11,7 @@
 #include "doubletty/atomic.h"
 #include "doubletty/continuum.h"
 #include "doubletty/model.h"
+#include "fixtures.h"
 #include "harness.h"
 
 #define NPIX 400
@@ -21,22 +22,6 @@ typedef struct {
   unsigned char mask[NPIX];
 } spec;
 
-/* A doublet with Na I D wavelengths (Morton 2003, ApJS 149, 205) for the
- * exclusion bands; only the wavelengths matter here. */
-static dt_doublet nai(void) {
-  dt_doublet d;
-  memset(&d, 0, sizeof d);
-  strcpy(d.name, "NaI");
-  strcpy(d.line[0].label, "NaI 5891");
-  d.line[0].lambda0 = 5891.5833;
-  d.line[0].f = 0.6408;
-  d.line[0].gamma = 6.16e7;
-  strcpy(d.line[1].label, "NaI 5897");
-  d.line[1].lambda0 = 5897.5581;
-  d.line[1].f = 0.3201;
-  d.line[1].gamma = 6.14e7;
-  return d;
-}
 
 /* The continuum every test injects: a quadratic in wavelength, in flux
  * units of order 1e-17 as real spectra have. */

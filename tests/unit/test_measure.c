@@ -12,27 +12,13 @@
 #include "doubletty/continuum.h"
 #include "doubletty/measure.h"
 #include "doubletty/model.h"
+#include "fixtures.h"
 #include "harness.h"
 
 #ifndef M_PI
 #define M_PI 3.14159265358979323846
 #endif
 
-/* Na I D (Morton 2003, ApJS 149, 205). */
-static dt_doublet nai(void) {
-  dt_doublet d;
-  memset(&d, 0, sizeof d);
-  strcpy(d.name, "NaI");
-  strcpy(d.line[0].label, "NaI 5891");
-  d.line[0].lambda0 = 5891.5833;
-  d.line[0].f = 0.6408;
-  d.line[0].gamma = 6.16e7;
-  strcpy(d.line[1].label, "NaI 5897");
-  d.line[1].lambda0 = 5897.5581;
-  d.line[1].f = 0.3201;
-  d.line[1].gamma = 6.14e7;
-  return d;
-}
 
 #define NMAX 12000
 static double wave[NMAX], flux[NMAX], sigma[NMAX], cont[NMAX], cerr[NMAX], model[NMAX];
