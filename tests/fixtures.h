@@ -1,6 +1,9 @@
-/* Shared test fixtures: atomic data used by several unit tests. */
+/* Shared test fixtures: atomic data and file helpers used by several unit
+ * tests. */
 #ifndef DT_TEST_FIXTURES_H
 #define DT_TEST_FIXTURES_H
+#include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "doubletty/atomic.h"
@@ -21,5 +24,28 @@ static inline dt_doublet nai(void) {
   d.line[1].gamma = 6.14e7;
   strcpy(d.source, "Morton (2003) ApJS 149, 205");
   return d;
+}
+
+/* The bytes of a file (NUL-terminated, *n without the NUL); NULL if it
+ * cannot be read.  The caller frees. */
+static inline unsigned char *slurp(const char *path, size_t *n) {
+  FILE *f = fopen(path, "rb");
+  if (!f) return NULL;
+  fseek(f, 0, SEEK_END);
+  long len = ftell(f);
+  fseek(f, 0, SEEK_SET);
+  unsigned char *b = len >= 0 ? malloc((size_t)len + 1) : NULL;
+  *n = b ? fread(b, 1, (size_t)len, f) : 0;
+  if (b) b[*n] = 0;
+  fclose(f);
+  return b;
+}
+
+/* Write n bytes to a file (replacing it). */
+static inline void spit(const char *path, const void *b, size_t n) {
+  FILE *f = fopen(path, "wb");
+  if (!f) return;
+  if (n) fwrite(b, 1, n, f);
+  fclose(f);
 }
 #endif

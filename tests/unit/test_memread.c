@@ -19,6 +19,7 @@
 #include "doubletty/journal.h"
 #include "doubletty/judge.h"
 #include "doubletty/spectrum.h"
+#include "fixtures.h"
 #include "harness.h"
 
 #define NPIX 40
@@ -31,24 +32,6 @@ static const char *tpath(const char *name) {
   k = (k + 1) % 4;
   snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
   return p[k];
-}
-
-static unsigned char *slurp(const char *path, size_t *n) {
-  FILE *f = fopen(path, "rb");
-  if (!f) return NULL;
-  fseek(f, 0, SEEK_END);
-  long len = ftell(f);
-  fseek(f, 0, SEEK_SET);
-  unsigned char *b = malloc((size_t)len + 1);
-  *n = fread(b, 1, (size_t)len, f);
-  fclose(f);
-  return b;
-}
-
-static void spit(const char *path, const void *b, size_t n) {
-  FILE *f = fopen(path, "wb");
-  if (n) fwrite(b, 1, n, f);
-  fclose(f);
 }
 
 /* A 1-D image with an uncertainty image and a mask image. */

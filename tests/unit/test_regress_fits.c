@@ -32,30 +32,13 @@
 #include <fitsio.h>
 
 #include "doubletty/spectrum.h"
+#include "fixtures.h"
 #include "harness.h"
 
 #define NPIX 24
 
 static char dir[64];
 static char path[128];
-
-static unsigned char *slurp(const char *p, size_t *n) {
-  FILE *f = fopen(p, "rb");
-  if (!f) return NULL;
-  fseek(f, 0, SEEK_END);
-  long len = ftell(f);
-  fseek(f, 0, SEEK_SET);
-  unsigned char *b = malloc((size_t)len + 1);
-  *n = fread(b, 1, (size_t)len, f);
-  fclose(f);
-  return b;
-}
-
-static void spit(const char *p, const void *b, size_t n) {
-  FILE *f = fopen(p, "wb");
-  fwrite(b, 1, n, f);
-  fclose(f);
-}
 
 /* A binary table with one spectrum in scalar columns WAVE, FLUX, IVAR
  * (vla = 0) or in variable-length array columns (vla = 1). */
