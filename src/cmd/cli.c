@@ -1,5 +1,6 @@
 /* Messages at the edge and location of the bundled data. */
 #include "cli.h"
+#include "doubletty/num.h"
 
 #include <errno.h>
 #include <limits.h>
@@ -72,7 +73,7 @@ dt_atomic *cli_load_atomic(const char *user_table) {
 int cli_parse_double(const char *opt, const char *text, double *out) {
   char *end;
   errno = 0;
-  double v = strtod(text ? text : "", &end);
+  double v = dt_num_strtod(text ? text : "", &end);
   if (!text || end == text || *end != '\0' || errno == ERANGE) {
     cli_errorf("%s: '%s' is not a number", opt, text ? text : "");
     return 1;

@@ -8,6 +8,7 @@
  * added, so a malformed table leaves the caller's table untouched; the error
  * names the line.  Names are compared ignoring case and white space. */
 #include "doubletty/atomic.h"
+#include "doubletty/num.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -107,7 +108,7 @@ static int parse_line(char *s, const char *where, dt_doublet *d, dt_err *e) {
                         d->name, field_name[k]);
     char *end;
     errno = 0;
-    v[k] = strtod(tok, &end);
+    v[k] = dt_num_strtod(tok, &end);
     if (end == tok || *end != '\0' || errno == ERANGE || !isfinite(v[k]))
       return dt_err_set(e, DT_EFORMAT, where, "doublet %s: %s '%.40s' is not a number", d->name,
                         field_name[k], tok);

@@ -77,6 +77,7 @@
 #define _XOPEN_SOURCE 700 /* realpath */
 #endif
 #include "doubletty/journal.h"
+#include "doubletty/num.h"
 
 #include <errno.h>
 #include <fcntl.h>
@@ -259,43 +260,11 @@ static void sb_esc(sbuf *b, const char *s) {
   }
 }
 
-/* The fewest significant digits (at least 6) that read back to the same
- * double: readable for round numbers, exact always. */
-static void fmt_num(char *out, size_t size, double x) {
-  if (isnan(x)) {
-    snprintf(out, size, "nan");
-    return;
-  }
-  if (isinf(x)) {
-    snprintf(out, size, x > 0 ? "inf" : "-inf");
-    return;
-  }
-  /* round numbers succeed at 6 digits, fitted values mostly need 16-17:
-   * try 6, then 15 (and more if needed), and only then the ones between */
-  snprintf(out, size, "%.6g", x);
-  if (strtod(out, NULL) == x) return;
-  int p = 15;
-  snprintf(out, size, "%.15g", x);
-  if (strtod(out, NULL) != x) {
-    for (p = 16; p < 17; p++) {
-      snprintf(out, size, "%.*g", p, x);
-      if (strtod(out, NULL) == x) return;
-    }
-    snprintf(out, size, "%.17g", x);
-    return;
-  }
-  for (p = 7; p < 15; p++) {
-    snprintf(out, size, "%.*g", p, x);
-    if (strtod(out, NULL) == x) return;
-  }
-  snprintf(out, size, "%.15g", x);
-}
-
-void dt_journal_format_number(char *out, size_t size, double x) { fmt_num(out, size, x); }
+void dt_journal_format_number(char *out, size_t size, double x) { dt_num_format(out, size, x); }
 
 static void sb_num(sbuf *b, double x) {
   char t[40];
-  fmt_num(t, sizeof t, x);
+  dt_num_format(t, sizeof t, x);
   sb_str(b, t);
 }
 
@@ -524,7 +493,7 @@ static int unescape(char *s) {
 static int parse_num(const char *s, double *x) {
   char *end;
   if (!*s) return -1;
-  *x = strtod(s, &end);
+  *x = dt_num_strtod(s, &end);
   return *end ? -1 : 0;
 }
 
@@ -532,7 +501,7 @@ static int parse_num(const char *s, double *x) {
 static int parse_pm(const char *s, double *x, double *err, int *has_err) {
   char *end;
   if (!*s) return -1;
-  *x = strtod(s, &end);
+  *x = dt_num_strtod(s, &end);
   if (end == s) return -1;
   if (has_err) *has_err = 0;
   if (*end == '\0') {
@@ -541,7 +510,7 @@ static int parse_pm(const char *s, double *x, double *err, int *has_err) {
   }
   if (end[0] != '+' || end[1] != '-' || !err) return -1;
   const char *e = end + 2;
-  *err = strtod(e, &end);
+  *err = dt_num_strtod(e, &end);
   if (end == e || *end) return -1;
   if (has_err) *has_err = 1;
   return 0;

@@ -13,6 +13,7 @@
 #include <string.h>
 
 #include "spectrum_priv.h"
+#include "doubletty/num.h"
 
 #define MAX_FIELDS 4
 
@@ -73,7 +74,7 @@ static int split_fields(char *p, char **field, int max) {
 static int is_number(const char *t, double *v) {
   char *end;
   errno = 0;
-  *v = strtod(t, &end);
+  *v = dt_num_strtod(t, &end);
   return end != t && *end == '\0';
 }
 

@@ -6,6 +6,7 @@
  * line number, and reading may go on after a bad line.  The format is
  * described in include/doubletty/targets.h. */
 #include "doubletty/targets.h"
+#include "doubletty/num.h"
 
 #include <errno.h>
 #include <math.h>
@@ -37,7 +38,7 @@ static int bad(dt_err *e, long lineno, const char *fmt, const char *arg) {
 static int parse_num(const char *s, double *out) {
   char *end;
   errno = 0;
-  double v = strtod(s, &end);
+  double v = dt_num_strtod(s, &end);
   if (end == s || *end != '\0' || errno == ERANGE || !isfinite(v)) return -1;
   *out = v;
   return 0;

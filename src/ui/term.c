@@ -149,7 +149,7 @@ int dt_term_open(const dt_term_opts *o, char *msg, size_t size) {
   if (g_open) return 0;
   dt_term_opts def = {-1, 0, 0, 100, 32};
   if (!o) o = &def;
-  setlocale(LC_ALL, "");
+  setlocale(LC_CTYPE, "");   /* characters only: numbers stay in the C locale */
   const char *cs = nl_langinfo(CODESET);
   g_utf8 = cs && (!strcmp(cs, "UTF-8") || !strcmp(cs, "utf8")) && !o->ascii;
   g_headless = o->headless;
