@@ -68,6 +68,7 @@ typedef enum dt_action_kind {
   DT_ACT_VERDICT,        /* ival: dt_verdict */
   DT_ACT_NOTE,           /* text: the note (replaces) */
   DT_ACT_RESTORE,        /* state: whole judgement (undo / redo) */
+  DT_ACT_AUTOFIT,        /* state: whole judgement from the automatic first pass */
   DT_ACT__COUNT
 } dt_action_kind;
 

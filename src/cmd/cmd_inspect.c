@@ -7,9 +7,10 @@
  * the inputs is reported here, before the screen is taken over; unreadable
  * spectra are not fatal: the inspector shows them as such. */
 #include <stdio.h>
+#include <pwd.h>
 #include <stdlib.h>
-#include <string.h>
 #include <unistd.h>
+#include <string.h>
 
 #include "../ui/inspector.h"
 #include "../ui/queue.h"
@@ -270,6 +271,11 @@ int cmd_inspect(int argc, char **argv) {
   /* the session */
   if (!user) user = getenv("USER");
   if (!user || !*user) user = getenv("LOGNAME");
+  if (!user || !*user) {
+    /* no name in the environment (cron, a bare ssh command): the account's */
+    struct passwd *pw = getpwuid(getuid());
+    if (pw && pw->pw_name && *pw->pw_name) user = pw->pw_name;
+  }
   if (!user || !*user) user = "unknown";
   dt_err_clear(&e);
   if (dt_journal_open(session, read_only ? DT_JOURNAL_READ_ONLY : DT_JOURNAL_RW, user, &jn, &e)) {

@@ -46,7 +46,7 @@ static void usage(FILE *f) {
           "  --atomic FILE     with --verify: add (or replace) doublets from FILE\n"
           "  -h, --help        this text\n\n"
           "actions: window-add window-remove comp-add comp-remove comp-set freeze tie-b\n"
-          "         cont-order doublet resolution vsys vwindow fit verdict note restore\n");
+          "         cont-order doublet resolution vsys vwindow fit verdict note restore autofit\n");
 }
 
 static void comp_text(char *buf, size_t n, const dt_component *c, const dt_component *err) {
@@ -121,6 +121,7 @@ static void describe(const dt_journal_record *r, char *buf, size_t n) {
     break;
   }
   case DT_ACT_RESTORE: snprintf(buf, n, "state restored (undo/redo)"); break;
+  case DT_ACT_AUTOFIT: snprintf(buf, n, "automatic first pass"); break;
   default: snprintf(buf, n, "?"); break;
   }
 }

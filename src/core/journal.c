@@ -23,7 +23,7 @@
  *   doublet doublet=NAME             resolution R= fwhm= [km/s]
  *   vsys vsys= [km/s]                vwindow vlo= vhi= [km/s]
  *   verdict verdict=none|detected|not-detected|unsure|unusable
- *   note note=TEXT                   fit, restore (no fields: see the state)
+ *   note note=TEXT                   fit, restore, autofit (no fields: see the state)
  * The field "=>" separates the action from the state after it, which always
  * gives: verdict=; ncomp=N; c1= .. cN= as "logN=X,b=X,v=X[,frozen=LETTERS]"
  * (with "+-ERR" after each value when the fit gave these very values);
@@ -341,7 +341,7 @@ static void write_action(sbuf *b, const dt_action *a) {
     sb_str(b, "\tnote=");
     sb_esc(b, a->text);
     break;
-  default: break; /* fit, restore: the state says it all */
+  default: break; /* fit, restore, autofit: the state says it all */
   }
 }
 
@@ -443,7 +443,7 @@ size_t dt_journal_format(char *buf, size_t size, const char *time, const char *u
          dt_digest_is_hex(t->sha256) ? t->sha256 : "");
   if (sha256_was && dt_digest_is_hex(sha256_was)) sb_fmt(&b, "\twas=%s", sha256_was);
   write_action(&b, a);
-  write_state(&b, after, meas, full || a->kind == DT_ACT_RESTORE);
+  write_state(&b, after, meas, full || a->kind == DT_ACT_RESTORE || a->kind == DT_ACT_AUTOFIT);
   size_t body = b.n;
   char tail[24];
   uint32_t h = body < size ? fnv1a32(buf, body) : 0;
@@ -881,8 +881,8 @@ int dt_journal_parse(char *line, dt_journal_record *rec, dt_err *e) {
   } else if (fhave) {
     return fail(e, "%s", "state settings without full=1");
   }
-  if (a->kind == DT_ACT_RESTORE) {
-    if (!(rec->has & DT_REC_FULL)) return fail(e, "%s", "restore without the full state");
+  if (a->kind == DT_ACT_RESTORE || a->kind == DT_ACT_AUTOFIT) {
+    if (!(rec->has & DT_REC_FULL)) return fail(e, "%s", a->kind == DT_ACT_AUTOFIT ? "autofit without the full state" : "restore without the full state");
     a->state = &rec->after;
   }
   if (a->kind == DT_ACT_FIT) {
@@ -1487,7 +1487,7 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
 
   dt_journal_entry *en = find(j, t->path, t->hdu, t->row);
   int full = 1;
-  if (en && a->kind != DT_ACT_RESTORE) {
+  if (en && a->kind != DT_ACT_RESTORE && a->kind != DT_ACT_AUTOFIT) {
     dt_judgement s = en->state;
     dt_action b = *a;
     if (b.kind == DT_ACT_FIT) b.fit = after->fit; /* what a replay will do */

@@ -38,7 +38,7 @@ static const char *const action_names[DT_ACT__COUNT] = {
     [DT_ACT_DOUBLET] = "doublet",         [DT_ACT_RESOLUTION] = "resolution",
     [DT_ACT_VSYS] = "vsys",               [DT_ACT_VWINDOW] = "vwindow",
     [DT_ACT_FIT] = "fit",                 [DT_ACT_VERDICT] = "verdict",
-    [DT_ACT_NOTE] = "note",               [DT_ACT_RESTORE] = "restore",
+    [DT_ACT_NOTE] = "note",               [DT_ACT_RESTORE] = "restore", [DT_ACT_AUTOFIT] = "autofit",
 };
 
 const char *dt_action_name(dt_action_kind k) {
@@ -211,6 +211,7 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     break;
   }
   case DT_ACT_RESTORE:
+  case DT_ACT_AUTOFIT:
     if (!a->state || !state_ok(a->state)) return DT_EINVAL;
     if (a->state != j) *j = *a->state;
     return DT_OK;

@@ -693,7 +693,7 @@ static void autofit_to(dt_insp *s, const dt_judgement *base, const dt_action *a,
   }
   dt_action r;
   if (!a) {
-    dt_action_init(&r, DT_ACT_RESTORE);
+    dt_action_init(&r, DT_ACT_AUTOFIT);
     r.state = &trial;
     a = &r;
   }

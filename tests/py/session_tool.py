@@ -114,7 +114,7 @@ class Writer:
             f.append("nsigma=3")
             if meas[0].get("saturated"):
                 f.append("saturated=1")
-        if key not in self.seen or act == "restore":
+        if key not in self.seen or act in ("restore", "autofit"):
             self.seen.add(key)
             st = state
             f += ["full=1", "doublet=" + esc(st.get("doublet", "NaI")), "vsys=" + num(st.get("vsys", 0.0)),
