@@ -23,6 +23,7 @@
 
 #include <gsl/gsl_statistics_double.h>
 
+#include "doubletty/airvac.h"
 #include "doubletty/atomic.h"
 #include "spectrum_priv.h"
 
@@ -88,6 +89,15 @@ int dt_spectrum_unit_scale(const char *unit, double *scale, char *canon, size_t 
     }
   }
   return -1;
+}
+
+void dt_spectrum_settle_air(dt_spectrum *s, const dt_read_opts *o) {
+  if (s->air_from != DT_AIRVAC_FILE) {
+    s->air = o && o->air;
+    s->air_from = s->air ? DT_AIRVAC_CALLER : DT_AIRVAC_ASSUMED;
+  }
+  if (!s->air) return;
+  for (size_t i = 0; i < s->n; i++) s->wave[i] = dt_air_to_vac(s->wave[i]);
 }
 
 static void place(char *buf, size_t size, const char *prefix, const char *label,
@@ -438,7 +448,7 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **o
       if (opts && opts->row > 1)
         rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
       else
-        rc = dt_spectrum_read_text(base, out, e);
+        rc = dt_spectrum_read_text(base, opts, out, e);
     }
   }
   free(base);
@@ -465,7 +475,7 @@ int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
     else if (opts && opts->row > 1)
       rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
     else
-      rc = dt_spectrum_read_text_mem(buf, len, out, e);
+      rc = dt_spectrum_read_text_mem(buf, len, opts, out, e);
   }
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);

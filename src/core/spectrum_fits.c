@@ -11,7 +11,7 @@
  *   - table: finds the columns by name; scalar columns hold one spectrum
  *     (a row per pixel), vector or variable-length columns one spectrum per
  *     row (spectrum_fits_table.c).
- * Air wavelengths are converted to vacuum (airvac.c); everything else that
+ * Air wavelengths are converted to vacuum (dt_spectrum_settle_air); everything else that
  * all layouts share is done by dt_spectrum_finish (spectrum.c).  A file can
  * also be read from its bytes in memory (cfitsio's memory driver). */
 #include <ctype.h>
@@ -24,7 +24,6 @@
 
 #include <fitsio.h>
 
-#include "doubletty/airvac.h"
 #include "spectrum_fits_priv.h"
 
 const char *const dt_fits_aux_text[] = {"", "sigma", "inverse variance", "variance", "mask"};
@@ -107,11 +106,12 @@ void dt_fits_common_keys(fctx *c, dt_spectrum *s) {
     s->resolution = r;
   else
     s->resolution = c->prim_res;
-  s->air = c->prim_air;
+  s->air = c->prim_air > 0;
+  if (c->prim_air >= 0) s->air_from = DT_AIRVAC_FILE;
   if (dt_fits_key_str(c->f, "AIRORVAC", v)) {
     upper_trim(v);
-    if (!strcmp(v, "AIR")) s->air = 1;
-    if (!strcmp(v, "VAC") || !strcmp(v, "VACUUM")) s->air = 0;
+    if (!strcmp(v, "AIR")) s->air = 1, s->air_from = DT_AIRVAC_FILE;
+    if (!strcmp(v, "VAC") || !strcmp(v, "VACUUM")) s->air = 0, s->air_from = DT_AIRVAC_FILE;
   }
 }
 
@@ -391,6 +391,7 @@ static int guard_headers(const fctx *c, dt_err *e) {
 /* Open the file (file != NULL) or the bytes mem[0..len) read-only. */
 static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_err *e) {
   memset(c, 0, sizeof *c);
+  c->prim_air = -1;
   c->file = file;
   int st = 0;
   if (file) {
@@ -440,7 +441,8 @@ static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_
     c->prim_res = r;
   if (dt_fits_key_str(c->f, "AIRORVAC", v)) {
     upper_trim(v);
-    c->prim_air = !strcmp(v, "AIR");
+    if (!strcmp(v, "AIR")) c->prim_air = 1;
+    if (!strcmp(v, "VAC") || !strcmp(v, "VACUUM")) c->prim_air = 0;
   }
   if (dt_fits_key_str(c->f, "OBJECT", v)) snprintf(c->prim_object, sizeof c->prim_object, "%s", v);
   return DT_OK;
@@ -455,17 +457,14 @@ static void close_fits(fctx *c) {
   c->padded = NULL;
 }
 
-void dt_fits_air_to_vacuum(dt_spectrum *s) {
-  if (!s->air) return;
-  for (size_t i = 0; i < s->n; i++) s->wave[i] = dt_air_to_vac(s->wave[i]);
-}
 
 /* ---- images --------------------------------------------------------------- */
 
 typedef enum { AXIS_LINEAR, AXIS_LOG, AXIS_LOG10 } axis_kind;
 
 /* Wavelengths [Angstrom] of pixels 1..n from the WCS keywords of the current
- * HDU; sets s->layout, s->unit and (for CTYPE1 AWAV) s->air. */
+ * HDU; sets s->layout, s->unit and, when CTYPE1 says air (AWAV) or vacuum
+ * (WAVE), s->air and s->air_from. */
 static int image_wavelengths(fitsfile *f, dt_spectrum *s, const char *where, dt_err *e) {
   char ctype[FLEN_VALUE], cunit[FLEN_VALUE];
   double crval = 0, crpix = 0, cdelt = 0, cd = 0, pc = 1, dcflag = 0;
@@ -543,6 +542,7 @@ static int image_wavelengths(fitsfile *f, dt_spectrum *s, const char *where, dt_
            axis == AXIS_LOG ? "image-log" : axis == AXIS_LOG10 ? "image-log10" : "image-linear");
   if (air) s->air = 1;
   if (vacuum) s->air = 0;
+  if (air || vacuum) s->air_from = DT_AIRVAC_FILE;
   return DT_OK;
 }
 
@@ -595,7 +595,7 @@ static int read_aux_image(fctx *c, int i, aux_kind kind, const char *name, dt_sp
   return DT_OK;
 }
 
-static int read_image(fctx *c, int hdu, dt_spectrum **out, dt_err *e) {
+static int read_image(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   char where[32];
   snprintf(where, sizeof where, "HDU %d", hdu);
   int st = 0, naxis = 0, anynul = 0;
@@ -653,7 +653,7 @@ static int read_image(fctx *c, int hdu, dt_spectrum **out, dt_err *e) {
       got_sigma = 1;
   }
   if (!rc) {
-    dt_fits_air_to_vacuum(s);
+    dt_spectrum_settle_air(s, o);
     rc = dt_spectrum_finish(s, where, "pixel", NULL, e);
   }
   if (rc) {
@@ -678,7 +678,7 @@ static int read_opened(fctx *c, const dt_hdu_sel *sel, const dt_read_opts *o, dt
         snprintf(where, sizeof where, "HDU %d", hdu);
         rc = dt_err_set(e, DT_EINVAL, where, "row %ld requested, but this HDU is an image", o->row);
       } else {
-        rc = read_image(c, hdu, out, e);
+        rc = read_image(c, hdu, o, out, e);
       }
     } else {
       rc = dt_fits_read_table(c, hdu, o, out, e);

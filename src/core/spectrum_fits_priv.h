@@ -18,7 +18,7 @@ typedef struct fctx {
   long long fsize;
   /* values from the primary header, used when the spectrum's HDU lacks them */
   double prim_res;
-  int prim_air;             /* AIRORVAC = 'air' */
+  int prim_air;             /* AIRORVAC: 1 air, 0 vacuum, -1 not given */
   char prim_object[72];
 } fctx;
 
@@ -38,8 +38,6 @@ aux_kind dt_fits_classify(const char *name, int allow_mask);
 void dt_fits_common_keys(fctx *c, dt_spectrum *s);
 /* Is the current HDU's data entirely inside the file? */
 int dt_fits_check_complete(fctx *c, int hdu, dt_err *e);
-/* Convert air wavelengths (s->air) to vacuum. */
-void dt_fits_air_to_vacuum(dt_spectrum *s);
 
 /* The table in the current HDU (spectrum_fits_table.c). */
 int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out, dt_err *e);

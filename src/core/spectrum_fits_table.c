@@ -267,7 +267,7 @@ int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **ou
   }
   free(buf);
   if (!rc) {
-    dt_fits_air_to_vacuum(s);
+    dt_spectrum_settle_air(s, o);
     rc = dt_spectrum_finish(s, where, t.rows_layout ? "pixel" : "row", NULL, e);
   }
   if (rc) {
