@@ -13,8 +13,13 @@
 #include <stddef.h>
 #include <stdio.h>
 
-/* strtod in the "C" locale: '.' is the decimal point whatever the locale. */
+/* strtod in the "C" locale: '.' is the decimal point whatever the locale.
+ * errno is set as by strtod alone (0 or ERANGE). */
 double dt_num_strtod(const char *s, char **end);
+
+/* strtoll (base 10) in the "C" locale: the leading integer of s; errno as
+ * by strtoll alone. */
+long long dt_num_strtoll(const char *s, char **end);
 
 /* Strict parse of a whole string as a double ("1.5", "-2e3", "nan", "inf"
  * are accepted; leading/trailing blanks, empty text, trailing characters

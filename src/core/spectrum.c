@@ -25,6 +25,7 @@
 
 #include "doubletty/airvac.h"
 #include "doubletty/atomic.h"
+#include "doubletty/num.h"
 #include "spectrum_priv.h"
 
 dt_spectrum *dt_spectrum_alloc(size_t n) {
@@ -397,7 +398,7 @@ static int parse_sel(const char *sel, dt_hdu_sel *hs, dt_err *e) {
   while (*p == ' ') p++;
   if (isdigit((unsigned char)*p)) {
     char *end;
-    long k = strtol(p, &end, 10);
+    long long k = dt_num_strtoll(p, &end);
     while (*end == ' ') end++;
     if (*end != '\0' || k < 0 || k > 100000)
       return dt_err_set(e, DT_EINVAL, NULL, "[%s]: not an extension number or name", sel);

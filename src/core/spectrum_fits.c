@@ -24,6 +24,7 @@
 
 #include <fitsio.h>
 
+#include "doubletty/num.h"
 #include "spectrum_fits_priv.h"
 
 const char *const dt_fits_aux_text[] = {"", "sigma", "inverse variance", "variance", "mask"};
@@ -354,7 +355,7 @@ static int guard_headers(const fctx *c, dt_err *e) {
           break;
         }
         char *end;
-        long long x = strtoll(v, &end, 10); /* the first number, as cfitsio reads it */
+        long long x = dt_num_strtoll(v, &end); /* the first number, as cfitsio reads it */
         if (quoted || end == v) continue;
         if (!strcmp(key, "TFIELDS") && (x < 0 || x > 999)) {
           char where[32];
@@ -368,7 +369,7 @@ static int guard_headers(const fctx *c, dt_err *e) {
         else if (!strcmp(key, "PCOUNT")) pcount = x;
         else if (!strcmp(key, "GCOUNT")) gcount = x;
         else if (!strncmp(key, "NAXIS", 5) && isdigit((unsigned char)key[5])) {
-          long n = strtol(key + 5, &end, 10);
+          long long n = dt_num_strtoll(key + 5, &end);
           if (!*end && n >= 1 && n <= max_axes) nax[n] = x;
         }
       }
