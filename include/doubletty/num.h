@@ -48,4 +48,11 @@ int dt_num_fprintf(FILE *f, const char *fmt, ...)
 #endif
     ;
 
+/* Run fn(arg) with the calling thread in the "C" locale and return what it
+ * returns.  For calls into libraries that convert numbers with the process
+ * locale: cfitsio (4.2) even keeps the decimal point of the locale of its
+ * first conversion, so a program that switches locales would read header
+ * numbers wrongly; every cfitsio call made this way sees '.'. */
+int dt_num_with_c_locale(int (*fn)(void *arg), void *arg);
+
 #endif

@@ -99,6 +99,14 @@ void dt_num_format(char *out, size_t size, double x) {
   cloc_leave(&l);
 }
 
+int dt_num_with_c_locale(int (*fn)(void *arg), void *arg) {
+  cloc l;
+  cloc_enter(&l);
+  int rc = fn(arg);
+  cloc_leave(&l);
+  return rc;
+}
+
 int dt_num_snprintf(char *out, size_t size, const char *fmt, ...) {
   cloc l;
   cloc_enter(&l);

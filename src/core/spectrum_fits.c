@@ -689,39 +689,62 @@ static int read_opened(fctx *c, const dt_hdu_sel *sel, const dt_read_opts *o, dt
   return rc;
 }
 
+/* The entry points run the reader in the "C" locale (dt_num_with_c_locale):
+ * cfitsio converts header numbers with the locale, and keeps the decimal
+ * point of the first one it met. */
+typedef struct fits_call {
+  const char *file;
+  const void *buf;
+  size_t len;
+  const dt_hdu_sel *sel;
+  const dt_read_opts *o;
+  dt_spectrum **out;
+  long *count;
+  dt_err *e;
+} fits_call;
+
+static int call_read(void *arg) {
+  fits_call *a = arg;
+  fctx c;
+  int rc = open_fits(a->file, a->buf, a->len, &c, a->e);
+  if (rc) return rc;
+  return read_opened(&c, a->sel, a->o, a->out, a->e);
+}
+
+static int call_count(void *arg) {
+  fits_call *a = arg;
+  fctx c;
+  int rc = open_fits(a->file, NULL, 0, &c, a->e);
+  if (rc) return rc;
+  int hdu = 0, type = 0;
+  rc = select_hdu(&c, a->sel, &hdu, &type, a->e);
+  if (!rc) {
+    if (type == IMAGE_HDU)
+      *a->count = 1;
+    else
+      rc = dt_fits_count_rows(&c, hdu, a->o, a->count, a->e);
+  }
+  close_fits(&c);
+  return rc;
+}
+
 int dt_spectrum_read_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                           dt_spectrum **out, dt_err *e) {
   *out = NULL;
-  fctx c;
-  int rc = open_fits(file, NULL, 0, &c, e);
-  if (rc) return rc;
-  return read_opened(&c, sel, o, out, e);
+  fits_call a = {file, NULL, 0, sel, o, out, NULL, e};
+  return dt_num_with_c_locale(call_read, &a);
 }
 
 int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
                               const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   *out = NULL;
-  fctx c;
-  int rc = open_fits(NULL, buf, len, &c, e);
-  if (rc) return rc;
-  return read_opened(&c, sel, o, out, e);
+  fits_call a = {NULL, buf, len, sel, o, out, NULL, e};
+  return dt_num_with_c_locale(call_read, &a);
 }
 
 int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                            long *count, dt_err *e) {
   *count = 0;
-  fctx c;
-  int rc = open_fits(file, NULL, 0, &c, e);
-  if (rc) return rc;
-  int hdu = 0, type = 0;
-  rc = select_hdu(&c, sel, &hdu, &type, e);
-  if (!rc) {
-    if (type == IMAGE_HDU) {
-      *count = 1;
-    } else {
-      rc = dt_fits_count_rows(&c, hdu, o, count, e);
-    }
-  }
-  close_fits(&c);
-  return rc;
+  fits_call a = {file, NULL, 0, sel, o, NULL, count, e};
+  return dt_num_with_c_locale(call_count, &a);
 }

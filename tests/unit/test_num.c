@@ -9,7 +9,9 @@
  * over every precision from 1 to 17 digits.  The comma-decimal locale is
  * built here with localedef (package locales) into a temporary directory
  * (LOCPATH); that printf really writes a comma under it is checked first,
- * so the locale checks cannot pass vacuously. */
+ * so the locale checks cannot pass vacuously.  Under it, the readers of
+ * text spectra, FITS headers, the atomic table and target lists must read
+ * the same values as under "C". */
 #include <errno.h>
 #include <locale.h>
 #include <math.h>
@@ -17,9 +19,15 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
+#include <fitsio.h>
+
+#include "doubletty/atomic.h"
 #include "doubletty/num.h"
+#include "doubletty/spectrum.h"
 #include "doubletty/status.h"
+#include "doubletty/targets.h"
 #include "harness.h"
 
 /* A double from 64 random bits (xorshift64*, seeded; common practice). */
@@ -151,6 +159,64 @@ static int enter_comma_locale(char *dir, size_t size) {
   return !strcmp(b, "1,5");
 }
 
+/* What the readers make of their files; compared between locales. */
+typedef struct readings {
+  int ok_text, ok_fits, ok_atomic, ok_target;
+  double text_wave[3], text_sigma, fits_wave[4], d2, f2, vsys, res;
+} readings;
+
+static const char spec_text[] = "# wave flux sigma\n5889.951 1.0 0.05\n5891.5833 0.25 0.125\n5895.924 1.5e-1 0.05\n";
+static const char list_line[] = "a.fits vsys=-12.75 R=48000.5 name=x";
+
+static void write_fits(const char *path) {
+  int st = 0;
+  fitsfile *f;
+  char bang[300];
+  snprintf(bang, sizeof bang, "!%s", path);
+  fits_create_file(&f, bang, &st);
+  long ax[1] = {4};
+  double d[4] = {1.0, 0.5, 0.25, 1.0}, crval = 5880.25, cdelt = 0.125;
+  fits_create_img(f, DOUBLE_IMG, 1, ax, &st);
+  fits_write_key(f, TDOUBLE, "CRVAL1", &crval, NULL, &st);
+  fits_write_key(f, TDOUBLE, "CDELT1", &cdelt, NULL, &st);
+  fits_write_img(f, TDOUBLE, 1, 4, d, &st);
+  fits_close_file(f, &st);
+}
+
+static void read_all(const char *fits, readings *r) {
+  memset(r, 0, sizeof *r);
+  dt_spectrum *s = NULL;
+  dt_err e;
+  if (dt_spectrum_read_mem(spec_text, strlen(spec_text), NULL, &s, &e) == DT_OK) {
+    r->ok_text = 1;
+    for (int i = 0; i < 3; i++) r->text_wave[i] = s->wave[i];
+    r->text_sigma = s->sigma[1];
+  }
+  dt_spectrum_free(s);
+  s = NULL;
+  int frc = dt_spectrum_read(fits, NULL, &s, &e);
+  if (frc) printf("       FITS: %s: %s\n", e.where, e.what);
+  if (frc == DT_OK && s->n == 4) {
+    r->ok_fits = 1;
+    for (int i = 0; i < 4; i++) r->fits_wave[i] = s->wave[i];
+  }
+  dt_spectrum_free(s);
+  dt_atomic *t = NULL;
+  if (dt_atomic_load_builtin(&t, &e) == DT_OK && dt_atomic_find(t, "NaI")) {
+    r->ok_atomic = 1;
+    r->d2 = dt_atomic_find(t, "NaI")->line[0].lambda0;
+    r->f2 = dt_atomic_find(t, "NaI")->line[0].f;
+  }
+  dt_atomic_free(t);
+  dt_target_spec ts;
+  int got = 0;
+  if (dt_targets_parse_line(list_line, NULL, 1, &ts, &got, &e) == DT_OK && got) {
+    r->ok_target = 1;
+    r->vsys = ts.vsys;
+    r->res = ts.resolution;
+  }
+}
+
 static void test_locale(void) {
   /* reference texts in the C locale first */
   enum { N = 2000 };
@@ -161,6 +227,19 @@ static void test_locale(void) {
     dt_num_format(ref[k], sizeof ref[k], xs[k]);
   }
   dt_num_snprintf(ref_fix, sizeof ref_fix, "%.3f|%g|%.2e", 5891.5833, 0.5, 12776.0);
+  char fits[64];
+  snprintf(fits, sizeof fits, "/tmp/dt-num-XXXXXX");
+  int fd = mkstemp(fits);
+  if (fd >= 0) close(fd);
+  write_fits(fits);
+  readings rc_, rd;
+  read_all(fits, &rc_);
+  /* values as written above; Na I D2 of Morton (2003, ApJS 149, 205) */
+  CHECK(rc_.ok_text && rc_.text_wave[1] == 5891.5833 && rc_.text_sigma == 0.125, "C locale: text spectrum read");
+  /* pixel 1 without CRPIX1 (default 0, FITS WCS Paper I): CRVAL1 + CDELT1 */
+  CHECK(rc_.ok_fits && rc_.fits_wave[0] == 5880.375, "C locale: FITS axis CRVAL1 + CDELT1 read");
+  CHECK(rc_.ok_atomic && rc_.d2 == 5891.5833 && rc_.f2 == 0.6408, "C locale: atomic table read");
+  CHECK(rc_.ok_target && rc_.vsys == -12.75 && rc_.res == 48000.5, "C locale: target line read");
 
   char dir[64];
   int comma = enter_comma_locale(dir, sizeof dir);
@@ -194,6 +273,15 @@ static void test_locale(void) {
   CHECK(dt_num_parse("12,776", &x) == DT_EINVAL, "... and still refuses '12,776'");
   char *end;
   CHECK(dt_num_strtod("0.25 rest", &end) == 0.25 && !strcmp(end, " rest"), "dt_num_strtod under the comma locale");
+  read_all(fits, &rd);
+  CHECK(rd.ok_text && !memcmp(rd.text_wave, rc_.text_wave, sizeof rd.text_wave) && rd.text_sigma == rc_.text_sigma,
+        "text spectrum: the same values under the comma locale");
+  CHECK(rd.ok_fits && !memcmp(rd.fits_wave, rc_.fits_wave, sizeof rd.fits_wave),
+        "FITS header numbers: the same wavelengths under the comma locale (%d: %.17g %.17g)", rd.ok_fits,
+        rd.fits_wave[0], rc_.fits_wave[0]);
+  CHECK(rd.ok_atomic && rd.d2 == rc_.d2 && rd.f2 == rc_.f2, "atomic table: the same under the comma locale");
+  CHECK(rd.ok_target && rd.vsys == rc_.vsys && rd.res == rc_.res, "target list: the same under the comma locale");
+  remove(fits);
   char b[16];
   snprintf(b, sizeof b, "%.1f", 2.5);
   CHECK(!comma || !strcmp(b, "2,5"), "the caller's locale is left as it was (printf: %s)", b);
