@@ -38,7 +38,7 @@ UI_SRC   := $(sort $(wildcard src/ui/*.c))
 CMD_SRC  := $(sort $(wildcard src/cmd/*.c))
 TEST_SRC := $(sort $(wildcard tests/unit/test_*.c))
 
-CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o)
+CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o) $(BUILD)/gen/atomic_builtin.o
 UI_OBJ   := $(UI_SRC:%.c=$(BUILD)/%.o)
 CMD_OBJ  := $(CMD_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
@@ -53,6 +53,23 @@ all: $(BIN)
 $(BUILD)/%.o: %.c
 	@mkdir -p $(dir $@)
 	$(CC) $(CPPFLAGS) $(CFLAGS) -MMD -MP -c $< -o $@
+
+# The default atomic table is built into the program: its bytes become a C
+# array (od prints them as decimal numbers, so nothing needs escaping).
+$(BUILD)/gen/atomic_builtin.c: share/doubletty/atomic.dat
+	@mkdir -p $(dir $@)
+	{ echo '/* Generated from share/doubletty/atomic.dat by the Makefile: do not edit. */'; \
+	  echo '#include <stddef.h>'; \
+	  echo 'extern const unsigned char dt_atomic_builtin_data[];'; \
+	  echo 'extern const size_t dt_atomic_builtin_size;'; \
+	  echo 'const unsigned char dt_atomic_builtin_data[] = {'; \
+	  od -An -v -tu1 share/doubletty/atomic.dat | awk 'NF { line = ""; for (i = 1; i <= NF; i++) line = line $$i ","; print line }'; \
+	  echo '0};'; \
+	  echo "const size_t dt_atomic_builtin_size = $$(wc -c <share/doubletty/atomic.dat);"; \
+	} >$@.tmp && mv $@.tmp $@
+
+$(BUILD)/gen/atomic_builtin.o: $(BUILD)/gen/atomic_builtin.c
+	$(CC) $(CPPFLAGS) $(CFLAGS) -c $< -o $@
 
 $(LIBCORE): $(CORE_OBJ)
 	$(AR) rcs $@ $^

@@ -38,6 +38,12 @@ int dt_atomic_merge(dt_atomic *t, const char *path, dt_err *e);
  * doublets are added to t, replacing any of the same name.  A doublet named
  * twice within one text is an error.  On any error t is left unchanged. */
 int dt_atomic_parse(dt_atomic *t, const char *text, size_t len, dt_err *e);
+/* The default table, built into the program from share/doubletty/atomic.dat
+ * at build time: its text (len bytes, not NUL-terminated) and a table
+ * loaded from it.  Used when no table file is found, so a program moved
+ * away from its data directory still knows its doublets. */
+const char *dt_atomic_builtin_text(size_t *len);
+int dt_atomic_load_builtin(dt_atomic **out, dt_err *e);
 dt_atomic *dt_atomic_new(void);
 void dt_atomic_free(dt_atomic *t);
 

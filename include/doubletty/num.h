@@ -13,8 +13,13 @@
 #include <stddef.h>
 #include <stdio.h>
 
-/* strtod in the "C" locale: '.' is the decimal point whatever the locale. */
+/* strtod in the "C" locale: '.' is the decimal point whatever the locale.
+ * errno is set as by strtod alone (0 or ERANGE). */
 double dt_num_strtod(const char *s, char **end);
+
+/* strtoll (base 10) in the "C" locale: the leading integer of s; errno as
+ * by strtoll alone. */
+long long dt_num_strtoll(const char *s, char **end);
 
 /* Strict parse of a whole string as a double ("1.5", "-2e3", "nan", "inf"
  * are accepted; leading/trailing blanks, empty text, trailing characters
@@ -42,5 +47,12 @@ int dt_num_fprintf(FILE *f, const char *fmt, ...)
     __attribute__((format(printf, 2, 3)))
 #endif
     ;
+
+/* Run fn(arg) with the calling thread in the "C" locale and return what it
+ * returns.  For calls into libraries that convert numbers with the process
+ * locale: cfitsio (4.2) even keeps the decimal point of the locale of its
+ * first conversion, so a program that switches locales would read header
+ * numbers wrongly; every cfitsio call made this way sees '.'. */
+int dt_num_with_c_locale(int (*fn)(void *arg), void *arg);
 
 #endif

@@ -34,8 +34,14 @@
  * Resolving power R from the keyword SPECRES, else RESOLUTN (both R =
  *   lambda / FWHM), in the spectrum's HDU or the primary header.
  * Plain text: columns "wave flux [sigma [mask]]" separated by blanks or
- *   commas, vacuum Angstrom; '#' starts a comment; blank lines are skipped;
- *   a first line of column names is skipped.
+ *   commas, Angstrom; '#' starts a comment; blank lines are skipped;
+ *   a first line of column names is skipped.  A text file cannot say air or
+ *   vacuum: its wavelengths are taken as vacuum unless the caller declares
+ *   them air (dt_read_opts.air).
+ *
+ * Air or vacuum: what the file says (CTYPE1, AIRORVAC) decides; when the
+ *   file says nothing, dt_read_opts.air = 1 declares air, else vacuum is
+ *   assumed.  dt_spectrum.air_from records which of the three it was.
  *
  * Masked: non-finite flux, non-finite or non-positive sigma (or inverse
  * variance, or variance), nonzero mask.  Masked pixels keep the values read
@@ -46,6 +52,13 @@
 #define DOUBLETTY_SPECTRUM_H
 #include <stddef.h>
 #include "doubletty/status.h"
+
+/* Who settled whether the wavelengths in the file were air or vacuum. */
+typedef enum dt_airvac_from {
+  DT_AIRVAC_ASSUMED = 0, /* nobody said: vacuum assumed */
+  DT_AIRVAC_FILE,        /* the file (CTYPE1 'AWAV...' / 'WAVE...', AIRORVAC) */
+  DT_AIRVAC_CALLER       /* the caller (dt_read_opts.air), the file being silent */
+} dt_airvac_from;
 
 typedef struct dt_spectrum {
   size_t n;
@@ -60,7 +73,8 @@ typedef struct dt_spectrum {
                             "text" */
   int hdu;               /* 1-based HDU number (primary = 1); 0 for text */
   long row;              /* 1-based table row; 0 when not a row of a table */
-  int air;               /* 1 if the file gave air wavelengths (now converted) */
+  int air;               /* 1 if the file's wavelengths were air (now converted) */
+  dt_airvac_from air_from; /* who said so (or that they were vacuum) */
   char object[72];       /* OBJECT keyword or "" */
   char extname[72];      /* EXTNAME of the spectrum's HDU or "" */
   char sigma_from[48];   /* where sigma came from: "HDU 2 'ERR' (sigma)",
@@ -77,6 +91,8 @@ typedef struct dt_read_opts {
   const char *mask_col;
   int hdu;               /* 1-based HDU; 0 = from "FILE[ext]" or the first with data */
   long row;              /* 1-based row of a multi-row table; 0 = the first */
+  int air;               /* 1: the wavelengths are in air (used when the file
+                            does not say; text files never do); 0: not said */
 } dt_read_opts;
 
 /* Read one spectrum.  path may carry an extension selector "FILE[N]" (N the

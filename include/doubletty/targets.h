@@ -1,13 +1,27 @@
 /* Target lists: the queue of spectra a person vets, one per line.
  *
  *   # comment
- *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
+ *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT] [air]
  *
- * Fields are separated by blanks; '#' starts a comment anywhere on a line;
- * blank lines are ignored.  A relative path is taken relative to the
- * directory of the list file.  A path may carry a FITS extension selector
- * "file.fits[2]".  Unknown keys, repeated keys, malformed values and lines
- * longer than DT_TARGET_LINE_MAX are errors naming the line.
+ * Fields are separated by blanks; '#' starts a comment anywhere on a line
+ * (outside quotes); blank lines are ignored.  A relative path is taken
+ * relative to the directory of the list file.  A path may carry a FITS
+ * extension selector "file.fits[2]".  The flag "air" says the file's
+ * wavelengths are in air (used when the file itself does not say).
+ *
+ * Quoting: a path or value holding blanks, '#', '"' or '\' is written
+ * between double quotes, inside which \" stands for '"' and \\ for '\'
+ * (no other escapes); a '#' or a blank inside quotes is an ordinary
+ * character.  Quotes may cover part of a field: name="Sightline 7" and
+ * "name=Sightline 7" are the same (the first '=' of a field after the path
+ * ends the key, quoted or not).  Examples:
+ *
+ *   "night 2/star #4.fits"  vsys=-12 name="HD 1234 \"B\""
+ *   spectra/a.txt  R=48000  air
+ *
+ * Unknown keys, repeated keys, malformed values, an unterminated quote, a
+ * backslash before anything but '"' or '\' inside quotes and lines longer
+ * than DT_TARGET_LINE_MAX are errors naming the line.
  *
  * The reader streams: it holds one line at a time, so a list of any length
  * costs the same memory; opening the spectra is the caller's business. */
@@ -30,6 +44,8 @@ typedef struct dt_target_spec {
   char doublet[16];               /* "" = not given */
   char name[DT_TARGET_NAME_MAX];  /* "" = not given */
   long line;                      /* line number in the list (0 = not from a list) */
+  int air;                        /* 1: wavelengths in air (flag "air", or
+                                     dt_targets_set_air); for dt_read_opts.air */
 } dt_target_spec;
 
 /* A target with nothing but a path (as given, not resolved). */
@@ -42,6 +58,12 @@ void dt_target_spec_init(dt_target_spec *t, const char *path);
 int dt_targets_parse_line(const char *line, const char *basedir, long lineno,
                           dt_target_spec *t, int *got, dt_err *e);
 
+/* Write text as one field of a list line: unchanged when it needs no
+ * quotes, else between double quotes with '"' and '\' escaped, so that
+ * dt_targets_parse_line reads it back as it was.  DT_OK, or DT_EINVAL when
+ * out (size bytes) is too small. */
+int dt_targets_quote(char *out, size_t size, const char *text);
+
 typedef struct dt_targets dt_targets;
 
 /* Open a list file for streaming.  DT_EIO when it cannot be opened. */
@@ -49,6 +71,9 @@ int dt_targets_open(const char *path, dt_targets **out, dt_err *e);
 /* The next target: DT_OK with *got = 1, or *got = 0 at the end of the list.
  * A bad line is DT_EFORMAT ("line N"); reading may continue after it. */
 int dt_targets_next(dt_targets *l, dt_target_spec *t, int *got, dt_err *e);
+/* Mark every target read from now on as having air wavelengths (air = 1),
+ * as an "air" flag on each line would; air = 0 leaves it to the lines. */
+void dt_targets_set_air(dt_targets *l, int air);
 /* Line number of the last line read. */
 long dt_targets_lineno(const dt_targets *l);
 void dt_targets_close(dt_targets *l);

@@ -53,17 +53,37 @@ const char *cli_datadir(void) {
   return DT_DATADIR;
 }
 
+/* Report a table that could not be read, with how to point to a good one. */
+static void report_table(const char *path, const dt_err *e, const char *hint) {
+  fprintf(stderr, "doubletty: %s: ", path);
+  if (e->where[0]) fprintf(stderr, "%s: ", e->where);
+  fprintf(stderr, "%s (%s)\n", e->what[0] ? e->what : dt_status_str(e->code), hint);
+}
+
 dt_atomic *cli_load_atomic(const char *user_table) {
   char path[PATH_MAX + 16];
   snprintf(path, sizeof path, "%s/atomic.dat", cli_datadir());
+  const char *env = getenv("DOUBLETTY_DATA");
+  int named = env && *env;
   dt_atomic *t = NULL;
   dt_err e;
-  if (dt_atomic_load(path, &t, &e) != DT_OK) {
-    cli_report(path, &e);
+  /* A table file named by DOUBLETTY_DATA, or found where doubletty was
+   * installed, is used; without one, the table built into the program. */
+  if (named || access(path, F_OK) == 0) {
+    if (dt_atomic_load(path, &t, &e) != DT_OK) {
+      report_table(path, &e, named ? "DOUBLETTY_DATA must name the directory holding atomic.dat; "
+                                     "unset it to use the built-in table"
+                                   : "repair or remove it to use the built-in table, or set "
+                                     "DOUBLETTY_DATA to a directory holding a good atomic.dat");
+      return NULL;
+    }
+  } else if (dt_atomic_load_builtin(&t, &e) != DT_OK) {
+    cli_report("built-in atomic table", &e);
     return NULL;
   }
   if (user_table && dt_atomic_merge(t, user_table, &e) != DT_OK) {
-    cli_report(user_table, &e);
+    report_table(user_table, &e, "--atomic FILE must name a readable atomic table, in the format "
+                                 "described in doubletty(1)");
     dt_atomic_free(t);
     return NULL;
   }

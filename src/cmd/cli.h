@@ -16,8 +16,10 @@ void cli_errorf(const char *fmt, ...)
 /* Directory holding atomic.dat etc.: $DOUBLETTY_DATA, else ../share/doubletty
  * beside the executable, else the compiled-in install path. */
 const char *cli_datadir(void);
-/* Load the bundled atomic table, plus an optional user table (NULL = none).
- * Prints the error and returns NULL on failure. */
+/* Load the atomic table (atomic.dat of cli_datadir() when DOUBLETTY_DATA
+ * names it or it exists, else the table built into the program), plus an
+ * optional user table (NULL = none).  Prints the error, with how to point
+ * to a good table, and returns NULL on failure. */
 dt_atomic *cli_load_atomic(const char *user_table);
 
 /* Parse a double / long option value; print an error naming the option and

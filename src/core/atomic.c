@@ -6,7 +6,10 @@
  * end of the line; '#' starts a comment (share/doubletty/atomic.dat explains
  * the format at its top).  A table is parsed completely before anything is
  * added, so a malformed table leaves the caller's table untouched; the error
- * names the line.  Names are compared ignoring case and white space. */
+ * names the line.  Names are compared ignoring case and white space.  The
+ * default table is also built into the program (the Makefile turns
+ * share/doubletty/atomic.dat into a C array), for a program that finds no
+ * table file. */
 #include "doubletty/atomic.h"
 #include "doubletty/num.h"
 
@@ -266,6 +269,31 @@ int dt_atomic_merge(dt_atomic *t, const char *path, dt_err *e) {
   rc = dt_atomic_parse(t, buf, len, e);
   free(buf);
   return rc;
+}
+
+/* Generated at build time from share/doubletty/atomic.dat (see the Makefile). */
+extern const unsigned char dt_atomic_builtin_data[];
+extern const size_t dt_atomic_builtin_size;
+
+const char *dt_atomic_builtin_text(size_t *len) {
+  if (len) *len = dt_atomic_builtin_size;
+  return (const char *)dt_atomic_builtin_data;
+}
+
+int dt_atomic_load_builtin(dt_atomic **out, dt_err *e) {
+  dt_err_clear(e);
+  if (!out) return dt_err_set(e, DT_EINVAL, NULL, "no place for the table");
+  *out = NULL;
+  dt_atomic *t = dt_atomic_new();
+  if (!t) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
+  int rc = dt_atomic_parse(t, (const char *)dt_atomic_builtin_data, dt_atomic_builtin_size, e);
+  if (rc == DT_OK && t->n == 0) rc = dt_err_set(e, DT_EFORMAT, NULL, "the built-in table holds no doublets");
+  if (rc != DT_OK) {
+    dt_atomic_free(t);
+    return rc;
+  }
+  *out = t;
+  return DT_OK;
 }
 
 int dt_atomic_load(const char *path, dt_atomic **out, dt_err *e) {

@@ -29,8 +29,22 @@ static void cloc_leave(cloc *l) {
 double dt_num_strtod(const char *s, char **end) {
   cloc l;
   cloc_enter(&l);
+  errno = 0; /* what the caller sees in errno is strtod's alone */
   double x = strtod(s, end);
+  int err = errno;
   cloc_leave(&l);
+  errno = err;
+  return x;
+}
+
+long long dt_num_strtoll(const char *s, char **end) {
+  cloc l;
+  cloc_enter(&l);
+  errno = 0;
+  long long x = strtoll(s, end, 10);
+  int err = errno;
+  cloc_leave(&l);
+  errno = err;
   return x;
 }
 
@@ -48,9 +62,9 @@ int dt_num_parse_long(const char *s, long lo, long hi, long *x) {
   if (!s || !*s || strchr(" \t\n\r\f\v", s[0])) return DT_EINVAL;
   char *end;
   errno = 0;
-  long v = strtol(s, &end, 10);
+  long long v = dt_num_strtoll(s, &end);
   if (end == s || *end || errno || v < lo || v > hi) return DT_EINVAL;
-  *x = v;
+  *x = (long)v;
   return DT_OK;
 }
 
@@ -83,6 +97,14 @@ void dt_num_format(char *out, size_t size, double x) {
     }
   }
   cloc_leave(&l);
+}
+
+int dt_num_with_c_locale(int (*fn)(void *arg), void *arg) {
+  cloc l;
+  cloc_enter(&l);
+  int rc = fn(arg);
+  cloc_leave(&l);
+  return rc;
 }
 
 int dt_num_snprintf(char *out, size_t size, const char *fmt, ...) {

@@ -23,7 +23,9 @@
 
 #include <gsl/gsl_statistics_double.h>
 
+#include "doubletty/airvac.h"
 #include "doubletty/atomic.h"
+#include "doubletty/num.h"
 #include "spectrum_priv.h"
 
 dt_spectrum *dt_spectrum_alloc(size_t n) {
@@ -88,6 +90,15 @@ int dt_spectrum_unit_scale(const char *unit, double *scale, char *canon, size_t 
     }
   }
   return -1;
+}
+
+void dt_spectrum_settle_air(dt_spectrum *s, const dt_read_opts *o) {
+  if (s->air_from != DT_AIRVAC_FILE) {
+    s->air = o && o->air;
+    s->air_from = s->air ? DT_AIRVAC_CALLER : DT_AIRVAC_ASSUMED;
+  }
+  if (!s->air) return;
+  for (size_t i = 0; i < s->n; i++) s->wave[i] = dt_air_to_vac(s->wave[i]);
 }
 
 static void place(char *buf, size_t size, const char *prefix, const char *label,
@@ -387,7 +398,7 @@ static int parse_sel(const char *sel, dt_hdu_sel *hs, dt_err *e) {
   while (*p == ' ') p++;
   if (isdigit((unsigned char)*p)) {
     char *end;
-    long k = strtol(p, &end, 10);
+    long long k = dt_num_strtoll(p, &end);
     while (*end == ' ') end++;
     if (*end != '\0' || k < 0 || k > 100000)
       return dt_err_set(e, DT_EINVAL, NULL, "[%s]: not an extension number or name", sel);
@@ -438,7 +449,7 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **o
       if (opts && opts->row > 1)
         rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
       else
-        rc = dt_spectrum_read_text(base, out, e);
+        rc = dt_spectrum_read_text(base, opts, out, e);
     }
   }
   free(base);
@@ -465,7 +476,7 @@ int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
     else if (opts && opts->row > 1)
       rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
     else
-      rc = dt_spectrum_read_text_mem(buf, len, out, e);
+      rc = dt_spectrum_read_text_mem(buf, len, opts, out, e);
   }
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);

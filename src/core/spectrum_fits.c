@@ -10,8 +10,8 @@
  *     other HDUs for an uncertainty image and a mask image by EXTNAME;
  *   - table: finds the columns by name; scalar columns hold one spectrum
  *     (a row per pixel), vector or variable-length columns one spectrum per
- *     row.
- * Air wavelengths are converted to vacuum (airvac.c); everything else that
+ *     row (spectrum_fits_table.c).
+ * Air wavelengths are converted to vacuum (dt_spectrum_settle_air); everything else that
  * all layouts share is done by dt_spectrum_finish (spectrum.c).  A file can
  * also be read from its bytes in memory (cfitsio's memory driver). */
 #include <ctype.h>
@@ -24,30 +24,14 @@
 
 #include <fitsio.h>
 
-#include "doubletty/airvac.h"
-#include "spectrum_priv.h"
+#include "doubletty/num.h"
+#include "spectrum_fits_priv.h"
 
-typedef struct fctx {
-  fitsfile *f;
-  const char *file;
-  const unsigned char *mem; /* the file's bytes when read from memory, else NULL */
-  void *mem_ptr;            /* cfitsio keeps the addresses of these two for */
-  size_t mem_size;          /*   as long as the memory file is open */
-  unsigned char *padded;    /* mem copied into whole blocks, or NULL */
-  long long fsize;
-  /* values from the primary header, used when the spectrum's HDU lacks them */
-  double prim_res;
-  int prim_air;
-  char prim_object[72];
-} fctx;
-
-typedef enum { AUX_NONE, AUX_SIGMA, AUX_IVAR, AUX_VAR, AUX_MASK } aux_kind;
-
-static const char *aux_text[] = {"", "sigma", "inverse variance", "variance", "mask"};
+const char *const dt_fits_aux_text[] = {"", "sigma", "inverse variance", "variance", "mask"};
 
 /* ---- small helpers ------------------------------------------------------- */
 
-static int cfitsio_err(dt_err *e, int status, const char *where, const char *doing) {
+int dt_fits_err(dt_err *e, int status, const char *where, const char *doing) {
   char txt[FLEN_STATUS];
   fits_get_errstatus(status, txt);
   fits_clear_errmsg();
@@ -77,7 +61,7 @@ static int key_dbl(fitsfile *f, const char *key, double *v) {
 }
 
 /* Read a keyword as text (buf of FLEN_VALUE): 1 found, 0 absent. */
-static int key_str(fitsfile *f, const char *key, char *buf) {
+int dt_fits_key_str(fitsfile *f, const char *key, char *buf) {
   int st = 0;
   buf[0] = '\0';
   fits_read_key(f, TSTRING, key, buf, NULL, &st);
@@ -87,8 +71,8 @@ static int key_str(fitsfile *f, const char *key, char *buf) {
   return 0;
 }
 
-/* Split a name into words at '_', '-', '.', ' ' and classify it. */
-static aux_kind classify(const char *name, int allow_mask) {
+/* Split a name into words at '_', '-', '.', ' ' and dt_fits_classify it. */
+aux_kind dt_fits_classify(const char *name, int allow_mask) {
   char buf[FLEN_VALUE];
   snprintf(buf, sizeof buf, "%s", name ? name : "");
   upper_trim(buf);
@@ -111,23 +95,24 @@ static aux_kind classify(const char *name, int allow_mask) {
 }
 
 /* Header facts shared by images and tables, with the primary as fallback. */
-static void read_common_keys(fctx *c, dt_spectrum *s) {
+void dt_fits_common_keys(fctx *c, dt_spectrum *s) {
   char v[FLEN_VALUE];
   double r = 0;
-  if (key_str(c->f, "EXTNAME", v)) snprintf(s->extname, sizeof s->extname, "%s", v);
+  if (dt_fits_key_str(c->f, "EXTNAME", v)) snprintf(s->extname, sizeof s->extname, "%s", v);
   s->object[0] = '\0';
-  if (key_str(c->f, "OBJECT", v)) snprintf(s->object, sizeof s->object, "%s", v);
+  if (dt_fits_key_str(c->f, "OBJECT", v)) snprintf(s->object, sizeof s->object, "%s", v);
   if (!s->object[0]) snprintf(s->object, sizeof s->object, "%s", c->prim_object);
   s->resolution = 0;
   if ((key_dbl(c->f, "SPECRES", &r) == 1 || key_dbl(c->f, "RESOLUTN", &r) == 1) && r > 0 && isfinite(r))
     s->resolution = r;
   else
     s->resolution = c->prim_res;
-  s->air = c->prim_air;
-  if (key_str(c->f, "AIRORVAC", v)) {
+  s->air = c->prim_air > 0;
+  if (c->prim_air >= 0) s->air_from = DT_AIRVAC_FILE;
+  if (dt_fits_key_str(c->f, "AIRORVAC", v)) {
     upper_trim(v);
-    if (!strcmp(v, "AIR")) s->air = 1;
-    if (!strcmp(v, "VAC") || !strcmp(v, "VACUUM")) s->air = 0;
+    if (!strcmp(v, "AIR")) s->air = 1, s->air_from = DT_AIRVAC_FILE;
+    if (!strcmp(v, "VAC") || !strcmp(v, "VACUUM")) s->air = 0, s->air_from = DT_AIRVAC_FILE;
   }
 }
 
@@ -154,13 +139,13 @@ static long long declared_data_bytes(fitsfile *f) {
 }
 
 /* Is the current HDU's data entirely inside the file? */
-static int check_complete(fctx *c, int hdu, dt_err *e) {
+int dt_fits_check_complete(fctx *c, int hdu, dt_err *e) {
   long long head = 0, data = 0, end = 0;
   int st = 0;
   char where[32];
   snprintf(where, sizeof where, "HDU %d", hdu);
   fits_get_hduaddrll(c->f, &head, &data, &end, &st);
-  if (st) return cfitsio_err(e, st, where, "locating the data");
+  if (st) return dt_fits_err(e, st, where, "locating the data");
   long long bytes = declared_data_bytes(c->f);
   long long need = bytes > LLONG_MAX - data ? LLONG_MAX : data + bytes;
   if (need == LLONG_MAX)
@@ -251,7 +236,7 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
                         sel->number, sel->number - 1, have, have == 1 ? "" : "s");
     }
     snprintf(where, sizeof where, "HDU %d", sel->number);
-    if (st) return cfitsio_err(e, st, where, "moving to the HDU");
+    if (st) return dt_fits_err(e, st, where, "moving to the HDU");
     *hdu = sel->number;
     return DT_OK;
   }
@@ -262,7 +247,7 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
       fits_clear_errmsg();
       return dt_err_set(e, DT_ENOTFOUND, NULL, "no HDU with EXTNAME '%s'", sel->name);
     }
-    if (st) return cfitsio_err(e, st, NULL, "looking for the named HDU");
+    if (st) return dt_fits_err(e, st, NULL, "looking for the named HDU");
     fits_get_hdu_num(c->f, hdu);
     fits_get_hdu_type(c->f, type, &st);
     return DT_OK;
@@ -276,14 +261,14 @@ static int select_hdu(fctx *c, const dt_hdu_sel *sel, int *hdu, int *type, dt_er
       break;
     }
     snprintf(where, sizeof where, "HDU %d", i);
-    if (st) return cfitsio_err(e, st, where, "reading the header");
+    if (st) return dt_fits_err(e, st, where, "reading the header");
     int has = hdu_has_data(c->f, *type, &st);
-    if (st) return cfitsio_err(e, st, where, "reading the header");
+    if (st) return dt_fits_err(e, st, where, "reading the header");
     if (!has) continue;
     if (*type == IMAGE_HDU) {
       char name[FLEN_VALUE];
-      key_str(c->f, "EXTNAME", name);
-      if (classify(name, 1) != AUX_NONE) continue; /* an uncertainty or mask image */
+      dt_fits_key_str(c->f, "EXTNAME", name);
+      if (dt_fits_classify(name, 1) != AUX_NONE) continue; /* an uncertainty or mask image */
     }
     *hdu = i;
     return DT_OK;
@@ -370,7 +355,7 @@ static int guard_headers(const fctx *c, dt_err *e) {
           break;
         }
         char *end;
-        long long x = strtoll(v, &end, 10); /* the first number, as cfitsio reads it */
+        long long x = dt_num_strtoll(v, &end); /* the first number, as cfitsio reads it */
         if (quoted || end == v) continue;
         if (!strcmp(key, "TFIELDS") && (x < 0 || x > 999)) {
           char where[32];
@@ -384,7 +369,7 @@ static int guard_headers(const fctx *c, dt_err *e) {
         else if (!strcmp(key, "PCOUNT")) pcount = x;
         else if (!strcmp(key, "GCOUNT")) gcount = x;
         else if (!strncmp(key, "NAXIS", 5) && isdigit((unsigned char)key[5])) {
-          long n = strtol(key + 5, &end, 10);
+          long long n = dt_num_strtoll(key + 5, &end);
           if (!*end && n >= 1 && n <= max_axes) nax[n] = x;
         }
       }
@@ -407,6 +392,7 @@ static int guard_headers(const fctx *c, dt_err *e) {
 /* Open the file (file != NULL) or the bytes mem[0..len) read-only. */
 static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_err *e) {
   memset(c, 0, sizeof *c);
+  c->prim_air = -1;
   c->file = file;
   int st = 0;
   if (file) {
@@ -454,11 +440,12 @@ static int open_fits(const char *file, const void *mem, size_t len, fctx *c, dt_
   double r;
   if ((key_dbl(c->f, "SPECRES", &r) == 1 || key_dbl(c->f, "RESOLUTN", &r) == 1) && r > 0 && isfinite(r))
     c->prim_res = r;
-  if (key_str(c->f, "AIRORVAC", v)) {
+  if (dt_fits_key_str(c->f, "AIRORVAC", v)) {
     upper_trim(v);
-    c->prim_air = !strcmp(v, "AIR");
+    if (!strcmp(v, "AIR")) c->prim_air = 1;
+    if (!strcmp(v, "VAC") || !strcmp(v, "VACUUM")) c->prim_air = 0;
   }
-  if (key_str(c->f, "OBJECT", v)) snprintf(c->prim_object, sizeof c->prim_object, "%s", v);
+  if (dt_fits_key_str(c->f, "OBJECT", v)) snprintf(c->prim_object, sizeof c->prim_object, "%s", v);
   return DT_OK;
 }
 
@@ -471,17 +458,14 @@ static void close_fits(fctx *c) {
   c->padded = NULL;
 }
 
-static void air_to_vacuum(dt_spectrum *s) {
-  if (!s->air) return;
-  for (size_t i = 0; i < s->n; i++) s->wave[i] = dt_air_to_vac(s->wave[i]);
-}
 
 /* ---- images --------------------------------------------------------------- */
 
 typedef enum { AXIS_LINEAR, AXIS_LOG, AXIS_LOG10 } axis_kind;
 
 /* Wavelengths [Angstrom] of pixels 1..n from the WCS keywords of the current
- * HDU; sets s->layout, s->unit and (for CTYPE1 AWAV) s->air. */
+ * HDU; sets s->layout, s->unit and, when CTYPE1 says air (AWAV) or vacuum
+ * (WAVE), s->air and s->air_from. */
 static int image_wavelengths(fitsfile *f, dt_spectrum *s, const char *where, dt_err *e) {
   char ctype[FLEN_VALUE], cunit[FLEN_VALUE];
   double crval = 0, crpix = 0, cdelt = 0, cd = 0, pc = 1, dcflag = 0;
@@ -503,7 +487,7 @@ static int image_wavelengths(fitsfile *f, dt_spectrum *s, const char *where, dt_
   if (step == 0 || !isfinite(step))
     return dt_err_set(e, DT_ENOWCS, where, "no wavelength solution: the pixel step (%s) is zero",
                       has_cd ? "CD1_1" : "CDELT1");
-  key_str(f, "CTYPE1", ctype);
+  dt_fits_key_str(f, "CTYPE1", ctype);
   upper_trim(ctype);
   axis_kind axis;
   int air = 0;
@@ -532,7 +516,7 @@ static int image_wavelengths(fitsfile *f, dt_spectrum *s, const char *where, dt_
   /* Without CUNIT1 the FITS standard means metres for WAVE and AWAV, but
    * most spectra without it are in Angstrom: a CRVAL1 below 1e-3 can only be
    * metres, anything else is taken as Angstrom. */
-  if (!key_str(f, "CUNIT1", cunit) && (!strncmp(ctype, "WAVE", 4) || !strncmp(ctype, "AWAV", 4)) &&
+  if (!dt_fits_key_str(f, "CUNIT1", cunit) && (!strncmp(ctype, "WAVE", 4) || !strncmp(ctype, "AWAV", 4)) &&
       fabs(crval) < 1e-3)
     snprintf(cunit, sizeof cunit, "m");
   double scale;
@@ -559,6 +543,7 @@ static int image_wavelengths(fitsfile *f, dt_spectrum *s, const char *where, dt_
            axis == AXIS_LOG ? "image-log" : axis == AXIS_LOG10 ? "image-log10" : "image-linear");
   if (air) s->air = 1;
   if (vacuum) s->air = 0;
+  if (air || vacuum) s->air_from = DT_AIRVAC_FILE;
   return DT_OK;
 }
 
@@ -570,14 +555,14 @@ static int read_aux_image(fctx *c, int i, aux_kind kind, const char *name, dt_sp
   long long nax[9] = {0};
   fits_get_img_dim(c->f, &naxis, &st);
   if (!st && naxis >= 1) fits_get_img_sizell(c->f, naxis > 9 ? 9 : naxis, nax, &st);
-  if (st) return cfitsio_err(e, st, where, "reading the image size");
+  if (st) return dt_fits_err(e, st, where, "reading the image size");
   long long len = 1;
   for (int k = 0; k < naxis && k < 9; k++) len *= nax[k];
   if (len != (long long)s->n || (naxis > 1 && nax[0] != len))
     return dt_err_set(e, DT_EFORMAT, where,
-                      "length mismatch: the %s image '%s' has %lld pixels, the flux %zu", aux_text[kind],
+                      "length mismatch: the %s image '%s' has %lld pixels, the flux %zu", dt_fits_aux_text[kind],
                       name, len, s->n);
-  int rc = check_complete(c, i, e);
+  int rc = dt_fits_check_complete(c, i, e);
   if (rc) return rc;
   double *v = malloc(s->n * sizeof *v);
   if (!v) return dt_err_set(e, DT_ENOMEM, where, "out of memory");
@@ -585,7 +570,7 @@ static int read_aux_image(fctx *c, int i, aux_kind kind, const char *name, dt_sp
   fits_read_img(c->f, TDOUBLE, 1, (long long)s->n, &nan, v, &anynul, &st);
   if (st) {
     free(v);
-    return cfitsio_err(e, st, where, "reading the image");
+    return dt_fits_err(e, st, where, "reading the image");
   }
   for (size_t p = 0; p < s->n; p++) {
     switch (kind) {
@@ -606,36 +591,36 @@ static int read_aux_image(fctx *c, int i, aux_kind kind, const char *name, dt_sp
   free(v);
   if (kind != AUX_MASK) {
     s->has_sigma = 1;
-    snprintf(s->sigma_from, sizeof s->sigma_from, "HDU %d '%.16s' (%s)", i, name, aux_text[kind]);
+    snprintf(s->sigma_from, sizeof s->sigma_from, "HDU %d '%.16s' (%s)", i, name, dt_fits_aux_text[kind]);
   }
   return DT_OK;
 }
 
-static int read_image(fctx *c, int hdu, dt_spectrum **out, dt_err *e) {
+static int read_image(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   char where[32];
   snprintf(where, sizeof where, "HDU %d", hdu);
   int st = 0, naxis = 0, anynul = 0;
   long long nax[9] = {0};
   fits_get_img_dim(c->f, &naxis, &st);
   if (!st && naxis >= 1) fits_get_img_sizell(c->f, naxis > 9 ? 9 : naxis, nax, &st);
-  if (st) return cfitsio_err(e, st, where, "reading the image size");
+  if (st) return dt_fits_err(e, st, where, "reading the image size");
   if (naxis < 1 || nax[0] < 1) return dt_err_set(e, DT_EFORMAT, where, "the image is empty");
   for (int k = 1; k < naxis && k < 9; k++)
     if (nax[k] != 1)
       return dt_err_set(e, DT_EFORMAT, where,
                         "a %d-D image (%lld x %lld%s): doubletty reads 1-D spectra", naxis, nax[0],
                         nax[1], naxis > 2 ? " x ..." : "");
-  int rc = check_complete(c, hdu, e);
+  int rc = dt_fits_check_complete(c, hdu, e);
   if (rc) return rc;
   dt_spectrum *s = dt_spectrum_alloc((size_t)nax[0]);
   if (!s) return dt_err_set(e, DT_ENOMEM, where, "out of memory");
   s->hdu = hdu;
-  read_common_keys(c, s);
+  dt_fits_common_keys(c, s);
   rc = image_wavelengths(c->f, s, where, e);
   double nan = NAN;
   if (!rc) {
     fits_read_img(c->f, TDOUBLE, 1, (long long)s->n, &nan, s->flux, &anynul, &st);
-    if (st) rc = cfitsio_err(e, st, where, "reading the flux");
+    if (st) rc = dt_fits_err(e, st, where, "reading the flux");
   }
   /* Uncertainty and mask images elsewhere in the file, by EXTNAME. */
   int got_sigma = 0, got_mask = 0;
@@ -654,8 +639,8 @@ static int read_image(fctx *c, int hdu, dt_spectrum **out, dt_err *e) {
     if (!st && d1 > last_end) last_end = d1;
     if (i == hdu || type != IMAGE_HDU) continue;
     char name[FLEN_VALUE];
-    if (!key_str(c->f, "EXTNAME", name)) continue;
-    aux_kind kind = classify(name, 1);
+    if (!dt_fits_key_str(c->f, "EXTNAME", name)) continue;
+    aux_kind kind = dt_fits_classify(name, 1);
     if (kind == AUX_NONE || (kind == AUX_MASK ? got_mask : got_sigma)) continue;
     int has = hdu_has_data(c->f, type, &st);
     if (st || !has) {
@@ -669,274 +654,8 @@ static int read_image(fctx *c, int hdu, dt_spectrum **out, dt_err *e) {
       got_sigma = 1;
   }
   if (!rc) {
-    air_to_vacuum(s);
+    dt_spectrum_settle_air(s, o);
     rc = dt_spectrum_finish(s, where, "pixel", NULL, e);
-  }
-  if (rc) {
-    dt_spectrum_free(s);
-    return rc;
-  }
-  *out = s;
-  return DT_OK;
-}
-
-/* ---- tables --------------------------------------------------------------- */
-
-typedef struct colinfo {
-  int num;             /* 1-based column number; 0 = absent */
-  char name[FLEN_VALUE];
-  int type;            /* cfitsio type code (positive) */
-  int vla;             /* variable-length array column */
-  long long repeat;
-} colinfo;
-
-/* Find a column: the override name, else the first of the common names. */
-static int find_column(fitsfile *f, int ncols, char names[][FLEN_VALUE], const char *override,
-                       const char *const *common, const char *role, colinfo *ci, const char *where,
-                       dt_err *e) {
-  memset(ci, 0, sizeof *ci);
-  if (override) {
-    for (int i = 0; i < ncols; i++)
-      if (dt_spectrum_name_eq(names[i], override)) ci->num = i + 1;
-    if (!ci->num) {
-      char list[160] = "";
-      size_t used = 0;
-      for (int i = 0; i < ncols && used < sizeof list - 20; i++)
-        used += (size_t)snprintf(list + used, sizeof list - used, "%s%s", i ? ", " : "", names[i]);
-      return dt_err_set(e, DT_ENOTFOUND, where, "no %s column '%s' (columns: %s)", role, override, list);
-    }
-  } else {
-    for (int k = 0; common[k] && !ci->num; k++)
-      for (int i = 0; i < ncols; i++)
-        if (dt_spectrum_name_eq(names[i], common[k])) {
-          ci->num = i + 1;
-          break;
-        }
-    if (!ci->num) return DT_OK;
-  }
-  snprintf(ci->name, sizeof ci->name, "%s", names[ci->num - 1]);
-  int st = 0;
-  long long width = 0;
-  fits_get_eqcoltypell(f, ci->num, &ci->type, &ci->repeat, &width, &st);
-  if (st) return cfitsio_err(e, st, where, "reading a column format");
-  if (ci->type < 0) {
-    ci->vla = 1;
-    ci->type = -ci->type;
-  }
-  if (ci->type == TSTRING || ci->type == TBIT)
-    return dt_err_set(e, DT_EFORMAT, where, "column %s holds %s, not numbers", ci->name,
-                      ci->type == TSTRING ? "text" : "bits");
-  return DT_OK;
-}
-
-/* Number of elements of column ci in a row. */
-static int col_len(fitsfile *f, const colinfo *ci, long long row, long long *len, int *st) {
-  if (!ci->vla) {
-    *len = ci->repeat;
-    return 0;
-  }
-  long long off = 0;
-  fits_read_descriptll(f, ci->num, row, len, &off, st);
-  return *st;
-}
-
-/* Read nelem values of a column from (row, element 1) on as doubles;
- * undefined values become NaN (a logical column: true = 1). */
-static int read_col(fitsfile *f, const colinfo *ci, long long row, long long nelem, double *out,
-                    const char *where, dt_err *e) {
-  int st = 0, anynul = 0;
-  if (ci->type == TLOGICAL) {
-    char *b = malloc((size_t)nelem + 1);
-    char *nul = malloc((size_t)nelem + 1);
-    if (!b || !nul) {
-      free(b);
-      free(nul);
-      return dt_err_set(e, DT_ENOMEM, where, "out of memory");
-    }
-    fits_read_colnull(f, TLOGICAL, ci->num, row, 1, nelem, b, nul, &anynul, &st);
-    for (long long i = 0; i < nelem && !st; i++) out[i] = nul[i] ? NAN : (b[i] ? 1.0 : 0.0);
-    free(b);
-    free(nul);
-  } else {
-    double nan = NAN;
-    fits_read_col(f, TDOUBLE, ci->num, row, 1, nelem, &nan, out, &anynul, &st);
-  }
-  if (st) {
-    char w[96];
-    snprintf(w, sizeof w, "%.50s, column %.30s", where, ci->name);
-    return cfitsio_err(e, st, w, "reading the column");
-  }
-  return DT_OK;
-}
-
-static const char *const wave_names[] = {"WAVE", "WAVELENGTH", "LAMBDA", "LOGLAM", NULL};
-static const char *const flux_names[] = {"FLUX", NULL};
-static const char *const err_names[] = {"IVAR", "INVVAR", "ERR", "ERROR", "SIGMA", "FLUX_ERR",
-                                        "VAR", "VARIANCE", NULL};
-static const char *const mask_names[] = {"MASK", "AND_MASK", NULL};
-
-typedef struct table_cols {
-  colinfo wave, flux, err, mask;
-  long long nrows;
-  int rows_layout;
-} table_cols;
-
-static int table_columns(fctx *c, int hdu, const dt_read_opts *o, table_cols *t, dt_err *e) {
-  char where[32];
-  snprintf(where, sizeof where, "HDU %d", hdu);
-  int st = 0, ncols = 0;
-  fits_get_num_rowsll(c->f, &t->nrows, &st);
-  fits_get_num_cols(c->f, &ncols, &st);
-  if (st) return cfitsio_err(e, st, where, "reading the table header");
-  if (t->nrows < 1) return dt_err_set(e, DT_EFORMAT, where, "the table has no rows");
-  char(*names)[FLEN_VALUE] = calloc((size_t)(ncols > 0 ? ncols : 1), sizeof *names);
-  if (!names) return dt_err_set(e, DT_ENOMEM, where, "out of memory");
-  for (int i = 0; i < ncols; i++) {
-    char key[FLEN_KEYWORD];
-    snprintf(key, sizeof key, "TTYPE%d", i + 1);
-    key_str(c->f, key, names[i]);
-  }
-  const char *wo = o ? o->wave_col : NULL, *fo = o ? o->flux_col : NULL;
-  const char *eo = o ? o->err_col : NULL, *mo = o ? o->mask_col : NULL;
-  int rc = find_column(c->f, ncols, names, fo, flux_names, "flux", &t->flux, where, e);
-  if (!rc) rc = find_column(c->f, ncols, names, wo, wave_names, "wavelength", &t->wave, where, e);
-  if (!rc) rc = find_column(c->f, ncols, names, eo, err_names, "uncertainty", &t->err, where, e);
-  if (!rc) rc = find_column(c->f, ncols, names, mo, mask_names, "mask", &t->mask, where, e);
-  free(names);
-  if (rc) return rc;
-  if (!t->flux.num) return dt_err_set(e, DT_ENOTFOUND, where, "no flux column (looked for FLUX)");
-  if (!t->wave.num)
-    return dt_err_set(e, DT_ENOWCS, where,
-                      "no wavelength column (looked for WAVE, WAVELENGTH, LAMBDA, LOGLAM)");
-  t->rows_layout = t->flux.vla || t->flux.repeat > 1;
-  return DT_OK;
-}
-
-/* Wavelength unit of a table column: TUNITn, and whether the values are
- * log10 of the wavelength (column LOGLAM, or a unit "log(...)"/"dex"). */
-static int table_wave_unit(fctx *c, const colinfo *w, int *log10, double *scale, dt_spectrum *s,
-                           const char *where, dt_err *e) {
-  char key[FLEN_KEYWORD], unit[FLEN_VALUE];
-  snprintf(key, sizeof key, "TUNIT%d", w->num);
-  key_str(c->f, key, unit);
-  *log10 = dt_spectrum_name_eq(w->name, "LOGLAM");
-  char inner[FLEN_VALUE];
-  snprintf(inner, sizeof inner, "%s", unit);
-  char low[FLEN_VALUE];
-  snprintf(low, sizeof low, "%s", unit);
-  for (char *p = low; *p; p++) *p = (char)tolower((unsigned char)*p);
-  if (!strncmp(low, "log10(", 6) || !strncmp(low, "log(", 4)) {
-    *log10 = 1;
-    char *open = strchr(unit, '(');
-    snprintf(inner, sizeof inner, "%s", open + 1);
-    char *close = strchr(inner, ')');
-    if (close) *close = '\0';
-  } else if (!strcmp(low, "dex") || (*log10 && !strncmp(low, "log", 3))) {
-    *log10 = 1;
-    inner[0] = '\0';
-  }
-  if (dt_spectrum_unit_scale(inner, scale, s->unit, sizeof s->unit) != 0)
-    return dt_err_set(e, DT_ENOWCS, where, "unknown wavelength unit %s = '%s' (column %s)", key, unit,
-                      w->name);
-  return DT_OK;
-}
-
-static int read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
-  char where[96];
-  snprintf(where, sizeof where, "HDU %d", hdu);
-  table_cols t;
-  int rc = table_columns(c, hdu, o, &t, e);
-  if (rc) return rc;
-  rc = check_complete(c, hdu, e);
-  if (rc) return rc;
-  long want = o ? o->row : 0;
-  long long row = 1, n = 0;
-  int st = 0;
-  colinfo *cols[4] = {&t.flux, &t.wave, &t.err, &t.mask};
-  if (t.rows_layout) {
-    row = want > 0 ? want : 1;
-    if (row > t.nrows)
-      return dt_err_set(e, DT_ENOTFOUND, where, "row %lld requested, the table has %lld row%s", row,
-                        t.nrows, t.nrows == 1 ? "" : "s");
-    snprintf(where, sizeof where, "HDU %d, row %lld", hdu, row);
-    col_len(c->f, &t.flux, row, &n, &st);
-    for (int k = 1; k < 4 && !st; k++) {
-      if (!cols[k]->num) continue;
-      long long len = 0;
-      if (col_len(c->f, cols[k], row, &len, &st)) break;
-      if (len != n) {
-        char w[96];
-        snprintf(w, sizeof w, "%.50s, column %.30s", where, cols[k]->name);
-        return dt_err_set(e, DT_EFORMAT, w, "length mismatch: %lld value%s, column %s has %lld", len,
-                          len == 1 ? "" : "s", t.flux.name, n);
-      }
-    }
-    if (st) return cfitsio_err(e, st, where, "reading a variable-length array descriptor");
-  } else {
-    if (want > 1)
-      return dt_err_set(e, DT_EINVAL, where,
-                        "row %ld requested, but this table holds one spectrum in columns (a row "
-                        "per pixel)",
-                        want);
-    n = t.nrows;
-    for (int k = 1; k < 4; k++)
-      if (cols[k]->num && (cols[k]->vla || cols[k]->repeat != 1))
-        return dt_err_set(e, DT_EFORMAT, where,
-                          "column %s holds %s values per row but column %s one: mixed layouts",
-                          cols[k]->name, cols[k]->vla ? "several" : "multiple", t.flux.name);
-  }
-  if (n < 1) return dt_err_set(e, DT_EFORMAT, where, "no pixels");
-  /* Every value takes at least one byte of the file: a longer row comes from
-   * a damaged array descriptor, and must not decide how much memory to take. */
-  if (n > c->fsize)
-    return dt_err_set(e, DT_EFORMAT, where,
-                      "damaged FITS file: %lld values per column cannot fit in its %lld bytes", n,
-                      c->fsize);
-  dt_spectrum *s = dt_spectrum_alloc((size_t)n);
-  double *buf = malloc((size_t)n * sizeof *buf);
-  if (!s || !buf) {
-    dt_spectrum_free(s);
-    free(buf);
-    return dt_err_set(e, DT_ENOMEM, where, "out of memory");
-  }
-  s->hdu = hdu;
-  s->row = t.rows_layout ? (long)row : 0;
-  snprintf(s->layout, sizeof s->layout, "%s", t.rows_layout ? "table-rows" : "table-columns");
-  read_common_keys(c, s);
-  int log10w = 0;
-  double scale = 1;
-  rc = table_wave_unit(c, &t.wave, &log10w, &scale, s, where, e);
-  if (!rc) rc = read_col(c->f, &t.wave, row, n, s->wave, where, e);
-  if (!rc)
-    for (long long i = 0; i < n; i++) s->wave[i] = (log10w ? pow(10.0, s->wave[i]) : s->wave[i]) * scale;
-  if (!rc) rc = read_col(c->f, &t.flux, row, n, s->flux, where, e);
-  if (!rc && t.err.num) {
-    rc = read_col(c->f, &t.err, row, n, buf, where, e);
-    aux_kind kind = classify(t.err.name, 0);
-    if (kind == AUX_NONE) kind = AUX_SIGMA;
-    for (long long i = 0; i < n && !rc; i++) {
-      double v = buf[i];
-      if (kind == AUX_IVAR) {
-        s->sigma[i] = v > 0 ? 1.0 / sqrt(v) : INFINITY;
-        if (!(v > 0) || !isfinite(v)) s->mask[i] = 1;
-      } else if (kind == AUX_VAR) {
-        s->sigma[i] = v > 0 ? sqrt(v) : NAN;
-      } else {
-        s->sigma[i] = v;
-      }
-    }
-    s->has_sigma = 1;
-    snprintf(s->sigma_from, sizeof s->sigma_from, "column %.20s (%s)", t.err.name, aux_text[kind]);
-  }
-  if (!rc && t.mask.num) {
-    rc = read_col(c->f, &t.mask, row, n, buf, where, e);
-    for (long long i = 0; i < n && !rc; i++)
-      if (buf[i] != 0) s->mask[i] = 1; /* NaN (undefined) counts as set */
-  }
-  free(buf);
-  if (!rc) {
-    air_to_vacuum(s);
-    rc = dt_spectrum_finish(s, where, t.rows_layout ? "pixel" : "row", NULL, e);
   }
   if (rc) {
     dt_spectrum_free(s);
@@ -960,51 +679,72 @@ static int read_opened(fctx *c, const dt_hdu_sel *sel, const dt_read_opts *o, dt
         snprintf(where, sizeof where, "HDU %d", hdu);
         rc = dt_err_set(e, DT_EINVAL, where, "row %ld requested, but this HDU is an image", o->row);
       } else {
-        rc = read_image(c, hdu, out, e);
+        rc = read_image(c, hdu, o, out, e);
       }
     } else {
-      rc = read_table(c, hdu, o, out, e);
+      rc = dt_fits_read_table(c, hdu, o, out, e);
     }
   }
   close_fits(c);
   return rc;
 }
 
+/* The entry points run the reader in the "C" locale (dt_num_with_c_locale):
+ * cfitsio converts header numbers with the locale, and keeps the decimal
+ * point of the first one it met. */
+typedef struct fits_call {
+  const char *file;
+  const void *buf;
+  size_t len;
+  const dt_hdu_sel *sel;
+  const dt_read_opts *o;
+  dt_spectrum **out;
+  long *count;
+  dt_err *e;
+} fits_call;
+
+static int call_read(void *arg) {
+  fits_call *a = arg;
+  fctx c;
+  int rc = open_fits(a->file, a->buf, a->len, &c, a->e);
+  if (rc) return rc;
+  return read_opened(&c, a->sel, a->o, a->out, a->e);
+}
+
+static int call_count(void *arg) {
+  fits_call *a = arg;
+  fctx c;
+  int rc = open_fits(a->file, NULL, 0, &c, a->e);
+  if (rc) return rc;
+  int hdu = 0, type = 0;
+  rc = select_hdu(&c, a->sel, &hdu, &type, a->e);
+  if (!rc) {
+    if (type == IMAGE_HDU)
+      *a->count = 1;
+    else
+      rc = dt_fits_count_rows(&c, hdu, a->o, a->count, a->e);
+  }
+  close_fits(&c);
+  return rc;
+}
+
 int dt_spectrum_read_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                           dt_spectrum **out, dt_err *e) {
   *out = NULL;
-  fctx c;
-  int rc = open_fits(file, NULL, 0, &c, e);
-  if (rc) return rc;
-  return read_opened(&c, sel, o, out, e);
+  fits_call a = {file, NULL, 0, sel, o, out, NULL, e};
+  return dt_num_with_c_locale(call_read, &a);
 }
 
 int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
                               const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   *out = NULL;
-  fctx c;
-  int rc = open_fits(NULL, buf, len, &c, e);
-  if (rc) return rc;
-  return read_opened(&c, sel, o, out, e);
+  fits_call a = {NULL, buf, len, sel, o, out, NULL, e};
+  return dt_num_with_c_locale(call_read, &a);
 }
 
 int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                            long *count, dt_err *e) {
   *count = 0;
-  fctx c;
-  int rc = open_fits(file, NULL, 0, &c, e);
-  if (rc) return rc;
-  int hdu = 0, type = 0;
-  rc = select_hdu(&c, sel, &hdu, &type, e);
-  if (!rc) {
-    if (type == IMAGE_HDU) {
-      *count = 1;
-    } else {
-      table_cols t;
-      rc = table_columns(&c, hdu, o, &t, e);
-      if (!rc) *count = t.rows_layout ? (long)t.nrows : 1;
-    }
-  }
-  close_fits(&c);
-  return rc;
+  fits_call a = {file, NULL, 0, sel, o, NULL, count, e};
+  return dt_num_with_c_locale(call_count, &a);
 }

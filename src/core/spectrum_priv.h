@@ -24,14 +24,20 @@ int dt_spectrum_read_fits(const char *file, const dt_hdu_sel *sel, const dt_read
                           dt_spectrum **out, dt_err *e);
 int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                            long *count, dt_err *e);
-int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e);
+int dt_spectrum_read_text(const char *file, const dt_read_opts *o, dt_spectrum **out, dt_err *e);
 
 /* The same readers on a file's bytes in memory (buf is only read, and
  * must stay valid during the call); the results, errors included, are
  * those of the file readers on a file holding these bytes. */
 int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
                               const dt_read_opts *o, dt_spectrum **out, dt_err *e);
-int dt_spectrum_read_text_mem(const void *buf, size_t len, dt_spectrum **out, dt_err *e);
+int dt_spectrum_read_text_mem(const void *buf, size_t len, const dt_read_opts *o,
+                              dt_spectrum **out, dt_err *e);
+
+/* Settle air or vacuum once the file has had its say (s->air_from =
+ * DT_AIRVAC_FILE when it did): else the caller's o->air, else vacuum
+ * assumed.  Air wavelengths are then converted to vacuum (airvac.c). */
+void dt_spectrum_settle_air(dt_spectrum *s, const dt_read_opts *o);
 
 /* Wavelength unit -> factor to Angstrom.  Empty/NULL = Angstrom.  Returns 0
  * and fills *scale and the canonical name, or -1 for an unknown unit. */

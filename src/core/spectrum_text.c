@@ -2,7 +2,8 @@
  *
  * Fields are separated by blanks, tabs or commas (so CSV works too); '#'
  * starts a comment; blank lines are skipped; a first line of column names
- * ("wave,flux,err") is skipped.  Wavelengths are vacuum Angstrom.  Every
+ * ("wave,flux,err") is skipped.  Wavelengths are Angstrom, vacuum unless
+ * the caller declares air (dt_read_opts.air: converted with airvac.c).  Every
  * line must have the same number of fields.  Errors name the line.  The
  * same parser reads a file or bytes in memory (through a stdio stream). */
 #include <ctype.h>
@@ -80,7 +81,7 @@ static int is_number(const char *t, double *v) {
 
 /* Read a text spectrum from an open stream (NULL = no bytes at all); the
  * stream is closed here. */
-static int read_text_stream(FILE *fp, dt_spectrum **out, dt_err *e) {
+static int read_text_stream(FILE *fp, const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   *out = NULL;
   growing g = {{NULL}, NULL, 0, 0};
   char *buf = NULL;
@@ -169,6 +170,7 @@ static int read_text_stream(FILE *fp, dt_spectrum **out, dt_err *e) {
       for (size_t i = 0; i < g.n; i++) s->mask[i] = g.col[3][i] != 0; /* NaN counts as set */
     snprintf(s->layout, sizeof s->layout, "text");
     snprintf(s->unit, sizeof s->unit, "Angstrom");
+    dt_spectrum_settle_air(s, o);
     rc = dt_spectrum_finish(s, NULL, "line", g.line, e);
   }
   growing_free(&g);
@@ -180,18 +182,19 @@ static int read_text_stream(FILE *fp, dt_spectrum **out, dt_err *e) {
   return DT_OK;
 }
 
-int dt_spectrum_read_text(const char *file, dt_spectrum **out, dt_err *e) {
+int dt_spectrum_read_text(const char *file, const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   *out = NULL;
   FILE *fp = fopen(file, "r");
   if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  return read_text_stream(fp, out, e);
+  return read_text_stream(fp, o, out, e);
 }
 
-int dt_spectrum_read_text_mem(const void *buf, size_t len, dt_spectrum **out, dt_err *e) {
+int dt_spectrum_read_text_mem(const void *buf, size_t len, const dt_read_opts *o,
+                              dt_spectrum **out, dt_err *e) {
   *out = NULL;
   FILE *fp = NULL;
   /* fmemopen reads the bytes in place; a zero-length buffer is an empty file */
   if (len > 0 && !(fp = fmemopen((void *)buf, len, "r")))
     return dt_err_set(e, DT_ENOMEM, NULL, "cannot read from memory: %s", strerror(errno));
-  return read_text_stream(fp, out, e);
+  return read_text_stream(fp, o, out, e);
 }

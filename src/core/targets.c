@@ -9,6 +9,7 @@
 #include "doubletty/num.h"
 
 #include <errno.h>
+#include <limits.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -17,6 +18,7 @@
 struct dt_targets {
   FILE *f;
   long lineno;
+  int air_all;  /* every target's wavelengths are in air */
   char basedir[DT_TARGET_PATH_MAX];
   char buf[DT_TARGET_LINE_MAX + 2];
 };
@@ -36,75 +38,118 @@ static int bad(dt_err *e, long lineno, const char *fmt, const char *arg) {
 
 /* A finite number filling the whole text. */
 static int parse_num(const char *s, double *out) {
-  char *end;
-  errno = 0;
-  double v = dt_num_strtod(s, &end);
-  if (end == s || *end != '\0' || errno == ERANGE || !isfinite(v)) return -1;
+  double v;
+  if (dt_num_parse(s, &v) != DT_OK || !isfinite(v)) return -1;
   *out = v;
   return 0;
 }
 
-static int parse_field(dt_target_spec *t, char *tok, long lineno, unsigned *seen, dt_err *e) {
-  static const char *const keys[] = {"row", "vsys", "R", "fwhm", "doublet", "name"};
-  char *eq = strchr(tok, '=');
-  if (!eq) return bad(e, lineno, "field '%s' is not key=value", tok);
-  *eq = '\0';
-  const char *key = tok, *val = eq + 1;
+enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_AIR, NKEYS };
+
+/* One key=value field (or the flag "air": val == NULL). */
+static int parse_field(dt_target_spec *t, const char *key, const char *val, long lineno,
+                       unsigned *seen, dt_err *e) {
+  static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "air"};
   int k = -1;
-  for (int i = 0; i < 6; i++)
+  for (int i = 0; i < NKEYS; i++)
     if (!strcmp(key, keys[i])) k = i;
-  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name)", key);
+  if (k < 0 && !val) return bad(e, lineno, "field '%s' is neither key=value nor the flag air", key);
+  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name, flag air)", key);
   if (*seen & (1u << k)) return bad(e, lineno, "key '%s' given twice", key);
   *seen |= 1u << k;
+  if (k == K_AIR) {
+    if (val) return bad(e, lineno, "air is a flag and takes no value (write just: air)%s", "");
+    t->air = 1;
+    return DT_OK;
+  }
+  if (!val) return bad(e, lineno, "field '%s' is not key=value", key);
   if (!*val) return bad(e, lineno, "key '%s' has no value", key);
   double x;
+  long r;
   switch (k) {
-  case 0: {
-    char *end;
-    errno = 0;
-    long r = strtol(val, &end, 10);
-    if (*end || errno == ERANGE || r < 1) return bad(e, lineno, "row must be a whole number >= 1, not '%s'", val);
+  case K_ROW:
+    if (dt_num_parse_long(val, 1, LONG_MAX, &r) != DT_OK)
+      return bad(e, lineno, "row must be a whole number >= 1, not '%s'", val);
     t->row = r;
     break;
-  }
-  case 1:
+  case K_VSYS:
     if (parse_num(val, &x) || fabs(x) >= 0.5 * 299792.458)
       return bad(e, lineno, "vsys must be a velocity in km/s, not '%s'", val);
     t->vsys = x;
     t->has_vsys = 1;
     break;
-  case 2:
+  case K_R:
     if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "R must be a positive resolving power, not '%s'", val);
     t->resolution = x;
     break;
-  case 3:
+  case K_FWHM:
     if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "fwhm must be a positive width in km/s, not '%s'", val);
     t->fwhm_kms = x;
     break;
-  case 4:
+  case K_DOUBLET:
     if (strlen(val) >= sizeof t->doublet) return bad(e, lineno, "doublet name '%s' is too long", val);
     snprintf(t->doublet, sizeof t->doublet, "%s", val);
     break;
-  case 5:
+  default:
     if (strlen(val) >= sizeof t->name) return bad(e, lineno, "name '%s' is too long", val);
     snprintf(t->name, sizeof t->name, "%s", val);
     break;
   }
-  if ((*seen & 12u) == 12u) return bad(e, lineno, "give R or fwhm, not both%s", "");
+  if ((*seen & (1u << K_R)) && (*seen & (1u << K_FWHM)))
+    return bad(e, lineno, "give R or fwhm, not both%s", "");
   return DT_OK;
+}
+
+/* The next field of the line from *pp into out (unquoted, unescaped).
+ * Returns 1 with a field, 0 at the end of the line (or at a comment), or
+ * DT_EFORMAT with e set.  *eq is set to the offset in out of the first '='
+ * (quoted or not), or -1. */
+static int next_field(const char *line, const char **pp, char *out, long *eq, long lineno,
+                      dt_err *e) {
+  const char *p = *pp;
+  while (*p && is_blank(*p)) p++;
+  if (!*p || *p == '#') return 0;
+  size_t n = 0;
+  *eq = -1;
+  while (*p && !is_blank(*p) && *p != '#') {
+    if (*p == '"') {
+      const char *open = p++;
+      for (;;) {
+        if (!*p) {
+          char col[24];
+          snprintf(col, sizeof col, "%ld", (long)(open - line) + 1);
+          return bad(e, lineno, "unterminated quote: the '\"' at column %s is never closed", col);
+        }
+        if (*p == '"') break;
+        if (*p == '\\') {
+          p++;
+          if (*p != '"' && *p != '\\')
+            return bad(e, lineno, "inside quotes, a backslash must be followed by '\"' or '\\' (%s)",
+                       *p ? "found another character" : "found the end of the line");
+        }
+        if (*p == '=' && *eq < 0) *eq = (long)n;
+        out[n++] = *p++;
+      }
+      p++; /* closing quote */
+      continue;
+    }
+    if (*p == '=' && *eq < 0) *eq = (long)n;
+    out[n++] = *p++;
+  }
+  out[n] = '\0';
+  *pp = p;
+  return 1;
 }
 
 int dt_targets_parse_line(const char *line, const char *basedir, long lineno,
                           dt_target_spec *t, int *got, dt_err *e) {
-  char buf[DT_TARGET_LINE_MAX + 1];
+  char buf[DT_TARGET_LINE_MAX + 1], field[DT_TARGET_LINE_MAX + 1];
   *got = 0;
   size_t len = strlen(line);
   while (len && (line[len - 1] == '\n' || line[len - 1] == '\r')) len--;
   if (len > DT_TARGET_LINE_MAX) return bad(e, lineno, "line longer than %s bytes", "8192");
   memcpy(buf, line, len);
   buf[len] = '\0';
-  char *hash = strchr(buf, '#');
-  if (hash) *hash = '\0';
   for (char *p = buf; *p; p++)
     if ((unsigned char)*p < 0x20 && !is_blank(*p)) return bad(e, lineno, "control character in the line%s", "");
 
@@ -112,29 +157,56 @@ int dt_targets_parse_line(const char *line, const char *basedir, long lineno,
   t->line = lineno;
   unsigned seen = 0;
   int nfield = 0;
-  char *p = buf;
-  for (;;) {
-    while (*p && is_blank(*p)) p++;
-    if (!*p) break;
-    char *tok = p;
-    while (*p && !is_blank(*p)) p++;
-    if (*p) *p++ = '\0';
+  const char *p = buf;
+  long eq;
+  int rc;
+  while ((rc = next_field(buf, &p, field, &eq, lineno, e)) == 1) {
     if (nfield++ == 0) {
-      int rel = tok[0] != '/' && basedir && basedir[0] && strcmp(basedir, ".") != 0;
-      size_t nb = rel ? strlen(basedir) : 0, nt = strlen(tok);
+      if (!field[0]) return bad(e, lineno, "empty path%s", "");
+      int rel = field[0] != '/' && basedir && basedir[0] && strcmp(basedir, ".") != 0;
+      size_t nb = rel ? strlen(basedir) : 0, nt = strlen(field);
       int slash = rel && basedir[nb - 1] != '/';
       if (nb + (size_t)slash + nt >= sizeof t->path)
         return bad(e, lineno, "path longer than %s bytes", "4095");
       if (nb) memcpy(t->path, basedir, nb);
       if (slash) t->path[nb++] = '/';
-      memcpy(t->path + nb, tok, nt + 1);
+      memcpy(t->path + nb, field, nt + 1);
       continue;
     }
-    int rc = parse_field(t, tok, lineno, &seen, e);
+    const char *val = NULL;
+    if (eq >= 0) {
+      field[eq] = '\0';
+      val = field + eq + 1;
+    }
+    rc = parse_field(t, field, val, lineno, &seen, e);
     if (rc != DT_OK) return rc;
   }
+  if (rc != 0) return rc;
   if (nfield == 0) return DT_OK;
   *got = 1;
+  return DT_OK;
+}
+
+int dt_targets_quote(char *out, size_t size, const char *text) {
+  int plain = text[0] != '\0';
+  for (const char *q = text; *q; q++)
+    if (is_blank(*q) || *q == '#' || *q == '"' || *q == '\\' || *q == '=') plain = 0;
+  size_t n = 0;
+  if (!plain && size > 0) out[n++] = '"';
+  for (const char *q = text; *q; q++) {
+    if (!plain && (*q == '"' || *q == '\\')) {
+      if (n + 1 >= size) return DT_EINVAL;
+      out[n++] = '\\';
+    }
+    if (n + 1 >= size) return DT_EINVAL;
+    out[n++] = *q;
+  }
+  if (!plain) {
+    if (n + 1 >= size) return DT_EINVAL;
+    out[n++] = '"';
+  }
+  if (n >= size) return DT_EINVAL;
+  out[n] = '\0';
   return DT_OK;
 }
 
@@ -179,11 +251,14 @@ int dt_targets_next(dt_targets *l, dt_target_spec *t, int *got, dt_err *e) {
     if (nul) return bad(e, l->lineno, "NUL byte in the line (not a text file?)%s", "");
     if (too_long) return bad(e, l->lineno, "line longer than %s bytes", "8192");
     int rc = dt_targets_parse_line(l->buf, l->basedir, l->lineno, t, got, e);
+    if (rc == DT_OK && *got && l->air_all) t->air = 1;
     if (rc != DT_OK || *got) return rc;
   }
 }
 
 long dt_targets_lineno(const dt_targets *l) { return l->lineno; }
+
+void dt_targets_set_air(dt_targets *l, int air) { l->air_all = air != 0; }
 
 void dt_targets_close(dt_targets *l) {
   if (!l) return;

@@ -27,7 +27,7 @@ static void check_result(int rc, dt_spectrum *s, const dt_err *e) {
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
   dt_spectrum *s = NULL;
   dt_err e;
-  int rc = dt_spectrum_read_text_mem(data, size, &s, &e);
+  int rc = dt_spectrum_read_text_mem(data, size, NULL, &s, &e);
   check_result(rc, s, &e);
   s = NULL;
   rc = dt_spectrum_read_mem(data, size, NULL, &s, &e);

@@ -50,15 +50,24 @@ nothing_ran "info"
 check "fit fits all seven (exit $?)" test "$(grep -c ',ok,' "$TMP/fit.csv")" -ge 7
 nothing_ran "fit"
 
-# a target list: fields are separated by blanks (and '#' starts a comment),
-# so a list names the blank-free forms of the same attacks
+# a target list: fields are separated by blanks ('#' starts a comment), so a
+# list names the blank-free forms of the same attacks, and the names with
+# blanks, '"' or '\' between double quotes ('"' and '\' escaped)
 l1='$(touch${IFS}pwned3).txt'
 l2=';rm${IFS}-rf${IFS}x;.txt'
 l3='`touch${IFS}pwned4`.txt'
 l4='|&><.txt'
 l5="'\"\$HOME\"'.txt"
 for n in "$l1" "$l2" "$l3" "$l4" "$l5"; do cp "$TMP/demo/vpq04.txt" "./$n"; done
-for n in "$l1" "$l2" "$l3" "$l4" "$l5"; do printf '%s vsys=512 R=2640\n' "$n"; done >"$W/hostile.list"
+listed() {
+  case $1 in
+  *[\"\\\ \#]*) printf '"%s"' "$(printf '%s' "$1" | sed 's/[\\"]/\\&/g')" ;;
+  *) printf '%s' "$1" ;;
+  esac
+}
+for n in "$l1" "$l2" "$l3" "$l4" "$l5" "$n4" "$n5" "$n7"; do
+  printf '%s vsys=512 R=2640\n' "$(listed "$n")"
+done >"$W/hostile.list"
 snapshot "$TMP/before"
 "$DT" inspect --list "$W/hostile.list" --session "$TMP/probe.session" --replay-keys /dev/null \
   --screen-dump "$TMP/screen" >/dev/null 2>"$TMP/err"

@@ -9,6 +9,7 @@
 
 #include "doubletty/airvac.h"
 #include "doubletty/atomic.h"
+#include "fixtures.h"
 #include "harness.h"
 
 static const char *table_path(void) {
@@ -209,7 +210,39 @@ static void test_files(void) {
   dt_atomic_free(NULL);
 }
 
+/* The table built into the program is share/doubletty/atomic.dat, byte for
+ * byte, and parses to the same doublets. */
+static void test_builtin(void) {
+  size_t n = 0, blen = 0;
+  unsigned char *file = slurp("share/doubletty/atomic.dat", &n);
+  const char *b = dt_atomic_builtin_text(&blen);
+  CHECK(file && b && n == blen && n > 0 && !memcmp(file, b, n),
+        "built-in table = share/doubletty/atomic.dat byte for byte (%zu vs %zu bytes)", blen, n);
+  free(file);
+  dt_atomic *ft = NULL, *bt = NULL;
+  dt_err e;
+  int frc = dt_atomic_load("share/doubletty/atomic.dat", &ft, &e);
+  int brc = dt_atomic_load_builtin(&bt, &e);
+  CHECK(frc == DT_OK && brc == DT_OK, "both load (%s %s)", e.where, e.what);
+  int same = ft && bt && dt_atomic_count(ft) == dt_atomic_count(bt) && dt_atomic_count(bt) > 0;
+  for (size_t i = 0; same && i < dt_atomic_count(bt); i++) {
+    const dt_doublet *x = dt_atomic_get(ft, i), *y = dt_atomic_get(bt, i);
+    same = !strcmp(x->name, y->name) && !strcmp(x->source, y->source);
+    for (int j = 0; same && j < 2; j++)
+      same = x->line[j].lambda0 == y->line[j].lambda0 && x->line[j].f == y->line[j].f &&
+             x->line[j].gamma == y->line[j].gamma && !strcmp(x->line[j].label, y->line[j].label);
+  }
+  CHECK(same, "built-in table parses to the same %zu doublets", dt_atomic_count(bt));
+  /* Na I D2 of Morton (2003, ApJS 149, 205): 5891.5833 A, f = 0.6408 */
+  const dt_doublet *na = dt_atomic_find(bt, "Na I");
+  CHECK(na && na->line[0].lambda0 == 5891.5833 && na->line[0].f == 0.6408, "built-in Na I D2");
+  CHECK(dt_atomic_load_builtin(NULL, &e) == DT_EINVAL, "no place for the table: DT_EINVAL");
+  dt_atomic_free(ft);
+  dt_atomic_free(bt);
+}
+
 int main(void) {
+  test_builtin();
   test_bundled();
   test_names();
   test_formats();

@@ -230,6 +230,62 @@ int main(void) {
       dt_spectrum_free(s);
     }
   }
+  /* 5b. who settled air or vacuum: the file, the caller, or nobody */
+  {
+    dt_read_opts air = {0};
+    air.air = 1;
+    dt_spectrum *s = read_ok(P("air.fits"), &air, "AWAV, caller says air too");
+    if (s) {
+      CHECK(s->air == 1 && s->air_from == DT_AIRVAC_FILE, "CTYPE1 AWAV: air declared by the file");
+      dt_spectrum_free(s);
+    }
+    key kw[] = {{"CTYPE1", "WAVE", 0}, {"CRVAL1", NULL, 5880.0}, {"CRPIX1", NULL, 1.0},
+                {"CDELT1", NULL, 0.1}, {NULL, NULL, 0}};
+    add_image(P("vac.fits"), 1, flux, N, kw);
+    s = read_ok(P("vac.fits"), &air, "WAVE, caller says air");
+    if (s) {
+      CHECK(s->air == 0 && s->air_from == DT_AIRVAC_FILE && s->wave[0] == 5880.0,
+            "CTYPE1 WAVE: vacuum declared by the file wins over the caller");
+      dt_spectrum_free(s);
+    }
+    key kl[] = {{"CRVAL1", NULL, 5880.0}, {"CRPIX1", NULL, 1.0}, {"CDELT1", NULL, 0.1}, {NULL, NULL, 0}};
+    add_image(P("silent.fits"), 1, flux, N, kl);
+    s = read_ok(P("silent.fits"), NULL, "no CTYPE1, no AIRORVAC");
+    if (s) {
+      CHECK(s->air == 0 && s->air_from == DT_AIRVAC_ASSUMED && s->wave[0] == 5880.0,
+            "a silent FITS file: vacuum assumed");
+      dt_spectrum_free(s);
+    }
+    s = read_ok(P("silent.fits"), &air, "no CTYPE1, caller says air");
+    if (s) {
+      CHECK(s->air == 1 && s->air_from == DT_AIRVAC_CALLER, "a silent FITS file: air from the caller");
+      CHECK_CLOSE(s->wave[0], dt_air_to_vac(5880.0), 1e-9, "... and converted to vacuum");
+      dt_spectrum_free(s);
+    }
+    /* Na I D in air (NIST ASD 5889.951, 5895.924) and vacuum (Morton 2003,
+     * ApJS 149, 205: 5891.5833, 5897.5581) */
+    const char *txt = "# wave flux\n5889.951 1.0\n5895.924 0.9\n5900.000 1.0\n";
+    write_text(P("air.txt"), txt);
+    s = read_ok(P("air.txt"), &air, "text, caller says air");
+    if (s) {
+      CHECK(s->air == 1 && s->air_from == DT_AIRVAC_CALLER, "text: air from the caller");
+      CHECK_CLOSE(s->wave[0], 5891.5833, 0.002, "text: Na I D2 air 5889.951 -> vacuum 5891.5833");
+      CHECK_CLOSE(s->wave[1], 5897.5581, 0.002, "text: Na I D1 air 5895.924 -> vacuum 5897.5581");
+      dt_spectrum_free(s);
+    }
+    s = read_ok(P("air.txt"), NULL, "text, nobody says");
+    if (s) {
+      CHECK(s->air == 0 && s->air_from == DT_AIRVAC_ASSUMED && s->wave[0] == 5889.951,
+            "text: vacuum assumed, wavelengths as written");
+      dt_spectrum_free(s);
+    }
+    dt_err e;
+    s = NULL;
+    int rc = dt_spectrum_read_mem(txt, strlen(txt), &air, &s, &e);
+    CHECK(rc == DT_OK && s && s->air_from == DT_AIRVAC_CALLER && fabs(s->wave[0] - 5891.5833) < 0.002,
+          "text from memory: air from the caller, converted");
+    dt_spectrum_free(s);
+  }
   /* 6. uncertainty images: ERR, IVAR, VARIANCE; MASK image; flux in an
    *    extension after the error image */
   {

@@ -84,6 +84,54 @@ int main(void) {
     bad_line(huge, "longer than");
   }
 
+  /* quoting: blanks, '#', '"' and '\' in paths and values */
+  rc = parse("\"night 2/star #4.fits\"  name=\"HD 1234 \\\"B\\\"\" vsys=-12 # comment", "/d", &t, &got, &e);
+  CHECK(rc == DT_OK && got && !strcmp(t.path, "/d/night 2/star #4.fits"),
+        "quoted path with a blank and a '#': %s (%s)", t.path, e.what);
+  CHECK(rc == DT_OK && !strcmp(t.name, "HD 1234 \"B\"") && t.has_vsys && t.vsys == -12,
+        "quoted name with escaped quotes, fields after it: [%s]", t.name);
+  rc = parse("\"name=a b\"", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && !strcmp(t.path, "name=a b"), "a quoted first field is the path: %s", t.path);
+  rc = parse("a\" \"b.fits \"name=Sightline 7\"", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && !strcmp(t.path, "a b.fits") && !strcmp(t.name, "Sightline 7"),
+        "quotes around part of a field, and around key=value: [%s] [%s]", t.path, t.name);
+  rc = parse("c.fits name=\"x\\\\y\"", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && !strcmp(t.name, "x\\y"), "escaped backslash: [%s]", t.name);
+  rc = parse("c.fits name=\"a=b\"", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && !strcmp(t.name, "a=b"), "a quoted '=' belongs to the value: [%s]", t.name);
+  bad_line("\"a b.fits name=x", "unterminated quote: the '\"' at column 1");
+  bad_line("a.fits name=\"x y", "column 13");
+  bad_line("a.fits name=\"x\\", "found the end of the line");
+  bad_line("a.fits name=\"x\\ny\"", "backslash must be followed");
+  bad_line("\"\" vsys=3", "empty path");
+  bad_line("a.fits \"vsys\"", "not key=value");
+  bad_line("a.fits fast", "neither key=value nor the flag air");
+  /* the air flag, and air for every target of a list */
+  rc = parse("a.txt R=48000 air", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.air == 1 && t.resolution == 48000, "flag air");
+  rc = parse("a.txt R=48000", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.air == 0, "no flag: air = 0");
+  bad_line("a.fits air air", "given twice");
+  bad_line("a.fits air=yes", "air is a flag");
+  /* dt_targets_quote writes what the parser reads back */
+  {
+    const char *texts[] = {"plain.fits", "a b", "#x", "q\"uote", "back\\slash", "k=v", "", "\"\\#\" \t"};
+    for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
+      char q[128], line[300];
+      int qrc = dt_targets_quote(q, sizeof q, texts[i]);
+      snprintf(line, sizeof line, "p.fits name=%s", q);
+      rc = parse(line, NULL, &t, &got, &e);
+      int same = qrc == DT_OK && rc == DT_OK && got && !strcmp(t.name, texts[i]);
+      if (!texts[i][0]) same = qrc == DT_OK && !strcmp(q, "\"\"") && rc == DT_EFORMAT; /* name="" has no value */
+      CHECK(same, "quote round trip %zu: [%s] -> %s", i, texts[i], q);
+    }
+    char q[128];
+    CHECK(dt_targets_quote(q, sizeof q, "plain.fits") == DT_OK && !strcmp(q, "plain.fits"),
+          "no quotes when none are needed");
+    CHECK(dt_targets_quote(q, 5, "a b") == DT_EINVAL && dt_targets_quote(q, 6, "a b") == DT_OK,
+          "too small a buffer is refused, an exact one accepted");
+  }
+
   /* streaming a file: errors name the line, reading goes on after them */
   char path[] = "/tmp/dt-test-targets-XXXXXX";
   int fd = mkstemp(path);
@@ -111,6 +159,16 @@ int main(void) {
   CHECK(rc == DT_OK && got && t.line == 7 && strstr(t.path, "three.fits"), "last line without a newline");
   rc = dt_targets_next(l, &t, &got, &e);
   CHECK(rc == DT_OK && got == 0, "end of list");
+  dt_targets_close(l);
+  /* dt_targets_set_air marks every target as air */
+  rc = dt_targets_open(path, &l, &e);
+  dt_targets_set_air(l, 1);
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.line == 3 && t.air == 1, "air for all: the first target is air");
+  dt_targets_close(l);
+  rc = dt_targets_open(path, &l, &e);
+  rc = dt_targets_next(l, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.air == 0, "without it: not air");
   dt_targets_close(l);
 
   rc = dt_targets_open("/nonexistent/dir/list", &l, &e);
