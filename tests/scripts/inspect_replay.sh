@@ -57,8 +57,16 @@ check "window under the cursor removed" on_screen "continuum window removed"
 run "$S" continuum-order-down continuum-order-down continuum-order-down
 check "continuum fixed at 1 at order -1" on_screen "continuum fixed at 1"
 n0=$(wc -l <"$S")
-run "$S" nudge-logn-up-coarse undo
-check "undo after a nudge: two records" test "$(wc -l <"$S")" -eq $((n0 + 2))
+run "$S" nudge-logn-up-coarse
+check "a nudged log N is shown held" on_screen "log N = "
+check "... and says how to release it" grep -q "held.*(o releases)" "$TMP/screen"
+check "a nudge holds its parameter, then moves it: two records" test "$(wc -l <"$S")" -eq $((n0 + 2))
+check "... the hold first" sh -c "sed -n '$((n0 + 1))p' '$S' | grep -q 'act=freeze'"
+check "... then the new value" sh -c "sed -n '$((n0 + 2))p' '$S' | grep -q 'act=comp-set'"
+run "$S" hold-logn nudge-logn-up-coarse undo
+check "one undo takes back hold and nudge together: release, hold, nudge, one restore" \
+  test "$(wc -l <"$S")" -eq $((n0 + 6))
+check "... and the undone log N is free again" sh -c "tail -n 1 '$S' | grep -q 'act=restore' && ! tail -n 1 '$S' | grep -q 'frozen='"
 
 # a wide spectrum covers Ca II too: switch the doublet
 cat >"$TMP/q.list" <<EOF
