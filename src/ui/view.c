@@ -527,6 +527,43 @@ static void draw_status(dt_insp *s, const layout *L) {
   dt_grid_text(g, L->w - rw, y, right, DT_R_AXIS, DT_A_DIM, -1);
 }
 
+/* ------------------------------------------------------------------ end */
+
+/* The end of the queue: how many of each verdict, how many are left, and
+ * the keys that go on from here. */
+static void draw_finished(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  size_t count[5] = {0};
+  for (size_t i = 0; i < s->q->n; i++) {
+    int v = dt_insp_verdict_of(s, i);
+    if (v >= 0 && v < 5) count[v]++;
+  }
+  int bw = L->w < 64 ? L->w - 4 : 60, bh = 12, bx = (L->w - bw) / 2, by = (L->h - bh) / 2;
+  syms y = symbols(s);
+  dt_grid_fill(g, bx, by, bw, bh, " ", DT_R_TEXT, DT_R_NONE, 0);
+  dt_grid_fill(g, bx, by, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  int row = by + 1, x = bx + 2, m = bw - 4;
+  dt_grid_printf(g, x, row++, DT_R_GOOD, DT_A_BOLD, m, "queue finished: %zu of %zu spectra judged",
+                 s->q->n - count[DT_VERDICT_NONE], s->q->n);
+  row++;
+  static const dt_verdict order[] = {DT_VERDICT_DETECTED, DT_VERDICT_NOT_DETECTED, DT_VERDICT_UNSURE,
+                                     DT_VERDICT_UNUSABLE, DT_VERDICT_NONE};
+  for (size_t i = 0; i < sizeof order / sizeof order[0]; i++)
+    dt_grid_printf(g, x + 2, row++, order[i] == DT_VERDICT_NONE && count[0] ? DT_R_WARN : DT_R_TEXT, 0, m - 2,
+                   "%-14s %6zu", order[i] == DT_VERDICT_NONE ? "unjudged" : dt_verdict_name(order[i]),
+                   count[order[i]]);
+  row++;
+  char k1[16], k2[16], k3[16];
+  keyname_of_cmd(DT_CMD_NEXT_UNJUDGED, k1, sizeof k1);
+  keyname_of_cmd(DT_CMD_PREV_SPECTRUM, k2, sizeof k2);
+  keyname_of_cmd(DT_CMD_QUIT, k3, sizeof k3);
+  if (count[DT_VERDICT_NONE])
+    dt_grid_printf(g, x, row++, DT_R_LABEL, 0, m, "%s: to the unjudged   %s: back   %s: leave", k1, k2, k3);
+  else
+    dt_grid_printf(g, x, row++, DT_R_LABEL, 0, m, "%s: back to the last spectrum   %s: leave", k2, k3);
+}
+
 /* ------------------------------------------------------------------ help */
 
 static void draw_help(dt_insp *s, const layout *L) {
@@ -605,5 +642,6 @@ void dt_view_draw(dt_insp *s, int w, int h) {
   draw_panel(s, &L, 1);
   draw_table(s, &L);
   draw_status(s, &L);
+  if (s->finished) draw_finished(s, &L);
   if (s->help_page) draw_help(s, &L);
 }

@@ -158,6 +158,32 @@ printf 'verdict-detected\nverdict-detected\nverdict-detected\n' >"$TMP/keys"
 check "only the disagreement is queued: 1/1" on_screen " 1/1  judged 0"
 check "... and it is the second spectrum" on_screen "vpq03.fits"
 
+# ---- the end of the queue: a summary, and no second record for a repeated key
+cat >"$TMP/q.list" <<EOF
+demo/vpq01.fits vsys=512 R=3690 name=ONE
+demo/vpq03.fits vsys=512 R=3460 name=TWO
+demo/vpq07.fits vsys=512 R=3770 name=THREE
+EOF
+run "$TMP/end.session" next-spectrum next-spectrum verdict-detected verdict-detected verdict-unsure \
+  verdict-not-detected
+check "the last verdict shows the end-of-queue summary" on_screen "queue finished: 1 of 3 spectra judged"
+check "... with the unjudged counted" grep -Eq "unjudged +2" "$TMP/screen"
+check "... and the key that jumps to them" on_screen "J: to the unjudged"
+check "verdict keys at the end record nothing more: one record" \
+  test "$(grep -c 'act=verdict' "$TMP/end.session")" -eq 1
+run "$TMP/end.session" verdict-unsure next-spectrum verdict-unsure next-unjudged
+check "from the summary the jump goes to an unjudged spectrum" on_screen " 2/3  judged 2"
+run "$TMP/end.session" goto-spectrum "type THREE" Enter
+check "go to a spectrum by name" on_screen " 3/3  judged 2"
+run "$TMP/end.session" goto-spectrum "type 3" Enter previous-unjudged
+check "go to a spectrum by number, then back to the previous unjudged" on_screen " 2/3  judged 2"
+run "$TMP/end.session" goto-spectrum "type 9" Enter
+check "a number outside the queue is refused with the range" on_screen "the queue has 1 to 3"
+run "$TMP/end.session" cursor-to-velocity "type -123.5" Enter
+check "cursor to a typed velocity" on_screen "cursor at -123.5 km/s"
+run "$TMP/end.session" cursor-to-velocity "type 5000" Enter
+check "a velocity outside the fit window is refused in km/s" on_screen "outside the fit window (-600 to +600 km/s)"
+
 # ---- plain `doubletty FILE` opens the inspector; ASCII without UTF-8
 printf 'cursor-right\n' >"$TMP/keys"
 (cd "$D" && LANG=C LC_ALL=C "$DT" vpq01.fits --session "$TMP/plain.session" --resolution 3690 --vsys 512 \
