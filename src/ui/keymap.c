@@ -37,7 +37,7 @@ static const dt_keybind table[] = {
     {DT_CMD_VIEW_RESET, "view-reset", '0', "cursor and view", "show the whole fit window again", 0, NULL},
     {DT_CMD_TOGGLE_NORMALISED, "toggle-normalised", 'f', "cursor and view", "panels: normalised flux or raw flux", 0, NULL},
     /* continuum */
-    {DT_CMD_WINDOW_MARK, "window-mark", 'w', "continuum", "start, then finish, a continuum window at the cursor", 0, NULL},
+    {DT_CMD_WINDOW_MARK, "window-mark", 'w', "continuum", "mark a continuum window: press at each end", 0, NULL},
     {DT_CMD_WINDOW_UNMARK, "window-unmark", 'W', "continuum", "remove the continuum window under the cursor", 0, NULL},
     {DT_CMD_CONT_ORDER_UP, "continuum-order-up", 'c', "continuum", "raise the continuum polynomial order", 0, NULL},
     {DT_CMD_CONT_ORDER_DOWN, "continuum-order-down", 'C', "continuum", "lower the order (below 0: fixed at 1)", 0, NULL},
@@ -65,7 +65,7 @@ static const dt_keybind table[] = {
     /* fit */
     {DT_CMD_REFIT, "refit", 'r', "fit", "fit now (after a change it happens anyway)", 0, NULL},
     {DT_CMD_AUTO_REFIT, "auto-refit", 'R', "fit", "switch the refit after every change on or off", 0, NULL},
-    {DT_CMD_AUTOFIT, "autofit", 'A', "fit", "replace the components by the automatic first pass", 0, NULL},
+    {DT_CMD_AUTOFIT, "autofit", 'A', "fit", "components from the automatic first pass", 0, NULL},
     {DT_CMD_UNDO, "undo", 'u', "fit", "undo the last change", 0, NULL},
     {DT_CMD_REDO, "redo", 'U', "fit", "redo what was undone", 0, NULL},
     {DT_CMD_SWITCH_DOUBLET, "switch-doublet", 'D', "fit", "next doublet covered by the spectrum", 0, NULL},
@@ -79,7 +79,7 @@ static const dt_keybind table[] = {
     {DT_CMD_NEXT_SPECTRUM, "next-spectrum", 'j', "queue", "next spectrum of the queue", 0, NULL},
     {DT_CMD_PREV_SPECTRUM, "previous-spectrum", 'k', "queue", "previous spectrum of the queue", 0, NULL},
     {DT_CMD_NEXT_UNJUDGED, "next-unjudged", 'J', "queue", "jump to the next spectrum without a verdict", 0, NULL},
-    {DT_CMD_PREV_UNJUDGED, "previous-unjudged", 'K', "queue", "jump to the previous spectrum without a verdict", 0, NULL},
+    {DT_CMD_PREV_UNJUDGED, "previous-unjudged", 'K', "queue", "back to the previous spectrum without a verdict", 0, NULL},
     {DT_CMD_GOTO_SPECTRUM, "goto-spectrum", 'g', "queue", "type a number or a name to go to that spectrum", 0, NULL},
 };
 

@@ -35,8 +35,17 @@ typedef struct layout {
   int vaxis_y;
   int gutter, plot_x, plot_w;
   int tab_x, tab_y, tab_w, tab_h;
-  int status_y;
+  int status_y, status_h;   /* a long message takes two rows */
 } layout;
+
+#define FOOTER_MIN 16 /* " ? help  q quit " */
+
+/* Cells of UTF-8 text (one per code point; the screen has no wide glyphs). */
+static int cells(const char *t) {
+  int n = 0;
+  for (; *t; t++) n += ((unsigned char)*t & 0xC0) != 0x80;
+  return n;
+}
 
 /* Symbols with ASCII stand-ins. */
 typedef struct syms {
@@ -68,12 +77,13 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   memset(L, 0, sizeof *L);
   L->w = w;
   L->h = h;
-  L->status_y = h - 1;
+  L->status_h = !s->editing && cells(s->ss->msg) > w - FOOTER_MIN - 1 ? 2 : 1;
+  L->status_y = h - L->status_h;
   L->gutter = 7;
   int side = w >= 150;
-  int body = h - 2; /* minus title and status */
+  int body = h - 1 - L->status_h; /* minus title and status */
   if (side) {
-    L->tab_w = 60;
+    L->tab_w = w - 110 < 60 ? 60 : w - 110 > 92 ? 92 : w - 110; /* a wide screen gives the table room */
     L->tab_x = w - L->tab_w;
     L->tab_y = 1;
     L->tab_h = body;
@@ -88,13 +98,14 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
     L->tab_y = L->status_y - L->tab_h;
     body -= L->tab_h;
   }
-  L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 3;
-  int rest = body - L->ov_h - 1 - 1; /* overview axis, velocity axis */
+  /* a short screen keeps its rows for the two line panels */
+  L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 0;
+  int rest = body - L->ov_h - (L->ov_h ? 1 : 0) - 1; /* overview axis, velocity axis */
   L->pan_h = rest / 2;
-  L->ov_h += rest % 2; /* an odd row goes to the overview */
+  if (L->ov_h) L->ov_h += rest % 2; /* an odd row goes to the overview */
   L->ov_y = 1;
   L->ovaxis_y = L->ov_y + L->ov_h;
-  L->pan_y[0] = L->ovaxis_y + 1;
+  L->pan_y[0] = L->ov_h ? L->ovaxis_y + 1 : L->ov_y;
   L->pan_y[1] = L->pan_y[0] + L->pan_h;
   L->vaxis_y = L->pan_y[1] + L->pan_h;
   L->plot_x = L->gutter;
@@ -158,10 +169,6 @@ static void draw_title(dt_insp *s, const layout *L) {
   char res[32] = "R ?";
   if (s->ss->j.resolution > 0) snprintf(res, sizeof res, "R %.0f", s->ss->j.resolution);
   else if (s->ss->j.fwhm_kms > 0) snprintf(res, sizeof res, "FWHM %.0f km/s", s->ss->j.fwhm_kms);
-  char buf[600];
-  snprintf(buf, sizeof buf, " doubletty  %zu/%zu  judged %zu  | %s%s%s%s | %s  vsys %+.0f  %s ", s->cur + 1,
-           s->q->n, s->njudged, name[0] ? name : "", name[0] ? " " : "", base, row, s->ss->j.doublet, s->ss->j.vsys,
-           res);
   const char *flag = NULL;
   int role = DT_R_BAD;
   if (s->jn && dt_journal_failed(s->jn)) flag = " SESSION NOT WRITABLE ";
@@ -174,6 +181,23 @@ static void draw_title(dt_insp *s, const layout *L) {
     role = DT_R_TITLE;
   }
   int flen = flag ? (int)strlen(flag) : 0;
+  /* by priority: position and settings always, then the target's name,
+   * then its file (cut from the left) */
+  char head[64], tail[96], mid[600];
+  snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
+  snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s ", s->ss->j.doublet, s->ss->j.vsys, res);
+  snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
+  int fixed = dt_utf8_len(head) + dt_utf8_len(tail) + flen;
+  int mroom = L->w - fixed;
+  if (dt_utf8_len(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
+  if (mroom < 4) mroom = 4;
+  while (dt_utf8_len(mid) > mroom) {
+    size_t n = strlen(mid);
+    memmove(mid, mid + 1, n); /* drop from the left: the end of a name tells most */
+    while (((unsigned char)mid[0] & 0xC0) == 0x80) memmove(mid, mid + 1, strlen(mid));
+  }
+  char buf[800];
+  snprintf(buf, sizeof buf, "%s%s%s", head, mid, tail);
   dt_grid_text(g, 0, 0, buf, DT_R_TITLE, DT_A_BOLD, L->w - flen);
   if (flag) dt_grid_text(g, L->w - flen, 0, flag, role, DT_A_BOLD | DT_A_REVERSE, -1);
   for (int i = 0; i < L->w; i++) dt_grid_at(g, i, 0)->bg = DT_R_TITLE;
@@ -196,10 +220,11 @@ static void draw_overview(dt_insp *s, const layout *L) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
   if (!s->ss->loaded) {
-    dt_grid_printf(g, L->plot_x, L->ov_y + L->ov_h / 2, DT_R_BAD, 0, L->plot_w, "cannot read this spectrum: %s",
-                   s->ss->load_msg);
+    dt_grid_printf(g, L->plot_x, L->ov_h ? L->ov_y + L->ov_h / 2 : L->pan_y[0], DT_R_BAD, 0, L->plot_w,
+                   "cannot read this spectrum: %s", s->ss->load_msg);
     return;
   }
+  if (L->ov_h == 0) return; /* a short screen: no overview */
   const dt_spectrum *sp = s->ss->spec;
   dt_plot *p = &s->p;
   if (dt_plot_begin(p, s->mode, L->plot_w, L->ov_h, sp->wave[0], sp->wave[sp->n - 1], s->ov_ymin, s->ov_ymax))
@@ -334,8 +359,12 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     /* the cursor's position at the right end, tick labels before it */
     char cur[80];
     syms ys = symbols(s);
-    snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
-             d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->ss->j.vsys) : NAN, ys.ang);
+    /* a narrow plot keeps its tick labels: the wavelength gives way */
+    if (p->w >= 90)
+      snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
+               d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->ss->j.vsys) : NAN, ys.ang);
+    else
+      snprintf(cur, sizeof cur, " cursor %+.1f km/s", s->cursor_v);
     int len = dt_utf8_len(cur);
     axis_row(g, p, L->plot_x, L->vaxis_y, 0, p->w - len - 1);
     dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
@@ -444,8 +473,17 @@ static void draw_table(dt_insp *s, const layout *L) {
                             dt_view_pm(s, b2, sizeof b2, 1e3 * m->W, 1e3 * m->W_err, 0), y.mA, m->W_sig, y.sig);
     if (isfinite(m->logN_aod)) snprintf(b1, sizeof b1, "%s", dt_view_pm(s, b2, sizeof b2, m->logN_aod, m->logN_aod_err, 2));
     else snprintf(b1, sizeof b1, "-");
-    int n2 = dt_grid_printf(g, x + n0 + n1, row, DT_R_TEXT, 0, maxw - n0 - n1, "  logNa %s  3%s lim %.0f %s, %.2f", b1,
-                            y.sig, 1e3 * m->W_limit, y.mA, m->logN_limit);
+    /* every number labelled; when the row is short, the column density of
+     * a detection or the limits of a non-detection come first */
+    char na[96], lim[96];
+    snprintf(na, sizeof na, "  log Na %s", b1);
+    snprintf(lim, sizeof lim, "  %g%s lim %.0f %s, log N < %.2f", s->ss->nsigma, y.sig, 1e3 * m->W_limit, y.mA,
+             m->logN_limit);
+    int room = maxw - n0 - n1, wn = dt_utf8_len(na), wl = dt_utf8_len(lim);
+    int show_na = wn + wl <= room || m->W_sig >= 3, show_lim = wn + wl <= room || m->W_sig < 3;
+    int n2 = 0;
+    if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
+    if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
     const char *sat = m->nsat ? "  saturated px" : l == 1 && s->ss->out.saturated ? "  ratio: saturated" : "";
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
     row++;
@@ -522,8 +560,27 @@ static void draw_status(dt_insp *s, const layout *L) {
   if (mlen + (int)strlen(right) + 1 > L->w)
     snprintf(right, sizeof right, " %s help  %s quit ", kh, kq);
   int rw = (int)strlen(right);
-  int role = dt_view_role_of_tone(s->ss->tone);
-  dt_grid_text(g, 0, y, s->ss->msg, role, role == DT_R_BAD ? DT_A_BOLD : 0, L->w - rw - 1);
+  int role = dt_view_role_of_tone(s->ss->tone), attr = role == DT_R_BAD ? DT_A_BOLD : 0;
+  const char *m = s->ss->msg;
+  if (L->status_h == 2) {
+    /* wrap at the last blank that fits; the rest goes to the second row */
+    int room = L->w - 1, n = 0;
+    const char *cut = NULL, *p = m;
+    for (; *p && n < room; p++) {
+      if (((unsigned char)*p & 0xC0) != 0x80) n++;
+      if (*p == ' ') cut = p;
+    }
+    if (!*p) cut = p;
+    else if (!cut) cut = p;
+    char first[600];
+    size_t len = (size_t)(cut - m) < sizeof first - 1 ? (size_t)(cut - m) : sizeof first - 1;
+    memcpy(first, m, len);
+    first[len] = '\0';
+    dt_grid_text(g, 0, y, first, role, attr, room);
+    m = *cut == ' ' ? cut + 1 : cut;
+    y++;
+  }
+  dt_grid_text(g, 0, y, m, role, attr, L->w - rw - 1);
   dt_grid_text(g, L->w - rw, y, right, DT_R_AXIS, DT_A_DIM, -1);
 }
 
@@ -571,7 +628,15 @@ static void draw_help(dt_insp *s, const layout *L) {
   size_t n;
   const dt_keybind *t = dt_keymap_table(&n);
   int bw = L->w - 4, bh = L->h - 4, bx = 2, by = 2;
-  int ncol = bw >= 100 ? 2 : 1;
+  /* as many columns as fit the longest line whole (key, help, margin) */
+  int need = 0;
+  for (size_t i = 0; i < n; i++) {
+    int wl = 8 + dt_utf8_len(t[i].help) + 2;
+    if (wl > need) need = wl;
+  }
+  int ncol = (bw - 2) / (need > 0 ? need : 1);
+  if (ncol < 1) ncol = 1;
+  if (ncol > 3) ncol = 3;
   int colw = (bw - 2) / ncol;
   int lines = bh - 3; /* frame top, title, frame bottom */
   /* lay the table out: group headings, then "key  help (action)" lines */
@@ -594,7 +659,7 @@ static void draw_help(dt_insp *s, const layout *L) {
   dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
   char k1[16];
   dt_grid_printf(g, bx + 2, by + 1, DT_R_LABEL, DT_A_BOLD, bw - 4,
-                 "keys of the inspector  (page %d of %d: %s shows the next page, any other key closes)", page + 1,
+                 "keys of the inspector - page %d of %d (%s: next, other keys: close)", page + 1,
                  s->help_pages, keyname_of_cmd(DT_CMD_HELP, k1, sizeof k1));
   int idx = 0;
   group = NULL;
