@@ -253,6 +253,30 @@ static void draw_overview(dt_insp *s, const layout *L) {
   axis_row(g, p, L->plot_x, L->ovaxis_y, 0, p->w);
 }
 
+/* One row of residuals (data - model) / sigma under a panel, one cell per
+ * plot column (the largest |r| of the column's pixels): blank within 1
+ * sigma, a dot within 2, +/- within 3, and a bold arrow beyond, so a
+ * misfit in a trough shows even where data and model share cells. */
+static void draw_residuals(dt_insp *s, const layout *L, const dt_plot *p, int gy, const double *vel,
+                           const double *flux, const double *sig, const double *model, const unsigned char *mask,
+                           size_t n) {
+  dt_grid *g = &s->g;
+  dt_grid_text(g, 0, gy, s->utf8 ? " r/\xcf\x83" : " r/sig", DT_R_AXIS, DT_A_DIM, L->gutter - 1);
+  for (int c = 0; c < p->w; c++) {
+    double x0 = dt_plot_colx(p, c), x1 = dt_plot_colx(p, c + 1), worst = 0;
+    for (size_t i = 0; i < n; i++) {
+      if (mask[i] || !(vel[i] >= x0 && vel[i] < x1) || !(sig[i] > 0) || !isfinite(model[i])) continue;
+      double r = (flux[i] - model[i]) / sig[i];
+      if (fabs(r) > fabs(worst)) worst = r;
+    }
+    double a = fabs(worst);
+    const char *ch = a < 1 ? NULL : a < 2 ? (s->utf8 ? "\xc2\xb7" : ".") : a < 3 ? (worst > 0 ? "+" : "-")
+                              : (worst > 0 ? (s->utf8 ? "\xe2\x86\x91" : "^") : (s->utf8 ? "\xe2\x86\x93" : "v"));
+    if (ch) dt_grid_text(g, L->plot_x + c, gy, ch, a >= 3 ? DT_R_BAD : a >= 2 ? DT_R_WARN : DT_R_AXIS,
+                         a >= 3 ? DT_A_BOLD : 0, 1);
+  }
+}
+
 static void draw_panel(dt_insp *s, const layout *L, int l) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
@@ -312,7 +336,10 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     ymax = 1.35 * cmax;
   }
   dt_plot *p = &s->p;
-  if (dt_plot_begin(p, s->mode, L->plot_w, L->pan_h, s->view_lo, s->view_hi, ymin, ymax)) return;
+  /* a panel of four rows or more gives its last row to the residuals */
+  int strip = L->pan_h >= 4 && model;
+  int ph = L->pan_h - strip;
+  if (dt_plot_begin(p, s->mode, L->plot_w, ph, s->view_lo, s->view_hi, ymin, ymax)) return;
   /* continuum windows, and the one being marked */
   if (d)
     for (size_t k = 0; k < s->ss->j.nwin; k++)
@@ -349,9 +376,13 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
                  k == s->ss->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
   }
   dt_plot_render(p, g, L->plot_x, gy);
-  /* the cursor column */
+  if (strip) draw_residuals(s, L, p, gy + ph, vel, flux, sig, model, mask, n);
+  /* the cursor: a tick under the plot, so the trough above stays visible */
   int col = dt_plot_column(p, s->cursor_v);
-  if (col >= 0) dt_grid_shade(g, L->plot_x + col, gy, 1, L->pan_h, DT_R_CURSOR, 0);
+  if (col >= 0) {
+    dt_grid_text(g, L->plot_x + col, gy + ph - 1, s->utf8 ? "\xe2\x96\xb2" : "^", DT_R_LABEL, DT_A_BOLD, 1);
+    dt_grid_shade(g, L->plot_x + col, gy + ph - 1, 1, 1, DT_R_CURSOR, 0);
+  }
   ytick(g, p, 1, gy, norm ? 1.0 : ymax / 1.35, norm ? "1" : "C");
   ytick(g, p, 1, gy, 0, "0");
   if (l == 1) {

@@ -35,6 +35,8 @@ for size in 80x24 120x40 200x60; do
     check "$size: limits labelled whole (W and log N)" grep -Eq "3σ lim [0-9]+ mÅ, log N < [0-9]+\.[0-9]{2}( |$)" \
       "$TMP/screen"
   fi
+  check "$size: a residual strip under each line panel" test "$(grep -c '^ r/σ' "$TMP/screen")" -eq 2
+  check "$size: the cursor is a tick, one per panel" test "$(grep -o '▲' "$TMP/screen" | wc -l)" -eq 2
   if [ "$h" -lt 30 ]; then
     check "$size: a short screen has no overview" sh -c "! grep -q 'Å vac' '$TMP/screen'"
   else
