@@ -70,7 +70,10 @@ typedef struct dt_session {
   dt_judgement j;
   int pending;                /* j is the automatic first pass, not yet recorded */
   size_t sel;                 /* selected component */
-  int an_ok;                  /* out holds a valid analysis of j */
+  int an_ok;                  /* out holds a valid analysis of j ... */
+  int an_fallback;            /* ... or, when 1, of j without its continuum
+                                 windows (they cannot carry the fit yet:
+                                 an_msg says why); nothing of it is recorded */
   char an_msg[400];           /* why not */
   dt_analysis_out out;
   int has_suggest;

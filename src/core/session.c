@@ -97,7 +97,7 @@ static int record(dt_session *ss, const dt_action *a, const dt_judgement *after,
   dt_target t = target_of(ss);
   dt_meas_summary m;
   if (with_meas)
-    dt_meas_summary_from_analysis(ss->an_ok ? &ss->out : NULL, ss->nsigma,
+    dt_meas_summary_from_analysis(ss->an_ok && !ss->an_fallback ? &ss->out : NULL, ss->nsigma,
                                   ss->has_suggest ? ss->suggested : DT_VERDICT_NONE, &m);
   dt_err e;
   dt_err_clear(&e);
@@ -114,6 +114,7 @@ static int record(dt_session *ss, const dt_action *a, const dt_judgement *after,
 
 void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
   ss->an_ok = 0;
+  ss->an_fallback = 0;
   ss->an_msg[0] = '\0';
   if (!ss->loaded) return;
   dt_err e;
@@ -127,13 +128,28 @@ void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
   }
   snprintf(ss->an_msg, sizeof ss->an_msg, "%s%s%s", e.where, e.where[0] ? ": " : "",
            e.what[0] ? e.what : dt_status_str(rc));
+  if (j->nwin > 0) {
+    /* windows too few or too narrow for a continuum: draw the components on
+       the automatic continuum meanwhile, so the data stay in view */
+    dt_judgement autoc = *j;
+    autoc.nwin = 0;
+    dt_err_clear(&e);
+    if (dt_analysis_eval(ss->an, &autoc, &ss->out, &e) == DT_OK) {
+      ss->an_ok = 1;
+      ss->an_fallback = 1;
+      char why[sizeof ss->an_msg];
+      snprintf(why, sizeof why, "%s", ss->an_msg);
+      snprintf(ss->an_msg, sizeof ss->an_msg, "the continuum windows cannot carry the fit yet (%.300s): "
+               "automatic continuum shown", why);
+    }
+  }
 }
 
 /* Refit state *j in place: its components take the fit's values through a
  * DT_ACT_FIT action.  0 when there is a fit to keep. */
 static int fit_into(dt_session *ss, dt_judgement *j) {
   dt_session_analyse_state(ss, j, 1);
-  if (!ss->an_ok || ss->out.fit.ncomp != j->ncomp) return -1;
+  if (!ss->an_ok || ss->an_fallback || ss->out.fit.ncomp != j->ncomp) return -1;
   dt_action a;
   dt_action_init(&a, DT_ACT_FIT);
   a.fit = ss->out.fit;
@@ -366,7 +382,10 @@ int dt_session_window_add(dt_session *ss, double lo, double hi) {
   a.x[0] = lo < hi ? lo : hi;
   a.x[1] = lo < hi ? hi : lo;
   int rc = dt_session_apply(ss, &a);
-  if (rc == DT_OK)
+  if (rc == DT_OK && ss->an_fallback)
+    dt_session_say(ss, DT_TONE_WARN, "continuum window %.2f-%.2f A added (%zu in all); too few pixels in the "
+                   "windows for a continuum yet: the automatic one is shown", a.x[0], a.x[1], ss->j.nwin);
+  else if (rc == DT_OK)
     dt_session_say(ss, DT_TONE_GOOD, "continuum window %.2f-%.2f A added (%zu in all)", a.x[0], a.x[1], ss->j.nwin);
   return rc;
 }

@@ -281,8 +281,13 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
                 dt_journal_warning_count(jn) == 1 ? "" : "s", dt_journal_warning(jn, 0));
   if (jn && dt_journal_read_only(jn) && ss->tone == DT_TONE_TEXT)
     dt_insp_say(s, DT_TONE_WARN, "read-only: looking only");
-  if (jn && ss->tone == DT_TONE_TEXT && !ss->msg[0])
-    dt_insp_say(s, DT_TONE_TEXT, "session file: %s", o->session_path ? o->session_path : dt_journal_path(jn));
+  if (jn && ss->tone == DT_TONE_TEXT) {
+    /* say where the judgements go, after what the first spectrum said */
+    const char *sp = o->session_path ? o->session_path : dt_journal_path(jn);
+    size_t n = strlen(ss->msg);
+    if (!n) dt_insp_say(s, DT_TONE_TEXT, "session file: %s", sp);
+    else snprintf(s->ss->msg + n, sizeof s->ss->msg - n, " - session file: %s", sp);
+  }
   draw(s);
 
   /* keystroke times: all, and those that refitted within one spectrum */

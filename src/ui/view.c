@@ -483,7 +483,11 @@ static void draw_table(dt_insp *s, const layout *L) {
   }
   char cont[80];
   if (j->cont_order < 0) snprintf(cont, sizeof cont, "continuum fixed at 1");
-  else if (j->nwin) snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
+  else if (j->nwin && s->ss->an_fallback)
+    snprintf(cont, sizeof cont, "continuum order %d, auto (%zu window%s: too few pixels)", j->cont_order, j->nwin,
+             j->nwin == 1 ? "" : "s");
+  else if (j->nwin)
+    snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
   else snprintf(cont, sizeof cont, "continuum order %d, auto", j->cont_order);
   int cx = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "fit ");
   cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s", y.chi, chi2r, dof,

@@ -158,6 +158,18 @@ printf 'verdict-detected\nverdict-detected\nverdict-detected\n' >"$TMP/keys"
 check "only the disagreement is queued: 1/1" on_screen " 1/1  judged 0"
 check "... and it is the second spectrum" on_screen "vpq03.fits"
 
+# ---- one narrow continuum window: the data stay in view on the automatic continuum
+cat >"$TMP/q.list" <<EOF
+demo/vpq01.fits vsys=512 R=3690 name=ONE
+EOF
+run "$TMP/win.session" window-mark cursor-right window-mark
+check "a window too narrow for a continuum says so" on_screen "the automatic one is shown"
+check "... the fit line says which continuum is drawn" on_screen "auto (1 window: too few pixels)"
+check "... and the measurements stay on screen" grep -q "NaI 5891  W " "$TMP/screen"
+check "... the window is recorded all the same" grep -q 'act=window-add' "$TMP/win.session"
+run "$TMP/win.session"
+check "the session file is named at the start" on_screen "session file: $TMP/win.session"
+
 # ---- the end of the queue: a summary, and no second record for a repeated key
 cat >"$TMP/q.list" <<EOF
 demo/vpq01.fits vsys=512 R=3690 name=ONE

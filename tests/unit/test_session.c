@@ -152,6 +152,15 @@ int main(void) {
   CHECK(ss->j.verdict == DT_VERDICT_DETECTED && !strcmp(ss->j.note, "weak; check the red wing"),
         "verdict and note survive the first pass");
 
+  /* a continuum window too narrow to carry a continuum: recorded, and the
+   * components are drawn on the automatic continuum meanwhile */
+  long nw = lines_of(sess);
+  CHECK(dt_session_window_add(ss, 5920.00, 5920.05) == DT_OK && last_is(sess, "window-add"), "narrow window recorded");
+  CHECK(lines_of(sess) == nw + 1, "one record");
+  CHECK(ss->an_ok && ss->an_fallback && strstr(ss->msg, "automatic"), "the automatic continuum stands in: %s", ss->msg);
+  CHECK(isfinite(ss->out.line[0].W), "the measurement is there to draw");
+  CHECK(dt_session_undo(ss) == DT_OK && ss->j.nwin == 0 && !ss->an_fallback, "undone: no window, no stand-in");
+
   /* parameters at a bound of the fit */
   dt_action a;
   dt_action_init(&a, DT_ACT_COMP_SET);
