@@ -158,6 +158,13 @@ static void cmd_unjudged(dt_insp *s, int dir) {
   else dt_insp_say(s, DT_TONE_GOOD, "every spectrum of the queue has a verdict (%zu)", s->q->n);
 }
 
+/* A queue entry by its name, or its file's name when it has none. */
+static const char *target_name(const dt_insp *s, size_t i, char *buf, size_t n) {
+  const char *name = dt_queue_name(s->q, i), *path = dt_queue_path(s->q, i), *base = strrchr(path, '/');
+  snprintf(buf, n, "%s", name[0] ? name : base ? base + 1 : path);
+  return buf;
+}
+
 static void cmd_verdict(dt_insp *s, dt_verdict v) {
   if (s->finished) {
     char k1[16], k2[16];
@@ -178,14 +185,16 @@ static void cmd_verdict(dt_insp *s, dt_verdict v) {
   s->q->e[s->cur].verdict = (signed char)v;
   if (was == DT_VERDICT_NONE) s->njudged++;
   size_t done = s->cur;
+  char who[96];
+  target_name(s, done, who, sizeof who);
   if (s->cur + 1 < s->q->n) {
     dt_insp_load(s, s->cur + 1);
     if (s->ss->tone == DT_TONE_TEXT || !s->ss->msg[0])
-      dt_insp_say(s, DT_TONE_GOOD, "saved: #%zu %s", done + 1, dt_verdict_name(v));
+      dt_insp_say(s, DT_TONE_GOOD, "saved: #%zu %s (%s)", done + 1, dt_verdict_name(v), who);
   } else {
     s->finished = 1;
-    dt_insp_say(s, DT_TONE_GOOD, "saved: #%zu %s - end of the queue (%zu of %zu judged)", done + 1,
-                dt_verdict_name(v), s->njudged, s->q->n);
+    dt_insp_say(s, DT_TONE_GOOD, "saved: #%zu %s (%s) - end of the queue (%zu of %zu judged)", done + 1,
+                dt_verdict_name(v), who, s->njudged, s->q->n);
   }
 }
 

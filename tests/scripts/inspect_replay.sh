@@ -181,6 +181,8 @@ run "$TMP/end.session" next-spectrum next-spectrum verdict-detected verdict-dete
 check "the last verdict shows the end-of-queue summary" on_screen "queue finished: 1 of 3 spectra judged"
 check "... with the unjudged counted" grep -Eq "unjudged +2" "$TMP/screen"
 check "... and the key that jumps to them" on_screen "J: to the unjudged"
+run "$TMP/end2.session" verdict-detected
+check "the status line names the target judged" on_screen "saved: #1 detected (ONE)"
 check "verdict keys at the end record nothing more: one record" \
   test "$(grep -c 'act=verdict' "$TMP/end.session")" -eq 1
 run "$TMP/end.session" verdict-unsure next-spectrum verdict-unsure next-unjudged
