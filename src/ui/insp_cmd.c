@@ -140,8 +140,7 @@ static void cmd_nudge(dt_insp *s, dt_cmd c, dt_session_param p) {
 static size_t unjudged_from(dt_insp *s, size_t from, int dir, int *found) {
   size_t n = s->q->n;
   for (size_t k = 1; k <= n; k++) {
-    size_t i = (from + n + (size_t)dir * k % n) % n;
-    if (dir < 0) i = (from + n - k % n) % n;
+    size_t i = dir > 0 ? (from + k) % n : (from + n - k % n) % n;
     if (dt_insp_verdict_of(s, i) == DT_VERDICT_NONE) {
       *found = 1;
       return i;
