@@ -8,16 +8,23 @@
 #include "doubletty/digest.h"
 #include "doubletty/journal.h"
 #include "doubletty/judge.h"
+#include "doubletty/session.h"
 #include "doubletty/spectrum.h"
 #include "grid.h"
 #include "inspector.h"
 #include "plot.h"
 #include "queue.h"
 
-#define DT_UNDO_MAX 200
-#define DT_KEY_MAX 8300                /* session name of a queue entry */
+#define DT_KEY_MAX DT_SESSION_KEY_MAX /* session name of a queue entry */
 #define DT_MIN_W 80
 #define DT_MIN_H 24
+
+typedef enum dt_edit_mode {
+  DT_EDIT_NONE = 0,
+  DT_EDIT_NOTE,      /* the note of the current spectrum */
+  DT_EDIT_GOTO,      /* a spectrum by number or name */
+  DT_EDIT_VELOCITY   /* a velocity for the cursor */
+} dt_edit_mode;
 
 typedef struct dt_insp {
   /* fixed for the run */
@@ -27,40 +34,19 @@ typedef struct dt_insp {
   const dt_inspect_opts *o;
   int utf8;
   dt_plot_mode mode;
+  dt_session *ss;                /* the judgement of the current spectrum */
 
   /* the queue */
   size_t cur;
   size_t njudged;
-
-  /* the current spectrum */
-  char key[DT_KEY_MAX];          /* its name in the session (file#doublet) */
-  int loaded;                    /* 1: spec and an are valid */
-  char load_msg[400];            /* why it is not */
-  dt_spectrum *spec;
-  dt_analysis *an;
-  char sha[DT_SHA256_HEX];
-  int file_changed;              /* the file's digest differs from the record */
-  dt_judgement j;                /* the current state */
-  int pending;                   /* j is the automatic first pass, not yet recorded */
-  int an_ok;                     /* out holds a valid analysis of j */
-  char an_msg[400];              /* why not */
-  dt_analysis_out out;
-  int has_suggest;
-  dt_verdict suggested;
-  char reason[64];
+  int finished;                  /* the last spectrum was judged: the summary shows */
   double ov_ymin, ov_ymax;       /* overview flux range */
-
-  /* undo / redo: snapshots of j */
-  dt_judgement *undo, *redo;
-  size_t nundo, nredo;
 
   /* view */
   double view_lo, view_hi;       /* velocity range of the panels [km/s] */
   double cursor_v;               /* cursor velocity [km/s] */
   int panel;                     /* panel of the cursor: 0 the stronger line */
-  size_t sel;                    /* selected component */
   int normalised;                /* panels show flux / continuum */
-  int auto_refit;
   int help_page;                 /* 0: no help; k: page k */
   int help_pages;                /* pages the last help drawing needed */
   int anchor;                    /* a continuum window is being marked ... */
@@ -68,16 +54,10 @@ typedef struct dt_insp {
   int anchor_panel;
   int plot_w;                    /* columns of the velocity plots (last layout) */
 
-  /* note editor */
-  int editing;
+  /* line editor: note and prompts */
+  dt_edit_mode editing;
   char edit[DT_NOTE_MAX];
   size_t edit_len, edit_pos;     /* bytes */
-
-  /* status line */
-  char msg[512];
-  int msg_role;
-
-  long nfits;                    /* fits run so far (for timing by kind) */
 
   /* drawing */
   dt_grid g;
@@ -94,5 +74,21 @@ void dt_view_draw(dt_insp *s, int w, int h);
  * error is 1000 or more (an unconstrained parameter), just the value when
  * there is no error. */
 const char *dt_view_pm(const dt_insp *s, char *buf, size_t size, double v, double err, int dec);
+
+/* The role a message of this tone is drawn in. */
+int dt_view_role_of_tone(dt_session_tone t);
+
+/* Event code shared by inspector.c and insp_cmd.c. */
+enum { EV_NONE = 0, EV_REDRAW = 1, EV_QUIT = 2 };
+void dt_insp_say(dt_insp *s, dt_session_tone tone, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 3, 4)))
+#endif
+    ;
+const char *dt_insp_keyname(int cmd, char *buf, size_t n);
+void dt_insp_load(dt_insp *s, size_t idx);
+int dt_insp_verdict_of(dt_insp *s, size_t i);
+/* Carry out key (a command, or a key of the line editor). */
+int dt_insp_handle(dt_insp *s, int key);
 
 #endif

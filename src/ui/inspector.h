@@ -29,6 +29,7 @@ typedef struct dt_inspect_opts {
   const char *dump;        /* write the last screen as text here (or NULL) */
   int width, height;       /* headless screen size (0: 100 x 32) */
   int bench;               /* print per-keystroke timing at the end */
+  const char *session_path; /* shown at the start (NULL: the journal's path) */
 } dt_inspect_opts;
 
 void dt_inspect_opts_init(dt_inspect_opts *o);

@@ -43,6 +43,7 @@ typedef enum dt_cmd {
   DT_CMD_CURSOR_RIGHT_FAST,
   DT_CMD_CURSOR_UP,
   DT_CMD_CURSOR_DOWN,
+  DT_CMD_CURSOR_TO_VELOCITY,
   DT_CMD_ZOOM_IN,
   DT_CMD_ZOOM_OUT,
   DT_CMD_PAN_LEFT,
@@ -69,9 +70,9 @@ typedef enum dt_cmd {
   DT_CMD_LOGN_UP,
   DT_CMD_LOGN_DOWN_COARSE,
   DT_CMD_LOGN_UP_COARSE,
-  DT_CMD_FREEZE_V,
-  DT_CMD_FREEZE_B,
-  DT_CMD_FREEZE_LOGN,
+  DT_CMD_HOLD_V,
+  DT_CMD_HOLD_B,
+  DT_CMD_HOLD_LOGN,
   DT_CMD_TIE_B,
   DT_CMD_REFIT,
   DT_CMD_AUTO_REFIT,
@@ -87,6 +88,8 @@ typedef enum dt_cmd {
   DT_CMD_NEXT_SPECTRUM,
   DT_CMD_PREV_SPECTRUM,
   DT_CMD_NEXT_UNJUDGED,
+  DT_CMD_PREV_UNJUDGED,
+  DT_CMD_GOTO_SPECTRUM,
   DT_CMD__COUNT
 } dt_cmd;
 
@@ -96,6 +99,8 @@ typedef struct dt_keybind {
   int key;             /* one key */
   const char *group;   /* heading in the help overlay */
   const char *help;    /* one short line */
+  double step;         /* nudges: the step, in unit (0 for the rest) */
+  const char *unit;    /* nudges: "km/s" or "dex" */
 } dt_keybind;
 
 /* The table, in help order. */

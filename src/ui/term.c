@@ -86,6 +86,12 @@ int dt_term_check(const dt_term_opts *o, char *msg, size_t size) {
   return 0;
 }
 
+short dt_term_window_fg(short fg, short winbg) {
+  /* on 8-colour terminals the window shade is blue: the blue rest-frame
+     guide would vanish in it, so it turns white there */
+  return fg == winbg ? (winbg == 7 ? 0 : 7) : fg;
+}
+
 static void setup_colours(int want) {
   /* roles -> (colour, attributes); -1 is the terminal's default colour */
   static const struct { short fg; attr_t colour_attr; attr_t mono_attr; } spec[DT_R__COUNT] = {
@@ -119,7 +125,7 @@ static void setup_colours(int want) {
       for (int r = 0; r < DT_R__COUNT; r++)
         for (int w = 0; w < 2; w++) {
           short pair = (short)(1 + 2 * r + w);
-          init_pair(pair, spec[r].fg, w ? winbg : -1);
+          init_pair(pair, w ? dt_term_window_fg(spec[r].fg, winbg) : spec[r].fg, w ? winbg : -1);
           g_pair[r][w] = pair;
           g_attr[r][w] = spec[r].colour_attr;
         }

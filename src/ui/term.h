@@ -44,4 +44,8 @@ void dt_term_draw(const dt_grid *g);
 /* Force a full repaint at the next draw. */
 void dt_term_invalidate(void);
 
+/* The foreground colour a role gets on the continuum-window shade winbg
+ * (curses colour numbers): its own, unless that is the shade's colour. */
+short dt_term_window_fg(short fg, short winbg);
+
 #endif

@@ -35,8 +35,17 @@ typedef struct layout {
   int vaxis_y;
   int gutter, plot_x, plot_w;
   int tab_x, tab_y, tab_w, tab_h;
-  int status_y;
+  int status_y, status_h;   /* a long message takes two rows */
 } layout;
+
+#define FOOTER_MIN 16 /* " ? help  q quit " */
+
+/* Cells of UTF-8 text (one per code point; the screen has no wide glyphs). */
+static int cells(const char *t) {
+  int n = 0;
+  for (; *t; t++) n += ((unsigned char)*t & 0xC0) != 0x80;
+  return n;
+}
 
 /* Symbols with ASCII stand-ins. */
 typedef struct syms {
@@ -68,12 +77,13 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   memset(L, 0, sizeof *L);
   L->w = w;
   L->h = h;
-  L->status_y = h - 1;
+  L->status_h = !s->editing && cells(s->ss->msg) > w - FOOTER_MIN - 1 ? 2 : 1;
+  L->status_y = h - L->status_h;
   L->gutter = 7;
   int side = w >= 150;
-  int body = h - 2; /* minus title and status */
+  int body = h - 1 - L->status_h; /* minus title and status */
   if (side) {
-    L->tab_w = 60;
+    L->tab_w = w - 110 < 60 ? 60 : w - 110 > 92 ? 92 : w - 110; /* a wide screen gives the table room */
     L->tab_x = w - L->tab_w;
     L->tab_y = 1;
     L->tab_h = body;
@@ -82,19 +92,20 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
     L->tab_x = 0;
     /* rule, heading, components, fit, two lines, verdict: as many rows as
        the components need, within a share of the screen */
-    int need = 6 + (int)(s->j.ncomp > 1 ? s->j.ncomp : 1) - (h < 28);
+    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28);
     int cap = h < 28 ? 7 : h < 36 ? 9 : 13;
     L->tab_h = need < 7 ? 7 : need > cap ? cap : need;
     L->tab_y = L->status_y - L->tab_h;
     body -= L->tab_h;
   }
-  L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 3;
-  int rest = body - L->ov_h - 1 - 1; /* overview axis, velocity axis */
+  /* a short screen keeps its rows for the two line panels */
+  L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 0;
+  int rest = body - L->ov_h - (L->ov_h ? 1 : 0) - 1; /* overview axis, velocity axis */
   L->pan_h = rest / 2;
-  L->ov_h += rest % 2; /* an odd row goes to the overview */
+  if (L->ov_h) L->ov_h += rest % 2; /* an odd row goes to the overview */
   L->ov_y = 1;
   L->ovaxis_y = L->ov_y + L->ov_h;
-  L->pan_y[0] = L->ovaxis_y + 1;
+  L->pan_y[0] = L->ov_h ? L->ovaxis_y + 1 : L->ov_y;
   L->pan_y[1] = L->pan_y[0] + L->pan_h;
   L->vaxis_y = L->pan_y[1] + L->pan_h;
   L->plot_x = L->gutter;
@@ -156,24 +167,37 @@ static void draw_title(dt_insp *s, const layout *L) {
   char row[32] = "";
   if (e->row > 0) snprintf(row, sizeof row, " row %ld", e->row);
   char res[32] = "R ?";
-  if (s->j.resolution > 0) snprintf(res, sizeof res, "R %.0f", s->j.resolution);
-  else if (s->j.fwhm_kms > 0) snprintf(res, sizeof res, "FWHM %.0f km/s", s->j.fwhm_kms);
-  char buf[600];
-  snprintf(buf, sizeof buf, " doubletty  %zu/%zu  judged %zu  | %s%s%s%s | %s  vsys %+.0f  %s ", s->cur + 1,
-           s->q->n, s->njudged, name[0] ? name : "", name[0] ? " " : "", base, row, s->j.doublet, s->j.vsys,
-           res);
+  if (s->ss->j.resolution > 0) snprintf(res, sizeof res, "R %.0f", s->ss->j.resolution);
+  else if (s->ss->j.fwhm_kms > 0) snprintf(res, sizeof res, "FWHM %.0f km/s", s->ss->j.fwhm_kms);
   const char *flag = NULL;
   int role = DT_R_BAD;
   if (s->jn && dt_journal_failed(s->jn)) flag = " SESSION NOT WRITABLE ";
-  else if (s->file_changed) flag = " FILE CHANGED SINCE JUDGED ";
+  else if (s->ss->file_changed) flag = " FILE CHANGED SINCE JUDGED ";
   else if (!s->jn || dt_journal_read_only(s->jn)) {
     flag = " read-only ";
     role = DT_R_WARN;
-  } else if (s->pending) {
+  } else if (s->ss->pending) {
     flag = " first pass ";
     role = DT_R_TITLE;
   }
   int flen = flag ? (int)strlen(flag) : 0;
+  /* by priority: position and settings always, then the target's name,
+   * then its file (cut from the left) */
+  char head[64], tail[96], mid[600];
+  snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
+  snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s ", s->ss->j.doublet, s->ss->j.vsys, res);
+  snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
+  int fixed = dt_utf8_len(head) + dt_utf8_len(tail) + flen;
+  int mroom = L->w - fixed;
+  if (dt_utf8_len(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
+  if (mroom < 4) mroom = 4;
+  while (dt_utf8_len(mid) > mroom) {
+    size_t n = strlen(mid);
+    memmove(mid, mid + 1, n); /* drop from the left: the end of a name tells most */
+    while (((unsigned char)mid[0] & 0xC0) == 0x80) memmove(mid, mid + 1, strlen(mid));
+  }
+  char buf[800];
+  snprintf(buf, sizeof buf, "%s%s%s", head, mid, tail);
   dt_grid_text(g, 0, 0, buf, DT_R_TITLE, DT_A_BOLD, L->w - flen);
   if (flag) dt_grid_text(g, L->w - flen, 0, flag, role, DT_A_BOLD | DT_A_REVERSE, -1);
   for (int i = 0; i < L->w; i++) dt_grid_at(g, i, 0)->bg = DT_R_TITLE;
@@ -195,27 +219,28 @@ static double *scratch(dt_insp *s, size_t n, int k) {
 static void draw_overview(dt_insp *s, const layout *L) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
-  if (!s->loaded) {
-    dt_grid_printf(g, L->plot_x, L->ov_y + L->ov_h / 2, DT_R_BAD, 0, L->plot_w, "cannot read this spectrum: %s",
-                   s->load_msg);
+  if (!s->ss->loaded) {
+    dt_grid_printf(g, L->plot_x, L->ov_h ? L->ov_y + L->ov_h / 2 : L->pan_y[0], DT_R_BAD, 0, L->plot_w,
+                   "cannot read this spectrum: %s", s->ss->load_msg);
     return;
   }
-  const dt_spectrum *sp = s->spec;
+  if (L->ov_h == 0) return; /* a short screen: no overview */
+  const dt_spectrum *sp = s->ss->spec;
   dt_plot *p = &s->p;
   if (dt_plot_begin(p, s->mode, L->plot_w, L->ov_h, sp->wave[0], sp->wave[sp->n - 1], s->ov_ymin, s->ov_ymax))
     return;
-  for (size_t k = 0; k < s->j.nwin; k++) dt_plot_vspan(p, s->j.win[k].lo, s->j.win[k].hi, DT_R_WINDOW);
+  for (size_t k = 0; k < s->ss->j.nwin; k++) dt_plot_vspan(p, s->ss->j.win[k].lo, s->ss->j.win[k].hi, DT_R_WINDOW);
   dt_plot_hline(p, 0, DT_R_REF);
   dt_plot_line(p, sp->wave, sp->flux, sp->mask, sp->n, DT_R_FLUX, DT_PLOT_MARK_OFF);
   dt_plot_points(p, sp->wave, sp->flux, sp->mask, sp->n, DT_R_MASKED, DT_PLOT_MARK_OFF);
-  if (s->an_ok) {
-    const double *w = dt_analysis_wave(s->an), *c = dt_analysis_continuum(s->an);
-    dt_plot_line(p, w, c, NULL, s->out.n, DT_R_CONT, 0);
+  if (s->ss->an_ok) {
+    const double *w = dt_analysis_wave(s->ss->an), *c = dt_analysis_continuum(s->ss->an);
+    dt_plot_line(p, w, c, NULL, s->ss->out.n, DT_R_CONT, 0);
   }
-  const dt_doublet *d = dt_atomic_find(s->atomic, s->j.doublet);
+  const dt_doublet *d = dt_atomic_find(s->atomic, s->ss->j.doublet);
   if (d)
     for (int l = 0; l < 2; l++) {
-      double lam = dt_wavelength(0, d->line[l].lambda0, s->j.vsys);
+      double lam = dt_wavelength(0, d->line[l].lambda0, s->ss->j.vsys);
       dt_plot_mark(p, lam, 0, l == 0 ? "1" : "2", DT_R_LABEL, DT_A_BOLD);
     }
   dt_plot_render(p, g, L->plot_x, L->ov_y);
@@ -228,11 +253,35 @@ static void draw_overview(dt_insp *s, const layout *L) {
   axis_row(g, p, L->plot_x, L->ovaxis_y, 0, p->w);
 }
 
+/* One row of residuals (data - model) / sigma under a panel, one cell per
+ * plot column (the largest |r| of the column's pixels): blank within 1
+ * sigma, a dot within 2, +/- within 3, and a bold arrow beyond, so a
+ * misfit in a trough shows even where data and model share cells. */
+static void draw_residuals(dt_insp *s, const layout *L, const dt_plot *p, int gy, const double *vel,
+                           const double *flux, const double *sig, const double *model, const unsigned char *mask,
+                           size_t n) {
+  dt_grid *g = &s->g;
+  dt_grid_text(g, 0, gy, s->utf8 ? " r/\xcf\x83" : " r/sig", DT_R_AXIS, DT_A_DIM, L->gutter - 1);
+  for (int c = 0; c < p->w; c++) {
+    double x0 = dt_plot_colx(p, c), x1 = dt_plot_colx(p, c + 1), worst = 0;
+    for (size_t i = 0; i < n; i++) {
+      if (mask[i] || !(vel[i] >= x0 && vel[i] < x1) || !(sig[i] > 0) || !isfinite(model[i])) continue;
+      double r = (flux[i] - model[i]) / sig[i];
+      if (fabs(r) > fabs(worst)) worst = r;
+    }
+    double a = fabs(worst);
+    const char *ch = a < 1 ? NULL : a < 2 ? (s->utf8 ? "\xc2\xb7" : ".") : a < 3 ? (worst > 0 ? "+" : "-")
+                              : (worst > 0 ? (s->utf8 ? "\xe2\x86\x91" : "^") : (s->utf8 ? "\xe2\x86\x93" : "v"));
+    if (ch) dt_grid_text(g, L->plot_x + c, gy, ch, a >= 3 ? DT_R_BAD : a >= 2 ? DT_R_WARN : DT_R_AXIS,
+                         a >= 3 ? DT_A_BOLD : 0, 1);
+  }
+}
+
 static void draw_panel(dt_insp *s, const layout *L, int l) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
   int gy = L->pan_y[l];
-  const dt_doublet *d = dt_atomic_find(s->atomic, s->j.doublet);
+  const dt_doublet *d = dt_atomic_find(s->atomic, s->ss->j.doublet);
   /* the gutter: which line, is the cursor here */
   if (d) {
     char lab[16];
@@ -241,17 +290,17 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     dt_grid_text(g, 1, gy, lab, DT_R_LABEL, DT_A_BOLD, 5);
   }
   for (int r = 0; r < L->pan_h; r++) dt_grid_text(g, L->gutter - 1, gy + r, y.vbar, DT_R_AXIS, 0, 1);
-  if (!s->loaded || !s->an_ok) {
+  if (!s->ss->loaded || !s->ss->an_ok) {
     if (l == 0)
       dt_grid_printf(g, L->plot_x + 1, gy + L->pan_h / 2, DT_R_BAD, 0, L->plot_w - 2, "%s",
-                     !s->loaded ? "no data" : s->an_msg[0] ? s->an_msg : "no analysis");
+                     !s->ss->loaded ? "no data" : s->ss->an_msg[0] ? s->ss->an_msg : "no analysis");
     return;
   }
-  size_t n = s->out.n;
-  const double *vel = dt_analysis_velocity(s->an, l), *flux = dt_analysis_flux(s->an),
-               *sig = dt_analysis_sigma(s->an), *cont = dt_analysis_continuum(s->an),
-               *model = dt_analysis_model(s->an);
-  const unsigned char *mask = dt_analysis_mask(s->an);
+  size_t n = s->ss->out.n;
+  const double *vel = dt_analysis_velocity(s->ss->an, l), *flux = dt_analysis_flux(s->ss->an),
+               *sig = dt_analysis_sigma(s->ss->an), *cont = dt_analysis_continuum(s->ss->an),
+               *model = dt_analysis_model(s->ss->an);
+  const unsigned char *mask = dt_analysis_mask(s->ss->an);
   if (!vel || !flux || !cont) return;
   double *yf = scratch(s, n, 0), *ys = scratch(s, n, 1), *yc = scratch(s, n, 2), *ym = scratch(s, n, 3),
          *yk = scratch(s, n, 4);
@@ -287,12 +336,15 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     ymax = 1.35 * cmax;
   }
   dt_plot *p = &s->p;
-  if (dt_plot_begin(p, s->mode, L->plot_w, L->pan_h, s->view_lo, s->view_hi, ymin, ymax)) return;
+  /* a panel of four rows or more gives its last row to the residuals */
+  int strip = L->pan_h >= 4 && model;
+  int ph = L->pan_h - strip;
+  if (dt_plot_begin(p, s->mode, L->plot_w, ph, s->view_lo, s->view_hi, ymin, ymax)) return;
   /* continuum windows, and the one being marked */
   if (d)
-    for (size_t k = 0; k < s->j.nwin; k++)
-      dt_plot_vspan(p, dt_velocity(s->j.win[k].lo, d->line[l].lambda0, s->j.vsys),
-                    dt_velocity(s->j.win[k].hi, d->line[l].lambda0, s->j.vsys), DT_R_WINDOW);
+    for (size_t k = 0; k < s->ss->j.nwin; k++)
+      dt_plot_vspan(p, dt_velocity(s->ss->j.win[k].lo, d->line[l].lambda0, s->ss->j.vsys),
+                    dt_velocity(s->ss->j.win[k].hi, d->line[l].lambda0, s->ss->j.vsys), DT_R_WINDOW);
   if (s->anchor && s->anchor_panel == l) dt_plot_vspan(p, s->anchor_v, s->cursor_v, DT_R_WINDOW);
   dt_plot_hline(p, 0, DT_R_REF);
   /* a dotted guide at v = 0 (the rest frame) */
@@ -305,28 +357,32 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
   dt_plot_points(p, zx, zy, NULL, (size_t)nz, DT_R_REF, 0);
   dt_plot_line(p, vel, ys, mask, n, DT_R_SIGMA, 0);
   dt_plot_line(p, vel, yc, NULL, n, DT_R_CONT, 0);
-  if (s->j.ncomp > 1) /* one component's model is the total model */
-    for (size_t k = 0; k < s->j.ncomp; k++) {
-      const double *cm = dt_analysis_component_model(s->an, k);
+  if (s->ss->j.ncomp > 1) /* one component's model is the total model */
+    for (size_t k = 0; k < s->ss->j.ncomp; k++) {
+      const double *cm = dt_analysis_component_model(s->ss->an, k);
       if (!cm) continue;
       for (size_t i = 0; i < n; i++)
         yk[i] = fabs(cm[i] / cont[i] - 1) > DEPARTS ? cm[i] / (norm ? cont[i] : 1.0) : NAN;
-      dt_plot_line(p, vel, yk, NULL, n, k == s->sel ? DT_R_COMPSEL : DT_R_COMP, 0);
+      dt_plot_line(p, vel, yk, NULL, n, k == s->ss->sel ? DT_R_COMPSEL : DT_R_COMP, 0);
     }
   dt_plot_line(p, vel, yf, mask, n, DT_R_FLUX, DT_PLOT_MARK_OFF);
   dt_plot_points(p, vel, yf, mask, n, DT_R_MASKED, DT_PLOT_MARK_OFF);
   if (model) dt_plot_line(p, vel, ym, NULL, n, DT_R_MODEL, 0);
   /* component numbers along the top row */
-  for (size_t k = 0; k < s->j.ncomp; k++) {
+  for (size_t k = 0; k < s->ss->j.ncomp; k++) {
     char num[4];
     snprintf(num, sizeof num, "%zu", (k + 1) % 10);
-    dt_plot_mark(p, s->j.comp[k].v, 0, num, k == s->sel ? DT_R_COMPSEL : DT_R_COMP,
-                 k == s->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
+    dt_plot_mark(p, s->ss->j.comp[k].v, 0, num, k == s->ss->sel ? DT_R_COMPSEL : DT_R_COMP,
+                 k == s->ss->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
   }
   dt_plot_render(p, g, L->plot_x, gy);
-  /* the cursor column */
+  if (strip) draw_residuals(s, L, p, gy + ph, vel, flux, sig, model, mask, n);
+  /* the cursor: a tick under the plot, so the trough above stays visible */
   int col = dt_plot_column(p, s->cursor_v);
-  if (col >= 0) dt_grid_shade(g, L->plot_x + col, gy, 1, L->pan_h, DT_R_CURSOR, 0);
+  if (col >= 0) {
+    dt_grid_text(g, L->plot_x + col, gy + ph - 1, s->utf8 ? "\xe2\x96\xb2" : "^", DT_R_LABEL, DT_A_BOLD, 1);
+    dt_grid_shade(g, L->plot_x + col, gy + ph - 1, 1, 1, DT_R_CURSOR, 0);
+  }
   ytick(g, p, 1, gy, norm ? 1.0 : ymax / 1.35, norm ? "1" : "C");
   ytick(g, p, 1, gy, 0, "0");
   if (l == 1) {
@@ -334,8 +390,12 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     /* the cursor's position at the right end, tick labels before it */
     char cur[80];
     syms ys = symbols(s);
-    snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
-             d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->j.vsys) : NAN, ys.ang);
+    /* a narrow plot keeps its tick labels: the wavelength gives way */
+    if (p->w >= 90)
+      snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
+               d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->ss->j.vsys) : NAN, ys.ang);
+    else
+      snprintf(cur, sizeof cur, " cursor %+.1f km/s", s->cursor_v);
     int len = dt_utf8_len(cur);
     axis_row(g, p, L->plot_x, L->vaxis_y, 0, p->w - len - 1);
     dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
@@ -347,11 +407,23 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
 /* Column positions of the component table (relative to its left edge). */
 enum { TC_NUM = 1, TC_V = 5, TC_B = 24, TC_N = 40, TC_FIX = 57 };
 
+/* A fitted parameter: "value±error"; "value at limit" when the fit left it
+ * on a bound of its range (its error means nothing then); "value held"
+ * when it was held out of the fit. */
+static const char *param_text(const dt_insp *s, size_t k, dt_session_param p, char *buf, size_t size, double v,
+                              double err, int dec) {
+  static const unsigned bit[3] = {DT_FREEZE_V, DT_FREEZE_B, DT_FREEZE_N};
+  if (s->ss->j.frozen[k] & bit[p]) snprintf(buf, size, "%.*f held", dec, v);
+  else if (s->ss->j.has_fit && dt_session_at_bound(s->ss, k, p)) snprintf(buf, size, "%.*f at limit", dec, v);
+  else dt_view_pm(s, buf, size, v, err, dec);
+  return buf;
+}
+
 static void draw_table(dt_insp *s, const layout *L) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
   int x = L->tab_x + 1, row = L->tab_y, maxw = L->tab_w - 2;
-  const dt_judgement *j = &s->j;
+  const dt_judgement *j = &s->ss->j;
   int side = L->tab_x > 0;
   int end = L->tab_y + L->tab_h; /* first row not ours */
   if (side)
@@ -364,13 +436,13 @@ static void draw_table(dt_insp *s, const layout *L) {
   int rows = end - row - 5;
   if (rows < 1) rows = 1;
   size_t first = 0, shown = (size_t)rows;
-  if (j->ncomp > shown && s->sel >= shown) first = s->sel - shown + 1;
+  if (j->ncomp > shown && s->ss->sel >= shown) first = s->ss->sel - shown + 1;
   dt_grid_fill(g, x - 1, row, maxw + 2, 1, " ", DT_R_LABEL, DT_R_NONE, DT_A_UNDERLINE);
   dt_grid_text(g, x + TC_NUM, row, "#", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
   dt_grid_text(g, x + TC_V, row, "v [km/s]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
   dt_grid_text(g, x + TC_B, row, "b [km/s]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
   dt_grid_text(g, x + TC_N, row, "log N [cm-2]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
-  int hx = dt_grid_text(g, x + TC_FIX, row, "fixed", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, maxw - TC_FIX);
+  int hx = dt_grid_text(g, x + TC_FIX, row, "held", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, maxw - TC_FIX);
   if (j->ncomp > shown)
     dt_grid_printf(g, x + TC_FIX + hx + 1, row, DT_R_LABEL, DT_A_UNDERLINE, maxw - TC_FIX - hx - 1, "%zu-%zu of %zu",
                    first + 1, first + shown, j->ncomp);
@@ -382,14 +454,15 @@ static void draw_table(dt_insp *s, const layout *L) {
   }
   for (size_t k = first; k < j->ncomp && k < first + shown; k++) {
     const dt_component *c = &j->comp[k], *e = errs ? &j->fit.err[k] : NULL;
-    int sel = k == s->sel, role = sel ? DT_R_COMPSEL : DT_R_TEXT, attr = sel ? DT_A_BOLD : 0;
+    int sel = k == s->ss->sel, role = sel ? DT_R_COMPSEL : DT_R_TEXT, attr = sel ? DT_A_BOLD : 0;
     if (sel) dt_grid_text(g, x, row, y.arrow, role, attr, 1);
     dt_grid_printf(g, x + TC_NUM, row, role, attr, 3, "%zu", k + 1);
-    snprintf(b2, sizeof b2, "%s%s", c->v >= 0 ? "+" : "", dt_view_pm(s, b1, sizeof b1, c->v, e ? e->v : NAN, 1));
+    snprintf(b2, sizeof b2, "%s%s", c->v >= 0 ? "+" : "", param_text(s, k, DT_PARAM_V, b1, sizeof b1, c->v, e ? e->v : NAN, 1));
     dt_grid_text(g, x + TC_V, row, b2, role, attr, TC_B - TC_V - 1);
-    dt_grid_text(g, x + TC_B, row, dt_view_pm(s, b1, sizeof b1, c->b, e ? e->b : NAN, 1), role, attr, TC_N - TC_B - 1);
-    dt_grid_text(g, x + TC_N, row, dt_view_pm(s, b1, sizeof b1, c->logN, e ? e->logN : NAN, 2), role, attr,
-                 TC_FIX - TC_N - 1);
+    dt_grid_text(g, x + TC_B, row, param_text(s, k, DT_PARAM_B, b1, sizeof b1, c->b, e ? e->b : NAN, 1), role, attr,
+                 TC_N - TC_B - 1);
+    dt_grid_text(g, x + TC_N, row, param_text(s, k, DT_PARAM_LOGN, b1, sizeof b1, c->logN, e ? e->logN : NAN, 2), role,
+                 attr, TC_FIX - TC_N - 1);
     char fz[4];
     dt_freeze_str(j->frozen[k], fz);
     snprintf(b1, sizeof b1, "%s%s%s", fz, j->tie_b && fz[0] ? " " : "", j->tie_b ? "tied-b" : "");
@@ -401,7 +474,7 @@ static void draw_table(dt_insp *s, const layout *L) {
   double chi2r = NAN, bic = NAN;
   long dof = 0;
   int status = 0;
-  const dt_fit_result *f = j->has_fit ? &j->fit : s->an_ok ? &s->out.fit : NULL;
+  const dt_fit_result *f = j->has_fit ? &j->fit : s->ss->an_ok ? &s->ss->out.fit : NULL;
   if (f) {
     chi2r = f->chi2_red;
     bic = f->bic;
@@ -410,19 +483,23 @@ static void draw_table(dt_insp *s, const layout *L) {
   }
   char cont[80];
   if (j->cont_order < 0) snprintf(cont, sizeof cont, "continuum fixed at 1");
-  else if (j->nwin) snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
+  else if (j->nwin && s->ss->an_fallback)
+    snprintf(cont, sizeof cont, "continuum order %d, auto (%zu window%s: too few pixels)", j->cont_order, j->nwin,
+             j->nwin == 1 ? "" : "s");
+  else if (j->nwin)
+    snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
   else snprintf(cont, sizeof cont, "continuum order %d, auto", j->cont_order);
   int cx = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "fit ");
   cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s", y.chi, chi2r, dof,
-                       bic, cont, s->auto_refit ? "" : "  refit: manual");
+                       bic, cont, s->ss->auto_refit ? "" : "  refit: manual");
   if (status != 0 && cx < maxw)
     dt_grid_printf(g, x + cx, row, DT_R_BAD, DT_A_BOLD, maxw - cx, "  %s",
                    status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");
   row++;
   /* measurements, one row per line */
   for (int l = 0; l < 2; l++) {
-    const dt_analysis_line *m = &s->out.line[l];
-    if (!s->an_ok || s->out.measure_status != 0 || !m->line) {
+    const dt_analysis_line *m = &s->ss->out.line[l];
+    if (!s->ss->an_ok || s->ss->out.measure_status != 0 || !m->line) {
       dt_grid_printf(g, x, row++, DT_R_TEXT, DT_A_DIM, maxw, "line %d   no measurement", l + 1);
       continue;
     }
@@ -431,18 +508,27 @@ static void draw_table(dt_insp *s, const layout *L) {
                             dt_view_pm(s, b2, sizeof b2, 1e3 * m->W, 1e3 * m->W_err, 0), y.mA, m->W_sig, y.sig);
     if (isfinite(m->logN_aod)) snprintf(b1, sizeof b1, "%s", dt_view_pm(s, b2, sizeof b2, m->logN_aod, m->logN_aod_err, 2));
     else snprintf(b1, sizeof b1, "-");
-    int n2 = dt_grid_printf(g, x + n0 + n1, row, DT_R_TEXT, 0, maxw - n0 - n1, "  logNa %s  3%s lim %.0f %s, %.2f", b1,
-                            y.sig, 1e3 * m->W_limit, y.mA, m->logN_limit);
-    const char *sat = m->nsat ? "  saturated px" : l == 1 && s->out.saturated ? "  ratio: saturated" : "";
+    /* every number labelled; when the row is short, the column density of
+     * a detection or the limits of a non-detection come first */
+    char na[96], lim[96];
+    snprintf(na, sizeof na, "  log Na %s", b1);
+    snprintf(lim, sizeof lim, "  %g%s lim %.0f %s, log N < %.2f", s->ss->nsigma, y.sig, 1e3 * m->W_limit, y.mA,
+             m->logN_limit);
+    int room = maxw - n0 - n1, wn = dt_utf8_len(na), wl = dt_utf8_len(lim);
+    int show_na = wn + wl <= room || m->W_sig >= 3, show_lim = wn + wl <= room || m->W_sig < 3;
+    int n2 = 0;
+    if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
+    if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
+    const char *sat = m->nsat ? "  saturated px" : l == 1 && s->ss->out.saturated ? "  ratio: saturated" : "";
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
     row++;
   }
   /* verdicts and note */
   int vx = x;
-  if (s->has_suggest) {
+  if (s->ss->has_suggest) {
     vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw, "suggested ");
-    vx += dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", dt_verdict_name(s->suggested));
-    if (s->reason[0]) vx += dt_grid_printf(g, vx, row, DT_R_TEXT, DT_A_DIM, maxw - (vx - x), " (%s)", s->reason);
+    vx += dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", dt_verdict_name(s->ss->suggested));
+    if (s->ss->reason[0]) vx += dt_grid_printf(g, vx, row, DT_R_TEXT, DT_A_DIM, maxw - (vx - x), " (%s)", s->ss->reason);
     vx += 3;
   }
   int vrole = j->verdict == DT_VERDICT_DETECTED ? DT_R_GOOD : j->verdict == DT_VERDICT_NONE ? DT_R_TEXT :
@@ -459,11 +545,23 @@ static void draw_table(dt_insp *s, const layout *L) {
 
 /* ------------------------------------------------------------------ status */
 
+int dt_view_role_of_tone(dt_session_tone t) {
+  switch (t) {
+  case DT_TONE_GOOD: return DT_R_GOOD;
+  case DT_TONE_WARN: return DT_R_WARN;
+  case DT_TONE_BAD: return DT_R_BAD;
+  default: return DT_R_TEXT;
+  }
+}
+
 static void draw_status(dt_insp *s, const layout *L) {
   dt_grid *g = &s->g;
   int y = L->status_y;
   if (s->editing) {
-    int n = dt_grid_text(g, 0, y, "note> ", DT_R_LABEL, DT_A_BOLD, -1);
+    const char *prompt = s->editing == DT_EDIT_GOTO       ? "go to (number or name)> "
+                         : s->editing == DT_EDIT_VELOCITY ? "cursor to (km/s)> "
+                                                          : "note> ";
+    int n = dt_grid_text(g, 0, y, prompt, DT_R_LABEL, DT_A_BOLD, -1);
     /* show the end of a long note */
     int room = L->w - n - 1;
     const char *t = s->edit;
@@ -480,13 +578,82 @@ static void draw_status(dt_insp *s, const layout *L) {
     if (c) c->bg = DT_R_CURSOR;
     return;
   }
-  char k1[16], k2[16], right[64];
-  snprintf(right, sizeof right, " %s help  %s quit ", keyname_of_cmd(DT_CMD_HELP, k1, sizeof k1),
-           keyname_of_cmd(DT_CMD_QUIT, k2, sizeof k2));
+  /* the keys that matter most, as many as fit beside the message */
+  char k[4][16], right[256];
+  keyname_of_cmd(DT_CMD_VERDICT_DETECTED, k[0], sizeof k[0]);
+  keyname_of_cmd(DT_CMD_VERDICT_NOT_DETECTED, k[1], sizeof k[1]);
+  keyname_of_cmd(DT_CMD_VERDICT_UNSURE, k[2], sizeof k[2]);
+  keyname_of_cmd(DT_CMD_VERDICT_UNUSABLE, k[3], sizeof k[3]);
+  char kn[16], ku[16], kh[16], kq[16];
+  keyname_of_cmd(DT_CMD_EDIT_NOTE, kn, sizeof kn);
+  keyname_of_cmd(DT_CMD_UNDO, ku, sizeof ku);
+  keyname_of_cmd(DT_CMD_HELP, kh, sizeof kh);
+  keyname_of_cmd(DT_CMD_QUIT, kq, sizeof kq);
+  int mlen = (int)strlen(s->ss->msg);
+  snprintf(right, sizeof right, " %s/%s/%s/%s verdict  %s note  %s undo  %s help  %s quit ", k[0], k[1], k[2], k[3],
+           kn, ku, kh, kq);
+  if (mlen + (int)strlen(right) + 1 > L->w)
+    snprintf(right, sizeof right, " %s help  %s quit ", kh, kq);
   int rw = (int)strlen(right);
-  dt_grid_text(g, 0, y, s->msg, s->msg_role ? s->msg_role : DT_R_TEXT,
-               s->msg_role == DT_R_BAD ? DT_A_BOLD : 0, L->w - rw - 1);
+  int role = dt_view_role_of_tone(s->ss->tone), attr = role == DT_R_BAD ? DT_A_BOLD : 0;
+  const char *m = s->ss->msg;
+  if (L->status_h == 2) {
+    /* wrap at the last blank that fits; the rest goes to the second row */
+    int room = L->w - 1, n = 0;
+    const char *cut = NULL, *p = m;
+    for (; *p && n < room; p++) {
+      if (((unsigned char)*p & 0xC0) != 0x80) n++;
+      if (*p == ' ') cut = p;
+    }
+    if (!*p) cut = p;
+    else if (!cut) cut = p;
+    char first[600];
+    size_t len = (size_t)(cut - m) < sizeof first - 1 ? (size_t)(cut - m) : sizeof first - 1;
+    memcpy(first, m, len);
+    first[len] = '\0';
+    dt_grid_text(g, 0, y, first, role, attr, room);
+    m = *cut == ' ' ? cut + 1 : cut;
+    y++;
+  }
+  dt_grid_text(g, 0, y, m, role, attr, L->w - rw - 1);
   dt_grid_text(g, L->w - rw, y, right, DT_R_AXIS, DT_A_DIM, -1);
+}
+
+/* ------------------------------------------------------------------ end */
+
+/* The end of the queue: how many of each verdict, how many are left, and
+ * the keys that go on from here. */
+static void draw_finished(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  size_t count[5] = {0};
+  for (size_t i = 0; i < s->q->n; i++) {
+    int v = dt_insp_verdict_of(s, i);
+    if (v >= 0 && v < 5) count[v]++;
+  }
+  int bw = L->w < 64 ? L->w - 4 : 60, bh = 12, bx = (L->w - bw) / 2, by = (L->h - bh) / 2;
+  syms y = symbols(s);
+  dt_grid_fill(g, bx, by, bw, bh, " ", DT_R_TEXT, DT_R_NONE, 0);
+  dt_grid_fill(g, bx, by, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  int row = by + 1, x = bx + 2, m = bw - 4;
+  dt_grid_printf(g, x, row++, DT_R_GOOD, DT_A_BOLD, m, "queue finished: %zu of %zu spectra judged",
+                 s->q->n - count[DT_VERDICT_NONE], s->q->n);
+  row++;
+  static const dt_verdict order[] = {DT_VERDICT_DETECTED, DT_VERDICT_NOT_DETECTED, DT_VERDICT_UNSURE,
+                                     DT_VERDICT_UNUSABLE, DT_VERDICT_NONE};
+  for (size_t i = 0; i < sizeof order / sizeof order[0]; i++)
+    dt_grid_printf(g, x + 2, row++, order[i] == DT_VERDICT_NONE && count[0] ? DT_R_WARN : DT_R_TEXT, 0, m - 2,
+                   "%-14s %6zu", order[i] == DT_VERDICT_NONE ? "unjudged" : dt_verdict_name(order[i]),
+                   count[order[i]]);
+  row++;
+  char k1[16], k2[16], k3[16];
+  keyname_of_cmd(DT_CMD_NEXT_UNJUDGED, k1, sizeof k1);
+  keyname_of_cmd(DT_CMD_PREV_SPECTRUM, k2, sizeof k2);
+  keyname_of_cmd(DT_CMD_QUIT, k3, sizeof k3);
+  if (count[DT_VERDICT_NONE])
+    dt_grid_printf(g, x, row++, DT_R_LABEL, 0, m, "%s: to the unjudged   %s: back   %s: leave", k1, k2, k3);
+  else
+    dt_grid_printf(g, x, row++, DT_R_LABEL, 0, m, "%s: back to the last spectrum   %s: leave", k2, k3);
 }
 
 /* ------------------------------------------------------------------ help */
@@ -496,7 +663,15 @@ static void draw_help(dt_insp *s, const layout *L) {
   size_t n;
   const dt_keybind *t = dt_keymap_table(&n);
   int bw = L->w - 4, bh = L->h - 4, bx = 2, by = 2;
-  int ncol = bw >= 100 ? 2 : 1;
+  /* as many columns as fit the longest line whole (key, help, margin) */
+  int need = 0;
+  for (size_t i = 0; i < n; i++) {
+    int wl = 8 + dt_utf8_len(t[i].help) + 2;
+    if (wl > need) need = wl;
+  }
+  int ncol = (bw - 2) / (need > 0 ? need : 1);
+  if (ncol < 1) ncol = 1;
+  if (ncol > 3) ncol = 3;
   int colw = (bw - 2) / ncol;
   int lines = bh - 3; /* frame top, title, frame bottom */
   /* lay the table out: group headings, then "key  help (action)" lines */
@@ -519,7 +694,7 @@ static void draw_help(dt_insp *s, const layout *L) {
   dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
   char k1[16];
   dt_grid_printf(g, bx + 2, by + 1, DT_R_LABEL, DT_A_BOLD, bw - 4,
-                 "keys of the inspector  (page %d of %d: %s shows the next page, any other key closes)", page + 1,
+                 "keys of the inspector - page %d of %d (%s: next, other keys: close)", page + 1,
                  s->help_pages, keyname_of_cmd(DT_CMD_HELP, k1, sizeof k1));
   int idx = 0;
   group = NULL;
@@ -567,5 +742,6 @@ void dt_view_draw(dt_insp *s, int w, int h) {
   draw_panel(s, &L, 1);
   draw_table(s, &L);
   draw_status(s, &L);
+  if (s->finished) draw_finished(s, &L);
   if (s->help_page) draw_help(s, &L);
 }

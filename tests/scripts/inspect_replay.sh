@@ -57,8 +57,16 @@ check "window under the cursor removed" on_screen "continuum window removed"
 run "$S" continuum-order-down continuum-order-down continuum-order-down
 check "continuum fixed at 1 at order -1" on_screen "continuum fixed at 1"
 n0=$(wc -l <"$S")
-run "$S" nudge-logn-up-coarse undo
-check "undo after a nudge: two records" test "$(wc -l <"$S")" -eq $((n0 + 2))
+run "$S" nudge-logn-up-coarse
+check "a nudged log N is shown held" on_screen "log N = "
+check "... and says how to release it" grep -q "held.*(o releases)" "$TMP/screen"
+check "a nudge holds its parameter, then moves it: two records" test "$(wc -l <"$S")" -eq $((n0 + 2))
+check "... the hold first" sh -c "sed -n '$((n0 + 1))p' '$S' | grep -q 'act=freeze'"
+check "... then the new value" sh -c "sed -n '$((n0 + 2))p' '$S' | grep -q 'act=comp-set'"
+run "$S" hold-logn nudge-logn-up-coarse undo
+check "one undo takes back hold and nudge together: release, hold, nudge, one restore" \
+  test "$(wc -l <"$S")" -eq $((n0 + 6))
+check "... and the undone log N is free again" sh -c "tail -n 1 '$S' | grep -q 'act=restore' && ! tail -n 1 '$S' | grep -q 'frozen='"
 
 # a wide spectrum covers Ca II too: switch the doublet
 cat >"$TMP/q.list" <<EOF
@@ -149,6 +157,46 @@ printf 'verdict-detected\nverdict-detected\nverdict-detected\n' >"$TMP/keys"
   --replay-keys /dev/null --screen-dump "$TMP/screen" >/dev/null 2>"$TMP/err"
 check "only the disagreement is queued: 1/1" on_screen " 1/1  judged 0"
 check "... and it is the second spectrum" on_screen "vpq03.fits"
+
+# ---- one narrow continuum window: the data stay in view on the automatic continuum
+cat >"$TMP/q.list" <<EOF
+demo/vpq01.fits vsys=512 R=3690 name=ONE
+EOF
+run "$TMP/win.session" window-mark cursor-right window-mark
+check "a window too narrow for a continuum says so" on_screen "the automatic one is shown"
+check "... the fit line says which continuum is drawn" on_screen "auto (1 window: too few pixels)"
+check "... and the measurements stay on screen" grep -q "NaI 5891  W " "$TMP/screen"
+check "... the window is recorded all the same" grep -q 'act=window-add' "$TMP/win.session"
+run "$TMP/win.session"
+check "the session file is named at the start" on_screen "session file: $TMP/win.session"
+
+# ---- the end of the queue: a summary, and no second record for a repeated key
+cat >"$TMP/q.list" <<EOF
+demo/vpq01.fits vsys=512 R=3690 name=ONE
+demo/vpq03.fits vsys=512 R=3460 name=TWO
+demo/vpq07.fits vsys=512 R=3770 name=THREE
+EOF
+run "$TMP/end.session" next-spectrum next-spectrum verdict-detected verdict-detected verdict-unsure \
+  verdict-not-detected
+check "the last verdict shows the end-of-queue summary" on_screen "queue finished: 1 of 3 spectra judged"
+check "... with the unjudged counted" grep -Eq "unjudged +2" "$TMP/screen"
+check "... and the key that jumps to them" on_screen "J: to the unjudged"
+run "$TMP/end2.session" verdict-detected
+check "the status line names the target judged" on_screen "saved: #1 detected (ONE)"
+check "verdict keys at the end record nothing more: one record" \
+  test "$(grep -c 'act=verdict' "$TMP/end.session")" -eq 1
+run "$TMP/end.session" verdict-unsure next-spectrum verdict-unsure next-unjudged
+check "from the summary the jump goes to an unjudged spectrum" on_screen " 2/3  judged 2"
+run "$TMP/end.session" goto-spectrum "type THREE" Enter
+check "go to a spectrum by name" on_screen " 3/3  judged 2"
+run "$TMP/end.session" goto-spectrum "type 3" Enter previous-unjudged
+check "go to a spectrum by number, then back to the previous unjudged" on_screen " 2/3  judged 2"
+run "$TMP/end.session" goto-spectrum "type 9" Enter
+check "a number outside the queue is refused with the range" on_screen "the queue has 1 to 3"
+run "$TMP/end.session" cursor-to-velocity "type -123.5" Enter
+check "cursor to a typed velocity" on_screen "cursor at -123.5 km/s"
+run "$TMP/end.session" cursor-to-velocity "type 5000" Enter
+check "a velocity outside the fit window is refused in km/s" on_screen "outside the fit window (-600 to +600 km/s)"
 
 # ---- plain `doubletty FILE` opens the inspector; ASCII without UTF-8
 printf 'cursor-right\n' >"$TMP/keys"

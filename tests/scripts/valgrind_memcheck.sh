@@ -1,7 +1,7 @@
 # Valgrind memcheck of the program as it is used: a scripted inspector
 # session (headless, keys by action name) over a subset of the demo survey
 # -- a FITS image, a text spectrum, rows of a multi-row FITS table, a wide
-# spectrum switched to another doublet -- with components, nudges, freezes,
+# spectrum switched to another doublet -- with components, nudges, holds,
 # refits, windows, undo/redo, the help, a note with a non-ASCII character
 # and verdicts; its resume, a read-only look and the disagreements queue;
 # `doubletty fit` on the whole demo; and the session tools (log, log
@@ -39,7 +39,7 @@ nudge-v-up
 nudge-b-up-coarse
 nudge-logn-down
 next-component
-freeze-b
+hold-b
 tie-b
 refit
 window-mark

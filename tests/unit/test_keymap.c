@@ -81,7 +81,8 @@ int main(void) {
                           "zoom-in", "zoom-out", "pan-left", "pan-right", "cursor-left", "cursor-right",
                           "switch-doublet", "verdict-detected", "verdict-not-detected", "verdict-unsure",
                           "verdict-unusable", "edit-note", "next-spectrum", "previous-spectrum",
-                          "next-unjudged", "tie-b", "freeze-v", "freeze-b", "freeze-logn",
+                          "next-unjudged", "previous-unjudged", "goto-spectrum", "cursor-to-velocity",
+                          "tie-b", "hold-v", "hold-b", "hold-logn",
                           "continuum-order-up", "continuum-order-down", "nudge-v-up", "nudge-v-down",
                           "nudge-b-up", "nudge-b-down", "nudge-logn-up", "nudge-logn-down",
                           "nudge-v-up-coarse", "nudge-logn-down-coarse"};
@@ -102,5 +103,35 @@ int main(void) {
         "key codes of names");
   CHECK(dt_keymap_lookup(DT_KEY_RESIZE) == DT_CMD_NONE && dt_keymap_lookup('~') == DT_CMD_NONE,
         "unbound keys do nothing");
+
+  /* a slipped Shift (or Caps Lock) must never record a verdict: the other
+   * case of a verdict key is bound to nothing, and no key of another action
+   * is the other case of a verdict key */
+  size_t nt = n;
+  int nverdict = 0;
+  for (size_t i = 0; i < nt; i++) {
+    if (strncmp(t[i].name, "verdict-", 8)) continue;
+    nverdict++;
+    int k = t[i].key, other = k;
+    if (k >= 'a' && k <= 'z') other = k - 'a' + 'A';
+    else if (k >= 'A' && k <= 'Z') other = k - 'A' + 'a';
+    CHECK(other == k || dt_keymap_lookup(other) == DT_CMD_NONE, "%s (%c): its other case %c is bound to nothing",
+          t[i].name, k, other);
+  }
+  CHECK(nverdict == 4, "four verdicts in the table (%d)", nverdict);
+
+  /* the step of a nudge is a column of the table; its help says the same */
+  int nsteps = 0;
+  for (size_t i = 0; i < nt; i++) {
+    int nudge = !strncmp(t[i].name, "nudge-", 6);
+    CHECK(nudge == (t[i].step != 0), "%s: a step exactly when it is a nudge", t[i].name);
+    if (!nudge) continue;
+    nsteps++;
+    char want[48];
+    snprintf(want, sizeof want, "%+g %s", t[i].step, t[i].unit ? t[i].unit : "?");
+    CHECK(strstr(t[i].help, want) != NULL, "%s: help '%s' says '%s'", t[i].name, t[i].help, want);
+    CHECK((t[i].step < 0) == (strstr(t[i].name, "-down") != NULL), "%s: the sign of its step", t[i].name);
+  }
+  CHECK(nsteps == 12, "twelve nudges (%d)", nsteps);
   return dt_test_done();
 }

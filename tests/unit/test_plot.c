@@ -13,6 +13,7 @@
 #include "harness.h"
 #include "../../src/ui/grid.h"
 #include "../../src/ui/plot.h"
+#include "../../src/ui/term.h"
 
 static dt_grid g;
 static dt_plot p;
@@ -214,5 +215,11 @@ int main(void) {
 
   dt_plot_free(&p);
   dt_grid_free(&g);
+  /* a colour drawn on the continuum-window shade stays visible: the blue
+   * rest-frame guide on the blue shade of an 8-colour terminal (curses
+   * colour numbers: 4 blue, 7 white) */
+  CHECK(dt_term_window_fg(4, 4) != 4, "blue on the blue shade changes colour");
+  CHECK(dt_term_window_fg(6, 4) == 6, "cyan on the blue shade stays cyan");
+  CHECK(dt_term_window_fg(4, 236) == 4, "blue on a grey shade stays blue");
   return dt_test_done();
 }

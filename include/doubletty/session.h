@@ -1,0 +1,147 @@
+/* The vetting session of one spectrum at a time: the logic behind the
+ * inspector, without a terminal.
+ *
+ * A dt_session holds what a person works on: the spectrum being vetted, its
+ * judgement, the analysis of that judgement, the undo and redo stacks, the
+ * automatic first pass waiting to be recorded and its suggested verdict.
+ * Every change goes the same way: check the action on a copy of the state
+ * (dt_judgement_apply), refit the copy when the model changed, append the
+ * action with the state it led to to the session journal, and only then
+ * adopt it.  Nothing counts as done before the journal has it on disk.
+ *
+ * The session never prints: each call returns a status and leaves a short
+ * message with a tone (msg, tone) for the caller to show.  Its fields are
+ * public for reading (a screen draws from them); only the functions below
+ * change them.  All journal calls of the inspector go through this module
+ * (one function builds the target, one appends). */
+#ifndef DOUBLETTY_SESSION_H
+#define DOUBLETTY_SESSION_H
+#include <stddef.h>
+#include "doubletty/analysis.h"
+#include "doubletty/atomic.h"
+#include "doubletty/digest.h"
+#include "doubletty/journal.h"
+#include "doubletty/judge.h"
+#include "doubletty/spectrum.h"
+
+#define DT_SESSION_UNDO_MAX 200
+#define DT_SESSION_KEY_MAX 8300      /* session name of a target */
+#define DT_SESSION_NEW_B 10.0        /* Doppler b of a new component [km/s] */
+
+/* How a message should be read. */
+typedef enum dt_session_tone {
+  DT_TONE_TEXT = 0, /* information */
+  DT_TONE_GOOD,     /* done and saved */
+  DT_TONE_WARN,     /* refused or worth a look */
+  DT_TONE_BAD       /* an error; the session file may be failing */
+} dt_session_tone;
+
+/* Which parameter of a component (nudges and holds). */
+typedef enum dt_session_param { DT_PARAM_V = 0, DT_PARAM_B, DT_PARAM_LOGN } dt_session_param;
+
+/* One spectrum to vet. */
+typedef struct dt_session_target {
+  const char *path;       /* the file to read */
+  const char *key;        /* its name in the session file */
+  long row;               /* table row (0: not a row) */
+  dt_judgement initial;   /* settings of a first look; resolution and
+                             fwhm_kms both 0: the file header's R */
+} dt_session_target;
+
+typedef struct dt_session {
+  /* fixed */
+  const dt_atomic *atomic;
+  dt_journal *jn;             /* may be NULL: looking only */
+  double nsigma;              /* significance of recorded upper limits */
+  int auto_refit;             /* 1: refit after every model change (default) */
+  long nfits;                 /* fits run so far */
+
+  /* the target */
+  char key[DT_SESSION_KEY_MAX];
+  long row;
+  int loaded;                 /* 1: spec and an are valid */
+  char load_msg[400];         /* why not */
+  dt_spectrum *spec;
+  dt_analysis *an;
+  char sha[DT_SHA256_HEX];
+  int file_changed;           /* the file's digest differs from the record */
+
+  /* the judgement */
+  dt_judgement j;
+  int pending;                /* j is the automatic first pass, not yet recorded */
+  size_t sel;                 /* selected component */
+  int an_ok;                  /* out holds a valid analysis of j ... */
+  int an_fallback;            /* ... or, when 1, of j without its continuum
+                                 windows (they cannot carry the fit yet:
+                                 an_msg says why); nothing of it is recorded */
+  char an_msg[400];           /* why not */
+  dt_analysis_out out;
+  int has_suggest;
+  dt_verdict suggested;
+  char reason[64];
+
+  /* undo / redo: snapshots of j */
+  dt_judgement *undo, *redo;
+  size_t nundo, nredo;
+
+  /* the last message */
+  char msg[512];
+  dt_session_tone tone;
+} dt_session;
+
+/* A session recording into jn (NULL: no judgement is accepted).  NULL when
+ * out of memory. */
+dt_session *dt_session_alloc(const dt_atomic *atomic, dt_journal *jn);
+void dt_session_free(dt_session *ss);
+
+/* Open target t: its recorded state when the journal has one (then a refit
+ * is compared with the recorded fit), otherwise the automatic first pass,
+ * which is recorded with the first change.  Looking writes nothing.
+ * Returns DT_OK, or the reader's error (loaded = 0, load_msg says why; the
+ * target can still take a note or the verdict "unusable"). */
+int dt_session_load(dt_session *ss, const dt_session_target *t);
+
+/* The verdict the journal holds for a target (NONE if none). */
+dt_verdict dt_session_recorded_verdict(const dt_session *ss, const char *key, long row);
+
+/* 1 when judgements can be recorded now; otherwise 0 with msg saying why. */
+int dt_session_writable(dt_session *ss);
+
+/* Check, refit (model changes, when auto_refit), record, adopt.  DT_OK, or
+ * DT_EINVAL (refused: the action does not fit the state) / DT_EIO (not
+ * recorded); msg says what happened. */
+int dt_session_apply(dt_session *ss, const dt_action *a);
+
+/* The actions a person takes, built on dt_session_apply.  All return DT_OK
+ * or an error with msg saying why. */
+int dt_session_add(dt_session *ss, double v);          /* at v [km/s]; selects it */
+int dt_session_remove(dt_session *ss);                 /* the selected one */
+int dt_session_select(dt_session *ss, int step);       /* +1 next, -1 previous */
+/* Move parameter p of the selected component by d (km/s, km/s or dex) and
+ * hold it (it stays where it was put during refits until released). */
+int dt_session_nudge(dt_session *ss, dt_session_param p, double d);
+int dt_session_hold(dt_session *ss, dt_session_param p);  /* hold or release */
+int dt_session_tie(dt_session *ss);
+int dt_session_order(dt_session *ss, int step);
+int dt_session_window_add(dt_session *ss, double lo, double hi);  /* [Angstrom] */
+int dt_session_window_remove(dt_session *ss, double lambda);      /* the one holding lambda */
+int dt_session_refit(dt_session *ss);
+int dt_session_autofit(dt_session *ss);                /* replace by the first pass */
+int dt_session_switch_doublet(dt_session *ss);         /* next doublet the data cover */
+int dt_session_undo(dt_session *ss);
+int dt_session_redo(dt_session *ss);
+int dt_session_verdict(dt_session *ss, dt_verdict v);
+int dt_session_note(dt_session *ss, const char *text);
+
+/* Set the message (for callers that speak through the session's line). */
+void dt_session_say(dt_session *ss, dt_session_tone tone, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 3, 4)))
+#endif
+    ;
+
+/* 1 when parameter p of component k sits at a bound of the fit (within a
+ * thousandth of the range): its error is then meaningless. */
+int dt_session_at_bound(const dt_session *ss, size_t k, dt_session_param p);
+
+#endif

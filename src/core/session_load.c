@@ -1,0 +1,138 @@
+/* Opening a target of the vetting session (session.h): read the spectrum,
+ * resume its recorded state (checking that a refit reproduces the recorded
+ * fit), or run the automatic first pass on a spectrum seen for the first
+ * time.  The first pass is shown at once and becomes part of the record
+ * with the first change or verdict; merely looking writes nothing. */
+#include <stdio.h>
+#include <string.h>
+
+#include "doubletty/autofit.h"
+#include "session_priv.h"
+
+void dt_session_suggest(dt_session *ss, const dt_autofit_out *af) {
+  ss->has_suggest = 1;
+  ss->suggested = af->suggested;
+  snprintf(ss->reason, sizeof ss->reason, "%s", af->reason);
+}
+
+void dt_session_unload(dt_session *ss) {
+  dt_analysis_free(ss->an);
+  dt_spectrum_free(ss->spec);
+  ss->an = NULL;
+  ss->spec = NULL;
+  ss->loaded = 0;
+}
+
+dt_verdict dt_session_recorded_verdict(const dt_session *ss, const char *key, long row) {
+  const dt_journal_entry *en = ss->jn ? dt_journal_lookup(ss->jn, key, 0, row) : NULL;
+  return en ? en->state.verdict : DT_VERDICT_NONE;
+}
+
+static void reset(dt_session *ss, const dt_session_target *t) {
+  dt_session_unload(ss);
+  snprintf(ss->key, sizeof ss->key, "%s", t->key);
+  ss->row = t->row;
+  ss->nundo = ss->nredo = 0;
+  ss->sel = 0;
+  ss->pending = 0;
+  ss->an_ok = 0;
+  ss->an_msg[0] = '\0';
+  ss->has_suggest = 0;
+  ss->reason[0] = '\0';
+  ss->file_changed = 0;
+  ss->sha[0] = '\0';
+  ss->load_msg[0] = '\0';
+  ss->msg[0] = '\0';
+  ss->tone = DT_TONE_TEXT;
+}
+
+static int read_spectrum(dt_session *ss, const dt_session_target *t) {
+  dt_err e;
+  dt_err_clear(&e);
+  dt_read_opts ro;
+  memset(&ro, 0, sizeof ro);
+  ro.row = t->row;
+  int rc = dt_spectrum_read(t->path, &ro, &ss->spec, &e);
+  if (rc == DT_OK) {
+    ss->an = dt_analysis_alloc(ss->spec, ss->atomic);
+    if (!ss->an) {
+      dt_spectrum_free(ss->spec);
+      ss->spec = NULL;
+      dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
+      rc = DT_ENOMEM;
+    }
+  }
+  if (rc != DT_OK)
+    snprintf(ss->load_msg, sizeof ss->load_msg, "%s%s%s%s%s", t->path, e.where[0] ? ": " : "", e.where, ": ",
+             e.what[0] ? e.what : dt_status_str(rc));
+  return rc;
+}
+
+/* The recorded state, with a refit checked against the recorded fit. */
+static void resume(dt_session *ss, const dt_journal_entry *en) {
+  ss->j = en->state;
+  ss->file_changed = ss->sha[0] && dt_journal_file_changed(en, ss->sha);
+  if (en->has_meas && en->meas.suggested != DT_VERDICT_NONE) {
+    ss->has_suggest = 1;
+    ss->suggested = en->meas.suggested;
+  }
+  if (!ss->has_suggest) {
+    dt_judgement scratch = ss->j;
+    dt_autofit_out af;
+    if (dt_autofit_run(ss->an, &scratch, NULL, &af, NULL) == DT_OK || af.suggested != DT_VERDICT_NONE)
+      dt_session_suggest(ss, &af);
+  }
+  char why[160] = "";
+  if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
+    dt_session_analyse_state(ss, &ss->j, 1);
+    if (ss->an_ok && !dt_journal_check_refit(&ss->j.fit, &ss->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
+      dt_journal_set_flag(ss->jn, ss->key, 0, ss->row, DT_JFLAG_REFIT_MISMATCH, 1);
+      dt_session_say(ss, DT_TONE_WARN, "a refit differs from the recorded fit: %s", why);
+    }
+  }
+  dt_session_analyse_state(ss, &ss->j, 0);
+  if (ss->file_changed)
+    dt_session_say(ss, DT_TONE_WARN, "the file has changed since it was judged (SHA-256 differs from the record)");
+  else if (!why[0])
+    dt_session_say(ss, DT_TONE_TEXT, "resumed from the session: %ld change%s recorded", en->nchanges,
+                   en->nchanges == 1 ? "" : "s");
+}
+
+int dt_session_load(dt_session *ss, const dt_session_target *t) {
+  reset(ss, t);
+  const dt_journal_entry *en = ss->jn ? dt_journal_lookup(ss->jn, ss->key, 0, ss->row) : NULL;
+  int rc = read_spectrum(ss, t);
+  if (rc != DT_OK) {
+    ss->j = en ? en->state : t->initial;
+    dt_session_say(ss, DT_TONE_BAD, "cannot read %s", ss->load_msg);
+    return rc;
+  }
+  ss->loaded = 1;
+  dt_err e;
+  if (dt_digest_file(t->path, ss->sha, &e) != DT_OK) ss->sha[0] = '\0';
+  if (en) {
+    resume(ss, en);
+  } else {
+    /* first look: the automatic first pass, recorded at the first change */
+    ss->j = t->initial;
+    if (!(ss->j.resolution > 0) && !(ss->j.fwhm_kms > 0) && ss->spec->resolution > 0) {
+      ss->j.resolution = ss->spec->resolution;
+      ss->j.fwhm_kms = 0;
+    }
+    dt_judgement trial = ss->j;
+    dt_autofit_out af;
+    dt_err_clear(&e);
+    int arc = dt_autofit_run(ss->an, &trial, NULL, &af, &e);
+    if (arc == DT_OK || arc == DT_ENOCONV) {
+      ss->j = trial;
+      dt_session_suggest(ss, &af);
+    }
+    ss->pending = 1;
+    dt_session_analyse_state(ss, &ss->j, 0);
+    if (!ss->j.resolution && !ss->j.fwhm_kms)
+      dt_session_say(ss, DT_TONE_WARN, "no resolution known (file header, list R=/fwhm= or --resolution): "
+                                       "fitting without instrumental broadening");
+  }
+  if (!ss->an_ok && ss->an_msg[0]) dt_session_say(ss, DT_TONE_BAD, "%s", ss->an_msg);
+  return DT_OK;
+}

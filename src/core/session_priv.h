@@ -1,0 +1,17 @@
+/* Shared by session.c and session_load.c; not part of the public API. */
+#ifndef DT_SESSION_PRIV_H
+#define DT_SESSION_PRIV_H
+#include "doubletty/autofit.h"
+#include "doubletty/session.h"
+
+/* Analyse state j into ss->out (fit: refit its components; otherwise
+ * evaluate them as they are). */
+void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit);
+/* Take the first pass' suggestion. */
+void dt_session_suggest(dt_session *ss, const dt_autofit_out *af);
+/* Free the spectrum and its analysis. */
+void dt_session_unload(dt_session *ss);
+/* The first pass for base, recorded as action a (NULL: an autofit record). */
+int dt_session_autofit_to(dt_session *ss, const dt_judgement *base, const dt_action *a, const char *why);
+
+#endif
