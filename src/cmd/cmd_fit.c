@@ -14,6 +14,7 @@
  * accounts for every input).  Settings on the command line override those
  * of a target list; without either, R comes from the file's header. */
 #include <errno.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -40,6 +41,11 @@ static const char *const COLUMNS[] = {
     "logN_limit", "suggested", "reason"};
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
+/* Below this resolving power the line-spread function (c/R > 3000 km/s) is
+ * wider than the doublet's separation a thousandfold: a fit returns its
+ * parameters at their bounds, so such an R is refused as a mistake. */
+#define FIT_MIN_R 100
+
 typedef enum { SRC_FILE, SRC_LIST, SRC_FILES_FROM } src_kind;
 typedef struct {
   src_kind kind;
@@ -60,6 +66,9 @@ typedef struct {
   long row;                     /* --row: only this row of tables */
   long shard_k, shard_n;
   const char *out_path;
+  const char *atomic_file;
+  int force;                    /* replace an existing output file */
+  int air;                      /* text spectra give air wavelengths */
 } config;
 
 typedef struct {
@@ -528,20 +537,145 @@ static int parse_seeds(const char *text, config *c) {
   return 0;
 }
 
-/* Option value: "--opt=value" or the next argument. */
-static const char *value(int argc, char **argv, int *i, const char *name) {
-  size_t n = strlen(name);
-  if (argv[*i][n] == '=') return argv[*i] + n + 1;
-  if (*i + 1 >= argc) {
-    cli_errorf("%s needs a value", name);
-    return NULL;
+enum {
+  O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
+  O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
+  O_FORCE, O_AIR
+};
+static const struct option LONGOPTS[] = {
+    {"help", no_argument, NULL, 'h'},
+    {"doublet", required_argument, NULL, O_DOUBLET},
+    {"resolution", required_argument, NULL, O_RES},
+    {"fwhm", required_argument, NULL, O_FWHM},
+    {"vsys", required_argument, NULL, O_VSYS},
+    {"window", required_argument, NULL, O_WINDOW},
+    {"ncomp", required_argument, NULL, O_NCOMP},
+    {"seed-v", required_argument, NULL, O_SEEDV},
+    {"continuum-order", required_argument, NULL, O_CORDER},
+    {"joint-continuum", required_argument, NULL, O_JOINT},
+    {"limit-sigma", required_argument, NULL, O_LIMSIG},
+    {"atomic", required_argument, NULL, O_ATOMIC},
+    {"row", required_argument, NULL, O_ROW},
+    {"wave-col", required_argument, NULL, O_WCOL},
+    {"flux-col", required_argument, NULL, O_FCOL},
+    {"err-col", required_argument, NULL, O_ECOL},
+    {"mask-col", required_argument, NULL, O_MCOL},
+    {"list", required_argument, NULL, O_LIST},
+    {"files-from", required_argument, NULL, O_FROM},
+    {"shard", required_argument, NULL, O_SHARD},
+    {"output", required_argument, NULL, 'o'},
+    {"force", no_argument, NULL, O_FORCE},
+    {"air", no_argument, NULL, O_AIR},
+    {NULL, 0, NULL, 0}};
+
+/* A positive finite option number into *out; 1 after a message otherwise. */
+static int positive(const char *opt, const char *v, const char *what, double *out) {
+  double x;
+  if (cli_parse_double(opt, v, &x)) return 1;
+  if (!(x > 0) || !isfinite(x)) {
+    cli_errorf("%s: %s must be positive (got %s)", opt, what, v);
+    return 1;
   }
-  return argv[++*i];
+  *out = x;
+  return 0;
 }
 
-static int is_opt(const char *arg, const char *name) {
-  size_t n = strlen(name);
-  return !strncmp(arg, name, n) && (arg[n] == '\0' || arg[n] == '=');
+/* A whole option number in [lo, hi] into *out; 1 after a message otherwise. */
+static int ranged(const char *opt, const char *v, long lo, long hi, long *out) {
+  if (cli_parse_long(opt, v, out)) return 1;
+  if (*out < lo || *out > hi) {
+    cli_errorf("%s: %ld is outside %ld..%ld", opt, *out, lo, hi);
+    return 1;
+  }
+  return 0;
+}
+
+/* One option of getopt_long: 0 done, 1 bad value (message printed). */
+static int fit_option(int opt, const char *v, config *c, source *src, size_t *nsrc,
+                      int *only_files) {
+  long l;
+  switch (opt) {
+  case O_DOUBLET: c->doublet = v; return 0;
+  case O_RES:
+    if (positive("--resolution", v, "R", &c->R)) return 1;
+    if (c->R < FIT_MIN_R) {
+      cli_errorf("--resolution: R = %s is below %g: a resolving power that low smears a "
+                 "doublet beyond fitting (did you mean a FWHM? use --fwhm KMS)",
+                 v, (double)FIT_MIN_R);
+      return 1;
+    }
+    c->have_R = 1;
+    return 0;
+  case O_FWHM:
+    c->have_fwhm = 1;
+    return positive("--fwhm", v, "the FWHM in km/s", &c->fwhm);
+  case O_VSYS:
+    if (cli_parse_double("--vsys", v, &c->vsys)) return 1;
+    if (!isfinite(c->vsys) || c->vsys <= -DT_C_KMS) {
+      cli_errorf("--vsys: %s km/s is not a velocity", v);
+      return 1;
+    }
+    c->have_vsys = 1;
+    return 0;
+  case O_WINDOW:
+    c->have_window = 1;
+    return parse_window(v, &c->vlo, &c->vhi);
+  case O_NCOMP:
+    if (ranged("--ncomp", v, 0, DT_MAX_COMP, &l)) return 1;
+    c->ncomp = (int)l;
+    return 0;
+  case O_SEEDV: return parse_seeds(v, c);
+  case O_CORDER:
+    if (ranged("--continuum-order", v, -1, DT_MAX_CONT - 1, &l)) return 1;
+    c->cont_order = (int)l;
+    c->have_order = 1;
+    return 0;
+  case O_JOINT:
+    if (ranged("--joint-continuum", v, 0, DT_MAX_CONT, &l)) return 1;
+    c->joint_cont = (int)l;
+    return 0;
+  case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
+  case O_ATOMIC: c->atomic_file = v; return 0;
+  case O_ROW:
+    if (cli_parse_long("--row", v, &l)) return 1;
+    if (l < 1) {
+      cli_errorf("--row: rows are numbered from 1 (got %ld)", l);
+      return 1;
+    }
+    c->row = l;
+    return 0;
+  case O_WCOL: c->ropts.wave_col = v; return 0;
+  case O_FCOL: c->ropts.flux_col = v; return 0;
+  case O_ECOL: c->ropts.err_col = v; return 0;
+  case O_MCOL: c->ropts.mask_col = v; return 0;
+  case O_LIST:
+  case O_FROM:
+    src[(*nsrc)++] = (source){opt == O_LIST ? SRC_LIST : SRC_FILES_FROM, v};
+    *only_files = 0;
+    return 0;
+  case O_SHARD: return parse_shard(v, &c->shard_k, &c->shard_n);
+  case 'o': c->out_path = v; return 0;
+  case O_FORCE: c->force = 1; return 0;
+  case O_AIR: c->air = 1; return 0;
+  }
+  return 1;
+}
+
+/* Options and sources: 0 to run, else the exit status (0 after --help is -1). */
+static int parse_args(int argc, char **argv, config *c, source *src, size_t *nsrc,
+                      int *only_files) {
+  cli_getopt_reset();
+  int opt;
+  while ((opt = getopt_long(argc, argv, ":ho:", LONGOPTS, NULL)) != -1) {
+    if (opt == 'h') {
+      usage(stdout);
+      return -1;
+    }
+    if (opt == '?' || opt == ':') return cli_opt_error("fit", opt, argv);
+    if (fit_option(opt, optarg, c, src, nsrc, only_files)) return 2;
+  }
+  for (int i = optind; i < argc; i++) src[(*nsrc)++] = (source){SRC_FILE, argv[i]};
+  return 0;
 }
 
 int cmd_fit(int argc, char **argv) {
@@ -549,7 +683,6 @@ int cmd_fit(int argc, char **argv) {
   memset(&c, 0, sizeof c);
   c.shard_n = 1;
   c.limit_nsigma = 3.0;
-  const char *atomic_file = NULL;
   source *src = calloc((size_t)argc + 1, sizeof *src);
   size_t nsrc = 0;
   int rc = 2;
@@ -560,134 +693,10 @@ int cmd_fit(int argc, char **argv) {
     return 2;
   }
   int only_files = 1;
-  for (int i = 1; i < argc; i++) {
-    const char *a = argv[i], *v = NULL;
-    double x;
-    long l;
-#define VAL(name)                                  \
-  do {                                             \
-    if (!(v = value(argc, argv, &i, name))) goto done; \
-  } while (0)
-    if (!strcmp(a, "-h") || !strcmp(a, "--help")) {
-      usage(stdout);
-      rc = 0;
-      goto done;
-    } else if (is_opt(a, "--doublet")) {
-      VAL("--doublet");
-      c.doublet = v;
-    } else if (is_opt(a, "--resolution")) {
-      VAL("--resolution");
-      if (cli_parse_double("--resolution", v, &x)) goto done;
-      if (!(x > 0) || !isfinite(x)) {
-        cli_errorf("--resolution: R must be positive (got %s)", v);
-        goto done;
-      }
-      c.R = x;
-      c.have_R = 1;
-    } else if (is_opt(a, "--fwhm")) {
-      VAL("--fwhm");
-      if (cli_parse_double("--fwhm", v, &x)) goto done;
-      if (!(x > 0) || !isfinite(x)) {
-        cli_errorf("--fwhm: the FWHM must be positive (got %s km/s)", v);
-        goto done;
-      }
-      c.fwhm = x;
-      c.have_fwhm = 1;
-    } else if (is_opt(a, "--vsys")) {
-      VAL("--vsys");
-      if (cli_parse_double("--vsys", v, &x)) goto done;
-      if (!isfinite(x) || x <= -DT_C_KMS) {
-        cli_errorf("--vsys: %s km/s is not a velocity", v);
-        goto done;
-      }
-      c.vsys = x;
-      c.have_vsys = 1;
-    } else if (is_opt(a, "--window")) {
-      VAL("--window");
-      if (parse_window(v, &c.vlo, &c.vhi)) goto done;
-      c.have_window = 1;
-    } else if (is_opt(a, "--ncomp")) {
-      VAL("--ncomp");
-      if (cli_parse_long("--ncomp", v, &l)) goto done;
-      if (l < 0 || l > DT_MAX_COMP) {
-        cli_errorf("--ncomp: %ld is outside 0..%d", l, DT_MAX_COMP);
-        goto done;
-      }
-      c.ncomp = (int)l;
-    } else if (is_opt(a, "--seed-v")) {
-      VAL("--seed-v");
-      if (parse_seeds(v, &c)) goto done;
-    } else if (is_opt(a, "--continuum-order")) {
-      VAL("--continuum-order");
-      if (cli_parse_long("--continuum-order", v, &l)) goto done;
-      if (l < -1 || l > DT_MAX_CONT - 1) {
-        cli_errorf("--continuum-order: %ld is outside -1..%d", l, DT_MAX_CONT - 1);
-        goto done;
-      }
-      c.cont_order = (int)l;
-      c.have_order = 1;
-    } else if (is_opt(a, "--joint-continuum")) {
-      VAL("--joint-continuum");
-      if (cli_parse_long("--joint-continuum", v, &l)) goto done;
-      if (l < 0 || l > DT_MAX_CONT) {
-        cli_errorf("--joint-continuum: %ld is outside 0..%d", l, DT_MAX_CONT);
-        goto done;
-      }
-      c.joint_cont = (int)l;
-    } else if (is_opt(a, "--limit-sigma")) {
-      VAL("--limit-sigma");
-      if (cli_parse_double("--limit-sigma", v, &x)) goto done;
-      if (!(x > 0) || !isfinite(x)) {
-        cli_errorf("--limit-sigma: must be positive (got %s)", v);
-        goto done;
-      }
-      c.limit_nsigma = x;
-    } else if (is_opt(a, "--atomic")) {
-      VAL("--atomic");
-      atomic_file = v;
-    } else if (is_opt(a, "--row")) {
-      VAL("--row");
-      if (cli_parse_long("--row", v, &l)) goto done;
-      if (l < 1) {
-        cli_errorf("--row: rows are numbered from 1 (got %ld)", l);
-        goto done;
-      }
-      c.row = l;
-    } else if (is_opt(a, "--wave-col")) {
-      VAL("--wave-col");
-      c.ropts.wave_col = v;
-    } else if (is_opt(a, "--flux-col")) {
-      VAL("--flux-col");
-      c.ropts.flux_col = v;
-    } else if (is_opt(a, "--err-col")) {
-      VAL("--err-col");
-      c.ropts.err_col = v;
-    } else if (is_opt(a, "--mask-col")) {
-      VAL("--mask-col");
-      c.ropts.mask_col = v;
-    } else if (is_opt(a, "--list")) {
-      VAL("--list");
-      src[nsrc++] = (source){SRC_LIST, v};
-      only_files = 0;
-    } else if (is_opt(a, "--files-from")) {
-      VAL("--files-from");
-      src[nsrc++] = (source){SRC_FILES_FROM, v};
-      only_files = 0;
-    } else if (is_opt(a, "--shard")) {
-      VAL("--shard");
-      if (parse_shard(v, &c.shard_k, &c.shard_n)) goto done;
-    } else if (!strcmp(a, "-o") || is_opt(a, "--output")) {
-      VAL(a[1] == 'o' ? "-o" : "--output");
-      c.out_path = v;
-    } else if (!strcmp(a, "--")) {
-      for (i++; i < argc; i++) src[nsrc++] = (source){SRC_FILE, argv[i]};
-    } else if (a[0] == '-' && a[1] != '\0') {
-      cli_errorf("fit: unknown option '%s' (see doubletty fit --help)", a);
-      goto done;
-    } else {
-      src[nsrc++] = (source){SRC_FILE, a};
-    }
-#undef VAL
+  int prc = parse_args(argc, argv, &c, src, &nsrc, &only_files);
+  if (prc) {
+    rc = prc < 0 ? 0 : prc;
+    goto done;
   }
   if (nsrc == 0) {
     cli_errorf("fit: no spectrum given");
@@ -713,7 +722,7 @@ int cmd_fit(int argc, char **argv) {
         goto done;
       }
   }
-  atomic = cli_load_atomic(atomic_file);
+  atomic = cli_load_atomic(c.atomic_file);
   if (!atomic) goto done;
   if (c.doublet && !dt_atomic_find(atomic, c.doublet)) {
     char known[256] = "";
