@@ -20,15 +20,19 @@
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "cli.h"
 #include "commands.h"
+#include "outfile.h"
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
+#include "doubletty/csv.h"
 #include "doubletty/autofit.h"
 #include "doubletty/judge.h"
 #include "doubletty/model.h"
+#include "doubletty/num.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/targets.h"
 
@@ -72,7 +76,9 @@ typedef struct {
 } config;
 
 typedef struct {
-  FILE *out;
+  dt_csv csv;                   /* the output table */
+  const cli_out *outf;          /* the output file, to refuse it as an input */
+  int clash;                    /* an input is the output file: stop */
   const dt_atomic *atomic;
   const config *cfg;
   long index;                   /* of the current input */
@@ -109,31 +115,6 @@ static void usage(FILE *f) {
           "Command-line settings override a list's.  Summary on standard error;\n"
           "exit status 1 when any spectrum failed, 2 for bad options.\n");
 }
-
-/* ---- CSV output ------------------------------------------------------ */
-
-/* A text field: quoted when it holds a comma, quote or line break; line
- * breaks become spaces so every record stays on one line. */
-static void csv_text(FILE *f, const char *s) {
-  if (!s) s = "";
-  if (!strpbrk(s, ",\"\n\r")) {
-    fputs(s, f);
-    return;
-  }
-  fputc('"', f);
-  for (; *s; s++) {
-    if (*s == '"') fputs("\"\"", f);
-    else if (*s == '\n' || *s == '\r') fputc(' ', f);
-    else fputc(*s, f);
-  }
-  fputc('"', f);
-}
-
-static void csv_num(FILE *f, double x, int prec) {
-  if (isfinite(x)) fprintf(f, "%.*f", prec, x);
-}
-
-static void csv_sep(FILE *f) { fputc(',', f); }
 
 /* ---- messages and progress ------------------------------------------- */
 
@@ -191,23 +172,18 @@ static void report(run *r, const char *file, long row, const dt_err *e) {
 
 static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                      const char *doublet, double vsys, const char *status) {
-  FILE *f = r->out;
-  fprintf(f, "%ld,", r->index);
-  csv_text(f, t->path);
-  csv_sep(f);
-  csv_text(f, t->name);
-  csv_sep(f);
-  if (s && s->hdu > 0) fprintf(f, "%d", s->hdu);
-  csv_sep(f);
-  if (row > 0) fprintf(f, "%ld", row);
-  csv_sep(f);
-  csv_text(f, s ? s->object : "");
-  csv_sep(f);
-  csv_text(f, doublet);
-  csv_sep(f);
-  csv_num(f, vsys, 3);
-  csv_sep(f);
-  fputs(status, f);
+  dt_csv *w = &r->csv;
+  dt_csv_long(w, r->index);
+  dt_csv_text(w, t->path);
+  dt_csv_text(w, t->name);
+  if (s && s->hdu > 0) dt_csv_long(w, s->hdu);
+  else dt_csv_empty(w);
+  if (row > 0) dt_csv_long(w, row);
+  else dt_csv_empty(w);
+  dt_csv_text(w, s ? s->object : "");
+  dt_csv_text(w, doublet);
+  dt_csv_fixed(w, vsys, 3);
+  dt_csv_text(w, status);
 }
 
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
@@ -217,71 +193,69 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 9; k + 1 < NCOLUMNS; k++) csv_sep(r->out);
-  csv_sep(r->out);
-  csv_text(r->out, msg);
-  fputc('\n', r->out);
+  for (size_t k = 9; k + 1 < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  dt_csv_text(&r->csv, msg);
+  dt_csv_end(&r->csv);
+}
+
+/* The reason column: the first pass's words, and what a reader of the
+ * table must know about the fit (fewer components than asked for,
+ * parameters pinned at the limits of their ranges). */
+static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_out *o,
+                          char *buf, size_t n) {
+  size_t len = (size_t)snprintf(buf, n, "%s", o->reason);
+  const config *c = r->cfg;
+  if (c->ncomp > 0 && j->ncomp != (size_t)c->ncomp && len < n)
+    len += (size_t)snprintf(buf + len, n - len, "%sasked for %d components, fitted %zu",
+                            len ? "; " : "", c->ncomp, j->ncomp);
+  int bound = 0;
+  for (size_t k = 0; k < j->ncomp; k++) bound |= o->an.fit_info.at_bound[k] != 0;
+  if (bound && len < n)
+    snprintf(buf + len, n - len, "%sparameters at the limit of their range", len ? "; " : "");
 }
 
 static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const dt_judgement *j, const dt_autofit_out *o, int st) {
   const dt_analysis_out *an = &o->an;
   const dt_fit_result *fr = &an->fit;
+  dt_csv *w = &r->csv;
+  char reason[256];
+  honest_reason(r, j, o, reason, sizeof reason);
   size_t nrows = j->ncomp ? j->ncomp : 1;
   for (size_t k = 0; k < nrows; k++) {
-    FILE *f = r->out;
     row_head(r, t, s, row, j->doublet, j->vsys, st == DT_OK ? "ok" : "not-converged");
-    fprintf(f, ",%zu,", j->ncomp);
+    dt_csv_long(w, (long)j->ncomp);
     if (j->ncomp) {
-      fprintf(f, "%zu,", k + 1);
-      csv_num(f, fr->comp[k].v, 3);
-      csv_sep(f);
-      csv_num(f, fr->err[k].v, 3);
-      csv_sep(f);
-      csv_num(f, fr->comp[k].b, 3);
-      csv_sep(f);
-      csv_num(f, fr->err[k].b, 3);
-      csv_sep(f);
-      csv_num(f, fr->comp[k].logN, 4);
-      csv_sep(f);
-      csv_num(f, fr->err[k].logN, 4);
-      csv_sep(f);
+      dt_csv_long(w, (long)k + 1);
+      dt_csv_fixed(w, fr->comp[k].v, 3);
+      dt_csv_fixed(w, fr->err[k].v, 3);
+      dt_csv_fixed(w, fr->comp[k].b, 3);
+      dt_csv_fixed(w, fr->err[k].b, 3);
+      dt_csv_fixed(w, fr->comp[k].logN, 4);
+      dt_csv_fixed(w, fr->err[k].logN, 4);
     } else {
-      fputs(",,,,,,,", f);
+      for (int e = 0; e < 7; e++) dt_csv_empty(w);
     }
-    csv_num(f, fr->chi2_red, 4);
-    csv_sep(f);
-    fprintf(f, "%ld,", fr->dof);
-    csv_num(f, fr->bic, 3);
-    csv_sep(f);
+    dt_csv_fixed(w, fr->chi2_red, 4);
+    dt_csv_long(w, fr->dof);
+    dt_csv_fixed(w, fr->bic, 3);
     const dt_analysis_line *a = &an->line[0], *b = &an->line[1];
-    csv_num(f, 1e3 * a->W, 2);
-    csv_sep(f);
-    csv_num(f, 1e3 * a->W_err, 2);
-    csv_sep(f);
-    csv_num(f, a->W_sig, 2);
-    csv_sep(f);
-    csv_num(f, a->logN_aod, 4);
-    csv_sep(f);
-    csv_num(f, a->logN_aod_err, 4);
-    csv_sep(f);
-    csv_num(f, 1e3 * b->W, 2);
-    csv_sep(f);
-    csv_num(f, 1e3 * b->W_err, 2);
-    csv_sep(f);
-    csv_num(f, b->logN_aod, 4);
-    csv_sep(f);
-    csv_num(f, b->logN_aod_err, 4);
-    csv_sep(f);
-    fputs(an->saturated ? "1" : "0", f);
-    csv_sep(f);
+    dt_csv_fixed(w, 1e3 * a->W, 2);
+    dt_csv_fixed(w, 1e3 * a->W_err, 2);
+    dt_csv_fixed(w, a->W_sig, 2);
+    dt_csv_fixed(w, a->logN_aod, 4);
+    dt_csv_fixed(w, a->logN_aod_err, 4);
+    dt_csv_fixed(w, 1e3 * b->W, 2);
+    dt_csv_fixed(w, 1e3 * b->W_err, 2);
+    dt_csv_fixed(w, b->logN_aod, 4);
+    dt_csv_fixed(w, b->logN_aod_err, 4);
+    dt_csv_text(w, an->saturated ? "1" : "0");
     /* the limit is given unless the first pass calls it a detection */
-    if (o->suggested != DT_VERDICT_DETECTED) csv_num(f, a->logN_limit, 4);
-    csv_sep(f);
-    fputs(dt_verdict_name(o->suggested), f);
-    csv_sep(f);
-    csv_text(f, o->reason);
-    fputc('\n', f);
+    if (o->suggested != DT_VERDICT_DETECTED) dt_csv_fixed(w, a->logN_limit, 4);
+    else dt_csv_empty(w);
+    dt_csv_text(w, dt_verdict_name(o->suggested));
+    dt_csv_text(w, reason);
+    dt_csv_end(w);
   }
 }
 
@@ -405,6 +379,7 @@ static void fit_input(run *r, const dt_target_spec *t) {
 
 /* Next input of the run: counts it, and fits it when it is in our shard. */
 static void take(run *r, const dt_target_spec *t) {
+  if (r->clash || (r->clash = cli_out_is_input(r->outf, t->path))) return;
   r->index = r->ninputs++;
   if (r->index % r->cfg->shard_n == r->cfg->shard_k) fit_input(r, t);
   bar_draw(r);
@@ -426,6 +401,12 @@ static void take_bad(run *r, const char *file, const dt_err *e) {
 static void run_list(run *r, const char *path) {
   dt_targets *l = NULL;
   dt_err e;
+  struct stat st;
+  if (stat(path, &st) == 0 && S_ISDIR(st.st_mode)) {
+    dt_err_set(&e, DT_EIO, NULL, "is a directory, not a target list");
+    take_bad(r, path, &e);
+    return;
+  }
   if (dt_targets_open(path, &l, &e) != DT_OK) {
     take_bad(r, path, &e);
     return;
@@ -444,7 +425,7 @@ static void run_list(run *r, const char *path) {
       take_bad(r, path, &e);
       continue;
     }
-    if (!got) break;
+    if (!got || r->clash) break;
     take(r, t);
   }
   free(t);
@@ -463,7 +444,7 @@ static void run_files_from(run *r, const char *path) {
   char *line = NULL;
   size_t cap = 0;
   ssize_t len;
-  while (t && (len = getline(&line, &cap, f)) != -1) {
+  while (t && !r->clash && (len = getline(&line, &cap, f)) != -1) {
     while (len > 0 && (line[len - 1] == '\n' || line[len - 1] == '\r')) line[--len] = '\0';
     char *p = line;
     while (*p == ' ' || *p == '\t') p++;
@@ -535,6 +516,59 @@ static int parse_seeds(const char *text, config *c) {
     return 1;
   }
   return 0;
+}
+
+/* The run's settings as "# key=value" lines above the header: what was
+ * asked for, so that `merge` can refuse shards run differently.  Every
+ * setting is written (empty when not given), in a fixed order. */
+static void write_settings(dt_csv *w, const config *c) {
+  char buf[1024];
+  dt_csv_comment(w, "program", "doubletty fit " DT_VERSION);
+  snprintf(buf, sizeof buf, "%ld/%ld", c->shard_k, c->shard_n);
+  dt_csv_comment(w, "shard", buf);
+  dt_csv_comment(w, "doublet", c->doublet ? c->doublet : "");
+  buf[0] = '\0';
+  if (c->have_R) dt_num_format(buf, sizeof buf, c->R);
+  dt_csv_comment(w, "resolution", buf);
+  buf[0] = '\0';
+  if (c->have_fwhm) dt_num_format(buf, sizeof buf, c->fwhm);
+  dt_csv_comment(w, "fwhm", buf);
+  buf[0] = '\0';
+  if (c->have_vsys) dt_num_format(buf, sizeof buf, c->vsys);
+  dt_csv_comment(w, "vsys", buf);
+  buf[0] = '\0';
+  if (c->have_window) {
+    char lo[40], hi[40];
+    dt_num_format(lo, sizeof lo, c->vlo);
+    dt_num_format(hi, sizeof hi, c->vhi);
+    snprintf(buf, sizeof buf, "%s:%s", lo, hi);
+  }
+  dt_csv_comment(w, "window", buf);
+  snprintf(buf, sizeof buf, "%d", c->ncomp);
+  dt_csv_comment(w, "ncomp", buf);
+  size_t len = 0;
+  buf[0] = '\0';
+  for (size_t k = 0; k < c->nseed && len + 48 < sizeof buf; k++) {
+    if (k) buf[len++] = ',';
+    dt_num_format(buf + len, sizeof buf - len, c->seed_v[k]);
+    len = strlen(buf);
+  }
+  dt_csv_comment(w, "seed-v", buf);
+  buf[0] = '\0';
+  if (c->have_order) snprintf(buf, sizeof buf, "%d", c->cont_order);
+  dt_csv_comment(w, "continuum-order", buf);
+  snprintf(buf, sizeof buf, "%d", c->joint_cont);
+  dt_csv_comment(w, "joint-continuum", buf);
+  dt_num_format(buf, sizeof buf, c->limit_nsigma);
+  dt_csv_comment(w, "limit-sigma", buf);
+  dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
+  snprintf(buf, sizeof buf, "%ld", c->row);
+  dt_csv_comment(w, "row", c->row ? buf : "");
+  snprintf(buf, sizeof buf, "%s:%s:%s:%s", c->ropts.wave_col ? c->ropts.wave_col : "",
+           c->ropts.flux_col ? c->ropts.flux_col : "", c->ropts.err_col ? c->ropts.err_col : "",
+           c->ropts.mask_col ? c->ropts.mask_col : "");
+  dt_csv_comment(w, "columns", buf);
+  dt_csv_comment(w, "air", c->air ? "yes" : "");
 }
 
 enum {
@@ -686,7 +720,6 @@ int cmd_fit(int argc, char **argv) {
   source *src = calloc((size_t)argc + 1, sizeof *src);
   size_t nsrc = 0;
   int rc = 2;
-  FILE *out = NULL;
   dt_atomic *atomic = NULL;
   if (!src) {
     cli_errorf("out of memory");
@@ -734,26 +767,27 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("--doublet: unknown doublet '%s' (known: %s)", c.doublet, known);
     goto done;
   }
-  out = stdout;
-  if (c.out_path && strcmp(c.out_path, "-")) {
-    out = fopen(c.out_path, "w");
-    if (!out) {
-      cli_errorf("%s: cannot write: %s", c.out_path, strerror(errno));
-      out = NULL;
-      goto done;
-    }
+  cli_out of;
+  if ((rc = cli_out_check(&of, "fit", c.out_path, c.force))) goto done;
+  rc = 2;
+  for (size_t k = 0; k < nsrc; k++)
+    if (cli_out_is_input(&of, src[k].arg)) goto done;
+  if (cli_out_open(&of)) {
+    rc = 1;
+    goto done;
   }
-
   run r;
   memset(&r, 0, sizeof r);
-  r.out = out;
+  dt_csv_init(&r.csv, of.f);
+  r.outf = &of;
   r.atomic = atomic;
   r.cfg = &c;
   r.total = only_files ? (long)nsrc : -1;
   r.progress = isatty(STDERR_FILENO);
-  for (size_t k = 0; k < NCOLUMNS; k++) fprintf(out, "%s%s", k ? "," : "", COLUMNS[k]);
-  fputc('\n', out);
-  for (size_t k = 0; k < nsrc; k++) {
+  write_settings(&r.csv, &c);
+  for (size_t k = 0; k < NCOLUMNS; k++) dt_csv_text(&r.csv, COLUMNS[k]);
+  dt_csv_end(&r.csv);
+  for (size_t k = 0; k < nsrc && !r.clash; k++) {
     if (src[k].kind == SRC_FILE) {
       dt_target_spec t;
       dt_target_spec_init(&t, src[k].arg);
@@ -763,17 +797,15 @@ int cmd_fit(int argc, char **argv) {
     } else {
       run_files_from(&r, src[k].arg);
     }
-    fflush(out);
+    fflush(of.f);
   }
   bar_clear(&r);
-  int werr = ferror(out);
-  if (out != stdout) werr |= fclose(out) != 0;
-  else werr |= fflush(out) != 0;
-  out = NULL;
-  if (werr) {
-    cli_errorf("%s: write error", c.out_path ? c.out_path : "standard output");
-    r.failed++;
+  if (r.clash) {
+    cli_out_abort(&of);
+    rc = 2;
+    goto done;
   }
+  if (cli_out_commit(&of)) r.failed++;
   if (r.noconv)
     fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed (%ld fits did not converge)\n",
             r.fitted, r.failed, r.noconv);
@@ -781,7 +813,6 @@ int cmd_fit(int argc, char **argv) {
     fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed\n", r.fitted, r.failed);
   rc = r.failed ? 1 : 0;
 done:
-  if (out && out != stdout) fclose(out);
   dt_atomic_free(atomic);
   free(src);
   return rc;
