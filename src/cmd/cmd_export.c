@@ -15,6 +15,7 @@
  * never replaced without --force, and never when it is the session itself. */
 #include <errno.h>
 #include <fitsio.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -335,32 +336,37 @@ static dt_journal *load_with_digest(const char *session, char sha[DT_SHA256_HEX]
   return NULL;
 }
 
+/* After the output is written: damaged lines of the session make the
+ * export incomplete, and the exit status says so. */
+static int damaged(const char *session, const dt_journal *j) {
+  size_t nw = dt_journal_warning_count(j);
+  if (!nw) return 0;
+  cli_errorf("export: %s: %zu line%s damaged or inconsistent (see above); the export "
+             "holds what could be read",
+             session, nw, nw == 1 ? "" : "s");
+  return 1;
+}
+
 int cmd_export(int argc, char **argv) {
   const char *session = NULL, *out = NULL;
-  int force = 0;
-  for (int i = 1; i < argc; i++) {
-    const char *v;
-    int r;
-    if (!strcmp(argv[i], "-h") || !strcmp(argv[i], "--help")) {
-      usage(stdout);
-      return 0;
+  int force = 0, opt;
+  static const struct option longopts[] = {{"help", no_argument, NULL, 'h'},
+                                           {"output", required_argument, NULL, 'o'},
+                                           {"force", no_argument, NULL, 'f'},
+                                           {NULL, 0, NULL, 0}};
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":ho:", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'h': usage(stdout); return 0;
+    case 'o': out = optarg; break;
+    case 'f': force = 1; break;
+    default: return cli_opt_error("export", opt, argv);
     }
-    if (!strcmp(argv[i], "--force")) {
-      force = 1;
-    } else if ((r = su_opt("export", "-o", argc, argv, &i, &v)) != 0 ||
-               (r = su_opt("export", "--output", argc, argv, &i, &v)) != 0) {
-      if (r < 0) return 2;
-      out = v;
-    } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
-      cli_errorf("export: unknown option '%s'", argv[i]);
-      usage(stderr);
-      return 2;
-    } else if (!session) {
-      session = argv[i];
-    } else {
-      cli_errorf("export: one session file at a time ('%s' is extra)", argv[i]);
-      return 2;
-    }
+  }
+  if (optind < argc) session = argv[optind++];
+  if (optind < argc) {
+    cli_errorf("export: one session file at a time ('%s' is extra)", argv[optind]);
+    return 2;
   }
   if (!session || !out || !*out) {
     if (session && !out) cli_errorf("export: no output file (-o FILE.csv or -o FILE.fits)");
@@ -400,6 +406,7 @@ int cmd_export(int argc, char **argv) {
       cli_errorf("export: cannot write to standard output");
       status = 1;
     }
+    status |= damaged(session, j);
     dt_journal_close(j);
     return status;
   }
@@ -456,6 +463,7 @@ int cmd_export(int argc, char **argv) {
     status = 1;
   }
   free(tmp);
+  if (!status) status = damaged(session, j);
   dt_journal_close(j);
   return status;
 }

@@ -690,7 +690,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case O_SHARD: return parse_shard(v, &c->shard_k, &c->shard_n);
   case 'o': c->out_path = v; return 0;
   case O_FORCE: c->force = 1; return 0;
-  case O_AIR: c->air = 1; return 0;
+  case O_AIR: c->air = 1; return cli_air_unsupported("fit") ? 1 : 0;
   }
   return 1;
 }

@@ -148,7 +148,7 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     o->has_vsys = 1;
     return 0;
   case O_ATOMIC: a->atomic_file = v; return 0;
-  case O_AIR: a->air = 1; return 0;
+  case O_AIR: a->air = 1; return cli_air_unsupported("inspect") ? 1 : 0;
   case O_ASCII: o->ascii = 1; return 0;
   case O_NOCOLOUR: o->colour = 0; return 0;
   case O_REPLAY: o->replay = v; return 0;

@@ -43,15 +43,21 @@ expect_fail "log of a newer format" "future.session: line 1: session format vers
 # damaged sessions: a cut last line, a garbled middle line
 head -c -30 "$S" >"$TMP/cut.session"
 "$DT" log "$TMP/cut.session" >"$TMP/cut.out" 2>"$TMP/cut.err"
-check "log of a cut session still exits 0" test $? -eq 0
+check "log of a cut session exits 1 (the trail is incomplete)" test $? -eq 1
+check "and says how many lines were damaged" grep -q 'cut.session: 1 damaged line skipped' "$TMP/cut.err"
 check "the cut last line is named on stderr" grep -q 'cut.session: line 10: incomplete last line' "$TMP/cut.err"
 check "the records before it are shown (8)" test "$(wc -l <"$TMP/cut.out")" -eq 8
 sed '3s/logN=11.9/logN=11.8/' "$S" >"$TMP/garbled.session"
 "$DT" log "$TMP/garbled.session" >"$TMP/g.out" 2>"$TMP/g.err"
+check "log of a garbled session exits 1" test $? -eq 1
 check "a garbled line is named with its line number" grep -q 'garbled.session: line 3: check sum does not match' "$TMP/g.err"
 check "and the rest is shown (8)" test "$(wc -l <"$TMP/g.out")" -eq 8
 "$DT" export "$TMP/garbled.session" -o "$TMP/garbled.csv" 2>"$TMP/ge.err"
+check "export of a damaged session exits 1" test $? -eq 1
 check "export of a damaged session warns and goes on" grep -q 'line 3' "$TMP/ge.err"
+check "and says how many lines were damaged" grep -q "garbled.session: 2 lines damaged or inconsistent" "$TMP/ge.err"
+"$DT" export "$TMP/garbled.session" -o - >/dev/null 2>"$TMP/ge2.err"
+check "export -o - of a damaged session exits 1 too" test $? -eq 1
 check "the spectrum after the damage is flagged" grep -q 'replay-mismatch' "$TMP/garbled.csv"
 
 # ---- export ----
