@@ -206,7 +206,7 @@ static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_
   size_t len = (size_t)snprintf(buf, n, "%s", o->reason);
   const config *c = r->cfg;
   if (c->ncomp > 0 && j->ncomp != (size_t)c->ncomp && len < n)
-    len += (size_t)snprintf(buf + len, n - len, "%sasked for %d components, fitted %zu",
+    len += (size_t)snprintf(buf + len, n - len, "%sasked for %d components but fitted %zu",
                             len ? "; " : "", c->ncomp, j->ncomp);
   int bound = 0;
   for (size_t k = 0; k < j->ncomp; k++) bound |= o->an.fit_info.at_bound[k] != 0;
@@ -289,6 +289,21 @@ static int check_coverage(const dt_spectrum *s, const dt_doublet *d, double vsys
   return DT_OK;
 }
 
+/* A --window must hold enough pixels to fit a line in; otherwise the core
+ * would report the window as masked, which misleads. */
+#define FIT_MIN_WINDOW_PIX 10
+
+static int check_window(const config *c, const dt_spectrum *s, dt_err *e) {
+  if (!c->have_window) return DT_OK;
+  double pix = dt_spectrum_pixel_kms(s), npix = (c->vhi - c->vlo) / pix;
+  if (pix > 0 && npix < FIT_MIN_WINDOW_PIX)
+    return dt_err_set(e, DT_EINVAL, NULL,
+                      "the velocity window %g:%g km/s spans %.1f pixels of %.1f km/s: too "
+                      "narrow to fit a line (at least %d pixels); widen --window",
+                      c->vlo, c->vhi, npix, pix, FIT_MIN_WINDOW_PIX);
+  return DT_OK;
+}
+
 /* Fit one spectrum (one row of a table, or the only one). */
 static void fit_one(run *r, const dt_target_spec *t, long row) {
   const config *c = r->cfg;
@@ -319,6 +334,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     st = pick_resolution(c, t, s, &j, &e);
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
+  if (st == DT_OK) st = check_window(c, s, &e);
   dt_autofit_out o;
   memset(&o, 0, sizeof o);
   if (st == DT_OK) {

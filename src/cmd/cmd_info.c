@@ -71,7 +71,7 @@ static void print_block(const char *file, const dt_spectrum *s, long nrows, cons
   printf("%sair         %s\n", p,
          s->air ? "converted air to vacuum (IAU, Morton 2000)"
          : !strcmp(s->layout, "text") && !o->air
-             ? "no: assumed vacuum (a text file does not say; --air if it is air)"
+             ? "no: assumed vacuum (a text file does not say)"
              : "no (vacuum in the file)");
   printf("%spixel-size  %.3f km/s\n", p, dt_spectrum_pixel_kms(s));
   printf("%smedian-snr  %.2f\n", p, dt_spectrum_median_snr(s));
