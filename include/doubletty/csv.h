@@ -2,8 +2,9 @@
  *
  * Conventions (the same in every file): fields separated by ',', records
  * ended by "\n" (never "\r\n"); a text field is quoted when it holds a
- * comma, a quote or a line break, quotes doubled, line breaks replaced by
- * spaces so every record is one line; numbers are written in the "C"
+ * comma, a quote or a line break, quotes doubled (RFC 4180), so it reads
+ * back exactly; with one_line set, line breaks become spaces instead, so
+ * every record is one line (tables that line-based tools merge); numbers are written in the "C"
  * locale (dt_num_*) whatever the user's locale, NaN and infinities as an
  * empty field.  Comment lines "# key=value" may precede the header.
  *
@@ -16,6 +17,7 @@
 typedef struct dt_csv {
   FILE *f;
   int nfield;   /* fields written in the current record */
+  int one_line; /* 1: line breaks in text become spaces (default 0) */
 } dt_csv;
 
 void dt_csv_init(dt_csv *w, FILE *f);

@@ -26,7 +26,9 @@
 
 #include "cli.h"
 #include "commands.h"
+#include "doubletty/csv.h"
 #include "doubletty/digest.h"
+#include "doubletty/targets.h"
 #include "doubletty/journal.h"
 #include "session_util.h"
 
@@ -53,10 +55,14 @@ typedef struct column {
   const char *unit; /* FITS TUNITn ("" for none) */
 } column;
 
-/* Standard FITS units (FITS 4.0 section 4.3); "log(cm-2)" is the standard's
+/* log10 N [cm-2] columns: described by TCOMMn instead of a unit. */
+static int is_log(const char *name) { return !strncmp(name, "logN", 4); }
+
+/* Standard FITS units (FITS 4.0 section 4.3); "" is the standard's
  * notation for a common logarithm of a column density. */
 static const column COLS[] = {
-    {"file", C_STR, ""},          {"hdu", C_INT, ""},
+    {"file", C_STR, ""},          {"name", C_STR, ""},
+    {"hdu", C_INT, ""},
     {"row", C_INT, ""},           {"verdict", C_STR, ""},
     {"note", C_STR, ""},          {"judged_by", C_STR, ""},
     {"judged_at", C_STR, ""},     {"last_user", C_STR, ""},
@@ -64,18 +70,18 @@ static const column COLS[] = {
     {"flags", C_STR, ""},         {"sha256", C_STR, ""},
     {"doublet", C_STR, ""},       {"vsys_kms", C_DBL, "km s-1"},
     {"ncomp", C_INT, ""},         {"component", C_INT, ""},
-    {"logN", C_DBL, "log(cm-2)"}, {"logN_err", C_DBL, "log(cm-2)"},
+    {"logN", C_DBL, ""}, {"logN_err", C_DBL, ""},
     {"b_kms", C_DBL, "km s-1"},   {"b_err", C_DBL, "km s-1"},
     {"v_kms", C_DBL, "km s-1"},   {"v_err", C_DBL, "km s-1"},
     {"frozen", C_STR, ""},        {"fit_status", C_STR, ""},
     {"chi2", C_DBL, ""},          {"dof", C_INT, ""},
-    {"chi2_red", C_DBL, ""},      {"W_A", C_DBL, "Angstrom"},
-    {"W_err_A", C_DBL, "Angstrom"}, {"W_lim_A", C_DBL, "Angstrom"},
-    {"logN_aod", C_DBL, "log(cm-2)"}, {"logN_aod_err", C_DBL, "log(cm-2)"},
-    {"logN_limit", C_DBL, "log(cm-2)"}, {"W2_A", C_DBL, "Angstrom"},
-    {"W2_err_A", C_DBL, "Angstrom"}, {"W2_lim_A", C_DBL, "Angstrom"},
-    {"logN_aod2", C_DBL, "log(cm-2)"}, {"logN_aod2_err", C_DBL, "log(cm-2)"},
-    {"logN_limit2", C_DBL, "log(cm-2)"}, {"nsigma", C_DBL, ""},
+    {"chi2_red", C_DBL, ""},      {"W_mA", C_DBL, "10**-3 Angstrom"},
+    {"W_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_lim_mA", C_DBL, "10**-3 Angstrom"},
+    {"logN_aod", C_DBL, ""}, {"logN_aod_err", C_DBL, ""},
+    {"logN_limit", C_DBL, ""}, {"W_weak_mA", C_DBL, "10**-3 Angstrom"},
+    {"W_weak_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_weak_lim_mA", C_DBL, "10**-3 Angstrom"},
+    {"logN_aod_weak", C_DBL, ""}, {"logN_aod_weak_err", C_DBL, ""},
+    {"logN_limit_weak", C_DBL, ""}, {"nsigma", C_DBL, ""},
     {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
 };
 #define NCOL (sizeof COLS / sizeof COLS[0])
@@ -86,8 +92,45 @@ typedef union cell {
   double d;
 } cell;
 
+/* The file of a session target: the recorded name without the "#DOUBLET"
+ * the inspector appends (the doublet has its own column). */
+static const char *target_file(const char *key, char *buf, size_t n) {
+  const char *slash = strrchr(key, '/');
+  const char *hash = strrchr(slash ? slash : key, '#');
+  if (!hash) return key;
+  snprintf(buf, n, "%.*s", (int)(hash - key), key);
+  return buf;
+}
+
+/* The name column: the file's stem (no directory, no extension, no
+ * "[ext]" selector) while the session records no list name. */
+static const char *target_stem(const char *file, char *buf, size_t n) {
+  const char *slash = strrchr(file, '/');
+  snprintf(buf, n, "%s", slash ? slash + 1 : file);
+  char *br = strchr(buf, '[');
+  if (br) *br = '\0';
+  char *dot = strrchr(buf, '.');
+  if (dot && dot != buf) {
+    if (!strcmp(dot, ".gz") || !strcmp(dot, ".fz")) {
+      *dot = '\0';
+      dot = strrchr(buf, '.');
+    }
+    if (dot && dot != buf) *dot = '\0';
+  }
+  return buf;
+}
+
+/* Rows of one spectrum: one per component, or a single row (component 0)
+ * when there is none -- or when the verdict is "not detected": such a
+ * spectrum is a limit, and its first-pass components are no result. */
+static size_t comp_rows(const dt_journal_entry *en) {
+  if (en->state.verdict == DT_VERDICT_NOT_DETECTED) return 0;
+  return en->state.ncomp;
+}
+
 /* The cells of one row: spectrum en, component k (0 = none). */
 static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags, char *frozen) {
+  static char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
   const dt_judgement *s = &en->state;
   const dt_meas_summary *m = &en->meas;
   dt_meas_summary none;
@@ -112,7 +155,8 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags,
   if (!s->has_fit) status[0] = '\0';
   else snprintf(status, sizeof status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
   size_t i = 0;
-  c[i++].s = en->target.path;
+  c[i++].s = target_file(en->target.path, file, sizeof file);
+  c[i++].s = target_stem(file, stem, sizeof stem);
   c[i++].i = en->target.hdu;
   c[i++].i = en->target.row;
   c[i++].s = dt_verdict_name(s->verdict);
@@ -126,7 +170,7 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags,
   c[i++].s = en->target.sha256;
   c[i++].s = s->doublet;
   c[i++].d = s->vsys;
-  c[i++].i = (long long)s->ncomp;
+  c[i++].i = (long long)comp_rows(en);
   c[i++].i = (long long)k;
   c[i++].d = comp ? comp->logN : NAN;
   c[i++].d = err ? err->logN : NAN;
@@ -141,9 +185,9 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags,
   c[i++].d = s->has_fit ? s->fit.chi2_red : NAN;
   for (int l = 0; l < 2; l++) {
     const dt_meas_line *ml = &m->line[l];
-    c[i++].d = ml->w;
-    c[i++].d = ml->w_err;
-    c[i++].d = ml->w_lim;
+    c[i++].d = 1e3 * ml->w;
+    c[i++].d = 1e3 * ml->w_err;
+    c[i++].d = 1e3 * ml->w_lim;
     c[i++].d = ml->logN_aod;
     c[i++].d = ml->logN_aod_err;
     c[i++].d = ml->logN_lim;
@@ -155,44 +199,37 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags,
 
 /* ---- CSV ---- */
 
-static void csv_str(FILE *f, const char *s) {
-  if (!strpbrk(s, ",\"\n\r")) {
-    fputs(s, f);
-    return;
-  }
-  fputc('"', f);
-  for (; *s; s++) {
-    if (*s == '"') fputc('"', f);
-    fputc(*s, f);
-  }
-  fputc('"', f);
-}
-
 static int write_csv(FILE *f, const dt_journal *j) {
-  for (size_t c = 0; c < NCOL; c++) fprintf(f, "%s%s", c ? "," : "", COLS[c].name);
-  fputc('\n', f);
+  dt_csv w;
+  dt_csv_init(&w, f);
+  for (size_t c = 0; c < NCOL; c++) dt_csv_text(&w, COLS[c].name);
+  dt_csv_end(&w);
   cell cells[NCOL];
-  char flags[64], frozen[4], num[40];
+  char flags[64], frozen[4];
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    size_t nc = en->state.ncomp;
+    size_t nc = comp_rows(en);
     for (size_t k = nc ? 1 : 0; k <= nc; k++) {
       fill_row(en, k, cells, flags, frozen);
       for (size_t c = 0; c < NCOL; c++) {
-        if (c) fputc(',', f);
         switch (COLS[c].type) {
-        case C_STR: csv_str(f, cells[c].s); break;
+        case C_STR: dt_csv_text(&w, cells[c].s); break;
         case C_INT:
-          if (!(cells[c].i < 0 && !strcmp(COLS[c].name, "dof"))) fprintf(f, "%lld", cells[c].i);
+          /* hdu 0 (not FITS) and dof -1 (no fit): unknown, empty */
+          if ((cells[c].i <= 0 && !strcmp(COLS[c].name, "hdu")) ||
+              (cells[c].i < 0 && !strcmp(COLS[c].name, "dof")))
+            dt_csv_empty(&w);
+          else
+            dt_csv_long(&w, (long)cells[c].i);
           break;
-        case C_BOOL: fputs(cells[c].i ? "1" : "0", f); break;
-        case C_DBL: fputs(su_num(num, sizeof num, cells[c].d), f); break;
+        case C_BOOL: dt_csv_text(&w, cells[c].i ? "1" : "0"); break;
+        case C_DBL: dt_csv_num(&w, cells[c].d); break;
         }
       }
-      fputc('\n', f);
+      dt_csv_end(&w);
     }
   }
-  return ferror(f) ? DT_EIO : DT_OK;
+  return dt_csv_error(&w) ? DT_EIO : DT_OK;
 }
 
 /* ---- FITS ---- */
@@ -212,7 +249,7 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
   char flags[64], frozen[4];
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    for (size_t k = en->state.ncomp ? 1 : 0; k <= en->state.ncomp; k++) {
+    for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en); k++) {
       fill_row(en, k, cells, flags, frozen);
       for (size_t c = 0; c < NCOL; c++)
         if (COLS[c].type == C_STR && (long)strlen(cells[c].s) > width[c])
@@ -250,17 +287,27 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
   base = base ? base + 1 : session;
   char sbase[69];
   snprintf(sbase, sizeof sbase, "%s", base);
+  /* header strings are ASCII text (FITS 4.0 section 4.2.1) */
+  for (char *p = sbase; *p; p++)
+    if ((unsigned char)*p < 0x20 || (unsigned char)*p > 0x7e) *p = '?';
   fits_update_key_str(f, "SESSFILE", sbase, "session file (name)", &st);
   fits_update_key_str(f, "SESSSHA", (char *)session_sha, "SHA-256 of the session file", &st);
   long long nspec = (long long)dt_journal_count(j);
   fits_update_key_lng(f, "NSPEC", nspec, "spectra in the session", &st);
   fits_write_date(f, &st);
-  for (size_t c = 0; c < NCOL; c++)
-    if (!strcmp(COLS[c].name, "dof")) { /* -1 = no fit */
-      char key[16];
+  for (size_t c = 0; c < NCOL; c++) {
+    char key[16];
+    snprintf(key, sizeof key, "TCOMM%zu", c + 1);
+    if (is_log(COLS[c].name) && !strstr(COLS[c].name, "err"))
+      fits_update_key_str(f, key, "log10 of a column density in cm-2", NULL, &st);
+    else if (is_log(COLS[c].name))
+      fits_update_key_str(f, key, "1-sigma error of a log10 column density", NULL, &st);
+    int dof = !strcmp(COLS[c].name, "dof"), hdu = !strcmp(COLS[c].name, "hdu");
+    if (dof || hdu) { /* dof -1: no fit; hdu 0: not a FITS file */
       snprintf(key, sizeof key, "TNULL%zu", c + 1);
-      fits_update_key_lng(f, key, -1, "no fit", &st);
+      fits_update_key_lng(f, key, dof ? -1 : 0, dof ? "no fit" : "not a FITS file", &st);
     }
+  }
   if (st) {
     fits_close_file(f, &st);
     return fits_fail(st, e);
@@ -269,7 +316,7 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
   long long row = 0;
   for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    for (size_t k = en->state.ncomp ? 1 : 0; k <= en->state.ncomp && !st; k++) {
+    for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en) && !st; k++) {
       fill_row(en, k, cells, flags, frozen);
       row++;
       for (size_t c = 0; c < NCOL && !st; c++) {

@@ -795,6 +795,7 @@ int cmd_fit(int argc, char **argv) {
   run r;
   memset(&r, 0, sizeof r);
   dt_csv_init(&r.csv, of.f);
+  r.csv.one_line = 1; /* merge reads the table line by line */
   r.outf = &of;
   r.atomic = atomic;
   r.cfg = &c;

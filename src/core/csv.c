@@ -10,6 +10,7 @@
 void dt_csv_init(dt_csv *w, FILE *f) {
   w->f = f;
   w->nfield = 0;
+  w->one_line = 0;
 }
 
 static void sep(dt_csv *w) {
@@ -33,7 +34,7 @@ void dt_csv_text(dt_csv *w, const char *s) {
   fputc('"', w->f);
   for (; *s; s++) {
     if (*s == '"') fputs("\"\"", w->f);
-    else if (*s == '\n' || *s == '\r') fputc(' ', w->f);
+    else if (w->one_line && (*s == '\n' || *s == '\r')) fputc(' ', w->f);
     else fputc(*s, w->f);
   }
   fputc('"', w->f);

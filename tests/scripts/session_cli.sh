@@ -68,7 +68,7 @@ check "export to FITS" test $? -eq 0 -a -s "$TMP/out.fits"
 VERSION=$("$DT" --version | awk '{print $2}')
 "$PY" "$TOOL" check-export "$TMP/rich.json" "$TMP/out.csv" "$TMP/out.fits" "$S" "$VERSION" >"$TMP/ce.out" 2>&1
 rc=$?
-grep '^FAIL' "$TMP/ce.out"
+grep -A3 "^FAIL\|Error\|Trace" "$TMP/ce.out"
 check "export read back with astropy: values, units, header ($(grep -c '^ok' "$TMP/ce.out") checks)" test $rc -eq 0
 cp "$TMP/out.csv" "$TMP/keep.csv"
 expect_fail "export never replaces a file without --force" "out.csv: file exists; use --force" "$DT" export "$S" -o "$TMP/out.csv"
@@ -80,7 +80,7 @@ expect_fail "export with an unknown format" "cannot tell the format" "$DT" expor
 expect_fail "export without -o" "no output file" "$DT" export "$S"
 check "no temporary files are left" test -z "$(ls "$TMP" | grep tmp-)"
 "$DT" export "$S" -o - >"$TMP/stdout.csv"
-check "export -o - writes CSV to standard output" test "$(head -c 9 "$TMP/stdout.csv")" = "file,hdu,"
+check "export -o - writes CSV to standard output" test "$(head -c 14 "$TMP/stdout.csv")" = "file,name,hdu,"
 mkdir "$TMP/ro" && chmod 555 "$TMP/ro"
 if [ "$(id -u)" -ne 0 ]; then
   expect_fail "export into a directory that cannot be written" "cannot create" "$DT" export "$S" -o "$TMP/ro/x.csv"
