@@ -178,6 +178,15 @@ def make_rich(d):
     w.record(p3, 0, 0, "", "verdict", [("verdict", "none")], st3)
     exp[p3] = {"hdu": 0, "row": 0, "verdict": "none", "note": "", "judged_by": "",
                "comps": st3["comps"], "errs": None, "meas": None, "flags": ""}
+    # spectrum 4: the first pass left a component (log N 15.05), the person
+    # said "not detected": the export is the limit, not that component
+    p4 = "survey/qso04.fits"
+    st4 = {"verdict": "not-detected", "comps": [(15.05, 3.0, 10.0, "")], "fit": None}
+    meas4 = [{"W": 0.004, "W_err": 0.015, "W_lim": 0.045, "logNa": None, "logN_lim": 11.35},
+             {"W": 0.002, "W_err": 0.015, "W_lim": 0.045, "logNa": None, "logN_lim": 11.65}]
+    w.record(p4, 1, 0, SHA_A, "verdict", [("verdict", "not-detected")], st4, meas4)
+    exp[p4] = {"hdu": 1, "row": 0, "verdict": "not-detected", "note": "", "judged_by": "Mira Okonkwo",
+               "comps": st4["comps"], "meas": meas4, "flags": "", "errs": None}
     w.close()
     with open(d + "/rich.json", "w") as f:
         json.dump(exp, f, indent=1)
@@ -297,8 +306,13 @@ def check_export(jpath, csvpath, fitspath, session, version):
                 want(r["logN_err"] == "" and math.isnan(t["logN_err"][fi]),
                      "%s: component %d without fit errors: empty / NaN" % (path, k + 1))
         if ncomp == 0:
-            want(int(r0["component"]) == 0 and r0["logN"] == "" and math.isnan(t["logN"][f0]),
+            want(int(r0["component"]) == 0 and int(r0["ncomp"]) == 0 and r0["logN"] == "" and
+                 r0["b_kms"] == "" and r0["v_kms"] == "" and math.isnan(t["logN"][f0]),
                  "%s: no components: component 0, empty values" % path)
+        if e["verdict"] == "not-detected" and e.get("meas"):
+            want(close(float(r0["W_lim_mA"]), 1e3 * e["meas"][0]["W_lim"]) and
+                 close(float(r0["logN_limit"]), e["meas"][0]["logN_lim"]),
+                 "%s: not detected: the limits are exported" % path)
         if e.get("chi2") is not None:
             want(close(float(r0["chi2"]), e["chi2"]) and int(r0["dof"]) == e["dof"] and
                  close(float(r0["chi2_red"]), e["chi2"] / e["dof"]), "%s: chi2, dof, chi2_red" % path)

@@ -15,7 +15,7 @@ S=$TMP/rich.session
 "$DT" log "$S" >"$TMP/log.out" 2>"$TMP/log.err"
 check "log exits 0 on a clean session" test $? -eq 0
 check "log prints nothing on stderr for a clean session" test ! -s "$TMP/log.err"
-check "log shows one line per record (9)" test "$(wc -l <"$TMP/log.out")" -eq 9
+check "log shows one line per record (10)" test "$(wc -l <"$TMP/log.out")" -eq 10
 "$PY" "$TOOL" check-log "$TMP/rich.json" "$TMP/log.out" >"$TMP/cl.out"
 check "log: who, when, what ($(grep -c '^ok' "$TMP/cl.out") checks)" test $? -eq 0
 check "log: the fit with its errors" grep -q 'fit  fitted in 9 iterations: logN 12.42+-0.04 b 17.2+-1.7 v +382.1+-1.3; logN 11.86+-0.12' "$TMP/log.out"
@@ -23,11 +23,11 @@ check "log: the result after a change" grep -q '=> 2 components, chi2_red 1.112,
 check "log: a note on one line, escapes shown" grep -q 'note  "sky line near 5893, \\"check\\"\\tsee log\\nsecond line \\\\ end"' "$TMP/log.out"
 check "log: a changed input file is marked" grep -q 'multi.fits (hdu 2, row 5)  note.*input file changed' "$TMP/log.out"
 n=$("$DT" log "$S" --target '*/qso0*' | wc -l)
-check "log --target with a glob (7 lines, got $n)" test "$n" -eq 7
+check "log --target with a glob (8 lines, got $n)" test "$n" -eq 8
 n=$("$DT" log "$S" --target multi | wc -l)
 check "log --target with a part of the path (2, got $n)" test "$n" -eq 2
 n=$("$DT" log "$S" --action verdict,note | wc -l)
-check "log --action verdict,note (6, got $n)" test "$n" -eq 6
+check "log --action verdict,note (7, got $n)" test "$n" -eq 7
 n=$("$DT" log "$S" --user 'Mira Okonkwo' --action=fit | wc -l)
 check "log --user and --action combine (1, got $n)" test "$n" -eq 1
 n=$("$DT" log "$S" --user nobody | wc -l)
@@ -45,13 +45,13 @@ head -c -30 "$S" >"$TMP/cut.session"
 "$DT" log "$TMP/cut.session" >"$TMP/cut.out" 2>"$TMP/cut.err"
 check "log of a cut session exits 1 (the trail is incomplete)" test $? -eq 1
 check "and says how many lines were damaged" grep -q 'cut.session: 1 damaged line skipped' "$TMP/cut.err"
-check "the cut last line is named on stderr" grep -q 'cut.session: line 10: incomplete last line' "$TMP/cut.err"
-check "the records before it are shown (8)" test "$(wc -l <"$TMP/cut.out")" -eq 8
+check "the cut last line is named on stderr" grep -q 'cut.session: line 11: incomplete last line' "$TMP/cut.err"
+check "the records before it are shown (9)" test "$(wc -l <"$TMP/cut.out")" -eq 9
 sed '3s/logN=11.9/logN=11.8/' "$S" >"$TMP/garbled.session"
 "$DT" log "$TMP/garbled.session" >"$TMP/g.out" 2>"$TMP/g.err"
 check "log of a garbled session exits 1" test $? -eq 1
 check "a garbled line is named with its line number" grep -q 'garbled.session: line 3: check sum does not match' "$TMP/g.err"
-check "and the rest is shown (8)" test "$(wc -l <"$TMP/g.out")" -eq 8
+check "and the rest is shown (9)" test "$(wc -l <"$TMP/g.out")" -eq 9
 "$DT" export "$TMP/garbled.session" -o "$TMP/garbled.csv" 2>"$TMP/ge.err"
 check "export of a damaged session exits 1" test $? -eq 1
 check "export of a damaged session warns and goes on" grep -q 'line 3' "$TMP/ge.err"
