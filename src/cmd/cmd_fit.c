@@ -658,7 +658,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     return 0;
   case O_FWHM:
     c->have_fwhm = 1;
-    return positive("--fwhm", v, "the FWHM in km/s", &c->fwhm);
+    return positive("--fwhm", v, "the FWHM", &c->fwhm);
   case O_VSYS:
     if (cli_parse_double("--vsys", v, &c->vsys)) return 1;
     if (!isfinite(c->vsys) || c->vsys <= -DT_C_KMS) {
