@@ -111,8 +111,12 @@ static void usage(FILE *f) {
           "  --list FILE             targets from a list file (path vsys= R= ...)\n"
           "  --files-from FILE       spectrum paths, one a line ('-': standard input)\n"
           "  --shard K/N             only inputs with index %% N == K (0 <= K < N)\n"
-          "  -o FILE                 write the CSV to FILE (default: standard output)\n"
-          "Command-line settings override a list's.  Summary on standard error;\n"
+          "  -o, --output FILE       write the CSV to FILE (default: standard output)\n"
+          "  --force                 replace FILE if it exists (never an input)\n"
+          "  --air                   text spectra give air wavelengths (not yet\n"
+          "                          supported by the reader: refused)\n"
+          "Command-line settings override a list's; they head the CSV as '# key=value'\n"
+          "lines.  R below 100 is refused.  Summary on standard error;\n"
           "exit status 1 when any spectrum failed, 2 for bad options.\n");
 }
 
