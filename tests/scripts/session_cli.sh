@@ -104,4 +104,25 @@ check "with who judged them" grep -q '1: detected      ana' "$TMP/cmp.out"
 check "sessions without common spectra: said plainly" grep -q 'nothing to compare' "$TMP/cmp2.out"
 expect_fail "compare needs two sessions" "usage: doubletty compare" "$DT" compare "$S"
 expect_fail "compare of a missing session" "missing.session: cannot open" "$DT" compare "$S" "$TMP/missing.session"
+# FITS headers are ASCII (FITS 4.0 section 4.2.1) even for a session whose
+# name is not: every header byte of every HDU is printable ASCII.
+cp "$S" "$TMP/sesión-ü.session"
+"$DT" export "$TMP/sesión-ü.session" -o "$TMP/utf.fits"
+check "export of a session with a non-ASCII name" test $? -eq 0 -a -s "$TMP/utf.fits"
+"$PY" - "$TMP/utf.fits" <<'PYEOF' >"$TMP/ascii.out" 2>&1
+import sys, warnings
+from astropy.io import fits
+warnings.simplefilter("error")
+raw = open(sys.argv[1], "rb").read()
+bad = 0
+with fits.open(sys.argv[1]) as h:
+    h.verify("exception")
+    for i in range(len(h)):
+        info = h.fileinfo(i)
+        block = raw[info["hdrLoc"]:info["datLoc"]]
+        bad += sum(1 for b in block if not 32 <= b < 127)
+print("non-ASCII header bytes:", bad)
+sys.exit(1 if bad else 0)
+PYEOF
+check "every FITS header byte is printable ASCII ($(tail -n 1 "$TMP/ascii.out"))" test $? -eq 0
 finish
