@@ -43,7 +43,8 @@ def read_table(path):
     import csv
     rows = {}
     with open(path) as fh:
-        for r in csv.DictReader(fh):
+        # the settings lines ("# key=value") above the header are not rows
+        for r in csv.DictReader(line for line in fh if not line.startswith("#")):
             name = os.path.basename(r["file"])
             st, comps = rows.setdefault(name, [0, []])
             if r.get("status", "ok") != "ok":
