@@ -67,6 +67,8 @@ def main():
     peer, prate = read(sys.argv[1], False)
     with open(sys.argv[2]) as fh:
         first = fh.readline()
+        while first.startswith("#"):  # the settings lines of a fit table
+            first = fh.readline()
     if "component" in first.split(","):
         ours, orate = read_table(sys.argv[2])
     else:

@@ -108,4 +108,18 @@ check "b at its bound 0.3 km/s ($b) is said in the reason" \
 $DT fit --fwhm 2 "$TMP/a.txt" >"$TMP/free.csv" 2>/dev/null
 check "a clean detection says neither" sh -c "! grep -Eq 'asked for|limit of their range' '$TMP/free.csv'"
 
+# ---- one convention in fit and export ------------------------------------
+$DT fit --fwhm 2 --list "$TMP/t.list" >"$TMP/names.csv" 2>/dev/null
+names=$(awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[$i] = i; next } { printf "%s ", $c["name"] }' "$TMP/names.csv")
+check "fit: name from the list, else the file's stem ($names)" [ "$names" = "alpha b " ]
+hdr_fit=$(grep -v '^#' "$TMP/names.csv" | head -n 1)
+hdr_exp=$(head -n 1 "$TMP/e.csv")
+for col in file name hdu row doublet ncomp component logN logN_err b_kms b_err v_kms v_err \
+           chi2_red dof W_mA W_err_mA logN_aod logN_aod_err W_weak_mA W_weak_err_mA \
+           logN_aod_weak logN_aod_weak_err saturated logN_limit suggested; do
+  case ",$hdr_fit," in *",$col,"*) f=1 ;; *) f=0 ;; esac
+  case ",$hdr_exp," in *",$col,"*) e=1 ;; *) e=0 ;; esac
+  check "column $col in both fit and export" [ $f$e = 11 ]
+done
+
 finish
