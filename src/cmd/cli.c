@@ -107,6 +107,7 @@ int cli_opt_error(const char *cmd, int c, char **argv) {
     *eq = '\0';
     cli_errorf("%s: option '%s' takes no value", cmd, bare);
   } else {
+    if (eq) *eq = '\0'; /* "--bogus=1": the option is "--bogus" */
     cli_errorf("%s: unknown option '%s'", cmd, bare);
   }
   fprintf(stderr, "try 'doubletty %s --help'\n", cmd);

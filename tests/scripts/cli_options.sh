@@ -41,6 +41,9 @@ for cmd in fit merge export log compare info demo inspect; do
   check "$cmd: then the hint, and nothing else" \
     [ "$(sed -n '2,$p' "$TMP/u.err")" = "try 'doubletty $cmd --help'" ]
 done
+$DT fit --bogus=1 "$TMP/a.txt" >/dev/null 2>"$TMP/u.err"
+check "an unknown --opt=value names the option alone" \
+  [ "$(head -n 1 "$TMP/u.err")" = "doubletty: fit: unknown option '--bogus'" ]
 expect_fail "a missing value is named" "^doubletty: fit: option '--fwhm' needs a value" $DT fit "$TMP/a.txt" --fwhm
 expect_fail "a value for a plain switch is refused" "option '--force' takes no value" $DT export --force=yes s -o x.csv
 
