@@ -7,6 +7,8 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <getopt.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #ifndef DT_DATADIR
@@ -91,25 +93,60 @@ dt_atomic *cli_load_atomic(const char *user_table) {
 }
 
 int cli_parse_double(const char *opt, const char *text, double *out) {
-  char *end;
-  errno = 0;
-  double v = dt_num_strtod(text ? text : "", &end);
-  if (!text || end == text || *end != '\0' || errno == ERANGE) {
+  if (dt_num_parse(text ? text : "", out) != DT_OK) {
     cli_errorf("%s: '%s' is not a number", opt, text ? text : "");
     return 1;
   }
-  *out = v;
   return 0;
 }
 
 int cli_parse_long(const char *opt, const char *text, long *out) {
-  char *end;
-  errno = 0;
-  long v = strtol(text ? text : "", &end, 10);
-  if (!text || end == text || *end != '\0' || errno == ERANGE) {
+  if (dt_num_parse_long(text ? text : "", LONG_MIN, LONG_MAX, out) != DT_OK) {
     cli_errorf("%s: '%s' is not a whole number", opt, text ? text : "");
     return 1;
   }
-  *out = v;
   return 0;
+}
+
+void cli_getopt_reset(void) {
+  optind = 1;
+  opterr = 0;
+}
+
+int cli_opt_error(const char *cmd, int c, char **argv) {
+  const char *arg = optind > 0 ? argv[optind - 1] : "";
+  char shortopt[3] = {'-', (char)optopt, '\0'};
+  /* a long option names itself in argv; a short one only through optopt */
+  const char *name = (arg && !strncmp(arg, "--", 2)) || !optopt ? arg : shortopt;
+  char bare[128];
+  snprintf(bare, sizeof bare, "%s", name ? name : "");
+  char *eq = strchr(bare, '=');
+  if (c == ':') {
+    cli_errorf("%s: option '%s' needs a value", cmd, bare);
+  } else if (eq && optopt) {
+    *eq = '\0';
+    cli_errorf("%s: option '%s' takes no value", cmd, bare);
+  } else {
+    if (eq) *eq = '\0'; /* "--bogus=1": the option is "--bogus" */
+    cli_errorf("%s: unknown option '%s'", cmd, bare);
+  }
+  fprintf(stderr, "try 'doubletty %s --help'\n", cmd);
+  return 2;
+}
+
+int cli_check_not_dir(const char *path) {
+  struct stat st;
+  if (path && strcmp(path, "-") && stat(path, &st) == 0 && S_ISDIR(st.st_mode)) {
+    cli_errorf("%s: is a directory, not a file", path);
+    return 1;
+  }
+  return 0;
+}
+
+int cli_air_unsupported(const char *cmd) {
+  /* The read options have no field for it yet: refusing beats reading air
+   * wavelengths as vacuum without a word. */
+  cli_errorf("%s: --air: this build reads text spectra as vacuum wavelengths only; "
+             "convert the wavelengths to vacuum first", cmd);
+  return 2;
 }

@@ -27,4 +27,18 @@ dt_atomic *cli_load_atomic(const char *user_table);
 int cli_parse_double(const char *opt, const char *text, double *out);
 int cli_parse_long(const char *opt, const char *text, long *out);
 
+/* Before a command's getopt_long loop: start at argv[1], no messages from
+ * getopt itself (the option string must begin with ':'). */
+void cli_getopt_reset(void);
+/* After getopt_long returned '?' or ':': print one line naming the option
+ * ("unknown option", "needs a value", "takes no value") and the hint
+ * "try 'doubletty CMD --help'"; returns the exit status 2. */
+int cli_opt_error(const char *cmd, int c, char **argv);
+
+/* 1 after "PATH: is a directory, not a file" when path names a directory. */
+int cli_check_not_dir(const char *path);
+
+/* --air was given but the reader cannot take it: message, exit status 2. */
+int cli_air_unsupported(const char *cmd);
+
 #endif

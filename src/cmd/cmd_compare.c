@@ -6,6 +6,7 @@
  * (Cohen 1960) and the large-sample one of Fleiss, Cohen & Everitt (1969),
  * then every spectrum the two disagree on, with who judged it and when.
  * `doubletty inspect --only-disagreements S1 S2` opens that list. */
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -38,16 +39,16 @@ static size_t judged(const dt_journal *j) {
 int cmd_compare(int argc, char **argv) {
   const char *s[2] = {NULL, NULL};
   int ns = 0;
-  for (int i = 1; i < argc; i++) {
-    if (!strcmp(argv[i], "-h") || !strcmp(argv[i], "--help")) {
-      usage(stdout);
-      return 0;
-    }
-    if (argv[i][0] == '-' && argv[i][1] != '\0') {
-      cli_errorf("compare: unknown option '%s'", argv[i]);
-      usage(stderr);
-      return 2;
-    }
+  static const struct option longopts[] = {{"help", no_argument, NULL, 'h'},
+                                           {NULL, 0, NULL, 0}};
+  int opt;
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":h", longopts, NULL)) != -1) {
+    if (opt != 'h') return cli_opt_error("compare", opt, argv);
+    usage(stdout);
+    return 0;
+  }
+  for (int i = optind; i < argc; i++) {
     if (ns == 2) {
       cli_errorf("compare: two session files, not more ('%s' is extra)", argv[i]);
       return 2;

@@ -4,6 +4,7 @@
  * dt_demo_write and says what it wrote.  --about prints the invented
  * scenario from share/doubletty/demo-scenario.txt. */
 #include <limits.h>
+#include <getopt.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -47,45 +48,41 @@ static int about(void) {
 int cmd_demo(int argc, char **argv) {
   dt_demo_opts o = dt_demo_opts_default();
   const char *dir = NULL;
-  for (int i = 1; i < argc; i++) {
-    const char *a = argv[i];
-    if (!strcmp(a, "-h") || !strcmp(a, "--help")) {
-      usage(stdout);
-      return 0;
-    } else if (!strcmp(a, "--about")) {
-      return about();
-    } else if (!strcmp(a, "--force")) {
-      o.force = 1;
-    } else if (!strcmp(a, "--count") || !strcmp(a, "--seed")) {
-      if (i + 1 >= argc) {
-        cli_errorf("demo: %s needs a value", a);
+  static const struct option longopts[] = {
+      {"help", no_argument, NULL, 'h'},        {"about", no_argument, NULL, 'a'},
+      {"force", no_argument, NULL, 'f'},       {"count", required_argument, NULL, 'c'},
+      {"seed", required_argument, NULL, 's'},  {NULL, 0, NULL, 0}};
+  int opt;
+  long v;
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":h", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'h': usage(stdout); return 0;
+    case 'a': return about();
+    case 'f': o.force = 1; break;
+    case 'c':
+      if (cli_parse_long("--count", optarg, &v)) return 2;
+      if (v < 1 || v > DT_DEMO_MAX_COUNT) {
+        cli_errorf("demo: --count: %ld is out of range 1..%d", v, DT_DEMO_MAX_COUNT);
         return 2;
       }
-      long v;
-      if (cli_parse_long(a, argv[++i], &v)) return 2;
-      if (!strcmp(a, "--count")) {
-        if (v < 1 || v > DT_DEMO_MAX_COUNT) {
-          cli_errorf("demo: --count: %ld is out of range 1..%d", v, DT_DEMO_MAX_COUNT);
-          return 2;
-        }
-        o.count = (int)v;
-      } else {
-        if (v < 0 || v > 4294967295L) {
-          cli_errorf("demo: --seed: %ld is out of range 0..4294967295", v);
-          return 2;
-        }
-        o.seed = (unsigned long)v;
+      o.count = (int)v;
+      break;
+    case 's':
+      if (cli_parse_long("--seed", optarg, &v)) return 2;
+      if (v < 0 || v > 4294967295L) {
+        cli_errorf("demo: --seed: %ld is out of range 0..4294967295", v);
+        return 2;
       }
-    } else if (a[0] == '-' && a[1] != '\0') {
-      cli_errorf("demo: unknown option '%s'", a);
-      usage(stderr);
-      return 2;
-    } else if (!dir) {
-      dir = a;
-    } else {
-      cli_errorf("demo: only one directory, not '%s' and '%s'", dir, a);
-      return 2;
+      o.seed = (unsigned long)v;
+      break;
+    default: return cli_opt_error("demo", opt, argv);
     }
+  }
+  if (optind < argc) dir = argv[optind++];
+  if (optind < argc) {
+    cli_errorf("demo: only one directory, not '%s' and '%s'", dir, argv[optind]);
+    return 2;
   }
   if (!dir) {
     cli_errorf("demo: no directory given");

@@ -3,18 +3,13 @@
  *
  * One row per component (a spectrum without components gets one row with
  * component 0 and empty component fields), the spectrum's columns repeated
- * on each: verdict, note, who judged it and when, the components with the
- * 1-sigma errors of the fit that gave them (empty when they were changed by
- * hand after the fit), the fit's chi2, and the measurements last recorded
- * (equivalent widths, apparent column densities, upper limits).  The FITS
- * table (cfitsio) carries TUNITn for every physical column and header
- * keywords for the program version and the SHA-256 of the session file.
+ * on each (the table and both writers are in the core: src/core/export.c).
  *
  * The output is written to a temporary file beside it and moved into place
  * at the end, so a failed export leaves no half file; an existing file is
  * never replaced without --force, and never when it is the session itself. */
 #include <errno.h>
-#include <fitsio.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -26,6 +21,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "doubletty/digest.h"
+#include "doubletty/export.h"
 #include "doubletty/journal.h"
 #include "session_util.h"
 
@@ -40,273 +36,6 @@ static void usage(FILE *f) {
           "                 ('-o -' writes CSV to standard output)\n"
           "  --force        replace FILE if it exists\n"
           "  -h, --help     this text\n");
-}
-
-/* ---- the table: columns and their values per row ---- */
-
-typedef enum { C_STR, C_INT, C_DBL, C_BOOL } ctype;
-
-typedef struct column {
-  const char *name;
-  ctype type;
-  const char *unit; /* FITS TUNITn ("" for none) */
-} column;
-
-/* Standard FITS units (FITS 4.0 section 4.3); "log(cm-2)" is the standard's
- * notation for a common logarithm of a column density. */
-static const column COLS[] = {
-    {"file", C_STR, ""},          {"hdu", C_INT, ""},
-    {"row", C_INT, ""},           {"verdict", C_STR, ""},
-    {"note", C_STR, ""},          {"judged_by", C_STR, ""},
-    {"judged_at", C_STR, ""},     {"last_user", C_STR, ""},
-    {"last_change", C_STR, ""},   {"changes", C_INT, ""},
-    {"flags", C_STR, ""},         {"sha256", C_STR, ""},
-    {"doublet", C_STR, ""},       {"vsys_kms", C_DBL, "km s-1"},
-    {"ncomp", C_INT, ""},         {"component", C_INT, ""},
-    {"logN", C_DBL, "log(cm-2)"}, {"logN_err", C_DBL, "log(cm-2)"},
-    {"b_kms", C_DBL, "km s-1"},   {"b_err", C_DBL, "km s-1"},
-    {"v_kms", C_DBL, "km s-1"},   {"v_err", C_DBL, "km s-1"},
-    {"frozen", C_STR, ""},        {"fit_status", C_STR, ""},
-    {"chi2", C_DBL, ""},          {"dof", C_INT, ""},
-    {"chi2_red", C_DBL, ""},      {"W_A", C_DBL, "Angstrom"},
-    {"W_err_A", C_DBL, "Angstrom"}, {"W_lim_A", C_DBL, "Angstrom"},
-    {"logN_aod", C_DBL, "log(cm-2)"}, {"logN_aod_err", C_DBL, "log(cm-2)"},
-    {"logN_limit", C_DBL, "log(cm-2)"}, {"W2_A", C_DBL, "Angstrom"},
-    {"W2_err_A", C_DBL, "Angstrom"}, {"W2_lim_A", C_DBL, "Angstrom"},
-    {"logN_aod2", C_DBL, "log(cm-2)"}, {"logN_aod2_err", C_DBL, "log(cm-2)"},
-    {"logN_limit2", C_DBL, "log(cm-2)"}, {"nsigma", C_DBL, ""},
-    {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
-};
-#define NCOL (sizeof COLS / sizeof COLS[0])
-
-typedef union cell {
-  const char *s;
-  long long i;
-  double d;
-} cell;
-
-/* The cells of one row: spectrum en, component k (0 = none). */
-static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags, char *frozen) {
-  const dt_judgement *s = &en->state;
-  const dt_meas_summary *m = &en->meas;
-  dt_meas_summary none;
-  if (!en->has_meas) {
-    dt_meas_summary_clear(&none);
-    m = &none;
-  }
-  flags[0] = '\0';
-  if (en->flags & DT_JFLAG_FILE_CHANGED) strcat(flags, "file-changed");
-  if (en->flags & DT_JFLAG_REPLAY_MISMATCH) {
-    if (flags[0]) strcat(flags, ";");
-    strcat(flags, "replay-mismatch");
-  }
-  /* errors belong to the components only while they are the fit's values */
-  const dt_component *comp = k ? &s->comp[k - 1] : NULL, *err = NULL;
-  if (comp && s->has_fit && s->fit.status == DT_OK && s->fit.ncomp == s->ncomp &&
-      !memcmp(&s->fit.comp[k - 1], comp, sizeof *comp))
-    err = &s->fit.err[k - 1];
-  frozen[0] = '\0';
-  if (comp) dt_freeze_str(s->frozen[k - 1], frozen);
-  static char status[32];
-  if (!s->has_fit) status[0] = '\0';
-  else snprintf(status, sizeof status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
-  size_t i = 0;
-  c[i++].s = en->target.path;
-  c[i++].i = en->target.hdu;
-  c[i++].i = en->target.row;
-  c[i++].s = dt_verdict_name(s->verdict);
-  c[i++].s = s->note;
-  c[i++].s = en->judged_by;
-  c[i++].s = en->judged_at;
-  c[i++].s = en->user;
-  c[i++].s = en->time;
-  c[i++].i = en->nchanges;
-  c[i++].s = flags;
-  c[i++].s = en->target.sha256;
-  c[i++].s = s->doublet;
-  c[i++].d = s->vsys;
-  c[i++].i = (long long)s->ncomp;
-  c[i++].i = (long long)k;
-  c[i++].d = comp ? comp->logN : NAN;
-  c[i++].d = err ? err->logN : NAN;
-  c[i++].d = comp ? comp->b : NAN;
-  c[i++].d = err ? err->b : NAN;
-  c[i++].d = comp ? comp->v : NAN;
-  c[i++].d = err ? err->v : NAN;
-  c[i++].s = frozen;
-  c[i++].s = status;
-  c[i++].d = s->has_fit ? s->fit.chi2 : NAN;
-  c[i++].i = s->has_fit ? s->fit.dof : -1;
-  c[i++].d = s->has_fit ? s->fit.chi2_red : NAN;
-  for (int l = 0; l < 2; l++) {
-    const dt_meas_line *ml = &m->line[l];
-    c[i++].d = ml->w;
-    c[i++].d = ml->w_err;
-    c[i++].d = ml->w_lim;
-    c[i++].d = ml->logN_aod;
-    c[i++].d = ml->logN_aod_err;
-    c[i++].d = ml->logN_lim;
-  }
-  c[i++].d = m->nsigma;
-  c[i++].i = m->saturated;
-  c[i++].s = m->suggested == DT_VERDICT_NONE ? "" : dt_verdict_name(m->suggested);
-}
-
-/* ---- CSV ---- */
-
-static void csv_str(FILE *f, const char *s) {
-  if (!strpbrk(s, ",\"\n\r")) {
-    fputs(s, f);
-    return;
-  }
-  fputc('"', f);
-  for (; *s; s++) {
-    if (*s == '"') fputc('"', f);
-    fputc(*s, f);
-  }
-  fputc('"', f);
-}
-
-static int write_csv(FILE *f, const dt_journal *j) {
-  for (size_t c = 0; c < NCOL; c++) fprintf(f, "%s%s", c ? "," : "", COLS[c].name);
-  fputc('\n', f);
-  cell cells[NCOL];
-  char flags[64], frozen[4], num[40];
-  for (size_t i = 0; i < dt_journal_count(j); i++) {
-    const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    size_t nc = en->state.ncomp;
-    for (size_t k = nc ? 1 : 0; k <= nc; k++) {
-      fill_row(en, k, cells, flags, frozen);
-      for (size_t c = 0; c < NCOL; c++) {
-        if (c) fputc(',', f);
-        switch (COLS[c].type) {
-        case C_STR: csv_str(f, cells[c].s); break;
-        case C_INT:
-          if (!(cells[c].i < 0 && !strcmp(COLS[c].name, "dof"))) fprintf(f, "%lld", cells[c].i);
-          break;
-        case C_BOOL: fputs(cells[c].i ? "1" : "0", f); break;
-        case C_DBL: fputs(su_num(num, sizeof num, cells[c].d), f); break;
-        }
-      }
-      fputc('\n', f);
-    }
-  }
-  return ferror(f) ? DT_EIO : DT_OK;
-}
-
-/* ---- FITS ---- */
-
-static int fits_fail(int status, dt_err *e) {
-  char msg[FLEN_ERRMSG] = "";
-  fits_get_errstatus(status, msg);
-  return dt_err_set(e, DT_EIO, NULL, "cannot write the FITS table: %s", msg);
-}
-
-static int write_fits(const char *path, const dt_journal *j, const char *session,
-                      const char *session_sha, dt_err *e) {
-  /* string widths: the longest value of each string column */
-  long width[NCOL];
-  for (size_t c = 0; c < NCOL; c++) width[c] = 1;
-  cell cells[NCOL];
-  char flags[64], frozen[4];
-  for (size_t i = 0; i < dt_journal_count(j); i++) {
-    const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    for (size_t k = en->state.ncomp ? 1 : 0; k <= en->state.ncomp; k++) {
-      fill_row(en, k, cells, flags, frozen);
-      for (size_t c = 0; c < NCOL; c++)
-        if (COLS[c].type == C_STR && (long)strlen(cells[c].s) > width[c])
-          width[c] = (long)strlen(cells[c].s);
-    }
-  }
-  char *ttype[NCOL], *tform[NCOL], *tunit[NCOL];
-  char forms[NCOL][24];
-  for (size_t c = 0; c < NCOL; c++) {
-    ttype[c] = (char *)COLS[c].name;
-    tunit[c] = (char *)COLS[c].unit;
-    switch (COLS[c].type) {
-    case C_STR: snprintf(forms[c], sizeof forms[c], "%ldA", width[c]); break;
-    case C_INT: snprintf(forms[c], sizeof forms[c], "K"); break;
-    case C_DBL: snprintf(forms[c], sizeof forms[c], "D"); break;
-    case C_BOOL: snprintf(forms[c], sizeof forms[c], "L"); break;
-    }
-    tform[c] = forms[c];
-  }
-  fitsfile *f = NULL;
-  int st = 0;
-  /* The temporary file we made (mkstemp) is replaced by cfitsio's own,
-   * under its literal name: fits_create_diskfile, because fits_create_file
-   * would read brackets, parentheses or a leading '!' in a user's file
-   * name as cfitsio's extended syntax and write to another file. */
-  unlink(path);
-  fits_create_diskfile(&f, path, &st);
-  if (st) return fits_fail(st, e);
-  fits_create_tbl(f, BINARY_TBL, 0, (int)NCOL, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
-  char creator[64];
-  snprintf(creator, sizeof creator, "doubletty %s", DT_VERSION);
-  fits_update_key_str(f, "CREATOR", creator, "program that wrote this file", &st);
-  fits_update_key_str(f, "DTVERSN", (char *)DT_VERSION, "doubletty version", &st);
-  const char *base = strrchr(session, '/');
-  base = base ? base + 1 : session;
-  char sbase[69];
-  snprintf(sbase, sizeof sbase, "%s", base);
-  fits_update_key_str(f, "SESSFILE", sbase, "session file (name)", &st);
-  fits_update_key_str(f, "SESSSHA", (char *)session_sha, "SHA-256 of the session file", &st);
-  long long nspec = (long long)dt_journal_count(j);
-  fits_update_key_lng(f, "NSPEC", nspec, "spectra in the session", &st);
-  fits_write_date(f, &st);
-  for (size_t c = 0; c < NCOL; c++)
-    if (!strcmp(COLS[c].name, "dof")) { /* -1 = no fit */
-      char key[16];
-      snprintf(key, sizeof key, "TNULL%zu", c + 1);
-      fits_update_key_lng(f, key, -1, "no fit", &st);
-    }
-  if (st) {
-    fits_close_file(f, &st);
-    return fits_fail(st, e);
-  }
-  /* row by row: cfitsio buffers the table, so this is not slow */
-  long long row = 0;
-  for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
-    const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    for (size_t k = en->state.ncomp ? 1 : 0; k <= en->state.ncomp && !st; k++) {
-      fill_row(en, k, cells, flags, frozen);
-      row++;
-      for (size_t c = 0; c < NCOL && !st; c++) {
-        int col = (int)c + 1;
-        switch (COLS[c].type) {
-        case C_STR: {
-          char *s = (char *)cells[c].s;
-          if (!*s) s = " "; /* cfitsio writes an empty string as blanks anyway */
-          fits_write_col(f, TSTRING, col, row, 1, 1, &s, &st);
-          break;
-        }
-        case C_INT: {
-          LONGLONG v = cells[c].i;
-          fits_write_col(f, TLONGLONG, col, row, 1, 1, &v, &st);
-          break;
-        }
-        case C_DBL: {
-          double v = cells[c].d;
-          fits_write_col(f, TDOUBLE, col, row, 1, 1, &v, &st);
-          break;
-        }
-        case C_BOOL: {
-          char v = cells[c].i ? 1 : 0;
-          fits_write_col(f, TLOGICAL, col, row, 1, 1, &v, &st);
-          break;
-        }
-        }
-      }
-    }
-  }
-  if (st) {
-    int st2 = 0;
-    fits_close_file(f, &st2);
-    return fits_fail(st, e);
-  }
-  fits_close_file(f, &st);
-  if (st) return fits_fail(st, e);
-  return DT_OK;
 }
 
 /* ---- the command ---- */
@@ -335,32 +64,37 @@ static dt_journal *load_with_digest(const char *session, char sha[DT_SHA256_HEX]
   return NULL;
 }
 
+/* After the output is written: damaged lines of the session make the
+ * export incomplete, and the exit status says so. */
+static int damaged(const char *session, const dt_journal *j) {
+  size_t nw = dt_journal_warning_count(j);
+  if (!nw) return 0;
+  cli_errorf("export: %s: %zu line%s damaged or inconsistent (see above); the export "
+             "holds what could be read",
+             session, nw, nw == 1 ? "" : "s");
+  return 1;
+}
+
 int cmd_export(int argc, char **argv) {
   const char *session = NULL, *out = NULL;
-  int force = 0;
-  for (int i = 1; i < argc; i++) {
-    const char *v;
-    int r;
-    if (!strcmp(argv[i], "-h") || !strcmp(argv[i], "--help")) {
-      usage(stdout);
-      return 0;
+  int force = 0, opt;
+  static const struct option longopts[] = {{"help", no_argument, NULL, 'h'},
+                                           {"output", required_argument, NULL, 'o'},
+                                           {"force", no_argument, NULL, 'f'},
+                                           {NULL, 0, NULL, 0}};
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":ho:", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'h': usage(stdout); return 0;
+    case 'o': out = optarg; break;
+    case 'f': force = 1; break;
+    default: return cli_opt_error("export", opt, argv);
     }
-    if (!strcmp(argv[i], "--force")) {
-      force = 1;
-    } else if ((r = su_opt("export", "-o", argc, argv, &i, &v)) != 0 ||
-               (r = su_opt("export", "--output", argc, argv, &i, &v)) != 0) {
-      if (r < 0) return 2;
-      out = v;
-    } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
-      cli_errorf("export: unknown option '%s'", argv[i]);
-      usage(stderr);
-      return 2;
-    } else if (!session) {
-      session = argv[i];
-    } else {
-      cli_errorf("export: one session file at a time ('%s' is extra)", argv[i]);
-      return 2;
-    }
+  }
+  if (optind < argc) session = argv[optind++];
+  if (optind < argc) {
+    cli_errorf("export: one session file at a time ('%s' is extra)", argv[optind]);
+    return 2;
   }
   if (!session || !out || !*out) {
     if (session && !out) cli_errorf("export: no output file (-o FILE.csv or -o FILE.fits)");
@@ -396,10 +130,11 @@ int cmd_export(int argc, char **argv) {
 
   int status = 0;
   if (to_stdout) {
-    if (write_csv(stdout, j) != DT_OK || fflush(stdout) != 0) {
+    if (dt_export_csv(stdout, j) != DT_OK || fflush(stdout) != 0) {
       cli_errorf("export: cannot write to standard output");
       status = 1;
     }
+    status |= damaged(session, j);
     dt_journal_close(j);
     return status;
   }
@@ -425,10 +160,10 @@ int cmd_export(int argc, char **argv) {
   int rc;
   if (fits) {
     close(fd);
-    rc = write_fits(tmp, j, session, sha, &e);
+    rc = dt_export_fits(tmp, j, session, sha, DT_VERSION, &e);
   } else {
     FILE *f = fdopen(fd, "w");
-    rc = f ? write_csv(f, j) : DT_EIO;
+    rc = f ? dt_export_csv(f, j) : DT_EIO;
     if (f && (fflush(f) != 0 || fsync(fileno(f)) != 0)) rc = DT_EIO;
     if (f) {
       if (fclose(f) != 0) rc = DT_EIO;
@@ -456,6 +191,7 @@ int cmd_export(int argc, char **argv) {
     status = 1;
   }
   free(tmp);
+  if (!status) status = damaged(session, j);
   dt_journal_close(j);
   return status;
 }

@@ -14,20 +14,25 @@
  * accounts for every input).  Settings on the command line override those
  * of a target list; without either, R comes from the file's header. */
 #include <errno.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "cli.h"
 #include "commands.h"
+#include "outfile.h"
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
+#include "doubletty/csv.h"
 #include "doubletty/autofit.h"
 #include "doubletty/judge.h"
 #include "doubletty/model.h"
+#include "doubletty/num.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/targets.h"
 
@@ -39,6 +44,11 @@ static const char *const COLUMNS[] = {
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
     "logN_limit", "suggested", "reason"};
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
+
+/* Below this resolving power the line-spread function (c/R > 3000 km/s) is
+ * wider than the doublet's separation a thousandfold: a fit returns its
+ * parameters at their bounds, so such an R is refused as a mistake. */
+#define FIT_MIN_R 100
 
 typedef enum { SRC_FILE, SRC_LIST, SRC_FILES_FROM } src_kind;
 typedef struct {
@@ -60,10 +70,15 @@ typedef struct {
   long row;                     /* --row: only this row of tables */
   long shard_k, shard_n;
   const char *out_path;
+  const char *atomic_file;
+  int force;                    /* replace an existing output file */
+  int air;                      /* text spectra give air wavelengths */
 } config;
 
 typedef struct {
-  FILE *out;
+  dt_csv csv;                   /* the output table */
+  const cli_out *outf;          /* the output file, to refuse it as an input */
+  int clash;                    /* an input is the output file: stop */
   const dt_atomic *atomic;
   const config *cfg;
   long index;                   /* of the current input */
@@ -96,35 +111,14 @@ static void usage(FILE *f) {
           "  --list FILE             targets from a list file (path vsys= R= ...)\n"
           "  --files-from FILE       spectrum paths, one a line ('-': standard input)\n"
           "  --shard K/N             only inputs with index %% N == K (0 <= K < N)\n"
-          "  -o FILE                 write the CSV to FILE (default: standard output)\n"
-          "Command-line settings override a list's.  Summary on standard error;\n"
+          "  -o, --output FILE       write the CSV to FILE (default: standard output)\n"
+          "  --force                 replace FILE if it exists (never an input)\n"
+          "  --air                   text spectra give air wavelengths (not yet\n"
+          "                          supported by the reader: refused)\n"
+          "Command-line settings override a list's; they head the CSV as '# key=value'\n"
+          "lines.  R below 100 is refused.  Summary on standard error;\n"
           "exit status 1 when any spectrum failed, 2 for bad options.\n");
 }
-
-/* ---- CSV output ------------------------------------------------------ */
-
-/* A text field: quoted when it holds a comma, quote or line break; line
- * breaks become spaces so every record stays on one line. */
-static void csv_text(FILE *f, const char *s) {
-  if (!s) s = "";
-  if (!strpbrk(s, ",\"\n\r")) {
-    fputs(s, f);
-    return;
-  }
-  fputc('"', f);
-  for (; *s; s++) {
-    if (*s == '"') fputs("\"\"", f);
-    else if (*s == '\n' || *s == '\r') fputc(' ', f);
-    else fputc(*s, f);
-  }
-  fputc('"', f);
-}
-
-static void csv_num(FILE *f, double x, int prec) {
-  if (isfinite(x)) fprintf(f, "%.*f", prec, x);
-}
-
-static void csv_sep(FILE *f) { fputc(',', f); }
 
 /* ---- messages and progress ------------------------------------------- */
 
@@ -180,25 +174,37 @@ static void report(run *r, const char *file, long row, const dt_err *e) {
 
 /* ---- one spectrum ---------------------------------------------------- */
 
+/* The name column without a list name: the file's stem (no directory, no
+ * "[ext]" selector, no extension), as export writes it. */
+static const char *file_stem(const char *path, char *buf, size_t n) {
+  const char *slash = strrchr(path, '/');
+  snprintf(buf, n, "%s", slash ? slash + 1 : path);
+  char *br = strchr(buf, '[');
+  if (br) *br = '\0';
+  char *dot = strrchr(buf, '.');
+  if (dot && dot != buf && (!strcmp(dot, ".gz") || !strcmp(dot, ".fz"))) {
+    *dot = '\0';
+    dot = strrchr(buf, '.');
+  }
+  if (dot && dot != buf) *dot = '\0';
+  return buf;
+}
+
 static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                      const char *doublet, double vsys, const char *status) {
-  FILE *f = r->out;
-  fprintf(f, "%ld,", r->index);
-  csv_text(f, t->path);
-  csv_sep(f);
-  csv_text(f, t->name);
-  csv_sep(f);
-  if (s && s->hdu > 0) fprintf(f, "%d", s->hdu);
-  csv_sep(f);
-  if (row > 0) fprintf(f, "%ld", row);
-  csv_sep(f);
-  csv_text(f, s ? s->object : "");
-  csv_sep(f);
-  csv_text(f, doublet);
-  csv_sep(f);
-  csv_num(f, vsys, 3);
-  csv_sep(f);
-  fputs(status, f);
+  dt_csv *w = &r->csv;
+  dt_csv_long(w, r->index);
+  dt_csv_text(w, t->path);
+  char stem[DT_TARGET_PATH_MAX];
+  dt_csv_text(w, t->name[0] ? t->name : file_stem(t->path, stem, sizeof stem));
+  if (s && s->hdu > 0) dt_csv_long(w, s->hdu);
+  else dt_csv_empty(w);
+  if (row > 0) dt_csv_long(w, row);
+  else dt_csv_empty(w);
+  dt_csv_text(w, s ? s->object : "");
+  dt_csv_text(w, doublet);
+  dt_csv_fixed(w, vsys, 3);
+  dt_csv_text(w, status);
 }
 
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
@@ -208,71 +214,69 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 9; k + 1 < NCOLUMNS; k++) csv_sep(r->out);
-  csv_sep(r->out);
-  csv_text(r->out, msg);
-  fputc('\n', r->out);
+  for (size_t k = 9; k + 1 < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  dt_csv_text(&r->csv, msg);
+  dt_csv_end(&r->csv);
+}
+
+/* The reason column: the first pass's words, and what a reader of the
+ * table must know about the fit (fewer components than asked for,
+ * parameters pinned at the limits of their ranges). */
+static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_out *o,
+                          char *buf, size_t n) {
+  size_t len = (size_t)snprintf(buf, n, "%s", o->reason);
+  const config *c = r->cfg;
+  if (c->ncomp > 0 && j->ncomp != (size_t)c->ncomp && len < n)
+    len += (size_t)snprintf(buf + len, n - len, "%sasked for %d components but fitted %zu",
+                            len ? "; " : "", c->ncomp, j->ncomp);
+  int bound = 0;
+  for (size_t k = 0; k < j->ncomp; k++) bound |= o->an.fit_info.at_bound[k] != 0;
+  if (bound && len < n)
+    snprintf(buf + len, n - len, "%sparameters at the limit of their range", len ? "; " : "");
 }
 
 static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const dt_judgement *j, const dt_autofit_out *o, int st) {
   const dt_analysis_out *an = &o->an;
   const dt_fit_result *fr = &an->fit;
+  dt_csv *w = &r->csv;
+  char reason[256];
+  honest_reason(r, j, o, reason, sizeof reason);
   size_t nrows = j->ncomp ? j->ncomp : 1;
   for (size_t k = 0; k < nrows; k++) {
-    FILE *f = r->out;
     row_head(r, t, s, row, j->doublet, j->vsys, st == DT_OK ? "ok" : "not-converged");
-    fprintf(f, ",%zu,", j->ncomp);
+    dt_csv_long(w, (long)j->ncomp);
     if (j->ncomp) {
-      fprintf(f, "%zu,", k + 1);
-      csv_num(f, fr->comp[k].v, 3);
-      csv_sep(f);
-      csv_num(f, fr->err[k].v, 3);
-      csv_sep(f);
-      csv_num(f, fr->comp[k].b, 3);
-      csv_sep(f);
-      csv_num(f, fr->err[k].b, 3);
-      csv_sep(f);
-      csv_num(f, fr->comp[k].logN, 4);
-      csv_sep(f);
-      csv_num(f, fr->err[k].logN, 4);
-      csv_sep(f);
+      dt_csv_long(w, (long)k + 1);
+      dt_csv_fixed(w, fr->comp[k].v, 3);
+      dt_csv_fixed(w, fr->err[k].v, 3);
+      dt_csv_fixed(w, fr->comp[k].b, 3);
+      dt_csv_fixed(w, fr->err[k].b, 3);
+      dt_csv_fixed(w, fr->comp[k].logN, 4);
+      dt_csv_fixed(w, fr->err[k].logN, 4);
     } else {
-      fputs(",,,,,,,", f);
+      for (int e = 0; e < 7; e++) dt_csv_empty(w);
     }
-    csv_num(f, fr->chi2_red, 4);
-    csv_sep(f);
-    fprintf(f, "%ld,", fr->dof);
-    csv_num(f, fr->bic, 3);
-    csv_sep(f);
+    dt_csv_fixed(w, fr->chi2_red, 4);
+    dt_csv_long(w, fr->dof);
+    dt_csv_fixed(w, fr->bic, 3);
     const dt_analysis_line *a = &an->line[0], *b = &an->line[1];
-    csv_num(f, 1e3 * a->W, 2);
-    csv_sep(f);
-    csv_num(f, 1e3 * a->W_err, 2);
-    csv_sep(f);
-    csv_num(f, a->W_sig, 2);
-    csv_sep(f);
-    csv_num(f, a->logN_aod, 4);
-    csv_sep(f);
-    csv_num(f, a->logN_aod_err, 4);
-    csv_sep(f);
-    csv_num(f, 1e3 * b->W, 2);
-    csv_sep(f);
-    csv_num(f, 1e3 * b->W_err, 2);
-    csv_sep(f);
-    csv_num(f, b->logN_aod, 4);
-    csv_sep(f);
-    csv_num(f, b->logN_aod_err, 4);
-    csv_sep(f);
-    fputs(an->saturated ? "1" : "0", f);
-    csv_sep(f);
+    dt_csv_fixed(w, 1e3 * a->W, 2);
+    dt_csv_fixed(w, 1e3 * a->W_err, 2);
+    dt_csv_fixed(w, a->W_sig, 2);
+    dt_csv_fixed(w, a->logN_aod, 4);
+    dt_csv_fixed(w, a->logN_aod_err, 4);
+    dt_csv_fixed(w, 1e3 * b->W, 2);
+    dt_csv_fixed(w, 1e3 * b->W_err, 2);
+    dt_csv_fixed(w, b->logN_aod, 4);
+    dt_csv_fixed(w, b->logN_aod_err, 4);
+    dt_csv_text(w, an->saturated ? "1" : "0");
     /* the limit is given unless the first pass calls it a detection */
-    if (o->suggested != DT_VERDICT_DETECTED) csv_num(f, a->logN_limit, 4);
-    csv_sep(f);
-    fputs(dt_verdict_name(o->suggested), f);
-    csv_sep(f);
-    csv_text(f, o->reason);
-    fputc('\n', f);
+    if (o->suggested != DT_VERDICT_DETECTED) dt_csv_fixed(w, a->logN_limit, 4);
+    else dt_csv_empty(w);
+    dt_csv_text(w, dt_verdict_name(o->suggested));
+    dt_csv_text(w, reason);
+    dt_csv_end(w);
   }
 }
 
@@ -306,6 +310,21 @@ static int check_coverage(const dt_spectrum *s, const dt_doublet *d, double vsys
   return DT_OK;
 }
 
+/* A --window must hold enough pixels to fit a line in; otherwise the core
+ * would report the window as masked, which misleads. */
+#define FIT_MIN_WINDOW_PIX 10
+
+static int check_window(const config *c, const dt_spectrum *s, dt_err *e) {
+  if (!c->have_window) return DT_OK;
+  double pix = dt_spectrum_pixel_kms(s), npix = (c->vhi - c->vlo) / pix;
+  if (pix > 0 && npix < FIT_MIN_WINDOW_PIX)
+    return dt_err_set(e, DT_EINVAL, NULL,
+                      "the velocity window %g:%g km/s spans %.1f pixels of %.1f km/s: too "
+                      "narrow to fit a line (at least %d pixels); widen --window",
+                      c->vlo, c->vhi, npix, pix, FIT_MIN_WINDOW_PIX);
+  return DT_OK;
+}
+
 /* Fit one spectrum (one row of a table, or the only one). */
 static void fit_one(run *r, const dt_target_spec *t, long row) {
   const config *c = r->cfg;
@@ -336,6 +355,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     st = pick_resolution(c, t, s, &j, &e);
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
+  if (st == DT_OK) st = check_window(c, s, &e);
   dt_autofit_out o;
   memset(&o, 0, sizeof o);
   if (st == DT_OK) {
@@ -396,6 +416,7 @@ static void fit_input(run *r, const dt_target_spec *t) {
 
 /* Next input of the run: counts it, and fits it when it is in our shard. */
 static void take(run *r, const dt_target_spec *t) {
+  if (r->clash || (r->clash = cli_out_is_input(r->outf, t->path))) return;
   r->index = r->ninputs++;
   if (r->index % r->cfg->shard_n == r->cfg->shard_k) fit_input(r, t);
   bar_draw(r);
@@ -417,6 +438,12 @@ static void take_bad(run *r, const char *file, const dt_err *e) {
 static void run_list(run *r, const char *path) {
   dt_targets *l = NULL;
   dt_err e;
+  struct stat st;
+  if (stat(path, &st) == 0 && S_ISDIR(st.st_mode)) {
+    dt_err_set(&e, DT_EIO, NULL, "is a directory, not a target list");
+    take_bad(r, path, &e);
+    return;
+  }
   if (dt_targets_open(path, &l, &e) != DT_OK) {
     take_bad(r, path, &e);
     return;
@@ -435,7 +462,7 @@ static void run_list(run *r, const char *path) {
       take_bad(r, path, &e);
       continue;
     }
-    if (!got) break;
+    if (!got || r->clash) break;
     take(r, t);
   }
   free(t);
@@ -454,7 +481,7 @@ static void run_files_from(run *r, const char *path) {
   char *line = NULL;
   size_t cap = 0;
   ssize_t len;
-  while (t && (len = getline(&line, &cap, f)) != -1) {
+  while (t && !r->clash && (len = getline(&line, &cap, f)) != -1) {
     while (len > 0 && (line[len - 1] == '\n' || line[len - 1] == '\r')) line[--len] = '\0';
     char *p = line;
     while (*p == ' ' || *p == '\t') p++;
@@ -528,20 +555,198 @@ static int parse_seeds(const char *text, config *c) {
   return 0;
 }
 
-/* Option value: "--opt=value" or the next argument. */
-static const char *value(int argc, char **argv, int *i, const char *name) {
-  size_t n = strlen(name);
-  if (argv[*i][n] == '=') return argv[*i] + n + 1;
-  if (*i + 1 >= argc) {
-    cli_errorf("%s needs a value", name);
-    return NULL;
+/* The run's settings as "# key=value" lines above the header: what was
+ * asked for, so that `merge` can refuse shards run differently.  Every
+ * setting is written (empty when not given), in a fixed order. */
+static void write_settings(dt_csv *w, const config *c) {
+  char buf[1024];
+  dt_csv_comment(w, "program", "doubletty fit " DT_VERSION);
+  snprintf(buf, sizeof buf, "%ld/%ld", c->shard_k, c->shard_n);
+  dt_csv_comment(w, "shard", buf);
+  dt_csv_comment(w, "doublet", c->doublet ? c->doublet : "");
+  buf[0] = '\0';
+  if (c->have_R) dt_num_format(buf, sizeof buf, c->R);
+  dt_csv_comment(w, "resolution", buf);
+  buf[0] = '\0';
+  if (c->have_fwhm) dt_num_format(buf, sizeof buf, c->fwhm);
+  dt_csv_comment(w, "fwhm", buf);
+  buf[0] = '\0';
+  if (c->have_vsys) dt_num_format(buf, sizeof buf, c->vsys);
+  dt_csv_comment(w, "vsys", buf);
+  buf[0] = '\0';
+  if (c->have_window) {
+    char lo[40], hi[40];
+    dt_num_format(lo, sizeof lo, c->vlo);
+    dt_num_format(hi, sizeof hi, c->vhi);
+    snprintf(buf, sizeof buf, "%s:%s", lo, hi);
   }
-  return argv[++*i];
+  dt_csv_comment(w, "window", buf);
+  snprintf(buf, sizeof buf, "%d", c->ncomp);
+  dt_csv_comment(w, "ncomp", buf);
+  size_t len = 0;
+  buf[0] = '\0';
+  for (size_t k = 0; k < c->nseed && len + 48 < sizeof buf; k++) {
+    if (k) buf[len++] = ',';
+    dt_num_format(buf + len, sizeof buf - len, c->seed_v[k]);
+    len = strlen(buf);
+  }
+  dt_csv_comment(w, "seed-v", buf);
+  buf[0] = '\0';
+  if (c->have_order) snprintf(buf, sizeof buf, "%d", c->cont_order);
+  dt_csv_comment(w, "continuum-order", buf);
+  snprintf(buf, sizeof buf, "%d", c->joint_cont);
+  dt_csv_comment(w, "joint-continuum", buf);
+  dt_num_format(buf, sizeof buf, c->limit_nsigma);
+  dt_csv_comment(w, "limit-sigma", buf);
+  dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
+  snprintf(buf, sizeof buf, "%ld", c->row);
+  dt_csv_comment(w, "row", c->row ? buf : "");
+  snprintf(buf, sizeof buf, "%s:%s:%s:%s", c->ropts.wave_col ? c->ropts.wave_col : "",
+           c->ropts.flux_col ? c->ropts.flux_col : "", c->ropts.err_col ? c->ropts.err_col : "",
+           c->ropts.mask_col ? c->ropts.mask_col : "");
+  dt_csv_comment(w, "columns", buf);
+  dt_csv_comment(w, "air", c->air ? "yes" : "");
 }
 
-static int is_opt(const char *arg, const char *name) {
-  size_t n = strlen(name);
-  return !strncmp(arg, name, n) && (arg[n] == '\0' || arg[n] == '=');
+enum {
+  O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
+  O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
+  O_FORCE, O_AIR
+};
+static const struct option LONGOPTS[] = {
+    {"help", no_argument, NULL, 'h'},
+    {"doublet", required_argument, NULL, O_DOUBLET},
+    {"resolution", required_argument, NULL, O_RES},
+    {"fwhm", required_argument, NULL, O_FWHM},
+    {"vsys", required_argument, NULL, O_VSYS},
+    {"window", required_argument, NULL, O_WINDOW},
+    {"ncomp", required_argument, NULL, O_NCOMP},
+    {"seed-v", required_argument, NULL, O_SEEDV},
+    {"continuum-order", required_argument, NULL, O_CORDER},
+    {"joint-continuum", required_argument, NULL, O_JOINT},
+    {"limit-sigma", required_argument, NULL, O_LIMSIG},
+    {"atomic", required_argument, NULL, O_ATOMIC},
+    {"row", required_argument, NULL, O_ROW},
+    {"wave-col", required_argument, NULL, O_WCOL},
+    {"flux-col", required_argument, NULL, O_FCOL},
+    {"err-col", required_argument, NULL, O_ECOL},
+    {"mask-col", required_argument, NULL, O_MCOL},
+    {"list", required_argument, NULL, O_LIST},
+    {"files-from", required_argument, NULL, O_FROM},
+    {"shard", required_argument, NULL, O_SHARD},
+    {"output", required_argument, NULL, 'o'},
+    {"force", no_argument, NULL, O_FORCE},
+    {"air", no_argument, NULL, O_AIR},
+    {NULL, 0, NULL, 0}};
+
+/* A positive finite option number into *out; 1 after a message otherwise. */
+static int positive(const char *opt, const char *v, const char *what, double *out) {
+  double x;
+  if (cli_parse_double(opt, v, &x)) return 1;
+  if (!(x > 0) || !isfinite(x)) {
+    cli_errorf("%s: %s must be positive (got %s)", opt, what, v);
+    return 1;
+  }
+  *out = x;
+  return 0;
+}
+
+/* A whole option number in [lo, hi] into *out; 1 after a message otherwise. */
+static int ranged(const char *opt, const char *v, long lo, long hi, long *out) {
+  if (cli_parse_long(opt, v, out)) return 1;
+  if (*out < lo || *out > hi) {
+    cli_errorf("%s: %ld is outside %ld..%ld", opt, *out, lo, hi);
+    return 1;
+  }
+  return 0;
+}
+
+/* One option of getopt_long: 0 done, 1 bad value (message printed). */
+static int fit_option(int opt, const char *v, config *c, source *src, size_t *nsrc,
+                      int *only_files) {
+  long l;
+  switch (opt) {
+  case O_DOUBLET: c->doublet = v; return 0;
+  case O_RES:
+    if (positive("--resolution", v, "R", &c->R)) return 1;
+    if (c->R < FIT_MIN_R) {
+      cli_errorf("--resolution: R = %s is below %g: a resolving power that low smears a "
+                 "doublet beyond fitting (did you mean a FWHM? use --fwhm KMS)",
+                 v, (double)FIT_MIN_R);
+      return 1;
+    }
+    c->have_R = 1;
+    return 0;
+  case O_FWHM:
+    c->have_fwhm = 1;
+    return positive("--fwhm", v, "the FWHM", &c->fwhm);
+  case O_VSYS:
+    if (cli_parse_double("--vsys", v, &c->vsys)) return 1;
+    if (!isfinite(c->vsys) || c->vsys <= -DT_C_KMS) {
+      cli_errorf("--vsys: %s km/s is not a velocity", v);
+      return 1;
+    }
+    c->have_vsys = 1;
+    return 0;
+  case O_WINDOW:
+    c->have_window = 1;
+    return parse_window(v, &c->vlo, &c->vhi);
+  case O_NCOMP:
+    if (ranged("--ncomp", v, 0, DT_MAX_COMP, &l)) return 1;
+    c->ncomp = (int)l;
+    return 0;
+  case O_SEEDV: return parse_seeds(v, c);
+  case O_CORDER:
+    if (ranged("--continuum-order", v, -1, DT_MAX_CONT - 1, &l)) return 1;
+    c->cont_order = (int)l;
+    c->have_order = 1;
+    return 0;
+  case O_JOINT:
+    if (ranged("--joint-continuum", v, 0, DT_MAX_CONT, &l)) return 1;
+    c->joint_cont = (int)l;
+    return 0;
+  case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
+  case O_ATOMIC: c->atomic_file = v; return 0;
+  case O_ROW:
+    if (cli_parse_long("--row", v, &l)) return 1;
+    if (l < 1) {
+      cli_errorf("--row: rows are numbered from 1 (got %ld)", l);
+      return 1;
+    }
+    c->row = l;
+    return 0;
+  case O_WCOL: c->ropts.wave_col = v; return 0;
+  case O_FCOL: c->ropts.flux_col = v; return 0;
+  case O_ECOL: c->ropts.err_col = v; return 0;
+  case O_MCOL: c->ropts.mask_col = v; return 0;
+  case O_LIST:
+  case O_FROM:
+    src[(*nsrc)++] = (source){opt == O_LIST ? SRC_LIST : SRC_FILES_FROM, v};
+    *only_files = 0;
+    return 0;
+  case O_SHARD: return parse_shard(v, &c->shard_k, &c->shard_n);
+  case 'o': c->out_path = v; return 0;
+  case O_FORCE: c->force = 1; return 0;
+  case O_AIR: c->air = 1; return cli_air_unsupported("fit") ? 1 : 0;
+  }
+  return 1;
+}
+
+/* Options and sources: 0 to run, else the exit status (0 after --help is -1). */
+static int parse_args(int argc, char **argv, config *c, source *src, size_t *nsrc,
+                      int *only_files) {
+  cli_getopt_reset();
+  int opt;
+  while ((opt = getopt_long(argc, argv, ":ho:", LONGOPTS, NULL)) != -1) {
+    if (opt == 'h') {
+      usage(stdout);
+      return -1;
+    }
+    if (opt == '?' || opt == ':') return cli_opt_error("fit", opt, argv);
+    if (fit_option(opt, optarg, c, src, nsrc, only_files)) return 2;
+  }
+  for (int i = optind; i < argc; i++) src[(*nsrc)++] = (source){SRC_FILE, argv[i]};
+  return 0;
 }
 
 int cmd_fit(int argc, char **argv) {
@@ -549,145 +754,19 @@ int cmd_fit(int argc, char **argv) {
   memset(&c, 0, sizeof c);
   c.shard_n = 1;
   c.limit_nsigma = 3.0;
-  const char *atomic_file = NULL;
   source *src = calloc((size_t)argc + 1, sizeof *src);
   size_t nsrc = 0;
   int rc = 2;
-  FILE *out = NULL;
   dt_atomic *atomic = NULL;
   if (!src) {
     cli_errorf("out of memory");
     return 2;
   }
   int only_files = 1;
-  for (int i = 1; i < argc; i++) {
-    const char *a = argv[i], *v = NULL;
-    double x;
-    long l;
-#define VAL(name)                                  \
-  do {                                             \
-    if (!(v = value(argc, argv, &i, name))) goto done; \
-  } while (0)
-    if (!strcmp(a, "-h") || !strcmp(a, "--help")) {
-      usage(stdout);
-      rc = 0;
-      goto done;
-    } else if (is_opt(a, "--doublet")) {
-      VAL("--doublet");
-      c.doublet = v;
-    } else if (is_opt(a, "--resolution")) {
-      VAL("--resolution");
-      if (cli_parse_double("--resolution", v, &x)) goto done;
-      if (!(x > 0) || !isfinite(x)) {
-        cli_errorf("--resolution: R must be positive (got %s)", v);
-        goto done;
-      }
-      c.R = x;
-      c.have_R = 1;
-    } else if (is_opt(a, "--fwhm")) {
-      VAL("--fwhm");
-      if (cli_parse_double("--fwhm", v, &x)) goto done;
-      if (!(x > 0) || !isfinite(x)) {
-        cli_errorf("--fwhm: the FWHM must be positive (got %s km/s)", v);
-        goto done;
-      }
-      c.fwhm = x;
-      c.have_fwhm = 1;
-    } else if (is_opt(a, "--vsys")) {
-      VAL("--vsys");
-      if (cli_parse_double("--vsys", v, &x)) goto done;
-      if (!isfinite(x) || x <= -DT_C_KMS) {
-        cli_errorf("--vsys: %s km/s is not a velocity", v);
-        goto done;
-      }
-      c.vsys = x;
-      c.have_vsys = 1;
-    } else if (is_opt(a, "--window")) {
-      VAL("--window");
-      if (parse_window(v, &c.vlo, &c.vhi)) goto done;
-      c.have_window = 1;
-    } else if (is_opt(a, "--ncomp")) {
-      VAL("--ncomp");
-      if (cli_parse_long("--ncomp", v, &l)) goto done;
-      if (l < 0 || l > DT_MAX_COMP) {
-        cli_errorf("--ncomp: %ld is outside 0..%d", l, DT_MAX_COMP);
-        goto done;
-      }
-      c.ncomp = (int)l;
-    } else if (is_opt(a, "--seed-v")) {
-      VAL("--seed-v");
-      if (parse_seeds(v, &c)) goto done;
-    } else if (is_opt(a, "--continuum-order")) {
-      VAL("--continuum-order");
-      if (cli_parse_long("--continuum-order", v, &l)) goto done;
-      if (l < -1 || l > DT_MAX_CONT - 1) {
-        cli_errorf("--continuum-order: %ld is outside -1..%d", l, DT_MAX_CONT - 1);
-        goto done;
-      }
-      c.cont_order = (int)l;
-      c.have_order = 1;
-    } else if (is_opt(a, "--joint-continuum")) {
-      VAL("--joint-continuum");
-      if (cli_parse_long("--joint-continuum", v, &l)) goto done;
-      if (l < 0 || l > DT_MAX_CONT) {
-        cli_errorf("--joint-continuum: %ld is outside 0..%d", l, DT_MAX_CONT);
-        goto done;
-      }
-      c.joint_cont = (int)l;
-    } else if (is_opt(a, "--limit-sigma")) {
-      VAL("--limit-sigma");
-      if (cli_parse_double("--limit-sigma", v, &x)) goto done;
-      if (!(x > 0) || !isfinite(x)) {
-        cli_errorf("--limit-sigma: must be positive (got %s)", v);
-        goto done;
-      }
-      c.limit_nsigma = x;
-    } else if (is_opt(a, "--atomic")) {
-      VAL("--atomic");
-      atomic_file = v;
-    } else if (is_opt(a, "--row")) {
-      VAL("--row");
-      if (cli_parse_long("--row", v, &l)) goto done;
-      if (l < 1) {
-        cli_errorf("--row: rows are numbered from 1 (got %ld)", l);
-        goto done;
-      }
-      c.row = l;
-    } else if (is_opt(a, "--wave-col")) {
-      VAL("--wave-col");
-      c.ropts.wave_col = v;
-    } else if (is_opt(a, "--flux-col")) {
-      VAL("--flux-col");
-      c.ropts.flux_col = v;
-    } else if (is_opt(a, "--err-col")) {
-      VAL("--err-col");
-      c.ropts.err_col = v;
-    } else if (is_opt(a, "--mask-col")) {
-      VAL("--mask-col");
-      c.ropts.mask_col = v;
-    } else if (is_opt(a, "--list")) {
-      VAL("--list");
-      src[nsrc++] = (source){SRC_LIST, v};
-      only_files = 0;
-    } else if (is_opt(a, "--files-from")) {
-      VAL("--files-from");
-      src[nsrc++] = (source){SRC_FILES_FROM, v};
-      only_files = 0;
-    } else if (is_opt(a, "--shard")) {
-      VAL("--shard");
-      if (parse_shard(v, &c.shard_k, &c.shard_n)) goto done;
-    } else if (!strcmp(a, "-o") || is_opt(a, "--output")) {
-      VAL(a[1] == 'o' ? "-o" : "--output");
-      c.out_path = v;
-    } else if (!strcmp(a, "--")) {
-      for (i++; i < argc; i++) src[nsrc++] = (source){SRC_FILE, argv[i]};
-    } else if (a[0] == '-' && a[1] != '\0') {
-      cli_errorf("fit: unknown option '%s' (see doubletty fit --help)", a);
-      goto done;
-    } else {
-      src[nsrc++] = (source){SRC_FILE, a};
-    }
-#undef VAL
+  int prc = parse_args(argc, argv, &c, src, &nsrc, &only_files);
+  if (prc) {
+    rc = prc < 0 ? 0 : prc;
+    goto done;
   }
   if (nsrc == 0) {
     cli_errorf("fit: no spectrum given");
@@ -713,7 +792,7 @@ int cmd_fit(int argc, char **argv) {
         goto done;
       }
   }
-  atomic = cli_load_atomic(atomic_file);
+  atomic = cli_load_atomic(c.atomic_file);
   if (!atomic) goto done;
   if (c.doublet && !dt_atomic_find(atomic, c.doublet)) {
     char known[256] = "";
@@ -725,26 +804,28 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("--doublet: unknown doublet '%s' (known: %s)", c.doublet, known);
     goto done;
   }
-  out = stdout;
-  if (c.out_path && strcmp(c.out_path, "-")) {
-    out = fopen(c.out_path, "w");
-    if (!out) {
-      cli_errorf("%s: cannot write: %s", c.out_path, strerror(errno));
-      out = NULL;
-      goto done;
-    }
+  cli_out of;
+  if ((rc = cli_out_check(&of, "fit", c.out_path, c.force))) goto done;
+  rc = 2;
+  for (size_t k = 0; k < nsrc; k++)
+    if (cli_out_is_input(&of, src[k].arg)) goto done;
+  if (cli_out_open(&of)) {
+    rc = 1;
+    goto done;
   }
-
   run r;
   memset(&r, 0, sizeof r);
-  r.out = out;
+  dt_csv_init(&r.csv, of.f);
+  r.csv.one_line = 1; /* merge reads the table line by line */
+  r.outf = &of;
   r.atomic = atomic;
   r.cfg = &c;
   r.total = only_files ? (long)nsrc : -1;
   r.progress = isatty(STDERR_FILENO);
-  for (size_t k = 0; k < NCOLUMNS; k++) fprintf(out, "%s%s", k ? "," : "", COLUMNS[k]);
-  fputc('\n', out);
-  for (size_t k = 0; k < nsrc; k++) {
+  write_settings(&r.csv, &c);
+  for (size_t k = 0; k < NCOLUMNS; k++) dt_csv_text(&r.csv, COLUMNS[k]);
+  dt_csv_end(&r.csv);
+  for (size_t k = 0; k < nsrc && !r.clash; k++) {
     if (src[k].kind == SRC_FILE) {
       dt_target_spec t;
       dt_target_spec_init(&t, src[k].arg);
@@ -754,17 +835,15 @@ int cmd_fit(int argc, char **argv) {
     } else {
       run_files_from(&r, src[k].arg);
     }
-    fflush(out);
+    fflush(of.f);
   }
   bar_clear(&r);
-  int werr = ferror(out);
-  if (out != stdout) werr |= fclose(out) != 0;
-  else werr |= fflush(out) != 0;
-  out = NULL;
-  if (werr) {
-    cli_errorf("%s: write error", c.out_path ? c.out_path : "standard output");
-    r.failed++;
+  if (r.clash) {
+    cli_out_abort(&of);
+    rc = 2;
+    goto done;
   }
+  if (cli_out_commit(&of)) r.failed++;
   if (r.noconv)
     fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed (%ld fits did not converge)\n",
             r.fitted, r.failed, r.noconv);
@@ -772,7 +851,6 @@ int cmd_fit(int argc, char **argv) {
     fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed\n", r.fitted, r.failed);
   rc = r.failed ? 1 : 0;
 done:
-  if (out && out != stdout) fclose(out);
   dt_atomic_free(atomic);
   free(src);
   return rc;

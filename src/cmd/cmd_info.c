@@ -12,6 +12,7 @@
  *
  * A file that cannot be read gets one message on stderr; the others are
  * still shown, and the exit status is 1. */
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -28,6 +29,7 @@ typedef struct info_opts {
   const char *atomic;
   double vsys;
   int pixels;
+  int air;      /* --air: text spectra give air wavelengths */
 } info_opts;
 
 static void usage(FILE *f) {
@@ -43,21 +45,9 @@ static void usage(FILE *f) {
           "  --mask-col NAME\n"
           "  --atomic FILE     add (or replace) doublets from FILE\n"
           "  --vsys KMS        rest frame for the doublet coverage check (default 0)\n"
+          "  --air             text spectra give air wavelengths (converted to vacuum)\n"
           "  --pixels          list every pixel (wave flux sigma mask) after the summary\n"
           "  -h, --help        this text\n");
-}
-
-/* Option value from "--opt VALUE" or "--opt=VALUE"; NULL if absent. */
-static const char *opt_value(const char *name, int argc, char **argv, int *i) {
-  size_t len = strlen(name);
-  if (strncmp(argv[*i], name, len) != 0) return NULL;
-  if (argv[*i][len] == '=') return argv[*i] + len + 1;
-  if (argv[*i][len] != '\0') return NULL;
-  if (*i + 1 >= argc) {
-    cli_errorf("info: %s needs a value", name);
-    return "";
-  }
-  return argv[++*i];
 }
 
 static void print_block(const char *file, const dt_spectrum *s, long nrows, const dt_atomic *t,
@@ -79,7 +69,10 @@ static void print_block(const char *file, const dt_spectrum *s, long nrows, cons
   printf("%swavelength  %.4f .. %.4f A vacuum (file unit: %s)\n", p, s->wave[0], s->wave[n - 1],
          s->unit[0] ? s->unit : "Angstrom");
   printf("%sair         %s\n", p,
-         s->air ? "converted air to vacuum (IAU, Morton 2000)" : "no (vacuum in the file)");
+         s->air ? "converted air to vacuum (IAU, Morton 2000)"
+         : !strcmp(s->layout, "text") && !o->air
+             ? "no: assumed vacuum (a text file does not say)"
+             : "no (vacuum in the file)");
   printf("%spixel-size  %.3f km/s\n", p, dt_spectrum_pixel_kms(s));
   printf("%smedian-snr  %.2f\n", p, dt_spectrum_median_snr(s));
   printf("%ssigma       %s\n", p,
@@ -124,54 +117,45 @@ int cmd_info(int argc, char **argv) {
     cli_errorf("info: out of memory");
     return 1;
   }
-  int only_files = 0;
-  for (int i = 1; i < argc; i++) {
-    const char *a = argv[i], *v;
-    if (only_files || a[0] != '-' || a[1] == '\0') {
-      files[nfiles++] = argv[i];
-      continue;
-    }
-    if (!strcmp(a, "--")) {
-      only_files = 1;
-    } else if (!strcmp(a, "-h") || !strcmp(a, "--help")) {
-      usage(stdout);
-      free(files);
-      return 0;
-    } else if (!strcmp(a, "--pixels")) {
-      o.pixels = 1;
-    } else if ((v = opt_value("--row", argc, argv, &i))) {
-      if (!*v || cli_parse_long("--row", v, &o.read.row)) goto usage_error;
+  static const struct option longopts[] = {
+      {"help", no_argument, NULL, 'h'},           {"pixels", no_argument, NULL, 'p'},
+      {"row", required_argument, NULL, 'r'},      {"vsys", required_argument, NULL, 'v'},
+      {"wave-col", required_argument, NULL, 'W'}, {"flux-col", required_argument, NULL, 'F'},
+      {"err-col", required_argument, NULL, 'E'},  {"mask-col", required_argument, NULL, 'M'},
+      {"atomic", required_argument, NULL, 'A'},   {"air", no_argument, NULL, 'a'},
+      {NULL, 0, NULL, 0}};
+  int opt;
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":h", longopts, NULL)) != -1) {
+    const char *v = optarg;
+    switch (opt) {
+    case 'h': usage(stdout); free(files); return 0;
+    case 'p': o.pixels = 1; break;
+    case 'a': free(files); return cli_air_unsupported("info");
+    case 'r':
+      if (cli_parse_long("--row", v, &o.read.row)) goto usage_error;
       if (o.read.row < 1) {
         cli_errorf("info: --row %ld: rows count from 1", o.read.row);
         goto usage_error;
       }
       o.row_given = 1;
-    } else if ((v = opt_value("--vsys", argc, argv, &i))) {
-      if (!*v || cli_parse_double("--vsys", v, &o.vsys)) goto usage_error;
+      break;
+    case 'v':
+      if (cli_parse_double("--vsys", v, &o.vsys)) goto usage_error;
       if (!isfinite(o.vsys) || fabs(o.vsys) >= DT_C_KMS) {
         cli_errorf("info: --vsys %s: not a velocity below the speed of light", v);
         goto usage_error;
       }
-    } else if ((v = opt_value("--wave-col", argc, argv, &i))) {
-      if (!*v) goto usage_error;
-      o.read.wave_col = v;
-    } else if ((v = opt_value("--flux-col", argc, argv, &i))) {
-      if (!*v) goto usage_error;
-      o.read.flux_col = v;
-    } else if ((v = opt_value("--err-col", argc, argv, &i))) {
-      if (!*v) goto usage_error;
-      o.read.err_col = v;
-    } else if ((v = opt_value("--mask-col", argc, argv, &i))) {
-      if (!*v) goto usage_error;
-      o.read.mask_col = v;
-    } else if ((v = opt_value("--atomic", argc, argv, &i))) {
-      if (!*v) goto usage_error;
-      o.atomic = v;
-    } else {
-      cli_errorf("info: unknown option '%s'", a);
-      goto usage_error;
+      break;
+    case 'W': o.read.wave_col = v; break;
+    case 'F': o.read.flux_col = v; break;
+    case 'E': o.read.err_col = v; break;
+    case 'M': o.read.mask_col = v; break;
+    case 'A': o.atomic = v; break;
+    default: free(files); return cli_opt_error("info", opt, argv);
     }
   }
+  for (int i = optind; i < argc; i++) files[nfiles++] = argv[i];
   if (nfiles == 0) {
     cli_errorf("info: no spectrum file given");
     goto usage_error;
@@ -213,7 +197,7 @@ int cmd_info(int argc, char **argv) {
   return status;
 
 usage_error:
-  fprintf(stderr, "(see: doubletty info --help)\n");
+  fprintf(stderr, "try 'doubletty info --help'\n");
   free(files);
   return 2;
 }

@@ -16,6 +16,7 @@
  * directory, then from the session file's directory.  Spectra are only
  * read. */
 #include <fnmatch.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -277,40 +278,33 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
   return (nbad || nfail || nchanged) ? 1 : 0;
 }
 
+static const struct option LONGOPTS[] = {{"help", no_argument, NULL, 'h'},
+                                         {"target", required_argument, NULL, 't'},
+                                         {"user", required_argument, NULL, 'u'},
+                                         {"action", required_argument, NULL, 'a'},
+                                         {"atomic", required_argument, NULL, 'A'},
+                                         {"verify", no_argument, NULL, 'v'},
+                                         {NULL, 0, NULL, 0}};
+
 int cmd_log(int argc, char **argv) {
   const char *session = NULL, *pattern = NULL, *user = NULL, *actions = NULL, *atomic = NULL;
-  int do_verify = 0;
-  for (int i = 1; i < argc; i++) {
-    const char *v;
-    int r;
-    if (!strcmp(argv[i], "-h") || !strcmp(argv[i], "--help")) {
-      usage(stdout);
-      return 0;
+  int do_verify = 0, opt;
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":h", LONGOPTS, NULL)) != -1) {
+    switch (opt) {
+    case 'h': usage(stdout); return 0;
+    case 't': pattern = optarg; break;
+    case 'u': user = optarg; break;
+    case 'a': actions = optarg; break;
+    case 'A': atomic = optarg; break;
+    case 'v': do_verify = 1; break;
+    default: return cli_opt_error("log", opt, argv);
     }
-    if ((r = su_opt("log", "--target", argc, argv, &i, &v)) != 0) {
-      if (r < 0) return 2;
-      pattern = v;
-    } else if ((r = su_opt("log", "--user", argc, argv, &i, &v)) != 0) {
-      if (r < 0) return 2;
-      user = v;
-    } else if ((r = su_opt("log", "--action", argc, argv, &i, &v)) != 0) {
-      if (r < 0) return 2;
-      actions = v;
-    } else if ((r = su_opt("log", "--atomic", argc, argv, &i, &v)) != 0) {
-      if (r < 0) return 2;
-      atomic = v;
-    } else if (!strcmp(argv[i], "--verify")) {
-      do_verify = 1;
-    } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
-      cli_errorf("log: unknown option '%s'", argv[i]);
-      usage(stderr);
-      return 2;
-    } else if (!session) {
-      session = argv[i];
-    } else {
-      cli_errorf("log: one session file at a time ('%s' is extra)", argv[i]);
-      return 2;
-    }
+  }
+  if (optind < argc) session = argv[optind++];
+  if (optind < argc) {
+    cli_errorf("log: one session file at a time ('%s' is extra)", argv[optind]);
+    return 2;
   }
   if (!session) {
     usage(stderr);
@@ -371,9 +365,11 @@ int cmd_log(int argc, char **argv) {
     cli_errorf("log: cannot write the output");
     status = 1;
   }
-  if (damaged)
+  if (damaged) {
     fprintf(stderr, "doubletty: %s: %ld damaged line%s skipped\n", session, damaged,
             damaged == 1 ? "" : "s");
+    status = 1;
+  }
   free(rec);
   dt_journal_reader_close(rd);
   return status;

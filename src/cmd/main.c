@@ -1,6 +1,7 @@
 /* doubletty: entry point and subcommand dispatch. */
 #include <stdio.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "commands.h"
 
@@ -22,9 +23,32 @@ static const command commands[] = {
     {"compare", cmd_compare, "two sessions' verdicts side by side, Cohen's kappa"},
 };
 
+/* Levenshtein distance of two short words (insert, delete, substitute);
+ * words beyond 31 characters count as far from everything. */
+static int edit_distance(const char *a, const char *b) {
+  size_t n = strlen(a), m = strlen(b);
+  if (n > 31 || m > 31) return 99;
+  int d[32][32];
+  for (size_t i = 0; i <= n; i++) d[i][0] = (int)i;
+  for (size_t j = 0; j <= m; j++) d[0][j] = (int)j;
+  for (size_t i = 1; i <= n; i++)
+    for (size_t j = 1; j <= m; j++) {
+      int sub = d[i - 1][j - 1] + (a[i - 1] != b[j - 1]);
+      int del = d[i - 1][j] + 1, ins = d[i][j - 1] + 1;
+      d[i][j] = sub < del ? (sub < ins ? sub : ins) : (del < ins ? del : ins);
+    }
+  return d[n][m];
+}
+
+static int is_file(const char *path) {
+  struct stat st;
+  return stat(path, &st) == 0 && !S_ISDIR(st.st_mode);
+}
+
 static void usage(FILE *f) {
   fprintf(f, "usage: doubletty COMMAND [options] ...\n"
-             "       doubletty FILE...          (same as: doubletty inspect FILE...)\n\n"
+             "       doubletty FILE...          (same as: doubletty inspect FILE...,\n"
+             "                                   when FILE exists)\n\n"
              "commands:\n");
   for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
     fprintf(f, "  %-9s %s\n", commands[i].name, commands[i].help);
@@ -46,11 +70,22 @@ int main(int argc, char **argv) {
   }
   for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
     if (!strcmp(argv[1], commands[i].name)) return commands[i].run(argc - 1, argv + 1);
-  if (argv[1][0] == '-' && argv[1][1] != '\0' && strcmp(argv[1], "--list") != 0) {
-    fprintf(stderr, "doubletty: unknown option '%s'\n", argv[1]);
-    usage(stderr);
-    return 2;
+  /* The bare form "doubletty FILE..." (options of inspect first allowed) opens
+   * the inspector; anything else that is not a command is a mistake. */
+  if (argv[1][0] == '-' || is_file(argv[1])) return cmd_inspect(argc, argv);
+  const char *best = NULL;
+  int bestd = 3;
+  for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++) {
+    int d = edit_distance(argv[1], commands[i].name);
+    if (d < bestd) {
+      bestd = d;
+      best = commands[i].name;
+    }
   }
-  /* Anything else is a spectrum file (or inspector option): open the inspector. */
-  return cmd_inspect(argc, argv);
+  if (best)
+    fprintf(stderr, "doubletty: unknown command '%s' (did you mean '%s'?)\n", argv[1], best);
+  else
+    fprintf(stderr, "doubletty: unknown command '%s' (and no such file)\n", argv[1]);
+  fprintf(stderr, "try 'doubletty --help'\n");
+  return 2;
 }

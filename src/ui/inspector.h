@@ -29,7 +29,9 @@ typedef struct dt_inspect_opts {
   const char *dump;        /* write the last screen as text here (or NULL) */
   int width, height;       /* headless screen size (0: 100 x 32) */
   int bench;               /* print per-keystroke timing at the end */
+  /* set by the command, for the inspector to show and use */
   const char *session_path; /* shown at the start (NULL: the journal's path) */
+  int air;                  /* text spectra give air wavelengths */
 } dt_inspect_opts;
 
 void dt_inspect_opts_init(dt_inspect_opts *o);

@@ -74,7 +74,7 @@ printf 'verdict-unsure\nquit\n' >"$W/verdict.keys"
 L="$NPIX-pixel FITS ($(mb "$W/long.fits"))"
 measure "$L" "doubletty info" "$DT" info "$W/long.fits"
 measure "$L" "doubletty fit (R from header)" "$DT" fit "$W/long.fits" -o "$W/long.csv"
-status=$(sed -n '2p' "$W/long.csv" | cut -d, -f9)
+status=$(grep -v '^#' "$W/long.csv" | sed -n '2p' | cut -d, -f9)
 measure "$L" "inspect: open, first pass, quit" "$DT" inspect "$W/long.fits" --session "$W/long.session" \
   --replay-keys "$W/quit.keys"
 rm -f "$W/long.fits" "$W/long.session"

@@ -43,7 +43,8 @@ def read_table(path):
     import csv
     rows = {}
     with open(path) as fh:
-        for r in csv.DictReader(fh):
+        # the settings lines ("# key=value") above the header are not rows
+        for r in csv.DictReader(line for line in fh if not line.startswith("#")):
             name = os.path.basename(r["file"])
             st, comps = rows.setdefault(name, [0, []])
             if r.get("status", "ok") != "ok":
@@ -66,6 +67,8 @@ def main():
     peer, prate = read(sys.argv[1], False)
     with open(sys.argv[2]) as fh:
         first = fh.readline()
+        while first.startswith("#"):  # the settings lines of a fit table
+            first = fh.readline()
     if "component" in first.split(","):
         ours, orate = read_table(sys.argv[2])
     else:

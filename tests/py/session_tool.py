@@ -178,6 +178,15 @@ def make_rich(d):
     w.record(p3, 0, 0, "", "verdict", [("verdict", "none")], st3)
     exp[p3] = {"hdu": 0, "row": 0, "verdict": "none", "note": "", "judged_by": "",
                "comps": st3["comps"], "errs": None, "meas": None, "flags": ""}
+    # spectrum 4: the first pass left a component (log N 15.05), the person
+    # said "not detected": the export is the limit, not that component
+    p4 = "survey/qso04.fits"
+    st4 = {"verdict": "not-detected", "comps": [(15.05, 3.0, 10.0, "")], "fit": None}
+    meas4 = [{"W": 0.004, "W_err": 0.015, "W_lim": 0.045, "logNa": None, "logN_lim": 11.35},
+             {"W": 0.002, "W_err": 0.015, "W_lim": 0.045, "logNa": None, "logN_lim": 11.65}]
+    w.record(p4, 1, 0, SHA_A, "verdict", [("verdict", "not-detected")], st4, meas4)
+    exp[p4] = {"hdu": 1, "row": 0, "verdict": "not-detected", "note": "", "judged_by": "Mira Okonkwo",
+               "comps": st4["comps"], "meas": meas4, "flags": "", "errs": None}
     w.close()
     with open(d + "/rich.json", "w") as f:
         json.dump(exp, f, indent=1)
@@ -228,17 +237,45 @@ def check_export(jpath, csvpath, fitspath, session, version):
     # units
     units = {cols[i].name: (cols[i].unit or "") for i in range(len(cols))}
     for name, unit in [("v_kms", "km / s"), ("b_kms", "km / s"), ("vsys_kms", "km / s"),
-                       ("W_A", "Angstrom"), ("W2_lim_A", "Angstrom")]:
-        want(units.get(name) and u.Unit(units[name], format="fits") == u.Unit(unit),
+                       ("W_mA", "mAngstrom"), ("W_weak_lim_mA", "mAngstrom")]:
+        want(units.get(name) and u.Unit(units[name]) == u.Unit(unit),
              "TUNIT of %s is %s (%s)" % (name, unit, units.get(name)))
-    want(units.get("logN") == "log(cm-2)", "TUNIT of logN is log(cm-2) (FITS 4.0 Table 6 notation)")
+    li = [cols[i].name for i in range(len(cols))].index("logN") + 1
+    want(not units.get("logN") and "column density in cm-2" in hdr.get("TCOMM%d" % li, ""),
+         "logN: no TUNIT astropy cannot parse, a TCOMMn saying log10 cm-2 (%s)" % hdr.get("TCOMM%d" % li))
+    bad_units = []
+    for name, unit in units.items():
+        if unit:
+            try:
+                u.Unit(unit, parse_strict="raise")
+            except ValueError:
+                bad_units.append("%s=%s" % (name, unit))
+    want(not bad_units, "every TUNIT parses in astropy with parse_strict='raise' (%s)" % ", ".join(bad_units))
+    import warnings
+    from astropy.table import Table
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        try:
+            with fits.open(fitspath) as hh:
+                hh.verify("exception")
+                hh[1].header.tostring()
+            Table.read(fitspath, hdu=1)
+            clean = True
+        except Exception as ex:  # any warning is a failure here
+            clean = False
+            print("   %s" % ex)
+    want(clean, "astropy opens and reads the table with warnings as errors")
+    raw = open(fitspath, "rb").read(2880 * 4)
+    hdr_bytes = raw[:raw.find(b"END     ") + 80] if b"END     " in raw else raw
+    want(all(32 <= b < 127 for b in hdr_bytes), "the primary header is printable ASCII")
     want(hdr.get("DTVERSN") == version, "DTVERSN = %s (%s)" % (version, hdr.get("DTVERSN")))
     sha = hashlib.sha256(open(session, "rb").read()).hexdigest()
     want(hdr.get("SESSSHA") == sha, "SESSSHA is the SHA-256 of the session file (hashlib)")
     for path, e in exp.items():
         cr = [r for r in rows if r["file"] == path]
         fr = [i for i in range(len(t)) if t["file"][i].strip() == path]
-        ncomp = len(e["comps"])
+        # a "not detected" spectrum is exported as its limits, without components
+        ncomp = 0 if e["verdict"] == "not-detected" else len(e["comps"])
         want(len(cr) == max(1, ncomp) and len(fr) == len(cr), "%s: one row per component (%d)" % (path, len(cr)))
         if not cr:
             continue
@@ -250,12 +287,12 @@ def check_export(jpath, csvpath, fitspath, session, version):
         want(r0["judged_by"] == e["judged_by"], "%s: judged by '%s'" % (path, e["judged_by"]))
         if "judged_at" in e:
             want(r0["judged_at"] == e["judged_at"], "%s: judged at %s" % (path, e["judged_at"]))
-        want(int(r0["hdu"]) == e["hdu"] and int(r0["row"]) == e["row"] and
+        want(int(r0["hdu"] or 0) == e["hdu"] and int(r0["row"]) == e["row"] and
              int(t["hdu"][f0]) == e["hdu"] and int(t["row"][f0]) == e["row"], "%s: hdu and row" % path)
         want(r0["flags"] == e["flags"], "%s: flags '%s' (%s)" % (path, e["flags"], r0["flags"]))
         if "sha" in e:
             want(r0["sha256"] == e["sha"], "%s: latest file digest" % path)
-        for k, c in enumerate(e["comps"]):
+        for k, c in enumerate(e["comps"][:ncomp]):
             r, fi = cr[k], fr[k]
             ok = (int(r["component"]) == k + 1 and close(float(r["logN"]), c[0]) and close(float(r["b_kms"]), c[1])
                   and close(float(r["v_kms"]), c[2]) and close(t["logN"][fi], c[0]) and close(t["v_kms"][fi], c[2])
@@ -269,25 +306,31 @@ def check_export(jpath, csvpath, fitspath, session, version):
                 want(r["logN_err"] == "" and math.isnan(t["logN_err"][fi]),
                      "%s: component %d without fit errors: empty / NaN" % (path, k + 1))
         if ncomp == 0:
-            want(int(r0["component"]) == 0 and r0["logN"] == "" and math.isnan(t["logN"][f0]),
+            want(int(r0["component"]) == 0 and int(r0["ncomp"]) == 0 and r0["logN"] == "" and
+                 r0["b_kms"] == "" and r0["v_kms"] == "" and math.isnan(t["logN"][f0]),
                  "%s: no components: component 0, empty values" % path)
+        if e["verdict"] == "not-detected" and e.get("meas"):
+            want(close(float(r0["W_lim_mA"]), 1e3 * e["meas"][0]["W_lim"]) and
+                 close(float(r0["logN_limit"]), e["meas"][0]["logN_lim"]),
+                 "%s: not detected: the limits are exported" % path)
         if e.get("chi2") is not None:
             want(close(float(r0["chi2"]), e["chi2"]) and int(r0["dof"]) == e["dof"] and
                  close(float(r0["chi2_red"]), e["chi2"] / e["dof"]), "%s: chi2, dof, chi2_red" % path)
         if e.get("meas"):
             m1, m2 = e["meas"]
-            want(close(float(r0["W_A"]), m1["W"]) and close(float(r0["W_err_A"]), m1["W_err"]) and
-                 close(float(r0["W_lim_A"]), m1["W_lim"]) and close(t["W2_A"][f0], m2["W"]) and
-                 close(float(r0["logN_limit2"]), m2["logN_lim"]), "%s: equivalent widths and limits" % path)
+            # W in mA in both outputs (the session records Angstrom)
+            want(close(float(r0["W_mA"]), 1e3 * m1["W"]) and close(float(r0["W_err_mA"]), 1e3 * m1["W_err"]) and
+                 close(float(r0["W_lim_mA"]), 1e3 * m1["W_lim"]) and close(t["W_weak_mA"][f0], 1e3 * m2["W"]) and
+                 close(float(r0["logN_limit_weak"]), m2["logN_lim"]), "%s: equivalent widths and limits" % path)
             if m1.get("logNa") is not None:
-                want(close(float(r0["logN_aod"]), m1["logNa"]) and close(t["logN_aod2_err"][f0], m2["logNa_err"]),
+                want(close(float(r0["logN_aod"]), m1["logNa"]) and close(t["logN_aod_weak_err"][f0], m2["logNa_err"]),
                      "%s: apparent column densities" % path)
             else:
                 want(r0["logN_aod"] == "" and math.isnan(t["logN_aod"][f0]), "%s: no N_a: empty / NaN" % path)
             want(bool(t["saturated"][f0]) == bool(m1.get("saturated")) and
                  r0["saturated"] == ("1" if m1.get("saturated") else "0"), "%s: saturation flag" % path)
         else:
-            want(r0["W_A"] == "" and math.isnan(t["W_A"][f0]), "%s: nothing measured: empty / NaN" % path)
+            want(r0["W_mA"] == "" and math.isnan(t["W_mA"][f0]), "%s: nothing measured: empty / NaN" % path)
     return 1 if fails else 0
 
 

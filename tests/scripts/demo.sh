@@ -97,7 +97,7 @@ fi
 expect_fail "--count 0" "count.*out of range" "$DT" demo "$TMP/e" --count 0
 expect_fail "--count not a number" "count.*not a whole number" "$DT" demo "$TMP/e" --count many
 expect_fail "--seed negative" "seed.*out of range" "$DT" demo "$TMP/e" --seed -3
-expect_fail "--count without value" "count needs a value" "$DT" demo "$TMP/e" --count
+expect_fail "--count without value" "count' needs a value" "$DT" demo "$TMP/e" --count
 expect_fail "unknown option" "unknown option '--colour'" "$DT" demo "$TMP/e" --colour
 expect_fail "no directory" "no directory given" "$DT" demo
 expect_fail "two directories" "only one directory" "$DT" demo "$TMP/e" "$TMP/f"

@@ -1,0 +1,324 @@
+/* The session table and its two writers, CSV and FITS (see export.h). */
+#include "doubletty/export.h"
+
+#include <fitsio.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "doubletty/csv.h"
+#include "doubletty/targets.h"
+
+/* ---- the table: columns and their values per row ---- */
+
+typedef enum { C_STR, C_INT, C_DBL, C_BOOL } ctype;
+
+typedef struct column {
+  const char *name;
+  ctype type;
+  const char *unit; /* FITS TUNITn ("" for none) */
+} column;
+
+/* log10 N [cm-2] columns: described by TCOMMn instead of a unit. */
+static int is_log(const char *name) { return !strncmp(name, "logN", 4); }
+
+/* Standard FITS units (FITS 4.0 section 4.3); "" is the standard's
+ * notation for a common logarithm of a column density. */
+static const column COLS[] = {
+    {"file", C_STR, ""},          {"name", C_STR, ""},
+    {"hdu", C_INT, ""},
+    {"row", C_INT, ""},           {"verdict", C_STR, ""},
+    {"note", C_STR, ""},          {"judged_by", C_STR, ""},
+    {"judged_at", C_STR, ""},     {"last_user", C_STR, ""},
+    {"last_change", C_STR, ""},   {"changes", C_INT, ""},
+    {"flags", C_STR, ""},         {"sha256", C_STR, ""},
+    {"doublet", C_STR, ""},       {"vsys_kms", C_DBL, "km s-1"},
+    {"ncomp", C_INT, ""},         {"component", C_INT, ""},
+    {"logN", C_DBL, ""}, {"logN_err", C_DBL, ""},
+    {"b_kms", C_DBL, "km s-1"},   {"b_err", C_DBL, "km s-1"},
+    {"v_kms", C_DBL, "km s-1"},   {"v_err", C_DBL, "km s-1"},
+    {"frozen", C_STR, ""},        {"fit_status", C_STR, ""},
+    {"chi2", C_DBL, ""},          {"dof", C_INT, ""},
+    {"chi2_red", C_DBL, ""},      {"W_mA", C_DBL, "10**-3 Angstrom"},
+    {"W_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_lim_mA", C_DBL, "10**-3 Angstrom"},
+    {"logN_aod", C_DBL, ""}, {"logN_aod_err", C_DBL, ""},
+    {"logN_limit", C_DBL, ""}, {"W_weak_mA", C_DBL, "10**-3 Angstrom"},
+    {"W_weak_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_weak_lim_mA", C_DBL, "10**-3 Angstrom"},
+    {"logN_aod_weak", C_DBL, ""}, {"logN_aod_weak_err", C_DBL, ""},
+    {"logN_limit_weak", C_DBL, ""}, {"nsigma", C_DBL, ""},
+    {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
+};
+#define NCOL (sizeof COLS / sizeof COLS[0])
+
+typedef union cell {
+  const char *s;
+  long long i;
+  double d;
+} cell;
+
+/* The file of a session target: the recorded name without the "#DOUBLET"
+ * the inspector appends (the doublet has its own column). */
+static const char *target_file(const char *key, char *buf, size_t n) {
+  const char *slash = strrchr(key, '/');
+  const char *hash = strrchr(slash ? slash : key, '#');
+  if (!hash) return key;
+  snprintf(buf, n, "%.*s", (int)(hash - key), key);
+  return buf;
+}
+
+/* The name column: the file's stem (no directory, no extension, no
+ * "[ext]" selector) while the session records no list name. */
+static const char *target_stem(const char *file, char *buf, size_t n) {
+  const char *slash = strrchr(file, '/');
+  snprintf(buf, n, "%s", slash ? slash + 1 : file);
+  char *br = strchr(buf, '[');
+  if (br) *br = '\0';
+  char *dot = strrchr(buf, '.');
+  if (dot && dot != buf) {
+    if (!strcmp(dot, ".gz") || !strcmp(dot, ".fz")) {
+      *dot = '\0';
+      dot = strrchr(buf, '.');
+    }
+    if (dot && dot != buf) *dot = '\0';
+  }
+  return buf;
+}
+
+/* Rows of one spectrum: one per component, or a single row (component 0)
+ * when there is none -- or when the verdict is "not detected": such a
+ * spectrum is a limit, and its first-pass components are no result. */
+static size_t comp_rows(const dt_journal_entry *en) {
+  if (en->state.verdict == DT_VERDICT_NOT_DETECTED) return 0;
+  return en->state.ncomp;
+}
+
+/* The cells of one row: spectrum en, component k (0 = none). */
+static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags, char *frozen) {
+  static char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
+  const dt_judgement *s = &en->state;
+  const dt_meas_summary *m = &en->meas;
+  dt_meas_summary none;
+  if (!en->has_meas) {
+    dt_meas_summary_clear(&none);
+    m = &none;
+  }
+  flags[0] = '\0';
+  if (en->flags & DT_JFLAG_FILE_CHANGED) strcat(flags, "file-changed");
+  if (en->flags & DT_JFLAG_REPLAY_MISMATCH) {
+    if (flags[0]) strcat(flags, ";");
+    strcat(flags, "replay-mismatch");
+  }
+  /* errors belong to the components only while they are the fit's values */
+  const dt_component *comp = k ? &s->comp[k - 1] : NULL, *err = NULL;
+  if (comp && s->has_fit && s->fit.status == DT_OK && s->fit.ncomp == s->ncomp &&
+      !memcmp(&s->fit.comp[k - 1], comp, sizeof *comp))
+    err = &s->fit.err[k - 1];
+  frozen[0] = '\0';
+  if (comp) dt_freeze_str(s->frozen[k - 1], frozen);
+  static char status[32];
+  if (!s->has_fit) status[0] = '\0';
+  else snprintf(status, sizeof status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
+  size_t i = 0;
+  c[i++].s = target_file(en->target.path, file, sizeof file);
+  c[i++].s = target_stem(file, stem, sizeof stem);
+  c[i++].i = en->target.hdu;
+  c[i++].i = en->target.row;
+  c[i++].s = dt_verdict_name(s->verdict);
+  c[i++].s = s->note;
+  c[i++].s = en->judged_by;
+  c[i++].s = en->judged_at;
+  c[i++].s = en->user;
+  c[i++].s = en->time;
+  c[i++].i = en->nchanges;
+  c[i++].s = flags;
+  c[i++].s = en->target.sha256;
+  c[i++].s = s->doublet;
+  c[i++].d = s->vsys;
+  c[i++].i = (long long)comp_rows(en);
+  c[i++].i = (long long)k;
+  c[i++].d = comp ? comp->logN : NAN;
+  c[i++].d = err ? err->logN : NAN;
+  c[i++].d = comp ? comp->b : NAN;
+  c[i++].d = err ? err->b : NAN;
+  c[i++].d = comp ? comp->v : NAN;
+  c[i++].d = err ? err->v : NAN;
+  c[i++].s = frozen;
+  c[i++].s = status;
+  c[i++].d = s->has_fit ? s->fit.chi2 : NAN;
+  c[i++].i = s->has_fit ? s->fit.dof : -1;
+  c[i++].d = s->has_fit ? s->fit.chi2_red : NAN;
+  for (int l = 0; l < 2; l++) {
+    const dt_meas_line *ml = &m->line[l];
+    c[i++].d = 1e3 * ml->w;
+    c[i++].d = 1e3 * ml->w_err;
+    c[i++].d = 1e3 * ml->w_lim;
+    c[i++].d = ml->logN_aod;
+    c[i++].d = ml->logN_aod_err;
+    c[i++].d = ml->logN_lim;
+  }
+  c[i++].d = m->nsigma;
+  c[i++].i = m->saturated;
+  c[i++].s = m->suggested == DT_VERDICT_NONE ? "" : dt_verdict_name(m->suggested);
+}
+
+/* ---- CSV ---- */
+
+int dt_export_csv(FILE *f, const dt_journal *j) {
+  dt_csv w;
+  dt_csv_init(&w, f);
+  for (size_t c = 0; c < NCOL; c++) dt_csv_text(&w, COLS[c].name);
+  dt_csv_end(&w);
+  cell cells[NCOL];
+  char flags[64], frozen[4];
+  for (size_t i = 0; i < dt_journal_count(j); i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    size_t nc = comp_rows(en);
+    for (size_t k = nc ? 1 : 0; k <= nc; k++) {
+      fill_row(en, k, cells, flags, frozen);
+      for (size_t c = 0; c < NCOL; c++) {
+        switch (COLS[c].type) {
+        case C_STR: dt_csv_text(&w, cells[c].s); break;
+        case C_INT:
+          /* hdu 0 (not FITS) and dof -1 (no fit): unknown, empty */
+          if ((cells[c].i <= 0 && !strcmp(COLS[c].name, "hdu")) ||
+              (cells[c].i < 0 && !strcmp(COLS[c].name, "dof")))
+            dt_csv_empty(&w);
+          else
+            dt_csv_long(&w, (long)cells[c].i);
+          break;
+        case C_BOOL: dt_csv_text(&w, cells[c].i ? "1" : "0"); break;
+        case C_DBL: dt_csv_num(&w, cells[c].d); break;
+        }
+      }
+      dt_csv_end(&w);
+    }
+  }
+  return dt_csv_error(&w) ? DT_EIO : DT_OK;
+}
+
+/* ---- FITS ---- */
+
+static int fits_fail(int status, dt_err *e) {
+  char msg[FLEN_ERRMSG] = "";
+  fits_get_errstatus(status, msg);
+  return dt_err_set(e, DT_EIO, NULL, "cannot write the FITS table: %s", msg);
+}
+
+int dt_export_fits(const char *path, const dt_journal *j, const char *session,
+                   const char *session_sha, const char *version, dt_err *e) {
+  /* string widths: the longest value of each string column */
+  long width[NCOL];
+  for (size_t c = 0; c < NCOL; c++) width[c] = 1;
+  cell cells[NCOL];
+  char flags[64], frozen[4];
+  for (size_t i = 0; i < dt_journal_count(j); i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en); k++) {
+      fill_row(en, k, cells, flags, frozen);
+      for (size_t c = 0; c < NCOL; c++)
+        if (COLS[c].type == C_STR && (long)strlen(cells[c].s) > width[c])
+          width[c] = (long)strlen(cells[c].s);
+    }
+  }
+  char *ttype[NCOL], *tform[NCOL], *tunit[NCOL];
+  char forms[NCOL][24];
+  for (size_t c = 0; c < NCOL; c++) {
+    ttype[c] = (char *)COLS[c].name;
+    tunit[c] = (char *)COLS[c].unit;
+    switch (COLS[c].type) {
+    case C_STR: snprintf(forms[c], sizeof forms[c], "%ldA", width[c]); break;
+    case C_INT: snprintf(forms[c], sizeof forms[c], "K"); break;
+    case C_DBL: snprintf(forms[c], sizeof forms[c], "D"); break;
+    case C_BOOL: snprintf(forms[c], sizeof forms[c], "L"); break;
+    }
+    tform[c] = forms[c];
+  }
+  fitsfile *f = NULL;
+  int st = 0;
+  /* The temporary file we made (mkstemp) is replaced by cfitsio's own,
+   * under its literal name: fits_create_diskfile, because fits_create_file
+   * would read brackets, parentheses or a leading '!' in a user's file
+   * name as cfitsio's extended syntax and write to another file. */
+  unlink(path);
+  fits_create_diskfile(&f, path, &st);
+  if (st) return fits_fail(st, e);
+  fits_create_tbl(f, BINARY_TBL, 0, (int)NCOL, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
+  char creator[64];
+  snprintf(creator, sizeof creator, "doubletty %s", version);
+  fits_update_key_str(f, "CREATOR", creator, "program that wrote this file", &st);
+  fits_update_key_str(f, "DTVERSN", (char *)version, "doubletty version", &st);
+  const char *base = strrchr(session, '/');
+  base = base ? base + 1 : session;
+  char sbase[69];
+  snprintf(sbase, sizeof sbase, "%s", base);
+  /* header strings are ASCII text (FITS 4.0 section 4.2.1) */
+  for (char *p = sbase; *p; p++)
+    if ((unsigned char)*p < 0x20 || (unsigned char)*p > 0x7e) *p = '?';
+  fits_update_key_str(f, "SESSFILE", sbase, "session file (name)", &st);
+  fits_update_key_str(f, "SESSSHA", (char *)session_sha, "SHA-256 of the session file", &st);
+  long long nspec = (long long)dt_journal_count(j);
+  fits_update_key_lng(f, "NSPEC", nspec, "spectra in the session", &st);
+  fits_write_date(f, &st);
+  for (size_t c = 0; c < NCOL; c++) {
+    char key[16];
+    snprintf(key, sizeof key, "TCOMM%zu", c + 1);
+    if (is_log(COLS[c].name) && !strstr(COLS[c].name, "err"))
+      fits_update_key_str(f, key, "log10 of a column density in cm-2", NULL, &st);
+    else if (is_log(COLS[c].name))
+      fits_update_key_str(f, key, "1-sigma error of a log10 column density", NULL, &st);
+    int dof = !strcmp(COLS[c].name, "dof"), hdu = !strcmp(COLS[c].name, "hdu");
+    if (dof || hdu) { /* dof -1: no fit; hdu 0: not a FITS file */
+      snprintf(key, sizeof key, "TNULL%zu", c + 1);
+      fits_update_key_lng(f, key, dof ? -1 : 0, dof ? "no fit" : "not a FITS file", &st);
+    }
+  }
+  if (st) {
+    fits_close_file(f, &st);
+    return fits_fail(st, e);
+  }
+  /* row by row: cfitsio buffers the table, so this is not slow */
+  long long row = 0;
+  for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en) && !st; k++) {
+      fill_row(en, k, cells, flags, frozen);
+      row++;
+      for (size_t c = 0; c < NCOL && !st; c++) {
+        int col = (int)c + 1;
+        switch (COLS[c].type) {
+        case C_STR: {
+          char *s = (char *)cells[c].s;
+          if (!*s) s = " "; /* cfitsio writes an empty string as blanks anyway */
+          fits_write_col(f, TSTRING, col, row, 1, 1, &s, &st);
+          break;
+        }
+        case C_INT: {
+          LONGLONG v = cells[c].i;
+          fits_write_col(f, TLONGLONG, col, row, 1, 1, &v, &st);
+          break;
+        }
+        case C_DBL: {
+          double v = cells[c].d;
+          fits_write_col(f, TDOUBLE, col, row, 1, 1, &v, &st);
+          break;
+        }
+        case C_BOOL: {
+          char v = cells[c].i ? 1 : 0;
+          fits_write_col(f, TLOGICAL, col, row, 1, 1, &v, &st);
+          break;
+        }
+        }
+      }
+    }
+  }
+  if (st) {
+    int st2 = 0;
+    fits_close_file(f, &st2);
+    return fits_fail(st, e);
+  }
+  fits_close_file(f, &st);
+  if (st) return fits_fail(st, e);
+  return DT_OK;
+}
+
