@@ -11,6 +11,7 @@ DT=${DT:-$BUILD/doubletty}
 SHARED=${SHARED:-$ROOT/../shared}
 T_PASS=0; T_FAIL=0
 TMP=$(mktemp -d "${TMPDIR:-/tmp}/dt-test.XXXXXX")
+# KEEP=1 keeps the test's temporary directory for a look after a failure
 trap '[ -n "${KEEP:-}" ] || rm -rf "$TMP"' EXIT
 
 PY=
