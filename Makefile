@@ -5,7 +5,7 @@
 #   make bench        benchmarks against the Python/SciPy peer
 #   make install PREFIX=/usr/local
 #   make deps         install the Debian/Ubuntu packages (apt-get, as root or via sudo)
-#   make sanitize     ASan+UBSan build running the whole suite
+#   make sanitize     ASan+UBSan build running the whole suite, then valgrind
 
 CC       ?= cc
 PREFIX   ?= /usr/local
@@ -15,7 +15,7 @@ VERSION  := 0.1.0
 PKGS      := gsl cfitsio libcerf ncursesw libcrypto
 DEB_PKGS  := build-essential pkg-config libgsl-dev libcfitsio-dev libcerf-dev \
              libncurses-dev libssl-dev
-TEST_DEBS := locales python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time clang libclang-rt-14-dev
+TEST_DEBS := locales python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time e2fsprogs util-linux clang libclang-rt-14-dev
 
 PKG_OK := $(shell pkg-config --exists $(PKGS) 2>/dev/null && echo yes)
 ifneq ($(PKG_OK),yes)
@@ -93,9 +93,13 @@ check: tests
 bench: $(BIN)
 	@BUILD=$(BUILD) sh tests/bench/run
 
+# The slow tier runs here: the whole suite under ASan+UBSan, then the
+# valgrind memcheck (tests marked "# tier: sanitize") on the plain build.
 sanitize:
 	$(MAKE) BUILD=build-san OPT="-O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
 	  LDFLAGS="-fsanitize=address,undefined" check
+	$(MAKE) tests
+	@BUILD=$(BUILD) TIER=sanitize sh tests/run valgrind_memcheck
 
 # Coverage-guided fuzzing with libFuzzer (clang): the libraries are built
 # with coverage instrumentation and sanitizers into build-fuzz/, then

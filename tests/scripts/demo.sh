@@ -87,13 +87,10 @@ check "--force keeps the other files" grep -q keep "$TMP/mine/notes.txt"
 echo x >"$TMP/plainfile"
 expect_fail "DIR is a regular file" "plainfile: .*not a directory" "$DT" demo "$TMP/plainfile"
 expect_fail "DIR below a regular file" "plainfile/sub: .*(cannot create|Not a directory)" "$DT" demo "$TMP/plainfile/sub"
-if [ "$(id -u)" != 0 ]; then
-  mkdir -p "$TMP/ro" && chmod 555 "$TMP/ro"
-  expect_fail "read-only directory" "ro: .*cannot write" "$DT" demo "$TMP/ro"
-  chmod 755 "$TMP/ro"
-else
-  skip "read-only directory (running as root, permissions do not apply)"
-fi
+mkdir -p "$TMP/ro" && chmod 555 "$TMP/ro"
+expect_fail "read-only directory" "ro: .*cannot write" unprivileged "$DT" demo "$TMP/ro"
+check "... and nothing was written into it" test -z "$(ls -A "$TMP/ro")"
+chmod 755 "$TMP/ro"
 expect_fail "--count 0" "count.*out of range" "$DT" demo "$TMP/e" --count 0
 expect_fail "--count not a number" "count.*not a whole number" "$DT" demo "$TMP/e" --count many
 expect_fail "--seed negative" "seed.*out of range" "$DT" demo "$TMP/e" --seed -3

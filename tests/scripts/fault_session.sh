@@ -16,7 +16,7 @@
 . "$(dirname "$0")/fault_tmux.inc"
 
 if [ "$HAVE_TMUX" -ne 1 ]; then
-  skip "session-file faults (no tmux)"
+  missing tmux "session-file faults"
   finish
   exit $?
 fi

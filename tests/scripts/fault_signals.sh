@@ -15,7 +15,7 @@
 . "$(dirname "$0")/fault_tmux.inc"
 
 if [ "$HAVE_TMUX" -ne 1 ]; then
-  skip "signal faults (no tmux)"
+  missing tmux "signal faults"
   finish
   exit $?
 fi
@@ -108,7 +108,7 @@ if command -v setsid >/dev/null 2>&1; then
   check "terminal lost: the verdict is on record" test "$(judged_in "$TMP/lost.session")" -eq 1
   $T new-session -d -s dt -x 100 -y 32 "sh"
 else
-  skip "terminal lost without a signal (no setsid)"
+  missing setsid "terminal lost without a signal"
 fi
 
 # ---- kill -9 at several points

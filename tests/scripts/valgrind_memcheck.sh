@@ -8,11 +8,12 @@
 # --verify, export to CSV and FITS, compare).  Each run must report no
 # memory error and no definitely or indirectly lost block (the curses
 # library keeps some memory reachable until exit by design: "still
-# reachable" is not counted).  SKIPPED when valgrind is not installed.
+# reachable" is not counted).  FAILS when valgrind is not installed.
+# Slow: it runs in `make sanitize` (on the plain build), not `make check`.
+# tier: sanitize
 . "$(dirname "$0")/../lib.sh"
 
-if ! command -v valgrind >/dev/null 2>&1; then
-  skip "valgrind memcheck (valgrind is not installed)"
+if ! need_tool valgrind "valgrind memcheck"; then
   finish
   exit $?
 fi

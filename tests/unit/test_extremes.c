@@ -191,8 +191,8 @@ static int finite_or_inf(double x) { return isfinite(x) || x == INFINITY; }
 
 static void check_fit_result(const char *who, const xcase *c, int st, const dt_fit_result *r) {
   CHECK(known_status(st), "%s %s: status %d is a known code (%s)", c->name, who, st, dt_status_str(st));
-  CHECK(r->status == st || st != DT_OK, "%s %s: result status %d matches the return", c->name, who,
-        r->status);
+  CHECK(r->status == st, "%s %s: result status %d (%s) matches the return", c->name, who,
+        r->status, dt_status_str(r->status));
   if (st != DT_OK && st != DT_ENOCONV) return;
   int params = 1, errs = 1;
   for (size_t k = 0; k < r->ncomp && k < DT_MAX_COMP; k++) {
