@@ -113,8 +113,8 @@ static void usage(FILE *f) {
           "  --shard K/N             only inputs with index %% N == K (0 <= K < N)\n"
           "  -o, --output FILE       write the CSV to FILE (default: standard output)\n"
           "  --force                 replace FILE if it exists (never an input)\n"
-          "  --air                   text spectra give air wavelengths (not yet\n"
-          "                          supported by the reader: refused)\n"
+          "  --air                   wavelengths are in air where a file does not say\n"
+          "                          (converted to vacuum; a list line may say 'air')\n"
           "Command-line settings override a list's; they head the CSV as '# key=value'\n"
           "lines.  R below 100 is refused.  Summary on standard error;\n"
           "exit status 1 when any spectrum failed, 2 for bad options.\n");
@@ -334,6 +334,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
   dt_read_opts ro = c->ropts;
   ro.row = row;
+  if (t->air) ro.air = 1;
   dt_spectrum *s = NULL;
   dt_analysis *an = NULL;
   int st = dt_spectrum_read(t->path, &ro, &s, &e);
@@ -448,6 +449,7 @@ static void run_list(run *r, const char *path) {
     take_bad(r, path, &e);
     return;
   }
+  if (r->cfg->air) dt_targets_set_air(l, 1);
   dt_target_spec *t = malloc(sizeof *t);
   if (!t) {
     dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
@@ -727,7 +729,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case O_SHARD: return parse_shard(v, &c->shard_k, &c->shard_n);
   case 'o': c->out_path = v; return 0;
   case O_FORCE: c->force = 1; return 0;
-  case O_AIR: c->air = 1; return cli_air_unsupported("fit") ? 1 : 0;
+  case O_AIR: c->air = 1; c->ropts.air = 1; return 0;
   }
   return 1;
 }

@@ -69,10 +69,10 @@ static void print_block(const char *file, const dt_spectrum *s, long nrows, cons
   printf("%swavelength  %.4f .. %.4f A vacuum (file unit: %s)\n", p, s->wave[0], s->wave[n - 1],
          s->unit[0] ? s->unit : "Angstrom");
   printf("%sair         %s\n", p,
-         s->air ? "converted air to vacuum (IAU, Morton 2000)"
-         : !strcmp(s->layout, "text") && !o->air
-             ? "no: assumed vacuum (a text file does not say)"
-             : "no (vacuum in the file)");
+         s->air ? (s->air_from == DT_AIRVAC_CALLER ? "air as declared, converted to vacuum (IAU, Morton 2000)"
+                                                   : "converted air to vacuum (IAU, Morton 2000)")
+         : s->air_from == DT_AIRVAC_ASSUMED ? "no: assumed vacuum (the file does not say)"
+                                            : "no (vacuum in the file)");
   printf("%spixel-size  %.3f km/s\n", p, dt_spectrum_pixel_kms(s));
   printf("%smedian-snr  %.2f\n", p, dt_spectrum_median_snr(s));
   printf("%ssigma       %s\n", p,
@@ -131,7 +131,7 @@ int cmd_info(int argc, char **argv) {
     switch (opt) {
     case 'h': usage(stdout); free(files); return 0;
     case 'p': o.pixels = 1; break;
-    case 'a': free(files); return cli_air_unsupported("info");
+    case 'a': o.read.air = 1; o.air = 1; break;
     case 'r':
       if (cli_parse_long("--row", v, &o.read.row)) goto usage_error;
       if (o.read.row < 1) {
