@@ -40,7 +40,7 @@
  * from the cell mean reach the neighbouring cells through the kernel moved
  * by their offsets (its Hermite expansion); with no LSF or a narrower one,
  * a cell cut by a pixel edge gives each pixel what lies on its side.
- * model.c (sub_setup) gives the rules; the result: the equivalent width of
+ * model_narrow.c (sub_setup) gives the rules; the result: the equivalent width of
  * a narrow line within ~3e-4 of itself (tests/unit/test_model.c: b = 0.3-5
  * km/s, log N 10-15 on 0.5 and 1 A pixels), pixel values within ~1e-3 of
  * the depth beyond the grid's usual sampling of the convolved profile, and
