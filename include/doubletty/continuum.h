@@ -37,9 +37,9 @@
 #define DOUBLETTY_CONTINUUM_H
 #include <stddef.h>
 #include "doubletty/atomic.h"
-#include "doubletty/judge.h"      /* dt_window (vacuum Angstrom) */
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
+#include "doubletty/window.h"
 
 #define DT_CONT_MAX_ORDER 7       /* Legendre order at most (DT_MAX_CONT - 1) */
 #define DT_CONT_MAX_COEF 64       /* spline coefficients at most */

@@ -33,7 +33,6 @@
  * pair, so a few of those are cached by size and created only when a new
  * size is seen -- never inside the iteration. */
 #include "doubletty/fit.h"
-#include "doubletty/judge.h"
 
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
