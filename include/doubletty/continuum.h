@@ -37,6 +37,7 @@
 #define DOUBLETTY_CONTINUUM_H
 #include <stddef.h>
 #include "doubletty/atomic.h"
+#include "doubletty/legendre.h"   /* the polynomial basis, dt_legendre */
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
 #include "doubletty/window.h"
@@ -110,8 +111,5 @@ int dt_cont_fit(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t i1,
  * evaluation uses scratch space of the workspace.) */
 int dt_cont_eval(dt_cont_work *w, double lambda, double *c, double *err);
 
-/* Legendre polynomials P_0..P_order at x (Bonnet's recursion,
- * (n+1) P_{n+1} = (2n+1) x P_n - n P_{n-1}; Abramowitz & Stegun 22.7.10). */
-void dt_legendre(double x, int order, double *p);
 
 #endif

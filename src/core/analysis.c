@@ -15,12 +15,12 @@
  * the integration does not default to the whole window. */
 #include "doubletty/analysis.h"
 
-#include <gsl/gsl_sf_legendre.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "doubletty/continuum.h"
+#include "doubletty/legendre.h"
 #include "doubletty/measure.h"
 #include "doubletty/model.h"
 
@@ -440,15 +440,7 @@ static void set_continuum(dt_analysis *a, const double *coef, size_t ncoef) {
   size_t n = a->n;
   const double *w = a->s->wave + a->i0;
   for (size_t i = 0; i < n; i++) {
-    double poly = 1.0;
-    if (ncoef > 0) {
-      double pl[DT_MAX_CONT];
-      double x = w[n - 1] > w[0] ? 2.0 * (w[i] - w[0]) / (w[n - 1] - w[0]) - 1.0 : 0.0;
-      if (ncoef == 1) pl[0] = 1.0;
-      else gsl_sf_legendre_Pl_array((int)ncoef - 1, x, pl);
-      poly = 0;
-      for (size_t k = 0; k < ncoef; k++) poly += coef[k] * pl[k];
-    }
+    double poly = dt_legendre_sum(coef, ncoef, dt_legendre_x(w[i], w[0], w[n - 1]));
     a->poly[i] = poly;
     a->cont[i] = a->cont_fixed[i] * poly;
   }
