@@ -160,7 +160,17 @@ const double *dt_model_fine_tau(const dt_model *m);
 int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp,
                   double *flux, double *jac, size_t ldj);
 
-/* Voigt function H(a, u) = Re w(u + i a) (libcerf). */
+/* The Voigt function H(a, u) = Re w(u + i a).
+ *
+ * Given: a >= 0, the damping parameter Gamma/(4 pi dnu_D); u, the distance
+ *   from the line centre in Doppler widths.
+ * Returned: H(a, u); integral over u is sqrt(pi), H(0, u) = exp(-u^2).
+ * Notes: w is the Faddeeva function from libcerf (w_of_z); it meets
+ *   H(a, 0) = erfcx(a) and H(0, u) = exp(-u^2) to 1e-12 relative
+ *   (tests/unit/test_voigt.c).  dt_model_eval interpolates it in tables
+ *   (model_voigt.c); this is the exact value.
+ * References: Armstrong 1967, JQSRT 7, 61 (H as Re w, from memory);
+ *   Abramowitz & Stegun 1964, 7.1.3 (w). */
 double dt_voigt_H(double a, double u);
 
 /* Unconvolved, untruncated optical depth of one line of one component at a
