@@ -36,15 +36,19 @@ LDLIBS   += $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lm
 CORE_SRC := $(sort $(wildcard src/core/*.c))
 UI_SRC   := $(sort $(wildcard src/ui/*.c))
 CMD_SRC  := $(sort $(wildcard src/cmd/*.c))
+DEMO_SRC := $(sort $(wildcard src/demo/*.c))
 TEST_SRC := $(sort $(wildcard tests/unit/test_*.c))
 
 CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o) $(BUILD)/gen/atomic_builtin.o
 UI_OBJ   := $(UI_SRC:%.c=$(BUILD)/%.o)
 CMD_OBJ  := $(CMD_SRC:%.c=$(BUILD)/%.o)
+DEMO_OBJ := $(DEMO_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 
 LIBCORE  := $(BUILD)/libdoubletty.a
 LIBUI    := $(BUILD)/libdoubletty-ui.a
+# The demo survey writer (src/demo): part of the program, not of the core.
+LIBDEMO  := $(BUILD)/libdoubletty-demo.a
 BIN      := $(BUILD)/doubletty
 
 .PHONY: all check bench install uninstall deps clean sanitize fuzz tests
@@ -72,13 +76,19 @@ $(BUILD)/gen/atomic_builtin.o: $(BUILD)/gen/atomic_builtin.c
 	$(CC) $(CPPFLAGS) $(CFLAGS) -c $< -o $@
 
 $(LIBCORE): $(CORE_OBJ)
-	$(AR) rcs $@ $^
+	rm -f $@ && $(AR) rcs $@ $^
 
 $(LIBUI): $(UI_OBJ)
-	$(AR) rcs $@ $^
+	rm -f $@ && $(AR) rcs $@ $^
 
-$(BIN): $(CMD_OBJ) $(LIBUI) $(LIBCORE)
-	$(CC) $(CFLAGS) $(LDFLAGS) $(CMD_OBJ) $(LIBUI) $(LIBCORE) $(LDLIBS) -o $@
+$(LIBDEMO): $(DEMO_OBJ)
+	rm -f $@ && $(AR) rcs $@ $^
+
+# The commands see the demo's header (src/demo/demo.h).
+$(CMD_OBJ): CPPFLAGS += -Isrc/demo
+
+$(BIN): $(CMD_OBJ) $(LIBUI) $(LIBDEMO) $(LIBCORE)
+	$(CC) $(CFLAGS) $(LDFLAGS) $(CMD_OBJ) $(LIBUI) $(LIBDEMO) $(LIBCORE) $(LDLIBS) -o $@
 
 # Unit tests link the core and the pure parts of the UI (no terminal needed).
 $(BUILD)/tests/%: tests/unit/%.c tests/harness.h tests/fixtures.h $(LIBUI) $(LIBCORE)
@@ -110,7 +120,7 @@ FUZZ_SECONDS ?= 60
 FUZZ_SAN     := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
 fuzz:
 	$(MAKE) BUILD=build-fuzz CC=$(FUZZ_CC) OPT="-O1 -g -fsanitize=fuzzer-no-link $(FUZZ_SAN)" \
-	  build-fuzz/libdoubletty.a build-fuzz/libdoubletty-ui.a
+	  build-fuzz/libdoubletty.a build-fuzz/libdoubletty-ui.a build-fuzz/libdoubletty-demo.a
 	@FUZZ_CC="$(FUZZ_CC)" FUZZ_SECONDS="$(FUZZ_SECONDS)" FUZZ_TARGETS="$(FUZZ_TARGETS)" FUZZ_BUILD=build-fuzz \
 	  FUZZ_CFLAGS="$(CPPFLAGS) $(CSTD) $(WARN) -O1 -g $(FUZZ_SAN) $(shell pkg-config --cflags $(PKGS) 2>/dev/null)" \
 	  FUZZ_LIBS="$(LDLIBS)" sh tests/fuzz/run
@@ -132,4 +142,4 @@ deps:
 clean:
 	rm -rf build build-san build-fuzz
 
--include $(CORE_OBJ:.o=.d) $(UI_OBJ:.o=.d) $(CMD_OBJ:.o=.d)
+-include $(CORE_OBJ:.o=.d) $(UI_OBJ:.o=.d) $(CMD_OBJ:.o=.d) $(DEMO_OBJ:.o=.d)

@@ -37,9 +37,10 @@
 #define DOUBLETTY_CONTINUUM_H
 #include <stddef.h>
 #include "doubletty/atomic.h"
-#include "doubletty/judge.h"      /* dt_window (vacuum Angstrom) */
+#include "doubletty/legendre.h"   /* the polynomial basis, dt_legendre */
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
+#include "doubletty/window.h"
 
 #define DT_CONT_MAX_ORDER 7       /* Legendre order at most (DT_MAX_CONT - 1) */
 #define DT_CONT_MAX_COEF 64       /* spline coefficients at most */
@@ -110,8 +111,5 @@ int dt_cont_fit(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t i1,
  * evaluation uses scratch space of the workspace.) */
 int dt_cont_eval(dt_cont_work *w, double lambda, double *c, double *err);
 
-/* Legendre polynomials P_0..P_order at x (Bonnet's recursion,
- * (n+1) P_{n+1} = (2n+1) x P_n - n P_{n-1}; Abramowitz & Stegun 22.7.10). */
-void dt_legendre(double x, int order, double *p);
 
 #endif

@@ -13,7 +13,7 @@
  *   ln b = lo + (hi - lo) / (1 + exp(-u))      lo, hi = ln DT_FIT_B_MIN/MAX
  *   v    = vlo + (vhi - vlo) / (1 + exp(-u))   the problem's velocity window
  * Starting values on or beyond a bound are moved just inside it.  Frozen
- * parameters (DT_FREEZE_* bits of judge.h) keep their initial values and are
+ * parameters (DT_FREEZE_* bits, below) keep their initial values and are
  * not fitted.  tie_b: all components share one b, starting from (and frozen
  * with) component 0's; its error is reported on component 0 only.
  *
@@ -39,6 +39,10 @@
 #include "doubletty/status.h"
 
 #define DT_MAX_CONT 8   /* continuum polynomial coefficients at most */
+
+/* Parameters held at their initial values, per component (a judgement's
+ * frozen[] and a problem's frozen use these bits). */
+enum { DT_FREEZE_N = 1, DT_FREEZE_B = 2, DT_FREEZE_V = 4 };
 
 typedef struct dt_fit_result {
   int status;                      /* DT_OK, DT_ENOCONV, DT_EMASKED, ... */

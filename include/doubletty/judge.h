@@ -12,6 +12,7 @@
 #include <stddef.h>
 #include "doubletty/fit.h"
 #include "doubletty/model.h"
+#include "doubletty/window.h"
 
 #define DT_MAX_WINDOWS 32
 #define DT_NOTE_MAX 512
@@ -27,10 +28,6 @@ typedef enum dt_verdict {
 /* "none", "detected", "not-detected", "unsure", "unusable" */
 const char *dt_verdict_name(dt_verdict v);
 int dt_verdict_parse(const char *s, dt_verdict *v);   /* DT_OK or DT_EINVAL */
-
-enum { DT_FREEZE_N = 1, DT_FREEZE_B = 2, DT_FREEZE_V = 4 };
-
-typedef struct dt_window { double lo, hi; } dt_window;   /* vacuum Angstrom */
 
 typedef struct dt_judgement {
   char doublet[16];           /* doublet name, e.g. "NaI" */

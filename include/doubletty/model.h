@@ -40,7 +40,7 @@
  * from the cell mean reach the neighbouring cells through the kernel moved
  * by their offsets (its Hermite expansion); with no LSF or a narrower one,
  * a cell cut by a pixel edge gives each pixel what lies on its side.
- * model.c (sub_setup) gives the rules; the result: the equivalent width of
+ * model_narrow.c (sub_setup) gives the rules; the result: the equivalent width of
  * a narrow line within ~3e-4 of itself (tests/unit/test_model.c: b = 0.3-5
  * km/s, log N 10-15 on 0.5 and 1 A pixels), pixel values within ~1e-3 of
  * the depth beyond the grid's usual sampling of the convolved profile, and
@@ -160,7 +160,17 @@ const double *dt_model_fine_tau(const dt_model *m);
 int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp,
                   double *flux, double *jac, size_t ldj);
 
-/* Voigt function H(a, u) = Re w(u + i a) (libcerf). */
+/* The Voigt function H(a, u) = Re w(u + i a).
+ *
+ * Given: a >= 0, the damping parameter Gamma/(4 pi dnu_D); u, the distance
+ *   from the line centre in Doppler widths.
+ * Returned: H(a, u); integral over u is sqrt(pi), H(0, u) = exp(-u^2).
+ * Notes: w is the Faddeeva function from libcerf (w_of_z); it meets
+ *   H(a, 0) = erfcx(a) and H(0, u) = exp(-u^2) to 1e-12 relative
+ *   (tests/unit/test_voigt.c).  dt_model_eval interpolates it in tables
+ *   (model_voigt.c); this is the exact value.
+ * References: Armstrong 1967, JQSRT 7, 61 (H as Re w, from memory);
+ *   Abramowitz & Stegun 1964, 7.1.3 (w). */
 double dt_voigt_H(double a, double u);
 
 /* Unconvolved, untruncated optical depth of one line of one component at a

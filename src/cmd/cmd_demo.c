@@ -10,7 +10,7 @@
 
 #include "cli.h"
 #include "commands.h"
-#include "doubletty/demo.h"
+#include "demo.h"
 
 static void usage(FILE *f) {
   fprintf(f,

@@ -15,12 +15,12 @@
  * the integration does not default to the whole window. */
 #include "doubletty/analysis.h"
 
-#include <gsl/gsl_sf_legendre.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "doubletty/continuum.h"
+#include "doubletty/legendre.h"
 #include "doubletty/measure.h"
 #include "doubletty/model.h"
 
@@ -173,17 +173,12 @@ static double lsf_fwhm(const dt_judgement *j) {
   return 0;
 }
 
-/* Choose the pixels, check coverage and masking, (re)build the model and
- * the continuum.  Everything the fit and the measurements need. */
-static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
-  const dt_spectrum *s = a->s;
-  dt_err_clear(e);
-  memset(out, 0, sizeof *out);
-  out->fit_status = DT_OK;
-  a->have_run = 0;
+/* prepare, stage 1: the judgement's settings are usable; *dp: its doublet. */
+static int check_settings(const dt_analysis *a, const dt_judgement *j, const dt_doublet **dp,
+                          dt_err *e) {
   const dt_doublet *d = dt_atomic_find(a->t, j->doublet);
   if (!d) return dt_err_set(e, DT_ENOTFOUND, "doublet", "unknown doublet '%s'", j->doublet);
-  out->doublet = d;
+  *dp = d;
   if (!(isfinite(j->vlo) && isfinite(j->vhi) && j->vlo < j->vhi))
     return dt_err_set(e, DT_EINVAL, "window", "empty velocity window [%g, %g] km/s", j->vlo,
                       j->vhi);
@@ -194,9 +189,15 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
   if (j->cont_order < -1 || j->cont_order > DT_CONT_MAX_ORDER)
     return dt_err_set(e, DT_EINVAL, "continuum", "continuum order %d outside -1..%d",
                       j->cont_order, DT_CONT_MAX_ORDER);
-  if (s->n < 2) return dt_err_set(e, DT_ERANGE, "spectrum", "fewer than 2 pixels");
+  if (a->s->n < 2) return dt_err_set(e, DT_ERANGE, "spectrum", "fewer than 2 pixels");
+  return DT_OK;
+}
 
-  /* Each line's window in wavelength; both must be at least half covered. */
+/* prepare, stage 2: the pixels i0..i1-1 covering both lines' windows (each
+ * at least half covered), their velocities and the fit mask. */
+static int select_pixels(dt_analysis *a, const dt_judgement *j, const dt_doublet *d,
+                         dt_analysis_out *out, size_t *i1p, dt_err *e) {
+  const dt_spectrum *s = a->s;
   double lo = INFINITY, hi = -INFINITY;
   for (int l = 0; l < 2; l++) {
     const dt_line *ln = &d->line[l];
@@ -241,127 +242,176 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
   a->i0 = i0;
   a->n = n;
   a->fwhm_kms = lsf_fwhm(j);
+  *i1p = i1;
+  return DT_OK;
+}
 
-  /* the model, rebuilt only when its settings change */
+/* prepare, stage 3: the model (and the fit workspace), rebuilt only when
+ * its settings change. */
+static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet *d, dt_err *e) {
+  const size_t i0 = a->i0, n = a->n;
   model_key mk;
   memset(&mk, 0, sizeof mk);
   mk.doublet = d; mk.vsys = j->vsys; mk.resolution = j->resolution; mk.fwhm = j->fwhm_kms;
   mk.vlo = j->vlo; mk.vhi = j->vhi; mk.tau_cut = a->opts.tau_cut;
   mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n;
-  if (!a->have_model || memcmp(&mk, &a->mkey, sizeof mk) != 0) {
-    dt_model_free(a->m);
-    a->have_model = 0;
-    dt_model_config cfg;
-    memset(&cfg, 0, sizeof cfg);
-    cfg.doublet = d;
-    cfg.vsys = j->vsys;
-    cfg.resolution = j->resolution;
-    cfg.fwhm_kms = j->fwhm_kms;
-    cfg.oversample = a->opts.oversample;
-    cfg.tau_cut = a->opts.tau_cut;
-    dt_err me;
-    dt_err_clear(&me);
-    a->m = dt_model_alloc(s->wave + i0, n, &cfg, DT_MAX_COMP, &me);
-    if (!a->m) {
-      if (me.code == DT_OK) dt_err_set(&me, DT_ENOMEM, NULL, "out of memory");
-      if (e) *e = me;
-      return me.code;
-    }
-    if (!a->fw || a->fw_cap < n) {
-      dt_fit_free(a->fw);
-      a->fw = dt_fit_alloc(n, DT_MAX_COMP, DT_MAX_CONT);
-      a->fw_cap = n;
-      if (!a->fw) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
-    }
-    a->mkey = mk;
-    a->have_model = 1;
+  if (a->have_model && memcmp(&mk, &a->mkey, sizeof mk) == 0) return DT_OK;
+  dt_model_free(a->m);
+  a->have_model = 0;
+  dt_model_config cfg;
+  memset(&cfg, 0, sizeof cfg);
+  cfg.doublet = d;
+  cfg.vsys = j->vsys;
+  cfg.resolution = j->resolution;
+  cfg.fwhm_kms = j->fwhm_kms;
+  cfg.oversample = a->opts.oversample;
+  cfg.tau_cut = a->opts.tau_cut;
+  dt_err me;
+  dt_err_clear(&me);
+  a->m = dt_model_alloc(a->s->wave + i0, n, &cfg, DT_MAX_COMP, &me);
+  if (!a->m) {
+    if (me.code == DT_OK) dt_err_set(&me, DT_ENOMEM, NULL, "out of memory");
+    if (e) *e = me;
+    return me.code;
   }
+  if (!a->fw || a->fw_cap < n) {
+    dt_fit_free(a->fw);
+    a->fw = dt_fit_alloc(n, DT_MAX_COMP, DT_MAX_CONT);
+    a->fw_cap = n;
+    if (!a->fw) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  }
+  a->mkey = mk;
+  a->have_model = 1;
+  return DT_OK;
+}
 
-  /* the continuum, refitted only when its settings change */
+/* The continuum's region r0..r1-1: the selection i0..i1-1, widened to take
+ * in the user windows.  The automatic continuum needs the spectrum around
+ * the lines: the selection widened by the margin on both sides, with each
+ * line's whole velocity window excluded (absorption may be anywhere in it;
+ * sigma clipping takes care of anything else). */
+static void cont_region(const dt_spectrum *s, const cont_key *ck, size_t i0, size_t i1,
+                        size_t *r0p, size_t *r1p) {
+  size_t r0 = i0, r1 = i1;
+  if (ck->nwin == 0 && ck->margin > 0) {
+    double f = ck->margin / DT_C_KMS;
+    r0 = dt_spectrum_index(s, s->wave[i0] * (1.0 - f));
+    r1 = dt_spectrum_index(s, s->wave[i1 - 1] * (1.0 + f));
+    if (r0 > i0) r0 = i0;
+    if (r1 < i1) r1 = i1;
+  }
+  for (size_t k = 0; k < ck->nwin; k++) {
+    size_t w0 = dt_spectrum_index(s, ck->win[k].lo), w1 = dt_spectrum_index(s, ck->win[k].hi);
+    if (w1 <= w0) continue;
+    if (w0 < r0) r0 = w0;
+    if (w1 > r1) r1 = w1;
+  }
+  *r0p = r0;
+  *r1p = r1;
+}
+
+/* The fitted continuum over the selection (order >= 0). */
+static int fit_continuum(dt_analysis *a, const dt_judgement *j, const dt_doublet *d,
+                         const cont_key *ck, size_t i1, dt_err *e) {
+  const dt_spectrum *s = a->s;
+  const size_t i0 = a->i0, n = a->n;
+  size_t r0, r1;
+  cont_region(s, ck, i0, i1, &r0, &r1);
+  int st = ensure_rcap(a, r1 - r0);
+  if (st) return dt_err_set(e, st, NULL, "out of memory");
+  dt_cont_opts co;
+  dt_cont_opts_init(&co);
+  co.kind = DT_CONT_LEGENDRE;
+  co.order = j->cont_order;
+  co.nwin = ck->nwin;
+  co.win = ck->win;
+  co.doublet = d;
+  co.vsys = j->vsys;
+  if (ck->margin > 0) {
+    co.exclude_lo = j->vlo;
+    co.exclude_hi = j->vhi;
+  }
+  co.allow_lower = 1;
+  dt_cont_result cr;
+  st = dt_cont_fit(a->cw, s, r0, r1, &co, a->rcont, a->rerr, NULL, &cr, &a->cont_e);
+  if (st != DT_OK) {
+    a->cont_status = st;
+    if (e) *e = a->cont_e;
+    return st;
+  }
+  int bad = 0;
+  for (size_t i = 0; i < n; i++) {
+    a->cont_fixed[i] = a->rcont[i0 - r0 + i];
+    a->cont_err[i] = a->rerr[i0 - r0 + i];
+    if (!(a->cont_fixed[i] > 0) || !isfinite(a->cont_fixed[i])) bad = 1;
+  }
+  /* The settings were valid (checked above) and the fit itself worked,
+   * so a continuum at or below zero says something about the data: the
+   * pixels it was fitted to hold no flux, as when the lines (damping
+   * wings, a black trough) or anything else absorb the whole spectrum
+   * around them.  That is a property of this spectrum, not a bad
+   * argument: DT_ERANGE, the lines not covered by usable data. */
+  if (bad) {
+    a->cont_status = DT_ERANGE;
+    return dt_err_set(e, DT_ERANGE, "continuum",
+                      "no continuum beside the lines: the continuum fitted to %zu "
+                      "pixels is not positive everywhere in the window (%s)",
+                      cr.nused,
+                      ck->nwin ? "are the continuum windows free of absorption?"
+                               : "no unabsorbed flux near them; give continuum windows");
+  }
+  a->cont_order_used = cr.order;
+  return DT_OK;
+}
+
+/* prepare, stage 4: the continuum, refitted only when its settings change
+ * (fixed at 1 for order -1). */
+static int ensure_continuum(dt_analysis *a, const dt_judgement *j, const dt_doublet *d,
+                            size_t i1, dt_err *e) {
+  const size_t i0 = a->i0, n = a->n;
   cont_key ck;
   memset(&ck, 0, sizeof ck);
   ck.doublet = d; ck.vsys = j->vsys; ck.order = j->cont_order; ck.i0 = i0; ck.n = n;
   ck.vlo = j->vlo; ck.vhi = j->vhi; ck.margin = a->opts.cont_margin_kms;
   ck.nwin = j->nwin < DT_MAX_WINDOWS ? j->nwin : DT_MAX_WINDOWS;
   memcpy(ck.win, j->win, ck.nwin * sizeof ck.win[0]);
-  if (!a->have_cont || memcmp(&ck, &a->ckey, sizeof ck) != 0) {
-    a->have_cont = 0;
-    a->cont_status = DT_OK;
-    dt_err_clear(&a->cont_e);
-    if (j->cont_order < 0) {
-      for (size_t i = 0; i < n; i++) {
-        a->cont_fixed[i] = 1.0;
-        a->cont_err[i] = 0.0;
-      }
-      a->cont_order_used = -1;
-    } else {
-      /* The region: the selection, widened to take in the user windows.
-       * The automatic continuum needs the spectrum around the lines: the
-       * selection widened by the margin on both sides, with each line's
-       * whole velocity window excluded (absorption may be anywhere in it;
-       * sigma clipping takes care of anything else). */
-      size_t r0 = i0, r1 = i1;
-      if (ck.nwin == 0 && ck.margin > 0) {
-        double f = ck.margin / DT_C_KMS;
-        r0 = dt_spectrum_index(s, s->wave[i0] * (1.0 - f));
-        r1 = dt_spectrum_index(s, s->wave[i1 - 1] * (1.0 + f));
-        if (r0 > i0) r0 = i0;
-        if (r1 < i1) r1 = i1;
-      }
-      for (size_t k = 0; k < ck.nwin; k++) {
-        size_t w0 = dt_spectrum_index(s, ck.win[k].lo), w1 = dt_spectrum_index(s, ck.win[k].hi);
-        if (w1 <= w0) continue;
-        if (w0 < r0) r0 = w0;
-        if (w1 > r1) r1 = w1;
-      }
-      st = ensure_rcap(a, r1 - r0);
-      if (st) return dt_err_set(e, st, NULL, "out of memory");
-      dt_cont_opts co;
-      dt_cont_opts_init(&co);
-      co.kind = DT_CONT_LEGENDRE;
-      co.order = j->cont_order;
-      co.nwin = ck.nwin;
-      co.win = ck.win;
-      co.doublet = d;
-      co.vsys = j->vsys;
-      if (ck.margin > 0) {
-        co.exclude_lo = j->vlo;
-        co.exclude_hi = j->vhi;
-      }
-      co.allow_lower = 1;
-      dt_cont_result cr;
-      st = dt_cont_fit(a->cw, s, r0, r1, &co, a->rcont, a->rerr, NULL, &cr, &a->cont_e);
-      if (st != DT_OK) {
-        a->cont_status = st;
-        if (e) *e = a->cont_e;
-        return st;
-      }
-      int bad = 0;
-      for (size_t i = 0; i < n; i++) {
-        a->cont_fixed[i] = a->rcont[i0 - r0 + i];
-        a->cont_err[i] = a->rerr[i0 - r0 + i];
-        if (!(a->cont_fixed[i] > 0) || !isfinite(a->cont_fixed[i])) bad = 1;
-      }
-      /* The settings were valid (checked above) and the fit itself worked,
-       * so a continuum at or below zero says something about the data: the
-       * pixels it was fitted to hold no flux, as when the lines (damping
-       * wings, a black trough) or anything else absorb the whole spectrum
-       * around them.  That is a property of this spectrum, not a bad
-       * argument: DT_ERANGE, the lines not covered by usable data. */
-      if (bad) {
-        a->cont_status = DT_ERANGE;
-        return dt_err_set(e, DT_ERANGE, "continuum",
-                          "no continuum beside the lines: the continuum fitted to %zu "
-                          "pixels is not positive everywhere in the window (%s)",
-                          cr.nused,
-                          ck.nwin ? "are the continuum windows free of absorption?"
-                                  : "no unabsorbed flux near them; give continuum windows");
-      }
-      a->cont_order_used = cr.order;
+  if (a->have_cont && memcmp(&ck, &a->ckey, sizeof ck) == 0) return DT_OK;
+  a->have_cont = 0;
+  a->cont_status = DT_OK;
+  dt_err_clear(&a->cont_e);
+  if (j->cont_order < 0) {
+    for (size_t i = 0; i < n; i++) {
+      a->cont_fixed[i] = 1.0;
+      a->cont_err[i] = 0.0;
     }
-    a->ckey = ck;
-    a->have_cont = 1;
+    a->cont_order_used = -1;
+  } else {
+    int st = fit_continuum(a, j, d, &ck, i1, e);
+    if (st != DT_OK) return st;
   }
+  a->ckey = ck;
+  a->have_cont = 1;
+  return DT_OK;
+}
+
+/* Choose the pixels, check coverage and masking, (re)build the model and
+ * the continuum.  Everything the fit and the measurements need. */
+static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
+  dt_err_clear(e);
+  memset(out, 0, sizeof *out);
+  out->fit_status = DT_OK;
+  a->have_run = 0;
+  const dt_doublet *d = NULL;
+  int st = check_settings(a, j, &d, e);
+  out->doublet = d;
+  if (st != DT_OK) return st;
+  size_t i1 = 0;
+  st = select_pixels(a, j, d, out, &i1, e);
+  if (st != DT_OK) return st;
+  st = ensure_model(a, j, d, e);
+  if (st != DT_OK) return st;
+  st = ensure_continuum(a, j, d, i1, e);
+  if (st != DT_OK) return st;
   out->cont_order = a->cont_order_used;
   return DT_OK;
 }
@@ -390,15 +440,7 @@ static void set_continuum(dt_analysis *a, const double *coef, size_t ncoef) {
   size_t n = a->n;
   const double *w = a->s->wave + a->i0;
   for (size_t i = 0; i < n; i++) {
-    double poly = 1.0;
-    if (ncoef > 0) {
-      double pl[DT_MAX_CONT];
-      double x = w[n - 1] > w[0] ? 2.0 * (w[i] - w[0]) / (w[n - 1] - w[0]) - 1.0 : 0.0;
-      if (ncoef == 1) pl[0] = 1.0;
-      else gsl_sf_legendre_Pl_array((int)ncoef - 1, x, pl);
-      poly = 0;
-      for (size_t k = 0; k < ncoef; k++) poly += coef[k] * pl[k];
-    }
+    double poly = dt_legendre_sum(coef, ncoef, dt_legendre_x(w[i], w[0], w[n - 1]));
     a->poly[i] = poly;
     a->cont[i] = a->cont_fixed[i] * poly;
   }

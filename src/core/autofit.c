@@ -403,97 +403,114 @@ static int by_sig(const void *x, const void *y) {
   return (a->sig < b->sig) - (a->sig > b->sig);
 }
 
-/* Steps 2 to 6 of dt_autofit_run, the analysis holding the state of an0
- * (no components); work: 4 an0.n doubles for the depth profiles. */
-static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *basep,
-                      const dt_autofit_opts *opp, const dt_analysis_out *an0p, double *work,
-                      dt_autofit_out *o, dt_err *e) {
-  const dt_autofit_opts op = *opp;
-  const dt_judgement base = *basep;
-  const dt_analysis_out an0 = *an0p;
-  ctx c;
-  memset(&c, 0, sizeof c);
-  c.a = a;
-  c.d = an0.doublet;
-  c.n = an0.n;
-  c.used = dt_analysis_used(a);
-  c.flux = dt_analysis_flux(a);
-  c.sigma = dt_analysis_sigma(a);
-  c.cont = dt_analysis_continuum(a);
+/* What the search for candidates found (step 2). */
+typedef struct candidates {
+  group g0[MAX_GROUPS], g1[MAX_GROUPS];  /* groups in the stronger, weaker line */
+  size_t n0, n1;
+  size_t nconf;              /* confirmed doublets */
+  int odd, weak, weak_only;  /* unconfirmed absorption of UNSURE_SIGMA */
+  const group *strongest_unconf;
+} candidates;
+
+/* The fit as it grows (steps 4 and 5). */
+typedef struct pass_fit {
+  dt_analysis_out best;
+  int st;                    /* its status */
+  dt_err fe;                 /* its error, if any */
+} pass_fit;
+
+/* Step 1b: the context of the first pass, the analysis holding the state of
+ * an0 (no components); work: 4 an0.n doubles for the depth profiles. */
+static void setup_ctx(ctx *c, dt_analysis *a, const dt_judgement *j,
+                      const dt_analysis_out *an0, double *work) {
+  memset(c, 0, sizeof *c);
+  c->a = a;
+  c->d = an0->doublet;
+  c->n = an0->n;
+  c->used = dt_analysis_used(a);
+  c->flux = dt_analysis_flux(a);
+  c->sigma = dt_analysis_sigma(a);
+  c->cont = dt_analysis_continuum(a);
   const double *cerr = dt_analysis_continuum_err(a);
   dt_measure_opts mo;
   dt_measure_opts_init(&mo);
-  c.floor_nsigma = mo.floor_nsigma;
-  c.floor_frac = mo.floor_frac;
+  c->floor_nsigma = mo.floor_nsigma;
+  c->floor_frac = mo.floor_frac;
   for (int l = 0; l < 2; l++) {
-    c.vel[l] = dt_analysis_velocity(a, l);
-    c.na.y[l] = dt_analysis_na_profile(a, l);
-    c.na.e[l] = dt_analysis_na_profile_err(a, l);
+    c->vel[l] = dt_analysis_velocity(a, l);
+    c->na.y[l] = dt_analysis_na_profile(a, l);
+    c->na.e[l] = dt_analysis_na_profile_err(a, l);
     /* the depth where N_a is measured (the line's window, used pixels) */
-    double *y = work + (size_t)(2 * l) * c.n, *ye = y + c.n;
-    for (size_t i = 0; i < c.n; i++) {
-      double C = c.cont[i];
-      if (!isfinite(c.na.y[l][i]) || !(C > 0)) {
+    double *y = work + (size_t)(2 * l) * c->n, *ye = y + c->n;
+    for (size_t i = 0; i < c->n; i++) {
+      double C = c->cont[i];
+      if (!isfinite(c->na.y[l][i]) || !(C > 0)) {
         y[i] = ye[i] = NAN;
         continue;
       }
       double sc = isfinite(cerr[i]) ? cerr[i] : 0.0;
-      y[i] = 1.0 - c.flux[i] / C;
-      ye[i] = hypot(c.sigma[i] / C, c.flux[i] * sc / (C * C));
-      if (is_black(&c, i)) c.black = 1;
+      y[i] = 1.0 - c->flux[i] / C;
+      ye[i] = hypot(c->sigma[i] / C, c->flux[i] * sc / (C * C));
+      if (is_black(c, i)) c->black = 1;
     }
-    c.dep.y[l] = y;
-    c.dep.e[l] = ye;
+    c->dep.y[l] = y;
+    c->dep.e[l] = ye;
   }
-  c.p = c.black ? &c.dep : &c.na;
-  c.fwhm = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0;
-  c.pix = fabs(c.vel[0][c.n - 1] - c.vel[0][0]) / (double)(c.n - 1);
-  double bw = c.fwhm > 0 ? c.fwhm / c.pix : 3.0;
-  c.box = bw < 1 ? 1 : bw > 31 ? 31 : (size_t)lround(bw);
-  const dt_line *l0 = &c.d->line[0], *l1 = &c.d->line[1];
-  c.r_thin = (l0->f * l0->lambda0) / (l1->f * l1->lambda0);
-  if (c.r_thin < 1) c.r_thin = 1;
-  c.delta = dt_velocity(l1->lambda0, l0->lambda0, 0.0);
-  c.vlo = j->vlo;
-  c.vhi = j->vhi;
+  c->p = c->black ? &c->dep : &c->na;
+  c->fwhm = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0;
+  c->pix = fabs(c->vel[0][c->n - 1] - c->vel[0][0]) / (double)(c->n - 1);
+  double bw = c->fwhm > 0 ? c->fwhm / c->pix : 3.0;
+  c->box = bw < 1 ? 1 : bw > 31 ? 31 : (size_t)lround(bw);
+  const dt_line *l0 = &c->d->line[0], *l1 = &c->d->line[1];
+  c->r_thin = (l0->f * l0->lambda0) / (l1->f * l1->lambda0);
+  if (c->r_thin < 1) c->r_thin = 1;
+  c->delta = dt_velocity(l1->lambda0, l0->lambda0, 0.0);
+  c->vlo = j->vlo;
+  c->vhi = j->vhi;
+}
 
-  /* 2. groups in both lines, the coincidence test */
-  group g0[MAX_GROUPS], g1[MAX_GROUPS];
-  size_t n0 = find_groups(&c, 0, op.detect_sigma, g0, MAX_GROUPS);
-  size_t n1 = find_groups(&c, 1, op.detect_sigma, g1, MAX_GROUPS);
+/* Step 2: groups in both lines and the coincidence test; the candidates
+ * (confirmed, and unconfirmed of UNSURE_SIGMA) are listed in o. */
+static void find_candidates(const ctx *c, double detect_sigma, candidates *cd,
+                            dt_autofit_out *o) {
+  group *g0 = cd->g0, *g1 = cd->g1;
+  size_t n0 = find_groups(c, 0, detect_sigma, g0, MAX_GROUPS);
+  size_t n1 = find_groups(c, 1, detect_sigma, g1, MAX_GROUPS);
+  cd->n0 = n0;
+  cd->n1 = n1;
   qsort(g0, n0, sizeof g0[0], by_sig);
   for (size_t k = 0; k < n0; k++) {
     group *q = &g0[k];
     if (q->explained) continue;
-    classify(&c, q, op.detect_sigma);
+    classify(c, q, detect_sigma);
     if (q->kind != G_CONFIRMED) continue;
     /* its weaker line, seen in the stronger line's frame, and the stronger
        line seen in the weaker's frame */
     for (size_t m = 0; m < n0; m++)
       if (m != k && g0[m].kind != G_CONFIRMED &&
-          overlaps(g0[m].va, g0[m].vb, q->va + c.delta, q->vb + c.delta))
+          overlaps(g0[m].va, g0[m].vb, q->va + c->delta, q->vb + c->delta))
         g0[m].explained = 1;
     for (size_t m = 0; m < n1; m++)
       if (overlaps(g1[m].va, g1[m].vb, q->va, q->vb) ||
-          overlaps(g1[m].va, g1[m].vb, q->va - c.delta, q->vb - c.delta))
+          overlaps(g1[m].va, g1[m].vb, q->va - c->delta, q->vb - c->delta))
         g1[m].explained = 1;
   }
-  size_t nconf = 0;
-  int odd = 0, weak = 0, weak_only = 0;
-  group *strongest_unconf = NULL;
+  cd->nconf = 0;
+  cd->odd = cd->weak = cd->weak_only = 0;
+  cd->strongest_unconf = NULL;
   for (size_t k = 0; k < n0; k++) {
-    group *q = &g0[k];
+    const group *q = &g0[k];
     if (q->explained) continue;
     if (q->kind == G_CONFIRMED) {
       if (o->ncand < DT_MAX_COMP) {
         o->cand_v[o->ncand] = q->v;
         o->cand_confirmed[o->ncand++] = 1;
       }
-      nconf++;
+      cd->nconf++;
     } else if (q->sig >= UNSURE_SIGMA) {
-      if (q->kind == G_ODD) odd = 1;
-      else weak = 1;
-      if (!strongest_unconf) strongest_unconf = q;
+      if (q->kind == G_ODD) cd->odd = 1;
+      else cd->weak = 1;
+      if (!cd->strongest_unconf) cd->strongest_unconf = q;
       if (o->ncand < DT_MAX_COMP) {
         o->cand_v[o->ncand] = q->v;
         o->cand_confirmed[o->ncand++] = 0;
@@ -506,40 +523,45 @@ static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *basep
     int seen = 0;
     for (size_t k = 0; k < n0; k++)
       if (overlaps(g0[k].va, g0[k].vb, g1[m].va, g1[m].vb)) seen = 1;
-    if (!seen && g1[m].sig >= UNSURE_SIGMA) weak_only = 1;
+    if (!seen && g1[m].sig >= UNSURE_SIGMA) cd->weak_only = 1;
   }
+}
 
-  /* 3. seeds */
-  dt_component seed[DT_MAX_COMP], alt[DT_MAX_COMP];  /* alt: damped columns */
+/* Step 3: the seeds, from the given velocities or from the confirmed
+ * groups (else the strongest unconfirmed one); with black cores, alt gets
+ * the damped columns (*have_alt).  Returns their number. */
+static size_t seed_components(const ctx *c, const dt_autofit_opts *op, const dt_judgement *j,
+                              const candidates *cd, dt_component *seed, dt_component *alt,
+                              int *have_alt) {
   size_t ns = 0;
-  int have_alt = 0;
-  if (op.nseed > 0) {
+  *have_alt = 0;
+  if (op->nseed > 0) {
     /* Around each given velocity (within 2 FWHM + 20 km/s): the column from
      * the apparent optical depth, at least what 3 sigma of noise allows,
      * and the velocity moved to the centroid of significant absorption. */
-    for (size_t k = 0; k < op.nseed; k++) {
-      double hw = 2.0 * fmax(c.fwhm, 3 * c.pix) + 20.0, v = op.seed_v[k];
+    for (size_t k = 0; k < op->nseed; k++) {
+      double hw = 2.0 * fmax(c->fwhm, 3 * c->pix) + 20.0, v = op->seed_v[k];
       double A, sA, B, sB;
-      integrate(&c, &c.na, 0, v - hw, v + hw, &A, &sA);
-      integrate(&c, &c.na, 1, v - hw, v + hw, &B, &sB);
-      if (A > 3.0 * sA) v = centroid(&c, &c.na, 0, v - hw, v + hw, v, NULL);
+      integrate(c, &c->na, 0, v - hw, v + hw, &A, &sA);
+      integrate(c, &c->na, 1, v - hw, v + hw, &B, &sB);
+      if (A > 3.0 * sA) v = centroid(c, &c->na, 0, v - hw, v + hw, v, NULL);
       seed[ns].logN = seed_logN(fmax(fmax(A, B), 3.0 * sA));
-      seed[ns].b = fmax(c.fwhm / 3.0, 5.0);
+      seed[ns].b = fmax(c->fwhm / 3.0, 5.0);
       seed[ns].v = v;
       ns++;
     }
   } else {
-    for (size_t k = 0; k < n0 && ns < op.max_comp; k++) {
-      group *q = &g0[k];
+    for (size_t k = 0; k < cd->n0 && ns < op->max_comp; k++) {
+      const group *q = &cd->g0[k];
       if (q->explained || q->kind != G_CONFIRMED) continue;
-      if (c.black) {
+      if (c->black) {
         double ld;
-        depth_seed(&c, q, &seed[ns], &ld);
+        depth_seed(c, q, &seed[ns], &ld);
         alt[ns] = seed[ns];
         if (ld > 0) {   /* b of an unresolved line: the core is black anyway */
           alt[ns].logN = ld;
-          alt[ns].b = fmax(c.fwhm / 3.0, 5.0);
-          have_alt = 1;
+          alt[ns].b = fmax(c->fwhm / 3.0, 5.0);
+          *have_alt = 1;
         }
       } else {
         seed[ns].logN = seed_logN(fmax(q->A, q->B));
@@ -548,161 +570,211 @@ static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *basep
       }
       ns++;
     }
-    if (ns == 0 && strongest_unconf) {
-      if (c.black) {
+    const group *su = cd->strongest_unconf;
+    if (ns == 0 && su) {
+      if (c->black) {
         double ld;
-        depth_seed(&c, strongest_unconf, &seed[0], &ld);
+        depth_seed(c, su, &seed[0], &ld);
       } else {
-        seed[0].logN = seed_logN(strongest_unconf->A);
-        seed[0].b = strongest_unconf->bseed;
-        seed[0].v = strongest_unconf->v;
+        seed[0].logN = seed_logN(su->A);
+        seed[0].b = su->bseed;
+        seed[0].v = su->v;
       }
       ns = 1;
     }
   }
-  size_t want = op.ncomp > 0 ? (size_t)op.ncomp : 0;
+  size_t want = op->ncomp > 0 ? (size_t)op->ncomp : 0;
   if (want && ns > want) ns = want;
   for (size_t k = 0; k < ns; k++) {
     if (seed[k].v < j->vlo) seed[k].v = j->vlo;
     if (seed[k].v > j->vhi) seed[k].v = j->vhi;
     alt[k].v = seed[k].v;
   }
+  return ns;
+}
 
-  /* 4. fit; grow while the BIC improves (or up to the fixed number) */
-  dt_analysis_out best = an0;
-  int best_st = DT_OK;
-  dt_err fe;
-  dt_err_clear(&fe);
-  if (ns > 0) {
-    best_st = fit_with(a, &base, seed, ns, &best, &fe);
-    if (best_st == DT_ENOCONV) {   /* one retry from broader lines */
-      for (size_t k = 0; k < ns; k++) seed[k].b = fmin(seed[k].b * 2.0 + 5.0, 150.0);
-      dt_analysis_out again;
-      int st2 = fit_with(a, &base, seed, ns, &again, &fe);
-      if (st2 == DT_OK || st2 == DT_ENOCONV) {
-        best = again;
-        best_st = st2;
-      }
-    }
-    if (best_st != DT_OK && best_st != DT_ENOCONV) {
-      if (e) *e = fe;
-      return best_st;
-    }
-    /* black cores: the column lies anywhere between the apparent column
-     * and the damped one; start from the latter too, keep the better fit */
-    if (have_alt) {
-      dt_analysis_out trial;
-      dt_err te;
-      dt_err_clear(&te);
-      /* In a black core b is not measured (the core is black whatever
-       * it is) and a free b wanders to its bound and stalls the solver:
-       * place the column and velocity with b held first, then free it,
-       * and keep the held fit when the free one does not converge. */
-      int ts = fit_frozen(a, &base, alt, ns, DT_FREEZE_B, &trial, &te);
-      if (ts == DT_OK) {
-        dt_component from[DT_MAX_COMP];
-        memcpy(from, trial.fit.comp, ns * sizeof from[0]);
-        dt_analysis_out freed;
-        dt_err fre;
-        dt_err_clear(&fre);
-        if (fit_with(a, &base, from, ns, &freed, &fre) == DT_OK) trial = freed;
-        else restore_state(a, &base, &trial);
-      }
-      int better = (ts == DT_OK && (best_st != DT_OK || trial.fit.chi2 < best.fit.chi2)) ||
-                   (ts == DT_ENOCONV && best_st == DT_ENOCONV && trial.fit.chi2 < best.fit.chi2);
-      if (better) {
-        best = trial;
-        best_st = ts;
-        fe = te;
-      } else {
-        restore_state(a, &base, &best);  /* the grown fits read the residuals */
-      }
-    }
+/* Black cores: the column lies anywhere between the apparent column and
+ * the damped one (alt); fit from the latter too and keep the better fit in
+ * f.  In a black core b is not measured (the core is black whatever it
+ * is) and a free b wanders to its bound and stalls the solver: place the
+ * column and velocity with b held first, then free it, and keep the held
+ * fit when the free one does not converge. */
+static void fit_damped(dt_analysis *a, const dt_judgement *base, const dt_component *alt,
+                       size_t ns, pass_fit *f) {
+  dt_analysis_out trial;
+  dt_err te;
+  dt_err_clear(&te);
+  int ts = fit_frozen(a, base, alt, ns, DT_FREEZE_B, &trial, &te);
+  if (ts == DT_OK) {
+    dt_component from[DT_MAX_COMP];
+    memcpy(from, trial.fit.comp, ns * sizeof from[0]);
+    dt_analysis_out freed;
+    dt_err fre;
+    dt_err_clear(&fre);
+    if (fit_with(a, base, from, ns, &freed, &fre) == DT_OK) trial = freed;
+    else restore_state(a, base, &trial);
+  }
+  int better = (ts == DT_OK && (f->st != DT_OK || trial.fit.chi2 < f->best.fit.chi2)) ||
+               (ts == DT_ENOCONV && f->st == DT_ENOCONV && trial.fit.chi2 < f->best.fit.chi2);
+  if (better) {
+    f->best = trial;
+    f->st = ts;
+    f->fe = te;
   } else {
-    /* no components: the zero-component "fit" gives chi2 and BIC */
-    best_st = dt_analysis_run(a, &base, &best, &fe);
-    if (best_st != DT_OK) {
-      if (e) *e = fe;
-      return best_st;
+    restore_state(a, base, &f->best);  /* the grown fits read the residuals */
+  }
+}
+
+/* Step 4a: the first fit from the ns seeds (one retry from broader lines
+ * if it does not converge; the damped columns too with black cores), or the
+ * zero-component "fit" that gives chi2 and BIC.  f->best starts as an0.
+ * Returns an error that ends the pass (in *e), else DT_OK with the fit's
+ * own status in f->st. */
+static int first_fit(dt_analysis *a, const dt_judgement *base, dt_component *seed,
+                     const dt_component *alt, size_t ns, int have_alt, pass_fit *f,
+                     dt_err *e) {
+  f->st = DT_OK;
+  dt_err_clear(&f->fe);
+  if (ns == 0) {
+    f->st = dt_analysis_run(a, base, &f->best, &f->fe);
+    if (f->st != DT_OK) {
+      if (e) *e = f->fe;
+      return f->st;
+    }
+    return DT_OK;
+  }
+  f->st = fit_with(a, base, seed, ns, &f->best, &f->fe);
+  if (f->st == DT_ENOCONV) {   /* one retry from broader lines */
+    for (size_t k = 0; k < ns; k++) seed[k].b = fmin(seed[k].b * 2.0 + 5.0, 150.0);
+    dt_analysis_out again;
+    int st2 = fit_with(a, base, seed, ns, &again, &f->fe);
+    if (st2 == DT_OK || st2 == DT_ENOCONV) {
+      f->best = again;
+      f->st = st2;
     }
   }
-  int grow = want ? ns < want : (ns > 0 && op.nseed == 0);
-  while (grow && best_st == DT_OK && best.fit.ncomp < (want ? want : op.max_comp)) {
-    /* the analysis holds the state of `best` (the last successful run) */
+  if (f->st != DT_OK && f->st != DT_ENOCONV) {
+    if (e) *e = f->fe;
+    return f->st;
+  }
+  if (have_alt) fit_damped(a, base, alt, ns, f);
+  return DT_OK;
+}
+
+/* Step 4b: add components at the strongest residual while the BIC improves
+ * by bic_min (or, with want > 0, up to want components whatever the BIC);
+ * the analysis holds the state of f->best (the last successful run). */
+static void grow_by_bic(const ctx *c, dt_analysis *a, const dt_judgement *base,
+                        const dt_judgement *j, const dt_autofit_opts *op, size_t want,
+                        pass_fit *f) {
+  size_t cap = want ? want : op->max_comp;
+  while (f->st == DT_OK && f->best.fit.ncomp < cap) {
     dt_component next[DT_MAX_COMP];
-    size_t nc = best.fit.ncomp;
-    memcpy(next, best.fit.comp, nc * sizeof next[0]);
-    if (!residual_seed(&c, &next[nc])) {
+    size_t nc = f->best.fit.ncomp;
+    memcpy(next, f->best.fit.comp, nc * sizeof next[0]);
+    if (!residual_seed(c, &next[nc])) {
       if (!want) break;
-      next[nc].logN = nc ? best.fit.comp[0].logN - 0.5 : 11.0;
-      next[nc].b = fmax(c.fwhm / 3.0, 5.0);
+      next[nc].logN = nc ? f->best.fit.comp[0].logN - 0.5 : 11.0;
+      next[nc].b = fmax(c->fwhm / 3.0, 5.0);
       next[nc].v = 0.5 * (j->vlo + j->vhi);
     }
     dt_analysis_out trial;
-    int ts = fit_with(a, &base, next, nc + 1, &trial, &fe);
-    int accept = ts == DT_OK && (want || trial.fit.bic < best.fit.bic - op.bic_min);
+    int ts = fit_with(a, base, next, nc + 1, &trial, &f->fe);
+    int accept = ts == DT_OK && (want || trial.fit.bic < f->best.fit.bic - op->bic_min);
     if (!accept) {
       if (want) {   /* a fixed number: keep the attempt even if it failed */
-        best = trial;
-        best_st = ts;
+        f->best = trial;
+        f->st = ts;
       }
       break;
     }
-    best = trial;
-    best_st = ts;
+    f->best = trial;
+    f->st = ts;
   }
-  /* make sure the analysis holds the state we report */
-  if (best.fit.ncomp > 0) {
-    dt_judgement fin = base;
-    fin.ncomp = best.fit.ncomp;
-    memcpy(fin.comp, best.fit.comp, fin.ncomp * sizeof fin.comp[0]);
-    fin.has_fit = 1;
-    fin.fit = best.fit;
-    dt_analysis_out tmp;
-    if (dt_analysis_eval(a, &fin, &tmp, NULL) == DT_OK) {
-      tmp.fit = best.fit;
-      tmp.fit_status = best.fit_status;
-      tmp.fit_info = best.fit_info;
-      tmp.fitted = 1;
-      best = tmp;
-    }
-  }
-  o->an = best;
+}
 
-  /* 5. verdict */
+/* Make sure the analysis holds the state we report (best). */
+static void hold_state(dt_analysis *a, const dt_judgement *base, dt_analysis_out *best) {
+  if (best->fit.ncomp == 0) return;
+  dt_judgement fin = *base;
+  fin.ncomp = best->fit.ncomp;
+  memcpy(fin.comp, best->fit.comp, fin.ncomp * sizeof fin.comp[0]);
+  fin.has_fit = 1;
+  fin.fit = best->fit;
+  dt_analysis_out tmp;
+  if (dt_analysis_eval(a, &fin, &tmp, NULL) == DT_OK) {
+    tmp.fit = best->fit;
+    tmp.fit_status = best->fit_status;
+    tmp.fit_info = best->fit_info;
+    tmp.fitted = 1;
+    *best = tmp;
+  }
+}
+
+/* Step 5: the suggested verdict and its reason. */
+static void verdict(const candidates *cd, const pass_fit *f, dt_autofit_out *o) {
   const char *why;
   char buf[64];
-  if (best_st == DT_ENOCONV) {
+  if (f->st == DT_ENOCONV) {
     o->suggested = DT_VERDICT_UNSURE;
     why = "fit did not converge";
-  } else if (nconf > 0) {
-    if (best.fit.dof > 0 && best.fit.chi2_red > POOR_CHI2) {
+  } else if (cd->nconf > 0) {
+    if (f->best.fit.dof > 0 && f->best.fit.chi2_red > POOR_CHI2) {
       o->suggested = DT_VERDICT_UNSURE;
-      snprintf(buf, sizeof buf, "poor fit (chi2_red %.1f)", best.fit.chi2_red);
+      snprintf(buf, sizeof buf, "poor fit (chi2_red %.1f)", f->best.fit.chi2_red);
       why = buf;
     } else {
       o->suggested = DT_VERDICT_DETECTED;
       why = "doublet confirmed";
     }
-  } else if (odd) {
+  } else if (cd->odd) {
     why = "implausible doublet ratio";
-  } else if (weak || weak_only) {
+  } else if (cd->weak || cd->weak_only) {
     why = "single line, no doublet partner";
   } else {
     o->suggested = DT_VERDICT_NOT_DETECTED;
-    why = n0 > 0 ? "no confirmed absorption" : "no significant absorption";
+    why = cd->n0 > 0 ? "no confirmed absorption" : "no significant absorption";
   }
   snprintf(o->reason, sizeof o->reason, "%s", why);
+}
+
+/* Steps 2 to 6 of dt_autofit_run, the analysis holding the state of an0
+ * (no components); work: 4 an0.n doubles for the depth profiles.
+ * find candidates -> seed -> fit -> grow by BIC -> verdict -> the
+ * judgement takes the fit. */
+static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *base,
+                      const dt_autofit_opts *op, const dt_analysis_out *an0, double *work,
+                      dt_autofit_out *o, dt_err *e) {
+  ctx c;
+  setup_ctx(&c, a, j, an0, work);
+  candidates cd;
+  find_candidates(&c, op->detect_sigma, &cd, o);
+
+  dt_component seed[DT_MAX_COMP], alt[DT_MAX_COMP];  /* alt: damped columns */
+  int have_alt;
+  size_t ns = seed_components(&c, op, j, &cd, seed, alt, &have_alt);
+
+  size_t want = op->ncomp > 0 ? (size_t)op->ncomp : 0;
+  pass_fit f;
+  f.best = *an0;
+  int st = first_fit(a, base, seed, alt, ns, have_alt, &f, e);
+  if (st != DT_OK) return st;
+  int grow = want ? ns < want : (ns > 0 && op->nseed == 0);
+  if (grow) grow_by_bic(&c, a, base, j, op, want, &f);
+  hold_state(a, base, &f.best);
+  o->an = f.best;
+
+  verdict(&cd, &f, o);
 
   /* 6. the judgement takes the components and the fit */
-  j->ncomp = best.fit.ncomp;
-  memcpy(j->comp, best.fit.comp, j->ncomp * sizeof j->comp[0]);
+  j->ncomp = f.best.fit.ncomp;
+  memcpy(j->comp, f.best.fit.comp, j->ncomp * sizeof j->comp[0]);
   memset(j->frozen, 0, sizeof j->frozen);
-  j->fit = best.fit;
+  j->fit = f.best.fit;
   j->has_fit = 1;
-  if (best_st != DT_OK) {
-    dt_err_set(e, best_st, "fit", "%s", fe.what[0] ? fe.what : "the fit did not converge");
-    return best_st;
+  if (f.st != DT_OK) {
+    dt_err_set(e, f.st, "fit", "%s", f.fe.what[0] ? f.fe.what : "the fit did not converge");
+    return f.st;
   }
   return DT_OK;
 }

@@ -62,14 +62,6 @@ void dt_cont_opts_init(dt_cont_opts *o) {
   o->max_iter = 10;
 }
 
-void dt_legendre(double x, int order, double *p) {
-  if (order < 0) return;
-  p[0] = 1.0;
-  if (order >= 1) p[1] = x;
-  for (int n = 1; n < order; n++)
-    p[n + 1] = ((2.0 * n + 1.0) * x * p[n] - n * p[n - 1]) / (n + 1.0);
-}
-
 static void free_buffers(dt_cont_work *w) {
   free(w->X);
   free(w->y);
@@ -134,9 +126,7 @@ void dt_cont_free(dt_cont_work *w) {
 /* Basis functions of the current shape at wavelength lam into w->basis. */
 static void basis_at(dt_cont_work *w, double lam) {
   if (w->kind == DT_CONT_LEGENDRE) {
-    double span = w->x_hi - w->x_lo;
-    double x = span > 0 ? 2.0 * (lam - w->x_lo) / span - 1.0 : 0.0;
-    dt_legendre(x, w->order, w->basis);
+    dt_legendre(dt_legendre_x(lam, w->x_lo, w->x_hi), w->order, w->basis);
   } else {
     double u = DT_C_KMS * log(lam / w->u_lam0);
     /* B-splines vanish outside the breakpoints: clamp (constant extension) */

@@ -33,13 +33,12 @@
  * pair, so a few of those are cached by size and created only when a new
  * size is seen -- never inside the iteration. */
 #include "doubletty/fit.h"
-#include "doubletty/judge.h"
+#include "doubletty/legendre.h"
 
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_linalg.h>
 #include <gsl/gsl_multifit_nlinear.h>
-#include <gsl/gsl_sf_legendre.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -401,13 +400,8 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
     w->y[m] = y;
     w->isig[m] = 1.0 / s;
     w->base[m] = c;
-    if (p->ncont) {
-      double x = (x1 > x0) ? 2.0 * (p->wave[i] - x0) / (x1 - x0) - 1.0 : 0.0;
-      double pl[DT_MAX_CONT];
-      if (p->ncont == 1) pl[0] = 1.0;
-      else gsl_sf_legendre_Pl_array((int)p->ncont - 1, x, pl);
-      memcpy(w->leg + m * p->ncont, pl, p->ncont * sizeof pl[0]);
-    }
+    if (p->ncont)
+      dt_legendre(dt_legendre_x(p->wave[i], x0, x1), (int)p->ncont - 1, w->leg + m * p->ncont);
     m++;
   }
   w->nused = m;
@@ -431,15 +425,8 @@ static double chi2_now(dt_fit_workspace *w, double *flux_out, int *ok) {
     size_t n = dt_model_npix(p->model);
     double x0 = p->wave ? p->wave[0] : 0, x1 = p->wave ? p->wave[n - 1] : 1;
     for (size_t i = 0; i < n; i++) {
-      double poly = 1.0;
-      if (w->ncont) {
-        double x = (x1 > x0) ? 2.0 * (p->wave[i] - x0) / (x1 - x0) - 1.0 : 0.0;
-        double pl[DT_MAX_CONT];
-        if (w->ncont == 1) pl[0] = 1.0;
-        else gsl_sf_legendre_Pl_array((int)w->ncont - 1, x, pl);
-        poly = 0;
-        for (size_t j = 0; j < w->ncont; j++) poly += w->ccur[j] * pl[j];
-      }
+      double poly = w->ncont ? dt_legendre_sum(w->ccur, w->ncont, dt_legendre_x(p->wave[i], x0, x1))
+                             : 1.0;
       flux_out[i] = (p->cont ? p->cont[i] : 1.0) * poly * w->mflux[i];
     }
   }
@@ -514,13 +501,9 @@ int dt_fit_chi2(dt_fit_workspace *w, const dt_fit_problem *p, const dt_component
   if (p->ncont) {
     size_t n = dt_model_npix(p->model);
     double x0 = p->wave[0], x1 = p->wave[n - 1];
-    for (size_t m = 0; m < w->nused; m++) {
-      double x = (x1 > x0) ? 2.0 * (p->wave[w->idx[m]] - x0) / (x1 - x0) - 1.0 : 0.0;
-      double pl[DT_MAX_CONT];
-      if (p->ncont == 1) pl[0] = 1.0;
-      else gsl_sf_legendre_Pl_array((int)p->ncont - 1, x, pl);
-      memcpy(w->leg + m * p->ncont, pl, p->ncont * sizeof pl[0]);
-    }
+    for (size_t m = 0; m < w->nused; m++)
+      dt_legendre(dt_legendre_x(p->wave[w->idx[m]], x0, x1), (int)p->ncont - 1,
+                  w->leg + m * p->ncont);
   }
   memcpy(w->cur, w->init, w->ncomp * sizeof w->cur[0]);
   for (size_t j = 0; j < p->ncont; j++)

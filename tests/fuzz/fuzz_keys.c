@@ -29,7 +29,7 @@
 #include <unistd.h>
 
 #include "doubletty/atomic.h"
-#include "doubletty/demo.h"
+#include "demo.h"
 #include "doubletty/journal.h"
 #include "inspector.h"
 #include "keymap.h"

@@ -70,6 +70,21 @@ static void test_legendre(void) {
   CHECK_CLOSE(p[7], 1.0, 1e-14, "P7(1) = 1");
   dt_legendre(-1.0, 7, p);
   CHECK_CLOSE(p[7], -1.0, 1e-14, "P7(-1) = -1");
+  /* Beyond [-1, 1] (an extrapolated continuum): P2(2) = 5.5, P3(2) = 17,
+   * P3(-1.5) = (5(-3.375) + 4.5)/2 = -6.1875 from the same forms. */
+  dt_legendre(2.0, 3, p);
+  CHECK_CLOSE(p[2], 5.5, 1e-14, "P2(2) = 5.5");
+  CHECK_CLOSE(p[3], 17.0, 1e-14, "P3(2) = 17");
+  dt_legendre(-1.5, 3, p);
+  CHECK_CLOSE(p[3], -6.1875, 1e-14, "P3(-1.5) = -6.1875");
+  /* the mapping of a wavelength range and a series */
+  CHECK_CLOSE(dt_legendre_x(5890.0, 5880.0, 5900.0), 0.0, 1e-15, "middle of the range -> 0");
+  CHECK_CLOSE(dt_legendre_x(5900.0, 5880.0, 5900.0), 1.0, 1e-15, "upper end -> 1");
+  CHECK_CLOSE(dt_legendre_x(5880.0, 5880.0, 5880.0), 0.0, 0.0, "empty range -> 0");
+  double c[3] = {1.0, 0.5, 0.25};
+  CHECK_CLOSE(dt_legendre_sum(c, 3, 0.5), 1.0 + 0.25 - 0.25 * 0.125, 1e-15,
+              "1 + P1/2 + P2/4 at 0.5");
+  CHECK_CLOSE(dt_legendre_sum(c, 0, 0.5), 1.0, 0.0, "no coefficients: 1");
 }
 
 /* Many noisy realisations: the continuum at a few pixels must scatter about
