@@ -93,8 +93,18 @@ expect_fail "fit --resolution 1 is refused with the reason" "R = 1 is below 100"
   $DT fit --resolution 1 "$TMP/a.txt"
 $DT info "$TMP/a.txt" >"$TMP/info.out" 2>&1
 check "info says when it assumed vacuum" grep -q 'assumed vacuum' "$TMP/info.out"
-expect_fail "--air is refused until the reader takes it" "--air: this build reads text spectra as vacuum" \
-  $DT info --air "$TMP/a.txt"
+# --air: the first wavelength of the text file, read as air, becomes the vacuum
+# wavelength that the IAU standard formula (Morton 2000, ApJS 130, 403:
+# n - 1 = 8.34254e-5 + 2.406147e-2/(130 - s^2) + 1.5998e-4/(38.9 - s^2),
+# s = 1e4/lambda_vac in um^-1) maps back onto it, solved here by iteration.
+$DT info --air "$TMP/a.txt" >"$TMP/air.out" 2>&1
+check "info --air says the file was declared air" grep -q 'air as declared' "$TMP/air.out"
+lam_air=$(awk '!/^#/ && NF { print $1; exit }' "$TMP/a.txt")
+lam_got=$(awk '/^wavelength/ { print $2; exit }' "$TMP/air.out")
+check "info --air: vacuum $lam_got A from air $lam_air A by the IAU formula (within 0.002 A)" \
+  awk -v a="$lam_air" -v g="$lam_got" 'BEGIN { v = a; for (i = 0; i < 8; i++) { s2 = (1e4 / v)^2;
+    n = 1 + 8.34254e-5 + 2.406147e-2 / (130 - s2) + 1.5998e-4 / (38.9 - s2); v = a * n }
+    d = g - v; if (d < 0) d = -d; exit !(d < 0.002 && g - a > 1) }'
 
 # ---- honest reasons ------------------------------------------------------
 # Pure noise: the first pass cannot place 8 components, and components it
