@@ -6,7 +6,7 @@
  * one in-memory state per spectrum (target), so a session resumes exactly
  * where it stopped; readers (log, export, compare) use the same replay or the
  * line-by-line record reader.  The file format is described at the top of
- * src/core/journal.c.
+ * src/core/journal_format.c.
  *
  * One writer at a time: opening for writing takes an exclusive advisory lock
  * and a second writer gets DT_ELOCK.  Read-only opens take no lock.  When an
@@ -18,6 +18,7 @@
 #include <stddef.h>
 #include "doubletty/digest.h"
 #include "doubletty/judge.h"
+#include "doubletty/measure.h"
 #include "doubletty/status.h"
 
 #define DT_JOURNAL_VERSION 1       /* format version written by this program */
@@ -32,31 +33,6 @@ typedef struct dt_target {
   long row;                      /* 1-based table row; 0 = not a row */
   char sha256[DT_SHA256_HEX];    /* digest of the file's bytes; "" = unknown */
 } dt_target;
-
-/* Measurements recorded with a change (optional), per line of the doublet. */
-typedef struct dt_meas_line {
-  double w, w_err;               /* rest-frame equivalent width, 1 sigma [Angstrom] */
-  double w_lim;                  /* upper limit on W [Angstrom]; NaN = none */
-  double logN_aod, logN_aod_err; /* apparent column density log10 N_a [cm^-2]; NaN = none */
-  double logN_lim;               /* upper limit on log10 N [cm^-2]; NaN = none */
-} dt_meas_line;
-
-typedef struct dt_meas_summary {
-  dt_meas_line line[2];          /* [0] the stronger line, [1] the weaker */
-  double nsigma;                 /* the limits are nsigma upper limits (e.g. 3) */
-  int saturated;                 /* the two lines' N_a disagree: hidden saturation */
-  dt_verdict suggested;          /* the automatic suggestion; NONE = none */
-} dt_meas_summary;
-
-/* Fill every value of *m with NaN, saturated 0, suggested NONE. */
-void dt_meas_summary_clear(dt_meas_summary *m);
-
-/* The summary of an analysis run (analysis.h): both lines' W, limits and
- * N_a (NaN when the measurement failed), its saturation flag, the limits'
- * significance nsigma and an automatic suggestion (NONE if none). */
-struct dt_analysis_out;
-void dt_meas_summary_from_analysis(const struct dt_analysis_out *o, double nsigma,
-                                   dt_verdict suggested, dt_meas_summary *m);
 
 /* Flags of a target (dt_journal_entry.flags) and of a record. */
 enum {
@@ -156,30 +132,6 @@ long dt_journal_nrecords(const dt_journal *j);   /* records read + appended */
  * and the first few messages ("line 17: ...").  i < min(count, 64). */
 size_t dt_journal_warning_count(const dt_journal *j);
 const char *dt_journal_warning(const dt_journal *j, size_t i);
-
-/* Does a refit reproduce a recorded fit?  Agreement: same status and number
- * of components, every fitted parameter within tol_sigma of the recorded
- * value in units of the larger of the two 1-sigma errors (or within 1e-6
- * absolute when both errors are 0), and chi2 within tol_sigma * sqrt(2 dof)
- * (the standard deviation of chi2).  Returns 1 when they agree; otherwise 0
- * with why (may be NULL) naming the first difference. */
-int dt_journal_check_refit(const dt_fit_result *recorded, const dt_fit_result *refit,
-                           double tol_sigma, char *why, size_t nwhy);
-
-/* The stated tolerance of a refit: every parameter within 0.1 of its
- * 1-sigma error, chi2 within 0.1 of its standard deviation. */
-#define DT_REFIT_TOL_SIGMA 0.1
-
-/* Refit a recorded state with an analysis of its spectrum (analysis.h; its
- * options must be those the fit was made with -- e.g. joint_cont = the
- * recorded fit's ncont) and compare with dt_journal_check_refit.  *agrees
- * is 1 when the refit reproduces the recorded fit (or the state has none),
- * else 0 with why naming the difference.  Returns DT_OK, or the analysis'
- * error (unknown doublet, range not covered, ...) with e filled. */
-struct dt_analysis;
-int dt_journal_verify_fit(struct dt_analysis *a, const dt_judgement *recorded,
-                          double tol_sigma, int *agrees, char *why, size_t nwhy,
-                          dt_err *e);
 
 /* ---- line-by-line reading (the audit trail) ---- */
 

@@ -256,7 +256,7 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     o.joint_cont = en->state.fit.ncont;
     dt_analysis_set_opts(an, &o);
     int agrees = 0;
-    if (dt_journal_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
+    if (dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
       printf("cannot refit  %s: %s\n", name, e.what);
       nfail++;
     } else if (agrees) {

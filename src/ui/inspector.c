@@ -377,7 +377,7 @@ static void load(dt_insp *s, size_t idx) {
     char why[160] = "";
     if (s->j.has_fit && s->j.fit.status == DT_OK && s->j.ncomp > 0) {
       analyse(s, 1);
-      if (s->an_ok && !dt_journal_check_refit(&s->j.fit, &s->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
+      if (s->an_ok && !dt_fit_check_refit(&s->j.fit, &s->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
         dt_journal_set_flag(s->jn, s->key, 0, qe->row, DT_JFLAG_REFIT_MISMATCH, 1);
         say(s, DT_R_WARN, "a refit differs from the recorded fit: %s", why);
       }

@@ -657,16 +657,16 @@ static void test_refit_check(void) {
   b.comp[0].v = 100.1;
   b.chi2 = 100.5;
   char why[128];
-  CHECK(dt_journal_check_refit(&a, &b, 0.1, why, sizeof why), "a refit 0.05 sigma away agrees");
+  CHECK(dt_fit_check_refit(&a, &b, 0.1, why, sizeof why), "a refit 0.05 sigma away agrees");
   b.comp[0].v = 101.0;
-  CHECK(!dt_journal_check_refit(&a, &b, 0.1, why, sizeof why) && strstr(why, "component 1 v"),
+  CHECK(!dt_fit_check_refit(&a, &b, 0.1, why, sizeof why) && strstr(why, "component 1 v"),
         "0.5 sigma away does not: %s", why);
   b = a;
   b.chi2 = 110;
-  CHECK(!dt_journal_check_refit(&a, &b, 0.1, why, sizeof why) && strstr(why, "chi2"), "chi2 differs: %s", why);
+  CHECK(!dt_fit_check_refit(&a, &b, 0.1, why, sizeof why) && strstr(why, "chi2"), "chi2 differs: %s", why);
   b = a;
   b.status = DT_ENOCONV;
-  CHECK(!dt_journal_check_refit(&a, &b, 0.1, why, sizeof why), "status differs: %s", why);
+  CHECK(!dt_fit_check_refit(&a, &b, 0.1, why, sizeof why), "status differs: %s", why);
 }
 
 /* A real fit recorded, replayed and refitted: the refit reproduces it; a
@@ -736,7 +736,7 @@ static void test_replay_fit(void) {
         "replay restores the fit and the measurements exactly");
   int agrees = 0;
   char why[160];
-  rc = dt_journal_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e);
+  rc = dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e);
   CHECK(rc == DT_OK && agrees, "the refit reproduces the recorded fit within %.1f sigma%s%s",
         DT_REFIT_TOL_SIGMA, agrees ? "" : ": ", agrees ? "" : why);
   double verr = en ? en->state.fit.err[0].v : 1.0;
@@ -758,7 +758,7 @@ static void test_replay_fit(void) {
   free(txt);
   dt_journal_open(p, DT_JOURNAL_READ_ONLY, NULL, &jn, &e);
   en = dt_journal_lookup(jn, "synthetic.fits", 1, 0);
-  rc = en ? dt_journal_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) : -1;
+  rc = en ? dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) : -1;
   CHECK(rc == DT_OK && !agrees && strstr(why, "component 1 v"), "a tampered fit is reported: %s", why);
   dt_journal_close(jn);
   free(out);
