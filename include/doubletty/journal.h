@@ -21,17 +21,22 @@
 #include "doubletty/measure.h"
 #include "doubletty/status.h"
 
-#define DT_JOURNAL_VERSION 1       /* format version written by this program */
+#define DT_JOURNAL_VERSION 2       /* format version written by this program (reads 1 too) */
 #define DT_JOURNAL_USER_MAX 64
 #define DT_JOURNAL_TIME_MAX 32     /* "2025-06-01T10:00:00.123Z" */
 
-/* Identity of one spectrum: file, HDU and table row.  The path is a key and
- * is recorded as given; the journal never opens, runs or writes it. */
+/* One spectrum.  Its identity is the SHA-256 of its file's bytes, the HDU,
+ * the table row and the doublet it is vetted for (the "#NAME" that may end
+ * the path); the path itself is a hint for finding the file again, recorded
+ * relative to the session file's directory when the file lies below it (else
+ * as given).  Without a digest the path is the identity.  The journal never
+ * opens, runs or writes the path. */
 typedef struct dt_target {
-  const char *path;              /* as the caller names the file */
+  const char *path;              /* as the caller names the file [#DOUBLET] */
   int hdu;                       /* 1-based HDU; 0 = whole file / not FITS */
   long row;                      /* 1-based table row; 0 = not a row */
   char sha256[DT_SHA256_HEX];    /* digest of the file's bytes; "" = unknown */
+  const char *name;              /* the target list's name for it; NULL or "" = none */
 } dt_target;
 
 /* Flags of a target (dt_journal_entry.flags) and of a record. */
@@ -46,7 +51,8 @@ enum {
 
 /* The replayed state of one target. */
 typedef struct dt_journal_entry {
-  dt_target target;              /* path owned by the journal; sha256 = last recorded */
+  dt_target target;              /* path (the last recorded hint) and name owned by the
+                                    journal; sha256 = last recorded */
   dt_judgement state;            /* the state after the last recorded change */
   int has_meas;
   dt_meas_summary meas;          /* measurements of the last change that carried them */
@@ -104,8 +110,12 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
                       const dt_judgement *after, const dt_meas_summary *meas,
                       dt_err *e);
 
-/* The replayed state of a target, NULL if the session has no record of it.
- * Entry pointers stay valid until dt_journal_close. */
+/* The replayed state of a spectrum, NULL if the session has no record of
+ * it.  dt_journal_find looks by identity (digest, HDU, row, doublet) and,
+ * when that finds nothing (no digest, or the file changed since), by the
+ * path; dt_journal_lookup by the path only.  Entry pointers stay valid until
+ * dt_journal_close. */
+const dt_journal_entry *dt_journal_find(const dt_journal *j, const dt_target *t);
 const dt_journal_entry *dt_journal_lookup(const dt_journal *j, const char *path,
                                           int hdu, long row);
 /* Targets in the order they first appear in the file. */
@@ -142,7 +152,7 @@ typedef struct dt_journal_record {
   long line;                     /* 1-based line number */
   char time[DT_JOURNAL_TIME_MAX];
   char user[DT_JOURNAL_USER_MAX];
-  dt_target target;              /* path valid until the next read */
+  dt_target target;              /* path and name valid until the next read */
   dt_action action;              /* DT_ACT_FIT: fit = after.fit;
                                     DT_ACT_RESTORE: state = &after */
   dt_judgement after;            /* the recorded state after the change: components,

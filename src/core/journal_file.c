@@ -58,8 +58,9 @@ struct dt_journal {
   ino_t ino;
   dt_journal_entry **ent;
   size_t nent, capent;
-  size_t *slot; /* open addressing: entry index + 1, 0 = empty */
-  size_t nslot; /* power of two */
+  dt_jn_index index; /* identity and path keys -> entry index */
+  char *dir, *rdir;  /* the session file's directory, lexically and resolved */
+  int version;       /* the format version of the file (appends keep it) */
   long nrecords;
   long nlines;
   size_t nwarn;
@@ -69,59 +70,50 @@ struct dt_journal {
 };
 
 
-/* ---------- the hash index ---------- */
-
-static uint64_t key_hash(const char *path, int hdu, long row) {
-  uint64_t h = 1469598103934665603ull;
-  for (const unsigned char *p = (const unsigned char *)path; *p; p++) {
-    h ^= *p;
-    h *= 1099511628211ull;
-  }
-  h ^= (uint64_t)(unsigned)hdu * 0x9e3779b97f4a7c15ull;
-  h *= 1099511628211ull;
-  h ^= (uint64_t)row * 0xc2b2ae3d27d4eb4full;
-  /* final avalanche (the 64-bit finaliser of MurmurHash3): the table uses the
-   * low bits, which FNV alone mixes poorly */
-  h ^= h >> 33;
-  h *= 0xff51afd7ed558ccdull;
-  h ^= h >> 33;
-  h *= 0xc4ceb9fe1a85ec53ull;
-  h ^= h >> 33;
-  return h;
-}
-
 /* ---------- the in-memory session ---------- */
 
-static dt_journal_entry *find(const dt_journal *j, const char *path, int hdu, long row) {
-  if (!j->nslot) return NULL;
-  size_t m = j->nslot - 1;
-  for (size_t s = (size_t)key_hash(path, hdu, row) & m;; s = (s + 1) & m) {
-    size_t k = j->slot[s];
-    if (!k) return NULL;
-    dt_journal_entry *en = j->ent[k - 1];
-    if (en->target.hdu == hdu && en->target.row == row && !strcmp(en->target.path, path))
-      return en;
-  }
+static dt_journal_entry *by_key(const dt_journal *j, char *key, int hdu, long row) {
+  long i = key ? dt_jn_index_get(&j->index, key, hdu, row) : -1;
+  free(key);
+  return i >= 0 ? j->ent[i] : NULL;
 }
 
-static int rehash(dt_journal *j, size_t nslot) {
-  size_t *slot = calloc(nslot, sizeof *slot);
-  if (!slot) return DT_ENOMEM;
-  for (size_t i = 0; i < j->nent; i++) {
-    const dt_target *t = &j->ent[i]->target;
-    size_t s = (size_t)key_hash(t->path, t->hdu, t->row) & (nslot - 1);
-    while (slot[s]) s = (s + 1) & (nslot - 1);
-    slot[s] = i + 1;
+/* The entry of a target: by identity (digest, HDU, row, doublet), else by
+ * its path -- the hint the caller's path would be recorded as (hint = 1),
+ * then the path as given. */
+static dt_journal_entry *find(const dt_journal *j, const dt_target *t, int hint) {
+  if (!t->path) return NULL;
+  dt_journal_entry *en = by_key(j, dt_jn_id_key(t), t->hdu, t->row);
+  if (!en && hint && (j->dir || j->rdir)) {
+    char *h = dt_jn_path_hint(j->dir, j->rdir, t->path);
+    en = h ? by_key(j, dt_jn_path_key(h), t->hdu, t->row) : NULL;
+    free(h);
   }
-  free(j->slot);
-  j->slot = slot;
-  j->nslot = nslot;
+  return en ? en : by_key(j, dt_jn_path_key(t->path), t->hdu, t->row);
+}
+
+/* Give entry i the keys of target t (its digest and its path hint). */
+static int index_entry(dt_journal *j, size_t i, const dt_target *t) {
+  char *k[2] = {dt_jn_id_key(t), dt_jn_path_key(t->path)};
+  int rc = k[1] ? DT_OK : DT_ENOMEM;
+  for (int n = 0; n < 2 && rc == DT_OK; n++)
+    if (k[n]) rc = dt_jn_index_add(&j->index, k[n], t->hdu, t->row, i);
+  free(k[0]);
+  free(k[1]);
+  return rc;
+}
+
+static int set_str(char **dst, const char *src) {
+  if (!src || !*src || (*dst && !strcmp(*dst, src))) return DT_OK;
+  char *c = strdup(src);
+  if (!c) return DT_ENOMEM;
+  free(*dst);
+  *dst = c;
   return DT_OK;
 }
 
+/* A new entry for t (its path the recorded hint). */
 static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
-  if ((j->nent + 1) * 2 > j->nslot && rehash(j, j->nslot ? j->nslot * 2 : 64) != DT_OK)
-    return NULL;
   if (j->nent == j->capent) {
     size_t cap = j->capent ? j->capent * 2 : 64;
     dt_journal_entry **p = realloc(j->ent, cap * sizeof *p);
@@ -138,14 +130,27 @@ static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
   }
   en->target = *t;
   en->target.path = path;
+  en->target.name = NULL;
   en->target.sha256[0] = '\0';
   dt_judgement_init(&en->state);
   dt_meas_summary_clear(&en->meas);
   j->ent[j->nent++] = en;
-  size_t s = (size_t)key_hash(path, t->hdu, t->row) & (j->nslot - 1);
-  while (j->slot[s]) s = (s + 1) & (j->nslot - 1);
-  j->slot[s] = j->nent;
+  if (index_entry(j, j->nent - 1, t) != DT_OK) return NULL;
   return en;
+}
+
+/* The entry's target after a record of t: the latest digest, hint and name
+ * (each kept when the record has none), with keys for the new ones. */
+static int update_target(dt_journal *j, dt_journal_entry *en, const dt_target *t) {
+  size_t i = 0;
+  while (j->ent[i] != en) i++;
+  if (dt_digest_is_hex(t->sha256)) memcpy(en->target.sha256, t->sha256, DT_SHA256_HEX);
+  char *path = (char *)en->target.path, *name = (char *)en->target.name;
+  int rc = set_str(&path, t->path);
+  if (rc == DT_OK) rc = set_str(&name, t->name);
+  en->target.path = path;
+  en->target.name = name;
+  return rc == DT_OK ? index_entry(j, i, t) : rc;
 }
 
 static void add_warning(dt_journal *j, const dt_err *e) {
@@ -190,15 +195,14 @@ static void note_verdict(dt_journal_entry *en, dt_verdict before, dt_action_kind
 
 /* Replay one record into the session. */
 static int replay(dt_journal *j, const dt_journal_record *rec) {
-  dt_journal_entry *en = find(j, rec->target.path, rec->target.hdu, rec->target.row);
+  dt_journal_entry *en = find(j, &rec->target, 0);
   if (!en && !(en = add_entry(j, &rec->target))) return DT_ENOMEM;
   if (!en->nchanges) en->first_line = rec->line;
   if (rec->flags & DT_JFLAG_FILE_CHANGED) en->flags |= DT_JFLAG_FILE_CHANGED;
-  if (rec->target.sha256[0]) {
-    if (en->target.sha256[0] && strcmp(en->target.sha256, rec->target.sha256) != 0)
-      en->flags |= DT_JFLAG_FILE_CHANGED;
-    memcpy(en->target.sha256, rec->target.sha256, DT_SHA256_HEX);
-  }
+  if (rec->target.sha256[0] && en->target.sha256[0] &&
+      strcmp(en->target.sha256, rec->target.sha256) != 0)
+    en->flags |= DT_JFLAG_FILE_CHANGED;
+  if (update_target(j, en, &rec->target) != DT_OK) return DT_ENOMEM;
   dt_verdict before = en->state.verdict;
   if (rec->has & DT_REC_FULL) {
     en->state = rec->after;
@@ -263,6 +267,7 @@ static int load_from(dt_journal *j, dt_journal_reader *r, dt_err *e) {
     }
   }
   j->nlines = dt_jn_reader_lineno(r);
+  j->version = dt_journal_reader_version(r);
   free(rec);
   dt_journal_reader_close(r);
   return rc;
@@ -404,6 +409,7 @@ static int open_rw(dt_journal *j, dt_err *e) {
     }
     sync_dir(j->path);
     j->nlines = 1;
+    j->version = DT_JOURNAL_VERSION;
   } else {
     int rc = load(j, e);
     if (rc != DT_OK) return rc;
@@ -456,6 +462,8 @@ int dt_journal_open(const char *path, dt_journal_mode mode, const char *user, dt
   }
   dt_jn_copy_str(j->user, sizeof j->user, user && *user ? user : "unknown");
   j->ro = mode == DT_JOURNAL_READ_ONLY;
+  /* path hints are relative to the session file's directory */
+  if ((j->dir = dt_jn_session_dir(path)) != NULL) j->rdir = realpath(j->dir, NULL);
   int rc = j->ro ? load(j, e) : open_rw(j, e);
   if (rc != DT_OK) {
     dt_journal_close(j);
@@ -483,10 +491,13 @@ void dt_journal_close(dt_journal *j) {
   if (j->fd >= 0) close(j->fd); /* releases both locks */
   for (size_t i = 0; i < j->nent; i++) {
     free((char *)j->ent[i]->target.path);
+    free((char *)j->ent[i]->target.name);
     free(j->ent[i]);
   }
   free(j->ent);
-  free(j->slot);
+  dt_jn_index_free(&j->index);
+  free(j->dir);
+  free(j->rdir);
   free(j->buf);
   free(j->abspath);
   free(j->path);
@@ -542,8 +553,11 @@ static int set_failed(dt_journal *j, dt_err *e, const char *fmt, const char *arg
   return DT_EIO;
 }
 
-int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
-                      const dt_judgement *after, const dt_meas_summary *meas, dt_err *e) {
+/* Append a record of t (its path the hint to record) to en (NULL = a
+ * spectrum the session has no record of yet). */
+static int append_record(dt_journal *j, dt_journal_entry *en, const dt_target *t,
+                         const dt_action *a, const dt_judgement *after,
+                         const dt_meas_summary *meas, dt_err *e) {
   if (j->ro) return dt_err_set(e, DT_EIO, NULL, "the session is open read-only");
   if (j->failed) {
     if (e) *e = j->err;
@@ -561,7 +575,6 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
     return dt_err_set(e, DT_EINVAL, NULL, "the state after %s is not a valid judgement",
                       dt_action_name(a->kind));
 
-  dt_journal_entry *en = find(j, t->path, t->hdu, t->row);
   int full = 1;
   if (en && a->kind != DT_ACT_RESTORE && a->kind != DT_ACT_AUTOFIT) {
     dt_judgement s = en->state;
@@ -623,7 +636,7 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
   j->nrecords++;
   if (!en->nchanges) en->first_line = j->nlines;
   if (was) en->flags |= DT_JFLAG_FILE_CHANGED;
-  if (dt_digest_is_hex(t->sha256)) memcpy(en->target.sha256, t->sha256, DT_SHA256_HEX);
+  if (update_target(j, en, t) != DT_OK) return set_failed(j, e, "%s", "out of memory");
   dt_verdict before = en->state.verdict;
   en->state = *after;
   if (meas) {
@@ -638,11 +651,30 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
   return DT_OK;
 }
 
+int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
+                      const dt_judgement *after, const dt_meas_summary *meas, dt_err *e) {
+  if (!t || !t->path || !*t->path) return dt_err_set(e, DT_EINVAL, NULL, "no target file name");
+  /* a version-1 file goes on in its own format: the path as given, no name */
+  char *hint = j->version >= 2 ? dt_jn_path_hint(j->dir, j->rdir, t->path) : strdup(t->path);
+  if (!hint) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  dt_target rt = *t;
+  rt.path = hint;
+  if (j->version < 2) rt.name = NULL;
+  int rc = append_record(j, find(j, t, 1), &rt, a, after, meas, e);
+  free(hint);
+  return rc;
+}
+
 /* ---------- queries ---------- */
 
 const dt_journal_entry *dt_journal_lookup(const dt_journal *j, const char *path, int hdu,
                                           long row) {
-  return path ? find(j, path, hdu, row) : NULL;
+  dt_target t = {.path = path, .hdu = hdu, .row = row};
+  return path ? find(j, &t, 1) : NULL;
+}
+
+const dt_journal_entry *dt_journal_find(const dt_journal *j, const dt_target *t) {
+  return t ? find(j, t, 1) : NULL;
 }
 
 size_t dt_journal_count(const dt_journal *j) { return j->nent; }
@@ -658,7 +690,8 @@ int dt_journal_file_changed(const dt_journal_entry *en, const char *sha256) {
 
 int dt_journal_set_flag(dt_journal *j, const char *path, int hdu, long row, unsigned flag,
                         int on) {
-  dt_journal_entry *en = path ? find(j, path, hdu, row) : NULL;
+  dt_target t = {.path = path, .hdu = hdu, .row = row};
+  dt_journal_entry *en = path ? find(j, &t, 1) : NULL;
   if (!en) return DT_ENOTFOUND;
   if (on) en->flags |= flag;
   else en->flags &= ~flag;

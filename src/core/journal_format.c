@@ -330,6 +330,10 @@ size_t dt_journal_format(char *buf, size_t size, const char *time, const char *u
   sb_esc(&b, user && *user ? user : "unknown");
   sb_str(&b, "\tfile=");
   sb_esc(&b, t->path);
+  if (t->name && *t->name) {
+    sb_str(&b, "\tname=");
+    sb_esc(&b, t->name);
+  }
   sb_fmt(&b, "\thdu=%d\trow=%ld\tsha256=%s", t->hdu, t->row,
          dt_digest_is_hex(t->sha256) ? t->sha256 : "");
   if (sha256_was && dt_digest_is_hex(sha256_was)) sb_fmt(&b, "\twas=%s", sha256_was);

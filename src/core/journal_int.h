@@ -20,4 +20,31 @@ int dt_jn_status_parse(const char *s, int *code);
 /* Lines read so far by a record reader (the header counts as line 1). */
 long dt_jn_reader_lineno(const dt_journal_reader *r);
 
+/* ---- finding a spectrum's record (journal_index.c) ---- */
+
+/* Keys (text + HDU + row) to values (entry indices). */
+typedef struct dt_jn_index {
+  struct dt_jn_key *slot;
+  size_t nslot, nkey;
+} dt_jn_index;
+/* The value of a key, -1 if it has none. */
+long dt_jn_index_get(const dt_jn_index *x, const char *key, int hdu, long row);
+/* Give a key a value (a key that has one keeps it).  DT_OK or DT_ENOMEM. */
+int dt_jn_index_add(dt_jn_index *x, const char *key, int hdu, long row, size_t val);
+void dt_jn_index_free(dt_jn_index *x);
+
+/* The doublet of a recorded path: what follows "#" after the file name. */
+const char *dt_jn_doublet_of(const char *path);
+/* Identity key "S:DIGEST#DOUBLET" (malloc'd), NULL when the digest is unknown
+ * (or out of memory); path key "P:PATH" (malloc'd, NULL = out of memory). */
+char *dt_jn_id_key(const dt_target *t);
+char *dt_jn_path_key(const char *path);
+/* The absolute directory of a session file (malloc'd; NULL = root or
+ * unknown). */
+char *dt_jn_session_dir(const char *session);
+/* The hint recorded for a spectrum path: relative to dir (or to rdir, the
+ * same directory with links resolved) when it lies below it, else as given.
+ * malloc'd; NULL = out of memory. */
+char *dt_jn_path_hint(const char *dir, const char *rdir, const char *path);
+
 #endif

@@ -226,6 +226,9 @@ int dt_journal_parse(char *line, dt_journal_record *rec, dt_err *e) {
           if (unescape(v) || !*v) bad = 1;
           rec->target.path = v;
           have |= HAVE_FILE;
+        } else if (!strcmp(k, "name")) {
+          if (unescape(v) || !*v) bad = 1;
+          rec->target.name = v;
         } else if (!strcmp(k, "hdu")) {
           if (parse_long(v, 0, 100000, &lv)) bad = 1;
           else rec->target.hdu = (int)lv;
