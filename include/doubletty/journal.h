@@ -118,6 +118,11 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
 const dt_journal_entry *dt_journal_find(const dt_journal *j, const dt_target *t);
 const dt_journal_entry *dt_journal_lookup(const dt_journal *j, const char *path,
                                           int hdu, long row);
+/* Where to look for the file of a recorded path hint: a relative hint is
+ * taken from the session file's directory (not from the current one), an
+ * absolute one as it is.  Writes into buf (like snprintf; returns buf).
+ * Only text: the file is not looked at. */
+const char *dt_journal_resolve(const dt_journal *j, const char *hint, char *buf, size_t n);
 /* Targets in the order they first appear in the file. */
 size_t dt_journal_count(const dt_journal *j);
 const dt_journal_entry *dt_journal_entry_at(const dt_journal *j, size_t i);
@@ -177,6 +182,9 @@ int dt_journal_reader_open_mem(const void *buf, size_t len, dt_journal_reader **
  * which line and why); reading may continue.  DT_EIO: read error (stop). */
 int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err *e);
 int dt_journal_reader_version(const dt_journal_reader *r);
+/* Lines skipped so far as damaged or incomplete (each one a DT_EFORMAT from
+ * dt_journal_reader_next). */
+size_t dt_journal_reader_damaged(const dt_journal_reader *r);
 void dt_journal_reader_close(dt_journal_reader *r);
 
 /* Write one record as a line into buf (with the trailing newline and the

@@ -235,7 +235,9 @@ int cmd_inspect(int argc, char **argv) {
       for (size_t i = 0; i < nt && st == DT_OK; i++) {
         dt_target_spec t;
         dt_target_spec_init(&t, NULL);
-        dt_queue_split_key(tl[i].path, t.path, sizeof t.path, t.doublet, sizeof t.doublet);
+        char where[sizeof t.path + 64];
+        dt_journal_resolve(s1, tl[i].path, where, sizeof where);
+        dt_queue_split_key(where, t.path, sizeof t.path, t.doublet, sizeof t.doublet);
         t.row = tl[i].row;
         st = dt_queue_add(&q, &t, &e);
       }

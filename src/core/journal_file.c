@@ -677,6 +677,12 @@ const dt_journal_entry *dt_journal_find(const dt_journal *j, const dt_target *t)
   return t ? find(j, t, 1) : NULL;
 }
 
+const char *dt_journal_resolve(const dt_journal *j, const char *hint, char *buf, size_t n) {
+  if (hint[0] != '/' && j->dir) snprintf(buf, n, "%s/%s", j->dir, hint);
+  else snprintf(buf, n, "%s", hint);
+  return buf;
+}
+
 size_t dt_journal_count(const dt_journal *j) { return j->nent; }
 
 const dt_journal_entry *dt_journal_entry_at(const dt_journal *j, size_t i) {

@@ -36,6 +36,7 @@ struct dt_journal_reader {
   size_t cap;
   long lineno;
   int version;
+  size_t ndamaged; /* lines skipped as damaged */
 };
 
 /* ---------- reading: parse one record line ---------- */
@@ -568,6 +569,7 @@ int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err 
     where[0] = '\0';
     if ((size_t)n != strlen(r->line) || r->line[n - 1] != '\n')
       snprintf(where, sizeof where, "line %ld", r->lineno);
+    if ((size_t)n != strlen(r->line) || r->line[n - 1] != '\n') r->ndamaged++;
     if ((size_t)n != strlen(r->line))
       return dt_err_set(e, DT_EFORMAT, where, "NUL byte in the line: damaged line skipped");
     if (r->line[n - 1] != '\n')
@@ -577,6 +579,7 @@ int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err 
     if (r->line[0] == '\n' || r->line[0] == '#') continue;
     int rc = dt_journal_parse(r->line, rec, e);
     if (rc != DT_OK) {
+      r->ndamaged++;
       snprintf(where, sizeof where, "line %ld", r->lineno);
       if (e) {
         char what[sizeof e->what];
@@ -592,6 +595,7 @@ int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err 
 
 int dt_journal_reader_version(const dt_journal_reader *r) { return r->version; }
 long dt_jn_reader_lineno(const dt_journal_reader *r) { return r->lineno; }
+size_t dt_journal_reader_damaged(const dt_journal_reader *r) { return r->ndamaged; }
 
 void dt_journal_reader_close(dt_journal_reader *r) {
   if (!r) return;
