@@ -53,9 +53,11 @@
 #include <math.h>
 #include <stdarg.h>
 #include <stdint.h>
+#include <stddef.h>
 #include <stdio.h>
 #include <string.h>
 
+#include "doubletty/digest.h"
 #include "doubletty/num.h"
 
 /* ---------- small helpers ---------- */
@@ -165,11 +167,6 @@ static void sb_num(sbuf *b, double x) {
   sb_str(b, t);
 }
 
-static void sb_kv_num(sbuf *b, const char *key, double x) {
-  sb_fmt(b, "\t%s=", key);
-  sb_num(b, x);
-}
-
 static void sb_pm(sbuf *b, double x, double err) {
   sb_num(b, x);
   sb_str(b, "+-");
@@ -193,131 +190,225 @@ int dt_jn_same_comp(const dt_component *a, const dt_component *b) {
   return same_d(a->logN, b->logN) && same_d(a->b, b->b) && same_d(a->v, b->v);
 }
 
-static void write_action(sbuf *b, const dt_action *a) {
-  char fz[4];
-  sb_fmt(b, "\tact=%s", dt_action_name(a->kind));
-  switch (a->kind) {
-  case DT_ACT_WINDOW_ADD:
-    sb_kv_num(b, "lo", a->x[0]);
-    sb_kv_num(b, "hi", a->x[1]);
-    break;
-  case DT_ACT_WINDOW_REMOVE:
-  case DT_ACT_COMP_REMOVE:
-    sb_fmt(b, "\ti=%d", a->index + 1);
-    break;
-  case DT_ACT_COMP_ADD:
-    sb_kv_num(b, "logN", a->x[0]);
-    sb_kv_num(b, "b", a->x[1]);
-    sb_kv_num(b, "v", a->x[2]);
-    break;
-  case DT_ACT_COMP_SET:
-    sb_fmt(b, "\ti=%d", a->index + 1);
-    sb_kv_num(b, "logN", a->x[0]);
-    sb_kv_num(b, "b", a->x[1]);
-    sb_kv_num(b, "v", a->x[2]);
-    break;
-  case DT_ACT_FREEZE:
-    sb_fmt(b, "\ti=%d\tfrozen=%s", a->index + 1, dt_freeze_str((unsigned)a->ival & 7u, fz));
-    break;
-  case DT_ACT_TIE_B: sb_fmt(b, "\ttie=%d", a->ival); break;
-  case DT_ACT_CONT_ORDER: sb_fmt(b, "\torder=%d", a->ival); break;
-  case DT_ACT_DOUBLET:
-    sb_str(b, "\tdoublet=");
-    sb_esc(b, a->text);
-    break;
-  case DT_ACT_RESOLUTION:
-    sb_kv_num(b, "R", a->x[0]);
-    sb_kv_num(b, "fwhm", a->x[1]);
-    break;
-  case DT_ACT_VSYS: sb_kv_num(b, "vsys", a->x[0]); break;
-  case DT_ACT_VWINDOW:
-    sb_kv_num(b, "vlo", a->x[0]);
-    sb_kv_num(b, "vhi", a->x[1]);
-    break;
-  case DT_ACT_VERDICT: sb_fmt(b, "\tverdict=%s", dt_verdict_name((dt_verdict)a->ival)); break;
-  case DT_ACT_NOTE:
-    sb_str(b, "\tnote=");
-    sb_esc(b, a->text);
-    break;
-  default: break; /* fit, restore, autofit: the state says it all */
+/* ---------- the field table ---------- */
+
+#define A(k) (1u << DT_ACT_##k)
+#define REC(m) offsetof(dt_journal_record, m)
+#define ACT(m) offsetof(dt_action, m)
+#define JDG(m) offsetof(dt_judgement, m)
+#define FIT(m) offsetof(dt_fit_result, m)
+#define ML(m) offsetof(dt_meas_line, m)
+#define MS(m) offsetof(dt_meas_summary, m)
+#define TXT(t, m) sizeof(((t *)0)->m)
+
+/* Every field of a record, in the order it is written.  The writer walks
+ * the table part by part; the parser finds each KEY=VALUE in it and checks
+ * what is required from it. */
+const dt_jn_field dt_jn_fields[] = {
+    /* who and which spectrum (before act=) */
+    {"user", JP_ID, JT_TEXT, JF_REQ, REC(user), 0, 0, TXT(dt_journal_record, user), 0},
+    {"file", JP_ID, JT_PTR, JF_REQ | JF_NONEMPTY, REC(target.path), 0, 0, 0, 0},
+    {"name", JP_ID, JT_PTR, JF_NONEMPTY | JF_OMIT, REC(target.name), 0, 0, 0, 0},
+    {"hdu", JP_ID, JT_INT, 0, REC(target.hdu), 0, 0, 100000, 0},
+    {"row", JP_ID, JT_LONG, 0, REC(target.row), 0, 0, 1L << 62, 0},
+    {"sha256", JP_ID, JT_SHA, 0, REC(target.sha256), 0, 0, 0, 0},
+    {"was", JP_ID, JT_SHA, JF_NONEMPTY | JF_OMIT, REC(sha256_was), 0, 0, 0, 0},
+    /* the action's fields (after act=), each with the actions that have it */
+    {"lo", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(WINDOW_ADD)},
+    {"hi", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(WINDOW_ADD)},
+    {"i", JP_ACT, JT_INDEX, 0, ACT(index), 0, 1, 1000,
+     A(WINDOW_REMOVE) | A(COMP_REMOVE) | A(COMP_SET) | A(FREEZE)},
+    {"logN", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(COMP_ADD) | A(COMP_SET)},
+    {"b", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(COMP_ADD) | A(COMP_SET)},
+    {"v", JP_ACT, JT_NUM, 0, ACT(x[2]), 0, 0, 0, A(COMP_ADD) | A(COMP_SET)},
+    {"frozen", JP_ACT, JT_FREEZE, 0, ACT(ival), 0, 0, 0, A(FREEZE)},
+    {"tie", JP_ACT, JT_INT, 0, ACT(ival), 0, 0, 1, A(TIE_B)},
+    {"order", JP_ACT, JT_INT, 0, ACT(ival), 0, -1, DT_MAX_CONT - 1, A(CONT_ORDER)},
+    {"doublet", JP_ACT, JT_TEXT, 0, ACT(text), 0, 0, TXT(dt_action, text), A(DOUBLET)},
+    {"R", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(RESOLUTION)},
+    {"fwhm", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(RESOLUTION)},
+    {"vsys", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(VSYS)},
+    {"vlo", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(VWINDOW)},
+    {"vhi", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(VWINDOW)},
+    {"verdict", JP_ACT, JT_VERDICT_INT, 0, ACT(ival), 0, 0, 0, A(VERDICT)},
+    {"note", JP_ACT, JT_TEXT, 0, ACT(text), 0, 0, TXT(dt_action, text), A(NOTE)},
+    /* the state after (after "=>"): what every record states */
+    {"verdict", JP_STATE, JT_VERDICT, JF_REQ, JDG(verdict), 0, 0, 0, 0},
+    {"ncomp", JP_STATE, JT_SIZE, JF_REQ, JDG(ncomp), 0, 0, DT_MAX_COMP, 0},
+    {"c", JP_STATE, JT_COMP, JF_NUMBERED, 0, 0, 0, DT_MAX_COMP, 0},
+    {"tie-b", JP_STATE, JT_INT, JF_OMIT, JDG(tie_b), 0, 0, 1, 0},
+    /* the fit of the state */
+    {"fit", JP_FIT, JT_STATUS, JF_REQ, FIT(status), 0, 0, 0, 0},
+    {"niter", JP_FIT, JT_INT, 0, FIT(niter), 0, -1, 1L << 30, 0},
+    {"chi2", JP_FIT, JT_NUM, 0, FIT(chi2), 0, 0, 0, 0},
+    {"dof", JP_FIT, JT_LONG, 0, FIT(dof), 0, -(1L << 40), 1L << 40, 0},
+    {"chi2r", JP_FIT, JT_NUM, 0, FIT(chi2_red), 0, 0, 0, 0},
+    {"bic", JP_FIT, JT_NUM, 0, FIT(bic), 0, 0, 0, 0},
+    {"npix", JP_FIT, JT_SIZE, 0, FIT(npix), 0, 0, 1L << 40, 0},
+    {"cont", JP_FIT, JT_CONT, JF_OMIT, 0, 0, 0, DT_MAX_CONT, 0},
+    {"f", JP_FIT, JT_FCOMP, JF_NUMBERED | JF_OMIT, 0, 0, 0, DT_MAX_COMP, 0},
+    /* measurements, per line of the doublet (W1 .. logNlim2) */
+    {"W", JP_MEAS, JT_PM, JF_NUMBERED | JF_OMIT, ML(w), ML(w_err), 0, 2, 0},
+    {"Wlim", JP_MEAS, JT_NUM, JF_NUMBERED | JF_OMIT, ML(w_lim), 0, 0, 2, 0},
+    {"logNa", JP_MEAS, JT_PM, JF_NUMBERED | JF_OMIT, ML(logN_aod), ML(logN_aod_err), 0, 2, 0},
+    {"logNlim", JP_MEAS, JT_NUM, JF_NUMBERED | JF_OMIT, ML(logN_lim), 0, 0, 2, 0},
+    {"nsigma", JP_MEASX, JT_NUM, 0, MS(nsigma), 0, 0, 0, 0},
+    {"saturated", JP_MEASX, JT_INT, JF_OMIT, MS(saturated), 0, 0, 1, 0},
+    {"suggested", JP_MEASX, JT_VERDICT, JF_OMIT, MS(suggested), 0, 0, 0, 0},
+    /* the settings of a full state */
+    {"full", JP_FULL, JT_FULL, 0, 0, 0, 0, 0, 0},
+    {"doublet", JP_FULL, JT_TEXT, JF_REQ | JF_NONEMPTY, JDG(doublet), 0, 0,
+     TXT(dt_judgement, doublet), 0},
+    {"vsys", JP_FULL, JT_NUM, JF_REQ, JDG(vsys), 0, 0, 0, 0},
+    {"R", JP_FULL, JT_NUM, JF_REQ, JDG(resolution), 0, 0, 0, 0},
+    {"fwhm", JP_FULL, JT_NUM, JF_REQ, JDG(fwhm_kms), 0, 0, 0, 0},
+    {"vlo", JP_FULL, JT_NUM, JF_REQ, JDG(vlo), 0, 0, 0, 0},
+    {"vhi", JP_FULL, JT_NUM, JF_REQ, JDG(vhi), 0, 0, 0, 0},
+    {"order", JP_FULL, JT_INT, JF_REQ, JDG(cont_order), 0, -1, DT_MAX_CONT - 1, 0},
+    {"windows", JP_FULL, JT_WINDOWS, JF_REQ, 0, 0, 0, DT_MAX_WINDOWS, 0},
+    {"note", JP_FULL, JT_TEXT, JF_REQ, JDG(note), 0, 0, TXT(dt_judgement, note), 0},
+};
+const size_t dt_jn_nfields = sizeof dt_jn_fields / sizeof dt_jn_fields[0];
+
+#define AT(base, off, type) ((type *)(void *)((char *)(base) + (off)))
+#define AT_C(base, off, type) ((const type *)(const void *)((const char *)(base) + (off)))
+
+/* ---------- writing ---------- */
+
+/* What a record is written from. */
+typedef struct wsrc {
+  const dt_journal_record *id; /* user, target, sha256_was */
+  const dt_action *act;
+  const dt_judgement *s;
+  const dt_meas_summary *m;
+  int fit_matches; /* the fit's components are the state's (c1.. carry the errors) */
+} wsrc;
+
+static const void *wbase(const wsrc *w, int part, int num) {
+  switch (part) {
+  case JP_ID: return w->id;
+  case JP_ACT: return w->act;
+  case JP_FIT: return &w->s->fit;
+  case JP_MEAS: return &w->m->line[num];
+  case JP_MEASX: return w->m;
+  default: return w->s;
   }
 }
 
-static void write_state(sbuf *b, const dt_judgement *s, const dt_meas_summary *m, int full) {
+static void sb_key(sbuf *b, const dt_jn_field *f, int num) {
+  if (f->flags & JF_NUMBERED) sb_fmt(b, "\t%s%d=", f->key, num + 1);
+  else sb_fmt(b, "\t%s=", f->key);
+}
+
+/* Components c1..cN (or f1..fN of a fit that differs from them). */
+static void write_comps(sbuf *b, const dt_jn_field *f, const wsrc *w) {
+  const dt_judgement *s = w->s;
+  char fz[4];
+  if (f->type == JT_COMP) {
+    for (size_t i = 0; i < s->ncomp && i < DT_MAX_COMP; i++) {
+      sb_key(b, f, (int)i);
+      sb_comp(b, &s->comp[i], w->fit_matches ? &s->fit.err[i] : NULL);
+      if (s->frozen[i]) sb_fmt(b, ",frozen=%s", dt_freeze_str(s->frozen[i], fz));
+    }
+  } else if (!w->fit_matches) {
+    for (size_t i = 0; i < s->fit.ncomp && i < DT_MAX_COMP; i++) {
+      sb_key(b, f, (int)i);
+      sb_comp(b, &s->fit.comp[i], &s->fit.err[i]);
+    }
+  }
+}
+
+/* One field; fields marked JF_OMIT are left out when they hold nothing. */
+static void write_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
+  const void *p = wbase(w, f->part, num);
+  int omit = f->flags & JF_OMIT;
   char fz[4], tmp[16];
-  sb_fmt(b, "\t=>\tverdict=%s\tncomp=%zu", dt_verdict_name(s->verdict), s->ncomp);
-  const dt_fit_result *f = s->has_fit ? &s->fit : NULL;
-  int fit_matches = f && f->ncomp == s->ncomp;
-  for (size_t i = 0; fit_matches && i < s->ncomp; i++)
-    if (!dt_jn_same_comp(&f->comp[i], &s->comp[i])) fit_matches = 0;
-  for (size_t i = 0; i < s->ncomp; i++) {
-    sb_fmt(b, "\tc%zu=", i + 1);
-    sb_comp(b, &s->comp[i], fit_matches ? &f->err[i] : NULL);
-    if (s->frozen[i]) sb_fmt(b, ",frozen=%s", dt_freeze_str(s->frozen[i], fz));
+  switch (f->type) {
+  case JT_TEXT:
+  case JT_PTR: {
+    const char *t = f->type == JT_PTR ? *AT_C(p, f->off, const char *) : AT_C(p, f->off, char);
+    if (omit && (!t || !*t)) return;
+    sb_key(b, f, num);
+    sb_esc(b, t);
+    return;
   }
-  if (s->tie_b) sb_str(b, "\ttie-b=1");
-  if (f) {
-    sb_fmt(b, "\tfit=%s\tniter=%d", dt_jn_status_token(f->status, tmp, sizeof tmp), f->niter);
-    sb_kv_num(b, "chi2", f->chi2);
-    sb_fmt(b, "\tdof=%ld", f->dof);
-    sb_kv_num(b, "chi2r", f->chi2_red);
-    sb_kv_num(b, "bic", f->bic);
-    sb_fmt(b, "\tnpix=%zu", f->npix);
-    if (f->ncont > 0) {
-      sb_str(b, "\tcont=");
-      for (size_t i = 0; i < f->ncont && i < DT_MAX_CONT; i++) {
-        if (i) sb_str(b, ",");
-        sb_pm(b, f->cont_coef[i], f->cont_err[i]);
-      }
+  case JT_NUM:
+  case JT_PM: {
+    double x = *AT_C(p, f->off, double);
+    if (omit && isnan(x)) return;
+    sb_key(b, f, num);
+    if (f->type == JT_PM) sb_pm(b, x, *AT_C(p, f->off2, double));
+    else sb_num(b, x);
+    return;
+  }
+  case JT_INT:
+  case JT_INDEX:
+  case JT_FREEZE:
+  case JT_VERDICT_INT: {
+    int v = *AT_C(p, f->off, int);
+    if (omit && !v) return;
+    sb_key(b, f, num);
+    if (f->type == JT_INDEX) sb_fmt(b, "%d", v + 1);
+    else if (f->type == JT_FREEZE) sb_str(b, dt_freeze_str((unsigned)v & 7u, fz));
+    else if (f->type == JT_VERDICT_INT) sb_str(b, dt_verdict_name((dt_verdict)v));
+    else sb_fmt(b, "%d", v);
+    return;
+  }
+  case JT_LONG: sb_key(b, f, num); sb_fmt(b, "%ld", *AT_C(p, f->off, long)); return;
+  case JT_SIZE: sb_key(b, f, num); sb_fmt(b, "%zu", *AT_C(p, f->off, size_t)); return;
+  case JT_VERDICT: {
+    dt_verdict v = *AT_C(p, f->off, dt_verdict);
+    if (omit && v == DT_VERDICT_NONE) return;
+    sb_key(b, f, num);
+    sb_str(b, dt_verdict_name(v));
+    return;
+  }
+  case JT_SHA: {
+    const char *h = AT_C(p, f->off, char);
+    if (omit && !dt_digest_is_hex(h)) return;
+    sb_key(b, f, num);
+    if (dt_digest_is_hex(h)) sb_str(b, h);
+    return;
+  }
+  case JT_STATUS:
+    sb_key(b, f, num);
+    sb_str(b, dt_jn_status_token(*AT_C(p, f->off, int), tmp, sizeof tmp));
+    return;
+  case JT_COMP:
+  case JT_FCOMP: write_comps(b, f, w); return;
+  case JT_CONT: {
+    const dt_fit_result *fr = p;
+    if (fr->ncont == 0) return;
+    sb_key(b, f, num);
+    for (size_t i = 0; i < fr->ncont && i < DT_MAX_CONT; i++) {
+      if (i) sb_str(b, ",");
+      sb_pm(b, fr->cont_coef[i], fr->cont_err[i]);
     }
-    if (!fit_matches)
-      for (size_t i = 0; i < f->ncomp && i < DT_MAX_COMP; i++) {
-        sb_fmt(b, "\tf%zu=", i + 1);
-        sb_comp(b, &f->comp[i], &f->err[i]);
-      }
+    return;
   }
-  if (m) { /* values that are NaN (not measured) are left out */
-    for (int l = 0; l < 2; l++) {
-      const dt_meas_line *ml = &m->line[l];
-      if (!isnan(ml->w)) {
-        sb_fmt(b, "\tW%d=", l + 1);
-        sb_pm(b, ml->w, ml->w_err);
-      }
-      if (!isnan(ml->w_lim)) {
-        sb_fmt(b, "\tWlim%d=", l + 1);
-        sb_num(b, ml->w_lim);
-      }
-      if (!isnan(ml->logN_aod)) {
-        sb_fmt(b, "\tlogNa%d=", l + 1);
-        sb_pm(b, ml->logN_aod, ml->logN_aod_err);
-      }
-      if (!isnan(ml->logN_lim)) {
-        sb_fmt(b, "\tlogNlim%d=", l + 1);
-        sb_num(b, ml->logN_lim);
-      }
-    }
-    sb_kv_num(b, "nsigma", m->nsigma);
-    if (m->saturated) sb_str(b, "\tsaturated=1");
-    if (m->suggested != DT_VERDICT_NONE)
-      sb_fmt(b, "\tsuggested=%s", dt_verdict_name(m->suggested));
-  }
-  if (full) {
-    sb_str(b, "\tfull=1\tdoublet=");
-    sb_esc(b, s->doublet);
-    sb_kv_num(b, "vsys", s->vsys);
-    sb_kv_num(b, "R", s->resolution);
-    sb_kv_num(b, "fwhm", s->fwhm_kms);
-    sb_kv_num(b, "vlo", s->vlo);
-    sb_kv_num(b, "vhi", s->vhi);
-    sb_fmt(b, "\torder=%d\twindows=", s->cont_order);
+  case JT_WINDOWS: {
+    const dt_judgement *s = p;
+    sb_key(b, f, num);
     for (size_t i = 0; i < s->nwin && i < DT_MAX_WINDOWS; i++) {
       if (i) sb_str(b, ",");
       sb_num(b, s->win[i].lo);
       sb_str(b, ":");
       sb_num(b, s->win[i].hi);
     }
-    sb_str(b, "\tnote=");
-    sb_esc(b, s->note);
+    return;
+  }
+  case JT_FULL: sb_str(b, "\tfull=1"); return;
+  default: return;
+  }
+}
+
+/* Every field of a part, in table order (action fields: those of kind). */
+static void write_part(sbuf *b, const wsrc *w, int part, int num) {
+  for (size_t i = 0; i < dt_jn_nfields; i++) {
+    const dt_jn_field *f = &dt_jn_fields[i];
+    if (f->part != part) continue;
+    if (part == JP_ACT && !(f->acts & (1u << w->act->kind))) continue;
+    write_field(b, f, w, num);
   }
 }
 
@@ -325,20 +416,31 @@ size_t dt_journal_format(char *buf, size_t size, const char *time, const char *u
                          const dt_target *t, const dt_action *a, const dt_judgement *after,
                          const dt_meas_summary *meas, int full, const char *sha256_was) {
   sbuf b = {buf, size, 0};
-  sb_str(&b, time);
-  sb_str(&b, "\tuser=");
-  sb_esc(&b, user && *user ? user : "unknown");
-  sb_str(&b, "\tfile=");
-  sb_esc(&b, t->path);
-  if (t->name && *t->name) {
-    sb_str(&b, "\tname=");
-    sb_esc(&b, t->name);
+  dt_journal_record idr; /* only user, target and sha256_was are used */
+  dt_journal_record *id = &idr;
+  dt_jn_copy_str(id->user, sizeof id->user, user && *user ? user : "unknown");
+  id->target = *t;
+  dt_jn_copy_str(id->sha256_was, sizeof id->sha256_was, sha256_was);
+  wsrc w = {id, a, after, meas, 0};
+  if (after->has_fit && after->fit.ncomp == after->ncomp) {
+    w.fit_matches = 1;
+    for (size_t i = 0; i < after->ncomp && i < DT_MAX_COMP; i++)
+      if (!dt_jn_same_comp(&after->fit.comp[i], &after->comp[i])) w.fit_matches = 0;
   }
-  sb_fmt(&b, "\thdu=%d\trow=%ld\tsha256=%s", t->hdu, t->row,
-         dt_digest_is_hex(t->sha256) ? t->sha256 : "");
-  if (sha256_was && dt_digest_is_hex(sha256_was)) sb_fmt(&b, "\twas=%s", sha256_was);
-  write_action(&b, a);
-  write_state(&b, after, meas, full || a->kind == DT_ACT_RESTORE || a->kind == DT_ACT_AUTOFIT);
+  sb_str(&b, time);
+  write_part(&b, &w, JP_ID, 0);
+  sb_fmt(&b, "\tact=%s", dt_action_name(a->kind));
+  write_part(&b, &w, JP_ACT, 0);
+  sb_str(&b, "\t=>");
+  write_part(&b, &w, JP_STATE, 0);
+  if (after->has_fit) write_part(&b, &w, JP_FIT, 0);
+  if (meas) { /* values that are NaN (not measured) are left out */
+    write_part(&b, &w, JP_MEAS, 0);
+    write_part(&b, &w, JP_MEAS, 1);
+    write_part(&b, &w, JP_MEASX, 0);
+  }
+  if (full || a->kind == DT_ACT_RESTORE || a->kind == DT_ACT_AUTOFIT)
+    write_part(&b, &w, JP_FULL, 0);
   size_t body = b.n;
   char tail[24];
   uint32_t h = body < size ? dt_jn_fnv1a32(buf, body) : 0;

@@ -47,4 +47,44 @@ char *dt_jn_session_dir(const char *session);
  * malloc'd; NULL = out of memory. */
 char *dt_jn_path_hint(const char *dir, const char *rdir, const char *path);
 
+/* ---- the field table (journal_format.c): one description of every field,
+ * walked by the writer and by the parser ---- */
+
+enum { JP_ID, JP_ACT, JP_STATE, JP_FIT, JP_MEAS, JP_MEASX, JP_FULL }; /* parts of a record */
+enum {
+  JT_TEXT,        /* escaped text into a char array of hi bytes */
+  JT_PTR,         /* escaped text, a const char * into the line */
+  JT_NUM,         /* double */
+  JT_PM,          /* double +- double (off, off2); the error may be missing */
+  JT_INT,         /* int in [lo, hi] */
+  JT_LONG,        /* long in [lo, hi] */
+  JT_SIZE,        /* size_t in [lo, hi] */
+  JT_INDEX,       /* 1-based in the file, an int 0-based in memory */
+  JT_FREEZE,      /* letters N, b, v: int bits */
+  JT_VERDICT,     /* dt_verdict */
+  JT_VERDICT_INT, /* a verdict kept in an int (the action's ival) */
+  JT_SHA,         /* 64 hex digits into char[DT_SHA256_HEX]; may be empty */
+  JT_STATUS,      /* fit status token */
+  JT_COMP,        /* component cN: logN=X[+-E],b=..,v=..[,frozen=..] */
+  JT_FCOMP,       /* fitted component fN (with errors) */
+  JT_CONT,        /* continuum coefficients C+-E,... */
+  JT_WINDOWS,     /* continuum windows LO:HI,... */
+  JT_FULL         /* full=1: the settings follow */
+};
+enum {
+  JF_REQ = 1,      /* required (for JP_FULL: when full=1; JP_FIT: when the fit is there) */
+  JF_NONEMPTY = 2, /* text that may not be empty */
+  JF_OMIT = 4,     /* left out when empty, zero or NaN */
+  JF_NUMBERED = 8  /* KEY1 .. KEYn, n = hi */
+};
+typedef struct dt_jn_field {
+  const char *key;
+  unsigned char part, type, flags;
+  size_t off, off2; /* where the value (and its error) lives in its part */
+  long lo, hi;      /* integer range; text: buffer size in hi; numbered: count */
+  unsigned acts;    /* JP_ACT: the actions (bit per kind) that have the field */
+} dt_jn_field;
+extern const dt_jn_field dt_jn_fields[];
+extern const size_t dt_jn_nfields;
+
 #endif
