@@ -17,6 +17,7 @@
 #include "doubletty/journal.h"
 #include "journal_int.h"
 
+#include <assert.h>
 #include <errno.h>
 #include <math.h>
 #include <stdint.h>
@@ -25,6 +26,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "doubletty/digest.h"
 #include "doubletty/measure.h"
 #include "doubletty/num.h"
 
@@ -152,10 +154,207 @@ static int fail(dt_err *e, const char *fmt, const char *arg) {
   return dt_err_set(e, DT_EFORMAT, NULL, "%s", what);
 }
 
-int dt_journal_parse(char *line, dt_journal_record *rec, dt_err *e) {
+#define MAX_FIELDS 80 /* >= dt_jn_nfields */
+#define AT(base, off, type) ((type *)(void *)((char *)(base) + (off)))
+
+/* What the parse of one line has seen. */
+typedef struct pstate {
+  unsigned seen[MAX_FIELDS];        /* per table field: a bit per number (bit 0 if plain) */
+  int comp_err[DT_MAX_COMP];        /* component i carried errors */
+  dt_component cerr[DT_MAX_COMP];   /* ... these */
+} pstate;
+
+/* The table's field for key k in a part of the line (JP_ID before act=,
+ * JP_ACT before "=>", JP_STATE after it: every part of the state). */
+static const dt_jn_field *lookup(const char *k, int part, int *num) {
+  for (size_t i = 0; i < dt_jn_nfields; i++) {
+    const dt_jn_field *f = &dt_jn_fields[i];
+    if (part == JP_STATE ? f->part < JP_STATE : f->part != part) continue;
+    if (f->flags & JF_NUMBERED) {
+      size_t n = strlen(f->key);
+      if (!strncmp(k, f->key, n) && k[n] >= '1' && k[n] < '1' + f->hi && !k[n + 1]) {
+        *num = k[n] - '1';
+        return f;
+      }
+    } else if (!strcmp(k, f->key)) {
+      *num = 0;
+      return f;
+    }
+  }
+  return NULL;
+}
+
+static void *part_base(dt_journal_record *rec, int part, int num) {
+  switch (part) {
+  case JP_ID: return rec;
+  case JP_ACT: return &rec->action;
+  case JP_FIT: return &rec->after.fit;
+  case JP_MEAS: return &rec->meas.line[num];
+  case JP_MEASX: return &rec->meas;
+  default: return &rec->after;
+  }
+}
+
+/* "C+-E,..." into the fit's continuum, "LO:HI,..." into the windows. */
+static int read_list(const dt_jn_field *f, char *v, void *p) {
+  size_t n = 0;
+  int bad = 0;
+  for (char *tok = *v || f->type == JT_CONT ? v : NULL; tok && !bad; n++) {
+    char *comma = strchr(tok, ',');
+    if (comma) *comma = '\0';
+    if (n >= (size_t)f->hi) return -1;
+    if (f->type == JT_CONT) {
+      dt_fit_result *fit = p;
+      int he = 0;
+      bad = parse_pm(tok, &fit->cont_coef[n], &fit->cont_err[n], &he) || !he;
+    } else {
+      dt_judgement *s = p;
+      char *colon = strchr(tok, ':');
+      if (!colon) return -1;
+      *colon = '\0';
+      bad = parse_num(tok, &s->win[n].lo) || parse_num(colon + 1, &s->win[n].hi);
+    }
+    tok = comma ? comma + 1 : NULL;
+  }
+  if (f->type == JT_CONT) ((dt_fit_result *)p)->ncont = n;
+  else ((dt_judgement *)p)->nwin = n;
+  return bad ? -1 : 0;
+}
+
+/* Read value v of field f (number num) into the record; -1 if bad. */
+static int read_value(const dt_jn_field *f, char *v, int num, dt_journal_record *rec, pstate *ps) {
+  void *p = part_base(rec, f->part, num);
+  long lv = 0;
+  unsigned fb = 0;
+  int he = 0;
+  dt_verdict vd;
+  switch (f->type) {
+  case JT_TEXT:
+    if (unescape(v) || ((f->flags & JF_NONEMPTY) && !*v)) return -1;
+    if (f->part != JP_ID && strlen(v) >= (size_t)f->hi) return -1; /* a user is cut */
+    dt_jn_copy_str(AT(p, f->off, char), (size_t)f->hi, v);
+    return 0;
+  case JT_PTR:
+    if (unescape(v) || ((f->flags & JF_NONEMPTY) && !*v)) return -1;
+    *AT(p, f->off, const char *) = v;
+    return 0;
+  case JT_NUM: return parse_num(v, AT(p, f->off, double));
+  case JT_PM: return parse_pm(v, AT(p, f->off, double), AT(p, f->off2, double), NULL);
+  case JT_INT:
+  case JT_INDEX:
+    if (parse_long(v, f->lo, f->hi, &lv)) return -1;
+    *AT(p, f->off, int) = (int)lv - (f->type == JT_INDEX);
+    return 0;
+  case JT_LONG: return parse_long(v, f->lo, f->hi, AT(p, f->off, long));
+  case JT_SIZE:
+    if (parse_long(v, f->lo, f->hi, &lv)) return -1;
+    *AT(p, f->off, size_t) = (size_t)lv;
+    return 0;
+  case JT_FREEZE:
+    if (dt_freeze_parse(v, &fb) != DT_OK) return -1;
+    *AT(p, f->off, int) = (int)fb;
+    return 0;
+  case JT_VERDICT: return dt_verdict_parse(v, AT(p, f->off, dt_verdict)) != DT_OK ? -1 : 0;
+  case JT_VERDICT_INT:
+    if (dt_verdict_parse(v, &vd) != DT_OK) return -1;
+    *AT(p, f->off, int) = (int)vd;
+    return 0;
+  case JT_SHA:
+    if ((*v || (f->flags & JF_NONEMPTY)) && !dt_digest_is_hex(v)) return -1;
+    dt_jn_copy_str(AT(p, f->off, char), DT_SHA256_HEX, v);
+    return 0;
+  case JT_STATUS:
+    if (!dt_jn_status_parse(v, AT(p, f->off, int))) return 0;
+    if (parse_long(v, -1000, 1000, &lv)) return -1;
+    *AT(p, f->off, int) = (int)lv;
+    return 0;
+  case JT_COMP:
+    if (parse_comp(v, &rec->after.comp[num], &ps->cerr[num], &he, &fb)) return -1;
+    rec->after.frozen[num] = (unsigned char)fb;
+    ps->comp_err[num] = he;
+    return 0;
+  case JT_FCOMP:
+    return parse_comp(v, &rec->after.fit.comp[num], &rec->after.fit.err[num], &he, &fb) || !he ||
+                   fb
+               ? -1
+               : 0;
+  case JT_CONT:
+  case JT_WINDOWS: return read_list(f, v, p);
+  case JT_FULL:
+    if (parse_long(v, 1, 1, &lv)) return -1;
+    rec->has |= DT_REC_FULL;
+    return 0;
+  default: return -1;
+  }
+}
+
+static unsigned seen_of(const pstate *ps, const char *key, int part) {
+  for (size_t i = 0; i < dt_jn_nfields; i++)
+    if (dt_jn_fields[i].part == part && !strcmp(dt_jn_fields[i].key, key)) return ps->seen[i];
+  return 0;
+}
+
+/* Is any field of a part there?  Are all its required ones? */
+static int part_seen(const pstate *ps, int part, int required_only, int all) {
+  for (size_t i = 0; i < dt_jn_nfields; i++) {
+    const dt_jn_field *f = &dt_jn_fields[i];
+    if (f->part != part || (required_only && !(f->flags & JF_REQ))) continue;
+    if (!all && ps->seen[i]) return 1;
+    if (all && !ps->seen[i]) return 0;
+  }
+  return all;
+}
+
+/* The rules between fields, once the line is read. */
+static int check_record(dt_journal_record *rec, const pstate *ps, dt_err *e) {
+  dt_action *a = &rec->action;
+  dt_fit_result *fit = &rec->after.fit;
+  size_t ncomp = rec->after.ncomp;
+  unsigned all = ncomp ? (1u << ncomp) - 1 : 0;
+  if (seen_of(ps, "c", JP_STATE) != all)
+    return fail(e, "%s", "components c1.. do not match ncomp");
+  for (size_t i = 0; i < dt_jn_nfields; i++) {
+    const dt_jn_field *f = &dt_jn_fields[i];
+    if (f->part == JP_ACT && !ps->seen[i] != !(f->acts & (1u << a->kind)))
+      return fail(e, "the fields of action '%s' are incomplete or wrong", dt_action_name(a->kind));
+  }
+  if (seen_of(ps, "was", JP_ID)) rec->flags |= DT_JFLAG_FILE_CHANGED;
+  if (part_seen(ps, JP_MEAS, 0, 0) || part_seen(ps, JP_MEASX, 0, 0)) rec->has |= DT_REC_MEAS;
+  if (seen_of(ps, "fit", JP_FIT)) {
+    unsigned fseen = seen_of(ps, "f", JP_FIT);
+    rec->after.has_fit = 1;
+    fit->ncomp = ncomp;
+    if (fseen && fseen != all) return fail(e, "%s", "fitted components f1.. do not match ncomp");
+    for (size_t i = 0; !fseen && i < ncomp; i++) {
+      if (!ps->comp_err[i]) return fail(e, "%s", "fitted components have no errors");
+      fit->comp[i] = rec->after.comp[i];
+      fit->err[i] = ps->cerr[i];
+    }
+  } else if (part_seen(ps, JP_FIT, 0, 0)) {
+    return fail(e, "%s", "fit values without fit=");
+  }
+  if (rec->has & DT_REC_FULL) {
+    if (!part_seen(ps, JP_FULL, 1, 1)) return fail(e, "%s", "a full state lacks some of its fields");
+  } else if (part_seen(ps, JP_FULL, 0, 0)) {
+    return fail(e, "%s", "state settings without full=1");
+  }
+  if (a->kind == DT_ACT_RESTORE || a->kind == DT_ACT_AUTOFIT) {
+    if (!(rec->has & DT_REC_FULL))
+      return fail(e, "%s", a->kind == DT_ACT_AUTOFIT ? "autofit without the full state"
+                                                     : "restore without the full state");
+    a->state = &rec->after;
+  }
+  if (a->kind == DT_ACT_FIT) {
+    if (!rec->after.has_fit) return fail(e, "%s", "fit action without fit values");
+    a->fit = rec->after.fit;
+  }
+  return DT_OK;
+}
+
+/* The check sum first: nothing in a damaged line is trusted.  Cuts it off. */
+static int check_sum(char *line, dt_err *e) {
   size_t len = strlen(line);
   if (len && line[len - 1] == '\n') line[--len] = '\0';
-  /* the check sum first: nothing in a damaged line is trusted */
   char *last = strrchr(line, '\t');
   if (!last || strncmp(last, "\tsum=", 5) != 0 || strlen(last + 5) != 8)
     return dt_err_set(e, DT_EFORMAT, NULL, "no check sum at the end: damaged line");
@@ -165,317 +364,68 @@ int dt_journal_parse(char *line, dt_journal_record *rec, dt_err *e) {
     return dt_err_set(e, DT_EFORMAT, NULL,
                       "check sum does not match: the line was altered or damaged");
   *last = '\0';
+  return DT_OK;
+}
 
+int dt_journal_parse(char *line, dt_journal_record *rec, dt_err *e) {
+  int rc = check_sum(line, e);
+  if (rc != DT_OK) return rc;
   memset(rec, 0, sizeof *rec);
   dt_judgement_init(&rec->after);
   dt_meas_summary_clear(&rec->meas);
-  dt_action *a = &rec->action;
+  pstate ps;
+  memset(&ps, 0, sizeof ps);
+  assert(dt_jn_nfields <= MAX_FIELDS);
 
-  /* split into fields */
-  char *fld[160];
-  size_t nf = 0;
-  for (char *p = line;;) {
-    if (nf == sizeof fld / sizeof fld[0]) return dt_err_set(e, DT_EFORMAT, NULL, "too many fields");
-    fld[nf++] = p;
-    char *t = strchr(p, '\t');
-    if (!t) break;
-    *t = '\0';
-    p = t + 1;
-  }
-  /* time */
-  size_t tl = strlen(fld[0]);
-  if (tl < 20 || tl >= DT_JOURNAL_TIME_MAX || fld[0][4] != '-' || fld[0][10] != 'T' ||
-      fld[0][tl - 1] != 'Z')
-    return fail(e, "'%.40s' is not a UTC time stamp", fld[0]);
-  memcpy(rec->time, fld[0], tl + 1);
+  char *tab = strchr(line, '\t');
+  if (tab) *tab = '\0';
+  size_t tl = strlen(line);
+  if (tl < 20 || tl >= DT_JOURNAL_TIME_MAX || line[4] != '-' || line[10] != 'T' ||
+      line[tl - 1] != 'Z')
+    return fail(e, "'%.40s' is not a UTC time stamp", line);
+  memcpy(rec->time, line, tl + 1);
 
-  enum { HAVE_USER = 1, HAVE_FILE = 2, HAVE_ACT = 4, HAVE_ARROW = 8, HAVE_VERDICT = 16,
-         HAVE_NCOMP = 32, HAVE_FIT = 64 };
-  unsigned have = 0;
-  /* action fields seen (bit per key) */
-  unsigned ahave = 0;
-  enum { A_LO = 1, A_HI = 2, A_I = 4, A_LOGN = 8, A_B = 16, A_V = 32, A_FROZEN = 64,
-         A_TIE = 128, A_ORDER = 256, A_DOUBLET = 512, A_R = 1024, A_FWHM = 2048,
-         A_VSYS = 4096, A_VLO = 8192, A_VHI = 16384, A_VERDICT = 32768, A_NOTE = 65536 };
-  unsigned fhave = 0; /* full-state fields */
-  size_t ncomp = 0, ncseen = 0, nfseen = 0;
-  unsigned cseen = 0, fseen = 0;
-  int comp_err[DT_MAX_COMP] = {0};
-  dt_component cerr[DT_MAX_COMP];
-  dt_fit_result *fit = &rec->after.fit;
-  int fit_status_set = 0;
-  for (size_t i = 1; i < nf; i++) {
-    char *f = fld[i];
+  int part = JP_ID, nf = 1;
+  for (char *f = tab ? tab + 1 : NULL; f; nf++) {
+    if (nf == 160) return dt_err_set(e, DT_EFORMAT, NULL, "too many fields");
+    if ((tab = strchr(f, '\t')) != NULL) *tab = '\0';
+    char *next = tab ? tab + 1 : NULL;
     if (!strcmp(f, "=>")) {
-      if (!(have & HAVE_ACT) || (have & HAVE_ARROW)) return fail(e, "misplaced '%s'", "=>");
-      have |= HAVE_ARROW;
+      if (part != JP_ACT) return fail(e, "misplaced '%s'", "=>");
+      part = JP_STATE;
+      f = next;
       continue;
     }
     char *eq = strchr(f, '=');
     if (!eq || eq == f) return fail(e, "field '%.40s' is not KEY=VALUE", f);
     *eq = '\0';
     char *k = f, *v = eq + 1;
-    long lv;
-    int bad = 0;
-    if (!(have & HAVE_ARROW)) {
-      if (!(have & HAVE_ACT)) { /* identity */
-        if (!strcmp(k, "user")) {
-          if (unescape(v)) bad = 1;
-          else dt_jn_copy_str(rec->user, sizeof rec->user, v);
-          have |= HAVE_USER;
-        } else if (!strcmp(k, "file")) {
-          if (unescape(v) || !*v) bad = 1;
-          rec->target.path = v;
-          have |= HAVE_FILE;
-        } else if (!strcmp(k, "name")) {
-          if (unescape(v) || !*v) bad = 1;
-          rec->target.name = v;
-        } else if (!strcmp(k, "hdu")) {
-          if (parse_long(v, 0, 100000, &lv)) bad = 1;
-          else rec->target.hdu = (int)lv;
-        } else if (!strcmp(k, "row")) {
-          if (parse_long(v, 0, 1L << 62, &lv)) bad = 1;
-          else rec->target.row = lv;
-        } else if (!strcmp(k, "sha256")) {
-          if (*v && !dt_digest_is_hex(v)) bad = 1;
-          else dt_jn_copy_str(rec->target.sha256, sizeof rec->target.sha256, v);
-        } else if (!strcmp(k, "was")) {
-          if (!dt_digest_is_hex(v)) bad = 1;
-          else {
-            dt_jn_copy_str(rec->sha256_was, sizeof rec->sha256_was, v);
-            rec->flags |= DT_JFLAG_FILE_CHANGED;
-          }
-        } else if (!strcmp(k, "act")) {
-          dt_action_kind kind;
-          if (dt_action_kind_parse(v, &kind) != DT_OK) return fail(e, "unknown action '%.40s'", v);
-          dt_action_init(a, kind);
-          have |= HAVE_ACT;
-        } else {
-          return fail(e, "unknown field '%.40s'", k);
-        }
-      } else { /* action fields */
-        unsigned bit = 0;
-        if (!strcmp(k, "lo")) bit = A_LO, bad = parse_num(v, &a->x[0]);
-        else if (!strcmp(k, "hi")) bit = A_HI, bad = parse_num(v, &a->x[1]);
-        else if (!strcmp(k, "i")) {
-          bit = A_I;
-          bad = parse_long(v, 1, 1000, &lv);
-          if (!bad) a->index = (int)lv - 1;
-        } else if (!strcmp(k, "logN")) bit = A_LOGN, bad = parse_num(v, &a->x[0]);
-        else if (!strcmp(k, "b")) bit = A_B, bad = parse_num(v, &a->x[1]);
-        else if (!strcmp(k, "v")) bit = A_V, bad = parse_num(v, &a->x[2]);
-        else if (!strcmp(k, "frozen")) {
-          unsigned fb;
-          bit = A_FROZEN;
-          bad = dt_freeze_parse(v, &fb) != DT_OK;
-          a->ival = (int)fb;
-        } else if (!strcmp(k, "tie")) {
-          bit = A_TIE;
-          bad = parse_long(v, 0, 1, &lv);
-          a->ival = (int)lv;
-        } else if (!strcmp(k, "order")) {
-          bit = A_ORDER;
-          bad = parse_long(v, -1, DT_MAX_CONT - 1, &lv);
-          a->ival = (int)lv;
-        } else if (!strcmp(k, "doublet")) {
-          bit = A_DOUBLET;
-          bad = unescape(v) || strlen(v) >= sizeof a->text;
-          if (!bad) dt_jn_copy_str(a->text, sizeof a->text, v);
-        } else if (!strcmp(k, "R")) bit = A_R, bad = parse_num(v, &a->x[0]);
-        else if (!strcmp(k, "fwhm")) bit = A_FWHM, bad = parse_num(v, &a->x[1]);
-        else if (!strcmp(k, "vsys")) bit = A_VSYS, bad = parse_num(v, &a->x[0]);
-        else if (!strcmp(k, "vlo")) bit = A_VLO, bad = parse_num(v, &a->x[0]);
-        else if (!strcmp(k, "vhi")) bit = A_VHI, bad = parse_num(v, &a->x[1]);
-        else if (!strcmp(k, "verdict")) {
-          dt_verdict vd;
-          bit = A_VERDICT;
-          bad = dt_verdict_parse(v, &vd) != DT_OK;
-          a->ival = (int)vd;
-        } else if (!strcmp(k, "note")) {
-          bit = A_NOTE;
-          bad = unescape(v) || strlen(v) >= sizeof a->text;
-          if (!bad) dt_jn_copy_str(a->text, sizeof a->text, v);
-        } else {
-          return fail(e, "unknown field '%.40s'", k);
-        }
-        if (ahave & bit) return fail(e, "field '%.40s' given twice", k);
-        ahave |= bit;
-      }
-    } else { /* the state after */
-      if (!strcmp(k, "verdict")) {
-        bad = dt_verdict_parse(v, &rec->after.verdict) != DT_OK;
-        have |= HAVE_VERDICT;
-      } else if (!strcmp(k, "ncomp")) {
-        bad = parse_long(v, 0, DT_MAX_COMP, &lv);
-        ncomp = (size_t)lv;
-        have |= HAVE_NCOMP;
-      } else if ((k[0] == 'c' || k[0] == 'f') && k[1] >= '1' && k[1] <= '9' && k[2] == '\0') {
-        size_t idx = (size_t)(k[1] - '1');
-        if (idx >= DT_MAX_COMP) return fail(e, "component field '%.40s' out of range", k);
-        unsigned fz = 0;
-        int he = 0;
-        if (k[0] == 'c') {
-          if (cseen & (1u << idx)) return fail(e, "field '%.40s' given twice", k);
-          bad = parse_comp(v, &rec->after.comp[idx], &cerr[idx], &he, &fz);
-          rec->after.frozen[idx] = (unsigned char)fz;
-          comp_err[idx] = he;
-          cseen |= 1u << idx;
-          ncseen++;
-        } else {
-          if (fseen & (1u << idx)) return fail(e, "field '%.40s' given twice", k);
-          bad = parse_comp(v, &fit->comp[idx], &fit->err[idx], &he, &fz) || !he || fz;
-          fseen |= 1u << idx;
-          nfseen++;
-        }
-      } else if (!strcmp(k, "tie-b")) {
-        bad = parse_long(v, 0, 1, &lv);
-        rec->after.tie_b = (int)lv;
-      } else if (!strcmp(k, "fit")) {
-        bad = dt_jn_status_parse(v, &fit->status) != 0;
-        if (bad && !parse_long(v, -1000, 1000, &lv)) fit->status = (int)lv, bad = 0;
-        fit_status_set = 1;
-        have |= HAVE_FIT;
-      } else if (!strcmp(k, "niter")) {
-        bad = parse_long(v, -1, 1L << 30, &lv);
-        fit->niter = (int)lv;
-      } else if (!strcmp(k, "chi2")) bad = parse_num(v, &fit->chi2);
-      else if (!strcmp(k, "dof")) {
-        bad = parse_long(v, -(1L << 40), 1L << 40, &lv);
-        fit->dof = lv;
-      } else if (!strcmp(k, "chi2r")) bad = parse_num(v, &fit->chi2_red);
-      else if (!strcmp(k, "bic")) bad = parse_num(v, &fit->bic);
-      else if (!strcmp(k, "npix")) {
-        bad = parse_long(v, 0, 1L << 40, &lv);
-        fit->npix = (size_t)lv;
-      } else if (!strcmp(k, "cont")) {
-        size_t n = 0;
-        for (char *tok = v; tok && !bad;) {
-          char *comma = strchr(tok, ',');
-          if (comma) *comma = '\0';
-          int he = 0;
-          if (n >= DT_MAX_CONT) bad = 1;
-          else bad = parse_pm(tok, &fit->cont_coef[n], &fit->cont_err[n], &he) || !he;
-          n++;
-          tok = comma ? comma + 1 : NULL;
-        }
-        fit->ncont = n;
-      } else if ((k[0] == 'W' || !strncmp(k, "Wlim", 4) || !strncmp(k, "logNa", 5) ||
-                  !strncmp(k, "logNlim", 7)) &&
-                 (k[strlen(k) - 1] == '1' || k[strlen(k) - 1] == '2')) {
-        int l = k[strlen(k) - 1] - '1';
-        dt_meas_line *ml = &rec->meas.line[l];
-        size_t kl = strlen(k) - 1;
-        if (kl == 1 && k[0] == 'W') bad = parse_pm(v, &ml->w, &ml->w_err, NULL);
-        else if (kl == 4 && !strncmp(k, "Wlim", 4)) bad = parse_num(v, &ml->w_lim);
-        else if (kl == 5 && !strncmp(k, "logNa", 5))
-          bad = parse_pm(v, &ml->logN_aod, &ml->logN_aod_err, NULL);
-        else if (kl == 7 && !strncmp(k, "logNlim", 7)) bad = parse_num(v, &ml->logN_lim);
-        else return fail(e, "unknown field '%.40s'", k);
-        rec->has |= DT_REC_MEAS;
-      } else if (!strcmp(k, "nsigma")) {
-        bad = parse_num(v, &rec->meas.nsigma);
-        rec->has |= DT_REC_MEAS;
-      } else if (!strcmp(k, "saturated")) {
-        bad = parse_long(v, 0, 1, &lv);
-        rec->meas.saturated = (int)lv;
-      } else if (!strcmp(k, "suggested")) {
-        bad = dt_verdict_parse(v, &rec->meas.suggested) != DT_OK;
-      } else if (!strcmp(k, "full")) {
-        bad = parse_long(v, 1, 1, &lv);
-        rec->has |= DT_REC_FULL;
-      } else if (!strcmp(k, "doublet")) {
-        bad = unescape(v) || !*v || strlen(v) >= sizeof rec->after.doublet;
-        if (!bad) dt_jn_copy_str(rec->after.doublet, sizeof rec->after.doublet, v);
-        fhave |= 1;
-      } else if (!strcmp(k, "vsys")) bad = parse_num(v, &rec->after.vsys), fhave |= 2;
-      else if (!strcmp(k, "R")) bad = parse_num(v, &rec->after.resolution), fhave |= 4;
-      else if (!strcmp(k, "fwhm")) bad = parse_num(v, &rec->after.fwhm_kms), fhave |= 8;
-      else if (!strcmp(k, "vlo")) bad = parse_num(v, &rec->after.vlo), fhave |= 16;
-      else if (!strcmp(k, "vhi")) bad = parse_num(v, &rec->after.vhi), fhave |= 32;
-      else if (!strcmp(k, "order")) {
-        bad = parse_long(v, -1, DT_MAX_CONT - 1, &lv);
-        rec->after.cont_order = (int)lv;
-        fhave |= 64;
-      } else if (!strcmp(k, "windows")) {
-        size_t n = 0;
-        for (char *tok = *v ? v : NULL; tok && !bad;) {
-          char *comma = strchr(tok, ',');
-          if (comma) *comma = '\0';
-          char *colon = strchr(tok, ':');
-          if (!colon || n >= DT_MAX_WINDOWS) bad = 1;
-          else {
-            *colon = '\0';
-            bad = parse_num(tok, &rec->after.win[n].lo) ||
-                  parse_num(colon + 1, &rec->after.win[n].hi);
-          }
-          n++;
-          tok = comma ? comma + 1 : NULL;
-        }
-        rec->after.nwin = n;
-        fhave |= 128;
-      } else if (!strcmp(k, "note")) {
-        bad = unescape(v) || strlen(v) >= sizeof rec->after.note;
-        if (!bad) dt_jn_copy_str(rec->after.note, sizeof rec->after.note, v);
-        fhave |= 256;
-      } else {
-        return fail(e, "unknown field '%.40s'", k);
-      }
+    if (part == JP_ID && !strcmp(k, "act")) {
+      dt_action_kind kind;
+      if (dt_action_kind_parse(v, &kind) != DT_OK) return fail(e, "unknown action '%.40s'", v);
+      dt_action_init(&rec->action, kind);
+      part = JP_ACT;
+      f = next;
+      continue;
     }
-    if (bad) return fail(e, "bad value in field '%.40s'", k);
+    int num;
+    const dt_jn_field *fd = lookup(k, part, &num);
+    if (!fd) return fail(e, "unknown field '%.40s'", k);
+    unsigned *seen = &ps.seen[fd - dt_jn_fields];
+    if (*seen & (1u << num)) return fail(e, "field '%.40s' given twice", k);
+    *seen |= 1u << num;
+    if (read_value(fd, v, num, rec, &ps)) return fail(e, "bad value in field '%.40s'", k);
+    f = next;
   }
-  if (!(have & HAVE_USER)) return fail(e, "no %s field", "user=");
-  if (!(have & HAVE_FILE)) return fail(e, "no %s field", "file=");
-  if (!(have & HAVE_ACT)) return fail(e, "no %s field", "act=");
-  if (!(have & HAVE_ARROW)) return fail(e, "no %s field", "'=>'");
-  if (!(have & HAVE_VERDICT)) return fail(e, "no %s field", "verdict=");
-  if (!(have & HAVE_NCOMP)) return fail(e, "no %s field", "ncomp=");
-  if (ncseen != ncomp || (ncomp && cseen != (1u << ncomp) - 1))
-    return fail(e, "%s", "components c1.. do not match ncomp");
-  rec->after.ncomp = ncomp;
-
-  /* the action's required fields */
-  static const unsigned need[DT_ACT__COUNT] = {
-      [DT_ACT_WINDOW_ADD] = A_LO | A_HI, [DT_ACT_WINDOW_REMOVE] = A_I,
-      [DT_ACT_COMP_ADD] = A_LOGN | A_B | A_V, [DT_ACT_COMP_REMOVE] = A_I,
-      [DT_ACT_COMP_SET] = A_I | A_LOGN | A_B | A_V, [DT_ACT_FREEZE] = A_I | A_FROZEN,
-      [DT_ACT_TIE_B] = A_TIE, [DT_ACT_CONT_ORDER] = A_ORDER, [DT_ACT_DOUBLET] = A_DOUBLET,
-      [DT_ACT_RESOLUTION] = A_R | A_FWHM, [DT_ACT_VSYS] = A_VSYS,
-      [DT_ACT_VWINDOW] = A_VLO | A_VHI, [DT_ACT_VERDICT] = A_VERDICT, [DT_ACT_NOTE] = A_NOTE,
-  };
-  if (ahave != need[a->kind])
-    return fail(e, "the fields of action '%s' are incomplete or wrong", dt_action_name(a->kind));
-
-  /* the fit */
-  if (fit_status_set) {
-    rec->after.has_fit = 1;
-    fit->ncomp = ncomp;
-    if (nfseen) {
-      if (nfseen != ncomp || fseen != (1u << ncomp) - 1)
-        return fail(e, "%s", "fitted components f1.. do not match ncomp");
-    } else {
-      for (size_t i = 0; i < ncomp; i++) {
-        if (!comp_err[i]) return fail(e, "%s", "fitted components have no errors");
-        fit->comp[i] = rec->after.comp[i];
-        fit->err[i] = cerr[i];
-      }
-    }
-  } else if (nfseen || fit->ncont) {
-    return fail(e, "%s", "fit values without fit=");
-  }
-  if (rec->has & DT_REC_FULL) {
-    if (fhave != 511) return fail(e, "%s", "a full state lacks some of its fields");
-  } else if (fhave) {
-    return fail(e, "%s", "state settings without full=1");
-  }
-  if (a->kind == DT_ACT_RESTORE || a->kind == DT_ACT_AUTOFIT) {
-    if (!(rec->has & DT_REC_FULL)) return fail(e, "%s", a->kind == DT_ACT_AUTOFIT ? "autofit without the full state" : "restore without the full state");
-    a->state = &rec->after;
-  }
-  if (a->kind == DT_ACT_FIT) {
-    if (!rec->after.has_fit) return fail(e, "%s", "fit action without fit values");
-    a->fit = rec->after.fit;
-  }
-  return DT_OK;
+  for (size_t i = 0; i < dt_jn_nfields; i++)
+    if (dt_jn_fields[i].part == JP_ID && (dt_jn_fields[i].flags & JF_REQ) && !ps.seen[i])
+      return fail(e, "no %s= field", dt_jn_fields[i].key);
+  if (part == JP_ID) return fail(e, "no %s field", "act=");
+  if (part == JP_ACT) return fail(e, "no %s field", "'=>'");
+  for (size_t i = 0; i < dt_jn_nfields; i++)
+    if (dt_jn_fields[i].part == JP_STATE && (dt_jn_fields[i].flags & JF_REQ) && !ps.seen[i])
+      return fail(e, "no %s= field", dt_jn_fields[i].key);
+  return check_record(rec, &ps, e);
 }
 
 /* ---------- the record reader ---------- */
