@@ -326,7 +326,7 @@ static void write_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
   switch (f->type) {
   case JT_TEXT:
   case JT_PTR: {
-    const char *t = f->type == JT_PTR ? *AT_C(p, f->off, const char *) : AT_C(p, f->off, char);
+    const char *t = f->type == JT_PTR ? *AT_C(p, f->off, char *) : AT_C(p, f->off, char);
     if (omit && (!t || !*t)) return;
     sb_key(b, f, num);
     sb_esc(b, t);
