@@ -1,21 +1,34 @@
 /* The session file format and its writer: one line per change.
  *
- * FORMAT (version 1).  UTF-8/ASCII text, one record per line, fields
+ * FORMAT (version 2).  UTF-8/ASCII text, one record per line, fields
  * separated by one TAB.  The first line is the header:
  *
- *   doubletty-session 1<TAB>created=2025-06-01T10:00:00.000Z<TAB>program=doubletty 0.1.0
+ *   doubletty-session 2<TAB>created=2025-06-01T10:00:00.000Z<TAB>program=doubletty 0.1.0
  *
  * A program that finds a larger version number refuses the file (it neither
  * reads nor appends).  Every other line is one change to one spectrum:
  *
- *   TIME  user=U  file=PATH  hdu=H  row=R  sha256=HEX  [was=HEX]  act=ACTION
- *   [action fields]  =>  [state fields]  sum=XXXXXXXX
+ *   TIME  user=U  file=PATH  [name=TEXT]  hdu=H  row=R  sha256=HEX  [was=HEX]
+ *   act=ACTION  [action fields]  =>  [state fields]  sum=XXXXXXXX
  *
- * TIME is UTC, ISO 8601 with milliseconds and a Z.  PATH, HDU (1-based, 0 =
- * whole file) and ROW (1-based, 0 = not a table row) identify the spectrum;
- * sha256 is the digest of the file's bytes when the change was made (empty if
- * unknown) and was= the earlier digest when the file changed since the last
- * record of the same spectrum.  ACTION and its fields (indices are 1-based):
+ * TIME is UTC, ISO 8601 with milliseconds and a Z.  A spectrum is identified
+ * by sha256 (the digest of the file's bytes when the change was made), HDU
+ * (1-based, 0 = whole file), ROW (1-based, 0 = not a table row) and the
+ * doublet named after a '#' at the end of PATH; when sha256 is empty
+ * (unknown), by PATH, HDU and ROW.  PATH is a hint for finding the file: it
+ * is relative to the session file's directory when the file lies below it,
+ * else as the program was given it.  name= is the target list's name for the
+ * spectrum (left out when there is none); was= is the earlier digest when the
+ * file changed since the last record of the same spectrum (a record whose
+ * digest is new is matched to the spectrum by its path).
+ *
+ * Version 1 differs only there: no name=, and PATH (always as given) with
+ * HDU and ROW is the identity.  Version-1 files are read (records with a
+ * digest are matched by it), and appends to them stay in version 1.
+ *
+ * The fields are described once, in the table dt_jn_fields below (key, type,
+ * where the value lives, which actions have it); the writer and the parser
+ * both walk it.  ACTION and its fields (indices are 1-based):
  *   window-add lo= hi= [Angstrom]    window-remove i=
  *   comp-add logN= b= v=             comp-remove i=
  *   comp-set i= logN= b= v=          freeze i= frozen=LETTERS (N, b, v; empty = none)
