@@ -893,7 +893,9 @@ static int make_fixture(const char *d) {
   snprintf(sp_path, sizeof sp_path, "%s/fit.session", d);
   dt_journal *jn;
   if (dt_journal_open(sp_path, DT_JOURNAL_RW, "fixture", &jn, &e) != DT_OK) return 1;
-  dt_target t = {.path = "spec.txt#NaI", .hdu = 0, .row = 0}; /* as the inspector names it */
+  char key[300]; /* as the inspector names it: the list's path and the doublet */
+  snprintf(key, sizeof key, "%s#NaI", path);
+  dt_target t = {.path = key, .hdu = 0, .row = 0};
   dt_digest_file(path, t.sha256, &e);
   dt_action a;
   dt_action_init(&a, DT_ACT_RESOLUTION);
