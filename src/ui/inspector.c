@@ -90,6 +90,7 @@ static dt_target target_of(const dt_insp *s) {
   t.hdu = 0;
   t.row = s->q->e[s->cur].row;
   memcpy(t.sha256, s->sha, sizeof t.sha256);
+  t.name = dt_queue_name(s->q, s->cur); /* the list's name=, "" if none */
   return t;
 }
 
@@ -328,9 +329,13 @@ static void load(dt_insp *s, size_t idx) {
   const char *path = dt_queue_path(s->q, idx);
   const dt_qentry *qe = &s->q->e[idx];
   entry_key(s, idx, s->key, sizeof s->key);
-  const dt_journal_entry *en = s->jn ? dt_journal_lookup(s->jn, s->key, 0, qe->row) : NULL;
-
   dt_err e;
+  dt_err_clear(&e);
+  /* the session knows a spectrum by its file's digest (then by its path) */
+  if (dt_digest_file(path, s->sha, &e) != DT_OK) s->sha[0] = '\0';
+  dt_target tg = target_of(s);
+  const dt_journal_entry *en = s->jn ? dt_journal_find(s->jn, &tg) : NULL;
+
   dt_err_clear(&e);
   dt_read_opts ro;
   memset(&ro, 0, sizeof ro);
@@ -358,7 +363,6 @@ static void load(dt_insp *s, size_t idx) {
   }
   s->loaded = 1;
   overview_range(s);
-  if (dt_digest_file(path, s->sha, &e) != DT_OK) s->sha[0] = '\0';
 
   if (en) {
     /* resume: the recorded state */
