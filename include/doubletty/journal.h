@@ -113,8 +113,10 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
 /* The replayed state of a spectrum, NULL if the session has no record of
  * it.  dt_journal_find looks by identity (digest, HDU, row, doublet) and,
  * when that finds nothing (no digest, or the file changed since), by the
- * path; dt_journal_lookup by the path only.  Entry pointers stay valid until
- * dt_journal_close. */
+ * path; dt_journal_lookup by the path only.  A path is compared both as this
+ * session records it (relative to its directory when below it) and as
+ * given.  Spectra whose files have the same bytes are one spectrum.  Entry
+ * pointers stay valid until dt_journal_close. */
 const dt_journal_entry *dt_journal_find(const dt_journal *j, const dt_target *t);
 const dt_journal_entry *dt_journal_lookup(const dt_journal *j, const char *path,
                                           int hdu, long row);

@@ -72,34 +72,45 @@ struct dt_journal {
 
 /* ---------- the in-memory session ---------- */
 
-static dt_journal_entry *by_key(const dt_journal *j, char *key, int hdu, long row) {
+#define KEYBUF 1024 /* keys this long are built on the stack */
+
+/* The entry index of a key (freed when not buf), -1 if none. */
+static long by_key(const dt_journal *j, char *key, const char *buf, int hdu, long row) {
   long i = key ? dt_jn_index_get(&j->index, key, hdu, row) : -1;
-  free(key);
-  return i >= 0 ? j->ent[i] : NULL;
+  if (key != buf) free(key);
+  return i;
 }
 
 /* The entry of a target: by identity (digest, HDU, row, doublet), else by
  * its path -- the hint the caller's path would be recorded as (hint = 1),
- * then the path as given. */
-static dt_journal_entry *find(const dt_journal *j, const dt_target *t, int hint) {
-  if (!t->path) return NULL;
-  dt_journal_entry *en = by_key(j, dt_jn_id_key(t), t->hdu, t->row);
-  if (!en && hint && (j->dir || j->rdir)) {
+ * then the path as given.  Its index, -1 if none. */
+static long find_index(const dt_journal *j, const dt_target *t, int hint) {
+  char buf[KEYBUF];
+  if (!t->path) return -1;
+  long i = by_key(j, dt_jn_id_key(t, buf, sizeof buf), buf, t->hdu, t->row);
+  if (i < 0 && hint && (j->dir || j->rdir)) {
     char *h = dt_jn_path_hint(j->dir, j->rdir, t->path);
-    en = h ? by_key(j, dt_jn_path_key(h), t->hdu, t->row) : NULL;
+    if (h && strcmp(h, t->path) != 0)
+      i = by_key(j, dt_jn_path_key(h, buf, sizeof buf), buf, t->hdu, t->row);
     free(h);
   }
-  return en ? en : by_key(j, dt_jn_path_key(t->path), t->hdu, t->row);
+  return i >= 0 ? i : by_key(j, dt_jn_path_key(t->path, buf, sizeof buf), buf, t->hdu, t->row);
+}
+
+static dt_journal_entry *find(const dt_journal *j, const dt_target *t, int hint) {
+  long i = find_index(j, t, hint);
+  return i >= 0 ? j->ent[i] : NULL;
 }
 
 /* Give entry i the keys of target t (its digest and its path hint). */
 static int index_entry(dt_journal *j, size_t i, const dt_target *t) {
-  char *k[2] = {dt_jn_id_key(t), dt_jn_path_key(t->path)};
+  char b0[KEYBUF], b1[KEYBUF];
+  char *k[2] = {dt_jn_id_key(t, b0, sizeof b0), dt_jn_path_key(t->path, b1, sizeof b1)};
   int rc = k[1] ? DT_OK : DT_ENOMEM;
   for (int n = 0; n < 2 && rc == DT_OK; n++)
     if (k[n]) rc = dt_jn_index_add(&j->index, k[n], t->hdu, t->row, i);
-  free(k[0]);
-  free(k[1]);
+  if (k[0] != b0) free(k[0]);
+  if (k[1] != b1) free(k[1]);
   return rc;
 }
 
@@ -112,7 +123,7 @@ static int set_str(char **dst, const char *src) {
   return DT_OK;
 }
 
-/* A new entry for t (its path the recorded hint). */
+/* A new entry for t (its path the recorded hint), at index j->nent - 1. */
 static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
   if (j->nent == j->capent) {
     size_t cap = j->capent ? j->capent * 2 : 64;
@@ -139,18 +150,19 @@ static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
   return en;
 }
 
-/* The entry's target after a record of t: the latest digest, hint and name
- * (each kept when the record has none), with keys for the new ones. */
-static int update_target(dt_journal *j, dt_journal_entry *en, const dt_target *t) {
-  size_t i = 0;
-  while (j->ent[i] != en) i++;
+/* Entry i's target after a record of t: the latest digest, hint and name
+ * (each kept when the record has none), with keys for a new digest or hint. */
+static int update_target(dt_journal *j, size_t i, const dt_target *t) {
+  dt_journal_entry *en = j->ent[i];
+  int renew = (dt_digest_is_hex(t->sha256) && strcmp(en->target.sha256, t->sha256) != 0) ||
+              strcmp(en->target.path, t->path) != 0;
   if (dt_digest_is_hex(t->sha256)) memcpy(en->target.sha256, t->sha256, DT_SHA256_HEX);
   char *path = (char *)en->target.path, *name = (char *)en->target.name;
   int rc = set_str(&path, t->path);
   if (rc == DT_OK) rc = set_str(&name, t->name);
   en->target.path = path;
   en->target.name = name;
-  return rc == DT_OK ? index_entry(j, i, t) : rc;
+  return rc == DT_OK && renew ? index_entry(j, i, t) : rc;
 }
 
 static void add_warning(dt_journal *j, const dt_err *e) {
@@ -195,14 +207,16 @@ static void note_verdict(dt_journal_entry *en, dt_verdict before, dt_action_kind
 
 /* Replay one record into the session. */
 static int replay(dt_journal *j, const dt_journal_record *rec) {
-  dt_journal_entry *en = find(j, &rec->target, 0);
-  if (!en && !(en = add_entry(j, &rec->target))) return DT_ENOMEM;
+  long idx = find_index(j, &rec->target, 0);
+  dt_journal_entry *en = idx >= 0 ? j->ent[idx] : add_entry(j, &rec->target);
+  if (!en) return DT_ENOMEM;
+  if (idx < 0) idx = (long)j->nent - 1;
   if (!en->nchanges) en->first_line = rec->line;
   if (rec->flags & DT_JFLAG_FILE_CHANGED) en->flags |= DT_JFLAG_FILE_CHANGED;
   if (rec->target.sha256[0] && en->target.sha256[0] &&
       strcmp(en->target.sha256, rec->target.sha256) != 0)
     en->flags |= DT_JFLAG_FILE_CHANGED;
-  if (update_target(j, en, &rec->target) != DT_OK) return DT_ENOMEM;
+  if (update_target(j, (size_t)idx, &rec->target) != DT_OK) return DT_ENOMEM;
   dt_verdict before = en->state.verdict;
   if (rec->has & DT_REC_FULL) {
     en->state = rec->after;
@@ -555,9 +569,10 @@ static int set_failed(dt_journal *j, dt_err *e, const char *fmt, const char *arg
 
 /* Append a record of t (its path the hint to record) to en (NULL = a
  * spectrum the session has no record of yet). */
-static int append_record(dt_journal *j, dt_journal_entry *en, const dt_target *t,
+static int append_record(dt_journal *j, long idx, const dt_target *t,
                          const dt_action *a, const dt_judgement *after,
                          const dt_meas_summary *meas, dt_err *e) {
+  dt_journal_entry *en = idx >= 0 ? j->ent[idx] : NULL;
   if (j->ro) return dt_err_set(e, DT_EIO, NULL, "the session is open read-only");
   if (j->failed) {
     if (e) *e = j->err;
@@ -628,7 +643,7 @@ static int append_record(dt_journal *j, dt_journal_entry *en, const dt_target *t
   }
 
   /* recorded: update the session */
-  if (!en && !(en = add_entry(j, t))) {
+  if (!en && (idx = (long)j->nent, !(en = add_entry(j, t)))) {
     /* the line is on disk; the in-memory view can no longer follow it */
     return set_failed(j, e, "%s", "out of memory");
   }
@@ -636,7 +651,7 @@ static int append_record(dt_journal *j, dt_journal_entry *en, const dt_target *t
   j->nrecords++;
   if (!en->nchanges) en->first_line = j->nlines;
   if (was) en->flags |= DT_JFLAG_FILE_CHANGED;
-  if (update_target(j, en, t) != DT_OK) return set_failed(j, e, "%s", "out of memory");
+  if (update_target(j, (size_t)idx, t) != DT_OK) return set_failed(j, e, "%s", "out of memory");
   dt_verdict before = en->state.verdict;
   en->state = *after;
   if (meas) {
@@ -660,7 +675,7 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
   dt_target rt = *t;
   rt.path = hint;
   if (j->version < 2) rt.name = NULL;
-  int rc = append_record(j, find(j, t, 1), &rt, a, after, meas, e);
+  int rc = append_record(j, find_index(j, t, 1), &rt, a, after, meas, e);
   free(hint);
   return rc;
 }

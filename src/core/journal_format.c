@@ -8,7 +8,7 @@
  * A program that finds a larger version number refuses the file (it neither
  * reads nor appends).  Every other line is one change to one spectrum:
  *
- *   TIME  user=U  file=PATH  [name=TEXT]  hdu=H  row=R  sha256=HEX  [was=HEX]
+ *   TIME  user=U  file=PATH  hdu=H  row=R  sha256=HEX  [was=HEX]  [name=TEXT]
  *   act=ACTION  [action fields]  =>  [state fields]  sum=XXXXXXXX
  *
  * TIME is UTC, ISO 8601 with milliseconds and a Z.  A spectrum is identified
@@ -221,11 +221,11 @@ const dt_jn_field dt_jn_fields[] = {
     /* who and which spectrum (before act=) */
     {"user", JP_ID, JT_TEXT, JF_REQ, REC(user), 0, 0, TXT(dt_journal_record, user), 0},
     {"file", JP_ID, JT_PTR, JF_REQ | JF_NONEMPTY, REC(target.path), 0, 0, 0, 0},
-    {"name", JP_ID, JT_PTR, JF_NONEMPTY | JF_OMIT, REC(target.name), 0, 0, 0, 0},
     {"hdu", JP_ID, JT_INT, 0, REC(target.hdu), 0, 0, 100000, 0},
     {"row", JP_ID, JT_LONG, 0, REC(target.row), 0, 0, 1L << 62, 0},
     {"sha256", JP_ID, JT_SHA, 0, REC(target.sha256), 0, 0, 0, 0},
     {"was", JP_ID, JT_SHA, JF_NONEMPTY | JF_OMIT, REC(sha256_was), 0, 0, 0, 0},
+    {"name", JP_ID, JT_PTR, JF_NONEMPTY | JF_OMIT, REC(target.name), 0, 0, 0, 0},
     /* the action's fields (after act=), each with the actions that have it */
     {"lo", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(WINDOW_ADD)},
     {"hi", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(WINDOW_ADD)},

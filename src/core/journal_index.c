@@ -98,20 +98,22 @@ const char *dt_jn_doublet_of(const char *path) {
   return hash ? hash + 1 : "";
 }
 
-char *dt_jn_id_key(const dt_target *t) {
-  if (!dt_digest_is_hex(t->sha256) || !t->path) return NULL;
-  const char *d = dt_jn_doublet_of(t->path);
-  size_t n = 2 + strlen(t->sha256) + 1 + strlen(d) + 1;
-  char *k = malloc(n);
-  if (k) snprintf(k, n, "S:%s#%s", t->sha256, d);
+/* "S:" a "#" b or "P:" a into buf when it fits, else into malloc'd memory;
+ * NULL = out of memory. */
+static char *key_of(char *buf, size_t n, const char *tag, const char *a, const char *b) {
+  size_t need = strlen(tag) + strlen(a) + (b ? 1 + strlen(b) : 0) + 1;
+  char *k = need <= n ? buf : malloc(need);
+  if (k) snprintf(k, need, "%s%s%s%s", tag, a, b ? "#" : "", b ? b : "");
   return k;
 }
 
-char *dt_jn_path_key(const char *path) {
-  size_t n = strlen(path) + 3;
-  char *k = malloc(n);
-  if (k) snprintf(k, n, "P:%s", path);
-  return k;
+char *dt_jn_id_key(const dt_target *t, char *buf, size_t n) {
+  if (!t->path || !dt_digest_is_hex(t->sha256)) return NULL;
+  return key_of(buf, n, "S:", t->sha256, dt_jn_doublet_of(t->path));
+}
+
+char *dt_jn_path_key(const char *path, char *buf, size_t n) {
+  return key_of(buf, n, "P:", path, NULL);
 }
 
 /* ---------- path hints ---------- */

@@ -35,10 +35,12 @@ void dt_jn_index_free(dt_jn_index *x);
 
 /* The doublet of a recorded path: what follows "#" after the file name. */
 const char *dt_jn_doublet_of(const char *path);
-/* Identity key "S:DIGEST#DOUBLET" (malloc'd), NULL when the digest is unknown
- * (or out of memory); path key "P:PATH" (malloc'd, NULL = out of memory). */
-char *dt_jn_id_key(const dt_target *t);
-char *dt_jn_path_key(const char *path);
+/* Identity key "S:DIGEST#DOUBLET", NULL when the digest is unknown (or out
+ * of memory); path key "P:PATH" (NULL = out of memory).  Written into buf
+ * (n bytes) when it fits, else into malloc'd memory the caller frees (the
+ * result is then not buf). */
+char *dt_jn_id_key(const dt_target *t, char *buf, size_t n);
+char *dt_jn_path_key(const char *path, char *buf, size_t n);
 /* The absolute directory of a session file (malloc'd; NULL = root or
  * unknown). */
 char *dt_jn_session_dir(const char *session);

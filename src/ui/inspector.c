@@ -329,13 +329,9 @@ static void load(dt_insp *s, size_t idx) {
   const char *path = dt_queue_path(s->q, idx);
   const dt_qentry *qe = &s->q->e[idx];
   entry_key(s, idx, s->key, sizeof s->key);
-  dt_err e;
-  dt_err_clear(&e);
-  /* the session knows a spectrum by its file's digest (then by its path) */
-  if (dt_digest_file(path, s->sha, &e) != DT_OK) s->sha[0] = '\0';
-  dt_target tg = target_of(s);
-  const dt_journal_entry *en = s->jn ? dt_journal_find(s->jn, &tg) : NULL;
+  const dt_journal_entry *en = s->jn ? dt_journal_lookup(s->jn, s->key, 0, qe->row) : NULL;
 
+  dt_err e;
   dt_err_clear(&e);
   dt_read_opts ro;
   memset(&ro, 0, sizeof ro);
@@ -363,6 +359,12 @@ static void load(dt_insp *s, size_t idx) {
   }
   s->loaded = 1;
   overview_range(s);
+  if (dt_digest_file(path, s->sha, &e) != DT_OK) s->sha[0] = '\0';
+  if (s->jn && s->sha[0]) { /* the session knows a spectrum by its file's digest */
+    dt_target tg = target_of(s);
+    const dt_journal_entry *by_id = dt_journal_find(s->jn, &tg);
+    if (by_id) en = by_id;
+  }
 
   if (en) {
     /* resume: the recorded state */

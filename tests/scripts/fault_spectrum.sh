@@ -12,7 +12,11 @@
 export LANG=C.UTF-8 LC_ALL=C.UTF-8
 "$DT" demo "$TMP/demo" >/dev/null 2>&1 || { bad "demo survey written"; finish; exit 1; }
 D=$TMP/demo
-for f in a b c d e f; do cp "$D/vpq03.fits" "$TMP/$f.fits"; done
+# six spectra, six files of their own bytes (a session knows a spectrum by
+# its digest): the same data, each with its own header card
+for f in a b c d e f; do
+  LC_ALL=C sed "s/OBJECT  = 'VPQ03   '/OBJECT  = 'VPQ03-$f '/" "$D/vpq03.fits" >"$TMP/$f.fits"
+done
 cat >"$TMP/q.list" <<EOF
 a.fits vsys=512 R=3460 name=SHOWN-THEN-REMOVED
 b.fits vsys=512 R=3460 name=REMOVED
