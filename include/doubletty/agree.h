@@ -52,7 +52,9 @@ typedef struct dt_agree_report {
   size_t ndisagree;
 } dt_agree_report;
 
-/* Compare the verdicts of two sessions, matching spectra by (path, HDU, row).
+/* Compare the verdicts of two sessions, matching spectra by identity (the
+ * file's digest, HDU, row and doublet; by the path when a digest is missing:
+ * dt_journal_find).
  * The report points into both journals: keep them open while using it. */
 int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2,
                       dt_agree_report *r, dt_err *e);
@@ -60,7 +62,8 @@ void dt_agree_report_free(dt_agree_report *r);
 
 /* The spectra two sessions disagree on (both have a verdict and they
  * differ), in the first session's order, as a malloc'd array of targets
- * (free() it; paths point into s1 and stay valid while s1 is open).
+ * (free() it; paths point into s1 and stay valid while s1 is open; they are
+ * the recorded hints: dt_journal_resolve gives the file's path).
  * *n = 0 and *out = NULL when there are none. */
 int dt_agree_disagreements(const dt_journal *s1, const dt_journal *s2,
                            dt_target **out, size_t *n, dt_err *e);

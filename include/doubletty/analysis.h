@@ -149,4 +149,13 @@ const double *dt_analysis_residual(const dt_analysis *a);
 const double *dt_analysis_na_profile(const dt_analysis *a, int line);
 const double *dt_analysis_na_profile_err(const dt_analysis *a, int line);
 
+/* Refit a recorded state with an analysis of its spectrum (analysis.h; its
+ * options must be those the fit was made with -- e.g. joint_cont = the
+ * recorded fit's ncont) and compare with dt_fit_check_refit (fit.h).  *agrees
+ * is 1 when the refit reproduces the recorded fit (or the state has none),
+ * else 0 with why naming the difference.  Returns DT_OK, or the analysis'
+ * error (unknown doublet, range not covered, ...) with e filled. */
+int dt_analysis_verify_fit(dt_analysis *a, const dt_judgement *recorded, double tol_sigma,
+                           int *agrees, char *why, size_t nwhy, dt_err *e);
+
 #endif

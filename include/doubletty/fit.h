@@ -137,4 +137,17 @@ void dt_fit_chi2_coef(const dt_fit_workspace *w, double *coef);
 /* Diagnostics of the last dt_fit_run on this workspace. */
 const dt_fit_info *dt_fit_last_info(const dt_fit_workspace *w);
 
+/* Does a refit reproduce a recorded fit?  Agreement: same status and number
+ * of components, every fitted parameter within tol_sigma of the recorded
+ * value in units of the larger of the two 1-sigma errors (or within 1e-6
+ * absolute when both errors are 0), and chi2 within tol_sigma * sqrt(2 dof)
+ * (the standard deviation of chi2).  Returns 1 when they agree; otherwise 0
+ * with why (may be NULL) naming the first difference. */
+int dt_fit_check_refit(const dt_fit_result *recorded, const dt_fit_result *refit,
+                       double tol_sigma, char *why, size_t nwhy);
+
+/* The stated tolerance of a refit: every parameter within 0.1 of its
+ * 1-sigma error, chi2 within 0.1 of its standard deviation. */
+#define DT_REFIT_TOL_SIGMA 0.1
+
 #endif

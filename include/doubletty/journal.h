@@ -6,7 +6,7 @@
  * one in-memory state per spectrum (target), so a session resumes exactly
  * where it stopped; readers (log, export, compare) use the same replay or the
  * line-by-line record reader.  The file format is described at the top of
- * src/core/journal.c.
+ * src/core/journal_format.c.
  *
  * One writer at a time: opening for writing takes an exclusive advisory lock
  * and a second writer gets DT_ELOCK.  Read-only opens take no lock.  When an
@@ -18,45 +18,26 @@
 #include <stddef.h>
 #include "doubletty/digest.h"
 #include "doubletty/judge.h"
+#include "doubletty/measure.h"
 #include "doubletty/status.h"
 
-#define DT_JOURNAL_VERSION 1       /* format version written by this program */
+#define DT_JOURNAL_VERSION 2       /* format version written by this program (reads 1 too) */
 #define DT_JOURNAL_USER_MAX 64
 #define DT_JOURNAL_TIME_MAX 32     /* "2025-06-01T10:00:00.123Z" */
 
-/* Identity of one spectrum: file, HDU and table row.  The path is a key and
- * is recorded as given; the journal never opens, runs or writes it. */
+/* One spectrum.  Its identity is the SHA-256 of its file's bytes, the HDU,
+ * the table row and the doublet it is vetted for (the "#NAME" that may end
+ * the path); the path itself is a hint for finding the file again, recorded
+ * relative to the session file's directory when the file lies below it (else
+ * as given).  Without a digest the path is the identity.  The journal never
+ * opens, runs or writes the path. */
 typedef struct dt_target {
-  const char *path;              /* as the caller names the file */
+  const char *path;              /* as the caller names the file [#DOUBLET] */
   int hdu;                       /* 1-based HDU; 0 = whole file / not FITS */
   long row;                      /* 1-based table row; 0 = not a row */
   char sha256[DT_SHA256_HEX];    /* digest of the file's bytes; "" = unknown */
+  const char *name;              /* the target list's name for it; NULL or "" = none */
 } dt_target;
-
-/* Measurements recorded with a change (optional), per line of the doublet. */
-typedef struct dt_meas_line {
-  double w, w_err;               /* rest-frame equivalent width, 1 sigma [Angstrom] */
-  double w_lim;                  /* upper limit on W [Angstrom]; NaN = none */
-  double logN_aod, logN_aod_err; /* apparent column density log10 N_a [cm^-2]; NaN = none */
-  double logN_lim;               /* upper limit on log10 N [cm^-2]; NaN = none */
-} dt_meas_line;
-
-typedef struct dt_meas_summary {
-  dt_meas_line line[2];          /* [0] the stronger line, [1] the weaker */
-  double nsigma;                 /* the limits are nsigma upper limits (e.g. 3) */
-  int saturated;                 /* the two lines' N_a disagree: hidden saturation */
-  dt_verdict suggested;          /* the automatic suggestion; NONE = none */
-} dt_meas_summary;
-
-/* Fill every value of *m with NaN, saturated 0, suggested NONE. */
-void dt_meas_summary_clear(dt_meas_summary *m);
-
-/* The summary of an analysis run (analysis.h): both lines' W, limits and
- * N_a (NaN when the measurement failed), its saturation flag, the limits'
- * significance nsigma and an automatic suggestion (NONE if none). */
-struct dt_analysis_out;
-void dt_meas_summary_from_analysis(const struct dt_analysis_out *o, double nsigma,
-                                   dt_verdict suggested, dt_meas_summary *m);
 
 /* Flags of a target (dt_journal_entry.flags) and of a record. */
 enum {
@@ -70,7 +51,8 @@ enum {
 
 /* The replayed state of one target. */
 typedef struct dt_journal_entry {
-  dt_target target;              /* path owned by the journal; sha256 = last recorded */
+  dt_target target;              /* path (the last recorded hint) and name owned by the
+                                    journal; sha256 = last recorded */
   dt_judgement state;            /* the state after the last recorded change */
   int has_meas;
   dt_meas_summary meas;          /* measurements of the last change that carried them */
@@ -128,10 +110,21 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
                       const dt_judgement *after, const dt_meas_summary *meas,
                       dt_err *e);
 
-/* The replayed state of a target, NULL if the session has no record of it.
- * Entry pointers stay valid until dt_journal_close. */
+/* The replayed state of a spectrum, NULL if the session has no record of
+ * it.  dt_journal_find looks by identity (digest, HDU, row, doublet) and,
+ * when that finds nothing (no digest, or the file changed since), by the
+ * path; dt_journal_lookup by the path only.  A path is compared both as this
+ * session records it (relative to its directory when below it) and as
+ * given.  Spectra whose files have the same bytes are one spectrum.  Entry
+ * pointers stay valid until dt_journal_close. */
+const dt_journal_entry *dt_journal_find(const dt_journal *j, const dt_target *t);
 const dt_journal_entry *dt_journal_lookup(const dt_journal *j, const char *path,
                                           int hdu, long row);
+/* Where to look for the file of a recorded path hint: a relative hint is
+ * taken from the session file's directory (not from the current one), an
+ * absolute one as it is.  Writes into buf (like snprintf; returns buf).
+ * Only text: the file is not looked at. */
+const char *dt_journal_resolve(const dt_journal *j, const char *hint, char *buf, size_t n);
 /* Targets in the order they first appear in the file. */
 size_t dt_journal_count(const dt_journal *j);
 const dt_journal_entry *dt_journal_entry_at(const dt_journal *j, size_t i);
@@ -157,30 +150,6 @@ long dt_journal_nrecords(const dt_journal *j);   /* records read + appended */
 size_t dt_journal_warning_count(const dt_journal *j);
 const char *dt_journal_warning(const dt_journal *j, size_t i);
 
-/* Does a refit reproduce a recorded fit?  Agreement: same status and number
- * of components, every fitted parameter within tol_sigma of the recorded
- * value in units of the larger of the two 1-sigma errors (or within 1e-6
- * absolute when both errors are 0), and chi2 within tol_sigma * sqrt(2 dof)
- * (the standard deviation of chi2).  Returns 1 when they agree; otherwise 0
- * with why (may be NULL) naming the first difference. */
-int dt_journal_check_refit(const dt_fit_result *recorded, const dt_fit_result *refit,
-                           double tol_sigma, char *why, size_t nwhy);
-
-/* The stated tolerance of a refit: every parameter within 0.1 of its
- * 1-sigma error, chi2 within 0.1 of its standard deviation. */
-#define DT_REFIT_TOL_SIGMA 0.1
-
-/* Refit a recorded state with an analysis of its spectrum (analysis.h; its
- * options must be those the fit was made with -- e.g. joint_cont = the
- * recorded fit's ncont) and compare with dt_journal_check_refit.  *agrees
- * is 1 when the refit reproduces the recorded fit (or the state has none),
- * else 0 with why naming the difference.  Returns DT_OK, or the analysis'
- * error (unknown doublet, range not covered, ...) with e filled. */
-struct dt_analysis;
-int dt_journal_verify_fit(struct dt_analysis *a, const dt_judgement *recorded,
-                          double tol_sigma, int *agrees, char *why, size_t nwhy,
-                          dt_err *e);
-
 /* ---- line-by-line reading (the audit trail) ---- */
 
 enum { DT_REC_FULL = 1,          /* the record carries the whole state */
@@ -190,7 +159,7 @@ typedef struct dt_journal_record {
   long line;                     /* 1-based line number */
   char time[DT_JOURNAL_TIME_MAX];
   char user[DT_JOURNAL_USER_MAX];
-  dt_target target;              /* path valid until the next read */
+  dt_target target;              /* path and name valid until the next read */
   dt_action action;              /* DT_ACT_FIT: fit = after.fit;
                                     DT_ACT_RESTORE: state = &after */
   dt_judgement after;            /* the recorded state after the change: components,
@@ -215,6 +184,9 @@ int dt_journal_reader_open_mem(const void *buf, size_t len, dt_journal_reader **
  * which line and why); reading may continue.  DT_EIO: read error (stop). */
 int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err *e);
 int dt_journal_reader_version(const dt_journal_reader *r);
+/* Lines skipped so far as damaged or incomplete (each one a DT_EFORMAT from
+ * dt_journal_reader_next). */
+size_t dt_journal_reader_damaged(const dt_journal_reader *r);
 void dt_journal_reader_close(dt_journal_reader *r);
 
 /* Write one record as a line into buf (with the trailing newline and the

@@ -44,6 +44,7 @@
 #define DOUBLETTY_MEASURE_H
 #include <stddef.h>
 #include "doubletty/atomic.h"
+#include "doubletty/judge.h"
 #include "doubletty/status.h"
 
 typedef struct dt_measure_opts {
@@ -115,5 +116,31 @@ double dt_cog_const(void);        /* ~1.13e20  */
 /* Column density [cm^-2] on the linear curve of growth for a rest-frame
  * equivalent width W [Angstrom] of a line (f, lambda0 in Angstrom). */
 double dt_cog_linear_N(double W, const dt_line *line);
+
+/* The summary of a doublet's measurements kept with a judgement (the session
+ * file records it with a change), per line of the doublet. */
+typedef struct dt_meas_line {
+  double w, w_err;               /* rest-frame equivalent width, 1 sigma [Angstrom] */
+  double w_lim;                  /* upper limit on W [Angstrom]; NaN = none */
+  double logN_aod, logN_aod_err; /* apparent column density log10 N_a [cm^-2]; NaN = none */
+  double logN_lim;               /* upper limit on log10 N [cm^-2]; NaN = none */
+} dt_meas_line;
+
+typedef struct dt_meas_summary {
+  dt_meas_line line[2];          /* [0] the stronger line, [1] the weaker */
+  double nsigma;                 /* the limits are nsigma upper limits (e.g. 3) */
+  int saturated;                 /* the two lines' N_a disagree: hidden saturation */
+  dt_verdict suggested;          /* the automatic suggestion; NONE = none */
+} dt_meas_summary;
+
+/* Fill every value of *m with NaN, saturated 0, suggested NONE. */
+void dt_meas_summary_clear(dt_meas_summary *m);
+
+/* The summary of an analysis run (analysis.h): both lines' W, limits and
+ * N_a (NaN when the measurement failed), its saturation flag, the limits'
+ * significance nsigma and an automatic suggestion (NONE if none). */
+struct dt_analysis_out;
+void dt_meas_summary_from_analysis(const struct dt_analysis_out *o, double nsigma,
+                                   dt_verdict suggested, dt_meas_summary *m);
 
 #endif

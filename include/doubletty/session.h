@@ -44,6 +44,8 @@ typedef struct dt_session_target {
   const char *path;       /* the file to read */
   const char *key;        /* its name in the session file */
   long row;               /* table row (0: not a row) */
+  const char *name;       /* the list's name for it ("" or NULL: none) */
+  int air;                /* wavelengths in air where the file does not say */
   dt_judgement initial;   /* settings of a first look; resolution and
                              fwhm_kms both 0: the file header's R */
 } dt_session_target;
@@ -58,6 +60,7 @@ typedef struct dt_session {
 
   /* the target */
   char key[DT_SESSION_KEY_MAX];
+  char name[256];             /* the list's name of the current target */
   long row;
   int loaded;                 /* 1: spec and an are valid */
   char load_msg[400];         /* why not */

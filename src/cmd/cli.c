@@ -143,10 +143,3 @@ int cli_check_not_dir(const char *path) {
   return 0;
 }
 
-int cli_air_unsupported(const char *cmd) {
-  /* The read options have no field for it yet: refusing beats reading air
-   * wavelengths as vacuum without a word. */
-  cli_errorf("%s: --air: this build reads text spectra as vacuum wavelengths only; "
-             "convert the wavelengths to vacuum first", cmd);
-  return 2;
-}

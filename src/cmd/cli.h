@@ -38,7 +38,4 @@ int cli_opt_error(const char *cmd, int c, char **argv);
 /* 1 after "PATH: is a directory, not a file" when path names a directory. */
 int cli_check_not_dir(const char *path);
 
-/* --air was given but the reader cannot take it: message, exit status 2. */
-int cli_air_unsupported(const char *cmd);
-
 #endif

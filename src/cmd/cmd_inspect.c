@@ -151,7 +151,7 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     o->has_vsys = 1;
     return 0;
   case O_ATOMIC: a->atomic_file = v; return 0;
-  case O_AIR: a->air = 1; return cli_air_unsupported("inspect") ? 1 : 0;
+  case O_AIR: a->air = 1; return 0;
   case O_ASCII: o->ascii = 1; return 0;
   case O_NOCOLOUR: o->colour = 0; return 0;
   case O_REPLAY: o->replay = v; return 0;
@@ -234,7 +234,10 @@ static int load_disagreements(const char *const dis[2], dt_target_spec **out, si
     const dt_judgement *j = &en->state;
     dt_target_spec *t = &(*out)[i];
     dt_target_spec_init(t, NULL);
-    dt_queue_split_key(en->target.path, t->path, sizeof t->path, t->doublet, sizeof t->doublet);
+    char where[sizeof t->path + 64]; /* the recorded path hint, found beside the session */
+    dt_journal_resolve(s[0], en->target.path, where, sizeof where);
+    dt_queue_split_key(where, t->path, sizeof t->path, t->doublet, sizeof t->doublet);
+    if (en->target.name && en->target.name[0]) snprintf(t->name, sizeof t->name, "%s", en->target.name);
     if (!t->doublet[0]) snprintf(t->doublet, sizeof t->doublet, "%s", j->doublet);
     t->row = en->target.row;
     t->has_vsys = 1;
@@ -302,6 +305,7 @@ static int queue_disagreements(dt_queue *q, const inspect_args *a, const char *d
 static int build_queue(dt_queue *q, const inspect_args *a, const dt_atomic *atomic,
                        const dt_inspect_opts *o) {
   dt_err e;
+  q->air = a->air; /* --air: every spectrum queued, where its file does not say */
   for (size_t i = 0; i < a->nfiles; i++)
     if (dt_queue_add_file(q, a->files[i], &e)) {
       cli_report(a->files[i], &e);

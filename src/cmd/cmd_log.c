@@ -179,8 +179,9 @@ static int exists(const char *path) {
   return f != NULL;
 }
 
-/* The spectrum file of a recorded path: as given (from the current
- * directory), else relative to the session's directory; a trailing
+/* The spectrum file of a recorded path: a relative one first from the
+ * session's directory (where the session records it from), then from the
+ * current directory; a trailing
  * "#NAME" after the file name (the doublet a spectrum was vetted for, as the
  * inspector records it) is not part of the file name. */
 static const char *locate(const char *path, const char *session, char *buf, size_t n) {
@@ -193,14 +194,14 @@ static const char *locate(const char *path, const char *session, char *buf, size
       if (!hash) break;
       *hash = '\0';
     }
-    if (exists(bare)) {
-      snprintf(buf, n, "%s", bare);
-      return buf;
-    }
     const char *ss = strrchr(session, '/');
     if (bare[0] != '/' && ss) {
       snprintf(buf, n, "%.*s/%s", (int)(ss - session), session, bare);
       if (exists(buf)) return buf;
+    }
+    if (exists(bare)) {
+      snprintf(buf, n, "%s", bare);
+      return buf;
     }
   }
   return path;
@@ -257,7 +258,7 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     o.joint_cont = en->state.fit.ncont;
     dt_analysis_set_opts(an, &o);
     int agrees = 0;
-    if (dt_journal_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
+    if (dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
       printf("cannot refit  %s: %s\n", name, e.what);
       nfail++;
     } else if (agrees) {

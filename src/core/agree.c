@@ -88,6 +88,16 @@ static int judged(const dt_journal_entry *en) {
   return en && dt_agree_category(en->state.verdict) >= 0;
 }
 
+/* The entry of s for the spectrum of a: the same identity (digest, HDU,
+ * row, doublet); by the path only when either has no digest. */
+static const dt_journal_entry *partner(const dt_journal *s, const dt_journal_entry *a) {
+  const dt_journal_entry *b = dt_journal_find(s, &a->target);
+  if (b && a->target.sha256[0] && b->target.sha256[0] &&
+      strcmp(a->target.sha256, b->target.sha256) != 0)
+    return NULL; /* the same name, other bytes: another spectrum */
+  return b;
+}
+
 int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2, dt_agree_report *r,
                       dt_err *e) {
   memset(r, 0, sizeof *r);
@@ -99,8 +109,7 @@ int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2, dt_agree_repor
   for (size_t i = 0; i < n1; i++) {
     const dt_journal_entry *a = dt_journal_entry_at(s1, i);
     if (!judged(a)) continue;
-    const dt_journal_entry *b =
-        dt_journal_lookup(s2, a->target.path, a->target.hdu, a->target.row);
+    const dt_journal_entry *b = partner(s2, a);
     if (!judged(b)) {
       r->nonly1++;
       continue;
@@ -114,7 +123,7 @@ int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2, dt_agree_repor
   for (size_t i = 0; i < n2; i++) {
     const dt_journal_entry *b = dt_journal_entry_at(s2, i);
     if (!judged(b)) continue;
-    if (!judged(dt_journal_lookup(s1, b->target.path, b->target.hdu, b->target.row)))
+    if (!judged(partner(s1, b)))
       r->nonly2++;
   }
   if (r->nboth > 0) {

@@ -647,3 +647,25 @@ const double *dt_analysis_component_model(dt_analysis *a, size_t k) {
   }
   return out;
 }
+
+/* ---------- does a refit reproduce a recorded fit ---------- */
+
+int dt_analysis_verify_fit(dt_analysis *a, const dt_judgement *recorded, double tol_sigma,
+                           int *agrees, char *why, size_t nwhy, dt_err *e) {
+  *agrees = 1;
+  if (why && nwhy) why[0] = '\0';
+  if (!recorded->has_fit) return DT_OK;
+  dt_analysis_out *out = malloc(sizeof *out);
+  if (!out) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  /* the fit starts from the recorded components (the recorded optimum for a
+   * successful fit), so a reproducible fit returns to it */
+  int rc = dt_analysis_run(a, recorded, out, e);
+  if (rc != DT_OK && !(out->fitted && rc == out->fit.status)) {
+    free(out);
+    return rc;
+  }
+  if (rc != DT_OK) dt_err_clear(e);
+  *agrees = dt_fit_check_refit(&recorded->fit, &out->fit, tol_sigma, why, nwhy);
+  free(out);
+  return DT_OK;
+}

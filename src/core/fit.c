@@ -820,3 +820,52 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   r->status = DT_OK;
   return DT_OK;
 }
+
+/* ---------- refit check ---------- */
+
+static int param_agrees(double rec, double now, double erec, double enow, double tol) {
+  if (!isfinite(rec) || !isfinite(now)) return isnan(rec) && isnan(now);
+  double s = fmax(isfinite(erec) ? erec : 0.0, isfinite(enow) ? enow : 0.0);
+  if (s <= 0.0) return fabs(rec - now) <= 1e-6;
+  return fabs(rec - now) <= tol * s;
+}
+
+int dt_fit_check_refit(const dt_fit_result *recorded, const dt_fit_result *refit,
+                       double tol_sigma, char *why, size_t nwhy) {
+  char tmp[8];
+  if (!why) {
+    why = tmp;
+    nwhy = sizeof tmp;
+  }
+  why[0] = '\0';
+  if (recorded->status != refit->status) {
+    snprintf(why, nwhy, "fit status differs (recorded %d, now %d)", recorded->status,
+             refit->status);
+    return 0;
+  }
+  if (recorded->ncomp != refit->ncomp) {
+    snprintf(why, nwhy, "number of components differs (recorded %zu, now %zu)",
+             recorded->ncomp, refit->ncomp);
+    return 0;
+  }
+  if (recorded->status != DT_OK) return 1;
+  static const char *names[3] = {"logN", "b", "v"};
+  for (size_t i = 0; i < recorded->ncomp && i < DT_MAX_COMP; i++) {
+    const dt_component *a = &recorded->comp[i], *b = &refit->comp[i];
+    const dt_component *ea = &recorded->err[i], *eb = &refit->err[i];
+    double va[3] = {a->logN, a->b, a->v}, vb[3] = {b->logN, b->b, b->v};
+    double sa[3] = {ea->logN, ea->b, ea->v}, sb[3] = {eb->logN, eb->b, eb->v};
+    for (int p = 0; p < 3; p++)
+      if (!param_agrees(va[p], vb[p], sa[p], sb[p], tol_sigma)) {
+        snprintf(why, nwhy, "component %zu %s: recorded %.6g, refit %.6g", i + 1, names[p],
+                 va[p], vb[p]);
+        return 0;
+      }
+  }
+  double sd = tol_sigma * sqrt(2.0 * (double)(recorded->dof > 0 ? recorded->dof : 1));
+  if (!(fabs(recorded->chi2 - refit->chi2) <= sd)) {
+    snprintf(why, nwhy, "chi2: recorded %.6g, refit %.6g", recorded->chi2, refit->chi2);
+    return 0;
+  }
+  return 1;
+}

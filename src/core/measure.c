@@ -12,6 +12,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "doubletty/analysis.h"
 #include "doubletty/model.h"
 
 void dt_measure_opts_init(dt_measure_opts *o) {
@@ -171,3 +172,29 @@ int dt_measure_doublet(const dt_measure_input *in, const dt_doublet *d, double v
   out->saturated = out->excess_sigma > o->sat_nsigma || s->nfloor > 0 || w->nfloor > 0;
   return DT_OK;
 }
+
+/* ---------- the summary kept with a judgement ---------- */
+
+void dt_meas_summary_clear(dt_meas_summary *m) {
+  for (int i = 0; i < 2; i++)
+    m->line[i] = (dt_meas_line){NAN, NAN, NAN, NAN, NAN, NAN};
+  m->nsigma = NAN;
+  m->saturated = 0;
+  m->suggested = DT_VERDICT_NONE;
+}
+
+void dt_meas_summary_from_analysis(const struct dt_analysis_out *o, double nsigma,
+                                   dt_verdict suggested, dt_meas_summary *m) {
+  dt_meas_summary_clear(m);
+  m->nsigma = nsigma;
+  m->suggested = suggested;
+  if (!o || o->measure_status != DT_OK) return;
+  for (int l = 0; l < 2; l++) {
+    const dt_analysis_line *a = &o->line[l];
+    m->line[l] = (dt_meas_line){.w = a->W, .w_err = a->W_err, .w_lim = a->W_limit,
+                                .logN_aod = a->logN_aod, .logN_aod_err = a->logN_aod_err,
+                                .logN_lim = a->logN_limit};
+  }
+  m->saturated = o->saturated;
+}
+

@@ -10,7 +10,7 @@
  * is refused, so nothing is shown as done that the file does not hold.
  *
  * Loading a target and the automatic first pass live in session_load.c;
- * the journal is touched only by target_of/record here and the look-ups
+ * the journal is touched only by dt_session_journal_target/record here and the look-ups
  * there. */
 #include "doubletty/session.h"
 
@@ -62,13 +62,14 @@ void dt_session_free(dt_session *ss) {
 /* ---------------------------------------------------------------- journal */
 
 /* The one place a target of the journal is built. */
-static dt_target target_of(const dt_session *ss) {
+dt_target dt_session_journal_target(const dt_session *ss) {
   dt_target t;
   memset(&t, 0, sizeof t);
   t.path = ss->key;
   t.hdu = 0;
   t.row = ss->row;
   memcpy(t.sha256, ss->sha, sizeof t.sha256);
+  t.name = ss->name; /* the list's name=, "" if none */
   return t;
 }
 
@@ -94,7 +95,7 @@ int dt_session_writable(dt_session *ss) {
  * otherwise the message says why. */
 static int record(dt_session *ss, const dt_action *a, const dt_judgement *after, int with_meas) {
   if (!dt_session_writable(ss)) return DT_EIO;
-  dt_target t = target_of(ss);
+  dt_target t = dt_session_journal_target(ss);
   dt_meas_summary m;
   if (with_meas)
     dt_meas_summary_from_analysis(ss->an_ok && !ss->an_fallback ? &ss->out : NULL, ss->nsigma,

@@ -31,6 +31,7 @@ dt_verdict dt_session_recorded_verdict(const dt_session *ss, const char *key, lo
 static void reset(dt_session *ss, const dt_session_target *t) {
   dt_session_unload(ss);
   snprintf(ss->key, sizeof ss->key, "%s", t->key);
+  snprintf(ss->name, sizeof ss->name, "%s", t->name ? t->name : "");
   ss->row = t->row;
   ss->nundo = ss->nredo = 0;
   ss->sel = 0;
@@ -52,6 +53,7 @@ static int read_spectrum(dt_session *ss, const dt_session_target *t) {
   dt_read_opts ro;
   memset(&ro, 0, sizeof ro);
   ro.row = t->row;
+  ro.air = t->air;
   int rc = dt_spectrum_read(t->path, &ro, &ss->spec, &e);
   if (rc == DT_OK) {
     ss->an = dt_analysis_alloc(ss->spec, ss->atomic);
@@ -85,7 +87,7 @@ static void resume(dt_session *ss, const dt_journal_entry *en) {
   char why[160] = "";
   if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
     dt_session_analyse_state(ss, &ss->j, 1);
-    if (ss->an_ok && !dt_journal_check_refit(&ss->j.fit, &ss->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
+    if (ss->an_ok && !dt_fit_check_refit(&ss->j.fit, &ss->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
       dt_journal_set_flag(ss->jn, ss->key, 0, ss->row, DT_JFLAG_REFIT_MISMATCH, 1);
       dt_session_say(ss, DT_TONE_WARN, "a refit differs from the recorded fit: %s", why);
     }
@@ -110,6 +112,11 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
   ss->loaded = 1;
   dt_err e;
   if (dt_digest_file(t->path, ss->sha, &e) != DT_OK) ss->sha[0] = '\0';
+  if (ss->jn && ss->sha[0]) { /* the session knows a spectrum by its file's digest */
+    dt_target tg = dt_session_journal_target(ss);
+    const dt_journal_entry *by_id = dt_journal_find(ss->jn, &tg);
+    if (by_id) en = by_id;
+  }
   if (en) {
     resume(ss, en);
   } else {

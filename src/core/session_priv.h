@@ -11,6 +11,8 @@ void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit);
 void dt_session_suggest(dt_session *ss, const dt_autofit_out *af);
 /* Free the spectrum and its analysis. */
 void dt_session_unload(dt_session *ss);
+/* The one place a target of the journal is built (key, row, digest, name). */
+dt_target dt_session_journal_target(const dt_session *ss);
 /* The first pass for base, recorded as action a (NULL: an autofit record). */
 int dt_session_autofit_to(dt_session *ss, const dt_judgement *base, const dt_action *a, const char *why);
 

@@ -113,6 +113,8 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   t.path = dt_queue_path(s->q, idx);
   t.key = entry_key(s, idx, key, sizeof key);
   t.row = s->q->e[idx].row;
+  t.name = dt_queue_name(s->q, idx);
+  t.air = s->q->e[idx].air;
   initial_state(s, idx, &t.initial);
   if (dt_session_load(s->ss, &t) != DT_OK) {
     char k1[16], k2[16];

@@ -92,6 +92,7 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   x->line = t->line;
   x->vsys = t->vsys;
   x->has_vsys = (unsigned char)t->has_vsys;
+  x->air = (unsigned char)(t->air || q->air);
   x->resolution = t->resolution;
   x->fwhm_kms = t->fwhm_kms;
   memcpy(x->doublet, t->doublet, sizeof x->doublet);

@@ -23,6 +23,7 @@ typedef struct dt_qentry {
   double resolution, fwhm_kms;
   char doublet[16];
   unsigned char has_vsys;
+  unsigned char air;     /* wavelengths in air where the file does not say */
   signed char verdict;  /* cached verdict (dt_verdict), -1 = not known yet */
 } dt_qentry;
 
@@ -32,6 +33,7 @@ typedef struct dt_queue {
   char *pool;
   size_t pool_len, pool_cap;
   char cwd[4096];
+  int air;              /* every entry added from now on: wavelengths in air */
 } dt_queue;
 
 void dt_queue_init(dt_queue *q);

@@ -107,7 +107,11 @@ static void replay(const unsigned char *buf, size_t len) {
   size_t n = dt_journal_count(j);
   for (size_t i = 0; i < n; i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    if (!en || dt_journal_lookup(j, en->target.path, en->target.hdu, en->target.row) != en)
+    /* a spectrum is found by its identity (digest, HDU, row, doublet), and
+     * one without a digest by its path */
+    if (!en || dt_journal_find(j, &en->target) != en) __builtin_trap();
+    if (!en->target.sha256[0] &&
+        dt_journal_lookup(j, en->target.path, en->target.hdu, en->target.row) != en)
       __builtin_trap();
     if (en->nchanges < 1 || en->first_line > en->last_line) __builtin_trap();
   }

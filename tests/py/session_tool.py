@@ -1,6 +1,6 @@
 #!/usr/bin/python3
 """Session files for the session tests, written from the documented format
-(the header comment of src/core/journal.c and the man page) by an independent
+(the header comment of src/core/journal_format.c and the man page) by an independent
 writer, and checks of what doubletty makes of them.
 
   session_tool.py make-rich DIR         DIR/rich.session + DIR/rich.json (expected final state)
@@ -203,10 +203,12 @@ def make_fleiss(d):
             for _ in range(table[a][b]):
                 p = "fleiss/s%03d.fits" % k
                 k += 1
+                # a session knows a spectrum by its file's digest: one file, one digest
+                sha = hashlib.sha256(p.encode()).hexdigest()
                 st = {"verdict": cats[a], "comps": [], "fit": None}
-                w1.record(p, 1, 0, SHA_A, "verdict", [("verdict", cats[a])], st)
+                w1.record(p, 1, 0, sha, "verdict", [("verdict", cats[a])], st)
                 st = {"verdict": cats[b], "comps": [], "fit": None}
-                w2.record(p, 1, 0, SHA_A, "verdict", [("verdict", cats[b])], st)
+                w2.record(p, 1, 0, sha, "verdict", [("verdict", cats[b])], st)
     w1.close()
     w2.close()
 

@@ -1,8 +1,9 @@
 #!/bin/sh
 # doubletty log --verify: a session recording a real fit (made by the
 # library, tests/unit/test_journal.c --fixture) is refitted from the spectrum
-# and reproduced; a changed spectrum, a tampered record and a missing file
-# are each reported with a nonzero exit.
+# and reproduced, also after the session moved with its data; a changed
+# spectrum, a tampered record and a missing file are each reported with a
+# nonzero exit.
 . "$(dirname "$0")/../lib.sh"
 FX="$BUILD/tests/test_journal"
 if [ ! -x "$FX" ]; then skip "no $FX (build the unit tests first)"; finish; exit $?; fi
@@ -16,6 +17,16 @@ cd "$TMP/elsewhere" || exit 1
 check "verify exits 0 when the fit is reproduced" test $? -eq 0
 check "the refit reproduces the recorded fit (spectrum found beside the session)" grep -q '^reproduced    spec.txt#NaI' "$TMP/v.out"
 check "the summary line" grep -q '^1 fits: 1 reproduced within 0.1 sigma, 0 differ, 0 could not be refitted or checked; 0 files changed' "$TMP/v.out"
+check "the spectrum is recorded by a path relative to the session" grep -q "$(printf '\tfile=spec.txt#NaI\t')" "$S"
+
+# the session and its data move together: the digest still names the spectrum
+mkdir "$TMP/moved" && mv "$TMP/fx" "$TMP/moved/fx"
+"$DT" log --verify "$TMP/moved/fx/fit.session" >"$TMP/vm.out" 2>&1
+check "moved with its data: verify exits 0" test $? -eq 0
+check "... the spectrum is found beside the session and reproduced" grep -q '^reproduced    spec.txt#NaI' "$TMP/vm.out"
+check "... no file reported changed" grep -q '; 0 files changed' "$TMP/vm.out"
+mv "$TMP/moved/fx" "$TMP/fx"
+
 "$DT" log --verify --target nothing-like-this "$S" >"$TMP/v0.out" 2>&1
 check "verify --target selects spectra" grep -q '^0 fits' "$TMP/v0.out"
 expect_fail "verify with --user makes no sense" "do not apply" "$DT" log --verify --user x "$S"

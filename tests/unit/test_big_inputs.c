@@ -242,6 +242,9 @@ static int write_session(const char *path, long nlines, const char *dir, const c
     snprintf(key, sizeof key, "%s/s/spec%07ld.fits#NaI", dir, ti);
     dt_target t = {.path = key, .hdu = 0, .row = 0};
     snprintf(t.sha256, sizeof t.sha256, "%s", sha);
+    /* a session identifies a spectrum by its file's digest: give each of these
+     * (one file under many names) a digest of its own */
+    snprintf(t.sha256 + 56, 9, "%08x", (unsigned)(ti & 0x7fffffff));
     dt_judgement j;
     dt_judgement_init(&j);
     j.vsys = 512;

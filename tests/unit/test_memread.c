@@ -214,7 +214,7 @@ static void test_spectra(void) {
 static int record(dt_journal *j, const char *path, long row, dt_judgement *state, dt_action *a) {
   dt_judgement after = *state;
   if (dt_judgement_apply(&after, a) != DT_OK) return -1;
-  dt_target t = {path, 1, row, ""};
+  dt_target t = {.path = path, .hdu = 1, .row = row};
   dt_err e;
   int rc = dt_journal_append(j, &t, a, &after, NULL, &e);
   if (rc == DT_OK) *state = after;
@@ -284,7 +284,7 @@ static void both_sessions(const char *label, const char *path) {
     CHECK(jm && dt_journal_read_only(jm) && !strcmp(dt_journal_path(jm), "(memory)"),
           "%s: the session from memory is read-only", label);
     if (jm) {
-      dt_target t = {"x", 0, 0, ""};
+      dt_target t = {.path = "x"};
       dt_action a;
       dt_action_init(&a, DT_ACT_VERDICT);
       dt_judgement after;

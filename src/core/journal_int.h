@@ -1,0 +1,92 @@
+/* Private to the session-file module (journal_*.c): helpers shared by the
+ * writer, the reader and the in-memory session. */
+#ifndef DOUBLETTY_JOURNAL_INT_H
+#define DOUBLETTY_JOURNAL_INT_H
+#include <stddef.h>
+#include <stdint.h>
+#include "doubletty/journal.h"
+
+#define DT_JN_HEADER_TAG "doubletty-session"
+
+/* FNV-1a 32-bit hash of n bytes (the line check sum). */
+uint32_t dt_jn_fnv1a32(const char *p, size_t n);
+/* Copy at most size-1 bytes of src (NULL = "") and end with a NUL. */
+void dt_jn_copy_str(char *dst, size_t size, const char *src);
+/* Exact equality of components, NaN equal to NaN. */
+int dt_jn_same_comp(const dt_component *a, const dt_component *b);
+/* Fit status code <-> its token in the file ("ok", "no-convergence", ...). */
+const char *dt_jn_status_token(int code, char *tmp, size_t n);
+int dt_jn_status_parse(const char *s, int *code);
+/* Lines read so far by a record reader (the header counts as line 1). */
+long dt_jn_reader_lineno(const dt_journal_reader *r);
+
+/* ---- finding a spectrum's record (journal_index.c) ---- */
+
+/* Keys (text + HDU + row) to values (entry indices). */
+typedef struct dt_jn_index {
+  struct dt_jn_key *slot;
+  size_t nslot, nkey;
+} dt_jn_index;
+/* The value of a key, -1 if it has none. */
+long dt_jn_index_get(const dt_jn_index *x, const char *key, int hdu, long row);
+/* Give a key a value (a key that has one keeps it).  DT_OK or DT_ENOMEM. */
+int dt_jn_index_add(dt_jn_index *x, const char *key, int hdu, long row, size_t val);
+void dt_jn_index_free(dt_jn_index *x);
+
+/* The doublet of a recorded path: what follows "#" after the file name. */
+const char *dt_jn_doublet_of(const char *path);
+/* Identity key "S:DIGEST#DOUBLET", NULL when the digest is unknown (or out
+ * of memory); path key "P:PATH" (NULL = out of memory).  Written into buf
+ * (n bytes) when it fits, else into malloc'd memory the caller frees (the
+ * result is then not buf). */
+char *dt_jn_id_key(const dt_target *t, char *buf, size_t n);
+char *dt_jn_path_key(const char *path, char *buf, size_t n);
+/* The absolute directory of a session file (malloc'd; NULL = root or
+ * unknown). */
+char *dt_jn_session_dir(const char *session);
+/* The hint recorded for a spectrum path: relative to dir (or to rdir, the
+ * same directory with links resolved) when it lies below it, else as given.
+ * malloc'd; NULL = out of memory. */
+char *dt_jn_path_hint(const char *dir, const char *rdir, const char *path);
+
+/* ---- the field table (journal_format.c): one description of every field,
+ * walked by the writer and by the parser ---- */
+
+enum { JP_ID, JP_ACT, JP_STATE, JP_FIT, JP_MEAS, JP_MEASX, JP_FULL }; /* parts of a record */
+enum {
+  JT_TEXT,        /* escaped text into a char array of hi bytes */
+  JT_PTR,         /* escaped text, a const char * into the line */
+  JT_NUM,         /* double */
+  JT_PM,          /* double +- double (off, off2); the error may be missing */
+  JT_INT,         /* int in [lo, hi] */
+  JT_LONG,        /* long in [lo, hi] */
+  JT_SIZE,        /* size_t in [lo, hi] */
+  JT_INDEX,       /* 1-based in the file, an int 0-based in memory */
+  JT_FREEZE,      /* letters N, b, v: int bits */
+  JT_VERDICT,     /* dt_verdict */
+  JT_VERDICT_INT, /* a verdict kept in an int (the action's ival) */
+  JT_SHA,         /* 64 hex digits into char[DT_SHA256_HEX]; may be empty */
+  JT_STATUS,      /* fit status token */
+  JT_COMP,        /* component cN: logN=X[+-E],b=..,v=..[,frozen=..] */
+  JT_FCOMP,       /* fitted component fN (with errors) */
+  JT_CONT,        /* continuum coefficients C+-E,... */
+  JT_WINDOWS,     /* continuum windows LO:HI,... */
+  JT_FULL         /* full=1: the settings follow */
+};
+enum {
+  JF_REQ = 1,      /* required (for JP_FULL: when full=1; JP_FIT: when the fit is there) */
+  JF_NONEMPTY = 2, /* text that may not be empty */
+  JF_OMIT = 4,     /* left out when empty, zero or NaN */
+  JF_NUMBERED = 8  /* KEY1 .. KEYn, n = hi */
+};
+typedef struct dt_jn_field {
+  const char *key;
+  unsigned char part, type, flags;
+  size_t off, off2; /* where the value (and its error) lives in its part */
+  long lo, hi;      /* integer range; text: buffer size in hi; numbered: count */
+  unsigned acts;    /* JP_ACT: the actions (bit per kind) that have the field */
+} dt_jn_field;
+extern const dt_jn_field dt_jn_fields[];
+extern const size_t dt_jn_nfields;
+
+#endif
