@@ -37,8 +37,9 @@ static void usage(FILE *f) {
           "Print the audit trail of a session file: when, who, which spectrum, what was\n"
           "done and the state after it, one change a line.\n\n"
           "options:\n"
-          "  --target PATTERN  only spectra whose path matches PATTERN (a glob such as\n"
-          "                    'demo/q0*.fits', or any part of the path)\n"
+          "  --target PATTERN  only spectra whose path or list name matches PATTERN\n"
+          "                    (a glob such as 'demo/q0*.fits', any part of the path,\n"
+          "                    or a whole list name such as VPQ06)\n"
           "  --user NAME       only changes made by NAME\n"
           "  --action NAMES    only these actions (comma-separated), e.g. verdict,note\n"
           "  --verify          instead of the trail: refit every spectrum whose final\n"
@@ -161,9 +162,13 @@ static long parse_actions(const char *list) {
   return set ? set : -1;
 }
 
-static int target_matches(const char *pattern, const char *path) {
-  if (strpbrk(pattern, "*?[")) return fnmatch(pattern, path, 0) == 0;
-  return strstr(path, pattern) != NULL;
+/* A spectrum matches by its path (a glob, or a part of it) or by its list
+ * name (a glob, or the whole name). */
+static int target_matches(const char *pattern, const dt_target *t) {
+  const char *name = t->name ? t->name : "";
+  if (strpbrk(pattern, "*?["))
+    return fnmatch(pattern, t->path, 0) == 0 || (*name && fnmatch(pattern, name, 0) == 0);
+  return strstr(t->path, pattern) != NULL || !strcmp(name, pattern);
 }
 
 /* Does the file of a spectrum path exist (an extension selector "[..]"
@@ -219,7 +224,7 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
   char name[4200], where[4400], why[200], sha[DT_SHA256_HEX];
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    if (pattern && !target_matches(pattern, en->target.path)) continue;
+    if (pattern && !target_matches(pattern, &en->target)) continue;
     su_target_name(&en->target, name, sizeof name);
     const char *file = locate(en->target.path, session, where, sizeof where);
     dt_err e;
@@ -348,7 +353,7 @@ int cmd_log(int argc, char **argv) {
       status = 1;
       break;
     }
-    if (pattern && !target_matches(pattern, rec->target.path)) continue;
+    if (pattern && !target_matches(pattern, &rec->target)) continue;
     if (user && strcmp(user, rec->user) != 0) continue;
     if (actions && !(actset & (1L << rec->action.kind))) continue;
     for (char *p = rec->user; *p; p++)

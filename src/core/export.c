@@ -94,8 +94,14 @@ static size_t comp_rows(const dt_journal_entry *en) {
 }
 
 /* The cells of one row: spectrum en, component k (0 = none). */
-static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags, char *frozen) {
-  static char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
+/* The text a row's cells point to (one per writer, reused row after row). */
+typedef struct row_text {
+  char flags[64], frozen[4], status[32];
+  char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
+} row_text;
+
+static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt) {
+  char *flags = rt->flags, *frozen = rt->frozen, *status = rt->status;
   const dt_judgement *s = &en->state;
   const dt_meas_summary *m = &en->meas;
   dt_meas_summary none;
@@ -116,12 +122,12 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, char *flags,
     err = &s->fit.err[k - 1];
   frozen[0] = '\0';
   if (comp) dt_freeze_str(s->frozen[k - 1], frozen);
-  static char status[32];
   if (!s->has_fit) status[0] = '\0';
-  else snprintf(status, sizeof status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
+  else snprintf(status, sizeof rt->status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
   size_t i = 0;
-  c[i++].s = target_file(en->target.path, file, sizeof file);
-  c[i++].s = target_stem(file, stem, sizeof stem);
+  c[i++].s = target_file(en->target.path, rt->file, sizeof rt->file);
+  c[i++].s = en->target.name && en->target.name[0] ? en->target.name
+                                                   : target_stem(rt->file, rt->stem, sizeof rt->stem);
   c[i++].i = en->target.hdu;
   c[i++].i = en->target.row;
   c[i++].s = dt_verdict_name(s->verdict);
@@ -170,12 +176,12 @@ int dt_export_csv(FILE *f, const dt_journal *j) {
   for (size_t c = 0; c < NCOL; c++) dt_csv_text(&w, COLS[c].name);
   dt_csv_end(&w);
   cell cells[NCOL];
-  char flags[64], frozen[4];
+  row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
     size_t nc = comp_rows(en);
     for (size_t k = nc ? 1 : 0; k <= nc; k++) {
-      fill_row(en, k, cells, flags, frozen);
+      fill_row(en, k, cells, rt);
       for (size_t c = 0; c < NCOL; c++) {
         switch (COLS[c].type) {
         case C_STR: dt_csv_text(&w, cells[c].s); break;
@@ -211,11 +217,11 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
   long width[NCOL];
   for (size_t c = 0; c < NCOL; c++) width[c] = 1;
   cell cells[NCOL];
-  char flags[64], frozen[4];
+  row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
     for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en); k++) {
-      fill_row(en, k, cells, flags, frozen);
+      fill_row(en, k, cells, rt);
       for (size_t c = 0; c < NCOL; c++)
         if (COLS[c].type == C_STR && (long)strlen(cells[c].s) > width[c])
           width[c] = (long)strlen(cells[c].s);
@@ -282,7 +288,7 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
   for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
     for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en) && !st; k++) {
-      fill_row(en, k, cells, flags, frozen);
+      fill_row(en, k, cells, rt);
       row++;
       for (size_t c = 0; c < NCOL && !st; c++) {
         int col = (int)c + 1;
