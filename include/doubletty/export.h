@@ -19,6 +19,11 @@
 #include "doubletty/journal.h"
 #include "doubletty/status.h"
 
+/* The name column of a spectrum without a list name: the file's stem (no
+ * directory, no "[ext]" selector, no extension; ".gz"/".fz" count with the
+ * extension before them).  Written into buf (n bytes), returned. */
+const char *dt_export_stem(const char *file, char *buf, size_t n);
+
 /* Write the table of session j as CSV to f.  DT_OK or DT_EIO. */
 int dt_export_csv(FILE *f, const dt_journal *j);
 

@@ -29,6 +29,7 @@
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
 #include "doubletty/csv.h"
+#include "doubletty/export.h"
 #include "doubletty/autofit.h"
 #include "doubletty/judge.h"
 #include "doubletty/model.h"
@@ -174,21 +175,6 @@ static void report(run *r, const char *file, long row, const dt_err *e) {
 
 /* ---- one spectrum ---------------------------------------------------- */
 
-/* The name column without a list name: the file's stem (no directory, no
- * "[ext]" selector, no extension), as export writes it. */
-static const char *file_stem(const char *path, char *buf, size_t n) {
-  const char *slash = strrchr(path, '/');
-  snprintf(buf, n, "%s", slash ? slash + 1 : path);
-  char *br = strchr(buf, '[');
-  if (br) *br = '\0';
-  char *dot = strrchr(buf, '.');
-  if (dot && dot != buf && (!strcmp(dot, ".gz") || !strcmp(dot, ".fz"))) {
-    *dot = '\0';
-    dot = strrchr(buf, '.');
-  }
-  if (dot && dot != buf) *dot = '\0';
-  return buf;
-}
 
 static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                      const char *doublet, double vsys, const char *status) {
@@ -196,7 +182,7 @@ static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long
   dt_csv_long(w, r->index);
   dt_csv_text(w, t->path);
   char stem[DT_TARGET_PATH_MAX];
-  dt_csv_text(w, t->name[0] ? t->name : file_stem(t->path, stem, sizeof stem));
+  dt_csv_text(w, t->name[0] ? t->name : dt_export_stem(t->path, stem, sizeof stem));
   if (s && s->hdu > 0) dt_csv_long(w, s->hdu);
   else dt_csv_empty(w);
   if (row > 0) dt_csv_long(w, row);

@@ -67,21 +67,17 @@ static const char *target_file(const char *key, char *buf, size_t n) {
   return buf;
 }
 
-/* The name column: the file's stem (no directory, no extension, no
- * "[ext]" selector) while the session records no list name. */
-static const char *target_stem(const char *file, char *buf, size_t n) {
+const char *dt_export_stem(const char *file, char *buf, size_t n) {
   const char *slash = strrchr(file, '/');
   snprintf(buf, n, "%s", slash ? slash + 1 : file);
   char *br = strchr(buf, '[');
   if (br) *br = '\0';
   char *dot = strrchr(buf, '.');
-  if (dot && dot != buf) {
-    if (!strcmp(dot, ".gz") || !strcmp(dot, ".fz")) {
-      *dot = '\0';
-      dot = strrchr(buf, '.');
-    }
-    if (dot && dot != buf) *dot = '\0';
+  if (dot && dot != buf && (!strcmp(dot, ".gz") || !strcmp(dot, ".fz"))) {
+    *dot = '\0';
+    dot = strrchr(buf, '.');
   }
+  if (dot && dot != buf) *dot = '\0';
   return buf;
 }
 
@@ -127,7 +123,7 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt
   size_t i = 0;
   c[i++].s = target_file(en->target.path, rt->file, sizeof rt->file);
   c[i++].s = en->target.name && en->target.name[0] ? en->target.name
-                                                   : target_stem(rt->file, rt->stem, sizeof rt->stem);
+                                                   : dt_export_stem(rt->file, rt->stem, sizeof rt->stem);
   c[i++].i = en->target.hdu;
   c[i++].i = en->target.row;
   c[i++].s = dt_verdict_name(s->verdict);
