@@ -15,9 +15,7 @@
 #include <unistd.h>
 #include <string.h>
 
-#include "../ui/inspector.h"
-#include "../ui/queue.h"
-#include "../ui/term.h"
+#include "../ui/ui.h"
 #include "cli.h"
 #include "commands.h"
 #include "doubletty/agree.h"
@@ -395,8 +393,7 @@ static int run_session(dt_queue *q, const dt_atomic *atomic, const inspect_args 
   /* the terminal before the session: no session file is created for a
      screen we cannot use */
   char msg[512];
-  dt_term_opts to = {o->colour, o->ascii, o->replay != NULL, o->width, o->height};
-  if (dt_term_check(&to, msg, sizeof msg)) {
+  if (dt_inspect_check(o, msg, sizeof msg)) {
     cli_errorf("inspect: %s", msg);
     return 1;
   }
@@ -449,7 +446,6 @@ int cmd_inspect(int argc, char **argv) {
   }
   const char *nc = getenv("NO_COLOR"); /* the common convention for "no colours, please" */
   if (nc && *nc) o.colour = 0;
-  if (a.air) o.air = 1;
   if ((rc = check_args(&a, &o))) goto out;
   atomic = cli_load_atomic(a.atomic_file);
   if (!atomic) {

@@ -7,7 +7,7 @@
 #include <stdio.h>
 #include <string.h>
 
-#include "../ui/keymap.h"
+#include "../ui/ui.h"
 #include "commands.h"
 #include "cli.h"
 

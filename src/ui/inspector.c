@@ -25,6 +25,11 @@ void dt_inspect_opts_init(dt_inspect_opts *o) {
   o->colour = -1;
 }
 
+int dt_inspect_check(const dt_inspect_opts *o, char *msg, size_t size) {
+  dt_term_opts to = {o->colour, o->ascii, o->replay != NULL, o->width, o->height};
+  return dt_term_check(&to, msg, size);
+}
+
 void dt_insp_say(dt_insp *s, dt_session_tone tone, const char *fmt, ...) {
   va_list ap;
   va_start(ap, fmt);

@@ -31,10 +31,14 @@ typedef struct dt_inspect_opts {
   int bench;               /* print per-keystroke timing at the end */
   /* set by the command, for the inspector to show and use */
   const char *session_path; /* shown at the start (NULL: the journal's path) */
-  int air;                  /* text spectra give air wavelengths */
 } dt_inspect_opts;
 
 void dt_inspect_opts_init(dt_inspect_opts *o);
+
+/* Can the screen that options o ask for be used (a terminal, or a replay)?
+ * 0, or nonzero with msg saying why not.  A command asks before it opens
+ * a session file, so none is created for a screen that cannot be used. */
+int dt_inspect_check(const dt_inspect_opts *o, char *msg, size_t size);
 
 /* Run the inspector on queue q (n >= 1) with the atomic table t, recording
  * into journal jn (opened by the caller, read-only or not; may be NULL for
