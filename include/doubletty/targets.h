@@ -1,13 +1,16 @@
 /* Target lists: the queue of spectra a person vets, one per line.
  *
  *   # comment
- *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT] [air]
+ *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
+ *             [window=VLO:VHI] [air]
  *
  * Fields are separated by blanks; '#' starts a comment anywhere on a line
  * (outside quotes); blank lines are ignored.  A relative path is taken
  * relative to the directory of the list file.  A path may carry a FITS
  * extension selector "file.fits[2]".  The flag "air" says the file's
- * wavelengths are in air (used when the file itself does not say).
+ * wavelengths are in air (used when the file itself does not say);
+ * window=VLO:VHI the velocity window [km/s] around the rest frame for the
+ * fit and the measurements.
  *
  * Quoting: a path or value holding blanks, '#', '"' or '\' is written
  * between double quotes, inside which \" stands for '"' and \\ for '\'
@@ -16,7 +19,7 @@
  * "name=Sightline 7" are the same (the first '=' of a field after the path
  * ends the key, quoted or not).  Examples:
  *
- *   "night 2/star #4.fits"  vsys=-12 name="HD 1234 \"B\""
+ *   "night 2/star #4.fits"  vsys=-12 name="Fen 1234 \"B\""
  *   spectra/a.txt  R=48000  air
  *
  * Unknown keys, repeated keys, malformed values, an unterminated quote, a
@@ -43,6 +46,8 @@ typedef struct dt_target_spec {
   double fwhm_kms;                /* LSF FWHM [km/s]; 0 = not given */
   char doublet[16];               /* "" = not given */
   char name[DT_TARGET_NAME_MAX];  /* "" = not given */
+  int has_window;                 /* window=VLO:VHI given: */
+  double vlo, vhi;                /* velocity window for fit and measurement [km/s] */
   long line;                      /* line number in the list (0 = not from a list) */
   int air;                        /* 1: wavelengths in air (flag "air", or
                                      dt_targets_set_air); for dt_read_opts.air */

@@ -300,14 +300,16 @@ static int check_coverage(const dt_spectrum *s, const dt_doublet *d, double vsys
  * would report the window as masked, which misleads. */
 #define FIT_MIN_WINDOW_PIX 10
 
-static int check_window(const config *c, const dt_spectrum *s, dt_err *e) {
-  if (!c->have_window) return DT_OK;
-  double pix = dt_spectrum_pixel_kms(s), npix = (c->vhi - c->vlo) / pix;
+static int check_window(const config *c, const dt_target_spec *t, const dt_judgement *j,
+                        const dt_spectrum *s, dt_err *e) {
+  if (!c->have_window && !t->has_window) return DT_OK;
+  double pix = dt_spectrum_pixel_kms(s), npix = (j->vhi - j->vlo) / pix;
   if (pix > 0 && npix < FIT_MIN_WINDOW_PIX)
     return dt_err_set(e, DT_EINVAL, NULL,
                       "the velocity window %g:%g km/s spans %.1f pixels of %.1f km/s: too "
-                      "narrow to fit a line (at least %d pixels); widen --window",
-                      c->vlo, c->vhi, npix, pix, FIT_MIN_WINDOW_PIX);
+                      "narrow to fit a line (at least %d pixels); widen %s",
+                      j->vlo, j->vhi, npix, pix, FIT_MIN_WINDOW_PIX,
+                      c->have_window ? "--window" : "the list's window=");
   return DT_OK;
 }
 
@@ -337,12 +339,15 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     if (c->have_window) {
       j.vlo = c->vlo;
       j.vhi = c->vhi;
+    } else if (t->has_window) {
+      j.vlo = t->vlo;
+      j.vhi = t->vhi;
     }
     if (c->have_order) j.cont_order = c->cont_order;
     st = pick_resolution(c, t, s, &j, &e);
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
-  if (st == DT_OK) st = check_window(c, s, &e);
+  if (st == DT_OK) st = check_window(c, t, &j, s, &e);
   dt_autofit_out o;
   memset(&o, 0, sizeof o);
   if (st == DT_OK) {

@@ -240,6 +240,9 @@ static int load_disagreements(const char *const dis[2], dt_target_spec **out, si
     t->row = en->target.row;
     t->has_vsys = 1;
     t->vsys = j->vsys;
+    t->has_window = 1; /* the velocity window the first session judged in */
+    t->vlo = j->vlo;
+    t->vhi = j->vhi;
     if (j->resolution > 0) t->resolution = j->resolution;
     else if (j->fwhm_kms > 0) t->fwhm_kms = j->fwhm_kms;
     (*n)++;

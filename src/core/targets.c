@@ -44,17 +44,17 @@ static int parse_num(const char *s, double *out) {
   return 0;
 }
 
-enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_AIR, NKEYS };
+enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_WINDOW, K_AIR, NKEYS };
 
 /* One key=value field (or the flag "air": val == NULL). */
 static int parse_field(dt_target_spec *t, const char *key, const char *val, long lineno,
                        unsigned *seen, dt_err *e) {
-  static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "air"};
+  static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "window", "air"};
   int k = -1;
   for (int i = 0; i < NKEYS; i++)
     if (!strcmp(key, keys[i])) k = i;
   if (k < 0 && !val) return bad(e, lineno, "field '%s' is neither key=value nor the flag air", key);
-  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name, flag air)", key);
+  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window, flag air)", key);
   if (*seen & (1u << k)) return bad(e, lineno, "key '%s' given twice", key);
   *seen |= 1u << k;
   if (k == K_AIR) {
@@ -86,6 +86,19 @@ static int parse_field(dt_target_spec *t, const char *key, const char *val, long
     if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "fwhm must be a positive width in km/s, not '%s'", val);
     t->fwhm_kms = x;
     break;
+  case K_WINDOW: {
+    /* VLO:VHI in km/s around the rest frame */
+    char lo[64], *colon = strchr(val, ':');
+    double hi;
+    if (!colon || (size_t)(colon - val) >= sizeof lo) return bad(e, lineno, "window must be VLO:VHI in km/s, not '%s'", val);
+    snprintf(lo, sizeof lo, "%.*s", (int)(colon - val), val);
+    if (parse_num(lo, &x) || parse_num(colon + 1, &hi) || !(x < hi) || fabs(x) >= 1e5 || fabs(hi) >= 1e5)
+      return bad(e, lineno, "window must be VLO:VHI in km/s with VLO < VHI, not '%s'", val);
+    t->has_window = 1;
+    t->vlo = x;
+    t->vhi = hi;
+    break;
+  }
   case K_DOUBLET:
     if (strlen(val) >= sizeof t->doublet) return bad(e, lineno, "doublet name '%s' is too long", val);
     snprintf(t->doublet, sizeof t->doublet, "%s", val);

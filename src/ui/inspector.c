@@ -95,6 +95,10 @@ static void initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
   const dt_doublet *dd = dt_atomic_find(s->atomic, d);
   snprintf(j->doublet, sizeof j->doublet, "%s", dd ? dd->name : d);
   j->vsys = q->has_vsys ? q->vsys : o->has_vsys ? o->vsys : 0.0;
+  if (q->has_window) {
+    j->vlo = q->vlo;
+    j->vhi = q->vhi;
+  }
   if (q->resolution > 0 || q->fwhm_kms > 0) {
     j->resolution = q->resolution;
     j->fwhm_kms = q->resolution > 0 ? 0 : q->fwhm_kms;

@@ -93,6 +93,9 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   x->vsys = t->vsys;
   x->has_vsys = (unsigned char)t->has_vsys;
   x->air = (unsigned char)(t->air || q->air);
+  x->has_window = (unsigned char)t->has_window;
+  x->vlo = t->vlo;
+  x->vhi = t->vhi;
   x->resolution = t->resolution;
   x->fwhm_kms = t->fwhm_kms;
   memcpy(x->doublet, t->doublet, sizeof x->doublet);

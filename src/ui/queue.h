@@ -24,6 +24,8 @@ typedef struct dt_qentry {
   char doublet[16];
   unsigned char has_vsys;
   unsigned char air;     /* wavelengths in air where the file does not say */
+  unsigned char has_window;
+  double vlo, vhi;       /* velocity window [km/s] when has_window */
   signed char verdict;  /* cached verdict (dt_verdict), -1 = not known yet */
 } dt_qentry;
 

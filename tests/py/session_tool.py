@@ -118,7 +118,8 @@ class Writer:
             self.seen.add(key)
             st = state
             f += ["full=1", "doublet=" + esc(st.get("doublet", "NaI")), "vsys=" + num(st.get("vsys", 0.0)),
-                  "R=" + num(st.get("R", 3000.0)), "fwhm=0", "vlo=-600", "vhi=600",
+                  "R=" + num(st.get("R", 3000.0)), "fwhm=0", "vlo=" + num(st.get("vlo", -600.0)),
+                  "vhi=" + num(st.get("vhi", 600.0)),
                   "order=%d" % st.get("order", 2), "windows=", "note=" + esc(st.get("note", ""))]
         body = "\t".join(f)
         line = body + "\tsum=%08x\n" % fnv1a32(body.encode("utf-8"))

@@ -42,12 +42,12 @@ d = sys.argv[2]
 A = t.Writer(d + "/a.session", "ana")
 B = t.Writer(d + "/b.session", "ben")
 # q3 and q1 disagree (in that order in the sessions), q2 agrees
-for name, va, vb, vsys, R in (("q3", "detected", "unsure", 412.0, 3800.0),
-                              ("q2", "detected", "detected", 0.0, 3000.0),
-                              ("q1", "not-detected", "detected", -150.0, 5200.0)):
+for name, va, vb, vsys, R, win in (("q3", "detected", "unsure", 412.0, 3800.0, (-250.0, 350.0)),
+                                   ("q2", "detected", "detected", 0.0, 3000.0, (-600.0, 600.0)),
+                                   ("q1", "not-detected", "detected", -150.0, 5200.0, (-600.0, 600.0))):
     p = d + "/sub/" + name + ".txt"
     for w, v in ((A, va), (B, vb)):
-        st = {"verdict": v, "comps": [], "fit": None, "vsys": vsys, "R": R}
+        st = {"verdict": v, "comps": [], "fit": None, "vsys": vsys, "R": R, "vlo": win[0], "vhi": win[1]}
         w.record(p, 0, 0, "", "verdict", [("verdict", v)], st)
 A.close()
 B.close()
@@ -57,6 +57,13 @@ PYEOF
   check "two disagreements queued ($(title "$TMP/d4.txt"))" grep -q ' 1/2 ' "$TMP/d4.txt"
   check "the first carries its recorded vsys +412" sh -c "head -n 1 '$TMP/d4.txt' | grep -q 'vsys +412'"
   check "... and its recorded R 3800" sh -c "head -n 1 '$TMP/d4.txt' | grep -q 'R 3800'"
+  check "... and its recorded velocity window on the axis (from -200 km/s, no -600)" \
+    sh -c "grep '^km/s' '$TMP/d4.txt' | grep -q '^km/s *-200 ' && ! grep '^km/s' '$TMP/d4.txt' | grep -q -- '-600'"
+  printf 'verdict-detected\nquit\n' >"$TMP/vkeys"
+  $DT inspect --only-disagreements "$TMP/a.session" "$TMP/b.session" --session "$TMP/adjw.session" \
+    --replay-keys "$TMP/vkeys" >/dev/null 2>&1
+  check "the adjudication session records that window (vlo=-250, vhi=350)" \
+    grep -q 'vlo=-250	vhi=350' "$TMP/adjw.session"
   printf 'q1.txt\nq2.txt\nq3.txt\n' >"$TMP/sub/all.list"
   $DT inspect --only-disagreements "$TMP/a.session" "$TMP/b.session" --list "$TMP/sub/all.list" \
     --session "$TMP/adj2.session" --replay-keys "$TMP/keys" --screen-dump "$TMP/d5.txt" >/dev/null 2>&1

@@ -84,11 +84,21 @@ int main(void) {
     bad_line(huge, "longer than");
   }
 
+  /* a velocity window per line */
+  rc = parse("w.fits window=-250:350.5 vsys=512", "/d", &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.has_window && t.vlo == -250 && t.vhi == 350.5,
+        "window=-250:350.5 read: %d %g %g (%s)", t.has_window, t.vlo, t.vhi, e.what);
+  rc = parse("w.fits vsys=512", "/d", &t, &got, &e);
+  CHECK(rc == DT_OK && !t.has_window, "no window= leaves the default");
+  bad_line("w.fits window=300:-300", "VLO < VHI");
+  bad_line("w.fits window=-300", "VLO:VHI");
+  bad_line("w.fits window=a:b", "VLO:VHI");
+
   /* quoting: blanks, '#', '"' and '\' in paths and values */
-  rc = parse("\"night 2/star #4.fits\"  name=\"HD 1234 \\\"B\\\"\" vsys=-12 # comment", "/d", &t, &got, &e);
+  rc = parse("\"night 2/star #4.fits\"  name=\"Fen 1234 \\\"B\\\"\" vsys=-12 # comment", "/d", &t, &got, &e);
   CHECK(rc == DT_OK && got && !strcmp(t.path, "/d/night 2/star #4.fits"),
         "quoted path with a blank and a '#': %s (%s)", t.path, e.what);
-  CHECK(rc == DT_OK && !strcmp(t.name, "HD 1234 \"B\"") && t.has_vsys && t.vsys == -12,
+  CHECK(rc == DT_OK && !strcmp(t.name, "Fen 1234 \"B\"") && t.has_vsys && t.vsys == -12,
         "quoted name with escaped quotes, fields after it: [%s]", t.name);
   rc = parse("\"name=a b\"", NULL, &t, &got, &e);
   CHECK(rc == DT_OK && got && !strcmp(t.path, "name=a b"), "a quoted first field is the path: %s", t.path);
