@@ -10,6 +10,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/utf8.h"
+
 int dt_plot_begin(dt_plot *p, dt_plot_mode mode, int w, int h, double xmin, double xmax,
                   double ymin, double ymax) {
   p->w = p->h = p->dw = p->dh = 0;
@@ -226,21 +228,7 @@ char dt_plot_ascii_glyph(int role) {
 /* Braille dot bits (Unicode 2800 block): left column rows 0-3, right column. */
 static const unsigned char braille_bit[2][4] = {{0x01, 0x02, 0x04, 0x40}, {0x08, 0x10, 0x20, 0x80}};
 
-static void utf8_put(char *out, unsigned cp) {
-  if (cp < 0x80) {
-    out[0] = (char)cp;
-    out[1] = '\0';
-  } else if (cp < 0x800) {
-    out[0] = (char)(0xC0 | (cp >> 6));
-    out[1] = (char)(0x80 | (cp & 0x3F));
-    out[2] = '\0';
-  } else {
-    out[0] = (char)(0xE0 | (cp >> 12));
-    out[1] = (char)(0x80 | ((cp >> 6) & 0x3F));
-    out[2] = (char)(0x80 | (cp & 0x3F));
-    out[3] = '\0';
-  }
-}
+static void utf8_put(char *out, unsigned cp) { out[dt_utf8_encode(cp, out)] = '\0'; }
 
 void dt_plot_render(const dt_plot *p, dt_grid *g, int gx, int gy) {
   for (int r = 0; r < p->h; r++)

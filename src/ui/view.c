@@ -23,6 +23,7 @@
 #include <string.h>
 
 #include "doubletty/model.h"
+#include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
 
@@ -40,12 +41,9 @@ typedef struct layout {
 
 #define FOOTER_MIN 16 /* " ? help  q quit " */
 
-/* Cells of UTF-8 text (one per code point; the screen has no wide glyphs). */
-static int cells(const char *t) {
-  int n = 0;
-  for (; *t; t++) n += ((unsigned char)*t & 0xC0) != 0x80;
-  return n;
-}
+/* Cells of UTF-8 text (one per code point, as dt_grid_text draws it; the
+ * screen has no wide glyphs). */
+static int cells(const char *t) { return (int)dt_utf8_count(t); }
 
 /* Symbols with ASCII stand-ins. */
 typedef struct syms {
@@ -187,14 +185,13 @@ static void draw_title(dt_insp *s, const layout *L) {
   snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
   snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s ", s->ss->j.doublet, s->ss->j.vsys, res);
   snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
-  int fixed = dt_utf8_len(head) + dt_utf8_len(tail) + flen;
+  int fixed = cells(head) + cells(tail) + flen;
   int mroom = L->w - fixed;
-  if (dt_utf8_len(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
+  if (cells(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
   if (mroom < 4) mroom = 4;
-  while (dt_utf8_len(mid) > mroom) {
-    size_t n = strlen(mid);
-    memmove(mid, mid + 1, n); /* drop from the left: the end of a name tells most */
-    while (((unsigned char)mid[0] & 0xC0) == 0x80) memmove(mid, mid + 1, strlen(mid));
+  while (cells(mid) > mroom) {
+    size_t n = strlen(mid), k = dt_utf8_next(mid, n, 0);
+    memmove(mid, mid + k, n - k + 1); /* drop from the left: the end of a name tells most */
   }
   char buf[800];
   snprintf(buf, sizeof buf, "%s%s%s", head, mid, tail);
@@ -396,7 +393,7 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
                d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->ss->j.vsys) : NAN, ys.ang);
     else
       snprintf(cur, sizeof cur, " cursor %+.1f km/s", s->cursor_v);
-    int len = dt_utf8_len(cur);
+    int len = cells(cur);
     axis_row(g, p, L->plot_x, L->vaxis_y, 0, p->w - len - 1);
     dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
   }
@@ -514,7 +511,7 @@ static void draw_table(dt_insp *s, const layout *L) {
     snprintf(na, sizeof na, "  log Na %s", b1);
     snprintf(lim, sizeof lim, "  %g%s lim %.0f %s, log N < %.2f", s->ss->nsigma, y.sig, 1e3 * m->W_limit, y.mA,
              m->logN_limit);
-    int room = maxw - n0 - n1, wn = dt_utf8_len(na), wl = dt_utf8_len(lim);
+    int room = maxw - n0 - n1, wn = cells(na), wl = cells(lim);
     int show_na = wn + wl <= room || m->W_sig >= 3, show_lim = wn + wl <= room || m->W_sig < 3;
     int n2 = 0;
     if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
@@ -564,16 +561,14 @@ static void draw_status(dt_insp *s, const layout *L) {
     int n = dt_grid_text(g, 0, y, prompt, DT_R_LABEL, DT_A_BOLD, -1);
     /* show the end of a long note */
     int room = L->w - n - 1;
-    const char *t = s->edit;
+    size_t len = strlen(s->edit), t = 0;
     int before = 0;
-    for (const char *p = s->edit; p < s->edit + s->edit_pos; p++)
-      if (((unsigned char)*p & 0xC0) != 0x80) before++;
-    while (before > room && *t) {
-      t++;
-      while (*t && ((unsigned char)*t & 0xC0) == 0x80) t++;
+    for (size_t p = 0; p < s->edit_pos && p < len; p = dt_utf8_next(s->edit, len, p)) before++;
+    while (before > room && t < len) {
+      t = dt_utf8_next(s->edit, len, t);
       before--;
     }
-    dt_grid_text(g, n, y, t, DT_R_TEXT, 0, room);
+    dt_grid_text(g, n, y, s->edit + t, DT_R_TEXT, 0, room);
     dt_cell *c = dt_grid_at(g, n + before, y);
     if (c) c->bg = DT_R_CURSOR;
     return;
@@ -589,7 +584,7 @@ static void draw_status(dt_insp *s, const layout *L) {
   keyname_of_cmd(DT_CMD_UNDO, ku, sizeof ku);
   keyname_of_cmd(DT_CMD_HELP, kh, sizeof kh);
   keyname_of_cmd(DT_CMD_QUIT, kq, sizeof kq);
-  int mlen = (int)strlen(s->ss->msg);
+  int mlen = cells(s->ss->msg);
   snprintf(right, sizeof right, " %s/%s/%s/%s verdict  %s note  %s undo  %s help  %s quit ", k[0], k[1], k[2], k[3],
            kn, ku, kh, kq);
   if (mlen + (int)strlen(right) + 1 > L->w)
@@ -600,11 +595,10 @@ static void draw_status(dt_insp *s, const layout *L) {
   if (L->status_h == 2) {
     /* wrap at the last blank that fits; the rest goes to the second row */
     int room = L->w - 1, n = 0;
+    size_t mlen_b = strlen(m);
     const char *cut = NULL, *p = m;
-    for (; *p && n < room; p++) {
-      if (((unsigned char)*p & 0xC0) != 0x80) n++;
+    for (; *p && n < room; p = m + dt_utf8_next(m, mlen_b, (size_t)(p - m)), n++)
       if (*p == ' ') cut = p;
-    }
     if (!*p) cut = p;
     else if (!cut) cut = p;
     char first[600];
@@ -666,7 +660,7 @@ static void draw_help(dt_insp *s, const layout *L) {
   /* as many columns as fit the longest line whole (key, help, margin) */
   int need = 0;
   for (size_t i = 0; i < n; i++) {
-    int wl = 8 + dt_utf8_len(t[i].help) + 2;
+    int wl = 8 + cells(t[i].help) + 2;
     if (wl > need) need = wl;
   }
   int ncol = (bw - 2) / (need > 0 ? need : 1);

@@ -240,4 +240,18 @@ expect_fail "--bench without --replay-keys" "go with --replay-keys" "$DT" inspec
 printf 'add-component\nfly-to-the-moon\n' >"$TMP/keys"
 expect_fail "unknown action in a key file" "line 2: 'fly-to-the-moon' is neither" \
   "$DT" inspect "$D/vpq01.fits" --session "$TMP/y.session" --replay-keys "$TMP/keys"
+# ---- UTF-8: the key file types code points, the editor steps over whole ones
+printf 'demo/vpq01.fits  vsys=512 R=3690 name=FIRST\n' >"$TMP/q.list"
+# "N€a σ 😀x"; Left, Backspace drops 😀; Left, Left, Backspace drops the blank before σ
+printf 'edit-note\ntype N\342\202\254a \317\203 \360\237\230\200x\nLeft\nBackspace\nLeft\nLeft\nBackspace\nEnter\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys" \
+  --screen-dump "$TMP/screen" >/dev/null 2>&1
+check "a UTF-8 note edited over 2-, 3- and 4-byte characters is saved whole" \
+  grep -q "act=note	note=N$(printf '\342\202\254')a$(printf '\317\203') x" "$TMP/u.session"
+"$DT" log "$TMP/u.session" --action note >"$TMP/log.out" 2>&1
+check "log shows the UTF-8 note unescaped" grep -q "\"N$(printf '\342\202\254')a$(printf '\317\203') x\"" "$TMP/log.out"
+printf 'edit-note\ntype a\300\257b\nEnter\n' >"$TMP/keys"
+expect_fail "a key file typing bytes that are not UTF-8 is refused" "line 2: the text to type is not UTF-8" \
+  "$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys"
+
 finish

@@ -211,7 +211,12 @@ int main(void) {
   dt_grid_text(&g, 0, 0, "\xc2\xb1\xcf\x83x", DT_R_TEXT, 0, -1);
   CHECK(!strcmp(cell(0, 0), "\xc2\xb1") && !strcmp(cell(1, 0), "\xcf\x83") && !strcmp(cell(2, 0), "x"),
         "UTF-8 characters take one cell each");
-  CHECK(dt_utf8_len("\xc2\xb1\xcf\x83x") == 3, "UTF-8 length");
+  CHECK(dt_grid_text(&g, 0, 0, "\xc2\xb1\xcf\x83x", DT_R_TEXT, 0, -1) == 3, "UTF-8 text: one cell per code point");
+  /* C1 controls and ill-formed bytes (utf8.h) take one '?' cell per unit */
+  dt_grid_reset(&g, 8, 1);
+  k = dt_grid_text(&g, 0, 0, "a\xc2\x9b" "b\xe2\x82" "c\xc0\xaf", DT_R_TEXT, 0, -1);
+  dt_grid_row(&g, 0, row, sizeof row);
+  CHECK(k == 7 && !strcmp(row, "a?b?c?? "), "C1 CSI, a truncated sequence and an overlong '/' become '?': '%s'", row);
 
   dt_plot_free(&p);
   dt_grid_free(&g);
