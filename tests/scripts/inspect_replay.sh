@@ -254,4 +254,38 @@ printf 'edit-note\ntype a\300\257b\nEnter\n' >"$TMP/keys"
 expect_fail "a key file typing bytes that are not UTF-8 is refused" "line 2: the text to type is not UTF-8" \
   "$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys"
 
+# ---- the data are drawn when the analysis of the state fails: a spectrum
+# ending inside NaI 5897's fit window (not covered), and one sampled so
+# coarsely that the window holds fewer than 2 pixels
+awk 'BEGIN { for (w = 5850; w <= 5895; w += 0.1) {
+  d = (w - 5891.58) / 0.4; printf "%.3f %.5f 0.02\n", w, 1 - 0.6 * exp(-0.5 * d * d) + 0.01 * sin(7 * w) } }' \
+  >"$TMP/edge.txt"
+awk 'BEGIN { for (w = 5800; w <= 6000; w += 25) printf "%.3f %.5f 0.02\n", w, 1 + 0.01 * sin(w) }' >"$TMP/coarse.txt"
+printf 'edge.txt vsys=0 R=20000 name=EDGE\ncoarse.txt vsys=0 R=20000 name=COARSE\n' >"$TMP/q.list"
+# rows of panel k (1 or 2) of an 80x24 ASCII screen holding flux ('*') or error (',') glyphs
+panel_rows() {
+  awk -v k="$1" -v g="$2" 'substr($0, 7, 1) == "|" { if (substr($0, 1, 5) ~ /[0-9][0-9][0-9][0-9]/) p++;
+    if (p == k && index(substr($0, 8), g)) n++ } END { print n + 0 }' "$TMP/screen"
+}
+raw() {
+  "$DT" inspect --list "$TMP/q.list" --session "$TMP/raw.session" --ascii --size 80x24 \
+    --replay-keys "$TMP/keys" --screen-dump "$TMP/screen" >/dev/null 2>&1
+}
+printf 'cursor-right\n' >"$TMP/keys"
+raw
+check "window not covered: the upper panel still shows the flux" test "$(panel_rows 1 '*')" -ge 3
+check "... and the lower panel too, up to the spectrum's end" test "$(panel_rows 2 '*')" -ge 3
+check "... with the 1-sigma error" test "$(panel_rows 1 ',')" -ge 1
+check "... the panel says it shows the data only" on_screen "data only: no analysis"
+check "... the reason is on the status line" grep -q "^NaI 5897: window .* is not covered" "$TMP/screen"
+printf 'edit-note\nEsc\n' >"$TMP/keys"
+raw
+check "... and stays there after another message" sh -c "grep -q '^nothing changed - NaI 5897: window' '$TMP/screen'"
+check "... the velocity axis is drawn" on_screen "cursor +0.0 km/s"
+printf 'next-spectrum\n' >"$TMP/keys"
+raw
+check "too few pixels in the window: the flux is drawn in both panels" \
+  test "$(panel_rows 1 '*')" -ge 1 -a "$(panel_rows 2 '*')" -ge 1
+check "... with the reason on the status line" grep -q "fewer than 2 pixels" "$TMP/screen"
+
 finish
