@@ -11,7 +11,8 @@
 
 /* What a cell shows; the terminal module maps roles to colours (or, without
  * colour, to bold/dim/reverse so the screen stays readable).  In plots a
- * cell shared by several curves takes the role that comes last here. */
+ * cell shared by several curves takes the role that comes last here, except
+ * that a curve drawn on top (plot.h: the total model) keeps its cells. */
 typedef enum dt_role {
   DT_R_NONE = 0,
   DT_R_TEXT,
@@ -24,7 +25,7 @@ typedef enum dt_role {
   DT_R_COMP,       /* a component's own model */
   DT_R_COMPSEL,    /* the selected component (model and marker) */
   DT_R_MODEL,      /* total model */
-  DT_R_FLUX,       /* data (drawn over everything else it meets) */
+  DT_R_FLUX,       /* data (over everything else it meets but the model) */
   DT_R_OFFPLOT,    /* values beyond the plotted range */
   DT_R_WINDOW,     /* background: continuum window / fit range */
   DT_R_CURSOR,     /* background: cursor column */

@@ -461,7 +461,7 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     }
   dt_plot_line(p, pd.vel, yf, pd.mask, n, DT_R_FLUX, DT_PLOT_MARK_OFF);
   dt_plot_points(p, pd.vel, yf, pd.mask, n, DT_R_MASKED, DT_PLOT_MARK_OFF);
-  if (pd.model) dt_plot_line(p, pd.vel, ym, NULL, n, DT_R_MODEL, 0);
+  if (pd.model) dt_plot_line(p, pd.vel, ym, NULL, n, DT_R_MODEL, DT_PLOT_ON_TOP); /* distinct over the data */
   /* component numbers along the top row */
   for (size_t k = 0; k < s->ss->j.ncomp; k++) {
     char num[4];

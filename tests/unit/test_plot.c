@@ -218,6 +218,69 @@ int main(void) {
   dt_grid_row(&g, 0, row, sizeof row);
   CHECK(k == 7 && !strcmp(row, "a?b?c?? "), "C1 CSI, a truncated sequence and an overlong '/' become '?': '%s'", row);
 
+  /* ---- the model on top: in a trough whose data lie below the model, both
+   * keep cells of their own; where they coincide the model's cells show
+   * the model's dots alone ---- */
+  {
+    enum { W = 40, H = 8, N = 401 };
+    double xs[N], ym[N], yd[N];
+    for (int i = 0; i < N; i++) {
+      xs[i] = -100 + 0.5 * i;
+      double gsh = exp(-0.5 * xs[i] * xs[i] / 400.0);
+      ym[i] = 1 - 0.5 * gsh;
+      yd[i] = fabs(xs[i]) < 15 ? 1 - 0.95 * gsh : ym[i]; /* deeper than the model in the core */
+    }
+    dt_grid mg = {0};
+    dt_plot mp = {0};
+    /* the model alone, for its glyphs */
+    dt_grid_reset(&mg, W, H);
+    dt_plot_begin(&mp, DT_PLOT_BRAILLE, W, H, -100, 100, -0.1, 1.2);
+    dt_plot_line(&mp, xs, ym, NULL, N, DT_R_MODEL, DT_PLOT_ON_TOP);
+    dt_plot_render(&mp, &mg, 0, 0);
+    /* model first, data after: the order of drawing does not matter */
+    dt_grid_reset(&g, W, H);
+    dt_plot_begin(&p, DT_PLOT_BRAILLE, W, H, -100, 100, -0.1, 1.2);
+    dt_plot_line(&p, xs, ym, NULL, N, DT_R_MODEL, DT_PLOT_ON_TOP);
+    dt_plot_line(&p, xs, yd, NULL, N, DT_R_FLUX, 0);
+    dt_plot_render(&p, &g, 0, 0);
+    int model_cells = 0, model_alone = 0, flux_below = 0, wing_model = 0;
+    for (int x = 0; x < W; x++) {
+      int lowest_model = -1;
+      for (int y = 0; y < H; y++) {
+        if (role(x, y) != DT_R_MODEL) continue;
+        model_cells++;
+        lowest_model = y;
+        if (!strcmp(cell(x, y), dt_grid_at(&mg, x, y)->ch)) model_alone++;
+        if (x < 10 || x >= 30) wing_model++;
+      }
+      for (int y = lowest_model + 1; lowest_model >= 0 && y < H; y++)
+        if (role(x, y) == DT_R_FLUX) flux_below++;
+    }
+    int model_ref = 0;
+    for (int y = 0; y < H; y++)
+      for (int x = 0; x < W; x++) model_ref += dt_grid_at(&mg, x, y)->fg == DT_R_MODEL;
+    CHECK(model_cells == model_ref, "the model keeps every one of its cells over the data (%d of %d)", model_cells,
+          model_ref);
+    CHECK(wing_model > 0, "in the wings, where data and model coincide, the model shows (%d cells)", wing_model);
+    CHECK(model_alone == model_cells, "a shared cell shows the model's dots alone (%d of %d)", model_alone, model_cells);
+    CHECK(flux_below >= 2, "in the trough the data below the model keep their own cells (%d)", flux_below);
+    /* ASCII: the model's glyph wins its cells too */
+    dt_grid_reset(&g, W, H);
+    dt_plot_begin(&p, DT_PLOT_ASCII, W, H, -100, 100, -0.1, 1.2);
+    dt_plot_line(&p, xs, ym, NULL, N, DT_R_MODEL, DT_PLOT_ON_TOP);
+    dt_plot_line(&p, xs, yd, NULL, N, DT_R_FLUX, 0);
+    dt_plot_render(&p, &g, 0, 0);
+    int hash = 0, star = 0;
+    for (int y = 0; y < H; y++)
+      for (int x = 0; x < W; x++) {
+        hash += !strcmp(cell(x, y), "#");
+        star += !strcmp(cell(x, y), "*");
+      }
+    CHECK(hash > 0 && star > 0, "ASCII: model '#' and data '*' both drawn (%d, %d)", hash, star);
+    dt_plot_free(&mp);
+    dt_grid_free(&mg);
+  }
+
   dt_plot_free(&p);
   dt_grid_free(&g);
   /* a colour drawn on the continuum-window shade stays visible: the blue
