@@ -6,6 +6,7 @@
  * the left column, 4-6 down the right, 7 and 8 are the bottom-left and
  * bottom-right dots.  Half blocks: U+2580 UPPER HALF BLOCK, U+2584 LOWER
  * HALF BLOCK, U+2588 FULL BLOCK (Unicode Block Elements chart). */
+#include <locale.h>
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -289,5 +290,17 @@ int main(void) {
   CHECK(dt_term_window_fg(4, 4) != 4, "blue on the blue shade changes colour");
   CHECK(dt_term_window_fg(6, 4) == 6, "cyan on the blue shade stays cyan");
   CHECK(dt_term_window_fg(4, 236) == 4, "blue on a grey shade stays blue");
+  /* what the terminal gets for a cell: one column each, in a UTF-8 locale */
+  if (setlocale(LC_CTYPE, "C.UTF-8") || setlocale(LC_CTYPE, "en_US.UTF-8")) {
+    CHECK(!strcmp(dt_term_one_column("\xcf\x83"), "\xcf\x83") && !strcmp(dt_term_one_column("\xe2\xa3\xbf"), "\xe2\xa3\xbf"),
+          "U+03C3 and a braille pattern U+28FF go out as they are");
+    CHECK(!strcmp(dt_term_one_column("\xe6\x98\x9f"), "?") && !strcmp(dt_term_one_column("\xf0\x9f\x98\x80"), "?"),
+          "wide U+661F and U+1F600 go out as '?' (they would take two columns)");
+    CHECK(!strcmp(dt_term_one_column("\xcc\x81"), "?"), "a combining mark U+0301 goes out as '?' (no column)");
+    CHECK(!strcmp(dt_term_one_column("x"), "x") && !strcmp(dt_term_one_column("\xe2\x82"), "?"), "ASCII kept, a broken cell is '?'");
+    setlocale(LC_CTYPE, "C");
+  } else {
+    printf("SKIPPED - no UTF-8 locale for the terminal's column checks\n");
+  }
   return dt_test_done();
 }
