@@ -60,6 +60,18 @@ static void comp_text(char *buf, size_t n, const dt_component *c, const dt_compo
 }
 
 /* What the action did, in words and numbers. */
+/* Controls (C0, DEL, C1) and bytes that are not UTF-8 become '?', one per
+ * byte, in place. */
+static void printable(char *s) {
+  size_t len = strlen(s);
+  for (size_t p = 0; p < len;) {
+    uint32_t cp;
+    size_t u = dt_utf8_decode(s + p, len - p, &cp);
+    if (dt_utf8_is_control(cp)) memset(s + p, '?', u);
+    p += u;
+  }
+}
+
 static void describe(const dt_journal_record *r, char *buf, size_t n) {
   const dt_action *a = &r->action;
   char fz[4], c[160];
@@ -365,10 +377,8 @@ int cmd_log(int argc, char **argv) {
     if (pattern && !target_matches(pattern, rec->target.path)) continue;
     if (user && strcmp(user, rec->user) != 0) continue;
     if (actions && !(actset & (1L << rec->action.kind))) continue;
-    for (char *p = rec->user; *p; p++)
-      if ((unsigned char)*p < 0x20 || *p == 0x7f) *p = '?'; /* one line per record */
-    for (char *p = (char *)rec->target.path; *p; p++)
-      if ((unsigned char)*p < 0x20 || *p == 0x7f) *p = '?';
+    printable(rec->user); /* one line per record, nothing the terminal obeys */
+    printable((char *)rec->target.path);
     describe(rec, what, sizeof what);
     result(rec, res, sizeof res);
     printf("%s  %s  %s  %s  %s  => %s\n", su_when(rec->time, when, sizeof when), rec->user,

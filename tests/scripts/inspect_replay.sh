@@ -288,4 +288,14 @@ check "too few pixels in the window: the flux is drawn in both panels" \
   test "$(panel_rows 1 '*')" -ge 1 -a "$(panel_rows 2 '*')" -ge 1
 check "... with the reason on the status line" grep -q "fewer than 2 pixels" "$TMP/screen"
 
+# a file name holding a C1 control (U+009B, a terminal's CSI) and a bare
+# continuation byte: log prints '?' for each byte, never the bytes themselves
+cp "$D/vpq04.txt" "$TMP/c1$(printf '\302\233')x$(printf '\200')y.txt"
+printf 'c1%sx%sy.txt vsys=512 R=2640 name=ODD\n' "$(printf '\302\233')" "$(printf '\200')" >"$TMP/q.list"
+printf 'verdict-unsure\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/c1.session" --replay-keys "$TMP/keys" >/dev/null 2>&1
+"$DT" log "$TMP/c1.session" >"$TMP/log.out" 2>&1
+check "log: the odd file name is shown with '?' for each bad byte" grep -q 'c1??x?y\.txt' "$TMP/log.out"
+check "log: no C1 control or stray byte reaches the output" sh -c "! LC_ALL=C grep -q '$(printf '\302\233')\|$(printf '\200')' '$TMP/log.out'"
+
 finish
