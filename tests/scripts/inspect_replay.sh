@@ -253,6 +253,9 @@ check "log shows the UTF-8 note unescaped" grep -q "\"N$(printf '\342\202\254')a
 printf 'edit-note\ntype a\300\257b\nEnter\n' >"$TMP/keys"
 expect_fail "a key file typing bytes that are not UTF-8 is refused" "line 2: the text to type is not UTF-8" \
   "$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys"
+printf 'edit-note\ntype a\302\233b\nEnter\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys" >/dev/null 2>&1
+check "the note editor does not take a C1 control (U+009B)" sh -c "tail -n 1 '$TMP/u.session' | grep -q 'act=note	note=[^	]* xab	'"
 
 # ---- the data are drawn when the analysis of the state fails: a spectrum
 # ending inside NaI 5897's fit window (not covered), and one sampled so
