@@ -29,6 +29,7 @@
 #include "doubletty/digest.h"
 #include "doubletty/journal.h"
 #include "doubletty/spectrum.h"
+#include "doubletty/utf8.h"
 #include "session_util.h"
 
 static void usage(FILE *f) {
@@ -60,6 +61,18 @@ static void comp_text(char *buf, size_t n, const dt_component *c, const dt_compo
 }
 
 /* What the action did, in words and numbers. */
+/* Controls (C0, DEL, C1) and bytes that are not UTF-8 become '?', one per
+ * byte, in place. */
+static void printable(char *s) {
+  size_t len = strlen(s);
+  for (size_t p = 0; p < len;) {
+    uint32_t cp;
+    size_t u = dt_utf8_decode(s + p, len - p, &cp);
+    if (dt_utf8_is_control(cp)) memset(s + p, '?', u);
+    p += u;
+  }
+}
+
 static void describe(const dt_journal_record *r, char *buf, size_t n) {
   const dt_action *a = &r->action;
   char fz[4], c[160];
@@ -106,17 +119,30 @@ static void describe(const dt_journal_record *r, char *buf, size_t n) {
   }
   case DT_ACT_VERDICT: snprintf(buf, n, "%s", dt_verdict_name((dt_verdict)a->ival)); break;
   case DT_ACT_NOTE: {
-    /* the note on one line, quoted: \\, \", \t, \n and \xHH escapes */
-    size_t k = 0;
+    /* the note on one line, quoted: \\, \", \t, \n escapes; controls (C0,
+       DEL, C1) and bytes that are not UTF-8 as \xHH, one per byte; a long
+       note is cut between characters */
+    size_t k = 0, len = strlen(a->text);
     if (n < 8) break;
     buf[k++] = '"';
-    for (const unsigned char *p = (const unsigned char *)a->text; *p && k + 6 < n; p++) {
-      if (*p == '\\') k += (size_t)snprintf(buf + k, n - k, "\\\\");
-      else if (*p == '"') k += (size_t)snprintf(buf + k, n - k, "\\\"");
-      else if (*p == '\n') k += (size_t)snprintf(buf + k, n - k, "\\n");
-      else if (*p == '\t') k += (size_t)snprintf(buf + k, n - k, "\\t");
-      else if (*p < 0x20 || *p == 0x7f) k += (size_t)snprintf(buf + k, n - k, "\\x%02X", *p);
-      else buf[k++] = (char)*p;
+    for (size_t p = 0; p < len && k + 6 < n;) {
+      const char *c = a->text + p;
+      uint32_t cp;
+      size_t u = dt_utf8_decode(c, len - p, &cp);
+      if (*c == '\\') k += (size_t)snprintf(buf + k, n - k, "\\\\");
+      else if (*c == '"') k += (size_t)snprintf(buf + k, n - k, "\\\"");
+      else if (*c == '\n') k += (size_t)snprintf(buf + k, n - k, "\\n");
+      else if (*c == '\t') k += (size_t)snprintf(buf + k, n - k, "\\t");
+      else if (dt_utf8_is_control(cp)) {
+        if (k + 4 * u + 2 > n) break;
+        for (size_t i = 0; i < u; i++) k += (size_t)snprintf(buf + k, n - k, "\\x%02X", (unsigned char)c[i]);
+      } else if (k + u + 2 > n) {
+        break;
+      } else {
+        memcpy(buf + k, c, u);
+        k += u;
+      }
+      p += u;
     }
     buf[k++] = '"';
     buf[k] = '\0';
@@ -356,10 +382,8 @@ int cmd_log(int argc, char **argv) {
     if (pattern && !target_matches(pattern, &rec->target)) continue;
     if (user && strcmp(user, rec->user) != 0) continue;
     if (actions && !(actset & (1L << rec->action.kind))) continue;
-    for (char *p = rec->user; *p; p++)
-      if ((unsigned char)*p < 0x20 || *p == 0x7f) *p = '?'; /* one line per record */
-    for (char *p = (char *)rec->target.path; *p; p++)
-      if ((unsigned char)*p < 0x20 || *p == 0x7f) *p = '?';
+    printable(rec->user); /* one line per record, nothing the terminal obeys */
+    printable((char *)rec->target.path);
     describe(rec, what, sizeof what);
     result(rec, res, sizeof res);
     printf("%s  %s  %s  %s  %s  => %s\n", su_when(rec->time, when, sizeof when), rec->user,

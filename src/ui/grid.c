@@ -6,6 +6,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/utf8.h"
+
 static void blank(dt_cell *c) {
   c->ch[0] = ' ';
   c->ch[1] = '\0';
@@ -42,49 +44,27 @@ dt_cell *dt_grid_at(dt_grid *g, int x, int y) {
   return &g->cell[(size_t)y * (size_t)g->w + (size_t)x];
 }
 
-/* Length in bytes of the UTF-8 sequence starting with byte c (1 for
- * anything malformed, so bad bytes cost one cell each). */
-static int seqlen(unsigned char c) {
-  if (c < 0x80) return 1;
-  if ((c & 0xE0) == 0xC0) return 2;
-  if ((c & 0xF0) == 0xE0) return 3;
-  if ((c & 0xF8) == 0xF0) return 4;
-  return 1;
-}
-
-int dt_utf8_len(const char *s) {
-  int n = 0;
-  while (*s) {
-    int k = seqlen((unsigned char)*s);
-    for (int i = 0; i < k && *s; i++) s++;
-    n++;
-  }
-  return n;
-}
-
 int dt_grid_text(dt_grid *g, int x, int y, const char *s, int fg, int attr, int max_cells) {
   int n = 0;
   if (y < 0 || y >= g->h) return 0;
-  while (*s && (max_cells < 0 || n < max_cells)) {
-    int k = seqlen((unsigned char)*s);
-    int ok = 1;
-    for (int i = 1; i < k; i++)
-      if (((unsigned char)s[i] & 0xC0) != 0x80) ok = 0;
-    dt_cell *c = dt_grid_at(g, x + n, y);
+  size_t len = strlen(s);
+  for (size_t pos = 0; pos < len && (max_cells < 0 || n < max_cells);) {
+    uint32_t cp;
+    size_t k = dt_utf8_decode(s + pos, len - pos, &cp);
     if (x + n >= g->w) break;
+    dt_cell *c = dt_grid_at(g, x + n, y);
     if (c) {
-      if (ok && (unsigned char)s[0] >= 0x20 && s[0] != 0x7f) {
-        memcpy(c->ch, s, (size_t)k);
+      if (!dt_utf8_is_control(cp)) {
+        memcpy(c->ch, s + pos, k);
         c->ch[k] = '\0';
       } else {
-        c->ch[0] = '?';  /* control or broken byte: never sent to the terminal */
+        c->ch[0] = '?'; /* control or ill-formed: never sent to the terminal */
         c->ch[1] = '\0';
-        k = 1;
       }
       c->fg = (unsigned char)fg;
       c->attr = (unsigned char)attr;
     }
-    s += k;
+    pos += k;
     n++;
   }
   return n;

@@ -11,7 +11,8 @@
 
 /* What a cell shows; the terminal module maps roles to colours (or, without
  * colour, to bold/dim/reverse so the screen stays readable).  In plots a
- * cell shared by several curves takes the role that comes last here. */
+ * cell shared by several curves takes the role that comes last here, except
+ * that a curve drawn on top (plot.h: the total model) keeps its cells. */
 typedef enum dt_role {
   DT_R_NONE = 0,
   DT_R_TEXT,
@@ -24,7 +25,7 @@ typedef enum dt_role {
   DT_R_COMP,       /* a component's own model */
   DT_R_COMPSEL,    /* the selected component (model and marker) */
   DT_R_MODEL,      /* total model */
-  DT_R_FLUX,       /* data (drawn over everything else it meets) */
+  DT_R_FLUX,       /* data (over everything else it meets but the model) */
   DT_R_OFFPLOT,    /* values beyond the plotted range */
   DT_R_WINDOW,     /* background: continuum window / fit range */
   DT_R_CURSOR,     /* background: cursor column */
@@ -58,7 +59,9 @@ void dt_grid_free(dt_grid *g);
 /* The cell at (x, y), or NULL outside the grid. */
 dt_cell *dt_grid_at(dt_grid *g, int x, int y);
 /* Write UTF-8 text from (x, y), one cell per character, clipped at the
- * right edge and at max_cells (< 0: no limit).  Returns cells written. */
+ * right edge and at max_cells (< 0: no limit).  Controls (C0, DEL, C1) and
+ * ill-formed pieces (utf8.h: one per maximal subpart) become one '?' each.
+ * Returns cells written. */
 int dt_grid_text(dt_grid *g, int x, int y, const char *s, int fg, int attr, int max_cells);
 /* printf into the grid (clipped like dt_grid_text). */
 int dt_grid_printf(dt_grid *g, int x, int y, int fg, int attr, int max_cells, const char *fmt, ...)
@@ -70,8 +73,6 @@ int dt_grid_printf(dt_grid *g, int x, int y, int fg, int attr, int max_cells, co
 void dt_grid_fill(dt_grid *g, int x, int y, int w, int h, const char *ch, int fg, int bg, int attr);
 /* Set the background role / attributes of a rectangle (characters kept). */
 void dt_grid_shade(dt_grid *g, int x, int y, int w, int h, int bg, int attr_or);
-/* Number of characters (code points) of a UTF-8 string. */
-int dt_utf8_len(const char *s);
 /* A row as plain text (for tests): UTF-8, NUL-terminated, into buf. */
 const char *dt_grid_row(const dt_grid *g, int y, char *buf, size_t size);
 

@@ -14,6 +14,7 @@
 
 #include "doubletty/model.h"
 #include "doubletty/num.h"
+#include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
 #include "term.h"
@@ -249,28 +250,6 @@ static void edit_commit(dt_insp *s) {
   else if (m == DT_EDIT_VELOCITY) velocity_commit(s, s->edit);
 }
 
-static void utf8_encode(unsigned cp, char *out, size_t *k) {
-  if (cp < 0x80) {
-    out[0] = (char)cp;
-    *k = 1;
-  } else if (cp < 0x800) {
-    out[0] = (char)(0xC0 | (cp >> 6));
-    out[1] = (char)(0x80 | (cp & 0x3F));
-    *k = 2;
-  } else if (cp < 0x10000) {
-    out[0] = (char)(0xE0 | (cp >> 12));
-    out[1] = (char)(0x80 | ((cp >> 6) & 0x3F));
-    out[2] = (char)(0x80 | (cp & 0x3F));
-    *k = 3;
-  } else {
-    out[0] = (char)(0xF0 | (cp >> 18));
-    out[1] = (char)(0x80 | ((cp >> 12) & 0x3F));
-    out[2] = (char)(0x80 | ((cp >> 6) & 0x3F));
-    out[3] = (char)(0x80 | (cp & 0x3F));
-    *k = 4;
-  }
-}
-
 /* The small line editor of the note and the prompts. */
 static int edit_key(dt_insp *s, int key) {
   if (key == DT_KEY_ENTER) {
@@ -280,29 +259,21 @@ static int edit_key(dt_insp *s, int key) {
     dt_insp_say(s, DT_TONE_TEXT, "nothing changed");
   } else if (key == DT_KEY_BACKSPACE) {
     if (s->edit_pos > 0) {
-      size_t p = s->edit_pos - 1;
-      while (p > 0 && ((unsigned char)s->edit[p] & 0xC0) == 0x80) p--;
+      size_t p = dt_utf8_prev(s->edit, s->edit_len, s->edit_pos);
       memmove(s->edit + p, s->edit + s->edit_pos, s->edit_len - s->edit_pos);
       s->edit_len -= s->edit_pos - p;
       s->edit_pos = p;
     }
   } else if (key == DT_KEY_DELETE) {
     if (s->edit_pos < s->edit_len) {
-      size_t p = s->edit_pos + 1;
-      while (p < s->edit_len && ((unsigned char)s->edit[p] & 0xC0) == 0x80) p++;
+      size_t p = dt_utf8_next(s->edit, s->edit_len, s->edit_pos);
       memmove(s->edit + s->edit_pos, s->edit + p, s->edit_len - p);
       s->edit_len -= p - s->edit_pos;
     }
   } else if (key == DT_KEY_LEFT) {
-    while (s->edit_pos > 0) {
-      s->edit_pos--;
-      if (((unsigned char)s->edit[s->edit_pos] & 0xC0) != 0x80) break;
-    }
+    s->edit_pos = dt_utf8_prev(s->edit, s->edit_len, s->edit_pos);
   } else if (key == DT_KEY_RIGHT) {
-    while (s->edit_pos < s->edit_len) {
-      s->edit_pos++;
-      if (s->edit_pos == s->edit_len || ((unsigned char)s->edit[s->edit_pos] & 0xC0) != 0x80) break;
-    }
+    s->edit_pos = dt_utf8_next(s->edit, s->edit_len, s->edit_pos);
   } else if (key == DT_KEY_HOME || key == 1) {
     s->edit_pos = 0;
   } else if (key == DT_KEY_END || key == 5) {
@@ -310,10 +281,10 @@ static int edit_key(dt_insp *s, int key) {
   } else if (key == 21) { /* ^U: clear */
     s->edit_len = s->edit_pos = 0;
   } else if (key == DT_KEY_TAB || (key >= 0x20 && key < 0x110000 && key != 0x7f)) {
-    char u[4];
-    size_t k;
-    utf8_encode(key == DT_KEY_TAB ? ' ' : (unsigned)key, u, &k);
-    if (s->edit_len + k < sizeof s->edit - 1) {
+    uint32_t cp = key == DT_KEY_TAB ? ' ' : (uint32_t)key;
+    char u[DT_UTF8_MAX];
+    size_t k = dt_utf8_is_control(cp) ? 0 : dt_utf8_encode(cp, u); /* 0: C1 control or surrogate, not typed */
+    if (k && s->edit_len + k < sizeof s->edit - 1) {
       memmove(s->edit + s->edit_pos + k, s->edit + s->edit_pos, s->edit_len - s->edit_pos);
       memcpy(s->edit + s->edit_pos, u, k);
       s->edit_len += k;

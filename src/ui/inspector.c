@@ -16,6 +16,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
 #include "term.h"
@@ -154,7 +155,7 @@ int dt_insp_verdict_of(dt_insp *s, size_t i) {
 typedef struct replay {
   FILE *f;
   long line;
-  char pending[1024]; /* characters still to type */
+  char pending[1100]; /* characters still to type (a whole line fits) */
   size_t pos;
 } replay;
 
@@ -164,11 +165,9 @@ typedef struct replay {
 static int replay_next(replay *r, char *msg, size_t size) {
   for (;;) {
     if (r->pending[r->pos]) {
-      unsigned char c = (unsigned char)r->pending[r->pos];
-      int k = c < 0x80 ? 1 : (c & 0xE0) == 0xC0 ? 2 : (c & 0xF0) == 0xE0 ? 3 : 4;
-      unsigned cp = k == 1 ? c : c & (0xFF >> (k + 1));
-      for (int i = 1; i < k && r->pending[r->pos + i]; i++) cp = (cp << 6) | ((unsigned char)r->pending[r->pos + i] & 0x3F);
-      r->pos += k;
+      uint32_t cp;
+      r->pos += dt_utf8_decode(r->pending + r->pos, strlen(r->pending + r->pos), &cp);
+      if (cp == DT_UTF8_BAD) continue; /* cannot happen: checked when the line was read */
       return (int)cp;
     }
     char line[1100];
@@ -179,6 +178,10 @@ static int replay_next(replay *r, char *msg, size_t size) {
     size_t n = strlen(p);
     while (n && (p[n - 1] == '\n' || p[n - 1] == '\r')) p[--n] = '\0';
     if (!strncmp(p, "type ", 5)) {
+      if (!dt_utf8_valid(p + 5, strlen(p + 5))) {
+        snprintf(msg, size, "line %ld: the text to type is not UTF-8", r->line);
+        return -2;
+      }
       snprintf(r->pending, sizeof r->pending, "%s", p + 5);
       r->pos = 0;
       continue;

@@ -10,6 +10,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/utf8.h"
+
 int dt_plot_begin(dt_plot *p, dt_plot_mode mode, int w, int h, double xmin, double xmax,
                   double ymin, double ymax) {
   p->w = p->h = p->dw = p->dh = 0;
@@ -24,6 +26,9 @@ int dt_plot_begin(dt_plot *p, dt_plot_mode mode, int w, int h, double xmin, doub
     unsigned char *d = realloc(p->dot, nd);
     if (!d) return -1;
     p->dot = d;
+    unsigned char *t = realloc(p->top, nd);
+    if (!t) return -1;
+    p->top = t;
     p->cap_dot = nd;
   }
   if (nc > p->cap_cell) {
@@ -36,6 +41,7 @@ int dt_plot_begin(dt_plot *p, dt_plot_mode mode, int w, int h, double xmin, doub
     p->cap_cell = nc;
   }
   memset(p->dot, 0, nd);
+  memset(p->top, 0, nd);
   memset(p->over, 0, nc * sizeof *p->over);
   memset(p->bg, 0, nc);
   p->mode = mode;
@@ -54,6 +60,7 @@ int dt_plot_begin(dt_plot *p, dt_plot_mode mode, int w, int h, double xmin, doub
 
 void dt_plot_free(dt_plot *p) {
   free(p->dot);
+  free(p->top);
   free(p->over);
   free(p->bg);
   memset(p, 0, sizeof *p);
@@ -65,9 +72,10 @@ static double fy(const dt_plot *p, double y) { return (p->ymax - y) / (p->ymax -
 
 static int clampi(int v, int lo, int hi) { return v < lo ? lo : v > hi ? hi : v; }
 
-static void setdot(dt_plot *p, int c, int r, int role) {
+/* Set a dot of the layer a series' flags name. */
+static void setdot(dt_plot *p, int c, int r, int role, int flags) {
   if (c < 0 || r < 0 || c >= p->dw || r >= p->dh) return;
-  unsigned char *d = &p->dot[(size_t)r * p->dw + c];
+  unsigned char *d = &(flags & DT_PLOT_ON_TOP ? p->top : p->dot)[(size_t)r * p->dw + c];
   if (role > *d) *d = (unsigned char)role;
 }
 
@@ -79,7 +87,7 @@ static int idx(double v, int n) {
   return (int)v;
 }
 
-static void segment(dt_plot *p, double x0, double y0, double x1, double y1, int role) {
+static void segment(dt_plot *p, double x0, double y0, double x1, double y1, int role, int flags) {
   /* Liang-Barsky clip to [0, dw] x [0, dh] */
   double t0 = 0, t1 = 1, dx = x1 - x0, dy = y1 - y0;
   double pp[4] = {-dx, dx, -dy, dy};
@@ -105,7 +113,7 @@ static void segment(dt_plot *p, double x0, double y0, double x1, double y1, int 
   int stx = c0 < c1 ? 1 : -1, sty = r0 < r1 ? 1 : -1;
   int err = sdx + sdy;
   for (;;) {
-    setdot(p, c0, r0, role);
+    setdot(p, c0, r0, role, flags);
     if (c0 == c1 && r0 == r1) break;
     int e2 = 2 * err;
     if (e2 >= sdy) { err += sdy; c0 += stx; }
@@ -153,8 +161,8 @@ void dt_plot_line(dt_plot *p, const double *x, const double *y, const unsigned c
     }
     double cx = fx(p, x[i]), cy = fy(p, y[i]);
     if ((flags & DT_PLOT_MARK_OFF) && (y[i] > p->ymax || y[i] < p->ymin)) mark_off(p, x[i], y[i]);
-    if (have_prev) segment(p, px, py, cx, cy, role);
-    else segment(p, cx, cy, cx, cy, role);
+    if (have_prev) segment(p, px, py, cx, cy, role, flags);
+    else segment(p, cx, cy, cx, cy, role, flags);
     px = cx;
     py = cy;
     have_prev = 1;
@@ -172,14 +180,14 @@ void dt_plot_points(dt_plot *p, const double *x, const double *y, const unsigned
     }
     double cx = fx(p, x[i]);
     if (cx < 0 || cx > p->dw) continue;
-    setdot(p, idx(cx, p->dw), idx(fy(p, y[i]), p->dh), role);
+    setdot(p, idx(cx, p->dw), idx(fy(p, y[i]), p->dh), role, flags);
   }
 }
 
 void dt_plot_hline(dt_plot *p, double y, int role) {
   if (p->w <= 0 || !isfinite(y) || y < p->ymin || y > p->ymax) return;
   int r = idx(fy(p, y), p->dh);
-  for (int c = 0; c < p->dw; c += 2) setdot(p, c, r, role);
+  for (int c = 0; c < p->dw; c += 2) setdot(p, c, r, role, 0);
 }
 
 void dt_plot_vspan(dt_plot *p, double xlo, double xhi, int bg) {
@@ -226,20 +234,22 @@ char dt_plot_ascii_glyph(int role) {
 /* Braille dot bits (Unicode 2800 block): left column rows 0-3, right column. */
 static const unsigned char braille_bit[2][4] = {{0x01, 0x02, 0x04, 0x40}, {0x08, 0x10, 0x20, 0x80}};
 
-static void utf8_put(char *out, unsigned cp) {
-  if (cp < 0x80) {
-    out[0] = (char)cp;
-    out[1] = '\0';
-  } else if (cp < 0x800) {
-    out[0] = (char)(0xC0 | (cp >> 6));
-    out[1] = (char)(0x80 | (cp & 0x3F));
-    out[2] = '\0';
-  } else {
-    out[0] = (char)(0xE0 | (cp >> 12));
-    out[1] = (char)(0x80 | ((cp >> 6) & 0x3F));
-    out[2] = (char)(0x80 | (cp & 0x3F));
-    out[3] = '\0';
-  }
+static void utf8_put(char *out, unsigned cp) { out[dt_utf8_encode(cp, out)] = '\0'; }
+
+/* The dots of cell (c, r) in a layer: braille bits (or block rows), and in
+ * *top the most important role among them (0: none). */
+static unsigned cell_dots(const dt_plot *p, const unsigned char *layer, int c, int r, int *top) {
+  unsigned bits = 0;
+  *top = 0;
+  for (int j = 0; j < p->sy; j++)
+    for (int i = 0; i < p->sx; i++) {
+      int role = layer[(size_t)(r * p->sy + j) * p->dw + c * p->sx + i];
+      if (!role) continue;
+      if (role > *top) *top = role;
+      if (p->mode == DT_PLOT_BRAILLE) bits |= braille_bit[i][j];
+      else bits |= 1u << j;
+    }
+  return bits;
 }
 
 void dt_plot_render(const dt_plot *p, dt_grid *g, int gx, int gy) {
@@ -256,16 +266,9 @@ void dt_plot_render(const dt_plot *p, dt_grid *g, int gx, int gy) {
         cell->attr = o->attr;
         continue;
       }
-      unsigned bits = 0;
       int top = 0;
-      for (int j = 0; j < p->sy; j++)
-        for (int i = 0; i < p->sx; i++) {
-          int role = p->dot[(size_t)(r * p->sy + j) * p->dw + c * p->sx + i];
-          if (!role) continue;
-          if (role > top) top = role;
-          if (p->mode == DT_PLOT_BRAILLE) bits |= braille_bit[i][j];
-          else bits |= 1u << j;
-        }
+      unsigned bits = cell_dots(p, p->top, c, r, &top); /* the top layer takes the cell ... */
+      if (!top) bits = cell_dots(p, p->dot, c, r, &top); /* ... else the ordinary one */
       if (!top) continue;
       cell->fg = (unsigned char)top;
       cell->attr = 0;

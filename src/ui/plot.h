@@ -8,6 +8,13 @@
  * ASCII the glyph of its most important role.  Markers and background
  * shading are kept per cell and laid over the dots.
  *
+ * A series drawn with DT_PLOT_ON_TOP goes into a second layer of dots: a
+ * cell it passes through shows that layer's dots alone, in its role, and
+ * every other cell shows the ordinary layer.  So a thin curve (the total
+ * model) stays whole and distinct where it crosses the data, and the data
+ * keep their own cells -- in a trough whose data lie below the model, both
+ * are readable instead of one colour swallowing the other.
+ *
  * Nothing here knows about terminals; a unit test can render a plot into a
  * dt_grid and read it back.  Buffers grow on demand and are reused, so
  * drawing a frame does not allocate once the sizes settle. */
@@ -24,8 +31,9 @@ typedef enum dt_plot_mode {
 
 /* Series flags */
 enum {
-  DT_PLOT_MARK_OFF = 1  /* mark values above/below the range with arrows in
+  DT_PLOT_MARK_OFF = 1, /* mark values above/below the range with arrows in
                            the top/bottom row */
+  DT_PLOT_ON_TOP = 2     /* draw into the top layer (see above) */
 };
 
 typedef struct dt_plot {
@@ -35,6 +43,7 @@ typedef struct dt_plot {
   int dw, dh;                /* dots */
   double xmin, xmax, ymin, ymax;
   unsigned char *dot;        /* dw * dh roles (0: empty) */
+  unsigned char *top;        /* dw * dh roles of the top layer */
   dt_cell *over;             /* w * h overlay cells (ch[0] == 0: none) */
   unsigned char *bg;         /* w * h background roles */
   size_t cap_dot, cap_cell;

@@ -30,6 +30,9 @@
 #include <string.h>
 #include <termios.h>
 #include <unistd.h>
+#include <wchar.h>
+
+#include "doubletty/utf8.h"
 
 #include "keymap.h"
 
@@ -287,6 +290,18 @@ void dt_term_invalidate(void) {
   if (g_open) clearok(curscr, TRUE);
 }
 
+/* A grid cell holds one code point and the layout counts one column for
+ * it; a character the terminal would draw two columns wide (CJK, most
+ * emoji) or none (combining marks) would shift the rest of its row, so it
+ * goes out as '?' (wcwidth: the screen is the one place the locale rules). */
+const char *dt_term_one_column(const char *ch) {
+  uint32_t cp;
+  size_t len = strlen(ch);
+  if (len <= 1) return ch;
+  if (dt_utf8_decode(ch, len, &cp) != len || cp == DT_UTF8_BAD) return "?";
+  return wcwidth((wchar_t)cp) == 1 ? ch : "?";
+}
+
 void dt_term_draw(const dt_grid *g) {
   if (!g_open) return;
   char run[4096];
@@ -300,9 +315,10 @@ void dt_term_draw(const dt_grid *g) {
       while (x < g->w && x < COLS) {
         const dt_cell *c = &g->cell[(size_t)y * g->w + x];
         if (c->fg != c0->fg || c->bg != c0->bg || c->attr != c0->attr) break;
-        size_t k = strlen(c->ch);
+        const char *ch = dt_term_one_column(c->ch);
+        size_t k = strlen(ch);
         if (n + k + 1 > sizeof run) break;
-        memcpy(run + n, c->ch, k);
+        memcpy(run + n, ch, k);
         n += k;
         x++;
       }

@@ -41,6 +41,10 @@ int dt_term_getkey(int timeout_ms);
 int dt_term_signal(void);
 /* Copy the grid to the screen (only changed cells are sent). */
 void dt_term_draw(const dt_grid *g);
+/* The cell's character as the terminal gets it: itself when it takes one
+ * column in the current locale, else "?" (wide and zero-width characters
+ * would shift the row). */
+const char *dt_term_one_column(const char *ch);
 /* Force a full repaint at the next draw. */
 void dt_term_invalidate(void);
 

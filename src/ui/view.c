@@ -23,6 +23,7 @@
 #include <string.h>
 
 #include "doubletty/model.h"
+#include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
 
@@ -40,12 +41,9 @@ typedef struct layout {
 
 #define FOOTER_MIN 16 /* " ? help  q quit " */
 
-/* Cells of UTF-8 text (one per code point; the screen has no wide glyphs). */
-static int cells(const char *t) {
-  int n = 0;
-  for (; *t; t++) n += ((unsigned char)*t & 0xC0) != 0x80;
-  return n;
-}
+/* Cells of UTF-8 text (one per code point, as dt_grid_text draws it; the
+ * screen has no wide glyphs). */
+static int cells(const char *t) { return (int)dt_utf8_count(t); }
 
 /* Symbols with ASCII stand-ins. */
 typedef struct syms {
@@ -73,11 +71,26 @@ static const char *keyname_of_cmd(dt_cmd c, char *buf, size_t n) {
   return b ? dt_keymap_keyname(b->key, buf, n) : "?";
 }
 
+/* The status line's message: the session's last one, and while the
+ * analysis of the current state fails, why -- so the reason stays in view
+ * whatever was said since.  *tone: the tone to draw it in. */
+static const char *status_text(const dt_insp *s, char *buf, size_t size, dt_session_tone *tone) {
+  const dt_session *ss = s->ss;
+  *tone = ss->tone;
+  if (!ss->loaded || ss->an_ok || !ss->an_msg[0] || strstr(ss->msg, ss->an_msg)) return ss->msg;
+  if (ss->msg[0]) snprintf(buf, size, "%s - %s", ss->msg, ss->an_msg);
+  else snprintf(buf, size, "%s", ss->an_msg);
+  if (*tone != DT_TONE_BAD) *tone = DT_TONE_WARN;
+  return buf;
+}
+
 static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   memset(L, 0, sizeof *L);
   L->w = w;
   L->h = h;
-  L->status_h = !s->editing && cells(s->ss->msg) > w - FOOTER_MIN - 1 ? 2 : 1;
+  char sb[1000];
+  dt_session_tone tone;
+  L->status_h = !s->editing && cells(status_text(s, sb, sizeof sb, &tone)) > w - FOOTER_MIN - 1 ? 2 : 1;
   L->status_y = h - L->status_h;
   L->gutter = 7;
   int side = w >= 150;
@@ -187,14 +200,13 @@ static void draw_title(dt_insp *s, const layout *L) {
   snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
   snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s ", s->ss->j.doublet, s->ss->j.vsys, res);
   snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
-  int fixed = dt_utf8_len(head) + dt_utf8_len(tail) + flen;
+  int fixed = cells(head) + cells(tail) + flen;
   int mroom = L->w - fixed;
-  if (dt_utf8_len(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
+  if (cells(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
   if (mroom < 4) mroom = 4;
-  while (dt_utf8_len(mid) > mroom) {
-    size_t n = strlen(mid);
-    memmove(mid, mid + 1, n); /* drop from the left: the end of a name tells most */
-    while (((unsigned char)mid[0] & 0xC0) == 0x80) memmove(mid, mid + 1, strlen(mid));
+  while (cells(mid) > mroom) {
+    size_t n = strlen(mid), k = dt_utf8_next(mid, n, 0);
+    memmove(mid, mid + k, n - k + 1); /* drop from the left: the end of a name tells most */
   }
   char buf[800];
   snprintf(buf, sizeof buf, "%s%s%s", head, mid, tail);
@@ -277,6 +289,118 @@ static void draw_residuals(dt_insp *s, const layout *L, const dt_plot *p, int gy
   }
 }
 
+/* What a line panel draws: the analysis' arrays, or -- when the analysis
+ * of the current state failed -- the spectrum's own pixels in the view
+ * (no continuum, no model), so the data are never hidden by a failure. */
+typedef struct panel_data {
+  size_t n;
+  const double *vel, *flux, *sig;
+  const double *cont, *model;       /* NULL: not known */
+  const unsigned char *mask;
+  int from_analysis;
+} panel_data;
+
+static int panel_data_get(dt_insp *s, const dt_doublet *d, int l, panel_data *pd) {
+  memset(pd, 0, sizeof *pd);
+  if (!s->ss->loaded) return -1;
+  if (s->ss->an_ok) {
+    pd->n = s->ss->out.n;
+    pd->vel = dt_analysis_velocity(s->ss->an, l);
+    pd->flux = dt_analysis_flux(s->ss->an);
+    pd->sig = dt_analysis_sigma(s->ss->an);
+    pd->cont = dt_analysis_continuum(s->ss->an);
+    pd->model = dt_analysis_model(s->ss->an);
+    pd->mask = dt_analysis_mask(s->ss->an);
+    pd->from_analysis = 1;
+    return pd->vel && pd->flux && pd->sig && pd->cont && pd->mask ? 0 : -1;
+  }
+  if (!d || !(s->view_hi > s->view_lo)) return -1;
+  /* the pixels of the view, one beyond each end so lines reach the edges */
+  const dt_spectrum *sp = s->ss->spec;
+  double lo = dt_wavelength(s->view_lo, d->line[l].lambda0, s->ss->j.vsys);
+  double hi = dt_wavelength(s->view_hi, d->line[l].lambda0, s->ss->j.vsys);
+  size_t i0 = dt_spectrum_index(sp, lo), i1 = dt_spectrum_index(sp, hi);
+  if (i0 > 0) i0--;
+  if (i1 < sp->n) i1++;
+  if (i1 <= i0) return -1;
+  pd->n = i1 - i0;
+  double *vel = scratch(s, pd->n, 5);
+  if (!vel) return -1;
+  for (size_t i = 0; i < pd->n; i++) vel[i] = dt_velocity(sp->wave[i0 + i], d->line[l].lambda0, s->ss->j.vsys);
+  pd->vel = vel;
+  pd->flux = sp->flux + i0;
+  pd->sig = sp->sigma + i0;
+  pd->mask = sp->mask + i0;
+  return 0;
+}
+
+static int cmp_double(const void *a, const void *b) {
+  double x = *(const double *)a, y = *(const double *)b;
+  return (x > y) - (x < y);
+}
+
+/* The flux level a panel is scaled to: the continuum's highest value in the
+ * view, or without a continuum the 90th percentile of the unmasked flux
+ * there (tmp: n doubles of scratch). */
+static double panel_level(const dt_insp *s, const panel_data *pd, double *tmp) {
+  double c = 0;
+  if (pd->cont) {
+    for (size_t i = 0; i < pd->n; i++)
+      if (pd->vel[i] >= s->view_lo && pd->vel[i] <= s->view_hi && pd->cont[i] > c) c = pd->cont[i];
+  } else {
+    size_t m = 0;
+    for (size_t i = 0; i < pd->n; i++)
+      if (!pd->mask[i] && isfinite(pd->flux[i]) && pd->vel[i] >= s->view_lo && pd->vel[i] <= s->view_hi)
+        tmp[m++] = pd->flux[i];
+    if (m) {
+      qsort(tmp, m, sizeof *tmp, cmp_double);
+      c = tmp[(size_t)(0.9 * (double)(m - 1))];
+    }
+  }
+  return c > 0 && isfinite(c) ? c : 1;
+}
+
+/* The curves of a panel, scaled (by the continuum when normalised):
+ * flux yf, error ys, continuum yc, and the model ym where it departs from
+ * the continuum (and one pixel beyond), so the continuum stays visible. */
+static void panel_curves(const panel_data *pd, int norm, double *yf, double *ys, double *yc, double *ym) {
+  size_t n = pd->n;
+  const double *cont = pd->cont, *model = pd->model;
+  for (size_t i = 0; i < n; i++) {
+    double c = norm && cont ? cont[i] : 1.0;
+    yf[i] = pd->flux[i] / c;
+    ys[i] = pd->sig[i] / c;
+    yc[i] = cont ? cont[i] / c : NAN;
+    ym[i] = model && cont && fabs(model[i] / cont[i] - 1) > DEPARTS ? model[i] / c : NAN;
+  }
+  for (size_t i = 0; model && cont && i < n; i++)
+    if (!isnan(ym[i]) && ((i > 0 && isnan(ym[i - 1])) || (i + 1 < n && isnan(ym[i + 1])))) {
+      if (i > 0 && isnan(ym[i - 1])) ym[i - 1] = model[i - 1] / (norm ? cont[i - 1] : 1.0);
+      if (i + 1 < n && isnan(ym[i + 1])) {
+        ym[i + 1] = model[i + 1] / (norm ? cont[i + 1] : 1.0);
+        i++;
+      }
+    }
+}
+
+/* The velocity axis under the lower panel, the cursor's position at its
+ * right end. */
+static void draw_vaxis(dt_insp *s, const layout *L, const dt_plot *p, const dt_doublet *d) {
+  dt_grid *g = &s->g;
+  dt_grid_printf(g, 0, L->vaxis_y, DT_R_AXIS, 0, L->gutter - 1, "km/s");
+  char cur[80];
+  syms ys = symbols(s);
+  /* a narrow plot keeps its tick labels: the wavelength gives way */
+  if (p->w >= 90)
+    snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
+             d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->ss->j.vsys) : NAN, ys.ang);
+  else
+    snprintf(cur, sizeof cur, " cursor %+.1f km/s", s->cursor_v);
+  int len = cells(cur);
+  axis_row(g, p, L->plot_x, L->vaxis_y, 0, p->w - len - 1);
+  dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
+}
+
 static void draw_panel(dt_insp *s, const layout *L, int l) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
@@ -290,54 +414,24 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     dt_grid_text(g, 1, gy, lab, DT_R_LABEL, DT_A_BOLD, 5);
   }
   for (int r = 0; r < L->pan_h; r++) dt_grid_text(g, L->gutter - 1, gy + r, y.vbar, DT_R_AXIS, 0, 1);
-  if (!s->ss->loaded || !s->ss->an_ok) {
+  panel_data pd;
+  if (panel_data_get(s, d, l, &pd)) {
     if (l == 0)
       dt_grid_printf(g, L->plot_x + 1, gy + L->pan_h / 2, DT_R_BAD, 0, L->plot_w - 2, "%s",
                      !s->ss->loaded ? "no data" : s->ss->an_msg[0] ? s->ss->an_msg : "no analysis");
     return;
   }
-  size_t n = s->ss->out.n;
-  const double *vel = dt_analysis_velocity(s->ss->an, l), *flux = dt_analysis_flux(s->ss->an),
-               *sig = dt_analysis_sigma(s->ss->an), *cont = dt_analysis_continuum(s->ss->an),
-               *model = dt_analysis_model(s->ss->an);
-  const unsigned char *mask = dt_analysis_mask(s->ss->an);
-  if (!vel || !flux || !cont) return;
+  size_t n = pd.n;
   double *yf = scratch(s, n, 0), *ys = scratch(s, n, 1), *yc = scratch(s, n, 2), *ym = scratch(s, n, 3),
          *yk = scratch(s, n, 4);
   if (!yf) return;
-  double ymin, ymax;
-  int norm = s->normalised;
-  /* The model is drawn where it departs from the continuum (and one pixel
-     beyond), so the continuum stays visible elsewhere. */
-  for (size_t i = 0; i < n; i++) {
-    double c = norm ? cont[i] : 1.0;
-    yf[i] = flux[i] / c;
-    ys[i] = sig[i] / c;
-    yc[i] = cont[i] / c;
-    ym[i] = model && fabs(model[i] / cont[i] - 1) > DEPARTS ? model[i] / c : NAN;
-  }
-  for (size_t i = 0; model && i < n; i++)
-    if (!isnan(ym[i]) && ((i > 0 && isnan(ym[i - 1])) || (i + 1 < n && isnan(ym[i + 1])))) {
-      if (i > 0 && isnan(ym[i - 1])) ym[i - 1] = model[i - 1] / (norm ? cont[i - 1] : 1.0);
-      if (i + 1 < n && isnan(ym[i + 1])) {
-        ym[i + 1] = model[i + 1] / (norm ? cont[i + 1] : 1.0);
-        i++;
-      }
-    }
-  if (norm) {
-    ymin = -0.15;
-    ymax = 1.35;
-  } else {
-    double cmax = 0;
-    for (size_t i = 0; i < n; i++)
-      if (vel[i] >= s->view_lo && vel[i] <= s->view_hi && cont[i] > cmax) cmax = cont[i];
-    if (!(cmax > 0)) cmax = 1;
-    ymin = -0.15 * cmax;
-    ymax = 1.35 * cmax;
-  }
+  int norm = s->normalised && pd.cont;
+  panel_curves(&pd, norm, yf, ys, yc, ym);
+  double level = norm ? 1.0 : panel_level(s, &pd, yk);
+  double ymin = -0.15 * level, ymax = 1.35 * level;
   dt_plot *p = &s->p;
   /* a panel of four rows or more gives its last row to the residuals */
-  int strip = L->pan_h >= 4 && model;
+  int strip = L->pan_h >= 4 && pd.model;
   int ph = L->pan_h - strip;
   if (dt_plot_begin(p, s->mode, L->plot_w, ph, s->view_lo, s->view_hi, ymin, ymax)) return;
   /* continuum windows, and the one being marked */
@@ -355,19 +449,19 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     zy[i] = ymax - (2 * i + 0.5) * (ymax - ymin) / p->dh;
   }
   dt_plot_points(p, zx, zy, NULL, (size_t)nz, DT_R_REF, 0);
-  dt_plot_line(p, vel, ys, mask, n, DT_R_SIGMA, 0);
-  dt_plot_line(p, vel, yc, NULL, n, DT_R_CONT, 0);
-  if (s->ss->j.ncomp > 1) /* one component's model is the total model */
+  dt_plot_line(p, pd.vel, ys, pd.mask, n, DT_R_SIGMA, 0);
+  if (pd.cont) dt_plot_line(p, pd.vel, yc, NULL, n, DT_R_CONT, 0);
+  if (pd.from_analysis && s->ss->j.ncomp > 1) /* one component's model is the total model */
     for (size_t k = 0; k < s->ss->j.ncomp; k++) {
       const double *cm = dt_analysis_component_model(s->ss->an, k);
       if (!cm) continue;
       for (size_t i = 0; i < n; i++)
-        yk[i] = fabs(cm[i] / cont[i] - 1) > DEPARTS ? cm[i] / (norm ? cont[i] : 1.0) : NAN;
-      dt_plot_line(p, vel, yk, NULL, n, k == s->ss->sel ? DT_R_COMPSEL : DT_R_COMP, 0);
+        yk[i] = fabs(cm[i] / pd.cont[i] - 1) > DEPARTS ? cm[i] / (norm ? pd.cont[i] : 1.0) : NAN;
+      dt_plot_line(p, pd.vel, yk, NULL, n, k == s->ss->sel ? DT_R_COMPSEL : DT_R_COMP, 0);
     }
-  dt_plot_line(p, vel, yf, mask, n, DT_R_FLUX, DT_PLOT_MARK_OFF);
-  dt_plot_points(p, vel, yf, mask, n, DT_R_MASKED, DT_PLOT_MARK_OFF);
-  if (model) dt_plot_line(p, vel, ym, NULL, n, DT_R_MODEL, 0);
+  dt_plot_line(p, pd.vel, yf, pd.mask, n, DT_R_FLUX, DT_PLOT_MARK_OFF);
+  dt_plot_points(p, pd.vel, yf, pd.mask, n, DT_R_MASKED, DT_PLOT_MARK_OFF);
+  if (pd.model) dt_plot_line(p, pd.vel, ym, NULL, n, DT_R_MODEL, DT_PLOT_ON_TOP); /* distinct over the data */
   /* component numbers along the top row */
   for (size_t k = 0; k < s->ss->j.ncomp; k++) {
     char num[4];
@@ -376,30 +470,19 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
                  k == s->ss->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
   }
   dt_plot_render(p, g, L->plot_x, gy);
-  if (strip) draw_residuals(s, L, p, gy + ph, vel, flux, sig, model, mask, n);
+  if (strip) draw_residuals(s, L, p, gy + ph, pd.vel, pd.flux, pd.sig, pd.model, pd.mask, n);
   /* the cursor: a tick under the plot, so the trough above stays visible */
   int col = dt_plot_column(p, s->cursor_v);
   if (col >= 0) {
     dt_grid_text(g, L->plot_x + col, gy + ph - 1, s->utf8 ? "\xe2\x96\xb2" : "^", DT_R_LABEL, DT_A_BOLD, 1);
     dt_grid_shade(g, L->plot_x + col, gy + ph - 1, 1, 1, DT_R_CURSOR, 0);
   }
-  ytick(g, p, 1, gy, norm ? 1.0 : ymax / 1.35, norm ? "1" : "C");
+  ytick(g, p, 1, gy, norm ? 1.0 : level, norm ? "1" : pd.cont ? "C" : "F");
   ytick(g, p, 1, gy, 0, "0");
-  if (l == 1) {
-    dt_grid_printf(g, 0, L->vaxis_y, DT_R_AXIS, 0, L->gutter - 1, "km/s");
-    /* the cursor's position at the right end, tick labels before it */
-    char cur[80];
-    syms ys = symbols(s);
-    /* a narrow plot keeps its tick labels: the wavelength gives way */
-    if (p->w >= 90)
-      snprintf(cur, sizeof cur, " cursor %+.1f km/s  %.2f %s", s->cursor_v,
-               d ? dt_wavelength(s->cursor_v, d->line[s->panel].lambda0, s->ss->j.vsys) : NAN, ys.ang);
-    else
-      snprintf(cur, sizeof cur, " cursor %+.1f km/s", s->cursor_v);
-    int len = dt_utf8_len(cur);
-    axis_row(g, p, L->plot_x, L->vaxis_y, 0, p->w - len - 1);
-    dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
-  }
+  /* without an analysis the panel says so in its top row: data only */
+  if (!pd.from_analysis && l == 0)
+    dt_grid_text(g, L->plot_x + 1, gy, " data only: no analysis of this state ", DT_R_WARN, DT_A_REVERSE, p->w - 2);
+  if (l == 1) draw_vaxis(s, L, p, d);
 }
 
 /* ------------------------------------------------------------------ table */
@@ -514,7 +597,7 @@ static void draw_table(dt_insp *s, const layout *L) {
     snprintf(na, sizeof na, "  log Na %s", b1);
     snprintf(lim, sizeof lim, "  %g%s lim %.0f %s, log N < %.2f", s->ss->nsigma, y.sig, 1e3 * m->W_limit, y.mA,
              m->logN_limit);
-    int room = maxw - n0 - n1, wn = dt_utf8_len(na), wl = dt_utf8_len(lim);
+    int room = maxw - n0 - n1, wn = cells(na), wl = cells(lim);
     int show_na = wn + wl <= room || m->W_sig >= 3, show_lim = wn + wl <= room || m->W_sig < 3;
     int n2 = 0;
     if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
@@ -564,16 +647,14 @@ static void draw_status(dt_insp *s, const layout *L) {
     int n = dt_grid_text(g, 0, y, prompt, DT_R_LABEL, DT_A_BOLD, -1);
     /* show the end of a long note */
     int room = L->w - n - 1;
-    const char *t = s->edit;
+    size_t len = strlen(s->edit), t = 0;
     int before = 0;
-    for (const char *p = s->edit; p < s->edit + s->edit_pos; p++)
-      if (((unsigned char)*p & 0xC0) != 0x80) before++;
-    while (before > room && *t) {
-      t++;
-      while (*t && ((unsigned char)*t & 0xC0) == 0x80) t++;
+    for (size_t p = 0; p < s->edit_pos && p < len; p = dt_utf8_next(s->edit, len, p)) before++;
+    while (before > room && t < len) {
+      t = dt_utf8_next(s->edit, len, t);
       before--;
     }
-    dt_grid_text(g, n, y, t, DT_R_TEXT, 0, room);
+    dt_grid_text(g, n, y, s->edit + t, DT_R_TEXT, 0, room);
     dt_cell *c = dt_grid_at(g, n + before, y);
     if (c) c->bg = DT_R_CURSOR;
     return;
@@ -589,25 +670,26 @@ static void draw_status(dt_insp *s, const layout *L) {
   keyname_of_cmd(DT_CMD_UNDO, ku, sizeof ku);
   keyname_of_cmd(DT_CMD_HELP, kh, sizeof kh);
   keyname_of_cmd(DT_CMD_QUIT, kq, sizeof kq);
-  int mlen = (int)strlen(s->ss->msg);
+  char sb[1000];
+  dt_session_tone tone;
+  const char *m = status_text(s, sb, sizeof sb, &tone);
+  int mlen = cells(m);
   snprintf(right, sizeof right, " %s/%s/%s/%s verdict  %s note  %s undo  %s help  %s quit ", k[0], k[1], k[2], k[3],
            kn, ku, kh, kq);
   if (mlen + (int)strlen(right) + 1 > L->w)
     snprintf(right, sizeof right, " %s help  %s quit ", kh, kq);
   int rw = (int)strlen(right);
-  int role = dt_view_role_of_tone(s->ss->tone), attr = role == DT_R_BAD ? DT_A_BOLD : 0;
-  const char *m = s->ss->msg;
+  int role = dt_view_role_of_tone(tone), attr = role == DT_R_BAD ? DT_A_BOLD : 0;
   if (L->status_h == 2) {
     /* wrap at the last blank that fits; the rest goes to the second row */
     int room = L->w - 1, n = 0;
+    size_t mlen_b = strlen(m);
     const char *cut = NULL, *p = m;
-    for (; *p && n < room; p++) {
-      if (((unsigned char)*p & 0xC0) != 0x80) n++;
+    for (; *p && n < room; p = m + dt_utf8_next(m, mlen_b, (size_t)(p - m)), n++)
       if (*p == ' ') cut = p;
-    }
     if (!*p) cut = p;
     else if (!cut) cut = p;
-    char first[600];
+    char first[1000];
     size_t len = (size_t)(cut - m) < sizeof first - 1 ? (size_t)(cut - m) : sizeof first - 1;
     memcpy(first, m, len);
     first[len] = '\0';
@@ -666,7 +748,7 @@ static void draw_help(dt_insp *s, const layout *L) {
   /* as many columns as fit the longest line whole (key, help, margin) */
   int need = 0;
   for (size_t i = 0; i < n; i++) {
-    int wl = 8 + dt_utf8_len(t[i].help) + 2;
+    int wl = 8 + cells(t[i].help) + 2;
     if (wl > need) need = wl;
   }
   int ncol = (bw - 2) / (need > 0 ? need : 1);

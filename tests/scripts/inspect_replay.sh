@@ -240,4 +240,65 @@ expect_fail "--bench without --replay-keys" "go with --replay-keys" "$DT" inspec
 printf 'add-component\nfly-to-the-moon\n' >"$TMP/keys"
 expect_fail "unknown action in a key file" "line 2: 'fly-to-the-moon' is neither" \
   "$DT" inspect "$D/vpq01.fits" --session "$TMP/y.session" --replay-keys "$TMP/keys"
+# ---- UTF-8: the key file types code points, the editor steps over whole ones
+printf 'demo/vpq01.fits  vsys=512 R=3690 name=FIRST\n' >"$TMP/q.list"
+# "N€a σ 😀x"; Left, Backspace drops 😀; Left, Left, Backspace drops the blank before σ
+printf 'edit-note\ntype N\342\202\254a \317\203 \360\237\230\200x\nLeft\nBackspace\nLeft\nLeft\nBackspace\nEnter\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys" \
+  --screen-dump "$TMP/screen" >/dev/null 2>&1
+check "a UTF-8 note edited over 2-, 3- and 4-byte characters is saved whole" \
+  grep -q "act=note	note=N$(printf '\342\202\254')a$(printf '\317\203') x" "$TMP/u.session"
+"$DT" log "$TMP/u.session" --action note >"$TMP/log.out" 2>&1
+check "log shows the UTF-8 note unescaped" grep -q "\"N$(printf '\342\202\254')a$(printf '\317\203') x\"" "$TMP/log.out"
+printf 'edit-note\ntype a\300\257b\nEnter\n' >"$TMP/keys"
+expect_fail "a key file typing bytes that are not UTF-8 is refused" "line 2: the text to type is not UTF-8" \
+  "$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys"
+printf 'edit-note\ntype a\302\233b\nEnter\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/u.session" --replay-keys "$TMP/keys" >/dev/null 2>&1
+check "the note editor does not take a C1 control (U+009B)" sh -c "tail -n 1 '$TMP/u.session' | grep -q 'act=note	note=[^	]* xab	'"
+
+# ---- the data are drawn when the analysis of the state fails: a spectrum
+# ending inside NaI 5897's fit window (not covered), and one sampled so
+# coarsely that the window holds fewer than 2 pixels
+awk 'BEGIN { for (w = 5850; w <= 5895; w += 0.1) {
+  d = (w - 5891.58) / 0.4; printf "%.3f %.5f 0.02\n", w, 1 - 0.6 * exp(-0.5 * d * d) + 0.01 * sin(7 * w) } }' \
+  >"$TMP/edge.txt"
+awk 'BEGIN { for (w = 5800; w <= 6000; w += 25) printf "%.3f %.5f 0.02\n", w, 1 + 0.01 * sin(w) }' >"$TMP/coarse.txt"
+printf 'edge.txt vsys=0 R=20000 name=EDGE\ncoarse.txt vsys=0 R=20000 name=COARSE\n' >"$TMP/q.list"
+# rows of panel k (1 or 2) of an 80x24 ASCII screen holding flux ('*') or error (',') glyphs
+panel_rows() {
+  awk -v k="$1" -v g="$2" 'substr($0, 7, 1) == "|" { if (substr($0, 1, 5) ~ /[0-9][0-9][0-9][0-9]/) p++;
+    if (p == k && index(substr($0, 8), g)) n++ } END { print n + 0 }' "$TMP/screen"
+}
+raw() {
+  "$DT" inspect --list "$TMP/q.list" --session "$TMP/raw.session" --ascii --size 80x24 \
+    --replay-keys "$TMP/keys" --screen-dump "$TMP/screen" >/dev/null 2>&1
+}
+printf 'cursor-right\n' >"$TMP/keys"
+raw
+check "window not covered: the upper panel still shows the flux" test "$(panel_rows 1 '*')" -ge 3
+check "... and the lower panel too, up to the spectrum's end" test "$(panel_rows 2 '*')" -ge 3
+check "... with the 1-sigma error" test "$(panel_rows 1 ',')" -ge 1
+check "... the panel says it shows the data only" on_screen "data only: no analysis"
+check "... the reason is on the status line" grep -q "^NaI 5897: window .* is not covered" "$TMP/screen"
+printf 'edit-note\nEsc\n' >"$TMP/keys"
+raw
+check "... and stays there after another message" sh -c "grep -q '^nothing changed - NaI 5897: window' '$TMP/screen'"
+check "... the velocity axis is drawn" on_screen "cursor +0.0 km/s"
+printf 'next-spectrum\n' >"$TMP/keys"
+raw
+check "too few pixels in the window: the flux is drawn in both panels" \
+  test "$(panel_rows 1 '*')" -ge 1 -a "$(panel_rows 2 '*')" -ge 1
+check "... with the reason on the status line" grep -q "fewer than 2 pixels" "$TMP/screen"
+
+# a file name holding a C1 control (U+009B, a terminal's CSI) and a bare
+# continuation byte: log prints '?' for each byte, never the bytes themselves
+cp "$D/vpq04.txt" "$TMP/c1$(printf '\302\233')x$(printf '\200')y.txt"
+printf 'c1%sx%sy.txt vsys=512 R=2640 name=ODD\n' "$(printf '\302\233')" "$(printf '\200')" >"$TMP/q.list"
+printf 'verdict-unsure\n' >"$TMP/keys"
+"$DT" inspect --list "$TMP/q.list" --session "$TMP/c1.session" --replay-keys "$TMP/keys" >/dev/null 2>&1
+"$DT" log "$TMP/c1.session" >"$TMP/log.out" 2>&1
+check "log: the odd file name is shown with '?' for each bad byte" grep -q 'c1??x?y\.txt' "$TMP/log.out"
+check "log: no C1 control or stray byte reaches the output" sh -c "! LC_ALL=C grep -q '$(printf '\302\233')\|$(printf '\200')' '$TMP/log.out'"
+
 finish

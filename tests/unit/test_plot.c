@@ -6,6 +6,7 @@
  * the left column, 4-6 down the right, 7 and 8 are the bottom-left and
  * bottom-right dots.  Half blocks: U+2580 UPPER HALF BLOCK, U+2584 LOWER
  * HALF BLOCK, U+2588 FULL BLOCK (Unicode Block Elements chart). */
+#include <locale.h>
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -211,7 +212,75 @@ int main(void) {
   dt_grid_text(&g, 0, 0, "\xc2\xb1\xcf\x83x", DT_R_TEXT, 0, -1);
   CHECK(!strcmp(cell(0, 0), "\xc2\xb1") && !strcmp(cell(1, 0), "\xcf\x83") && !strcmp(cell(2, 0), "x"),
         "UTF-8 characters take one cell each");
-  CHECK(dt_utf8_len("\xc2\xb1\xcf\x83x") == 3, "UTF-8 length");
+  CHECK(dt_grid_text(&g, 0, 0, "\xc2\xb1\xcf\x83x", DT_R_TEXT, 0, -1) == 3, "UTF-8 text: one cell per code point");
+  /* C1 controls and ill-formed bytes (utf8.h) take one '?' cell per unit */
+  dt_grid_reset(&g, 8, 1);
+  k = dt_grid_text(&g, 0, 0, "a\xc2\x9b" "b\xe2\x82" "c\xc0\xaf", DT_R_TEXT, 0, -1);
+  dt_grid_row(&g, 0, row, sizeof row);
+  CHECK(k == 7 && !strcmp(row, "a?b?c?? "), "C1 CSI, a truncated sequence and an overlong '/' become '?': '%s'", row);
+
+  /* ---- the model on top: in a trough whose data lie below the model, both
+   * keep cells of their own; where they coincide the model's cells show
+   * the model's dots alone ---- */
+  {
+    enum { W = 40, H = 8, N = 401 };
+    double xs[N], ym[N], yd[N];
+    for (int i = 0; i < N; i++) {
+      xs[i] = -100 + 0.5 * i;
+      double gsh = exp(-0.5 * xs[i] * xs[i] / 400.0);
+      ym[i] = 1 - 0.5 * gsh;
+      yd[i] = fabs(xs[i]) < 15 ? 1 - 0.95 * gsh : ym[i]; /* deeper than the model in the core */
+    }
+    dt_grid mg = {0};
+    dt_plot mp = {0};
+    /* the model alone, for its glyphs */
+    dt_grid_reset(&mg, W, H);
+    dt_plot_begin(&mp, DT_PLOT_BRAILLE, W, H, -100, 100, -0.1, 1.2);
+    dt_plot_line(&mp, xs, ym, NULL, N, DT_R_MODEL, DT_PLOT_ON_TOP);
+    dt_plot_render(&mp, &mg, 0, 0);
+    /* model first, data after: the order of drawing does not matter */
+    dt_grid_reset(&g, W, H);
+    dt_plot_begin(&p, DT_PLOT_BRAILLE, W, H, -100, 100, -0.1, 1.2);
+    dt_plot_line(&p, xs, ym, NULL, N, DT_R_MODEL, DT_PLOT_ON_TOP);
+    dt_plot_line(&p, xs, yd, NULL, N, DT_R_FLUX, 0);
+    dt_plot_render(&p, &g, 0, 0);
+    int model_cells = 0, model_alone = 0, flux_below = 0, wing_model = 0;
+    for (int x = 0; x < W; x++) {
+      int lowest_model = -1;
+      for (int y = 0; y < H; y++) {
+        if (role(x, y) != DT_R_MODEL) continue;
+        model_cells++;
+        lowest_model = y;
+        if (!strcmp(cell(x, y), dt_grid_at(&mg, x, y)->ch)) model_alone++;
+        if (x < 10 || x >= 30) wing_model++;
+      }
+      for (int y = lowest_model + 1; lowest_model >= 0 && y < H; y++)
+        if (role(x, y) == DT_R_FLUX) flux_below++;
+    }
+    int model_ref = 0;
+    for (int y = 0; y < H; y++)
+      for (int x = 0; x < W; x++) model_ref += dt_grid_at(&mg, x, y)->fg == DT_R_MODEL;
+    CHECK(model_cells == model_ref, "the model keeps every one of its cells over the data (%d of %d)", model_cells,
+          model_ref);
+    CHECK(wing_model > 0, "in the wings, where data and model coincide, the model shows (%d cells)", wing_model);
+    CHECK(model_alone == model_cells, "a shared cell shows the model's dots alone (%d of %d)", model_alone, model_cells);
+    CHECK(flux_below >= 2, "in the trough the data below the model keep their own cells (%d)", flux_below);
+    /* ASCII: the model's glyph wins its cells too */
+    dt_grid_reset(&g, W, H);
+    dt_plot_begin(&p, DT_PLOT_ASCII, W, H, -100, 100, -0.1, 1.2);
+    dt_plot_line(&p, xs, ym, NULL, N, DT_R_MODEL, DT_PLOT_ON_TOP);
+    dt_plot_line(&p, xs, yd, NULL, N, DT_R_FLUX, 0);
+    dt_plot_render(&p, &g, 0, 0);
+    int hash = 0, star = 0;
+    for (int y = 0; y < H; y++)
+      for (int x = 0; x < W; x++) {
+        hash += !strcmp(cell(x, y), "#");
+        star += !strcmp(cell(x, y), "*");
+      }
+    CHECK(hash > 0 && star > 0, "ASCII: model '#' and data '*' both drawn (%d, %d)", hash, star);
+    dt_plot_free(&mp);
+    dt_grid_free(&mg);
+  }
 
   dt_plot_free(&p);
   dt_grid_free(&g);
@@ -221,5 +290,17 @@ int main(void) {
   CHECK(dt_term_window_fg(4, 4) != 4, "blue on the blue shade changes colour");
   CHECK(dt_term_window_fg(6, 4) == 6, "cyan on the blue shade stays cyan");
   CHECK(dt_term_window_fg(4, 236) == 4, "blue on a grey shade stays blue");
+  /* what the terminal gets for a cell: one column each, in a UTF-8 locale */
+  if (setlocale(LC_CTYPE, "C.UTF-8") || setlocale(LC_CTYPE, "en_US.UTF-8")) {
+    CHECK(!strcmp(dt_term_one_column("\xcf\x83"), "\xcf\x83") && !strcmp(dt_term_one_column("\xe2\xa3\xbf"), "\xe2\xa3\xbf"),
+          "U+03C3 and a braille pattern U+28FF go out as they are");
+    CHECK(!strcmp(dt_term_one_column("\xe6\x98\x9f"), "?") && !strcmp(dt_term_one_column("\xf0\x9f\x98\x80"), "?"),
+          "wide U+661F and U+1F600 go out as '?' (they would take two columns)");
+    CHECK(!strcmp(dt_term_one_column("\xcc\x81"), "?"), "a combining mark U+0301 goes out as '?' (no column)");
+    CHECK(!strcmp(dt_term_one_column("x"), "x") && !strcmp(dt_term_one_column("\xe2\x82"), "?"), "ASCII kept, a broken cell is '?'");
+    setlocale(LC_CTYPE, "C");
+  } else {
+    printf("SKIPPED - no UTF-8 locale for the terminal's column checks\n");
+  }
   return dt_test_done();
 }
