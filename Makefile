@@ -106,6 +106,7 @@ bench: $(BIN)
 # The slow tier runs here: the whole suite under ASan+UBSan, then the
 # valgrind memcheck (tests marked "# tier: sanitize") on the plain build.
 sanitize:
+	LSAN_OPTIONS="suppressions=$(CURDIR)/tests/lsan.supp:print_suppressions=0$${LSAN_OPTIONS:+:$$LSAN_OPTIONS}" \
 	$(MAKE) BUILD=build-san OPT="-O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
 	  LDFLAGS="-fsanitize=address,undefined" check
 	$(MAKE) tests

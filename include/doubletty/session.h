@@ -97,6 +97,11 @@ typedef struct dt_session {
 dt_session *dt_session_alloc(const dt_atomic *atomic, dt_journal *jn);
 void dt_session_free(dt_session *ss);
 
+/* A target with the file path, its session key and row, nothing else given:
+ * no name, vacuum unless the file says air, the default judgement as its
+ * first-look settings.  Callers set further fields after this. */
+void dt_session_target_init(dt_session_target *t, const char *path, const char *key, long row);
+
 /* Open target t: its recorded state when the journal has one (then a refit
  * is compared with the recorded fit), otherwise the automatic first pass,
  * which is recorded with the first change.  Looking writes nothing.

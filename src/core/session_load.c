@@ -100,6 +100,15 @@ static void resume(dt_session *ss, const dt_journal_entry *en) {
                    en->nchanges == 1 ? "" : "s");
 }
 
+void dt_session_target_init(dt_session_target *t, const char *path, const char *key, long row) {
+  memset(t, 0, sizeof *t);
+  t->path = path;
+  t->key = key;
+  t->row = row;
+  t->name = "";
+  dt_judgement_init(&t->initial);
+}
+
 int dt_session_load(dt_session *ss, const dt_session_target *t) {
   reset(ss, t);
   const dt_journal_entry *en = ss->jn ? dt_journal_lookup(ss->jn, ss->key, 0, ss->row) : NULL;

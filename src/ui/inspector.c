@@ -120,9 +120,7 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   s->finished = 0;
   char key[DT_KEY_MAX];
   dt_session_target t;
-  t.path = dt_queue_path(s->q, idx);
-  t.key = entry_key(s, idx, key, sizeof key);
-  t.row = s->q->e[idx].row;
+  dt_session_target_init(&t, dt_queue_path(s->q, idx), entry_key(s, idx, key, sizeof key), s->q->e[idx].row);
   t.name = dt_queue_name(s->q, idx);
   t.air = s->q->e[idx].air;
   initial_state(s, idx, &t.initial);
