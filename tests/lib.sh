@@ -14,12 +14,18 @@ TMP=$(mktemp -d "${TMPDIR:-/tmp}/dt-test.XXXXXX")
 # KEEP=1 keeps the test's temporary directory for a look after a failure
 trap '[ -n "${KEEP:-}" ] || rm -rf "$TMP"' EXIT
 
+# tests/run probes once for all scripts and passes the answer in DT_PY_PROBED
+# (the interpreter's path, or "none"); a script run alone probes itself.
 PY=
-for p in /usr/bin/python3 python3; do
-  if command -v "$p" >/dev/null 2>&1 && "$p" -c 'import numpy, scipy, astropy' 2>/dev/null; then
-    PY=$(command -v "$p"); break
-  fi
-done
+case ${DT_PY_PROBED:-} in
+  none) ;;
+  /*) PY=$DT_PY_PROBED ;;
+  *) for p in /usr/bin/python3 python3; do
+       if command -v "$p" >/dev/null 2>&1 && "$p" -c 'import numpy, scipy, astropy' 2>/dev/null; then
+         PY=$(command -v "$p"); break
+       fi
+     done ;;
+esac
 
 ok()   { T_PASS=$((T_PASS+1)); echo "ok   - $*"; }
 bad()  { T_FAIL=$((T_FAIL+1)); echo "FAIL - $*"; }

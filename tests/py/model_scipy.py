@@ -14,6 +14,11 @@ NumPy, written from the textbook formulas rather than from our C code.
                                  (every case, also lines narrower than the
                                  cells, which the model sub-samples)
 
+  model_scipy.py --into DIR DRIVER MODE...
+                                 the modes in one interpreter: the output
+                                 of each in DIR/MODE.out, 0 (agrees) or 1
+                                 in DIR/MODE.rc
+
 DRIVER is build/tests/test_model; it prints the values to compare.  Prints
 what it checked and exits 1 on a mismatch."""
 import subprocess
@@ -289,7 +294,30 @@ def check_fine(driver):
     return ok
 
 
+CHECKS = {"tau": check_tau, "pixels": check_pixels, "fine": check_fine}
+
+
+def run_into(outdir, driver, modes):
+    """Several checks in one interpreter (SciPy is imported once): each
+    mode's output goes to OUTDIR/MODE.out and its result, 0 or 1, to
+    OUTDIR/MODE.rc (1 also when the check raised)."""
+    import contextlib
+    import traceback
+    for mode in modes:
+        with open(f"{outdir}/{mode}.out", "w") as out, contextlib.redirect_stdout(out):
+            try:
+                good = CHECKS[mode](driver)
+            except Exception:
+                traceback.print_exc(file=out)
+                good = False
+        with open(f"{outdir}/{mode}.rc", "w") as rc:
+            rc.write("0\n" if good else "1\n")
+
+
 if __name__ == "__main__":
+    if sys.argv[1] == "--into":
+        run_into(sys.argv[2], sys.argv[3], sys.argv[4:])
+        sys.exit(0)
     mode, driver = sys.argv[1], sys.argv[2]
-    good = {"tau": check_tau, "pixels": check_pixels, "fine": check_fine}[mode](driver)
+    good = CHECKS[mode](driver)
     sys.exit(0 if good else 1)

@@ -9,9 +9,20 @@
 # really writes "1,5" under it, so the comparison cannot pass vacuously.
 . "$(dirname "$0")/../lib.sh"
 
-LOC=$TMP/locales
-mkdir -p "$LOC"
-localedef -i de_DE -f UTF-8 "$LOC/de_DE.UTF-8" >"$TMP/localedef.out" 2>&1
+# Compiling the locale takes seconds: it is kept in the build directory
+# under a digest of localedef's version and the locale's sources, and the
+# probe below checks whatever is used, built now or kept.
+key=$({ localedef --version 2>&1; cat /usr/share/i18n/locales/de_DE /usr/share/i18n/charmaps/UTF-8* 2>&1; } |
+      sha256sum | cut -c1-32)
+LOC=$BUILD/locale-cache/$key
+: >"$TMP/localedef.out"
+if [ ! -d "$LOC/de_DE.UTF-8" ]; then
+  mkdir -p "$LOC.tmp.$$" &&
+    localedef -i de_DE -f UTF-8 "$LOC.tmp.$$/de_DE.UTF-8" >"$TMP/localedef.out" 2>&1 &&
+    { mv -T "$LOC.tmp.$$" "$LOC" 2>/dev/null || [ -d "$LOC/de_DE.UTF-8" ]; } ||
+    { echo "localedef into $LOC.tmp.$$ failed" >>"$TMP/localedef.out"; }
+  rm -rf "$LOC.tmp.$$"
+fi
 export LOCPATH="$LOC"
 cat >"$TMP/probe.c" <<'EOF'
 #include <locale.h>
