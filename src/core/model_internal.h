@@ -185,4 +185,18 @@ int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, con
 void dt_model_apply_flux(const dt_model *m, int nu, double *flux);
 void dt_model_apply_jac(const dt_model *m, size_t ncomp, double *jac, size_t ldj);
 
+/* The first i in [0, n) with a[i] >= x (n if none), a sorted ascending:
+ * the first pixel whose band or cells reach cell x. */
+static inline size_t dt_model_first_reaching(const long *a, size_t n, long x) {
+  size_t lo = 0, hi = n;
+  while (lo < hi) {
+    size_t mid = lo + (hi - lo) / 2;
+    if (a[mid] < x)
+      lo = mid + 1;
+    else
+      hi = mid;
+  }
+  return lo;
+}
+
 #endif

@@ -175,19 +175,6 @@ int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, con
   return DT_OK;
 }
 
-/* First pixel whose band reaches cell c (bands are sorted at both ends). */
-static size_t first_pixel(const dt_model *m, long c) {
-  size_t a = 0, b = m->n;
-  while (a < b) {
-    size_t mid = a + (b - a) / 2;
-    if (m->m1[mid] < c)
-      a = mid + 1;
-    else
-      b = mid;
-  }
-  return a;
-}
-
 /* Through the LSF and onto the pixels: flux = 1 - B (1 - exp(-tau)), only
  * over the nu spans of cells where lines live (m->uni). */
 void dt_model_apply_flux(const dt_model *m, int nu, double *flux) {
@@ -195,7 +182,7 @@ void dt_model_apply_flux(const dt_model *m, int nu, double *flux) {
   for (size_t i = 0; i < n; i++) flux[i] = 1.0;
   for (int u = 0; u < nu; u++) {
     const long A = m->uni[u].lo, B = m->uni[u].hi;
-    for (size_t i = first_pixel(m, A); i < n && m->m0[i] <= B; i++) {
+    for (size_t i = dt_model_first_reaching(m->m1, n, A); i < n && m->m0[i] <= B; i++) {
       long j0 = m->m0[i] > A ? m->m0[i] : A, j1 = m->m1[i] < B ? m->m1[i] : B;
       const double *row = m->coef + m->off[i] + (j0 - m->m0[i]), *dp = m->dep + j0;
       const long len = j1 - j0 + 1;
@@ -222,7 +209,7 @@ void dt_model_apply_jac(const dt_model *m, size_t ncomp, double *jac, size_t ldj
     const double *qk = m->q + k * nf * 3;
     for (int u = 0; u < m->ncspan[k]; u++) {
       const long A = m->cspan[k][u].lo, B = m->cspan[k][u].hi;
-      for (size_t i = first_pixel(m, A); i < n && m->m0[i] <= B; i++) {
+      for (size_t i = dt_model_first_reaching(m->m1, n, A); i < n && m->m0[i] <= B; i++) {
         long j0 = m->m0[i] > A ? m->m0[i] : A, j1 = m->m1[i] < B ? m->m1[i] : B;
         const double *row = m->coef + m->off[i] + (j0 - m->m0[i]);
         const double *qp = qk + 3 * j0;

@@ -293,14 +293,7 @@ static void sub_moments(dt_model *m, int u, long j0, long j1, const double *sqk,
     }
   }
   /* pixels whose cells meet A..B (pc0, pc1 increase with i) */
-  size_t a = 0, b = m->n;
-  while (a < b) {
-    size_t mid = a + (b - a) / 2;
-    if (m->pc1[mid] < A)
-      a = mid + 1;
-    else
-      b = mid;
-  }
+  size_t a = dt_model_first_reaching(m->pc1, m->n, A);
   for (size_t i = a; i < m->n && m->pc0[i] <= B; i++) {
     long c0 = m->pc0[i] > A ? m->pc0[i] : A, c1 = m->pc1[i] < B ? m->pc1[i] : B;
     const double *pw = m->pw + m->pwoff[i] - m->pc0[i];
@@ -328,14 +321,7 @@ static void sub_edges(dt_model *m, int u, long j0, long j1, const double *sqk, c
   const int nv = sqk ? 3 : 1;
   const double g0 = m->g0;
   /* pixels i, i+1 sharing a cell c of j0..j1: c = pc1[i] = pc0[i+1] */
-  size_t a = 0, b = m->n;
-  while (a < b) {
-    size_t mid = a + (b - a) / 2;
-    if (m->pc1[mid] < j0)
-      a = mid + 1;
-    else
-      b = mid;
-  }
+  size_t a = dt_model_first_reaching(m->pc1, m->n, j0);
   for (size_t i = a; i + 1 < m->n && m->pc1[i] <= j1; i++) {
     long c = m->pc1[i];
     if (m->pc0[i + 1] != c) continue;
