@@ -198,10 +198,6 @@ size_t dt_journal_format(char *buf, size_t size, const char *time, const char *u
                          const dt_judgement *after, const dt_meas_summary *meas,
                          int full, const char *sha256_was);
 
-/* A double with the fewest significant digits (at least 6) that read back
- * exactly ("nan", "inf", "-inf" for the others); out holds >= 32 bytes. */
-void dt_journal_format_number(char *out, size_t size, double x);
-
 /* Parse one line (without or with its newline) into *rec.  DT_EFORMAT with
  * e->what saying why.  rec->target.path points into line, which is modified. */
 int dt_journal_parse(char *line, dt_journal_record *rec, dt_err *e);

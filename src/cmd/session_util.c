@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "doubletty/num.h"
 
 int su_opt(const char *cmd, const char *name, int argc, char **argv, int *i, const char **val) {
   size_t len = strlen(name);
@@ -47,7 +48,7 @@ dt_journal *su_open(const char *path) {
 
 const char *su_num(char *buf, size_t n, double x) {
   if (isnan(x)) buf[0] = '\0';
-  else dt_journal_format_number(buf, n, x);
+  else dt_num_format(buf, n, x);
   return buf;
 }
 

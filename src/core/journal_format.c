@@ -172,7 +172,6 @@ static void sb_esc(sbuf *b, const char *s) {
   }
 }
 
-void dt_journal_format_number(char *out, size_t size, double x) { dt_num_format(out, size, x); }
 
 static void sb_num(sbuf *b, double x) {
   char t[40];
