@@ -12,9 +12,9 @@ PREFIX   ?= /usr/local
 BUILD    ?= build
 VERSION  := 0.1.0
 
-PKGS      := gsl cfitsio libcerf ncursesw libcrypto
+PKGS      := gsl cfitsio libcerf ncursesw libcrypto cairo
 DEB_PKGS  := build-essential pkg-config libgsl-dev libcfitsio-dev libcerf-dev \
-             libncurses-dev libssl-dev
+             libncurses-dev libssl-dev libcairo2-dev
 TEST_DEBS := locales python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time e2fsprogs util-linux clang libclang-rt-14-dev
 
 PKG_OK := $(shell pkg-config --exists $(PKGS) 2>/dev/null && echo yes)
@@ -35,18 +35,22 @@ LDLIBS   += $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lm
 
 CORE_SRC := $(sort $(wildcard src/core/*.c))
 UI_SRC   := $(sort $(wildcard src/ui/*.c))
+FIG_SRC  := $(sort $(wildcard src/fig/*.c))
 CMD_SRC  := $(sort $(wildcard src/cmd/*.c))
 DEMO_SRC := $(sort $(wildcard src/demo/*.c))
 TEST_SRC := $(sort $(wildcard tests/unit/test_*.c))
 
 CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o) $(BUILD)/gen/atomic_builtin.o
 UI_OBJ   := $(UI_SRC:%.c=$(BUILD)/%.o)
+FIG_OBJ  := $(FIG_SRC:%.c=$(BUILD)/%.o)
 CMD_OBJ  := $(CMD_SRC:%.c=$(BUILD)/%.o)
 DEMO_OBJ := $(DEMO_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 
 LIBCORE  := $(BUILD)/libdoubletty.a
 LIBUI    := $(BUILD)/libdoubletty-ui.a
+# Figures drawn with cairo (src/fig): PDF, PNG, SVG; no command line in it.
+LIBFIG   := $(BUILD)/libdoubletty-fig.a
 # The demo survey writer (src/demo): part of the program, not of the core.
 LIBDEMO  := $(BUILD)/libdoubletty-demo.a
 BIN      := $(BUILD)/doubletty
@@ -81,19 +85,23 @@ $(LIBCORE): $(CORE_OBJ)
 $(LIBUI): $(UI_OBJ)
 	rm -f $@ && $(AR) rcs $@ $^
 
+$(LIBFIG): $(FIG_OBJ)
+	rm -f $@ && $(AR) rcs $@ $^
+
 $(LIBDEMO): $(DEMO_OBJ)
 	rm -f $@ && $(AR) rcs $@ $^
 
 # The commands see the demo's header (src/demo/demo.h).
 $(CMD_OBJ): CPPFLAGS += -Isrc/demo
 
-$(BIN): $(CMD_OBJ) $(LIBUI) $(LIBDEMO) $(LIBCORE)
-	$(CC) $(CFLAGS) $(LDFLAGS) $(CMD_OBJ) $(LIBUI) $(LIBDEMO) $(LIBCORE) $(LDLIBS) -o $@
+$(BIN): $(CMD_OBJ) $(LIBUI) $(LIBFIG) $(LIBDEMO) $(LIBCORE)
+	$(CC) $(CFLAGS) $(LDFLAGS) $(CMD_OBJ) $(LIBUI) $(LIBFIG) $(LIBDEMO) $(LIBCORE) $(LDLIBS) -o $@
 
-# Unit tests link the core and the pure parts of the UI (no terminal needed).
-$(BUILD)/tests/%: tests/unit/%.c tests/harness.h tests/fixtures.h $(LIBUI) $(LIBCORE)
+# Unit tests link the core, the figures and the pure parts of the UI (no
+# terminal needed).
+$(BUILD)/tests/%: tests/unit/%.c tests/harness.h tests/fixtures.h $(LIBUI) $(LIBFIG) $(LIBCORE)
 	@mkdir -p $(dir $@)
-	$(CC) $(CPPFLAGS) -Itests $(CFLAGS) $< $(LIBUI) $(LIBCORE) $(LDLIBS) -o $@
+	$(CC) $(CPPFLAGS) -Itests $(CFLAGS) $< $(LIBUI) $(LIBFIG) $(LIBCORE) $(LDLIBS) -o $@
 
 tests: $(BIN) $(TEST_BIN)
 
@@ -121,7 +129,7 @@ FUZZ_SECONDS ?= 60
 FUZZ_SAN     := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
 fuzz:
 	$(MAKE) BUILD=build-fuzz CC=$(FUZZ_CC) OPT="-O1 -g -fsanitize=fuzzer-no-link $(FUZZ_SAN)" \
-	  build-fuzz/libdoubletty.a build-fuzz/libdoubletty-ui.a build-fuzz/libdoubletty-demo.a
+	  build-fuzz/libdoubletty.a build-fuzz/libdoubletty-ui.a build-fuzz/libdoubletty-fig.a build-fuzz/libdoubletty-demo.a
 	@FUZZ_CC="$(FUZZ_CC)" FUZZ_SECONDS="$(FUZZ_SECONDS)" FUZZ_TARGETS="$(FUZZ_TARGETS)" FUZZ_BUILD=build-fuzz \
 	  FUZZ_CFLAGS="$(CPPFLAGS) $(CSTD) $(WARN) -O1 -g $(FUZZ_SAN) $(shell pkg-config --cflags $(PKGS) 2>/dev/null)" \
 	  FUZZ_LIBS="$(LDLIBS)" sh tests/fuzz/run
@@ -143,4 +151,4 @@ deps:
 clean:
 	rm -rf build build-san build-fuzz
 
--include $(CORE_OBJ:.o=.d) $(UI_OBJ:.o=.d) $(CMD_OBJ:.o=.d) $(DEMO_OBJ:.o=.d)
+-include $(CORE_OBJ:.o=.d) $(UI_OBJ:.o=.d) $(FIG_OBJ:.o=.d) $(CMD_OBJ:.o=.d) $(DEMO_OBJ:.o=.d)
