@@ -21,6 +21,7 @@ static const command commands[] = {
     {"log", cmd_log, "print a session file's audit trail"},
     {"export", cmd_export, "final state per spectrum of a session, as CSV or FITS"},
     {"compare", cmd_compare, "two sessions' verdicts side by side, Cohen's kappa"},
+    {"fraction", cmd_fraction, "detection fraction of a survey with binomial intervals"},
 };
 
 /* Levenshtein distance of two short words (insert, delete, substitute);
