@@ -11,4 +11,5 @@ int cmd_log(int argc, char **argv);
 int cmd_export(int argc, char **argv);
 int cmd_compare(int argc, char **argv);
 int cmd_fraction(int argc, char **argv);
+int cmd_vsf(int argc, char **argv);
 #endif

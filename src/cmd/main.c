@@ -22,6 +22,7 @@ static const command commands[] = {
     {"export", cmd_export, "final state per spectrum of a session, as CSV or FITS"},
     {"compare", cmd_compare, "two sessions' verdicts side by side, Cohen's kappa"},
     {"fraction", cmd_fraction, "detection fraction of a survey with binomial intervals"},
+    {"vsf", cmd_vsf, "velocity structure function of sightline pairs, bootstrap errors"},
 };
 
 /* Levenshtein distance of two short words (insert, delete, substitute);
