@@ -202,7 +202,7 @@ int cmd_fraction(int argc, char **argv) {
           lo[b] = row[b].lower;
           hi[b] = row[b].upper;
         }
-        survey_tplot t = {note, by ? by : "whole sample", "detection fraction", 0, 0, nbin, x, y, lo, hi, 0, NULL, NULL};
+        survey_tplot t = {note, by ? by : "whole sample", "detection fraction", 0, 0, nbin, x, y, lo, hi, 0, NULL, NULL, 1, 0, 1};
         survey_tplot_print(&t);
         free(x);
       }

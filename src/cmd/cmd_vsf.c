@@ -321,7 +321,7 @@ int cmd_vsf(int argc, char **argv) {
                                   order, g, ge, order == 1 ? "1/3" : "2/3");
       else snprintf(title, sizeof title, "structure function, order %ld", order);
       survey_tplot t = {title, "separation r [kpc]", order == 1 ? "S1 [km/s]" : "S2 [km2/s2]", 1, 1, nb, x, y, lo, hi,
-                        fit_ok ? 2 : 0, lx, ly};
+                        fit_ok ? 2 : 0, lx, ly, 0, 0, 0};
       survey_tplot_print(&t);
       free(x);
     }

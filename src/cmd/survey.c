@@ -148,6 +148,7 @@ void survey_tplot_print(const survey_tplot *t) {
   }
   double dx = x1 > x0 ? 0.04 * (x1 - x0) : 0.5, dy = y1 > y0 ? 0.08 * (y1 - y0) : 0.5;
   x0 -= dx, x1 += dx, y0 -= dy, y1 += dy;
+  if (t->fixy) y0 = tr(t->y0, t->ylog), y1 = tr(t->y1, t->ylog);
   dt_plot p;
   dt_grid g;
   memset(&p, 0, sizeof p);
@@ -161,12 +162,17 @@ void survey_tplot_print(const survey_tplot *t) {
   }
   if (t->nline) dt_plot_line(&p, lx, ly, NULL, t->nline, DT_R_MODEL, 0);
   for (size_t i = 0; i < t->n; i++) {
-    if (!t->ylo || !t->yhi) continue;
+    if (!t->ylo || !t->yhi || !isfinite(y[i])) continue;
     double ex[2] = {x[i], x[i]}, ey[2] = {tr(t->ylo[i], t->ylog), tr(t->yhi[i], t->ylog)};
     if (!isfinite(ey[0])) ey[0] = y0;
     dt_plot_line(&p, ex, ey, NULL, 2, DT_R_SIGMA, 0);
   }
-  dt_plot_points(&p, x, y, NULL, t->n, DT_R_FLUX, 0);
+  /* each point a marker of its own, over the error bars and the line */
+  for (size_t i = 0; i < t->n; i++) {
+    if (!isfinite(x[i]) || !isfinite(y[i]) || y[i] < y0 || y[i] > y1) continue;
+    int row = (int)lround((y1 - y[i]) / (y1 - y0) * (H - 1));
+    dt_plot_mark(&p, x[i], row, utf8 ? "\u25cf" : "o", DT_R_FLUX, DT_A_BOLD);
+  }
   dt_plot_render(&p, &g, LM, 0);
   char buf[32];
   label_of(y1, t->ylog, buf, sizeof buf);

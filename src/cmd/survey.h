@@ -63,6 +63,8 @@ typedef struct survey_tplot {
   const double *x, *y, *ylo, *yhi;
   size_t nline;                /* an extra line (fit), or 0 */
   const double *lx, *ly;
+  int fixy;                    /* 1: the y range is [y0, y1] */
+  double y0, y1;
 } survey_tplot;
 /* 1 when standard output is a terminal. */
 int survey_stdout_tty(void);
