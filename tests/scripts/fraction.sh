@@ -114,6 +114,15 @@ if need_py "figure files parsed"; then
 fi
 check "no terminal: no plot on standard output" sh -c "! grep -q 'detection fraction' out.csv"
 
+# standard output a terminal (script(1) gives one): the plot, then the table
+if need_tool script "the plot in a terminal"; then
+  LC_ALL=C.UTF-8 script -qc "'$DT' fraction cat.csv --threshold-mA 100 --with with.csv --by b_kpc --bins 0,20,40" /dev/null >tty.txt 2>&1
+  check "terminal (UTF-8): a plot with markers" grep -q "●" tty.txt
+  check "terminal: the table follows" grep -q "^bin_lo,bin_hi,n,k,excluded,fraction,lower,upper" tty.txt
+  LC_ALL=C script -qc "'$DT' fraction cat.csv --threshold-mA 100 --with with.csv --by b_kpc --bins 0,20,40" /dev/null 2>&1 | tr -d '\r' >tty2.txt
+  check "terminal (C locale): plain ASCII" sh -c "grep -Eq '^[ 0-9.]*[|].*o' tty2.txt && ! LC_ALL=C grep -q '[^ -~]' tty2.txt"
+fi
+
 # bad input: one clear message, nonzero exit
 head -2 exp.csv | sed 's/W_lim_mA/W_other/' >nolim.csv
 expect_fail "a catalogue without W_limit_mA is named" "nolim.csv.*W_limit_mA" "$DT" fraction nolim.csv --threshold-mA 100
