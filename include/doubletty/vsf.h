@@ -23,21 +23,10 @@
 #ifndef DOUBLETTY_VSF_H
 #define DOUBLETTY_VSF_H
 #include <stddef.h>
+#include "doubletty/sky.h"
 #include "doubletty/status.h"
 
-/* The great-circle angle between two directions [rad].
- *
- * Given:    ra1, dec1, ra2, dec2   [deg]
- * Returned: the angle in [0, pi]
- * Notes:    the Vincenty form of the great-circle distance (the special
- *           case of Vincenty 1975, Survey Review 23, 88, for a sphere),
- *           atan2(sqrt(a^2 + b^2), c) with
- *             a = cos d2 sin dl, b = cos d1 sin d2 - sin d1 cos d2 cos dl,
- *             c = sin d1 sin d2 + cos d1 cos d2 cos dl,
- *           accurate at every angle, 0 and pi included (the arccos of the
- *           dot product loses half the digits below an arcsecond); the
- *           form astropy uses for SkyCoord.separation. */
-double dt_sky_separation(double ra1, double dec1, double ra2, double dec2);
+/* (dt_sky_separation, the angle between sightlines: sky.h) */
 
 typedef struct dt_vsf_point {
   double ra_deg, dec_deg;   /* ICRS position [deg] */

@@ -23,13 +23,6 @@ struct dt_vsf {
 
 #define DEG (M_PI / 180.0)
 
-double dt_sky_separation(double ra1, double dec1, double ra2, double dec2) {
-  double dl = (ra2 - ra1) * DEG, d1 = dec1 * DEG, d2 = dec2 * DEG;
-  double sdl = sin(dl), cdl = cos(dl), s1 = sin(d1), c1 = cos(d1), s2 = sin(d2), c2 = cos(d2);
-  double a = c2 * sdl, b = c1 * s2 - s1 * c2 * cdl, c = s1 * s2 + c1 * c2 * cdl;
-  return atan2(hypot(a, b), c);
-}
-
 static double sep_kpc(const dt_vsf_point *a, const dt_vsf_point *b, double scale) {
   return dt_sky_separation(a->ra_deg, a->dec_deg, b->ra_deg, b->dec_deg) / DEG * 3600.0 * scale;
 }
