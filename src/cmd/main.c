@@ -23,6 +23,7 @@ static const command commands[] = {
     {"compare", cmd_compare, "two sessions' verdicts side by side, Cohen's kappa"},
     {"fraction", cmd_fraction, "detection fraction of a survey with binomial intervals"},
     {"vsf", cmd_vsf, "velocity structure function of sightline pairs, bootstrap errors"},
+    {"map", cmd_map, "the sightlines on the sky: detections, limits, velocities"},
 };
 
 /* Levenshtein distance of two short words (insert, delete, substitute);

@@ -220,6 +220,7 @@ void fig_text(cairo_t *cr, double x, double y, double size, double ax, double ay
   cairo_move_to(cr, -ax * te.x_advance, dy);
   cairo_show_text(cr, s);
   cairo_restore(cr);
+  cairo_new_path(cr); /* no current point left behind for the next path */
 }
 
 void fig_marker(cairo_t *cr, double x, double y, double r, int m, int filled) {

@@ -1,0 +1,243 @@
+/* doubletty map — where the sightlines are: every sightline on the tangent
+ * plane about the sample's centre (core sky.h), marked detected, not
+ * detected (with its limit) or left out by the counting rule of catalog.h,
+ * detections coloured by velocity. */
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "../ui/grid.h"
+#include "../ui/plot.h"
+#include "cli.h"
+#include "commands.h"
+#include "doubletty/csv.h"
+#include "doubletty/num.h"
+#include "doubletty/sky.h"
+#include "survey.h"
+
+static void usage(FILE *f) {
+  fprintf(f,
+          "usage: doubletty map CATALOGUE... [options]\n"
+          "The sightlines on the sky (tangent-plane projection about their centre):\n"
+          "detected (coloured by velocity), not detected (with the limit), left out.\n\n"
+          "options:\n"
+          "  --threshold-mA W     count by the rule of 'fraction' at W [mA] (default: verdicts)\n"
+          "  --threshold-logN N   or at log10 N [cm-2]\n"
+          "  --vmax V             colour scale -V..+V [km/s] (default: the largest |v|)\n"
+          "  --system NAME        the system (default target)\n"
+          "  --doublet NAME       the doublet, when the catalogues hold several\n"
+          "  --with TABLE.csv     extra columns joined by 'name'\n"
+          "  -o OUT.csv           write the table here (default: standard output)\n"
+          "  --figure FILE        draw the map into FILE (.pdf, .png, .svg)\n"
+          "  --force              replace existing output files\n"
+          "  -h, --help           this text\n"
+          "output columns: name,ra_deg,dec_deg,x_arcmin,y_arcmin,status,v_kms,limit\n");
+}
+
+static int draw(FILE *f, dt_fig_format fmt, const dt_fig_page *pg, const void *what) {
+  return dt_fig_map_write(f, fmt, pg, what);
+}
+
+static const char *const status_name[3] = {"detected", "not-detected", "left-out"};
+
+/* The map in the terminal: one symbol per sightline, east to the left. */
+static void tmap(const dt_fig_map_point *pt, size_t n, double half) {
+  enum { W = 56, H = 24 };
+  dt_plot p;
+  dt_grid g;
+  memset(&p, 0, sizeof p);
+  memset(&g, 0, sizeof g);
+  if (dt_plot_begin(&p, DT_PLOT_ASCII, W, H, -half, half, -half, half) != 0 || dt_grid_reset(&g, W + 2, H + 2) != 0) {
+    dt_plot_free(&p);
+    dt_grid_free(&g);
+    return;
+  }
+  static const char *const sym[3] = {"*", "v", "x"};
+  for (int pass = 2; pass >= 0; pass--)
+    for (size_t i = 0; i < n; i++) {
+      if ((int)pt[i].mark != pass || !isfinite(pt[i].x)) continue;
+      int row = (int)lround((half - pt[i].y) / (2 * half) * (H - 1));
+      dt_plot_mark(&p, -pt[i].x, row, sym[pass], DT_R_FLUX, 0); /* east left */
+    }
+  dt_plot_render(&p, &g, 1, 1);
+  dt_grid_fill(&g, 0, 0, W + 2, 1, "-", DT_R_AXIS, 0, 0);
+  dt_grid_fill(&g, 0, H + 1, W + 2, 1, "-", DT_R_AXIS, 0, 0);
+  dt_grid_fill(&g, 0, 1, 1, H, "|", DT_R_AXIS, 0, 0);
+  dt_grid_fill(&g, W + 1, 1, 1, H, "|", DT_R_AXIS, 0, 0);
+  char row[4 * (W + 4)];
+  printf("sky map (N up, E left; %.3g arcmin across): * detected, v not detected, x left out\n", 2 * half);
+  for (int r = 0; r < H + 2; r++) printf("%s\n", dt_grid_row(&g, r, row, sizeof row));
+  printf("\n");
+  dt_plot_free(&p);
+  dt_grid_free(&g);
+}
+
+int cmd_map(int argc, char **argv) {
+  survey_opts so = {0};
+  double thr = NAN, vmax = NAN;
+  dt_threshold_kind kind = DT_THRESHOLD_NONE;
+  static const struct option longopts[] = {{"help", no_argument, NULL, 'h'},
+                                           {"threshold-mA", required_argument, NULL, 1},
+                                           {"threshold-logN", required_argument, NULL, 2},
+                                           {"vmax", required_argument, NULL, 3},
+                                           SURVEY_LONGOPTS,
+                                           {NULL, 0, NULL, 0}};
+  int opt;
+  cli_getopt_reset();
+  while ((opt = getopt_long(argc, argv, ":ho:", longopts, NULL)) != -1) {
+    if (survey_opt(opt, optarg, &so)) continue;
+    switch (opt) {
+    case 'h': usage(stdout); return 0;
+    case 1:
+    case 2:
+      if (kind != DT_THRESHOLD_NONE) {
+        cli_errorf("map: one threshold at a time (--threshold-mA or --threshold-logN)");
+        return 2;
+      }
+      if (cli_parse_double(opt == 1 ? "--threshold-mA" : "--threshold-logN", optarg, &thr)) return 2;
+      if (!isfinite(thr)) {
+        cli_errorf("map: the threshold must be a finite number");
+        return 2;
+      }
+      kind = opt == 1 ? DT_THRESHOLD_W_MA : DT_THRESHOLD_LOGN;
+      break;
+    case 3:
+      if (cli_parse_double("--vmax", optarg, &vmax)) return 2;
+      if (!(vmax > 0 && isfinite(vmax))) {
+        cli_errorf("map: --vmax: %s is not a positive velocity", optarg);
+        return 2;
+      }
+      break;
+    default: return cli_opt_error("map", opt, argv);
+    }
+  }
+  char **files = argv + optind;
+  int nfiles = argc - optind;
+  cli_out tab, fig;
+  dt_fig_format fmt = DT_FIG_PDF;
+  int rc = survey_check_outputs("map", &so, files, nfiles, &tab, &fig, &fmt);
+  if (rc) return rc;
+  dt_catalog c;
+  dt_fig_map_point *pt = NULL;
+  double *ra = NULL, *dec = NULL;
+  if ((rc = survey_load("map", files, nfiles, &so, &c))) goto done;
+  if (survey_need("map", &c, "ra_deg") || survey_need("map", &c, "dec_deg") ||
+      (kind == DT_THRESHOLD_W_MA && (survey_need("map", &c, "W_mA") || survey_need("map", &c, "W_limit_mA"))) ||
+      (kind == DT_THRESHOLD_LOGN && survey_need("map", &c, "logN_limit"))) {
+    rc = 1;
+    goto done;
+  }
+  pt = calloc(c.n, sizeof *pt);
+  ra = malloc(c.n * sizeof *ra);
+  dec = malloc(c.n * sizeof *dec);
+  if (!pt || !ra || !dec) {
+    cli_errorf("out of memory");
+    rc = 1;
+    goto done;
+  }
+  size_t npos = 0, nopos = 0;
+  for (size_t i = 0; i < c.n; i++)
+    if (isfinite(c.s[i].ra_deg) && isfinite(c.s[i].dec_deg) && fabs(c.s[i].dec_deg) <= 90) {
+      ra[npos] = c.s[i].ra_deg;
+      dec[npos++] = c.s[i].dec_deg;
+    } else {
+      nopos++;
+    }
+  double ra0, dec0;
+  if (dt_sky_centre(ra, dec, npos, &ra0, &dec0) != 0) {
+    cli_errorf("map: no sightline with a position (columns ra_deg, dec_deg)");
+    rc = 1;
+    goto done;
+  }
+  if (nopos) cli_errorf("map: note: %zu sightline%s without a position left off the map", nopos, nopos == 1 ? "" : "s");
+  double vabs = 0, half = 0;
+  size_t far = 0;
+  for (size_t i = 0; i < c.n; i++) {
+    const dt_sightline *s = &c.s[i];
+    dt_fig_map_point *q = &pt[i];
+    q->label = s->name;
+    q->x = q->y = q->v_kms = q->limit = NAN;
+    double xi, eta;
+    if (isfinite(s->ra_deg) && isfinite(s->dec_deg) && fabs(s->dec_deg) <= 90) {
+      if (dt_sky_gnomonic(s->ra_deg, s->dec_deg, ra0, dec0, &xi, &eta) == 0 && hypot(xi, eta) < 60) {
+        q->x = 60 * xi;
+        q->y = 60 * eta;
+        half = fmax(half, fmax(fabs(q->x), fabs(q->y)));
+      } else {
+        far++;
+      }
+    }
+    dt_count k = dt_sightline_count(s, kind, thr);
+    q->mark = k == DT_COUNT_DETECTION ? DT_FIG_MARK_DETECTED
+              : k == DT_COUNT_NONDETECTION ? DT_FIG_MARK_NOT_DETECTED : DT_FIG_MARK_LEFT_OUT;
+    if (k == DT_COUNT_DETECTION) {
+      double v, sv;
+      dt_err e;
+      if (dt_sightline_velocity(&c, i, DT_VELOCITY_MEAN, &v, &sv, &e) == DT_OK) {
+        q->v_kms = v;
+        vabs = fmax(vabs, fabs(v));
+      }
+    }
+    if (s->verdict == DT_VERDICT_NOT_DETECTED)
+      q->limit = kind == DT_THRESHOLD_LOGN ? s->logN_limit : s->W_limit_mA;
+  }
+  if (far)
+    cli_errorf("map: note: %zu sightline%s more than 60 deg from the centre left off the map", far, far == 1 ? "" : "s");
+  if (!isfinite(vmax)) vmax = vabs > 0 ? vabs : 100;
+
+  if (!so.out && survey_stdout_tty()) tmap(pt, c.n, half > 0 ? half * 1.05 : 1);
+  if (cli_out_open(&tab)) {
+    rc = 1;
+    goto done;
+  }
+  dt_csv w;
+  dt_csv_init(&w, tab.f);
+  char num[64];
+  dt_csv_comment(&w, "program", "doubletty map " DT_VERSION);
+  dt_num_format(num, sizeof num, ra0);
+  dt_csv_comment(&w, "centre_ra_deg", num);
+  dt_num_format(num, sizeof num, dec0);
+  dt_csv_comment(&w, "centre_dec_deg", num);
+  dt_csv_comment(&w, "projection", "gnomonic (TAN); x east, y north");
+  dt_csv_comment(&w, "limit", kind == DT_THRESHOLD_LOGN ? "logN_limit" : "W_limit_mA");
+  const char *head[] = {"name", "ra_deg", "dec_deg", "x_arcmin", "y_arcmin", "status", "v_kms", "limit"};
+  for (int h = 0; h < 8; h++) dt_csv_text(&w, head[h]);
+  dt_csv_end(&w);
+  for (size_t i = 0; i < c.n; i++) {
+    dt_csv_text(&w, c.s[i].name);
+    dt_csv_num(&w, c.s[i].ra_deg);
+    dt_csv_num(&w, c.s[i].dec_deg);
+    dt_csv_fixed(&w, pt[i].x, 4);
+    dt_csv_fixed(&w, pt[i].y, 4);
+    dt_csv_text(&w, status_name[pt[i].mark]);
+    dt_csv_fixed(&w, pt[i].v_kms, 3);
+    dt_csv_num(&w, pt[i].limit);
+    dt_csv_end(&w);
+  }
+  if (dt_csv_error(&w)) {
+    cli_errorf("map: cannot write the table");
+    cli_out_abort(&tab);
+    rc = 1;
+    goto done;
+  }
+  if (cli_out_commit(&tab)) {
+    rc = 1;
+    goto done;
+  }
+  if (so.figure) {
+    char title[128], centre[128];
+    snprintf(title, sizeof title, "Sightlines: %s, system %s", c.s[0].doublet, so.system ? so.system : "target");
+    dt_num_snprintf(centre, sizeof centre, "centre RA %.4f\xc2\xb0 Dec %+.4f\xc2\xb0 (ICRS), gnomonic projection%s", ra0,
+                    dec0, kind == DT_THRESHOLD_LOGN ? "; limits: log N" : "; limits: W [m\xc3\x85]");
+    dt_fig_map m = {title, centre, vmax, "", c.n, pt, NULL};
+    rc = survey_write_figure("map", &fig, fmt, draw, &m);
+  }
+done:
+  free(pt);
+  free(ra);
+  free(dec);
+  dt_catalog_free(&c);
+  return rc;
+}
