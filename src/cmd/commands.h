@@ -13,4 +13,5 @@ int cmd_compare(int argc, char **argv);
 int cmd_fraction(int argc, char **argv);
 int cmd_vsf(int argc, char **argv);
 int cmd_map(int argc, char **argv);
+int cmd_figure(int argc, char **argv);
 #endif

@@ -24,6 +24,7 @@ static const command commands[] = {
     {"fraction", cmd_fraction, "detection fraction of a survey with binomial intervals"},
     {"vsf", cmd_vsf, "velocity structure function of sightline pairs, bootstrap errors"},
     {"map", cmd_map, "the sightlines on the sky: detections, limits, velocities"},
+    {"figure", cmd_figure, "a velocity-stack figure per spectrum (PDF, PNG, SVG)"},
 };
 
 /* Levenshtein distance of two short words (insert, delete, substitute);

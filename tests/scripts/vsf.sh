@@ -98,6 +98,14 @@ check "the same seed gives the same table" cmp -s s1.csv s2.csv
 "$DT" vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 30 --seed 10 -o s3.csv 2>/dev/null
 check "another seed, other errors" sh -c '! cmp -s s1.csv s3.csv'
 
+# progress on standard error only when it is a terminal
+"$DT" vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 300 -o /dev/null --force 2>plain.err
+check "no terminal: no progress line" sh -c "! grep -q 'left' plain.err"
+if need_tool script "progress in a terminal"; then
+  script -qc "'$DT' vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 300 -o /dev/null --force" /dev/null >tty.txt 2>&1
+  check "terminal: progress with the time left" grep -q "vsf: bootstrap  [0-9]*/300 .*left" tty.txt
+fi
+
 # bad input
 expect_fail "no scale" "--distance-mpc D or --kpc-per-arcsec" "$DT" vsf grad.csv
 expect_fail "both scales" "one of them" "$DT" vsf grad.csv --distance-mpc 3 --kpc-per-arcsec 1
