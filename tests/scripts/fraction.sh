@@ -64,6 +64,20 @@ PYEOF
   check "export FITS (astropy Table.write) gives the same counts" [ "$(row outf.csv 2 | cut -d, -f3-5)" = "2,1,1" ]
 fi
 
+# a real session exported as CSV and as FITS: the same counts
+export LANG=C.UTF-8 LC_ALL=C.UTF-8
+if "$DT" demo demo >/dev/null 2>&1; then
+  printf 'demo/vpq01.fits vsys=512 R=3690 name=VPQ01\ndemo/vpq07.fits vsys=512 R=3690 name=VPQ07\ndemo/vpq03.fits vsys=512 R=3690 name=VPQ03\n' >q.list
+  printf 'verdict-detected\nverdict-not-detected\nverdict-unsure\nquit\n' >keys
+  "$DT" inspect --list q.list --session s.session --replay-keys keys >/dev/null 2>&1
+  "$DT" export s.session -o s.csv 2>/dev/null && "$DT" export s.session -o s.fits 2>/dev/null
+  "$DT" fraction s.csv >sc.csv 2>/dev/null; "$DT" fraction s.fits >sf.csv 2>/dev/null
+  check "export CSV: verdicts detected, not-detected, unsure: n=2 k=1 excluded=1" [ "$(row sc.csv 2 | cut -d, -f3-5)" = "2,1,1" ]
+  check "export FITS gives the same table as its CSV" cmp -s sc.csv sf.csv
+else
+  bad "demo survey written"
+fi
+
 # the intervals against SciPy (scipy.stats.binomtest(k, n).proportion_ci for
 # wilson and exact; scipy.stats.beta.ppf for Jeffreys, Brown, Cai & DasGupta
 # 2001, Statistical Science 16, 101, section 4.1.2)
