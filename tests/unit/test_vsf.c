@@ -59,6 +59,7 @@ int main(void) {
     if (b[k].npairs && fabs(b[k].vsf - a * b[k].r_mean) > 1e-9 * b[k].vsf) exact = 0;
   }
   CHECK(exact, "gradient: S1 = a <r> in every bin");
+  CHECK(pairs > 100, "gradient: %ld pairs in the bins", pairs);
   CHECK(dt_vsf_bootstrap(w, 50, 7, b, NULL, NULL) == DT_OK, "bootstrap runs");
   double g, ge, la;
   size_t used;
