@@ -4,8 +4,8 @@
  *
  * A catalogue has one row per component; a system without components has
  * one row with an empty component (or component 0), carrying its limits.
- * Rows of one sightline share name, doublet and system (and, in a `fit`
- * CSV, index).  Every column of the first row is kept as text, so a
+ * Rows of one sightline share name, doublet and system, and in a `fit`
+ * CSV, index.  Every column of the first row is kept as text, so a
  * command may bin by any column (dt_catalog_text); the columns the
  * statistics need are parsed once into dt_sightline.  Extra tables joined
  * by name (dt_catalog_join) add columns the same way.
@@ -13,7 +13,7 @@
  * The verdict of a sightline is the column `verdict` where it is present
  * and not empty (a session's judgement), else `suggested` (the first
  * pass's).  Where there is no column `system`, every row is the target's
- * system ("target").
+ * system, "target".
  *
  * The counting rule (dt_sightline_count) decides whether a sightline can
  * tell if absorption above a threshold is there:

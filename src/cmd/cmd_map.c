@@ -26,7 +26,7 @@ static void usage(FILE *f) {
           "  --threshold-mA W     count by the rule of 'fraction' at W [mA] (default: verdicts)\n"
           "  --threshold-logN N   or at log10 N [cm-2]\n"
           "  --vmax V             colour scale -V..+V [km/s] (default: the largest |v|)\n"
-          "  --system NAME        the system (default target)\n"
+          "  --system NAME        which system: default target\n"
           "  --doublet NAME       the doublet, when the catalogues hold several\n"
           "  --with TABLE.csv     extra columns joined by 'name'\n"
           "  -o OUT.csv           write the table here (default: standard output)\n"

@@ -34,7 +34,7 @@ static void usage(FILE *f) {
           "                        strongest (the component of largest N), aod (columns\n"
           "                        v_aod_kms, v_aod_err)\n"
           "  --fit-range R1:R2     fit the slope over bins with R1 <= r <= R2 [kpc] (default all)\n"
-          "  --system NAME         the system (default target)\n"
+          "  --system NAME         which system: default target\n"
           "  --doublet NAME        the doublet, when the catalogues hold several\n"
           "  --with TABLE.csv      extra columns joined by 'name'\n"
           "  -o OUT.csv            write the table here (default: standard output)\n"

@@ -26,6 +26,7 @@ int cli_out_check(cli_out *o, const char *cmd, const char *path, int force) {
   o->exists = 1;
   o->dev = st.st_dev;
   o->ino = st.st_ino;
+  o->direct = !S_ISREG(st.st_mode);
   if (!force && S_ISREG(st.st_mode)) {
     cli_errorf("%s: %s: file exists; use --force to replace it", cmd, path);
     return 2;
@@ -55,6 +56,13 @@ int cli_out_is_input(const cli_out *o, const char *input) {
 
 int cli_out_open(cli_out *o) {
   if (!o->path) return 0;
+  if (o->direct) {
+    if (!(o->f = fopen(o->path, "w"))) {
+      cli_errorf("%s: %s: cannot write: %s", o->cmd, o->path, strerror(errno));
+      return 1;
+    }
+    return 0;
+  }
   size_t len = strlen(o->path) + 16;
   o->tmp = malloc(len);
   if (!o->tmp) {
@@ -83,6 +91,12 @@ int cli_out_commit(cli_out *o) {
   int bad = fflush(o->f) != 0 || ferror(o->f);
   if (!o->path) {
     if (bad) cli_errorf("%s: cannot write to standard output", o->cmd);
+    return bad;
+  }
+  if (o->direct) {
+    bad |= fclose(o->f) != 0;
+    o->f = NULL;
+    if (bad) cli_errorf("%s: %s: cannot write: %s", o->cmd, o->path, strerror(errno));
     return bad;
   }
   bad |= fsync(fileno(o->f)) != 0;

@@ -4,7 +4,10 @@
  * into place only when everything was written, so an interrupted or failed
  * run leaves the old file (or none).  An existing file is replaced only with
  * --force, and never when it is one of the run's inputs (same device and
- * inode: a spectrum, a list, a session, a shard), force or not. */
+ * inode: a spectrum, a list, a session, a shard), force or not.  A target
+ * that exists and is not a regular file (a device such as /dev/null, a
+ * named pipe) is written in place: renaming over it would replace the
+ * device itself. */
 #ifndef DT_OUTFILE_H
 #define DT_OUTFILE_H
 #include <stdio.h>
@@ -16,6 +19,8 @@ typedef struct cli_out {
   char *tmp;         /* the temporary file while writing */
   FILE *f;           /* where to write (stdout or the temporary file) */
   int exists;        /* the target exists: dev/ino identify it */
+  int direct;        /* the target is not a regular file (/dev/null, a pipe):
+                        written in place, never replaced */
   dev_t dev;
   ino_t ino;
 } cli_out;

@@ -10,7 +10,7 @@
 #include "outfile.h"
 
 typedef struct survey_opts {
-  const char *system;   /* --system (NULL: target) */
+  const char *system;   /* --system; NULL: target */
   const char *doublet;  /* --doublet (NULL: the one there is) */
   const char *with;     /* --with TABLE.csv */
   const char *out;      /* -o OUT.csv (NULL: standard output) */

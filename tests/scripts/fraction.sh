@@ -137,6 +137,15 @@ if need_tool script "the plot in a terminal"; then
   check "terminal (C locale): plain ASCII" sh -c "grep -Eq '^[ 0-9.]*[|].*o' tty2.txt && ! LC_ALL=C grep -q '[^ -~]' tty2.txt"
 fi
 
+# an output that is not a regular file (a named pipe) is written in place,
+# never replaced by a rename
+mkfifo pipe
+timeout 10 cat pipe >frompipe.csv &
+"$DT" fraction cat.csv -o pipe --force 2>/dev/null
+wait
+check "a named pipe stays a pipe" [ -p pipe ]
+check "... and the table went through it" grep -q "^bin_lo,bin_hi" frompipe.csv
+
 # bad input: one clear message, nonzero exit
 head -2 exp.csv | sed 's/W_lim_mA/W_other/' >nolim.csv
 expect_fail "a catalogue without W_limit_mA is named" "nolim.csv.*W_limit_mA" "$DT" fraction nolim.csv --threshold-mA 100

@@ -48,7 +48,7 @@ PYEOF
   check "x, y equal astropy WCS TAN offsets to 1e-4 arcmin" grep -q "^result 0" py.out
 fi
 for f in m.pdf m.png m.svg; do
-  "$DT" map cat.csv --figure $f -o /dev/null --force 2>/dev/null
+  "$DT" map cat.csv --figure $f -o out.csv --force 2>/dev/null
   check "figure $f written" [ -s $f ]
 done
 if need_py "figure files parsed"; then

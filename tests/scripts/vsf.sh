@@ -83,7 +83,7 @@ fi
 
 # figures, and a seed that repeats
 for f in v.pdf v.png v.svg; do
-  "$DT" vsf grad.csv --kpc-per-arcsec 1 --bins 1,4,16,64,256 --bootstrap 20 --figure $f -o /dev/null --force 2>/dev/null
+  "$DT" vsf grad.csv --kpc-per-arcsec 1 --bins 1,4,16,64,256 --bootstrap 20 --figure $f -o out.csv --force 2>/dev/null
   check "figure $f written" [ -s $f ]
 done
 if need_py "figure files parsed"; then
@@ -99,10 +99,10 @@ check "the same seed gives the same table" cmp -s s1.csv s2.csv
 check "another seed, other errors" sh -c '! cmp -s s1.csv s3.csv'
 
 # progress on standard error only when it is a terminal
-"$DT" vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 300 -o /dev/null --force 2>plain.err
+"$DT" vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 300 -o out.csv --force 2>plain.err
 check "no terminal: no progress line" sh -c "! grep -q 'left' plain.err"
 if need_tool script "progress in a terminal"; then
-  script -qc "'$DT' vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 300 -o /dev/null --force" /dev/null >tty.txt 2>&1
+  script -qc "'$DT' vsf grad.csv --kpc-per-arcsec 1 --nbins 4 --bootstrap 300 -o out.csv --force" /dev/null >tty.txt 2>&1
   check "terminal: progress with the time left" grep -q "vsf: bootstrap  [0-9]*/300 .*left" tty.txt
 fi
 
