@@ -23,10 +23,10 @@
 #ifndef DOUBLETTY_VSF_H
 #define DOUBLETTY_VSF_H
 #include <stddef.h>
-#include "doubletty/sky.h"
+#include "doubletty/sphere.h"
 #include "doubletty/status.h"
 
-/* (dt_sky_separation, the angle between sightlines: sky.h) */
+/* (dt_sphere_separation, the angle between sightlines: sky.h) */
 
 typedef struct dt_vsf_point {
   double ra_deg, dec_deg;   /* ICRS position [deg] */

@@ -14,7 +14,7 @@
 #include "commands.h"
 #include "doubletty/csv.h"
 #include "doubletty/num.h"
-#include "doubletty/sky.h"
+#include "doubletty/sphere.h"
 #include "survey.h"
 
 static void usage(FILE *f) {
@@ -146,7 +146,7 @@ int cmd_map(int argc, char **argv) {
       nopos++;
     }
   double ra0, dec0;
-  if (dt_sky_centre(ra, dec, npos, &ra0, &dec0) != 0) {
+  if (dt_sphere_centre(ra, dec, npos, &ra0, &dec0) != 0) {
     cli_errorf("map: no sightline with a position (columns ra_deg, dec_deg)");
     rc = 1;
     goto done;
@@ -161,7 +161,7 @@ int cmd_map(int argc, char **argv) {
     q->x = q->y = q->v_kms = q->limit = NAN;
     double xi, eta;
     if (isfinite(s->ra_deg) && isfinite(s->dec_deg) && fabs(s->dec_deg) <= 90) {
-      if (dt_sky_gnomonic(s->ra_deg, s->dec_deg, ra0, dec0, &xi, &eta) == 0 && hypot(xi, eta) < 60) {
+      if (dt_sphere_gnomonic(s->ra_deg, s->dec_deg, ra0, dec0, &xi, &eta) == 0 && hypot(xi, eta) < 60) {
         q->x = 60 * xi;
         q->y = 60 * eta;
         half = fmax(half, fmax(fabs(q->x), fabs(q->y)));

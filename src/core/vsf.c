@@ -24,7 +24,7 @@ struct dt_vsf {
 #define DEG (M_PI / 180.0)
 
 static double sep_kpc(const dt_vsf_point *a, const dt_vsf_point *b, double scale) {
-  return dt_sky_separation(a->ra_deg, a->dec_deg, b->ra_deg, b->dec_deg) / DEG * 3600.0 * scale;
+  return dt_sphere_separation(a->ra_deg, a->dec_deg, b->ra_deg, b->dec_deg) / DEG * 3600.0 * scale;
 }
 
 void dt_vsf_range(const dt_vsf_point *p, size_t n, double scale, double *rmin, double *rmax) {

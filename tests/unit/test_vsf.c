@@ -25,13 +25,13 @@ static const double sep_ref[][5] = {
 int main(void) {
   for (size_t i = 0; i < sizeof sep_ref / sizeof sep_ref[0]; i++) {
     const double *c = sep_ref[i];
-    double s = dt_sky_separation(c[0], c[1], c[2], c[3]);
+    double s = dt_sphere_separation(c[0], c[1], c[2], c[3]);
     /* relative 1e-9, or 2e-17 rad (4 micro-arcsec: the rounding of the
      * input degrees themselves, 2 ulp of 150 deg) */
     CHECK_CLOSE(s, c[4], fmax(1e-9 * c[4], 2e-17), "separation (%g,%g)-(%g,%g) = %.6g rad (astropy SkyCoord.separation)", c[0], c[1],
               c[2], c[3], c[4]);
   }
-  CHECK(dt_sky_separation(33, -7, 33, -7) == 0, "a point from itself: 0");
+  CHECK(dt_sphere_separation(33, -7, 33, -7) == 0, "a point from itself: 0");
 
   /* A linear gradient along the equator: v = a x, x the offset [kpc].
    * Pairs at separation r differ by exactly a r, so S1 = a <r> in every

@@ -1,7 +1,7 @@
-/* Positions on the sky: the angle between two directions and the
+/* Geometry of the sky sphere: the angle between two directions and the
  * tangent-plane (gnomonic) projection about a centre. */
-#ifndef DOUBLETTY_SKY_H
-#define DOUBLETTY_SKY_H
+#ifndef DOUBLETTY_SPHERE_H
+#define DOUBLETTY_SPHERE_H
 #include <stddef.h>
 
 /* The great-circle angle between two directions [rad].
@@ -16,7 +16,7 @@
  *           accurate at every angle, 0 and pi included (the arccos of the
  *           dot product loses half the digits below an arcsecond); the
  *           form astropy uses for SkyCoord.separation. */
-double dt_sky_separation(double ra1, double dec1, double ra2, double dec2);
+double dt_sphere_separation(double ra1, double dec1, double ra2, double dec2);
 
 /* The gnomonic (tangent-plane, FITS "TAN") projection about (ra0, dec0).
  *
@@ -31,10 +31,10 @@ double dt_sky_separation(double ra1, double dec1, double ra2, double dec2);
  *           converted from radians to degrees.
  * References: Calabretta & Greisen 2002, A&A 395, 1077 (section 5.1.3, TAN);
  *           Green 1985, "Spherical Astronomy", section 13.2. */
-int dt_sky_gnomonic(double ra, double dec, double ra0, double dec0, double *xi, double *eta);
+int dt_sphere_gnomonic(double ra, double dec, double ra0, double dec0, double *xi, double *eta);
 
 /* The centre of n directions: the direction of the sum of their unit
  * vectors [deg].  -1 when n = 0 or the sum vanishes. */
-int dt_sky_centre(const double *ra, const double *dec, size_t n, double *ra0, double *dec0);
+int dt_sphere_centre(const double *ra, const double *dec, size_t n, double *ra0, double *dec0);
 
 #endif

@@ -1,18 +1,18 @@
-/* Angles and the tangent-plane projection on the sky (see sky.h). */
-#include "doubletty/sky.h"
+/* Angles and the tangent-plane projection on the sky (see sphere.h). */
+#include "doubletty/sphere.h"
 
 #include <math.h>
 
 #define DEG (M_PI / 180.0)
 
-double dt_sky_separation(double ra1, double dec1, double ra2, double dec2) {
+double dt_sphere_separation(double ra1, double dec1, double ra2, double dec2) {
   double dl = (ra2 - ra1) * DEG, d1 = dec1 * DEG, d2 = dec2 * DEG;
   double sdl = sin(dl), cdl = cos(dl), s1 = sin(d1), c1 = cos(d1), s2 = sin(d2), c2 = cos(d2);
   double a = c2 * sdl, b = c1 * s2 - s1 * c2 * cdl, c = s1 * s2 + c1 * c2 * cdl;
   return atan2(hypot(a, b), c);
 }
 
-int dt_sky_gnomonic(double ra, double dec, double ra0, double dec0, double *xi, double *eta) {
+int dt_sphere_gnomonic(double ra, double dec, double ra0, double dec0, double *xi, double *eta) {
   double da = (ra - ra0) * DEG, d = dec * DEG, d0 = dec0 * DEG;
   double cosc = sin(d0) * sin(d) + cos(d0) * cos(d) * cos(da);
   if (!(cosc > 0)) {
@@ -24,7 +24,7 @@ int dt_sky_gnomonic(double ra, double dec, double ra0, double dec0, double *xi, 
   return 0;
 }
 
-int dt_sky_centre(const double *ra, const double *dec, size_t n, double *ra0, double *dec0) {
+int dt_sphere_centre(const double *ra, const double *dec, size_t n, double *ra0, double *dec0) {
   double x = 0, y = 0, z = 0;
   for (size_t i = 0; i < n; i++) {
     double a = ra[i] * DEG, d = dec[i] * DEG;
