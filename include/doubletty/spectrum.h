@@ -54,7 +54,9 @@
  *   are then converted to dt_read_opts.out_frame (default BARYCENT); when
  *   the conversion is impossible (no time or site for TOPOCENT, no
  *   position) the read fails with DT_EINVAL saying what is missing --
- *   unless the output frame is the file's own, when nothing is converted.
+ *   unless the output frame is the file's own, when nothing is converted,
+ *   or the two frames are HELIOCEN and BARYCENT (less than 0.015 km/s
+ *   apart), when the spectrum is used as it is with a note (frame_note).
  * Air or vacuum: what the file says (CTYPE1, AIRORVAC) decides; when the
  *   file says nothing, dt_read_opts.air = 1 declares air, else vacuum is
  *   assumed.  dt_spectrum.air_from records which of the three it was.

@@ -43,6 +43,7 @@ static void usage(FILE *f) {
           "  --fwhm KMS           ... or the line-spread FWHM in km/s\n"
           "  --vsys KMS           rest frame when the list does not say\n"
           "  --atomic FILE        extra atomic data table\n"
+          CLI_FRAME_HELP
           "  --ascii              plain ASCII drawing even in a UTF-8 locale\n"
           "  --no-colour          no colours (also when NO_COLOR is set)\n"
           "  --replay-keys FILE   run headless: keys from FILE (action or key names, one a\n"
@@ -56,7 +57,8 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
-  O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR
+  O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
+  O_FRAME, O_INFRAME, O_SITE
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -72,6 +74,9 @@ static const struct option LONGOPTS[] = {
     {"vsys", required_argument, NULL, O_VSYS},
     {"atomic", required_argument, NULL, O_ATOMIC},
     {"air", no_argument, NULL, O_AIR},
+    {"frame", required_argument, NULL, O_FRAME},
+    {"in-frame", required_argument, NULL, O_INFRAME},
+    {"site", required_argument, NULL, O_SITE},
     {"ascii", no_argument, NULL, O_ASCII},
     {"no-colour", no_argument, NULL, O_NOCOLOUR},
     {"no-color", no_argument, NULL, O_NOCOLOUR},
@@ -86,6 +91,7 @@ typedef struct {
   const char *session, *user, *atomic_file;
   const char *dis[2];
   int read_only, air;
+  dt_read_opts read;     /* --frame, --in-frame, --site */
   const char **files, **lists, **from;
   size_t nfiles, nlists, nfrom;
 } inspect_args;
@@ -150,6 +156,9 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     return 0;
   case O_ATOMIC: a->atomic_file = v; return 0;
   case O_AIR: a->air = 1; return 0;
+  case O_FRAME: return cli_opt_frame("inspect", v, &a->read);
+  case O_INFRAME: return cli_opt_in_frame("inspect", v, &a->read);
+  case O_SITE: return cli_opt_site("inspect", v, &a->read);
   case O_ASCII: o->ascii = 1; return 0;
   case O_NOCOLOUR: o->colour = 0; return 0;
   case O_REPLAY: o->replay = v; return 0;
@@ -307,6 +316,7 @@ static int build_queue(dt_queue *q, const inspect_args *a, const dt_atomic *atom
                        const dt_inspect_opts *o) {
   dt_err e;
   q->air = a->air; /* --air: every spectrum queued, where its file does not say */
+  q->read = a->read;
   for (size_t i = 0; i < a->nfiles; i++)
     if (dt_queue_add_file(q, a->files[i], &e)) {
       cli_report(a->files[i], &e);

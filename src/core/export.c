@@ -8,6 +8,7 @@
 #include <unistd.h>
 
 #include "doubletty/csv.h"
+#include "doubletty/num.h"
 #include "doubletty/targets.h"
 
 /* ---- the table: columns and their values per row ---- */
@@ -48,6 +49,8 @@ static const column COLS[] = {
     {"logN_aod_weak", C_DBL, ""}, {"logN_aod_weak_err", C_DBL, ""},
     {"logN_limit_weak", C_DBL, ""}, {"nsigma", C_DBL, ""},
     {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
+    {"ra_deg", C_DBL, "deg"},     {"dec_deg", C_DBL, "deg"},
+    {"frame", C_STR, ""},
 };
 #define NCOL (sizeof COLS / sizeof COLS[0])
 
@@ -162,6 +165,19 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt
   c[i++].d = m->nsigma;
   c[i++].i = m->saturated;
   c[i++].s = m->suggested == DT_VERDICT_NONE ? "" : dt_verdict_name(m->suggested);
+  /* position and frame of the session's target record ("RA,DEC" text) */
+  double ra = NAN, dec = NAN;
+  char sky[sizeof en->target.sky];
+  snprintf(sky, sizeof sky, "%s", en->target.sky);
+  char *comma = strchr(sky, ',');
+  if (comma) {
+    *comma = '\0';
+    if (dt_num_parse(sky, &ra) != DT_OK || dt_num_parse(comma + 1, &dec) != DT_OK) ra = dec = NAN;
+  }
+  if (!(isfinite(ra) && isfinite(dec))) ra = dec = NAN;
+  c[i++].d = ra;
+  c[i++].d = dec;
+  c[i++].s = en->target.frame;
 }
 
 /* ---- CSV ---- */

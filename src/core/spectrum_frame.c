@@ -220,6 +220,18 @@ int dt_spectrum_settle_frame(dt_spectrum *s, const dt_read_opts *o, dt_err *e) {
     return DT_OK;
   }
   const char *fin = dt_frame_name(s->frame_in), *fout = dt_frame_name(out);
+  /* The Sun moves at most about 13 m/s around the barycentre: between these
+   * two frames a spectrum that lacks what the exact conversion needs is
+   * used as it is, and says so. */
+  int helio_bary = (s->frame_in == DT_FRAME_HELIOCEN && out == DT_FRAME_BARYCENT) ||
+                   (s->frame_in == DT_FRAME_BARYCENT && out == DT_FRAME_HELIOCEN);
+  if (helio_bary && (!s->has_pos || !s->obs.has_time)) {
+    snprintf(s->frame_note, sizeof s->frame_note,
+             "%s taken as %s (no %s to convert; the two differ by less than 0.015 km/s)", fin, fout,
+             !s->has_pos ? "position" : "time");
+    s->frame = out;
+    return DT_OK;
+  }
   if (!s->has_pos)
     return dt_err_set(e, DT_EINVAL, NULL,
                       "%s (%s) to %s needs the sky position (RA/DEC keywords or ra=/dec= in the "

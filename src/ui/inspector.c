@@ -123,6 +123,9 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   dt_session_target_init(&t, dt_queue_path(s->q, idx), entry_key(s, idx, key, sizeof key), s->q->e[idx].row);
   t.name = dt_queue_name(s->q, idx);
   t.air = s->q->e[idx].air;
+  t.read = s->q->read; /* frames: --frame, --in-frame, --site; then the list's */
+  if (s->q->e[idx].has_pos) t.read.has_pos = 1, t.read.ra = s->q->e[idx].ra, t.read.dec = s->q->e[idx].dec;
+  if (s->q->e[idx].frame != DT_FRAME_UNSET) t.read.in_frame = (dt_frame)s->q->e[idx].frame;
   initial_state(s, idx, &t.initial);
   if (dt_session_load(s->ss, &t) != DT_OK) {
     char k1[16], k2[16];
