@@ -1,0 +1,49 @@
+# Sky positions and frames carried through the program: ra=/dec=/frame= of a
+# target list, the ra_deg/dec_deg/frame columns of `fit` and `export`, and
+# the session's target record.  Spectra are the demo's (written by
+# `doubletty demo`); the expected numbers follow from the list itself
+# (sexagesimal = degrees by definition: 10:30:00 = 157.5 deg).
+. "$(dirname "$0")/../lib.sh"
+
+export LANG=C.UTF-8 LC_ALL=C.UTF-8
+"$DT" demo "$TMP/demo" >/dev/null 2>&1 || { bad "demo survey written"; finish; exit 1; }
+cd "$TMP" || exit 1
+f=$(awk '!/^#/ && NF {print $1; exit}' demo/targets.list)
+cat >l.list <<EOF2
+demo/$f vsys=512 name=A ra=10:30:00 dec=-00:30:00 frame=BARYCENT
+demo/$f vsys=512 name=B ra=157.5 dec=-0.5 frame=BARYCENT
+EOF2
+"$DT" fit --list l.list -o out.csv 2>err; rc=$?
+check "fit with ra=/dec= runs (exit $rc)" [ $rc -eq 0 ]
+hdr=$(grep -v '^#' out.csv | head -1)
+col() { echo "$hdr" | tr ',' '\n' | grep -nx "$1" | cut -d: -f1; }
+cr=$(col ra_deg); cd=$(col dec_deg); cf=$(col frame)
+check "fit CSV has ra_deg, dec_deg, frame columns" [ -n "$cr" -a -n "$cd" -a -n "$cf" ]
+grep -v '^#' out.csv | tail -n +2 | awk -F, -v r="$cr" -v d="$cd" -v f="$cf" '{print $r, $d, $f}' | sort -u >pos
+check "sexagesimal and degrees give the same ICRS position (10:30:00 = 157.5 deg)" \
+  [ "$(cat pos)" = "157.50000000 -0.50000000 BARYCENT" ]
+check "the frame is a settings line of the CSV" grep -qx "# frame=BARYCENT" out.csv
+"$DT" fit --list l.list --frame LSRK -o lsrk.csv 2>err
+cs=$(col status)
+grep -v '^#' lsrk.csv | tail -n +2 | awk -F, -v s="$cs" -v f="$cf" '{print $s, $f}' | sort -u >lk
+check "--frame LSRK: every row fitted, the frame column says LSRK" [ "$(cat lk)" = "ok LSRK" ]
+printf '%s\n' "demo/$f ra=10:30:00" >bad.list
+expect_fail "ra= without dec=: an error naming the line" "bad.list: line 1: give ra and dec together" "$DT" fit --list bad.list -o x.csv
+printf '%s\n' "demo/$f ra=25:00:00 dec=0" >bad2.list
+expect_fail "ra=25h: an error naming the line" "bad2.list: line 1: ra must be" "$DT" fit --list bad2.list -o y.csv
+printf '%s\n' "demo/$f frame=MOON" >bad3.list
+expect_fail "frame=MOON: an error naming the line" "bad3.list: line 1: frame must be" "$DT" fit --list bad3.list -o z.csv
+expect_fail "--frame MOON refused" "--frame MOON" "$DT" fit --frame MOON "demo/$f"
+
+# the session records the frame and position; export carries them
+printf 'verdict-detected\nnext-spectrum\nverdict-unsure\n' >keys
+"$DT" inspect --list l.list --frame LSRK --session s.session --replay-keys keys >/dev/null 2>&1
+check "the session's target record has frame= and sky=" sh -c "grep -q 'frame=LSRK' s.session && grep -q 'sky=157.5' s.session"
+"$DT" export s.session -o e.csv 2>err
+eh=$(head -1 e.csv)
+ecol() { echo "$eh" | tr ',' '\n' | grep -nx "$1" | cut -d: -f1; }
+er=$(ecol ra_deg); ed=$(ecol dec_deg); ef=$(ecol frame)
+check "export has ra_deg, dec_deg, frame" [ -n "$er" -a -n "$ed" -a -n "$ef" ]
+tail -n +2 e.csv | awk -F, -v r="$er" -v d="$ed" -v f="$ef" '{printf "%.6f %.6f %s\n", $r, $d, $f}' | sort -u >epos
+check "export: the position and frame of the record" [ "$(cat epos)" = "157.500000 -0.500000 LSRK" ]
+finish
