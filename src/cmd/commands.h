@@ -10,4 +10,5 @@ int cmd_keys(int argc, char **argv);
 int cmd_log(int argc, char **argv);
 int cmd_export(int argc, char **argv);
 int cmd_compare(int argc, char **argv);
+int cmd_hi(int argc, char **argv);
 #endif

@@ -21,6 +21,7 @@ static const command commands[] = {
     {"log", cmd_log, "print a session file's audit trail"},
     {"export", cmd_export, "final state per spectrum of a session, as CSV or FITS"},
     {"compare", cmd_compare, "two sessions' verdicts side by side, Cohen's kappa"},
+    {"hi", cmd_hi, "21-cm cube at every sightline: N(HI), velocity, dispersion"},
 };
 
 /* Levenshtein distance of two short words (insert, delete, substitute);
