@@ -27,9 +27,10 @@
  * sigma_W = rms dv sqrt(n), the intensity-weighted mean velocity and
  * dispersion, and the peak T_B.
  * The velocity range: the caller's window (relative to vsys), else
- * automatic: the run of channels around the brightest one above 3 times
- * the noise (noise first estimated from channel-to-channel differences,
- * 1.4826 median|dT|/sqrt 2), widened on each side by half its width. */
+ * automatic: on the spectrum smoothed over 3 channels, the run of channels
+ * around the brightest one above 3 times the (smoothed) noise -- at least 3
+ * channels, else "no-emission" -- widened on each side by half its width
+ * (noise from channel-to-channel differences, 1.4826 median|dT|/sqrt 2). */
 #ifndef DOUBLETTY_HICUBE_H
 #define DOUBLETTY_HICUBE_H
 #include <stddef.h>

@@ -384,22 +384,36 @@ static void measure(const double *vel, const double *tb, size_t n, const dt_hi_o
       return;
     }
   } else {
+    /* on the spectrum smoothed over three channels (a single noisy channel
+     * is not emission): the brightest channel, and the run around it above
+     * three times the smoothed noise, at least three channels long */
+    double *sm = buf + n;
+    for (size_t k = 0; k < n; k++) {
+      double acc = 0;
+      int cnt = 0, blank = 0;
+      for (size_t q = k > 0 ? k - 1 : 0; q <= k + 1 && q < n; q++) {
+        if (!isfinite(tb[q])) blank = 1;
+        acc += tb[q];
+        cnt++;
+      }
+      sm[k] = blank ? NAN : acc / cnt;
+    }
     size_t kp = n;
     for (size_t k = 0; k < n; k++)
-      if (isfinite(tb[k]) && (kp == n || tb[k] > tb[kp])) kp = k;
+      if (isfinite(sm[k]) && (kp == n || sm[k] > sm[kp])) kp = k;
     if (kp == n) {
       s->status = DT_HI_BLANKED;
       return;
     }
-    double thr = 3.0 * noise0;
-    if (!(tb[kp] > thr)) {
+    double thr = 3.0 * noise0 / sqrt(3.0);
+    size_t a = kp, b = kp;
+    while (a > 0 && isfinite(sm[a - 1]) && sm[a - 1] > thr) a--;
+    while (b + 1 < n && isfinite(sm[b + 1]) && sm[b + 1] > thr) b++;
+    if (!(sm[kp] > thr) || b - a + 1 < 3) {
       s->rms = noise0;
       s->status = DT_HI_NO_EMISSION;
       return;
     }
-    size_t a = kp, b = kp;
-    while (a > 0 && isfinite(tb[a - 1]) && tb[a - 1] > thr) a--;
-    while (b + 1 < n && isfinite(tb[b + 1]) && tb[b + 1] > thr) b++;
     size_t half = (b - a + 1 + 1) / 2;
     lo = a > half ? a - half : 0;
     hi = b + 1 + half < n ? b + 1 + half : n;
@@ -496,7 +510,7 @@ int dt_hicube_sample(const dt_hicube *c, double ra, double dec, const dt_hi_opts
   size_t n = c->nchan;
   s->vel = malloc(n * sizeof *s->vel);
   s->tb = malloc(n * sizeof *s->tb);
-  double *buf = malloc(n * sizeof *buf);
+  double *buf = malloc(2 * n * sizeof *buf);
   if (!s->vel || !s->tb || !buf) {
     free(buf);
     dt_hi_sample_free(s);
@@ -572,7 +586,7 @@ int dt_hicube_column_map(const dt_hicube *c, const dt_hi_opts *o, double **map, 
   double ra, dec;
   if (dt_hicube_pixel_world(c, 0.5 * (double)(c->nx - 1), 0.5 * (double)(c->ny - 1), &ra, &dec))
     return dt_err_set(e, DT_EFORMAT, NULL, "the map centre has no sky position");
-  double *vel = malloc(n * sizeof *vel), *tb = malloc(n * sizeof *tb), *buf = malloc(n * sizeof *buf);
+  double *vel = malloc(n * sizeof *vel), *tb = malloc(n * sizeof *tb), *buf = malloc(2 * n * sizeof *buf);
   double *m = malloc(c->nx * c->ny * sizeof *m);
   int rc = (!vel || !tb || !buf || !m) ? dt_err_set(e, DT_ENOMEM, NULL, "out of memory") : DT_OK;
   if (!rc) rc = velocities(c, ra, dec, o, vel, e);
