@@ -46,4 +46,15 @@ er=$(ecol ra_deg); ed=$(ecol dec_deg); ef=$(ecol frame)
 check "export has ra_deg, dec_deg, frame" [ -n "$er" -a -n "$ed" -a -n "$ef" ]
 tail -n +2 e.csv | awk -F, -v r="$er" -v d="$ed" -v f="$ef" '{printf "%.6f %.6f %s\n", $r, $d, $f}' | sort -u >epos
 check "export: the position and frame of the record" [ "$(cat epos)" = "157.500000 -0.500000 LSRK" ]
+
+# the demo's 21-cm cube works at once on the demo's list
+"$DT" hi demo/velloran_hi.fits --list demo/targets.list -o hi.csv 2>hi.err; rc=$?
+check "demo: doubletty hi runs on the demo's cube and list (exit $rc)" [ $rc -eq 0 ]
+check "demo: several sightlines have HI (status ok)" [ "$(grep -c ',ok$' hi.csv)" -ge 5 ]
+check "demo: every demo sightline has a position" sh -c "! grep -q ',no-position$' hi.csv"
+# the demo's topocentric spectra are converted (a shift of about 30 km/s in 2030 December)
+top=$(grep -l TOPOCENT demo/*.fits | head -1)
+check "demo: a topocentric spectrum is there" [ -n "$top" ]
+"$DT" info "$top" >top.info
+check "demo: info converts it to BARYCENT" grep -q "^frame       BARYCENT, converted from TOPOCENT (SPECSYS)" top.info
 finish
