@@ -1,13 +1,16 @@
 /* The inspector's screen, drawn from its state into a grid of cells.
  *
  * Layout, top to bottom (our own design):
- *   title bar     queue position, judged count, target, doublet, frame, R
+ *   title bar     queue position, judged count, target, doublet, vsys, R,
+ *                 velocity frame
  *   overview      the whole spectrum in wavelength: flux, continuum, the two
  *                 lines' positions, continuum windows; a wavelength axis
  *   line panels   one per line of the doublet, stacked on one velocity axis:
  *                 flux, 1-sigma error, continuum, total model, each
  *                 component's model, component numbers, continuum windows
- *                 (shaded), masked pixels, the cursor column
+ *                 (shaded), masked pixels, the cursor column, and where
+ *                 the night-sky Na D and [O I] lines fall (when the
+ *                 spectrum's frame is known)
  *   velocity axis
  *   table         components with errors and frozen/tied marks; chi2, BIC,
  *                 continuum; W, significance, N_a and limits per line;
@@ -22,6 +25,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/airvac.h"
+#include "doubletty/frames.h"
 #include "doubletty/model.h"
 #include "doubletty/utf8.h"
 #include "insp.h"
@@ -198,7 +203,9 @@ static void draw_title(dt_insp *s, const layout *L) {
    * then its file (cut from the left) */
   char head[64], tail[96], mid[600];
   snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
-  snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s ", s->ss->j.doublet, s->ss->j.vsys, res);
+  const char *frame = s->ss->loaded && s->ss->spec ? dt_frame_name(s->ss->spec->frame) : "";
+  snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s%s%s ", s->ss->j.doublet, s->ss->j.vsys, res,
+           frame[0] ? "  " : "", frame);
   snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
   int fixed = cells(head) + cells(tail) + flen;
   int mroom = L->w - fixed;
@@ -383,6 +390,33 @@ static void panel_curves(const panel_data *pd, int norm, double *yf, double *ys,
     }
 }
 
+/* Night-sky emission lines, standard air [Angstrom]: the sodium D doublet
+ * (NIST Atomic Spectra Database) and the [O I] airglow lines 5577, 6300,
+ * 6364 (from memory).  They are topocentric: at rest for the observer. */
+static const double sky_air_A[] = {5889.950, 5895.924, 5577.339, 6300.304, 6363.776};
+
+/* Mark where the night-sky lines fall in panel l (velocity relative to the
+ * panel's line and vsys, in the spectrum's frame): only when the frame is
+ * known (said by the file or the caller) and the topocentric one can be
+ * reached from it (the time and site of a converted spectrum). */
+static void mark_sky(dt_insp *s, dt_plot *p, const dt_doublet *d, int l, int row) {
+  const dt_spectrum *sp = s->ss->spec;
+  if (!d || !sp || !strcmp(sp->frame_from, "assumed")) return;
+  double k = 1.0; /* lambda in the spectrum's frame = k * lambda topocentric */
+  if (sp->frame != DT_FRAME_TOPOCENT) {
+    dt_err e;
+    if (!sp->has_pos || dt_frame_factor(DT_FRAME_TOPOCENT, sp->frame, sp->ra, sp->dec, &sp->obs, &k, &e))
+      return;
+  }
+  for (size_t i = 0; i < sizeof sky_air_A / sizeof sky_air_A[0]; i++) {
+    double lam = k * dt_air_to_vac(sky_air_A[i]);
+    if (lam < sp->wave[0] || lam > sp->wave[sp->n - 1]) continue;
+    double v = dt_velocity(lam, d->line[l].lambda0, s->ss->j.vsys);
+    if (v < s->view_lo || v > s->view_hi) continue;
+    dt_plot_mark(p, v, row, s->utf8 ? "\xe2\x89\x88" : "~", DT_R_WARN, DT_A_BOLD);
+  }
+}
+
 /* The velocity axis under the lower panel, the cursor's position at its
  * right end. */
 static void draw_vaxis(dt_insp *s, const layout *L, const dt_plot *p, const dt_doublet *d) {
@@ -469,6 +503,7 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     dt_plot_mark(p, s->ss->j.comp[k].v, 0, num, k == s->ss->sel ? DT_R_COMPSEL : DT_R_COMP,
                  k == s->ss->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
   }
+  mark_sky(s, p, d, l, ph > 2 ? 1 : 0); /* night-sky lines, second row */
   dt_plot_render(p, g, L->plot_x, gy);
   if (strip) draw_residuals(s, L, p, gy + ph, pd.vel, pd.flux, pd.sig, pd.model, pd.mask, n);
   /* the cursor: a tick under the plot, so the trough above stays visible */

@@ -57,4 +57,18 @@ top=$(grep -l TOPOCENT demo/*.fits | head -1)
 check "demo: a topocentric spectrum is there" [ -n "$top" ]
 "$DT" info "$top" >top.info
 check "demo: info converts it to BARYCENT" grep -q "^frame       BARYCENT, converted from TOPOCENT (SPECSYS)" top.info
+
+# the inspector: the frame in the title; night-sky lines marked ('~' with
+# --ascii) on a spectrum whose topocentric frame can be reached, not on one
+# without a site
+topb=$(basename "$top")
+helio=$(grep -l "SPECSYS = 'HELIOCEN'" demo/vp*.fits | head -1)
+printf '%s vsys=0 name=TOPO\n%s vsys=0 name=HELIO\n' "demo/$topb" "$helio" >sky.list
+printf 'quit\n' >k1
+printf 'next-spectrum\nquit\n' >k2
+"$DT" inspect --list sky.list --session sky1.session --replay-keys k1 --screen-dump scr1 --ascii --size 120x40 >/dev/null 2>&1
+"$DT" inspect --list sky.list --session sky2.session --replay-keys k2 --screen-dump scr2 --ascii --size 120x40 >/dev/null 2>&1
+check "inspector title says the frame" sh -c "head -1 scr1 | grep -q 'BARYCENT'"
+check "night-sky lines marked on the topocentric spectrum" sh -c "sed -n '2,30p' scr1 | grep -q '~'"
+check "no sky marks where the site is unknown (heliocentric file)" sh -c "! sed -n '2,30p' scr2 | grep -q '~'"
 finish
