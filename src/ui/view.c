@@ -209,6 +209,11 @@ static void draw_title(dt_insp *s, const layout *L) {
   snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
   int fixed = cells(head) + cells(tail) + flen;
   int mroom = L->w - fixed;
+  if (cells(mid) > mroom && frame[0]) { /* a narrow screen: the frame's first four letters */
+    snprintf(tail, sizeof tail, " | %s vsys %+.0f %.4s %s ", s->ss->j.doublet, s->ss->j.vsys, frame, res);
+    fixed = cells(head) + cells(tail) + flen;
+    mroom = L->w - fixed;
+  }
   if (cells(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
   if (mroom < 4) mroom = 4;
   while (cells(mid) > mroom) {
