@@ -38,6 +38,7 @@ typedef struct layout {
   int w, h;
   int ov_y, ov_h, ovaxis_y;
   int pan_y[2], pan_h;
+  int hi_y, hi_h;            /* the 21-cm panel (0 rows: none) */
   int vaxis_y;
   int gutter, plot_x, plot_w;
   int tab_x, tab_y, tab_w, tab_h;
@@ -110,7 +111,7 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
     L->tab_x = 0;
     /* rule, heading, components, fit, two lines, verdict: as many rows as
        the components need, within a share of the screen */
-    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28);
+    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28) + (s->o && s->o->hi ? 1 : 0);
     int cap = h < 28 ? 7 : h < 36 ? 9 : 13;
     L->tab_h = need < 7 ? 7 : need > cap ? cap : need;
     L->tab_y = L->status_y - L->tab_h;
@@ -119,13 +120,18 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   /* a short screen keeps its rows for the two line panels */
   L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 0;
   int rest = body - L->ov_h - (L->ov_h ? 1 : 0) - 1; /* overview axis, velocity axis */
+  if (s->o && s->o->hi && rest >= 12) { /* a quarter for the 21-cm panel */
+    L->hi_h = rest / 4 < 3 ? 3 : rest / 4;
+    rest -= L->hi_h;
+  }
   L->pan_h = rest / 2;
   if (L->ov_h) L->ov_h += rest % 2; /* an odd row goes to the overview */
   L->ov_y = 1;
   L->ovaxis_y = L->ov_y + L->ov_h;
   L->pan_y[0] = L->ov_h ? L->ovaxis_y + 1 : L->ov_y;
   L->pan_y[1] = L->pan_y[0] + L->pan_h;
-  L->vaxis_y = L->pan_y[1] + L->pan_h;
+  L->hi_y = L->pan_y[1] + L->pan_h;
+  L->vaxis_y = L->hi_y + L->hi_h;
   L->plot_x = L->gutter;
   L->plot_w = (side ? L->tab_x - 1 : w) - L->gutter;
 }
@@ -522,7 +528,46 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
   /* without an analysis the panel says so in its top row: data only */
   if (!pd.from_analysis && l == 0)
     dt_grid_text(g, L->plot_x + 1, gy, " data only: no analysis of this state ", DT_R_WARN, DT_A_REVERSE, p->w - 2);
-  if (l == 1) draw_vaxis(s, L, p, d);
+  if (l == 1 && !L->hi_h) draw_vaxis(s, L, p, d);
+}
+
+/* The 21-cm spectrum at the sightline (inspect --hi), on the panels'
+ * velocity axis: T_B against velocity relative to vsys, in the spectrum's
+ * frame. */
+static void draw_hi(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  syms y = symbols(s);
+  int gy = L->hi_y;
+  dt_grid_text(g, 1, gy, "HI", DT_R_LABEL, DT_A_BOLD, 5);
+  for (int r = 0; r < L->hi_h; r++) dt_grid_text(g, L->gutter - 1, gy + r, y.vbar, DT_R_AXIS, 0, 1);
+  dt_plot *p = &s->p;
+  const dt_doublet *d = dt_atomic_find(s->atomic, s->ss->j.doublet);
+  const dt_hi_sample *h = &s->hs;
+  if (!s->has_hi || h->status == DT_HI_OUTSIDE || !h->nchan) {
+    dt_grid_printf(g, L->plot_x + 1, gy + L->hi_h / 2, DT_R_WARN, 0, L->plot_w - 2, "21 cm: %s",
+                   s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
+  } else {
+    double *v = scratch(s, h->nchan, 0);
+    if (v) {
+      /* velocities relative to the vsys of now: (1+v1/c)(1+vs1/c) = (1+v2/c)(1+vs2/c) */
+      double f = (1 + s->hs_vsys / DT_C_KMS) / (1 + s->ss->j.vsys / DT_C_KMS);
+      double tmax = 0;
+      for (size_t i = 0; i < h->nchan; i++) {
+        v[i] = DT_C_KMS * ((1 + h->vel[i] / DT_C_KMS) * f - 1);
+        if (isfinite(h->tb[i]) && h->tb[i] > tmax) tmax = h->tb[i];
+      }
+      if (!(tmax > 0)) tmax = 1;
+      if (!dt_plot_begin(p, s->mode, L->plot_w, L->hi_h, s->view_lo, s->view_hi, -0.1 * tmax, 1.1 * tmax)) {
+        dt_plot_hline(p, 0, DT_R_REF);
+        dt_plot_line(p, v, h->tb, NULL, h->nchan, DT_R_FLUX, 0);
+        dt_plot_render(p, g, L->plot_x, gy);
+        dt_grid_printf(g, 0, gy + 1, DT_R_AXIS, 0, L->gutter - 1, "%5.1fK", tmax);
+      }
+    }
+  }
+  /* the velocity axis goes under this panel */
+  dt_plot_begin(p, s->mode, L->plot_w, 1, s->view_lo, s->view_hi, 0, 1);
+  draw_vaxis(s, L, p, d);
 }
 
 /* ------------------------------------------------------------------ table */
@@ -592,7 +637,8 @@ static void draw_table(dt_insp *s, const layout *L) {
     dt_grid_text(g, x + TC_FIX, row, b1, DT_R_WARN, 0, maxw - TC_FIX);
     row++;
   }
-  if (row > end - 4) row = end - 4;
+  int hirow = s->o && s->o->hi ? 1 : 0;
+  if (row > end - 4 - hirow) row = end - 4 - hirow;
   /* the fit */
   double chi2r = NAN, bic = NAN;
   long dof = 0;
@@ -644,6 +690,20 @@ static void draw_table(dt_insp *s, const layout *L) {
     if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
     const char *sat = m->nsat ? "  saturated px" : l == 1 && s->ss->out.saturated ? "  ratio: saturated" : "";
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
+    row++;
+  }
+  if (hirow) { /* the 21-cm numbers at this sightline */
+    const dt_hi_sample *h = &s->hs;
+    int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", "HI 21cm");
+    if (s->has_hi && h->status == DT_HI_OK)
+      dt_grid_printf(g, x + n0, row, DT_R_TEXT, 0, maxw - n0,
+                     " log N(HI) %s  v %+.1f  %s %.1f km/s  Tpeak %.2f K  (thin: lower limit)",
+                     dt_view_pm(s, b2, sizeof b2, h->logN, h->logN_err, 2),
+                     DT_C_KMS * ((1 + h->v / DT_C_KMS) * (1 + s->hs_vsys / DT_C_KMS) / (1 + j->vsys / DT_C_KMS) - 1),
+                     y.sig, h->sigma, h->tpeak);
+    else
+      dt_grid_printf(g, x + n0, row, DT_R_WARN, 0, maxw - n0, " %s",
+                     s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
     row++;
   }
   /* verdicts and note */
@@ -862,6 +922,7 @@ void dt_view_draw(dt_insp *s, int w, int h) {
   draw_overview(s, &L);
   draw_panel(s, &L, 0);
   draw_panel(s, &L, 1);
+  if (L.hi_h) draw_hi(s, &L);
   draw_table(s, &L);
   draw_status(s, &L);
   if (s->finished) draw_finished(s, &L);

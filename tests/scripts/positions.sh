@@ -71,4 +71,17 @@ printf 'next-spectrum\nquit\n' >k2
 check "inspector title says the frame" sh -c "head -1 scr1 | grep -q 'BARYCENT'"
 check "night-sky lines marked on the topocentric spectrum" sh -c "sed -n '2,30p' scr1 | grep -q '~'"
 check "no sky marks where the site is unknown (heliocentric file)" sh -c "! sed -n '2,30p' scr2 | grep -q '~'"
+
+# inspect --hi: the 21-cm panel and the N(HI) row of the table at a
+# sightline with emission (as `hi` found above), the same number as `hi`
+okname=$(awk -F, '$10 == "ok" {print $1; exit}' hi.csv)
+oklogn=$(awk -F, '$10 == "ok" {printf "%.2f", $5; exit}' hi.csv)
+grep "name=$okname\$" demo/targets.list | head -1 | sed 's|^|demo/|' >hi.list
+printf 'quit\n' >k3
+"$DT" inspect --list hi.list --hi demo/velloran_hi.fits --session hi.session --replay-keys k3 \
+  --screen-dump scr3 --ascii --size 120x44 >/dev/null 2>&1
+check "inspect --hi: the 21-cm panel is drawn" grep -q '^ HI   |' scr3
+check "inspect --hi: the table gives log N(HI) $oklogn as hi does" grep -q "HI 21cm   log N(HI) $oklogn" scr3
+expect_fail "inspect --hi with a bad cube: one error" "nosuch.fits: cannot open" \
+  "$DT" inspect --list hi.list --hi nosuch.fits --session hi2.session --replay-keys k3
 finish
