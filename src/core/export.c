@@ -8,6 +8,7 @@
 #include <unistd.h>
 
 #include "doubletty/csv.h"
+#include "doubletty/hicube.h"
 #include "doubletty/num.h"
 #include "doubletty/targets.h"
 
@@ -182,16 +183,63 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt
 
 /* ---- CSV ---- */
 
-int dt_export_csv(FILE *f, const dt_journal *j) {
+/* The 21-cm columns joined by dt_export_csv_hi, after the others. */
+static const char *const HI_COLS[] = {"logN_HI", "logN_HI_err", "v_HI_kms", "sigma_HI_kms", "T_peak_K",
+                                      "HI_status"};
+
+/* The cube at an entry's recorded position, in its recorded frame,
+ * velocities relative to its vsys.  *status: a dt_hi_status name, or
+ * "no-position" / "failed". */
+static void hi_of_entry(const dt_hicube *cube, const dt_journal_entry *en, dt_hi_sample *hs,
+                        const char **status) {
+  memset(hs, 0, sizeof *hs);
+  double ra = NAN, dec = NAN;
+  char sky[sizeof en->target.sky];
+  snprintf(sky, sizeof sky, "%s", en->target.sky);
+  char *comma = strchr(sky, ',');
+  if (comma) {
+    *comma = '\0';
+    if (dt_num_parse(sky, &ra) != DT_OK || dt_num_parse(comma + 1, &dec) != DT_OK) ra = NAN;
+  }
+  if (!(isfinite(ra) && isfinite(dec))) {
+    *status = "no-position";
+    return;
+  }
+  dt_hi_opts ho;
+  memset(&ho, 0, sizeof ho);
+  if (!en->target.frame[0] || dt_frame_parse(en->target.frame, &ho.frame)) ho.frame = DT_FRAME_BARYCENT;
+  ho.vsys = en->state.vsys;
+  dt_err e;
+  if (dt_hicube_sample(cube, ra, dec, &ho, hs, &e) != DT_OK) {
+    *status = "failed";
+    return;
+  }
+  *status = dt_hi_status_name(hs->status);
+}
+
+static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube);
+
+int dt_export_csv(FILE *f, const dt_journal *j) { return write_csv(f, j, NULL); }
+
+int dt_export_csv_hi(FILE *f, const dt_journal *j, const dt_hicube *cube) {
+  return write_csv(f, j, cube);
+}
+
+static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube) {
   dt_csv w;
   dt_csv_init(&w, f);
   for (size_t c = 0; c < NCOL; c++) dt_csv_text(&w, COLS[c].name);
+  for (size_t c = 0; cube && c < sizeof HI_COLS / sizeof HI_COLS[0]; c++) dt_csv_text(&w, HI_COLS[c]);
   dt_csv_end(&w);
   cell cells[NCOL];
   row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
     size_t nc = comp_rows(en);
+    dt_hi_sample hs;
+    const char *hstat = "";
+    memset(&hs, 0, sizeof hs);
+    if (cube) hi_of_entry(cube, en, &hs, &hstat);
     for (size_t k = nc ? 1 : 0; k <= nc; k++) {
       fill_row(en, k, cells, rt);
       for (size_t c = 0; c < NCOL; c++) {
@@ -209,8 +257,18 @@ int dt_export_csv(FILE *f, const dt_journal *j) {
         case C_DBL: dt_csv_num(&w, cells[c].d); break;
         }
       }
+      if (cube) {
+        int ok = hs.status == DT_HI_OK && !strcmp(hstat, "ok");
+        dt_csv_fixed(&w, ok ? hs.logN : NAN, 4);
+        dt_csv_fixed(&w, ok ? hs.logN_err : NAN, 4);
+        dt_csv_fixed(&w, ok ? hs.v : NAN, 2);
+        dt_csv_fixed(&w, ok ? hs.sigma : NAN, 2);
+        dt_csv_fixed(&w, ok || hs.status == DT_HI_NO_EMISSION ? hs.tpeak : NAN, 3);
+        dt_csv_text(&w, hstat);
+      }
       dt_csv_end(&w);
     }
+    dt_hi_sample_free(&hs);
   }
   return dt_csv_error(&w) ? DT_EIO : DT_OK;
 }

@@ -82,6 +82,18 @@ printf 'quit\n' >k3
   --screen-dump scr3 --ascii --size 120x44 >/dev/null 2>&1
 check "inspect --hi: the 21-cm panel is drawn" grep -q '^ HI   |' scr3
 check "inspect --hi: the table gives log N(HI) $oklogn as hi does" grep -q "HI 21cm   log N(HI) $oklogn" scr3
+# export --hi: the HI columns joined, the same numbers as hi
+printf 'verdict-detected\nquit\n' >k4
+"$DT" inspect --list hi.list --session hx.session --replay-keys k4 >/dev/null 2>&1
+"$DT" export hx.session --hi demo/velloran_hi.fits -o hx.csv 2>err; rc=$?
+check "export --hi runs (exit $rc)" [ $rc -eq 0 ]
+xh=$(head -1 hx.csv)
+xc() { echo "$xh" | tr ',' '\n' | grep -nx "$1" | cut -d: -f1; }
+xl=$(xc logN_HI); xs=$(xc HI_status)
+check "export --hi: logN_HI and HI_status columns" [ -n "$xl" -a -n "$xs" ]
+check "export --hi: log N(HI) $oklogn and status ok, as hi gives" \
+  sh -c "tail -n +2 hx.csv | awk -F, -v l=$xl -v s=$xs '{printf \"%.2f %s\\n\", \$l, \$s}' | sort -u | grep -qx '$oklogn ok'"
+expect_fail "export --hi to FITS refused" "--hi joins columns to CSV" "$DT" export hx.session --hi demo/velloran_hi.fits -o hx.fits
 expect_fail "inspect --hi with a bad cube: one error" "nosuch.fits: cannot open" \
   "$DT" inspect --list hi.list --hi nosuch.fits --session hi2.session --replay-keys k3
 finish
