@@ -47,6 +47,12 @@ check "export has ra_deg, dec_deg, frame" [ -n "$er" -a -n "$ed" -a -n "$ef" ]
 tail -n +2 e.csv | awk -F, -v r="$er" -v d="$ed" -v f="$ef" '{printf "%.6f %.6f %s\n", $r, $d, $f}' | sort -u >epos
 check "export: the position and frame of the record" [ "$(cat epos)" = "157.500000 -0.500000 LSRK" ]
 
+# log --verify refits in the recorded frame and position: an LSRK session
+# made from a list with ra=/dec= reproduces
+"$DT" log s.session --verify >verify.out 2>&1; rc=$?
+check "log --verify reproduces fits made with --frame LSRK and the list's position (exit $rc)" \
+  sh -c "[ $rc -eq 0 ] && grep -q '^reproduced' verify.out && ! grep -q MISMATCH verify.out"
+
 # the demo's 21-cm cube works at once on the demo's list
 "$DT" hi demo/velloran_hi.fits --list demo/targets.list -o hi.csv 2>hi.err; rc=$?
 check "demo: doubletty hi runs on the demo's cube and list (exit $rc)" [ $rc -eq 0 ]
