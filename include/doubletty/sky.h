@@ -3,7 +3,7 @@
  * Every position is kept in ICRS degrees.  Positions come from text
  * (degrees, or sexagesimal "hh:mm:ss.s" / "hh mm ss.s" / "12h34m56.7s" for
  * right ascension and "+dd:mm:ss" / "-dd mm ss" / "+12d34m56s" for
- * declination) and a reference system (FITS WCS Paper II, Calabretta &
+ * declination) and a frame of reference (FITS WCS Paper II, Calabretta &
  * Greisen 2002, A&A 395, 1077, section 3.1: RADESYS ICRS, FK5, FK4,
  * FK4-NO-E, GAPPT; without RADESYS, FK4 when EQUINOX < 1984, FK5 when
  * EQUINOX >= 1984, ICRS when neither is given).  Conversions to ICRS use

@@ -97,7 +97,7 @@ int dt_fits_frame_keys(fctx *c, dt_spectrum *s, const char *where, dt_err *e) {
       return bad_key(e, where, pairs[k][1], w, "not a declination (degrees or +dd:mm:ss)");
     if (isnum2 && !(dec >= -90 && dec <= 90))
       return bad_key(e, where, pairs[k][1], w, "degrees outside [-90, 90]");
-    /* reference system (FITS WCS Paper II, section 3.1) */
+    /* the RA/DEC frame: RADESYS and EQUINOX (FITS WCS Paper II, section 3.1) */
     double equinox = 0;
     int has_eq = key_any(c, "EQUINOX", w, &equinox, &isnum2);
     if (has_eq && !isnum2) return bad_key(e, where, "EQUINOX", w, "not a number");
