@@ -41,7 +41,7 @@ int dt_sky_parse_radesys(const char *text, dt_radesys *sys);
  * Given: sys and equinox (years: Julian for FK5, Besselian for FK4; 0 =
  *   the system's standard equinox, J2000 or B1950), ra, dec [deg].
  *   epoch (Besselian year of the observation, 0 = the equinox), used by
- *   FK4 for the rotation of the FK4 system (no proper motion is known).
+ *   FK4 for the rotation of the FK4 frame (no proper motion is known).
  * Returned: *ra_icrs, *dec_icrs [deg].
  * Notes: FK4 (B1950) -> FK5 J2000 by eraFk45z (Standish 1982; Aoki et al.
  *   1983), which removes the E-terms of aberration itself.  FK4 at another
