@@ -54,6 +54,19 @@ check "worked Jy/beam -> K example: peak 1.6825 K (+-0.002)" awk -F, '$1 == "cen
 # LSRK correction at that position (doubletty info on a spectrum there says how much)
 "$DT" hi vrad_K.fits --list l.list --frame LSRK -o k.csv 2>/dev/null
 check "--frame LSRK: the frame column says LSRK" grep -q '^centre,.*,LSRK,.*,ok$' k.csv
+# the HI velocity moves by the same LSRK correction the spectra get at that
+# position (itself checked against astropy in frames_astropy.sh)
+"$PY" -c "
+from astropy.io import fits
+import numpy as np
+h = fits.Header()
+h['CTYPE1'] = 'WAVE'; h['CRVAL1'] = 5800.0; h['CDELT1'] = 0.5; h['CRPIX1'] = 1.0
+h['SPECSYS'] = 'BARYCENT'; h['RA'] = 150.0; h['DEC'] = 20.0
+fits.PrimaryHDU(np.ones(50), header=h).writeto('pos.fits', overwrite=True)"
+shift=$("$DT" info --frame LSRK pos.fits 2>/dev/null | awk '/^frame /{print $7}')
+check "--frame LSRK: v_HI moves by the LSRK correction at the position ($shift km/s)" awk -F, -v s="$shift" '
+  NR == FNR { if ($1 == "centre") v = $7; next }
+  $1 == "centre" { d = $7 - v - s; exit !(s != "" && d < 0.02 && d > -0.02) }' vrad_K.csv k.csv
 # bad headers: one error line naming the problem
 expect_fail "no BUNIT: one error" "nobunit.fits: BUNIT: no BUNIT" "$DT" hi nobunit.fits --list l.list
 expect_fail "no spectral axis: one error" "nospec.fits: CTYPE: no spectral axis" "$DT" hi nospec.fits --list l.list
