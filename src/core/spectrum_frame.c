@@ -113,6 +113,9 @@ int dt_fits_frame_keys(fctx *c, dt_spectrum *s, const char *where, dt_err *e) {
       sys = equinox < 1984.0 ? DT_RADESYS_FK4 : DT_RADESYS_FK5;
     }
     const char *sysname = sys == DT_RADESYS_FK4 ? "FK4" : sys == DT_RADESYS_FK5 ? "FK5" : "ICRS";
+    if (sys == DT_RADESYS_FK4_NO_E)
+      return dt_err_set(e, DT_EINVAL, where, "RADESYS FK4-NO-E: doubletty converts ICRS, FK5 and "
+                        "FK4 (B1950)");
     if (dt_sky_to_icrs(sys, equinox, 0, ra, dec, &s->ra, &s->dec))
       return dt_err_set(e, DT_EINVAL, where, "%s with EQUINOX %g: doubletty converts FK4 at "
                         "B1950 only", sysname, equinox);

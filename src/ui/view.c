@@ -209,14 +209,19 @@ static void draw_title(dt_insp *s, const layout *L) {
    * then its file (cut from the left) */
   char head[64], tail[96], mid[600];
   snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
-  const char *frame = s->ss->loaded && s->ss->spec ? dt_frame_name(s->ss->spec->frame) : "";
+  /* the frame; a '?' after it when nobody said it and it was assumed */
+  char frame[16] = "";
+  if (s->ss->loaded && s->ss->spec)
+    snprintf(frame, sizeof frame, "%s%s", dt_frame_name(s->ss->spec->frame),
+             strcmp(s->ss->spec->frame_from, "assumed") ? "" : "?");
   snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s%s%s ", s->ss->j.doublet, s->ss->j.vsys, res,
            frame[0] ? "  " : "", frame);
   snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
   int fixed = cells(head) + cells(tail) + flen;
   int mroom = L->w - fixed;
   if (cells(mid) > mroom && frame[0]) { /* a narrow screen: the frame's first four letters */
-    snprintf(tail, sizeof tail, " | %s vsys %+.0f %.4s %s ", s->ss->j.doublet, s->ss->j.vsys, frame, res);
+    snprintf(tail, sizeof tail, " | %s vsys %+.0f %.4s%s %s ", s->ss->j.doublet, s->ss->j.vsys, frame,
+             strchr(frame, '?') ? "?" : "", res);
     fixed = cells(head) + cells(tail) + flen;
     mroom = L->w - fixed;
   }
