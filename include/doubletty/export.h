@@ -34,6 +34,9 @@ int dt_export_csv(FILE *f, const dt_journal *j);
  * vsys; HI_status "no-position" when the record has no position. */
 struct dt_hicube;
 int dt_export_csv_hi(FILE *f, const dt_journal *j, const struct dt_hicube *cube);
+/* The FITS table with the same 21-cm columns joined (TUNITn km s-1, K). */
+int dt_export_fits_hi(const char *path, const dt_journal *j, const char *session,
+                      const char *sha, const char *version, const struct dt_hicube *cube, dt_err *e);
 
 /* Write the table of session j as a FITS binary table to the file path
  * (created, or replaced: the caller owns the name, a temporary file).

@@ -39,7 +39,7 @@ static void usage(FILE *f) {
           "  --force        replace FILE if it exists\n"
           "  --hi CUBE      join the 21-cm columns of CUBE at each spectrum's position\n"
           "                 (logN_HI, logN_HI_err, v_HI_kms, sigma_HI_kms, T_peak_K,\n"
-          "                 HI_status; CSV output)\n"
+          "                 HI_status)\n"
           "  -h, --help     this text\n");
 }
 
@@ -132,10 +132,6 @@ int cmd_export(int argc, char **argv) {
     }
   }
 
-  if (hi && fits) {
-    cli_errorf("export: --hi joins columns to CSV output; write FILE.csv");
-    return 2;
-  }
   dt_hicube *cube = NULL;
   if (hi) {
     dt_err he;
@@ -186,7 +182,8 @@ int cmd_export(int argc, char **argv) {
   int rc;
   if (fits) {
     close(fd);
-    rc = dt_export_fits(tmp, j, session, sha, DT_VERSION, &e);
+    rc = cube ? dt_export_fits_hi(tmp, j, session, sha, DT_VERSION, cube, &e)
+              : dt_export_fits(tmp, j, session, sha, DT_VERSION, &e);
   } else {
     FILE *f = fdopen(fd, "w");
     rc = f ? (cube ? dt_export_csv_hi(f, j, cube) : dt_export_csv(f, j)) : DT_EIO;

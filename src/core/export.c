@@ -281,8 +281,23 @@ static int fits_fail(int status, dt_err *e) {
   return dt_err_set(e, DT_EIO, NULL, "cannot write the FITS table: %s", msg);
 }
 
+static int write_fits(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e);
+
 int dt_export_fits(const char *path, const dt_journal *j, const char *session,
                    const char *session_sha, const char *version, dt_err *e) {
+  return write_fits(path, j, session, session_sha, version, NULL, e);
+}
+
+int dt_export_fits_hi(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e) {
+  return write_fits(path, j, session, session_sha, version, cube, e);
+}
+
+#define NHI (sizeof HI_COLS / sizeof HI_COLS[0])
+
+static int write_fits(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e) {
   /* string widths: the longest value of each string column */
   long width[NCOL];
   for (size_t c = 0; c < NCOL; c++) width[c] = 1;
@@ -297,8 +312,15 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
           width[c] = (long)strlen(cells[c].s);
     }
   }
-  char *ttype[NCOL], *tform[NCOL], *tunit[NCOL];
+  char *ttype[NCOL + NHI], *tform[NCOL + NHI], *tunit[NCOL + NHI];
   char forms[NCOL][24];
+  static const char *const hi_unit[NHI] = {"", "", "km s-1", "km s-1", "K", ""};
+  for (size_t c = 0; c < NHI; c++) {
+    ttype[NCOL + c] = (char *)HI_COLS[c];
+    tunit[NCOL + c] = (char *)hi_unit[c];
+    tform[NCOL + c] = c + 1 < NHI ? "D" : "12A";
+  }
+  int ncols = (int)NCOL + (cube ? (int)NHI : 0);
   for (size_t c = 0; c < NCOL; c++) {
     ttype[c] = (char *)COLS[c].name;
     tunit[c] = (char *)COLS[c].unit;
@@ -319,7 +341,7 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
   unlink(path);
   fits_create_diskfile(&f, path, &st);
   if (st) return fits_fail(st, e);
-  fits_create_tbl(f, BINARY_TBL, 0, (int)NCOL, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
+  fits_create_tbl(f, BINARY_TBL, 0, ncols, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
   char creator[64];
   snprintf(creator, sizeof creator, "doubletty %s", version);
   fits_update_key_str(f, "CREATOR", creator, "program that wrote this file", &st);
@@ -357,9 +379,27 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
   long long row = 0;
   for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    dt_hi_sample hs;
+    const char *hstat = "";
+    memset(&hs, 0, sizeof hs);
+    if (cube) hi_of_entry(cube, en, &hs, &hstat);
+    int hok = cube && hs.status == DT_HI_OK && !strcmp(hstat, "ok");
+    double hv[NHI - 1] = {hok ? hs.logN : NAN, hok ? hs.logN_err : NAN, hok ? hs.v : NAN,
+                          hok ? hs.sigma : NAN,
+                          hok || hs.status == DT_HI_NO_EMISSION ? hs.tpeak : NAN};
     for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en) && !st; k++) {
       fill_row(en, k, cells, rt);
       row++;
+      for (size_t c = 0; cube && c < NHI && !st; c++) {
+        int col = (int)(NCOL + c) + 1;
+        if (c + 1 < NHI) {
+          double v = hv[c];
+          fits_write_col(f, TDOUBLE, col, row, 1, 1, &v, &st);
+        } else {
+          char *sv = (char *)(hstat[0] ? hstat : " ");
+          fits_write_col(f, TSTRING, col, row, 1, 1, &sv, &st);
+        }
+      }
       for (size_t c = 0; c < NCOL && !st; c++) {
         int col = (int)c + 1;
         switch (COLS[c].type) {
@@ -387,6 +427,7 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
         }
       }
     }
+    dt_hi_sample_free(&hs);
   }
   if (st) {
     int st2 = 0;

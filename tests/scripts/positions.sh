@@ -99,7 +99,15 @@ xl=$(xc logN_HI); xs=$(xc HI_status)
 check "export --hi: logN_HI and HI_status columns" [ -n "$xl" -a -n "$xs" ]
 check "export --hi: log N(HI) $oklogn and status ok, as hi gives" \
   sh -c "tail -n +2 hx.csv | awk -F, -v l=$xl -v s=$xs '{printf \"%.2f %s\\n\", \$l, \$s}' | sort -u | grep -qx '$oklogn ok'"
-expect_fail "export --hi to FITS refused" "--hi joins columns to CSV" "$DT" export hx.session --hi demo/velloran_hi.fits -o hx.fits
+"$DT" export hx.session --hi demo/velloran_hi.fits -o hx.fits 2>err
+if need_py "export --hi as FITS"; then
+  check "export --hi as FITS: logN_HI $oklogn and HI_status ok (astropy reads it)" "$PY" -c "
+from astropy.io import fits
+t = fits.getdata('hx.fits', 1)
+assert set(t['HI_status']) == {'ok'}, t['HI_status']
+assert {'%.2f' % x for x in t['logN_HI']} == {'$oklogn'}
+assert fits.getheader('hx.fits', 1)['TUNIT' + str(t.columns.names.index('v_HI_kms') + 1)] == 'km s-1'"
+fi
 expect_fail "inspect --hi with a bad cube: one error" "nosuch.fits: cannot open" \
   "$DT" inspect --list hi.list --hi nosuch.fits --session hi2.session --replay-keys k3
 finish
