@@ -129,10 +129,22 @@ int dt_fits_frame_keys(fctx *c, dt_spectrum *s, const char *where, dt_err *e) {
   }
   /* --- frame --- */
   if (key_any(c, "SPECSYS", v, &x, &isnum)) {
-    if (dt_frame_parse(v, &s->frame_in) || s->frame_in == DT_FRAME_UNSET)
-      return bad_key(e, where, "SPECSYS", v, "not a frame of FITS WCS Paper III (TOPOCENT, "
-                     "GEOCENTR, BARYCENT, HELIOCEN, LSRK, LSRD, GALACTOC, LOCALGRP)");
-    snprintf(s->frame_from, sizeof s->frame_from, "SPECSYS");
+    if (dt_frame_parse(v, &s->frame_in) || s->frame_in == DT_FRAME_UNSET) {
+      char u[FLEN_VALUE];
+      snprintf(u, sizeof u, "%s", v);
+      for (char *p = u; *p; p++) *p = (char)toupper((unsigned char)*p);
+      if (strstr(u, "SOURCE") || strstr(u, "CMBDIPOL")) {
+        /* a Paper III frame doubletty does not convert: only a declared
+         * frame (frame=, --in-frame) lets the spectrum be read */
+        s->frame_in = DT_FRAME_UNSET;
+        snprintf(s->frame_from, sizeof s->frame_from, "SPECSYS '%.20s'", u);
+      } else {
+        return bad_key(e, where, "SPECSYS", v, "not a frame of FITS WCS Paper III (TOPOCENT, "
+                       "GEOCENTR, BARYCENT, HELIOCEN, LSRK, LSRD, GALACTOC, LOCALGRP)");
+      }
+    } else {
+      snprintf(s->frame_from, sizeof s->frame_from, "SPECSYS");
+    }
   } else if (key_any(c, "VELREF", v, &x, &isnum)) {
     if (!isnum || dt_frame_from_velref((long)x, &s->frame_in))
       return bad_key(e, where, "VELREF", v, "not 1 (LSR), 2 (heliocentric) or 3 (observer)");
@@ -199,6 +211,9 @@ int dt_spectrum_settle_frame(dt_spectrum *s, const dt_read_opts *o, dt_err *e) {
     s->frame_in = o->in_frame;
     snprintf(s->frame_from, sizeof s->frame_from, "list/option");
   }
+  if (s->frame_in == DT_FRAME_UNSET && s->frame_from[0])
+    return dt_err_set(e, DT_EINVAL, NULL, "%s: doubletty does not convert this frame; declare the "
+                      "spectrum's frame with frame= in the list or --in-frame", s->frame_from);
   if (s->frame_in == DT_FRAME_UNSET) {
     s->frame_in = DT_FRAME_BARYCENT;
     snprintf(s->frame_from, sizeof s->frame_from, "assumed");

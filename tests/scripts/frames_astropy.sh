@@ -72,6 +72,9 @@ h.writeto(f"{d}/badra.fits", overwrite=True)
 h = fits.open(f"{d}/T001.fits")
 h[0].header["SPECSYS"] = "MOONCENT"
 h.writeto(f"{d}/badsys.fits", overwrite=True)
+h = fits.open(f"{d}/T001.fits")
+h[0].header["SPECSYS"] = "SOURCE"
+h.writeto(f"{d}/source.fits", overwrite=True)
 PYEOF
 expect_fail "TOPOCENT without a time: an error naming DATE-OBS" "notime.fits: .*TOPOCENT.*DATE-OBS" "$DT" info "$D/notime.fits"
 "$DT" info --frame TOPOCENT "$D/notime.fits" >"$TMP/nt" 2>&1
@@ -79,5 +82,7 @@ check "--frame TOPOCENT uses it as it is, with a note" grep -q "^frame-note  TOP
 expect_fail "no position: an error naming RA/DEC" "nopos.fits: .*sky position" "$DT" info "$D/nopos.fits"
 expect_fail "RA 25h: an error naming the keyword" "badra.fits: HDU 1: keyword RA = '25:00:00'" "$DT" info "$D/badra.fits"
 expect_fail "unknown SPECSYS: an error naming the keyword" "badsys.fits: HDU 1: keyword SPECSYS" "$DT" info "$D/badsys.fits"
+expect_fail "SPECSYS SOURCE: an error asking for the frame" "source.fits: SPECSYS 'SOURCE': .*--in-frame" "$DT" info "$D/source.fits"
+check "... read with --in-frame" sh -c "'$DT' info --in-frame BARYCENT '$D/source.fits' | grep -q '^frame       BARYCENT (list/option)'"
 expect_fail "--frame GALACTOC refused" "--frame GALACTOC" "$DT" info --frame GALACTOC "$D/B000.fits"
 finish
