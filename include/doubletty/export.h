@@ -27,6 +27,17 @@ const char *dt_export_stem(const char *file, char *buf, size_t n);
 /* Write the table of session j as CSV to f.  DT_OK or DT_EIO. */
 int dt_export_csv(FILE *f, const dt_journal *j);
 
+/* The same, with the 21-cm columns of cube (hicube.h) joined after the
+ * others: logN_HI, logN_HI_err, v_HI_kms, sigma_HI_kms, T_peak_K,
+ * HI_status -- sampled at each spectrum's recorded position (sky=) in its
+ * recorded frame (frame=; BARYCENT when none), velocities relative to its
+ * vsys; HI_status "no-position" when the record has no position. */
+struct dt_hicube;
+int dt_export_csv_hi(FILE *f, const dt_journal *j, const struct dt_hicube *cube);
+/* The FITS table with the same 21-cm columns joined (TUNITn km s-1, K). */
+int dt_export_fits_hi(const char *path, const dt_journal *j, const char *session,
+                      const char *sha, const char *version, const struct dt_hicube *cube, dt_err *e);
+
 /* Write the table of session j as a FITS binary table to the file path
  * (created, or replaced: the caller owns the name, a temporary file).
  * session: the session's file name (its last part goes to SESSFILE);

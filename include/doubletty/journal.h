@@ -37,6 +37,8 @@ typedef struct dt_target {
   long row;                      /* 1-based table row; 0 = not a row */
   char sha256[DT_SHA256_HEX];    /* digest of the file's bytes; "" = unknown */
   const char *name;              /* the target list's name for it; NULL or "" = none */
+  char frame[12];                /* velocity frame of its velocities (frames.h); "" = unknown */
+  char sky[48];                  /* sky position "RA,DEC" (ICRS degrees); "" = unknown */
 } dt_target;
 
 /* Flags of a target (dt_journal_entry.flags) and of a record. */

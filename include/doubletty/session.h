@@ -46,6 +46,8 @@ typedef struct dt_session_target {
   long row;               /* table row (0: not a row) */
   const char *name;       /* the list's name for it ("" or NULL: none) */
   int air;                /* wavelengths in air where the file does not say */
+  dt_read_opts read;      /* further reading options: frames, position, site
+                             (row and air from the fields above); zero = defaults */
   dt_judgement initial;   /* settings of a first look; resolution and
                              fwhm_kms both 0: the file header's R */
 } dt_session_target;

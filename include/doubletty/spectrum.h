@@ -39,6 +39,24 @@
  *   vacuum: its wavelengths are taken as vacuum unless the caller declares
  *   them air (dt_read_opts.air).
  *
+ * Positions and frames (sky.h, frames.h).  Header keyword pairs, the first
+ *   present wins (spectrum's HDU, then the primary header): RA/DEC,
+ *   OBJRA/OBJDEC, RA_OBJ/DEC_OBJ, RA_TARG/DEC_TARG, PLUG_RA/PLUG_DEC; a
+ *   number is degrees, text is degrees or sexagesimal (hours for RA).
+ *   RADESYS (or RADECSYS) and EQUINOX (or EPOCH) as in FITS WCS Paper II;
+ *   converted to ICRS.  Multi-row tables: columns RA/DEC (or PLUG_RA/
+ *   PLUG_DEC, RA_OBJ/DEC_OBJ) in degrees, one per row, override the header.
+ *   dt_read_opts.ra/dec override both.  Frame: dt_read_opts.in_frame, else
+ *   SPECSYS, else VELREF, else BARYCENT is assumed (frame_from "assumed").
+ *   Time: DATE-AVG or MJD-AVG (midpoint), else DATE-OBS or MJD-OBS plus
+ *   half of EXPTIME (or EXPOSURE); UTC.  Site: OBSGEO-X/Y/Z [m], else
+ *   OBSGEO-L/B/H [deg, deg, m], else dt_read_opts.site_*.  The wavelengths
+ *   are then converted to dt_read_opts.out_frame (default BARYCENT); when
+ *   the conversion is impossible (no time or site for TOPOCENT, no
+ *   position) the read fails with DT_EINVAL saying what is missing --
+ *   unless the output frame is the file's own, when nothing is converted,
+ *   or the two frames are HELIOCEN and BARYCENT (less than 0.015 km/s
+ *   apart), when the spectrum is used as it is with a note (frame_note).
  * Air or vacuum: what the file says (CTYPE1, AIRORVAC) decides; when the
  *   file says nothing, dt_read_opts.air = 1 declares air, else vacuum is
  *   assumed.  dt_spectrum.air_from records which of the three it was.
@@ -51,6 +69,7 @@
 #ifndef DOUBLETTY_SPECTRUM_H
 #define DOUBLETTY_SPECTRUM_H
 #include <stddef.h>
+#include "doubletty/frames.h"
 #include "doubletty/status.h"
 
 /* Who settled whether the wavelengths in the file were air or vacuum. */
@@ -81,6 +100,17 @@ typedef struct dt_spectrum {
                             "column IVAR (inverse variance)", "column 3",
                             "estimated" */
   char unit[16];         /* wavelength unit in the file: "Angstrom", "nm", ... */
+  /* Sky position and velocity frame (see "Positions and frames" below). */
+  int has_pos;           /* 1: ra, dec known */
+  double ra, dec;        /* ICRS [deg] */
+  char pos_from[48];     /* "keywords RA/DEC (FK4 B1950)", "columns RA/DEC", "list" */
+  dt_frame frame;        /* frame of wave[] now (after any conversion) */
+  dt_frame frame_in;     /* frame of the wavelengths in the file */
+  char frame_from[40];   /* who said frame_in: "SPECSYS", "VELREF", "list/option",
+                            "assumed" (nobody said) */
+  double frame_kms;      /* shift applied: c (k - 1), lambda_out = k lambda_in */
+  char frame_note[200];  /* a warning or an assumption to show, or "" */
+  dt_frame_obs obs;      /* time and site of the observation where known */
 } dt_spectrum;
 
 typedef struct dt_read_opts {
@@ -93,6 +123,14 @@ typedef struct dt_read_opts {
   long row;              /* 1-based row of a multi-row table; 0 = the first */
   int air;               /* 1: the wavelengths are in air (used when the file
                             does not say; text files never do); 0: not said */
+  dt_frame out_frame;    /* frame to convert to; UNSET = BARYCENT */
+  dt_frame in_frame;     /* frame of the file's wavelengths, declared by the
+                            caller (frame= / --in-frame): overrides the file */
+  int has_pos;           /* 1: ra, dec given by the caller (ra=/dec= of a
+                            list): override the file's */
+  double ra, dec;        /* ICRS [deg] */
+  int has_site;          /* 1: site used where the file gives none (--site) */
+  double site_lon, site_lat, site_height; /* [deg east], [deg], [m] */
 } dt_read_opts;
 
 /* Read one spectrum.  path may carry an extension selector "FILE[N]" (N the

@@ -2,7 +2,7 @@
  *
  *   # comment
  *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
- *             [window=VLO:VHI] [air]
+ *             [window=VLO:VHI] [air] [ra=RA dec=DEC] [frame=NAME]
  *
  * Fields are separated by blanks; '#' starts a comment anywhere on a line
  * (outside quotes); blank lines are ignored.  A relative path is taken
@@ -10,7 +10,10 @@
  * extension selector "file.fits[2]".  The flag "air" says the file's
  * wavelengths are in air (used when the file itself does not say);
  * window=VLO:VHI the velocity window [km/s] around the rest frame for the
- * fit and the measurements.
+ * fit and the measurements.  ra= and dec= (given together) give the sky
+ * position, ICRS, in degrees or sexagesimal (hours for ra), over the
+ * file's; frame= the velocity frame of the file's wavelengths
+ * (frames.h), over what the file says.
  *
  * Quoting: a path or value holding blanks, '#', '"' or '\' is written
  * between double quotes, inside which \" stands for '"' and \\ for '\'
@@ -31,6 +34,7 @@
 #ifndef DOUBLETTY_TARGETS_H
 #define DOUBLETTY_TARGETS_H
 #include <stddef.h>
+#include "doubletty/frames.h"
 #include "doubletty/status.h"
 
 #define DT_TARGET_PATH_MAX 4096
@@ -51,6 +55,10 @@ typedef struct dt_target_spec {
   long line;                      /* line number in the list (0 = not from a list) */
   int air;                        /* 1: wavelengths in air (flag "air", or
                                      dt_targets_set_air); for dt_read_opts.air */
+  int has_pos;                    /* ra= and dec= given: */
+  double ra, dec;                 /*   ICRS [deg], for dt_read_opts.ra/dec */
+  dt_frame frame;                 /* frame= (UNSET: not given), for
+                                     dt_read_opts.in_frame */
 } dt_target_spec;
 
 /* A target with nothing but a path (as given, not resolved). */

@@ -143,3 +143,34 @@ int cli_check_not_dir(const char *path) {
   return 0;
 }
 
+
+static int frame_value(const char *cmd, const char *opt, const char *text, dt_frame *f) {
+  if (dt_frame_parse(text, f) || *f == DT_FRAME_GALACTOC || *f == DT_FRAME_LOCALGRP) {
+    cli_errorf("%s: %s %s: not a frame doubletty converts (TOPOCENT, GEOCENTR, BARYCENT, "
+               "HELIOCEN, LSRK, LSRD)", cmd, opt, text);
+    return 1;
+  }
+  return 0;
+}
+
+int cli_opt_frame(const char *cmd, const char *text, dt_read_opts *r) {
+  return frame_value(cmd, "--frame", text, &r->out_frame);
+}
+
+int cli_opt_in_frame(const char *cmd, const char *text, dt_read_opts *r) {
+  return frame_value(cmd, "--in-frame", text, &r->in_frame);
+}
+
+int cli_opt_site(const char *cmd, const char *text, dt_read_opts *r) {
+  dt_frame_obs o;
+  memset(&o, 0, sizeof o);
+  if (dt_frame_parse_site(text, &o)) {
+    cli_errorf("%s: --site %s: not LON,LAT,HEIGHT (degrees east, degrees, metres)", cmd, text);
+    return 1;
+  }
+  r->has_site = 1;
+  r->site_lon = o.lon;
+  r->site_lat = o.lat;
+  r->site_height = o.height;
+  return 0;
+}

@@ -3,6 +3,7 @@
 #define DT_CLI_H
 #include <stdio.h>
 #include "doubletty/atomic.h"
+#include "doubletty/spectrum.h"
 #include "doubletty/status.h"
 
 /* Print "doubletty: FILE: WHERE: WHAT" (parts omitted when empty) on stderr. */
@@ -34,6 +35,20 @@ void cli_getopt_reset(void);
  * ("unknown option", "needs a value", "takes no value") and the hint
  * "try 'doubletty CMD --help'"; returns the exit status 2. */
 int cli_opt_error(const char *cmd, int c, char **argv);
+
+/* The velocity-frame options shared by every command that reads spectra:
+ * --frame NAME (output frame), --in-frame NAME (the files' frame, over
+ * what they say), --site LON,LAT,HEIGHT (where a file gives no site).
+ * Each fills r; on a bad value prints one line naming the option and
+ * returns nonzero. */
+#define CLI_FRAME_HELP                                                                       \
+  "  --frame NAME      velocity frame of every output (default BARYCENT): TOPOCENT,\n"         \
+  "                    GEOCENTR, BARYCENT, HELIOCEN, LSRK, LSRD\n"                             \
+  "  --in-frame NAME   the spectra's frame, over what the files say (SPECSYS, VELREF)\n"       \
+  "  --site LON,LAT,H  observatory (deg east, deg, m) where a file gives no OBSGEO-*\n"
+int cli_opt_frame(const char *cmd, const char *text, dt_read_opts *r);
+int cli_opt_in_frame(const char *cmd, const char *text, dt_read_opts *r);
+int cli_opt_site(const char *cmd, const char *text, dt_read_opts *r);
 
 /* 1 after "PATH: is a directory, not a file" when path names a directory. */
 int cli_check_not_dir(const char *path);

@@ -10,6 +10,8 @@
  * never replaced without --force, and never when it is the session itself. */
 #include <errno.h>
 #include <getopt.h>
+
+#include "doubletty/hicube.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -35,6 +37,9 @@ static void usage(FILE *f) {
           "  -o FILE        output; the format follows the name: .csv, or .fits/.fit/.fts\n"
           "                 ('-o -' writes CSV to standard output)\n"
           "  --force        replace FILE if it exists\n"
+          "  --hi CUBE      join the 21-cm columns of CUBE at each spectrum's position\n"
+          "                 (logN_HI, logN_HI_err, v_HI_kms, sigma_HI_kms, T_peak_K,\n"
+          "                 HI_status)\n"
           "  -h, --help     this text\n");
 }
 
@@ -77,10 +82,12 @@ static int damaged(const char *session, const dt_journal *j) {
 
 int cmd_export(int argc, char **argv) {
   const char *session = NULL, *out = NULL;
+  const char *hi = NULL;
   int force = 0, opt;
   static const struct option longopts[] = {{"help", no_argument, NULL, 'h'},
                                            {"output", required_argument, NULL, 'o'},
                                            {"force", no_argument, NULL, 'f'},
+                                           {"hi", required_argument, NULL, 'H'},
                                            {NULL, 0, NULL, 0}};
   cli_getopt_reset();
   while ((opt = getopt_long(argc, argv, ":ho:", longopts, NULL)) != -1) {
@@ -88,6 +95,7 @@ int cmd_export(int argc, char **argv) {
     case 'h': usage(stdout); return 0;
     case 'o': out = optarg; break;
     case 'f': force = 1; break;
+    case 'H': hi = optarg; break;
     default: return cli_opt_error("export", opt, argv);
     }
   }
@@ -124,18 +132,30 @@ int cmd_export(int argc, char **argv) {
     }
   }
 
+  dt_hicube *cube = NULL;
+  if (hi) {
+    dt_err he;
+    if (dt_hicube_open(hi, &cube, &he) != DT_OK) {
+      cli_report(hi, &he);
+      return 1;
+    }
+  }
   char sha[DT_SHA256_HEX];
   dt_journal *j = load_with_digest(session, sha);
-  if (!j) return 1;
+  if (!j) {
+    dt_hicube_close(cube);
+    return 1;
+  }
 
   int status = 0;
   if (to_stdout) {
-    if (dt_export_csv(stdout, j) != DT_OK || fflush(stdout) != 0) {
+    if ((cube ? dt_export_csv_hi(stdout, j, cube) : dt_export_csv(stdout, j)) != DT_OK || fflush(stdout) != 0) {
       cli_errorf("export: cannot write to standard output");
       status = 1;
     }
     status |= damaged(session, j);
     dt_journal_close(j);
+    dt_hicube_close(cube);
     return status;
   }
 
@@ -144,6 +164,7 @@ int cmd_export(int argc, char **argv) {
   char *tmp = malloc(len + 16);
   if (!tmp) {
     dt_journal_close(j);
+    dt_hicube_close(cube);
     cli_errorf("out of memory");
     return 1;
   }
@@ -153,6 +174,7 @@ int cmd_export(int argc, char **argv) {
     cli_errorf("export: %s: cannot create: %s", out, strerror(errno));
     free(tmp);
     dt_journal_close(j);
+    dt_hicube_close(cube);
     return 1;
   }
   dt_err e;
@@ -160,10 +182,11 @@ int cmd_export(int argc, char **argv) {
   int rc;
   if (fits) {
     close(fd);
-    rc = dt_export_fits(tmp, j, session, sha, DT_VERSION, &e);
+    rc = cube ? dt_export_fits_hi(tmp, j, session, sha, DT_VERSION, cube, &e)
+              : dt_export_fits(tmp, j, session, sha, DT_VERSION, &e);
   } else {
     FILE *f = fdopen(fd, "w");
-    rc = f ? dt_export_csv(f, j) : DT_EIO;
+    rc = f ? (cube ? dt_export_csv_hi(f, j, cube) : dt_export_csv(f, j)) : DT_EIO;
     if (f && (fflush(f) != 0 || fsync(fileno(f)) != 0)) rc = DT_EIO;
     if (f) {
       if (fclose(f) != 0) rc = DT_EIO;
@@ -193,5 +216,6 @@ int cmd_export(int argc, char **argv) {
   free(tmp);
   if (!status) status = damaged(session, j);
   dt_journal_close(j);
+  dt_hicube_close(cube);
   return status;
 }

@@ -43,7 +43,9 @@ static const char *const COLUMNS[] = {
     "ncomp", "component", "v_kms", "v_err", "b_kms", "b_err", "logN", "logN_err",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "logN_limit", "suggested", "reason"};
+    "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
+/* the last columns: position and velocity frame (pos_cells) */
+#define NPOSCOLUMNS 3
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
 /* Below this resolving power the line-spread function (c/R > 3000 km/s) is
@@ -116,6 +118,7 @@ static void usage(FILE *f) {
           "  --force                 replace FILE if it exists (never an input)\n"
           "  --air                   wavelengths are in air where a file does not say\n"
           "                          (converted to vacuum; a list line may say 'air')\n"
+          CLI_FRAME_HELP
           "Command-line settings override a list's; they head the CSV as '# key=value'\n"
           "lines.  R below 100 is refused.  Summary on standard error;\n"
           "exit status 1 when any spectrum failed, 2 for bad options.\n");
@@ -193,6 +196,18 @@ static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long
   dt_csv_text(w, status);
 }
 
+/* ra_deg, dec_deg (ICRS) and the frame of the velocities; empty when unknown. */
+static void pos_cells(dt_csv *w, const dt_spectrum *s) {
+  if (s && s->has_pos) {
+    dt_csv_fixed(w, s->ra, 8);
+    dt_csv_fixed(w, s->dec, 8);
+  } else {
+    dt_csv_empty(w);
+    dt_csv_empty(w);
+  }
+  dt_csv_text(w, s ? dt_frame_name(s->frame) : "");
+}
+
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const char *doublet, double vsys, const dt_err *e) {
   char msg[sizeof e->where + sizeof e->what + 4];
@@ -200,8 +215,9 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 9; k + 1 < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 9; k + 1 + NPOSCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
+  pos_cells(&r->csv, s);
   dt_csv_end(&r->csv);
 }
 
@@ -262,6 +278,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     else dt_csv_empty(w);
     dt_csv_text(w, dt_verdict_name(o->suggested));
     dt_csv_text(w, reason);
+    pos_cells(w, s);
     dt_csv_end(w);
   }
 }
@@ -323,6 +340,8 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   dt_read_opts ro = c->ropts;
   ro.row = row;
   if (t->air) ro.air = 1;
+  if (t->has_pos) ro.has_pos = 1, ro.ra = t->ra, ro.dec = t->dec;
+  if (t->frame != DT_FRAME_UNSET) ro.in_frame = t->frame;
   dt_spectrum *s = NULL;
   dt_analysis *an = NULL;
   int st = dt_spectrum_read(t->path, &ro, &s, &e);
@@ -599,12 +618,18 @@ static void write_settings(dt_csv *w, const config *c) {
            c->ropts.mask_col ? c->ropts.mask_col : "");
   dt_csv_comment(w, "columns", buf);
   dt_csv_comment(w, "air", c->air ? "yes" : "");
+  dt_csv_comment(w, "frame", dt_frame_name(c->ropts.out_frame ? c->ropts.out_frame : DT_FRAME_BARYCENT));
+  dt_csv_comment(w, "in-frame", dt_frame_name(c->ropts.in_frame));
+  buf[0] = '\0';
+  if (c->ropts.has_site)
+    dt_num_snprintf(buf, sizeof buf, "%.6f,%.6f,%.1f", c->ropts.site_lon, c->ropts.site_lat, c->ropts.site_height);
+  dt_csv_comment(w, "site", buf);
 }
 
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -630,6 +655,9 @@ static const struct option LONGOPTS[] = {
     {"output", required_argument, NULL, 'o'},
     {"force", no_argument, NULL, O_FORCE},
     {"air", no_argument, NULL, O_AIR},
+    {"frame", required_argument, NULL, O_FRAME},
+    {"in-frame", required_argument, NULL, O_INFRAME},
+    {"site", required_argument, NULL, O_SITE},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -721,6 +749,9 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case 'o': c->out_path = v; return 0;
   case O_FORCE: c->force = 1; return 0;
   case O_AIR: c->air = 1; c->ropts.air = 1; return 0;
+  case O_FRAME: return cli_opt_frame("fit", v, &c->ropts);
+  case O_INFRAME: return cli_opt_in_frame("fit", v, &c->ropts);
+  case O_SITE: return cli_opt_site("fit", v, &c->ropts);
   }
   return 1;
 }

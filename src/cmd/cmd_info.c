@@ -47,6 +47,7 @@ static void usage(FILE *f) {
           "  --vsys KMS        rest frame for the doublet coverage check (default 0)\n"
           "  --air             text spectra give air wavelengths (converted to vacuum)\n"
           "  --pixels          list every pixel (wave flux sigma mask) after the summary\n"
+          CLI_FRAME_HELP
           "  -h, --help        this text\n");
 }
 
@@ -77,6 +78,20 @@ static void print_block(const char *file, const dt_spectrum *s, long nrows, cons
   printf("%smedian-snr  %.2f\n", p, dt_spectrum_median_snr(s));
   printf("%ssigma       %s\n", p,
          s->has_sigma ? s->sigma_from : "estimated from the pixel-to-pixel scatter");
+  if (s->has_pos)
+    printf("%sposition    %.8f %+.8f deg ICRS (%s)\n", p, s->ra, s->dec, s->pos_from);
+  else
+    printf("%sposition    none (no RA/DEC keywords or columns, no ra=/dec=)\n", p);
+  if (s->frame == s->frame_in)
+    printf("%sframe       %s (%s%s)\n", p, dt_frame_name(s->frame), s->frame_from,
+           strcmp(s->frame_from, "assumed") ? "" : ": the file does not say");
+  else
+    printf("%sframe       %s, converted from %s (%s): %+.6f km/s\n", p, dt_frame_name(s->frame),
+           dt_frame_name(s->frame_in), s->frame_from, s->frame_kms);
+  if (s->obs.has_time) printf("%sobserved    MJD %.6f UTC (midpoint)\n", p, s->obs.mjd);
+  if (s->obs.has_site)
+    printf("%ssite        %.6f %+.6f deg, %.1f m\n", p, s->obs.lon, s->obs.lat, s->obs.height);
+  if (s->frame_note[0]) printf("%sframe-note  %s\n", p, s->frame_note);
   if (s->resolution > 0)
     printf("%sresolution  R = %.0f (header)\n", p, s->resolution);
   else
@@ -123,7 +138,8 @@ int cmd_info(int argc, char **argv) {
       {"wave-col", required_argument, NULL, 'W'}, {"flux-col", required_argument, NULL, 'F'},
       {"err-col", required_argument, NULL, 'E'},  {"mask-col", required_argument, NULL, 'M'},
       {"atomic", required_argument, NULL, 'A'},   {"air", no_argument, NULL, 'a'},
-      {NULL, 0, NULL, 0}};
+      {"frame", required_argument, NULL, 1001},   {"in-frame", required_argument, NULL, 1002},
+      {"site", required_argument, NULL, 1003},    {NULL, 0, NULL, 0}};
   int opt;
   cli_getopt_reset();
   while ((opt = getopt_long(argc, argv, ":h", longopts, NULL)) != -1) {
@@ -152,6 +168,9 @@ int cmd_info(int argc, char **argv) {
     case 'E': o.read.err_col = v; break;
     case 'M': o.read.mask_col = v; break;
     case 'A': o.atomic = v; break;
+    case 1001: if (cli_opt_frame("info", v, &o.read)) goto usage_error; break;
+    case 1002: if (cli_opt_in_frame("info", v, &o.read)) goto usage_error; break;
+    case 1003: if (cli_opt_site("info", v, &o.read)) goto usage_error; break;
     default: free(files); return cli_opt_error("info", opt, argv);
     }
   }

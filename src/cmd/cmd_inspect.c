@@ -17,6 +17,7 @@
 
 #include "../ui/ui.h"
 #include "cli.h"
+#include "doubletty/hicube.h"
 #include "commands.h"
 #include "doubletty/agree.h"
 #include "doubletty/journal.h"
@@ -43,6 +44,9 @@ static void usage(FILE *f) {
           "  --fwhm KMS           ... or the line-spread FWHM in km/s\n"
           "  --vsys KMS           rest frame when the list does not say\n"
           "  --atomic FILE        extra atomic data table\n"
+          CLI_FRAME_HELP
+          "  --hi CUBE            show a 21-cm cube's spectrum at each sightline (a panel\n"
+          "                       on the velocity axis) and N(HI) in the table\n"
           "  --ascii              plain ASCII drawing even in a UTF-8 locale\n"
           "  --no-colour          no colours (also when NO_COLOR is set)\n"
           "  --replay-keys FILE   run headless: keys from FILE (action or key names, one a\n"
@@ -56,7 +60,8 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
-  O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR
+  O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
+  O_FRAME, O_INFRAME, O_SITE, O_HI
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -72,6 +77,10 @@ static const struct option LONGOPTS[] = {
     {"vsys", required_argument, NULL, O_VSYS},
     {"atomic", required_argument, NULL, O_ATOMIC},
     {"air", no_argument, NULL, O_AIR},
+    {"frame", required_argument, NULL, O_FRAME},
+    {"in-frame", required_argument, NULL, O_INFRAME},
+    {"site", required_argument, NULL, O_SITE},
+    {"hi", required_argument, NULL, O_HI},
     {"ascii", no_argument, NULL, O_ASCII},
     {"no-colour", no_argument, NULL, O_NOCOLOUR},
     {"no-color", no_argument, NULL, O_NOCOLOUR},
@@ -86,6 +95,8 @@ typedef struct {
   const char *session, *user, *atomic_file;
   const char *dis[2];
   int read_only, air;
+  dt_read_opts read;     /* --frame, --in-frame, --site */
+  const char *hi;        /* --hi CUBE */
   const char **files, **lists, **from;
   size_t nfiles, nlists, nfrom;
 } inspect_args;
@@ -150,6 +161,10 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     return 0;
   case O_ATOMIC: a->atomic_file = v; return 0;
   case O_AIR: a->air = 1; return 0;
+  case O_FRAME: return cli_opt_frame("inspect", v, &a->read);
+  case O_INFRAME: return cli_opt_in_frame("inspect", v, &a->read);
+  case O_SITE: return cli_opt_site("inspect", v, &a->read);
+  case O_HI: a->hi = v; return 0;
   case O_ASCII: o->ascii = 1; return 0;
   case O_NOCOLOUR: o->colour = 0; return 0;
   case O_REPLAY: o->replay = v; return 0;
@@ -307,6 +322,7 @@ static int build_queue(dt_queue *q, const inspect_args *a, const dt_atomic *atom
                        const dt_inspect_opts *o) {
   dt_err e;
   q->air = a->air; /* --air: every spectrum queued, where its file does not say */
+  q->read = a->read;
   for (size_t i = 0; i < a->nfiles; i++)
     if (dt_queue_add_file(q, a->files[i], &e)) {
       cli_report(a->files[i], &e);
@@ -436,6 +452,7 @@ int cmd_inspect(int argc, char **argv) {
   a.from = calloc((size_t)argc + 1, sizeof *a.from);
   int rc = 2;
   dt_atomic *atomic = NULL;
+  dt_hicube *cube = NULL;
   dt_queue q;
   dt_queue_init(&q);
   if (!a.files || !a.lists || !a.from) {
@@ -465,8 +482,18 @@ int cmd_inspect(int argc, char **argv) {
     if (rc < 0) rc = 0;
     goto out;
   }
+  if (a.hi) {
+    dt_err e;
+    if (dt_hicube_open(a.hi, &cube, &e) != DT_OK) {
+      cli_report(a.hi, &e);
+      rc = 1;
+      goto out;
+    }
+    o.hi = cube;
+  }
   rc = run_session(&q, atomic, &a, &o);
 out:
+  dt_hicube_close(cube);
   dt_queue_free(&q);
   dt_atomic_free(atomic);
   free(a.files);

@@ -23,6 +23,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "doubletty/num.h"
 #include "commands.h"
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
@@ -271,6 +272,16 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     memset(&ro, 0, sizeof ro);
     ro.hdu = en->target.hdu;
     ro.row = en->target.row;
+    /* the frame and position the fit was made in, as recorded */
+    if (en->target.frame[0] && dt_frame_parse(en->target.frame, &ro.out_frame) != DT_OK)
+      ro.out_frame = DT_FRAME_UNSET;
+    char sky[sizeof en->target.sky];
+    snprintf(sky, sizeof sky, "%s", en->target.sky);
+    char *comma = strchr(sky, ',');
+    if (comma) {
+      *comma = '\0';
+      if (dt_num_parse(sky, &ro.ra) == DT_OK && dt_num_parse(comma + 1, &ro.dec) == DT_OK) ro.has_pos = 1;
+    }
     dt_spectrum *sp = NULL;
     if (dt_spectrum_read(file, &ro, &sp, &e) != DT_OK) {
       printf("cannot refit  %s: %s%s%s\n", name, e.where, e.where[0] ? ": " : "", e.what);

@@ -14,4 +14,5 @@ int cmd_fraction(int argc, char **argv);
 int cmd_vsf(int argc, char **argv);
 int cmd_map(int argc, char **argv);
 int cmd_figure(int argc, char **argv);
+int cmd_hi(int argc, char **argv);
 #endif

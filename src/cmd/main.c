@@ -25,6 +25,7 @@ static const command commands[] = {
     {"vsf", cmd_vsf, "velocity structure function of sightline pairs, bootstrap errors"},
     {"map", cmd_map, "the sightlines on the sky: detections, limits, velocities"},
     {"figure", cmd_figure, "a velocity-stack figure per spectrum (PDF, PNG, SVG)"},
+    {"hi", cmd_hi, "21-cm cube at every sightline: N(HI), velocity, dispersion"},
 };
 
 /* Levenshtein distance of two short words (insert, delete, substitute);

@@ -8,6 +8,8 @@
 #include <unistd.h>
 
 #include "doubletty/csv.h"
+#include "doubletty/hicube.h"
+#include "doubletty/num.h"
 #include "doubletty/targets.h"
 
 /* ---- the table: columns and their values per row ---- */
@@ -48,6 +50,8 @@ static const column COLS[] = {
     {"logN_aod_weak", C_DBL, ""}, {"logN_aod_weak_err", C_DBL, ""},
     {"logN_limit_weak", C_DBL, ""}, {"nsigma", C_DBL, ""},
     {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
+    {"ra_deg", C_DBL, "deg"},     {"dec_deg", C_DBL, "deg"},
+    {"frame", C_STR, ""},
 };
 #define NCOL (sizeof COLS / sizeof COLS[0])
 
@@ -162,20 +166,80 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt
   c[i++].d = m->nsigma;
   c[i++].i = m->saturated;
   c[i++].s = m->suggested == DT_VERDICT_NONE ? "" : dt_verdict_name(m->suggested);
+  /* position and frame of the session's target record ("RA,DEC" text) */
+  double ra = NAN, dec = NAN;
+  char sky[sizeof en->target.sky];
+  snprintf(sky, sizeof sky, "%s", en->target.sky);
+  char *comma = strchr(sky, ',');
+  if (comma) {
+    *comma = '\0';
+    if (dt_num_parse(sky, &ra) != DT_OK || dt_num_parse(comma + 1, &dec) != DT_OK) ra = dec = NAN;
+  }
+  if (!(isfinite(ra) && isfinite(dec))) ra = dec = NAN;
+  c[i++].d = ra;
+  c[i++].d = dec;
+  c[i++].s = en->target.frame;
 }
 
 /* ---- CSV ---- */
 
-int dt_export_csv(FILE *f, const dt_journal *j) {
+/* The 21-cm columns joined by dt_export_csv_hi, after the others. */
+static const char *const HI_COLS[] = {"logN_HI", "logN_HI_err", "v_HI_kms", "sigma_HI_kms", "T_peak_K",
+                                      "HI_status"};
+
+/* The cube at an entry's recorded position, in its recorded frame,
+ * velocities relative to its vsys.  *status: a dt_hi_status name, or
+ * "no-position" / "failed". */
+static void hi_of_entry(const dt_hicube *cube, const dt_journal_entry *en, dt_hi_sample *hs,
+                        const char **status) {
+  memset(hs, 0, sizeof *hs);
+  double ra = NAN, dec = NAN;
+  char sky[sizeof en->target.sky];
+  snprintf(sky, sizeof sky, "%s", en->target.sky);
+  char *comma = strchr(sky, ',');
+  if (comma) {
+    *comma = '\0';
+    if (dt_num_parse(sky, &ra) != DT_OK || dt_num_parse(comma + 1, &dec) != DT_OK) ra = NAN;
+  }
+  if (!(isfinite(ra) && isfinite(dec))) {
+    *status = "no-position";
+    return;
+  }
+  dt_hi_opts ho;
+  memset(&ho, 0, sizeof ho);
+  if (!en->target.frame[0] || dt_frame_parse(en->target.frame, &ho.frame)) ho.frame = DT_FRAME_BARYCENT;
+  ho.vsys = en->state.vsys;
+  dt_err e;
+  if (dt_hicube_sample(cube, ra, dec, &ho, hs, &e) != DT_OK) {
+    *status = "failed";
+    return;
+  }
+  *status = dt_hi_status_name(hs->status);
+}
+
+static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube);
+
+int dt_export_csv(FILE *f, const dt_journal *j) { return write_csv(f, j, NULL); }
+
+int dt_export_csv_hi(FILE *f, const dt_journal *j, const dt_hicube *cube) {
+  return write_csv(f, j, cube);
+}
+
+static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube) {
   dt_csv w;
   dt_csv_init(&w, f);
   for (size_t c = 0; c < NCOL; c++) dt_csv_text(&w, COLS[c].name);
+  for (size_t c = 0; cube && c < sizeof HI_COLS / sizeof HI_COLS[0]; c++) dt_csv_text(&w, HI_COLS[c]);
   dt_csv_end(&w);
   cell cells[NCOL];
   row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
     size_t nc = comp_rows(en);
+    dt_hi_sample hs;
+    const char *hstat = "";
+    memset(&hs, 0, sizeof hs);
+    if (cube) hi_of_entry(cube, en, &hs, &hstat);
     for (size_t k = nc ? 1 : 0; k <= nc; k++) {
       fill_row(en, k, cells, rt);
       for (size_t c = 0; c < NCOL; c++) {
@@ -193,8 +257,18 @@ int dt_export_csv(FILE *f, const dt_journal *j) {
         case C_DBL: dt_csv_num(&w, cells[c].d); break;
         }
       }
+      if (cube) {
+        int ok = hs.status == DT_HI_OK && !strcmp(hstat, "ok");
+        dt_csv_fixed(&w, ok ? hs.logN : NAN, 4);
+        dt_csv_fixed(&w, ok ? hs.logN_err : NAN, 4);
+        dt_csv_fixed(&w, ok ? hs.v : NAN, 2);
+        dt_csv_fixed(&w, ok ? hs.sigma : NAN, 2);
+        dt_csv_fixed(&w, ok || hs.status == DT_HI_NO_EMISSION ? hs.tpeak : NAN, 3);
+        dt_csv_text(&w, hstat);
+      }
       dt_csv_end(&w);
     }
+    dt_hi_sample_free(&hs);
   }
   return dt_csv_error(&w) ? DT_EIO : DT_OK;
 }
@@ -207,8 +281,23 @@ static int fits_fail(int status, dt_err *e) {
   return dt_err_set(e, DT_EIO, NULL, "cannot write the FITS table: %s", msg);
 }
 
+static int write_fits(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e);
+
 int dt_export_fits(const char *path, const dt_journal *j, const char *session,
                    const char *session_sha, const char *version, dt_err *e) {
+  return write_fits(path, j, session, session_sha, version, NULL, e);
+}
+
+int dt_export_fits_hi(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e) {
+  return write_fits(path, j, session, session_sha, version, cube, e);
+}
+
+#define NHI (sizeof HI_COLS / sizeof HI_COLS[0])
+
+static int write_fits(const char *path, const dt_journal *j, const char *session,
+                      const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e) {
   /* string widths: the longest value of each string column */
   long width[NCOL];
   for (size_t c = 0; c < NCOL; c++) width[c] = 1;
@@ -223,8 +312,15 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
           width[c] = (long)strlen(cells[c].s);
     }
   }
-  char *ttype[NCOL], *tform[NCOL], *tunit[NCOL];
+  char *ttype[NCOL + NHI], *tform[NCOL + NHI], *tunit[NCOL + NHI];
   char forms[NCOL][24];
+  static const char *const hi_unit[NHI] = {"", "", "km s-1", "km s-1", "K", ""};
+  for (size_t c = 0; c < NHI; c++) {
+    ttype[NCOL + c] = (char *)HI_COLS[c];
+    tunit[NCOL + c] = (char *)hi_unit[c];
+    tform[NCOL + c] = c + 1 < NHI ? "D" : "12A";
+  }
+  int ncols = (int)NCOL + (cube ? (int)NHI : 0);
   for (size_t c = 0; c < NCOL; c++) {
     ttype[c] = (char *)COLS[c].name;
     tunit[c] = (char *)COLS[c].unit;
@@ -245,7 +341,7 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
   unlink(path);
   fits_create_diskfile(&f, path, &st);
   if (st) return fits_fail(st, e);
-  fits_create_tbl(f, BINARY_TBL, 0, (int)NCOL, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
+  fits_create_tbl(f, BINARY_TBL, 0, ncols, ttype, tform, tunit, "DOUBLETTY_SESSION", &st);
   char creator[64];
   snprintf(creator, sizeof creator, "doubletty %s", version);
   fits_update_key_str(f, "CREATOR", creator, "program that wrote this file", &st);
@@ -283,9 +379,27 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
   long long row = 0;
   for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    dt_hi_sample hs;
+    const char *hstat = "";
+    memset(&hs, 0, sizeof hs);
+    if (cube) hi_of_entry(cube, en, &hs, &hstat);
+    int hok = cube && hs.status == DT_HI_OK && !strcmp(hstat, "ok");
+    double hv[NHI - 1] = {hok ? hs.logN : NAN, hok ? hs.logN_err : NAN, hok ? hs.v : NAN,
+                          hok ? hs.sigma : NAN,
+                          hok || hs.status == DT_HI_NO_EMISSION ? hs.tpeak : NAN};
     for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en) && !st; k++) {
       fill_row(en, k, cells, rt);
       row++;
+      for (size_t c = 0; cube && c < NHI && !st; c++) {
+        int col = (int)(NCOL + c) + 1;
+        if (c + 1 < NHI) {
+          double v = hv[c];
+          fits_write_col(f, TDOUBLE, col, row, 1, 1, &v, &st);
+        } else {
+          char *sv = (char *)(hstat[0] ? hstat : " ");
+          fits_write_col(f, TSTRING, col, row, 1, 1, &sv, &st);
+        }
+      }
       for (size_t c = 0; c < NCOL && !st; c++) {
         int col = (int)c + 1;
         switch (COLS[c].type) {
@@ -313,6 +427,7 @@ int dt_export_fits(const char *path, const dt_journal *j, const char *session,
         }
       }
     }
+    dt_hi_sample_free(&hs);
   }
   if (st) {
     int st2 = 0;

@@ -162,6 +162,8 @@ static int update_target(dt_journal *j, size_t i, const dt_target *t) {
   if (rc == DT_OK) rc = set_str(&name, t->name);
   en->target.path = path;
   en->target.name = name;
+  if (t->frame[0]) memcpy(en->target.frame, t->frame, sizeof en->target.frame);
+  if (t->sky[0]) memcpy(en->target.sky, t->sky, sizeof en->target.sky);
   return rc == DT_OK && renew ? index_entry(j, i, t) : rc;
 }
 

@@ -9,6 +9,7 @@
  * reads nor appends).  Every other line is one change to one spectrum:
  *
  *   TIME  user=U  file=PATH  hdu=H  row=R  sha256=HEX  [was=HEX]  [name=TEXT]
+ *   [frame=NAME]  [sky=RA,DEC]
  *   act=ACTION  [action fields]  =>  [state fields]  sum=XXXXXXXX
  *
  * TIME is UTC, ISO 8601 with milliseconds and a Z.  A spectrum is identified
@@ -18,7 +19,9 @@
  * (unknown), by PATH, HDU and ROW.  PATH is a hint for finding the file: it
  * is relative to the session file's directory when the file lies below it,
  * else as the program was given it.  name= is the target list's name for the
- * spectrum (left out when there is none); was= is the earlier digest when the
+ * spectrum (left out when there is none); frame= the velocity frame its
+ * velocities are in (frames.h) and sky= its ICRS position in degrees, each
+ * left out when unknown; was= is the earlier digest when the
  * file changed since the last record of the same spectrum (a record whose
  * digest is new is matched to the spectrum by its path).
  *
@@ -225,6 +228,8 @@ const dt_jn_field dt_jn_fields[] = {
     {"sha256", JP_ID, JT_SHA, 0, REC(target.sha256), 0, 0, 0, 0},
     {"was", JP_ID, JT_SHA, JF_NONEMPTY | JF_OMIT, REC(sha256_was), 0, 0, 0, 0},
     {"name", JP_ID, JT_PTR, JF_NONEMPTY | JF_OMIT, REC(target.name), 0, 0, 0, 0},
+    {"frame", JP_ID, JT_TEXT, JF_NONEMPTY | JF_OMIT, REC(target.frame), 0, 0, TXT(dt_journal_record, target.frame), 0},
+    {"sky", JP_ID, JT_TEXT, JF_NONEMPTY | JF_OMIT, REC(target.sky), 0, 0, TXT(dt_journal_record, target.sky), 0},
     /* the action's fields (after act=), each with the actions that have it */
     {"lo", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(WINDOW_ADD)},
     {"hi", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(WINDOW_ADD)},

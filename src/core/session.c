@@ -22,6 +22,7 @@
 
 #include "doubletty/autofit.h"
 #include "doubletty/model.h"
+#include "doubletty/num.h"
 #include "session_priv.h"
 
 void dt_session_say(dt_session *ss, dt_session_tone tone, const char *fmt, ...) {
@@ -70,6 +71,11 @@ dt_target dt_session_journal_target(const dt_session *ss) {
   t.row = ss->row;
   memcpy(t.sha256, ss->sha, sizeof t.sha256);
   t.name = ss->name; /* the list's name=, "" if none */
+  if (ss->loaded && ss->spec) {
+    snprintf(t.frame, sizeof t.frame, "%s", dt_frame_name(ss->spec->frame));
+    if (ss->spec->has_pos)
+      dt_num_snprintf(t.sky, sizeof t.sky, "%.8f,%+.8f", ss->spec->ra, ss->spec->dec);
+  }
   return t;
 }
 

@@ -50,8 +50,7 @@ static void reset(dt_session *ss, const dt_session_target *t) {
 static int read_spectrum(dt_session *ss, const dt_session_target *t) {
   dt_err e;
   dt_err_clear(&e);
-  dt_read_opts ro;
-  memset(&ro, 0, sizeof ro);
+  dt_read_opts ro = t->read;
   ro.row = t->row;
   ro.air = t->air;
   int rc = dt_spectrum_read(t->path, &ro, &ss->spec, &e);

@@ -454,6 +454,7 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **o
   }
   free(base);
   free(sel);
+  if (rc == DT_OK && *out) rc = dt_spectrum_settle_frame(*out, opts, e);
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);
     *out = NULL;
@@ -478,6 +479,7 @@ int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
     else
       rc = dt_spectrum_read_text_mem(buf, len, opts, out, e);
   }
+  if (rc == DT_OK && *out) rc = dt_spectrum_settle_frame(*out, opts, e);
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);
     *out = NULL;

@@ -616,7 +616,8 @@ static int read_image(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out
   if (!s) return dt_err_set(e, DT_ENOMEM, where, "out of memory");
   s->hdu = hdu;
   dt_fits_common_keys(c, s);
-  rc = image_wavelengths(c->f, s, where, e);
+  rc = dt_fits_frame_keys(c, s, where, e);
+  if (!rc) rc = image_wavelengths(c->f, s, where, e);
   double nan = NAN;
   if (!rc) {
     fits_read_img(c->f, TDOUBLE, 1, (long long)s->n, &nan, s->flux, &anynul, &st);

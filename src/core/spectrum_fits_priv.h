@@ -39,6 +39,11 @@ void dt_fits_common_keys(fctx *c, dt_spectrum *s);
 /* Is the current HDU's data entirely inside the file? */
 int dt_fits_check_complete(fctx *c, int hdu, dt_err *e);
 
+/* Position, frame, time and site keywords of the current HDU (primary
+ * header as fallback) into s (spectrum_frame.c).  DT_EFORMAT for a
+ * malformed value, naming the keyword. */
+int dt_fits_frame_keys(fctx *c, dt_spectrum *s, const char *where, dt_err *e);
+
 /* The table in the current HDU (spectrum_fits_table.c). */
 int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out, dt_err *e);
 int dt_fits_count_rows(fctx *c, int hdu, const dt_read_opts *o, long *count, dt_err *e);

@@ -106,9 +106,12 @@ static const char *const flux_names[] = {"FLUX", NULL};
 static const char *const err_names[] = {"IVAR", "INVVAR", "ERR", "ERROR", "SIGMA", "FLUX_ERR",
                                         "VAR", "VARIANCE", NULL};
 static const char *const mask_names[] = {"MASK", "AND_MASK", NULL};
+/* Sky position per row, degrees (ICRS): the first pair present */
+static const char *const ra_names[] = {"RA", "PLUG_RA", "RA_OBJ", NULL};
+static const char *const dec_names[] = {"DEC", "PLUG_DEC", "DEC_OBJ", NULL};
 
 typedef struct table_cols {
-  colinfo wave, flux, err, mask;
+  colinfo wave, flux, err, mask, ra, dec;
   long long nrows;
   int rows_layout;
 } table_cols;
@@ -134,6 +137,22 @@ static int table_columns(fctx *c, int hdu, const dt_read_opts *o, table_cols *t,
   if (!rc) rc = find_column(c->f, ncols, names, wo, wave_names, "wavelength", &t->wave, where, e);
   if (!rc) rc = find_column(c->f, ncols, names, eo, err_names, "uncertainty", &t->err, where, e);
   if (!rc) rc = find_column(c->f, ncols, names, mo, mask_names, "mask", &t->mask, where, e);
+  memset(&t->ra, 0, sizeof t->ra);
+  memset(&t->dec, 0, sizeof t->dec);
+  for (int k = 0; !rc && ra_names[k] && !t->ra.num; k++) {
+    /* numeric columns only: a text column (sexagesimal) is not read */
+    const char *rn[2] = {ra_names[k], NULL}, *dn[2] = {dec_names[k], NULL};
+    dt_err scratch;
+    if (find_column(c->f, ncols, names, NULL, rn, "right ascension", &t->ra, where, &scratch) ||
+        find_column(c->f, ncols, names, NULL, dn, "declination", &t->dec, where, &scratch)) {
+      memset(&t->ra, 0, sizeof t->ra);
+      memset(&t->dec, 0, sizeof t->dec);
+      continue;
+    }
+    if ((t->ra.num != 0) != (t->dec.num != 0))
+      rc = dt_err_set(e, DT_EFORMAT, where, "column %s without column %s", t->ra.num ? ra_names[k] : dec_names[k],
+                      t->ra.num ? dec_names[k] : ra_names[k]);
+  }
   free(names);
   if (rc) return rc;
   if (!t->flux.num) return dt_err_set(e, DT_ENOTFOUND, where, "no flux column (looked for FLUX)");
@@ -237,7 +256,23 @@ int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **ou
   dt_fits_common_keys(c, s);
   int log10w = 0;
   double scale = 1;
-  rc = table_wave_unit(c, &t.wave, &log10w, &scale, s, where, e);
+  rc = dt_fits_frame_keys(c, s, where, e);
+  if (!rc && t.rows_layout && t.ra.num) {
+    /* the row's own position, degrees (ICRS) */
+    double ra = NAN, dec = NAN;
+    rc = read_col(c->f, &t.ra, row, 1, &ra, where, e);
+    if (!rc) rc = read_col(c->f, &t.dec, row, 1, &dec, where, e);
+    if (!rc && !(ra >= 0 && ra < 360 && dec >= -90 && dec <= 90))
+      rc = dt_err_set(e, DT_EFORMAT, where, "columns %s/%s = %g, %g: not a position in degrees", t.ra.name,
+                      t.dec.name, ra, dec);
+    if (!rc) {
+      s->has_pos = 1;
+      s->ra = ra;
+      s->dec = dec;
+      snprintf(s->pos_from, sizeof s->pos_from, "columns %.16s/%.16s", t.ra.name, t.dec.name);
+    }
+  }
+  if (!rc) rc = table_wave_unit(c, &t.wave, &log10w, &scale, s, where, e);
   if (!rc) rc = read_col(c->f, &t.wave, row, n, s->wave, where, e);
   if (!rc)
     for (long long i = 0; i < n; i++) s->wave[i] = (log10w ? pow(10.0, s->wave[i]) : s->wave[i]) * scale;

@@ -39,6 +39,11 @@ int dt_spectrum_read_text_mem(const void *buf, size_t len, const dt_read_opts *o
  * assumed.  Air wavelengths are then converted to vacuum (airvac.c). */
 void dt_spectrum_settle_air(dt_spectrum *s, const dt_read_opts *o);
 
+/* Settle position and frame once the file has had its say (spectrum.h,
+ * "Positions and frames"), and convert the wavelengths to the output
+ * frame (spectrum_frame.c).  DT_EINVAL when the conversion is impossible. */
+int dt_spectrum_settle_frame(dt_spectrum *s, const dt_read_opts *o, dt_err *e);
+
 /* Wavelength unit -> factor to Angstrom.  Empty/NULL = Angstrom.  Returns 0
  * and fills *scale and the canonical name, or -1 for an unknown unit. */
 int dt_spectrum_unit_scale(const char *unit, double *scale, char *canon, size_t canon_size);

@@ -7,6 +7,7 @@
  * described in include/doubletty/targets.h. */
 #include "doubletty/targets.h"
 #include "doubletty/num.h"
+#include "doubletty/sky.h"
 
 #include <errno.h>
 #include <limits.h>
@@ -46,15 +47,47 @@ static int parse_num(const char *s, double *out) {
 
 enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_WINDOW, K_AIR, NKEYS };
 
+/* The position and frame fields ra=, dec=, frame=: DT_OK or an error when
+ * the key is one of them, -1 when it is not.  Their bits in *seen sit
+ * above the other keys'. */
+enum { SKY_SEEN_SHIFT = 24 };
+static int parse_sky_field(dt_target_spec *t, const char *key, const char *val, long lineno,
+                           unsigned *seen, dt_err *e) {
+  static const char *const keys[3] = {"ra", "dec", "frame"};
+  int k = -1;
+  for (int i = 0; i < 3; i++)
+    if (!strcmp(key, keys[i])) k = i;
+  if (k < 0) return -1;
+  if (!val || !*val) return bad(e, lineno, "key '%s' has no value", key);
+  unsigned bit = 1u << (SKY_SEEN_SHIFT + k);
+  if (*seen & bit) return bad(e, lineno, "key '%s' given twice", key);
+  *seen |= bit;
+  if (k == 0 && dt_sky_parse_ra(val, &t->ra))
+    return bad(e, lineno, "ra must be degrees or hh:mm:ss (ICRS), not '%s'", val);
+  if (k == 1 && dt_sky_parse_dec(val, &t->dec))
+    return bad(e, lineno, "dec must be degrees or +dd:mm:ss (ICRS), not '%s'", val);
+  if (k == 2) {
+    dt_frame f = DT_FRAME_UNSET;
+    if (dt_frame_parse(val, &f) || f == DT_FRAME_GALACTOC || f == DT_FRAME_LOCALGRP)
+      return bad(e, lineno, "frame must be TOPOCENT, GEOCENTR, BARYCENT, HELIOCEN, LSRK or LSRD, not '%s'", val);
+    t->frame = f;
+  }
+  unsigned both = 3u << SKY_SEEN_SHIFT;
+  t->has_pos = (*seen & both) == both;
+  return DT_OK;
+}
+
 /* One key=value field (or the flag "air": val == NULL). */
 static int parse_field(dt_target_spec *t, const char *key, const char *val, long lineno,
                        unsigned *seen, dt_err *e) {
+  int sky = parse_sky_field(t, key, val, lineno, seen, e);
+  if (sky >= 0) return sky;
   static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "window", "air"};
   int k = -1;
   for (int i = 0; i < NKEYS; i++)
     if (!strcmp(key, keys[i])) k = i;
   if (k < 0 && !val) return bad(e, lineno, "field '%s' is neither key=value nor the flag air", key);
-  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window, flag air)", key);
+  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window ra dec frame, flag air)", key);
   if (*seen & (1u << k)) return bad(e, lineno, "key '%s' given twice", key);
   *seen |= 1u << k;
   if (k == K_AIR) {
@@ -195,6 +228,8 @@ int dt_targets_parse_line(const char *line, const char *basedir, long lineno,
     if (rc != DT_OK) return rc;
   }
   if (rc != 0) return rc;
+  if (!!(seen & (1u << SKY_SEEN_SHIFT)) != !!(seen & (2u << SKY_SEEN_SHIFT)))
+    return bad(e, lineno, "give ra and dec together%s", "");
   if (nfield == 0) return DT_OK;
   *got = 1;
   return DT_OK;

@@ -90,7 +90,25 @@ typedef struct sight {
   int nsky;
   struct { int line, kind; double strength, eps; } sky[4];
   unsigned long noise_seed;
+  /* where and how it was observed (invented) */
+  double ra, dec;   /* ICRS [deg] */
+  int frame;        /* dt_frame of the file's wavelengths */
+  double mjd;       /* UTC midpoint of the exposure */
+  double exptime;   /* [s] */
+  double kfile;     /* lambda_file = kfile * lambda_heliocentric */
+  double ktopo;     /* lambda_topocentric = ktopo * lambda_heliocentric (sky lines) */
 } sight;
+
+/* The invented patch of sky: the pair's centre and the observatory. */
+#define DEMO_PAIR_RA 161.2375   /* 10:44:57.0 */
+#define DEMO_PAIR_DEC 13.415    /* +13:24:54 */
+#define DEMO_SITE_LON 141.37    /* deg east */
+#define DEMO_SITE_LAT -29.12
+#define DEMO_SITE_H 1150.0      /* m */
+
+/* The 21-cm cube of the pair and its bridge (demo_cube.c). */
+int dt_demo_write_cube(const char *path, unsigned long seed, dt_err *e);
+#define CUBE_FILE "velloran_hi.fits"
 
 /* Pixel data of one sightline, all in the vacuum frame except wfile. */
 typedef struct pixels {

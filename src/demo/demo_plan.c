@@ -32,6 +32,7 @@
 
 #include "demo_internal.h"
 #include "doubletty/airvac.h"
+#include "doubletty/frames.h"
 #include "doubletty/model.h"
 
 /* The survey plan: every layout appears within the first six sightlines. */
@@ -268,6 +269,44 @@ static void plan_grid(sight *s, double wmin, double wmax) {
   }
 }
 
+/* Position, frame and time of a sightline, from a stream of its own (the
+ * spectra stay those of the same seed without positions): a patch of about
+ * 0.2 degrees around the pair.  Linear and log images are written in three
+ * frames by turns (heliocentric, topocentric with the time and the
+ * observatory, barycentric); the other layouts stay heliocentric. */
+static void plan_sky(const dt_demo_opts *o, sight *s) {
+  gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+  double u1 = 0.5, u2 = 0.5, u3 = 0.5, u4 = 0.5;
+  if (r) {
+    gsl_rng_set(r, mix_seed(o->seed, (unsigned long)s->idx, 5));
+    u1 = gsl_rng_uniform(r);
+    u2 = gsl_rng_uniform(r);
+    u3 = gsl_rng_uniform(r);
+    u4 = gsl_rng_uniform(r);
+    gsl_rng_free(r);
+  }
+  s->dec = round_to(DEMO_PAIR_DEC + 0.22 * (u2 - 0.5), 1e-5);
+  s->ra = round_to(DEMO_PAIR_RA + 0.22 * (u1 - 0.5) / cos(DEMO_PAIR_DEC * DEMO_TWO_PI / 360.0), 1e-5);
+  /* nights of an invented observing run, 2030 December (MJD 62836..62845) */
+  s->mjd = round_to(62836.5 + floor(10.0 * u3) + 0.3 * u4, 1e-5);
+  s->exptime = 1200.0;
+  s->frame = DT_FRAME_HELIOCEN;
+  s->kfile = 1.0;
+  if (s->s.layout == L_IMG_LIN || s->s.layout == L_IMG_LOG) {
+    int turn = s->idx % 3;
+    s->frame = turn == 1 ? DT_FRAME_TOPOCENT : turn == 2 ? DT_FRAME_BARYCENT : DT_FRAME_HELIOCEN;
+  }
+  dt_frame_obs obs = {1, s->mjd, 1, DEMO_SITE_LON, DEMO_SITE_LAT, DEMO_SITE_H};
+  dt_err e;
+  double k = 1.0;
+  s->ktopo = 1.0;
+  if (dt_frame_factor(DT_FRAME_HELIOCEN, DT_FRAME_TOPOCENT, s->ra, s->dec, &obs, &k, &e) == DT_OK)
+    s->ktopo = k;
+  if (s->frame != DT_FRAME_HELIOCEN &&
+      dt_frame_factor(DT_FRAME_HELIOCEN, (dt_frame)s->frame, s->ra, s->dec, &obs, &k, &e) == DT_OK)
+    s->kfile = k;
+}
+
 int dt_demo_plan_sight(int idx, const dt_demo_opts *o, sight *s, double plate_R,
                        double plate_w0, double plate_w1, long *next_row) {
   memset(s, 0, sizeof *s);
@@ -299,6 +338,7 @@ int dt_demo_plan_sight(int idx, const dt_demo_opts *o, sight *s, double plate_R,
   plan_defects(r, s, o->nai, wmin, wmax);
   s->noise_seed = mix_seed(o->seed, (unsigned long)idx, 2);
   gsl_rng_free(r);
+  plan_sky(o, s);
   return DT_OK;
 }
 
@@ -405,7 +445,8 @@ int dt_demo_make_pixels(const sight *s, const dt_demo_opts *o, pixels *p, dt_err
     p->sigma[i] = sig0 * sqrt(0.35 + 0.65 * f / cref);
   }
   for (int j = 0; j < s->nsky; j++) {
-    double lc = dt_air_to_vac(sky_air[s->sky[j].line]);
+    /* sky lines are topocentric: at their rest wavelength in the observer's frame */
+    double lc = dt_air_to_vac(sky_air[s->sky[j].line]) / s->ktopo;
     double sl = lc / s->R / 2.3548; /* LSF sigma [A] */
     double peak = s->sky[j].strength * sig0, eps = s->sky[j].eps;
     double shift = 0.5 * sl * eps;

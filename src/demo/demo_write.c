@@ -19,6 +19,7 @@
 
 #include "demo_internal.h"
 #include "doubletty/airvac.h"
+#include "doubletty/frames.h"
 
 /* ---- writing ------------------------------------------------------------- */
 
@@ -66,6 +67,38 @@ static void key_common(fitsfile *f, const sight *s, int *status) {
   fits_write_comment(f, "injected absorption components are listed in truth.csv.", status);
 }
 
+/* Position, frame, time and (for topocentric spectra) the observatory. */
+static void key_sky(fitsfile *f, const sight *s, int *status) {
+  if (s->idx % 2) { /* every other one in sexagesimal text */
+    char ra[32], dec[32];
+    double h = s->ra / 15.0, d = fabs(s->dec);
+    int hh = (int)h, hm = (int)((h - hh) * 60.0), dd = (int)d, dm = (int)((d - dd) * 60.0);
+    double hs = (h - hh - hm / 60.0) * 3600.0, ds = (d - dd - dm / 60.0) * 3600.0;
+    snprintf(ra, sizeof ra, "%02d:%02d:%07.4f", hh, hm, hs);
+    snprintf(dec, sizeof dec, "%c%02d:%02d:%06.3f", s->dec < 0 ? '-' : '+', dd, dm, ds);
+    fits_write_key_str(f, "RA", ra, "right ascension (ICRS) [h:m:s]", status);
+    fits_write_key_str(f, "DEC", dec, "declination (ICRS) [d:m:s]", status);
+  } else {
+    fits_write_key_dbl(f, "RA", s->ra, -10, "right ascension (ICRS) [deg]", status);
+    fits_write_key_dbl(f, "DEC", s->dec, -10, "declination (ICRS) [deg]", status);
+  }
+  fits_write_key_str(f, "RADESYS", "ICRS", "", status);
+  const char *fr = dt_frame_name((dt_frame)s->frame);
+  fits_write_key_str(f, "SPECSYS", fr,
+                     s->frame == DT_FRAME_TOPOCENT   ? "topocentric: as observed"
+                     : s->frame == DT_FRAME_BARYCENT ? "barycentric frame"
+                                                     : "heliocentric frame",
+                     status);
+  fits_write_key_dbl(f, "MJD-OBS", s->mjd - 0.5 * s->exptime / 86400.0, -13,
+                     "start of the exposure (UTC)", status);
+  fits_write_key_dbl(f, "EXPTIME", s->exptime, -6, "exposure time [s]", status);
+  if (s->frame == DT_FRAME_TOPOCENT) {
+    fits_write_key_dbl(f, "OBSGEO-L", DEMO_SITE_LON, -8, "observatory longitude [deg east]", status);
+    fits_write_key_dbl(f, "OBSGEO-B", DEMO_SITE_LAT, -8, "observatory latitude [deg]", status);
+    fits_write_key_dbl(f, "OBSGEO-H", DEMO_SITE_H, -8, "observatory height [m]", status);
+  }
+}
+
 /* Spectral axis keywords of an image HDU. */
 static void key_axis(fitsfile *f, const sight *s, int *status) {
   int nm = (s->s.flags & F_NM) != 0;
@@ -76,13 +109,14 @@ static void key_axis(fitsfile *f, const sight *s, int *status) {
                      status);
   fits_write_key_str(f, "CUNIT1", nm ? "nm" : "Angstrom", "", status);
   fits_write_key_dbl(f, "CRPIX1", 1.0, -15, "reference pixel", status);
-  fits_write_key_dbl(f, "CRVAL1", s->w0 * scale, -15, "wavelength at the reference pixel", status);
-  double cdelt = s->log_grid ? s->step * s->w0 : s->step;
+  fits_write_key_dbl(f, "CRVAL1", s->w0 * scale * s->kfile, -15, "wavelength at the reference pixel",
+                     status);
+  double cdelt = (s->log_grid ? s->step * s->w0 : s->step) * s->kfile;
   if (s->s.flags & F_CD)
     fits_write_key_dbl(f, "CD1_1", cdelt * scale, -15, "pixel size at the reference pixel", status);
   else
     fits_write_key_dbl(f, "CDELT1", cdelt * scale, -15, "pixel size at the reference pixel", status);
-  fits_write_key_str(f, "SPECSYS", "HELIOCEN", "heliocentric frame", status);
+  key_sky(f, s, status);
 }
 
 static int write_image(outdir *od, const sight *s, const pixels *p, dt_err *e) {
@@ -146,6 +180,7 @@ static int write_table(outdir *od, const sight *s, const pixels *p, dt_err *e) {
   key_common(f, s, &status);
   fits_create_tbl(f, BINARY_TBL, (LONGLONG)p->n, 4, ttype, tform, tunit, "SPECTRUM", &status);
   key_common(f, s, &status);
+  key_sky(f, s, &status);
   fits_write_comment(f, "WAVE: vacuum wavelength, heliocentric. MASK bits: 1 cosmic-ray", &status);
   fits_write_comment(f, "hit, 2 detector defect; IVAR = 0 marks pixels without data.", &status);
   fits_write_col(f, TDOUBLE, 1, 1, 1, (LONGLONG)p->n, p->wfile, &status);
@@ -169,13 +204,17 @@ static int plate_open(outdir *od, size_t n, double R, fitsfile **f, dt_err *e) {
   snprintf(fw, sizeof fw, "%zuD", n);
   snprintf(fe, sizeof fe, "%zuE", n);
   snprintf(fj, sizeof fj, "%zuJ", n);
-  char *ttype[] = {"FIBRE", "TARGET", "WAVE", "FLUX", "IVAR", "MASK"};
-  char *tform[] = {"1J", "16A", fw, fe, fe, fj};
-  char *tunit[] = {"", "", "Angstrom", FLUX_UNIT, IVAR_UNIT, ""};
+  char *ttype[] = {"FIBRE", "TARGET", "WAVE", "FLUX", "IVAR", "MASK", "RA", "DEC"};
+  char *tform[] = {"1J", "16A", fw, fe, fe, fj, "1D", "1D"};
+  char *tunit[] = {"", "", "Angstrom", FLUX_UNIT, IVAR_UNIT, "", "deg", "deg"};
   fits_create_img(*f, BYTE_IMG, 0, NULL, &status);
   key_common(*f, NULL, &status);
-  fits_create_tbl(*f, BINARY_TBL, 0, 6, ttype, tform, tunit, "FIBRES", &status);
+  fits_create_tbl(*f, BINARY_TBL, 0, 8, ttype, tform, tunit, "FIBRES", &status);
   key_common(*f, NULL, &status);
+  fits_write_key_str(*f, "RADESYS", "ICRS", "fibre positions RA, DEC (ICRS)", &status);
+  fits_write_key_str(*f, "SPECSYS", "HELIOCEN", "heliocentric frame", &status);
+  fits_write_key_dbl(*f, "MJD-OBS", 62840.6, -13, "start of the exposure (UTC)", &status);
+  fits_write_key_dbl(*f, "EXPTIME", 2400.0, -6, "exposure time [s]", &status);
   fits_write_key_dbl(*f, "SPECRES", R, -10, "resolving power lambda/FWHM", &status);
   fits_write_comment(*f, "One fibre per row. WAVE: vacuum wavelength, heliocentric.", &status);
   fits_write_comment(*f, "MASK bits: 1 cosmic-ray hit, 2 detector defect; IVAR = 0", &status);
@@ -207,6 +246,9 @@ static int plate_row(fitsfile *f, const sight *s, const pixels *p, dt_err *e) {
   fits_write_col(f, TFLOAT, 4, row, 1, (LONGLONG)p->n, flux, &status);
   fits_write_col(f, TFLOAT, 5, row, 1, (LONGLONG)p->n, ivar, &status);
   fits_write_col(f, TINT, 6, row, 1, (LONGLONG)p->n, p->mask, &status);
+  double ra = s->ra, dec = s->dec;
+  fits_write_col(f, TDOUBLE, 7, row, 1, 1, &ra, &status);
+  fits_write_col(f, TDOUBLE, 8, row, 1, 1, &dec, &status);
   free(flux);
   free(ivar);
   if (status) return fits_fail(status, PLATE_FILE, e);
@@ -249,17 +291,17 @@ static void describe_defects(const sight *s, char *buf, size_t len) {
                              bad_name[s->bad[j].kind], s->bad[j].lam, s->bad[j].npix);
   for (int j = 0; j < s->nsky && used < len; j++)
     used += (size_t)snprintf(buf + used, len - used, "%s%s:%.2f", used ? ";" : "",
-                             sky_name[s->sky[j].kind], dt_air_to_vac(sky_air[s->sky[j].line]));
+                             sky_name[s->sky[j].kind], dt_air_to_vac(sky_air[s->sky[j].line]) / s->ktopo);
 }
 
 static double first_vac(const sight *s) {
-  return s->s.layout == L_IMG_AIR ? dt_air_to_vac(s->w0) : s->w0;
+  return s->s.layout == L_IMG_AIR ? dt_air_to_vac(s->w0) : s->w0 * s->kfile;
 }
 
 static double last_vac(const sight *s) {
   double n1 = (double)(s->n - 1);
   double w = s->log_grid ? s->w0 * exp(s->step * n1) : s->w0 + s->step * n1;
-  return s->s.layout == L_IMG_AIR ? dt_air_to_vac(w) : w;
+  return s->s.layout == L_IMG_AIR ? dt_air_to_vac(w) : w * s->kfile;
 }
 
 static int write_lists(outdir *od, const sight *sl, int count, const dt_demo_opts *o,
@@ -275,10 +317,13 @@ static int write_lists(outdir *od, const sight *sl, int count, const dt_demo_opt
   for (int k = 0; k < count; k++) {
     const sight *s = &sl[k];
     for (int d = 0; d < 1 + ((s->s.flags & F_WIDE) && o->caii ? 1 : 0); d++) {
-      char rowtxt[24] = "";
+      char rowtxt[24] = "", skytxt[80] = "";
       if (s->row) snprintf(rowtxt, sizeof rowtxt, " row=%ld", s->row);
-      fprintf(f, "%-15s%s vsys=%.0f R=%.0f doublet=%s name=%s\n", s->file, rowtxt, DT_DEMO_VSYS,
-              s->R, d ? o->caii->name : o->nai->name, s->name);
+      /* a text file has no header: the list gives its position and frame */
+      if (s->s.layout == L_TEXT)
+        snprintf(skytxt, sizeof skytxt, " ra=%.5f dec=%+.5f frame=HELIOCEN", s->ra, s->dec);
+      fprintf(f, "%-15s%s%s vsys=%.0f R=%.0f doublet=%s name=%s\n", s->file, rowtxt, skytxt,
+              DT_DEMO_VSYS, s->R, d ? o->caii->name : o->nai->name, s->name);
       sum->ntargets++;
     }
   }
@@ -294,11 +339,14 @@ static int write_lists(outdir *od, const sight *sl, int count, const dt_demo_opt
              " component;\n# a sightline without any has one line with origin none."
              " v_helio heliocentric [km/s];\n# v_rel relative to vsys = %.0f km/s as"
              " (1+v_helio/c) = (1+vsys/c)(1+v_rel/c); logN [cm^-2]; b [km/s];\n"
-             "# wave_min/wave_max: first/last pixel centre, vacuum [Angstrom]; snr per"
-             " pixel on the continuum near Na I D;\n# defects: KIND:WAVE(vacuum)[xPIXELS].\n",
+             "# wave_min/wave_max: first/last pixel centre, vacuum [Angstrom], in the file's"
+             " frame (column frame);\n# snr per"
+             " pixel on the continuum near Na I D; defects: KIND:WAVE(vacuum, heliocentric)"
+             "[xPIXELS];\n# ra_deg/dec_deg: position (ICRS); frame: of the file's wavelengths"
+             " (v_helio stays heliocentric).\n",
           DT_DEMO_VSYS);
   fprintf(f, "file,row,name,source,z_source,layout,npix,wave_min,wave_max,R,snr,defects,"
-             "doublet,origin,v_helio,v_rel,logN,b\n");
+             "doublet,origin,v_helio,v_rel,logN,b,ra_deg,dec_deg,frame\n");
   for (int k = 0; k < count; k++) {
     const sight *s = &sl[k];
     char defects[256];
@@ -307,12 +355,14 @@ static int write_lists(outdir *od, const sight *sl, int count, const dt_demo_opt
     snprintf(head, sizeof head, "%s,%ld,%s,%s,%.4f,%s,%zu,%.6f,%.6f,%.0f,%.1f,%s", s->file,
              s->row, s->name, s->s.kind == 'Q' ? "quasar" : "galaxy", s->cont.z,
              layout_name[s->s.layout], s->n, first_vac(s), last_vac(s), s->R, s->snr, defects);
-    if (s->ncomp == 0) fprintf(f, "%s,%s,none,,,,\n", head, o->nai->name);
+    char tail[96];
+    snprintf(tail, sizeof tail, "%.5f,%.5f,%s", s->ra, s->dec, dt_frame_name((dt_frame)s->frame));
+    if (s->ncomp == 0) fprintf(f, "%s,%s,none,,,,,%s\n", head, o->nai->name, tail);
     for (int j = 0; j < s->ncomp; j++) {
       const demo_comp *c = &s->comp[j];
       double vrel = DT_C_KMS * ((1.0 + c->c.v / DT_C_KMS) / (1.0 + DT_DEMO_VSYS / DT_C_KMS) - 1.0);
-      fprintf(f, "%s,%s,%s,%.2f,%.2f,%.3f,%.2f\n", head, c->caii ? o->caii->name : o->nai->name,
-              c->origin == O_MW ? "milky-way" : "pair", c->c.v, vrel, c->c.logN, c->c.b);
+      fprintf(f, "%s,%s,%s,%.2f,%.2f,%.3f,%.2f,%s\n", head, c->caii ? o->caii->name : o->nai->name,
+              c->origin == O_MW ? "milky-way" : "pair", c->c.v, vrel, c->c.logN, c->c.b, tail);
       sum->ncomponents++;
     }
   }
@@ -479,6 +529,12 @@ int dt_demo_write(const char *dir, const dt_demo_opts *o, dt_demo_summary *sum, 
     int status = 0;
     fits_close_file(plate, &status);
     if (status && st == DT_OK) st = fits_fail(status, PLATE_FILE, e);
+  }
+  if (st == DT_OK) {
+    const char *cube = out_path(&od, CUBE_FILE);
+    if (unlink(cube) != 0 && errno != ENOENT) st = dt_err_set(e, DT_EIO, CUBE_FILE, "cannot replace: %s", strerror(errno));
+    if (st == DT_OK) st = dt_demo_write_cube(cube, o->seed, e);
+    if (st == DT_OK) sum->nfiles++;
   }
   free(sl);
   return st;

@@ -6,6 +6,7 @@
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
 #include "doubletty/digest.h"
+#include "doubletty/hicube.h"
 #include "doubletty/journal.h"
 #include "doubletty/judge.h"
 #include "doubletty/session.h"
@@ -58,6 +59,12 @@ typedef struct dt_insp {
   dt_edit_mode editing;
   char edit[DT_NOTE_MAX];
   size_t edit_len, edit_pos;     /* bytes */
+
+  /* the 21-cm spectrum at the current sightline (o->hi given) */
+  int has_hi;                    /* hs holds a sample (any status) */
+  dt_hi_sample hs;
+  double hs_vsys;                /* the vsys hs's velocities are relative to */
+  char hi_msg[120];              /* why not, when has_hi is 0 */
 
   /* drawing */
   dt_grid g;

@@ -112,6 +112,31 @@ static void initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
   }
 }
 
+/* The 21-cm spectrum at the sightline, in the spectrum's frame. */
+static void hi_sample(dt_insp *s) {
+  dt_hi_sample_free(&s->hs);
+  s->has_hi = 0;
+  s->hi_msg[0] = '\0';
+  if (!s->o->hi) return;
+  const dt_spectrum *sp = s->ss->loaded ? s->ss->spec : NULL;
+  if (!sp || !sp->has_pos) {
+    snprintf(s->hi_msg, sizeof s->hi_msg, "%s", sp ? "no sky position" : "no spectrum");
+    return;
+  }
+  dt_hi_opts ho;
+  memset(&ho, 0, sizeof ho);
+  ho.frame = sp->frame;
+  ho.vsys = s->ss->j.vsys;
+  dt_err e;
+  dt_err_clear(&e);
+  if (dt_hicube_sample(s->o->hi, sp->ra, sp->dec, &ho, &s->hs, &e) != DT_OK) {
+    snprintf(s->hi_msg, sizeof s->hi_msg, "%.110s", e.what);
+    return;
+  }
+  s->has_hi = 1;
+  s->hs_vsys = ho.vsys;
+}
+
 void dt_insp_load(dt_insp *s, size_t idx) {
   if (idx >= s->q->n) return;
   s->cur = idx;
@@ -123,6 +148,9 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   dt_session_target_init(&t, dt_queue_path(s->q, idx), entry_key(s, idx, key, sizeof key), s->q->e[idx].row);
   t.name = dt_queue_name(s->q, idx);
   t.air = s->q->e[idx].air;
+  t.read = s->q->read; /* frames: --frame, --in-frame, --site; then the list's */
+  if (s->q->e[idx].has_pos) t.read.has_pos = 1, t.read.ra = s->q->e[idx].ra, t.read.dec = s->q->e[idx].dec;
+  if (s->q->e[idx].frame != DT_FRAME_UNSET) t.read.in_frame = (dt_frame)s->q->e[idx].frame;
   initial_state(s, idx, &t.initial);
   if (dt_session_load(s->ss, &t) != DT_OK) {
     char k1[16], k2[16];
@@ -132,6 +160,7 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   } else {
     overview_range(s);
   }
+  hi_sample(s);
   s->cursor_v = s->ss->j.ncomp ? s->ss->j.comp[0].v : 0.0;
   s->view_lo = s->ss->j.vlo;
   s->view_hi = s->ss->j.vhi;
@@ -362,6 +391,7 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
   free(ftimes);
   if (rp.f) fclose(rp.f);
   dt_session_free(s->ss);
+  dt_hi_sample_free(&s->hs);
   free(s->tmp);
   dt_grid_free(&s->g);
   dt_plot_free(&s->p);

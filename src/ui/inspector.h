@@ -31,6 +31,7 @@ typedef struct dt_inspect_opts {
   int bench;               /* print per-keystroke timing at the end */
   /* set by the command, for the inspector to show and use */
   const char *session_path; /* shown at the start (NULL: the journal's path) */
+  const struct dt_hicube *hi; /* a 21-cm cube to show at each sightline (or NULL) */
 } dt_inspect_opts;
 
 void dt_inspect_opts_init(dt_inspect_opts *o);

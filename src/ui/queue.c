@@ -94,6 +94,10 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   x->has_vsys = (unsigned char)t->has_vsys;
   x->air = (unsigned char)(t->air || q->air);
   x->has_window = (unsigned char)t->has_window;
+  x->has_pos = (unsigned char)t->has_pos;
+  x->ra = t->ra;
+  x->dec = t->dec;
+  x->frame = (signed char)t->frame;
   x->vlo = t->vlo;
   x->vhi = t->vhi;
   x->resolution = t->resolution;

@@ -11,6 +11,7 @@
 #define DT_UI_QUEUE_H
 #include <stddef.h>
 #include "doubletty/status.h"
+#include "doubletty/spectrum.h"
 #include "doubletty/targets.h"
 
 typedef struct dt_qentry {
@@ -26,6 +27,9 @@ typedef struct dt_qentry {
   unsigned char air;     /* wavelengths in air where the file does not say */
   unsigned char has_window;
   double vlo, vhi;       /* velocity window [km/s] when has_window */
+  unsigned char has_pos; /* ra=/dec= of the list: */
+  double ra, dec;        /*   ICRS [deg] */
+  signed char frame;     /* frame= of the list (dt_frame; UNSET = not given) */
   signed char verdict;  /* cached verdict (dt_verdict), -1 = not known yet */
 } dt_qentry;
 
@@ -36,6 +40,7 @@ typedef struct dt_queue {
   size_t pool_len, pool_cap;
   char cwd[4096];
   int air;              /* every entry added from now on: wavelengths in air */
+  dt_read_opts read;    /* frame options (out_frame, in_frame, site) for every entry */
 } dt_queue;
 
 void dt_queue_init(dt_queue *q);

@@ -1,13 +1,16 @@
 /* The inspector's screen, drawn from its state into a grid of cells.
  *
  * Layout, top to bottom (our own design):
- *   title bar     queue position, judged count, target, doublet, frame, R
+ *   title bar     queue position, judged count, target, doublet, vsys, R,
+ *                 velocity frame
  *   overview      the whole spectrum in wavelength: flux, continuum, the two
  *                 lines' positions, continuum windows; a wavelength axis
  *   line panels   one per line of the doublet, stacked on one velocity axis:
  *                 flux, 1-sigma error, continuum, total model, each
  *                 component's model, component numbers, continuum windows
- *                 (shaded), masked pixels, the cursor column
+ *                 (shaded), masked pixels, the cursor column, and where
+ *                 the night-sky Na D and [O I] lines fall (when the
+ *                 spectrum's frame is known)
  *   velocity axis
  *   table         components with errors and frozen/tied marks; chi2, BIC,
  *                 continuum; W, significance, N_a and limits per line;
@@ -22,6 +25,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/airvac.h"
+#include "doubletty/frames.h"
 #include "doubletty/model.h"
 #include "doubletty/utf8.h"
 #include "insp.h"
@@ -33,6 +38,7 @@ typedef struct layout {
   int w, h;
   int ov_y, ov_h, ovaxis_y;
   int pan_y[2], pan_h;
+  int hi_y, hi_h;            /* the 21-cm panel (0 rows: none) */
   int vaxis_y;
   int gutter, plot_x, plot_w;
   int tab_x, tab_y, tab_w, tab_h;
@@ -105,7 +111,7 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
     L->tab_x = 0;
     /* rule, heading, components, fit, two lines, verdict: as many rows as
        the components need, within a share of the screen */
-    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28);
+    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28) + (s->o && s->o->hi ? 1 : 0);
     int cap = h < 28 ? 7 : h < 36 ? 9 : 13;
     L->tab_h = need < 7 ? 7 : need > cap ? cap : need;
     L->tab_y = L->status_y - L->tab_h;
@@ -114,13 +120,18 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   /* a short screen keeps its rows for the two line panels */
   L->ov_h = h >= 40 ? 6 : h >= 30 ? 4 : 0;
   int rest = body - L->ov_h - (L->ov_h ? 1 : 0) - 1; /* overview axis, velocity axis */
+  if (s->o && s->o->hi && rest >= 12) { /* a quarter for the 21-cm panel */
+    L->hi_h = rest / 4 < 3 ? 3 : rest / 4;
+    rest -= L->hi_h;
+  }
   L->pan_h = rest / 2;
   if (L->ov_h) L->ov_h += rest % 2; /* an odd row goes to the overview */
   L->ov_y = 1;
   L->ovaxis_y = L->ov_y + L->ov_h;
   L->pan_y[0] = L->ov_h ? L->ovaxis_y + 1 : L->ov_y;
   L->pan_y[1] = L->pan_y[0] + L->pan_h;
-  L->vaxis_y = L->pan_y[1] + L->pan_h;
+  L->hi_y = L->pan_y[1] + L->pan_h;
+  L->vaxis_y = L->hi_y + L->hi_h;
   L->plot_x = L->gutter;
   L->plot_w = (side ? L->tab_x - 1 : w) - L->gutter;
 }
@@ -198,10 +209,22 @@ static void draw_title(dt_insp *s, const layout *L) {
    * then its file (cut from the left) */
   char head[64], tail[96], mid[600];
   snprintf(head, sizeof head, " doubletty  %zu/%zu  judged %zu  | ", s->cur + 1, s->q->n, s->njudged);
-  snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s ", s->ss->j.doublet, s->ss->j.vsys, res);
+  /* the frame; a '?' after it when nobody said it and it was assumed */
+  char frame[16] = "";
+  if (s->ss->loaded && s->ss->spec)
+    snprintf(frame, sizeof frame, "%s%s", dt_frame_name(s->ss->spec->frame),
+             strcmp(s->ss->spec->frame_from, "assumed") ? "" : "?");
+  snprintf(tail, sizeof tail, " | %s  vsys %+.0f  %s%s%s ", s->ss->j.doublet, s->ss->j.vsys, res,
+           frame[0] ? "  " : "", frame);
   snprintf(mid, sizeof mid, "%s%s%s%s", name[0] ? name : "", name[0] ? " " : "", base, row);
   int fixed = cells(head) + cells(tail) + flen;
   int mroom = L->w - fixed;
+  if (cells(mid) > mroom && frame[0]) { /* a narrow screen: the frame's first four letters */
+    snprintf(tail, sizeof tail, " | %s vsys %+.0f %.4s%s %s ", s->ss->j.doublet, s->ss->j.vsys, frame,
+             strchr(frame, '?') ? "?" : "", res);
+    fixed = cells(head) + cells(tail) + flen;
+    mroom = L->w - fixed;
+  }
   if (cells(mid) > mroom && name[0]) snprintf(mid, sizeof mid, "%s%s", name, row);
   if (mroom < 4) mroom = 4;
   while (cells(mid) > mroom) {
@@ -383,6 +406,33 @@ static void panel_curves(const panel_data *pd, int norm, double *yf, double *ys,
     }
 }
 
+/* Night-sky emission lines, standard air [Angstrom]: the sodium D doublet
+ * (NIST Atomic Spectra Database) and the [O I] airglow lines 5577, 6300,
+ * 6364 (from memory).  They are topocentric: at rest for the observer. */
+static const double sky_air_A[] = {5889.950, 5895.924, 5577.339, 6300.304, 6363.776};
+
+/* Mark where the night-sky lines fall in panel l (velocity relative to the
+ * panel's line and vsys, in the spectrum's frame): only when the frame is
+ * known (said by the file or the caller) and the topocentric one can be
+ * reached from it (the time and site of a converted spectrum). */
+static void mark_sky(dt_insp *s, dt_plot *p, const dt_doublet *d, int l, int row) {
+  const dt_spectrum *sp = s->ss->spec;
+  if (!d || !sp || !strcmp(sp->frame_from, "assumed")) return;
+  double k = 1.0; /* lambda in the spectrum's frame = k * lambda topocentric */
+  if (sp->frame != DT_FRAME_TOPOCENT) {
+    dt_err e;
+    if (!sp->has_pos || dt_frame_factor(DT_FRAME_TOPOCENT, sp->frame, sp->ra, sp->dec, &sp->obs, &k, &e))
+      return;
+  }
+  for (size_t i = 0; i < sizeof sky_air_A / sizeof sky_air_A[0]; i++) {
+    double lam = k * dt_air_to_vac(sky_air_A[i]);
+    if (lam < sp->wave[0] || lam > sp->wave[sp->n - 1]) continue;
+    double v = dt_velocity(lam, d->line[l].lambda0, s->ss->j.vsys);
+    if (v < s->view_lo || v > s->view_hi) continue;
+    dt_plot_mark(p, v, row, s->utf8 ? "\xe2\x89\x88" : "~", DT_R_WARN, DT_A_BOLD);
+  }
+}
+
 /* The velocity axis under the lower panel, the cursor's position at its
  * right end. */
 static void draw_vaxis(dt_insp *s, const layout *L, const dt_plot *p, const dt_doublet *d) {
@@ -469,6 +519,7 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
     dt_plot_mark(p, s->ss->j.comp[k].v, 0, num, k == s->ss->sel ? DT_R_COMPSEL : DT_R_COMP,
                  k == s->ss->sel ? DT_A_BOLD | DT_A_REVERSE : DT_A_BOLD);
   }
+  mark_sky(s, p, d, l, ph > 2 ? 1 : 0); /* night-sky lines, second row */
   dt_plot_render(p, g, L->plot_x, gy);
   if (strip) draw_residuals(s, L, p, gy + ph, pd.vel, pd.flux, pd.sig, pd.model, pd.mask, n);
   /* the cursor: a tick under the plot, so the trough above stays visible */
@@ -482,7 +533,46 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
   /* without an analysis the panel says so in its top row: data only */
   if (!pd.from_analysis && l == 0)
     dt_grid_text(g, L->plot_x + 1, gy, " data only: no analysis of this state ", DT_R_WARN, DT_A_REVERSE, p->w - 2);
-  if (l == 1) draw_vaxis(s, L, p, d);
+  if (l == 1 && !L->hi_h) draw_vaxis(s, L, p, d);
+}
+
+/* The 21-cm spectrum at the sightline (inspect --hi), on the panels'
+ * velocity axis: T_B against velocity relative to vsys, in the spectrum's
+ * frame. */
+static void draw_hi(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  syms y = symbols(s);
+  int gy = L->hi_y;
+  dt_grid_text(g, 1, gy, "HI", DT_R_LABEL, DT_A_BOLD, 5);
+  for (int r = 0; r < L->hi_h; r++) dt_grid_text(g, L->gutter - 1, gy + r, y.vbar, DT_R_AXIS, 0, 1);
+  dt_plot *p = &s->p;
+  const dt_doublet *d = dt_atomic_find(s->atomic, s->ss->j.doublet);
+  const dt_hi_sample *h = &s->hs;
+  if (!s->has_hi || h->status == DT_HI_OUTSIDE || !h->nchan) {
+    dt_grid_printf(g, L->plot_x + 1, gy + L->hi_h / 2, DT_R_WARN, 0, L->plot_w - 2, "21 cm: %s",
+                   s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
+  } else {
+    double *v = scratch(s, h->nchan, 0);
+    if (v) {
+      /* velocities relative to the vsys of now: (1+v1/c)(1+vs1/c) = (1+v2/c)(1+vs2/c) */
+      double f = (1 + s->hs_vsys / DT_C_KMS) / (1 + s->ss->j.vsys / DT_C_KMS);
+      double tmax = 0;
+      for (size_t i = 0; i < h->nchan; i++) {
+        v[i] = DT_C_KMS * ((1 + h->vel[i] / DT_C_KMS) * f - 1);
+        if (isfinite(h->tb[i]) && h->tb[i] > tmax) tmax = h->tb[i];
+      }
+      if (!(tmax > 0)) tmax = 1;
+      if (!dt_plot_begin(p, s->mode, L->plot_w, L->hi_h, s->view_lo, s->view_hi, -0.1 * tmax, 1.1 * tmax)) {
+        dt_plot_hline(p, 0, DT_R_REF);
+        dt_plot_line(p, v, h->tb, NULL, h->nchan, DT_R_FLUX, 0);
+        dt_plot_render(p, g, L->plot_x, gy);
+        dt_grid_printf(g, 0, gy + 1, DT_R_AXIS, 0, L->gutter - 1, "%5.1fK", tmax);
+      }
+    }
+  }
+  /* the velocity axis goes under this panel */
+  dt_plot_begin(p, s->mode, L->plot_w, 1, s->view_lo, s->view_hi, 0, 1);
+  draw_vaxis(s, L, p, d);
 }
 
 /* ------------------------------------------------------------------ table */
@@ -552,7 +642,8 @@ static void draw_table(dt_insp *s, const layout *L) {
     dt_grid_text(g, x + TC_FIX, row, b1, DT_R_WARN, 0, maxw - TC_FIX);
     row++;
   }
-  if (row > end - 4) row = end - 4;
+  int hirow = s->o && s->o->hi ? 1 : 0;
+  if (row > end - 4 - hirow) row = end - 4 - hirow;
   /* the fit */
   double chi2r = NAN, bic = NAN;
   long dof = 0;
@@ -604,6 +695,20 @@ static void draw_table(dt_insp *s, const layout *L) {
     if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
     const char *sat = m->nsat ? "  saturated px" : l == 1 && s->ss->out.saturated ? "  ratio: saturated" : "";
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
+    row++;
+  }
+  if (hirow) { /* the 21-cm numbers at this sightline */
+    const dt_hi_sample *h = &s->hs;
+    int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", "HI 21cm");
+    if (s->has_hi && h->status == DT_HI_OK)
+      dt_grid_printf(g, x + n0, row, DT_R_TEXT, 0, maxw - n0,
+                     " log N(HI) %s  v %+.1f  %s %.1f km/s  Tpeak %.2f K  (thin: lower limit)",
+                     dt_view_pm(s, b2, sizeof b2, h->logN, h->logN_err, 2),
+                     DT_C_KMS * ((1 + h->v / DT_C_KMS) * (1 + s->hs_vsys / DT_C_KMS) / (1 + j->vsys / DT_C_KMS) - 1),
+                     y.sig, h->sigma, h->tpeak);
+    else
+      dt_grid_printf(g, x + n0, row, DT_R_WARN, 0, maxw - n0, " %s",
+                     s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
     row++;
   }
   /* verdicts and note */
@@ -822,6 +927,7 @@ void dt_view_draw(dt_insp *s, int w, int h) {
   draw_overview(s, &L);
   draw_panel(s, &L, 0);
   draw_panel(s, &L, 1);
+  if (L.hi_h) draw_hi(s, &L);
   draw_table(s, &L);
   draw_status(s, &L);
   if (s->finished) draw_finished(s, &L);
