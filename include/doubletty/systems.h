@@ -35,6 +35,7 @@
 #ifndef DOUBLETTY_SYSTEMS_H
 #define DOUBLETTY_SYSTEMS_H
 #include <stddef.h>
+#include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
 #include "doubletty/autofit.h"
 #include "doubletty/judge.h"
@@ -68,6 +69,7 @@ typedef struct dt_system_set {
   size_t n;                    /* systems, [0] always the target */
   dt_system sys[DT_MAX_SYSTEMS];
   char note[DT_SYSTEM_NOTE_MAX]; /* why a default system is absent, "" if none */
+  int mw_joined;               /* 1: the Milky Way lies in another system's range */
 } dt_system_set;
 
 void dt_system_opts_init(dt_system_opts *o);
@@ -118,13 +120,47 @@ size_t dt_systems_of(const dt_system_set *set, double v);
  * to what lies in the system (autofit.h): a confirmed doublet candidate there
  * -> detected ("doublet confirmed"; unsure "poor fit (chi2_red X)" when
  * chi2_red > 3); components there without a confirmed candidate -> unsure
- * ("components without a confirmed doublet"); a strong unconfirmed candidate
+ * ("components without a confirmed doublet") unless the system's measured
+ * equivalent widths meas (may be NULL) pass the first pass's coincidence
+ * test (both lines at 3 sigma, ratio between 1 and f1 lambda1^2 / (f2
+ * lambda2^2) within 3 sigma) -> detected ("doublet confirmed in W");
+ * a strong unconfirmed candidate
  * -> unsure ("unconfirmed absorption"); a fit that did not converge with
  * components there -> unsure; otherwise not-detected ("no confirmed
  * absorption").  Candidates belong to systems like components.  reason holds
  * at least 64 bytes. */
 dt_verdict dt_systems_suggest(const dt_system_set *set, size_t k, const dt_judgement *j,
-                              const dt_autofit_out *o, int st, char *reason, size_t nreason);
+                              const dt_autofit_out *o, int st, const dt_analysis_line *meas,
+                              char *reason, size_t nreason);
+
+/* The whole set-up for one spectrum: the set for rest frame vsys from o,
+ * then with a window of the user (has_window: [*vlo, *vhi] as given) the
+ * systems clipped to it, else the systems the spectrum s does not cover
+ * (either line of d) left out and *vlo, *vhi widened to cover the rest
+ * (dt_systems_window with the defaults *vlo, *vhi).  Errors as
+ * dt_systems_build. */
+int dt_systems_setup(const dt_system_opts *o, double vsys, const dt_spectrum *s,
+                     const dt_doublet *d, double fwhm_kms, int has_window, double *vlo,
+                     double *vhi, dt_system_set *set, dt_err *e);
+
+/* What one system holds after a first pass. */
+typedef struct dt_system_result {
+  size_t ncomp;                /* components belonging to it */
+  dt_verdict suggested;
+  char reason[64];
+  double mvlo, mvhi;           /* measured over [km/s]: around its components
+                                  (v -+ (2b + FWHM), clipped to the range),
+                                  or its whole range when it has none */
+  int measure_status;          /* DT_OK or why line[] is NaN */
+  dt_analysis_line line[2];    /* dt_analysis_measure_range; [0] the stronger */
+} dt_system_result;
+
+/* Per system k of set: components, suggested verdict (dt_systems_suggest)
+ * and measurements from the analysis a holding the first pass's final state
+ * (o, status st; j the judgement with the fitted components).  res holds
+ * set->n entries. */
+void dt_systems_results(dt_analysis *a, const dt_system_set *set, const dt_judgement *j,
+                        const dt_autofit_out *o, int st, dt_system_result *res);
 
 /* "name:vlo:vhi;..." of the set, numbers through num.h (settings lines). */
 void dt_systems_format(const dt_system_set *set, char *buf, size_t n);

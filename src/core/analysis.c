@@ -673,7 +673,7 @@ int dt_analysis_verify_fit(dt_analysis *a, const dt_judgement *recorded, double 
 /* The last run's measurement inputs, for dt_analysis_measure_range
  * (analysis_range.c).  DT_ERANGE before a successful run. */
 int dt_analysis_last_input(const dt_analysis *a, dt_measure_input *in, const dt_doublet **d,
-                           double *nsigma) {
+                           double *nsigma, double *fwhm_kms) {
   if (!a->have_run) return DT_ERANGE;
   in->n = a->n;
   in->wave = a->s->wave + a->i0;
@@ -685,5 +685,6 @@ int dt_analysis_last_input(const dt_analysis *a, dt_measure_input *in, const dt_
   in->vsys = a->mkey.vsys;
   *d = a->mkey.doublet;
   *nsigma = a->opts.limit_nsigma > 0 ? a->opts.limit_nsigma : 3.0;
+  *fwhm_kms = a->fwhm_kms;
   return DT_OK;
 }

@@ -133,9 +133,10 @@ int dt_systems_build(const dt_system_opts *o, double vsys, dt_system_set *out, d
   for (size_t m = 0; m < out->n; m++)
     if (overlap(&mw, &out->sys[m])) {
       char fmt[96];
-      snprintf(fmt, sizeof fmt, "%%s (%%s:%%s km/s) lies in the range of %s, not separated",
+      snprintf(fmt, sizeof fmt, "%%s (%%s:%%s km/s) lies in the range of %s: not separated",
                out->sys[m].name);
       add_note(out, fmt, mw.vlo, mw.vhi, mw.name);
+      out->mw_joined = 1;
       return DT_OK;
     }
   out->sys[out->n++] = mw;
@@ -219,8 +220,26 @@ size_t dt_systems_of(const dt_system_set *set, double v) {
   return best;
 }
 
+/* The first pass's coincidence test (autofit.c) on a system's equivalent
+ * widths: both lines at 3 sigma or more, W1 = rho W2 within 3 combined
+ * sigma for some rho between 1 (saturated) and f1 lambda1^2 / (f2
+ * lambda2^2) (optically thin; the linear curve of growth, Spitzer 1978). */
+static int doublet_in_w(const dt_analysis_line *m) {
+  if (!m || !m[0].line || !m[1].line) return 0;
+  double A = m[0].W, sA = m[0].W_err, B = m[1].W, sB = m[1].W_err;
+  if (!(sA > 0 && sB > 0 && A >= 3.0 * sA && B >= 3.0 * sB)) return 0;
+  const dt_line *l0 = m[0].line, *l1 = m[1].line;
+  double rmax = (l0->f * l0->lambda0 * l0->lambda0) / (l1->f * l1->lambda0 * l1->lambda0);
+  if (rmax < 1) rmax = 1;
+  double rho = A / B;
+  if (rho < 1.0) rho = 1.0;
+  if (rho > rmax) rho = rmax;
+  return fabs(A - rho * B) <= 3.0 * sqrt(sA * sA + rho * rho * sB * sB);
+}
+
 dt_verdict dt_systems_suggest(const dt_system_set *set, size_t k, const dt_judgement *j,
-                              const dt_autofit_out *o, int st, char *reason, size_t nreason) {
+                              const dt_autofit_out *o, int st, const dt_analysis_line *meas,
+                              char *reason, size_t nreason) {
   size_t ncomp = 0, nconf = 0, nunconf = 0;
   for (size_t c = 0; c < j->ncomp; c++)
     if (dt_systems_of(set, j->comp[c].v) == k) ncomp++;
@@ -234,12 +253,13 @@ dt_verdict dt_systems_suggest(const dt_system_set *set, size_t k, const dt_judge
     snprintf(reason, nreason, "fit did not converge");
     return DT_VERDICT_UNSURE;
   }
-  if (nconf > 0) {
+  int wconf = ncomp > 0 && doublet_in_w(meas);
+  if (nconf > 0 || wconf) {
     if (fr->dof > 0 && fr->chi2_red > POOR_CHI2) {
       dt_num_snprintf(reason, nreason, "poor fit (chi2_red %.1f)", fr->chi2_red);
       return DT_VERDICT_UNSURE;
     }
-    snprintf(reason, nreason, "doublet confirmed");
+    snprintf(reason, nreason, nconf ? "doublet confirmed" : "doublet confirmed in W");
     return DT_VERDICT_DETECTED;
   }
   if (ncomp > 0) {
@@ -264,5 +284,56 @@ void dt_systems_format(const dt_system_set *set, char *buf, size_t n) {
     int w = snprintf(buf + len, n - len, "%s%s:%s:%s", k ? ";" : "", set->sys[k].name, lo, hi);
     if (w < 0) break;
     len += (size_t)w;
+  }
+}
+
+int dt_systems_setup(const dt_system_opts *o, double vsys, const dt_spectrum *s,
+                     const dt_doublet *d, double fwhm_kms, int has_window, double *vlo,
+                     double *vhi, dt_system_set *set, dt_err *e) {
+  int st = dt_systems_build(o, vsys, set, e);
+  if (st != DT_OK) return st;
+  if (has_window) {
+    dt_systems_clip(set, *vlo, *vhi);
+    return DT_OK;
+  }
+  dt_systems_drop_uncovered(set, s, d, vsys);
+  dt_systems_window(set, fwhm_kms, *vlo, *vhi, vlo, vhi);
+  return DT_OK;
+}
+
+static double judgement_fwhm(const dt_judgement *j) {
+  return j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0.0;
+}
+
+void dt_systems_results(dt_analysis *a, const dt_system_set *set, const dt_judgement *j,
+                        const dt_autofit_out *o, int st, dt_system_result *res) {
+  double fw = judgement_fwhm(j);
+  for (size_t k = 0; k < set->n; k++) {
+    dt_system_result *r = &res[k];
+    const dt_system *y = &set->sys[k];
+    memset(r, 0, sizeof *r);
+    double lo = INFINITY, hi = -INFINITY;
+    for (size_t c = 0; c < j->ncomp; c++) {
+      if (dt_systems_of(set, j->comp[c].v) != k) continue;
+      r->ncomp++;
+      double hw = 2.0 * j->comp[c].b + fw;
+      if (j->comp[c].v - hw < lo) lo = j->comp[c].v - hw;
+      if (j->comp[c].v + hw > hi) hi = j->comp[c].v + hw;
+    }
+    if (r->ncomp == 0 || !(lo < hi)) {
+      lo = y->vlo;
+      hi = y->vhi;
+    } else { /* clipped to the range, unless the range misses the components */
+      double cl = fmax(lo, y->vlo), ch = fmin(hi, y->vhi);
+      if (cl < ch) {
+        lo = cl;
+        hi = ch;
+      }
+    }
+    r->mvlo = lo;
+    r->mvhi = hi;
+    r->measure_status = dt_analysis_measure_range(a, lo, hi, r->line, NULL);
+    r->suggested = dt_systems_suggest(set, k, j, o, st, r->measure_status == DT_OK ? r->line : NULL,
+                                      r->reason, sizeof r->reason);
   }
 }
