@@ -892,6 +892,16 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("fit: give --resolution or --fwhm, not both");
     goto done;
   }
+  if (c.systems.nextra > 0) { /* the systems must not overlap the target or each other */
+    dt_system_opts so = c.systems;
+    dt_system_set tmp;
+    dt_err se;
+    so.no_mw = 1;
+    if (dt_systems_build(&so, 0.0, &tmp, &se) != DT_OK) {
+      cli_errorf("--system: %s", se.what);
+      goto done;
+    }
+  }
   if (c.ncomp > 0 && c.nseed > 0 && (size_t)c.ncomp != c.nseed) {
     cli_errorf("fit: --ncomp %d disagrees with %zu --seed-v velocities", c.ncomp, c.nseed);
     goto done;
