@@ -216,7 +216,7 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   dt_csv_end(&r->csv);
 }
 
-/* The reason column: the first pass's words for the system (base), and
+/* The reason column: the first pass's words for the row's system in base, and
  * what a reader of the table must know about the fit (fewer components
  * than asked for, parameters pinned at the limits of their ranges), and for
  * the target why a default system is missing (note). */
