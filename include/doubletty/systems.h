@@ -117,7 +117,7 @@ size_t dt_systems_of(const dt_system_set *set, double v);
 
 /* The suggested verdict of system k after the first pass o (with status st,
  * DT_OK or DT_ENOCONV) of judgement j, by the first pass's own rules applied
- * to what lies in the system (autofit.h): a confirmed doublet candidate there
+ * to what lies in the system, by autofit.h: a confirmed doublet candidate there
  * -> detected ("doublet confirmed"; unsure "poor fit (chi2_red X)" when
  * chi2_red > 3); components there without a confirmed candidate -> unsure
  * ("components without a confirmed doublet") unless the system's measured
