@@ -184,6 +184,8 @@ int dt_journal_reader_open_mem(const void *buf, size_t len, dt_journal_reader **
  * which line and why); reading may continue.  DT_EIO: read error (stop). */
 int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err *e);
 int dt_journal_reader_version(const dt_journal_reader *r);
+/* The format version of an open session file (appends keep it). */
+int dt_journal_version(const dt_journal *j);
 /* Lines skipped so far as damaged or incomplete (each one a DT_EFORMAT from
  * dt_journal_reader_next). */
 size_t dt_journal_reader_damaged(const dt_journal_reader *r);

@@ -769,3 +769,5 @@ size_t dt_journal_warning_count(const dt_journal *j) { return j->nwarn; }
 const char *dt_journal_warning(const dt_journal *j, size_t i) {
   return i < j->nwarn && i < MAX_WARN ? j->warn[i] : NULL;
 }
+
+int dt_journal_version(const dt_journal *j) { return j ? j->version : DT_JOURNAL_VERSION; }

@@ -547,7 +547,37 @@ int dt_session_verdict(dt_session *ss, dt_verdict v) {
   dt_action a;
   dt_action_init(&a, DT_ACT_VERDICT);
   a.ival = v;
-  return dt_session_apply(ss, &a);
+  if (ss->selsys > 0 && ss->selsys < ss->systems.n) {
+    const char *name = ss->systems.sys[ss->selsys].name;
+    if (ss->jn && dt_journal_version(ss->jn) < 3) {
+      dt_session_say(ss, DT_TONE_WARN,
+                     "this session file (format version %d) holds only the target's verdict: "
+                     "judge %s in a new session file", dt_journal_version(ss->jn), name);
+      return DT_EINVAL;
+    }
+    snprintf(a.text, sizeof a.text, "%s", name);
+  }
+  int rc = dt_session_apply(ss, &a);
+  if (rc == DT_OK && ss->selsys > 0)
+    dt_session_say(ss, DT_TONE_GOOD, "saved: %s %s", a.text, dt_verdict_name(v));
+  return rc;
+}
+
+int dt_session_select_system(dt_session *ss, int step) {
+  size_t n = ss->systems.n;
+  if (n <= 1) {
+    dt_session_say(ss, DT_TONE_WARN, "only the target system here%s%s",
+                   ss->systems.note[0] ? ": " : "", ss->systems.note);
+    return DT_ENOTFOUND;
+  }
+  ss->selsys = (ss->selsys + n + (size_t)(step < 0 ? n - 1 : 1)) % n;
+  const dt_system *y = &ss->systems.sys[ss->selsys];
+  dt_verdict v = dt_judgement_system_verdict(&ss->j, ss->selsys ? y->name : "");
+  dt_session_say(ss, DT_TONE_TEXT, "system %s (%.0f..%.0f km/s) selected: verdict %s%s%s", y->name,
+                 y->vlo, y->vhi, v == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(v),
+                 ss->has_sysres ? ", suggested " : "",
+                 ss->has_sysres ? dt_verdict_name(ss->sysres[ss->selsys].suggested) : "");
+  return DT_OK;
 }
 
 int dt_session_note(dt_session *ss, const char *text) {

@@ -26,6 +26,9 @@ typedef struct dt_qentry {
   unsigned char air;     /* wavelengths in air where the file does not say */
   unsigned char has_window;
   double vlo, vhi;       /* velocity window [km/s] when has_window */
+  size_t systems;        /* pool offset: the list line's target-window= and
+                            system= as "target:VLO:VHI;NAME:VLO:VHI;..."
+                            ("target" only when given; "" none) */
   signed char verdict;  /* cached verdict (dt_verdict), -1 = not known yet */
 } dt_qentry;
 
@@ -55,6 +58,8 @@ int dt_queue_add_list(dt_queue *q, const char *list, size_t *nbad,
 const char *dt_queue_path(const dt_queue *q, size_t i);
 const char *dt_queue_key(const dt_queue *q, size_t i);
 const char *dt_queue_name(const dt_queue *q, size_t i);
+/* The list line's systems of entry i into o (after dt_system_opts_init). */
+void dt_queue_systems(const dt_queue *q, size_t i, dt_system_opts *o);
 
 /* Split a session name "FILE#DOUBLET" (as the inspector records targets)
  * into the file and the doublet; without a '#' after the last '/', the
