@@ -198,8 +198,9 @@ check "cursor to a typed velocity" on_screen "cursor at -123.5 km/s"
 run "$TMP/end.session" cursor-to-velocity "type 5000" Enter
 # the window covers the systems: the Milky Way's -150 km/s (observer) seen
 # from vsys 512 is -660.87 km/s (astropy u.doppler_optical, test_systems.c),
-# less the margin of 2 FWHM = 2 c / 3770 = 159.04 km/s: -819.9
-check "a velocity outside the fit window is refused in km/s" on_screen "outside the fit window (-820 to +600 km/s)"
+# less the margin of 2 FWHM = 2 c / 3460 = 173.29 km/s (TWO, the spectrum
+# shown): -834.2
+check "a velocity outside the fit window is refused in km/s" on_screen "outside the fit window (-834 to +600 km/s)"
 
 # ---- plain `doubletty FILE` opens the inspector; ASCII without UTF-8
 printf 'cursor-right\n' >"$TMP/keys"
