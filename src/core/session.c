@@ -573,7 +573,7 @@ int dt_session_select_system(dt_session *ss, int step) {
   ss->selsys = (ss->selsys + n + (size_t)(step < 0 ? n - 1 : 1)) % n;
   const dt_system *y = &ss->systems.sys[ss->selsys];
   dt_verdict v = dt_judgement_system_verdict(&ss->j, ss->selsys ? y->name : "");
-  dt_session_say(ss, DT_TONE_TEXT, "system %s (%.0f..%.0f km/s) selected: verdict %s%s%s", y->name,
+  dt_session_say(ss, DT_TONE_TEXT, "%s (%.0f..%.0f km/s): verdict %s%s%s", y->name,
                  y->vlo, y->vhi, v == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(v),
                  ss->has_sysres ? ", suggested " : "",
                  ss->has_sysres ? dt_verdict_name(ss->sysres[ss->selsys].suggested) : "");
