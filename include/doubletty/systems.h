@@ -162,6 +162,11 @@ typedef struct dt_system_result {
 void dt_systems_results(dt_analysis *a, const dt_system_set *set, const dt_judgement *j,
                         const dt_autofit_out *o, int st, dt_system_result *res);
 
+/* The systems of a recorded state: its own (j->nsys > 0), else the
+ * defaults for its rest frame clipped to its window (a state recorded
+ * before systems were). */
+void dt_systems_of_judgement(const dt_judgement *j, dt_system_set *set);
+
 /* "name:vlo:vhi;..." of the set, numbers through num.h (settings lines). */
 void dt_systems_format(const dt_system_set *set, char *buf, size_t n);
 

@@ -564,7 +564,8 @@ static void run_files_from(run *r, const char *path) {
 
 /* ---- options ---------------------------------------------------------- */
 
-static int parse_window(const char *text, double *lo, double *hi, const char *opt) {
+static int parse_window(const char *text, double *lo, double *hi) {
+  const char *opt = "--window";
   const char *colon = text ? strchr(text, ':') : NULL;
   if (!colon) {
     cli_errorf("%s: '%s' is not VLO:VHI (e.g. -400:300)", opt, text ? text : "");
@@ -778,7 +779,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     return 0;
   case O_WINDOW:
     c->have_window = 1;
-    return parse_window(v, &c->vlo, &c->vhi, "--window");
+    return parse_window(v, &c->vlo, &c->vhi);
   case O_NCOMP:
     if (ranged("--ncomp", v, 0, DT_MAX_COMP, &l)) return 1;
     c->ncomp = (int)l;
@@ -816,32 +817,11 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case 'o': c->out_path = v; return 0;
   case O_FORCE: c->force = 1; return 0;
   case O_AIR: c->air = 1; c->ropts.air = 1; return 0;
-  case O_TWIN:
-    if (parse_window(v, &c->systems.target_vlo, &c->systems.target_vhi, "--target-window"))
-      return 1;
-    c->systems.has_target = 1;
-    return 0;
-  case O_SYSTEM: {
-    dt_system sy;
-    dt_err e;
-    if (dt_system_parse(v, &sy, &e) != DT_OK || dt_system_opts_add(&c->systems, &sy, &e) != DT_OK) {
-      cli_errorf("--system: %s", e.what);
-      return 1;
-    }
-    return 0;
-  }
-  case O_MW: {
-    double x;
-    if (cli_parse_double("--milky-way", v, &x)) return 1;
-    if (!isfinite(x) || x < 0 || x > 5000) {
-      cli_errorf("--milky-way: %s is not a half width in km/s (0..5000; 0 = no Milky-Way system)", v);
-      return 1;
-    }
-    c->systems.no_mw = x == 0;
-    c->systems.mw_half = x;
+  case O_TWIN: return cli_system_option("--target-window", v, &c->systems);
+  case O_SYSTEM: return cli_system_option("--system", v, &c->systems);
+  case O_MW:
     c->have_mw = 1;
-    return 0;
-  }
+    return cli_system_option("--milky-way", v, &c->systems);
   }
   return 1;
 }
@@ -892,16 +872,7 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("fit: give --resolution or --fwhm, not both");
     goto done;
   }
-  if (c.systems.nextra > 0) { /* the systems must not overlap the target or each other */
-    dt_system_opts so = c.systems;
-    dt_system_set tmp;
-    dt_err se;
-    so.no_mw = 1;
-    if (dt_systems_build(&so, 0.0, &tmp, &se) != DT_OK) {
-      cli_errorf("--system: %s", se.what);
-      goto done;
-    }
-  }
+  if (cli_systems_check(&c.systems)) goto done; /* no overlaps among the systems */
   if (c.ncomp > 0 && c.nseed > 0 && (size_t)c.ncomp != c.nseed) {
     cli_errorf("fit: --ncomp %d disagrees with %zu --seed-v velocities", c.ncomp, c.nseed);
     goto done;

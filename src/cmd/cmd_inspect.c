@@ -42,6 +42,10 @@ static void usage(FILE *f) {
           "  --resolution R       resolving power when neither list nor file says\n"
           "  --fwhm KMS           ... or the line-spread FWHM in km/s\n"
           "  --vsys KMS           rest frame when the list does not say\n"
+          "  --target-window VLO:VHI  the target system's range [km/s] (default -300:300)\n"
+          "  --system NAME:VLO:VHI    another absorber system [km/s] (repeatable)\n"
+          "  --milky-way HALF     Milky-Way system -HALF..HALF km/s in the observer's\n"
+          "                       frame (default 150; 0 = none)\n"
           "  --atomic FILE        extra atomic data table\n"
           "  --ascii              plain ASCII drawing even in a UTF-8 locale\n"
           "  --no-colour          no colours (also when NO_COLOR is set)\n"
@@ -56,7 +60,8 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
-  O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR
+  O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR, O_TWIN,
+  O_SYSTEM, O_MW
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -70,6 +75,9 @@ static const struct option LONGOPTS[] = {
     {"resolution", required_argument, NULL, O_RES},
     {"fwhm", required_argument, NULL, O_FWHM},
     {"vsys", required_argument, NULL, O_VSYS},
+    {"target-window", required_argument, NULL, O_TWIN},
+    {"system", required_argument, NULL, O_SYSTEM},
+    {"milky-way", required_argument, NULL, O_MW},
     {"atomic", required_argument, NULL, O_ATOMIC},
     {"air", no_argument, NULL, O_AIR},
     {"ascii", no_argument, NULL, O_ASCII},
@@ -148,6 +156,10 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     if (cli_parse_double("--vsys", v, &o->vsys)) return 1;
     o->has_vsys = 1;
     return 0;
+  case O_TWIN:
+  case O_SYSTEM:
+  case O_MW: return cli_system_option(opt == O_TWIN ? "--target-window" : opt == O_SYSTEM ? "--system" : "--milky-way",
+                                      v, &o->systems);
   case O_ATOMIC: a->atomic_file = v; return 0;
   case O_AIR: a->air = 1; return 0;
   case O_ASCII: o->ascii = 1; return 0;
@@ -450,6 +462,10 @@ int cmd_inspect(int argc, char **argv) {
   const char *nc = getenv("NO_COLOR"); /* the common convention for "no colours, please" */
   if (nc && *nc) o.colour = 0;
   if ((rc = check_args(&a, &o))) goto out;
+  if (cli_systems_check(&o.systems)) {
+    rc = 2;
+    goto out;
+  }
   atomic = cli_load_atomic(a.atomic_file);
   if (!atomic) {
     rc = 1;

@@ -337,3 +337,20 @@ void dt_systems_results(dt_analysis *a, const dt_system_set *set, const dt_judge
                                       r->reason, sizeof r->reason);
   }
 }
+
+void dt_systems_of_judgement(const dt_judgement *j, dt_system_set *set) {
+  memset(set, 0, sizeof *set);
+  if (j->nsys > 0) {
+    for (size_t k = 0; k < j->nsys && k < DT_MAX_SYSTEMS; k++) {
+      snprintf(set->sys[k].name, sizeof set->sys[k].name, "%s", j->sys[k].name);
+      set->sys[k].vlo = j->sys[k].vlo;
+      set->sys[k].vhi = j->sys[k].vhi;
+    }
+    set->n = j->nsys < DT_MAX_SYSTEMS ? j->nsys : DT_MAX_SYSTEMS;
+    return;
+  }
+  dt_system_opts o;
+  dt_system_opts_init(&o);
+  if (dt_systems_build(&o, j->vsys, set, NULL) != DT_OK) return;
+  if (j->vlo < j->vhi) dt_systems_clip(set, j->vlo, j->vhi);
+}
