@@ -426,6 +426,11 @@ static void draw_systems(dt_insp *s, const layout *L, const dt_plot *p) {
     char lab[80];
     snprintf(lab, sizeof lab, " %s: %s ", y->name, v == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(v));
     int len = cells(lab), room = c1 - c0 + 1;
+    if (len > room) { /* shorter: the verdict's first three letters, then the name alone */
+      static const char *const short_name[] = {"-", "det", "not", "uns", "bad"};
+      snprintf(lab, sizeof lab, " %s: %s ", y->name, short_name[v >= 0 && v <= 4 ? v : 0]);
+      len = cells(lab);
+    }
     if (len > room) {
       snprintf(lab, sizeof lab, " %s ", y->name);
       len = cells(lab);
