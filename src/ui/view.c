@@ -653,7 +653,7 @@ static void draw_table(dt_insp *s, const layout *L) {
   /* verdicts and note: those of the selected system */
   int vx = x;
   size_t sel = s->ss->selsys < s->ss->systems.n ? s->ss->selsys : 0;
-  if (s->ss->systems.n > 1)
+  if (sel > 0) /* another system than the target: its name first */
     vx += dt_grid_printf(g, vx, row, DT_R_LABEL, DT_A_BOLD | DT_A_REVERSE, maxw, "%s", s->ss->systems.sys[sel].name) + 1;
   int has_sug = s->ss->has_sysres || (s->ss->has_suggest && sel == 0);
   dt_verdict sug = s->ss->has_sysres && sel > 0 ? s->ss->sysres[sel].suggested : s->ss->suggested;
@@ -726,7 +726,7 @@ static void draw_status(dt_insp *s, const layout *L) {
   const char *m = status_text(s, sb, sizeof sb, &tone);
   int mlen = cells(m);
   char target[64] = "", ksys[16];
-  if (s->ss->systems.n > 1)
+  if (s->ss->selsys > 0 && s->ss->selsys < s->ss->systems.n) /* the target needs no word */
     snprintf(target, sizeof target, " on %s  %s system ", s->ss->systems.sys[s->ss->selsys].name,
              keyname_of_cmd(DT_CMD_NEXT_SYSTEM, ksys, sizeof ksys));
   snprintf(right, sizeof right, " %s/%s/%s/%s verdict%s  %s note  %s undo  %s help  %s quit ", k[0], k[1], k[2],
