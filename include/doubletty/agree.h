@@ -61,8 +61,9 @@ int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2,
                       dt_agree_report *r, dt_err *e);
 void dt_agree_report_free(dt_agree_report *r);
 
-/* The same for the verdicts of one absorber system (judge.h:
- * dt_judgement_system_verdict; "target" or "" is dt_agree_sessions). */
+/* The same for the verdicts of one absorber system, as
+ * dt_judgement_system_verdict (judge.h) gives them; "target" or "" is
+ * dt_agree_sessions. */
 int dt_agree_sessions_system(const dt_journal *s1, const dt_journal *s2, const char *system,
                              dt_agree_report *r, dt_err *e);
 

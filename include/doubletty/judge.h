@@ -83,7 +83,7 @@ typedef enum dt_action_kind {
   DT_ACT_VSYS,           /* x[0]: vsys */
   DT_ACT_VWINDOW,        /* x[0], x[1]: vlo, vhi */
   DT_ACT_FIT,            /* fit: result; components take its values */
-  DT_ACT_VERDICT,        /* ival: dt_verdict; text: the system ("" = target) */
+  DT_ACT_VERDICT,        /* ival: dt_verdict; text: the system name, "" = target */
   DT_ACT_NOTE,           /* text: the note (replaces) */
   DT_ACT_RESTORE,        /* state: whole judgement (undo / redo) */
   DT_ACT_AUTOFIT,        /* state: whole judgement from the automatic first pass */

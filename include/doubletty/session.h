@@ -148,9 +148,9 @@ int dt_session_autofit(dt_session *ss);                /* replace by the first p
 int dt_session_switch_doublet(dt_session *ss);         /* next doublet the data cover */
 int dt_session_undo(dt_session *ss);
 int dt_session_redo(dt_session *ss);
-/* The verdict of the selected system (the target's moves the queue on in
+/* The verdict of the selected system.  The target's moves the queue on in
  * the inspector; another system's is refused in a session file of format
- * version < 3). */
+ * version < 3. */
 int dt_session_verdict(dt_session *ss, dt_verdict v);
 /* Select the next (+1) or previous (-1) system. */
 int dt_session_select_system(dt_session *ss, int step);
