@@ -124,7 +124,9 @@ size_t dt_systems_of(const dt_system_set *set, double v);
  * equivalent widths meas (may be NULL) pass the first pass's coincidence
  * test (both lines at 3 sigma, ratio between 1 and f1 lambda1^2 / (f2
  * lambda2^2) within 3 sigma) -> detected ("doublet confirmed in W");
- * a strong unconfirmed candidate
+ * a strong unconfirmed candidate (not where the weaker line of a fitted
+ * component falls in the stronger line's velocity scale: at v + c
+ * (lambda2/lambda1 - 1) within 2b + FWHM)
  * -> unsure ("unconfirmed absorption"); a fit that did not converge with
  * components there -> unsure; otherwise not-detected ("no confirmed
  * absorption").  Candidates belong to systems like components.  reason holds

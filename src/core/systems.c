@@ -237,6 +237,20 @@ static int doublet_in_w(const dt_analysis_line *m) {
   return fabs(A - rho * B) <= 3.0 * sqrt(sA * sA + rho * rho * sB * sB);
 }
 
+/* Is absorption in the stronger line's velocity scale at v the weaker line
+ * of a fitted component?  The weaker line of gas at velocity u shows at
+ * u + delta in that scale, delta = c (lambda2/lambda1 - 1) (304 km/s for
+ * Na I D); within 2b + FWHM of it the absorption is that component's. */
+static int weak_line_of_component(const dt_judgement *j, const dt_autofit_out *o, double v) {
+  const dt_doublet *d = o->an.doublet;
+  if (!d) return 0;
+  double delta = DT_C_KMS * (d->line[1].lambda0 / d->line[0].lambda0 - 1.0);
+  double fw = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0.0;
+  for (size_t c = 0; c < j->ncomp; c++)
+    if (fabs(v - (j->comp[c].v + delta)) <= 2.0 * j->comp[c].b + fw) return 1;
+  return 0;
+}
+
 dt_verdict dt_systems_suggest(const dt_system_set *set, size_t k, const dt_judgement *j,
                               const dt_autofit_out *o, int st, const dt_analysis_line *meas,
                               char *reason, size_t nreason) {
@@ -246,7 +260,7 @@ dt_verdict dt_systems_suggest(const dt_system_set *set, size_t k, const dt_judge
   for (size_t c = 0; c < o->ncand && c < DT_MAX_COMP; c++) {
     if (dt_systems_of(set, o->cand_v[c]) != k) continue;
     if (o->cand_confirmed[c]) nconf++;
-    else nunconf++;
+    else if (!weak_line_of_component(j, o, o->cand_v[c])) nunconf++;
   }
   const dt_fit_result *fr = &o->an.fit;
   if (st == DT_ENOCONV && ncomp > 0) {
