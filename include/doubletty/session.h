@@ -92,6 +92,8 @@ typedef struct dt_session {
   size_t selsys;              /* the system verdicts go to */
   int has_sysres;             /* sysres holds the first pass per system */
   dt_system_result sysres[DT_MAX_SYSTEMS];
+  int has_sysmeas;            /* sysmeas: each system measured in out's state */
+  dt_system_result sysmeas[DT_MAX_SYSTEMS]; /* (no suggestion) */
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;

@@ -157,6 +157,19 @@ typedef struct dt_system_result {
   dt_analysis_line line[2];    /* dt_analysis_measure_range; [0] the stronger */
 } dt_system_result;
 
+/* Measurements of system k of set from the analysis a (its last run):
+ * around the components of j belonging to it (v -+ (2b + FWHM), clipped to
+ * its range) or over its whole range when it has none; *mvlo, *mvhi the
+ * range measured, *ncomp its components.  The status of
+ * dt_analysis_measure_range. */
+int dt_systems_measure(dt_analysis *a, const dt_system_set *set, const dt_judgement *j, size_t k,
+                       dt_analysis_line out[2], double *mvlo, double *mvhi, size_t *ncomp);
+
+/* Saturation of a system's measurement: the weaker line's apparent column
+ * above the stronger's by more than 2 combined sigma (the rule of measure.h,
+ * on the columns from their logarithms).  1 or 0. */
+int dt_systems_saturated(const dt_analysis_line l[2]);
+
 /* Per system k of set: components, suggested verdict (dt_systems_suggest)
  * and measurements from the analysis a holding the first pass's final state
  * (o, status st; j the judgement with the fitted components).  res holds

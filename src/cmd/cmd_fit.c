@@ -235,17 +235,6 @@ static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_
   if (note && note[0] && len < n) snprintf(buf + len, n - len, "%s%s", len ? "; " : "", note);
 }
 
-/* Saturation of a system's measurement: the weaker line's apparent column
- * above the stronger's by more than 2 combined sigma (the rule of
- * measure.h, on the columns from their logarithms). */
-static int system_saturated(const dt_analysis_line *l) {
-  if (!isfinite(l[0].logN_aod) || !isfinite(l[1].logN_aod)) return 0;
-  double ns = pow(10.0, l[0].logN_aod), nw = pow(10.0, l[1].logN_aod);
-  double es = ns * l[0].logN_aod_err / M_LOG10E, ew = nw * l[1].logN_aod_err / M_LOG10E;
-  double den = hypot(es, ew);
-  return den > 0 && (nw - ns) / den > 2.0;
-}
-
 /* The rows of one spectrum: one per component, in the fit's order, each
  * with its system, then one for each system without components (its
  * measurement over its range and its limit).  ncomp, chi2_red, dof and bic
@@ -299,7 +288,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     dt_csv_fixed(w, 1e3 * b->W_err, 2);
     dt_csv_fixed(w, b->logN_aod, 4);
     dt_csv_fixed(w, b->logN_aod_err, 4);
-    dt_csv_text(w, system_saturated(sr->line) ? "1" : "0");
+    dt_csv_text(w, dt_systems_saturated(sr->line) ? "1" : "0");
     /* the limits are given unless the first pass calls the system detected */
     if (sr->suggested != DT_VERDICT_DETECTED) {
       dt_csv_fixed(w, 1e3 * a->W_limit, 2);

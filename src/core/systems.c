@@ -319,34 +319,41 @@ static double judgement_fwhm(const dt_judgement *j) {
   return j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0.0;
 }
 
+int dt_systems_measure(dt_analysis *a, const dt_system_set *set, const dt_judgement *j, size_t k,
+                       dt_analysis_line out[2], double *mvlo, double *mvhi, size_t *ncomp) {
+  double fw = judgement_fwhm(j);
+  const dt_system *y = &set->sys[k];
+  double lo = INFINITY, hi = -INFINITY;
+  size_t n = 0;
+  for (size_t c = 0; c < j->ncomp; c++) {
+    if (dt_systems_of(set, j->comp[c].v) != k) continue;
+    n++;
+    double hw = 2.0 * j->comp[c].b + fw;
+    if (j->comp[c].v - hw < lo) lo = j->comp[c].v - hw;
+    if (j->comp[c].v + hw > hi) hi = j->comp[c].v + hw;
+  }
+  if (n == 0 || !(lo < hi)) {
+    lo = y->vlo;
+    hi = y->vhi;
+  } else { /* clipped to the range, unless the range misses the components */
+    double cl = fmax(lo, y->vlo), ch = fmin(hi, y->vhi);
+    if (cl < ch) {
+      lo = cl;
+      hi = ch;
+    }
+  }
+  *mvlo = lo;
+  *mvhi = hi;
+  *ncomp = n;
+  return dt_analysis_measure_range(a, lo, hi, out, NULL);
+}
+
 void dt_systems_results(dt_analysis *a, const dt_system_set *set, const dt_judgement *j,
                         const dt_autofit_out *o, int st, dt_system_result *res) {
-  double fw = judgement_fwhm(j);
   for (size_t k = 0; k < set->n; k++) {
     dt_system_result *r = &res[k];
-    const dt_system *y = &set->sys[k];
     memset(r, 0, sizeof *r);
-    double lo = INFINITY, hi = -INFINITY;
-    for (size_t c = 0; c < j->ncomp; c++) {
-      if (dt_systems_of(set, j->comp[c].v) != k) continue;
-      r->ncomp++;
-      double hw = 2.0 * j->comp[c].b + fw;
-      if (j->comp[c].v - hw < lo) lo = j->comp[c].v - hw;
-      if (j->comp[c].v + hw > hi) hi = j->comp[c].v + hw;
-    }
-    if (r->ncomp == 0 || !(lo < hi)) {
-      lo = y->vlo;
-      hi = y->vhi;
-    } else { /* clipped to the range, unless the range misses the components */
-      double cl = fmax(lo, y->vlo), ch = fmin(hi, y->vhi);
-      if (cl < ch) {
-        lo = cl;
-        hi = ch;
-      }
-    }
-    r->mvlo = lo;
-    r->mvhi = hi;
-    r->measure_status = dt_analysis_measure_range(a, lo, hi, r->line, NULL);
+    r->measure_status = dt_systems_measure(a, set, j, k, r->line, &r->mvlo, &r->mvhi, &r->ncomp);
     r->suggested = dt_systems_suggest(set, k, j, o, st, r->measure_status == DT_OK ? r->line : NULL,
                                       r->reason, sizeof r->reason);
   }
@@ -367,4 +374,12 @@ void dt_systems_of_judgement(const dt_judgement *j, dt_system_set *set) {
   dt_system_opts_init(&o);
   if (dt_systems_build(&o, j->vsys, set, NULL) != DT_OK) return;
   if (j->vlo < j->vhi) dt_systems_clip(set, j->vlo, j->vhi);
+}
+
+int dt_systems_saturated(const dt_analysis_line l[2]) {
+  if (!isfinite(l[0].logN_aod) || !isfinite(l[1].logN_aod)) return 0;
+  double ns = pow(10.0, l[0].logN_aod), nw = pow(10.0, l[1].logN_aod);
+  double es = ns * l[0].logN_aod_err / M_LOG10E, ew = nw * l[1].logN_aod_err / M_LOG10E;
+  double den = hypot(es, ew);
+  return den > 0 && (nw - ns) / den > 2.0;
 }

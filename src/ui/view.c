@@ -624,9 +624,13 @@ static void draw_table(dt_insp *s, const layout *L) {
                    status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");
   row++;
   /* measurements, one row per line */
+  /* with several systems, the selected system's own measurements */
+  size_t msel = s->ss->selsys;
+  int sysm = s->ss->systems.n > 1 && msel < s->ss->systems.n && s->ss->has_sysmeas;
   for (int l = 0; l < 2; l++) {
-    const dt_analysis_line *m = &s->ss->out.line[l];
-    if (!s->ss->an_ok || s->ss->out.measure_status != 0 || !m->line) {
+    const dt_analysis_line *m = sysm ? &s->ss->sysmeas[msel].line[l] : &s->ss->out.line[l];
+    int mst = sysm ? s->ss->sysmeas[msel].measure_status : s->ss->out.measure_status;
+    if (!s->ss->an_ok || mst != 0 || !m->line) {
       dt_grid_printf(g, x, row++, DT_R_TEXT, DT_A_DIM, maxw, "line %d   no measurement", l + 1);
       continue;
     }
@@ -646,7 +650,7 @@ static void draw_table(dt_insp *s, const layout *L) {
     int n2 = 0;
     if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
     if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
-    const char *sat = m->nsat ? "  saturated px" : l == 1 && s->ss->out.saturated ? "  ratio: saturated" : "";
+    const char *sat = m->nsat ? "  saturated px" : l == 1 && (sysm ? dt_systems_saturated(s->ss->sysmeas[msel].line) : s->ss->out.saturated) ? "  ratio: saturated" : "";
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
     row++;
   }
