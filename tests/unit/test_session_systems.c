@@ -104,6 +104,14 @@ int main(void) {
   CHECK(dt_session_select_system(ss, 1) == DT_OK && ss->selsys == 0, "s again: the target");
   CHECK(dt_session_verdict(ss, DT_VERDICT_NOT_DETECTED) == DT_OK && ss->j.verdict == DT_VERDICT_NOT_DETECTED,
         "the target judged");
+  /* the Milky Way's absorption is the Milky Way's, not the target's */
+  CHECK(ss->has_sysmeas && ss->sysmeas[1].line[0].W > 5 * ss->sysmeas[1].line[0].W_err,
+        "milky-way measured: W %.1f +- %.1f mA", 1e3 * ss->sysmeas[1].line[0].W, 1e3 * ss->sysmeas[1].line[0].W_err);
+  const dt_journal_entry *en = dt_journal_lookup(jn, spec, 0, 0);
+  CHECK(en && en->has_meas && en->meas.line[0].w == ss->sysmeas[0].line[0].W &&
+            en->meas.line[0].w != ss->out.line[0].W,
+        "the recorded W is the target system's (%.1f mA), not the whole spectrum's (%.1f mA)",
+        en ? 1e3 * en->meas.line[0].w : NAN, 1e3 * ss->out.line[0].W);
   dt_session_free(ss);
   dt_journal_close(jn);
 
