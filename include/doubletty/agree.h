@@ -50,6 +50,7 @@ typedef struct dt_agree_report {
   dt_kappa kappa;
   dt_agree_pair *disagree;        /* verdicts differ; first session's order */
   size_t ndisagree;
+  char system[32];                /* the absorber system compared */
 } dt_agree_report;
 
 /* Compare the verdicts of two sessions, matching spectra by identity (the
@@ -59,6 +60,12 @@ typedef struct dt_agree_report {
 int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2,
                       dt_agree_report *r, dt_err *e);
 void dt_agree_report_free(dt_agree_report *r);
+
+/* The same for the verdicts of one absorber system, as
+ * dt_judgement_system_verdict (judge.h) gives them; "target" or "" is
+ * dt_agree_sessions. */
+int dt_agree_sessions_system(const dt_journal *s1, const dt_journal *s2, const char *system,
+                             dt_agree_report *r, dt_err *e);
 
 /* The spectra two sessions disagree on (both have a verdict and they
  * differ), in the first session's order, as a malloc'd array of targets

@@ -149,6 +149,13 @@ const double *dt_analysis_residual(const dt_analysis *a);
 const double *dt_analysis_na_profile(const dt_analysis *a, int line);
 const double *dt_analysis_na_profile_err(const dt_analysis *a, int line);
 
+/* Measurements of both lines (out[0] the stronger) over [vlo, vhi] km/s
+ * relative to vsys, from the continuum and model of the last run, without
+ * refitting.  DT_OK; DT_ERANGE before a successful run; DT_EINVAL for an
+ * empty range; the measurement's error otherwise (values NaN). */
+int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
+                              dt_err *e);
+
 /* Refit a recorded state with an analysis of its spectrum (analysis.h; its
  * options must be those the fit was made with -- e.g. joint_cont = the
  * recorded fit's ncont) and compare with dt_fit_check_refit (fit.h).  *agrees

@@ -21,7 +21,7 @@
 #include "doubletty/measure.h"
 #include "doubletty/status.h"
 
-#define DT_JOURNAL_VERSION 2       /* format version written by this program (reads 1 too) */
+#define DT_JOURNAL_VERSION 3       /* format version written by this program (reads 1 and 2 too) */
 #define DT_JOURNAL_USER_MAX 64
 #define DT_JOURNAL_TIME_MAX 32     /* "2025-06-01T10:00:00.123Z" */
 
@@ -186,6 +186,8 @@ int dt_journal_reader_open_mem(const void *buf, size_t len, dt_journal_reader **
  * which line and why); reading may continue.  DT_EIO: read error (stop). */
 int dt_journal_reader_next(dt_journal_reader *r, dt_journal_record *rec, dt_err *e);
 int dt_journal_reader_version(const dt_journal_reader *r);
+/* The format version of an open session file (appends keep it). */
+int dt_journal_version(const dt_journal *j);
 /* Lines skipped so far as damaged or incomplete (each one a DT_EFORMAT from
  * dt_journal_reader_next). */
 size_t dt_journal_reader_damaged(const dt_journal_reader *r);

@@ -16,6 +16,9 @@
 
 #define DT_MAX_WINDOWS 32
 #define DT_NOTE_MAX 512
+#define DT_JUDGE_MAX_SYS 8       /* absorber systems of a spectrum (systems.h) */
+#define DT_JUDGE_SYS_NAME 32     /* bytes of a system name, with the NUL */
+#define DT_JUDGE_TARGET "target" /* the system whose verdict is j->verdict */
 
 typedef enum dt_verdict {
   DT_VERDICT_NONE = 0,        /* not judged yet */
@@ -28,6 +31,18 @@ typedef enum dt_verdict {
 /* "none", "detected", "not-detected", "unsure", "unusable" */
 const char *dt_verdict_name(dt_verdict v);
 int dt_verdict_parse(const char *s, dt_verdict *v);   /* DT_OK or DT_EINVAL */
+
+/* An absorber system's range [km/s relative to vsys] (systems.h). */
+typedef struct dt_judge_system {
+  char name[DT_JUDGE_SYS_NAME];
+  double vlo, vhi;
+} dt_judge_system;
+
+/* The verdict of a system other than the target. */
+typedef struct dt_system_verdict {
+  char name[DT_JUDGE_SYS_NAME];
+  dt_verdict verdict;            /* never DT_VERDICT_NONE in a judgement */
+} dt_system_verdict;
 
 typedef struct dt_judgement {
   char doublet[16];           /* doublet name, e.g. "NaI" */
@@ -42,7 +57,13 @@ typedef struct dt_judgement {
   dt_component comp[DT_MAX_COMP];
   unsigned char frozen[DT_MAX_COMP];   /* DT_FREEZE_* bits */
   int tie_b;                  /* 1: all components share one b */
-  dt_verdict verdict;
+  dt_verdict verdict;         /* the target system's verdict */
+  size_t nsys;                /* the systems, [0] the target; 0: the defaults
+                                 for vsys (systems.h) */
+  dt_judge_system sys[DT_JUDGE_MAX_SYS];
+  size_t nsysv;               /* verdicts of the other systems, in the order
+                                 first given */
+  dt_system_verdict sysv[DT_JUDGE_MAX_SYS];
   char note[DT_NOTE_MAX];
   int has_fit;                /* fit below is the result for the state above */
   dt_fit_result fit;
@@ -62,7 +83,7 @@ typedef enum dt_action_kind {
   DT_ACT_VSYS,           /* x[0]: vsys */
   DT_ACT_VWINDOW,        /* x[0], x[1]: vlo, vhi */
   DT_ACT_FIT,            /* fit: result; components take its values */
-  DT_ACT_VERDICT,        /* ival: dt_verdict */
+  DT_ACT_VERDICT,        /* ival: dt_verdict; text: the system name, "" = target */
   DT_ACT_NOTE,           /* text: the note (replaces) */
   DT_ACT_RESTORE,        /* state: whole judgement (undo / redo) */
   DT_ACT_AUTOFIT,        /* state: whole judgement from the automatic first pass */
@@ -86,6 +107,10 @@ void dt_judgement_init(dt_judgement *j);
  * state (index out of range, too many components/windows, bad values). */
 int dt_judgement_apply(dt_judgement *j, const dt_action *a);
 
+/* The verdict of system name ("" or "target": j->verdict); NONE when the
+ * system has none. */
+dt_verdict dt_judgement_system_verdict(const dt_judgement *j, const char *name);
+
 /* Short lower-case name of an action kind ("comp-add", ...) and back. */
 const char *dt_action_name(dt_action_kind k);
 int dt_action_kind_parse(const char *s, dt_action_kind *k);
@@ -104,6 +129,8 @@ void dt_action_init(dt_action *a, dt_action_kind k);
  * freeze, verdict, note and (when has_fit) the fit, compared exactly (NaN
  * equals NaN). */
 int dt_judgement_same(const dt_judgement *a, const dt_judgement *b);
+/* 1 when the systems and the systems' verdicts of a and b are the same. */
+int dt_judgement_same_systems(const dt_judgement *a, const dt_judgement *b);
 /* The same for two fit results (every field, NaN equals NaN). */
 int dt_fit_result_same(const dt_fit_result *a, const dt_fit_result *b);
 

@@ -23,6 +23,7 @@
 #include "doubletty/journal.h"
 #include "doubletty/judge.h"
 #include "doubletty/spectrum.h"
+#include "doubletty/systems.h"
 
 #define DT_SESSION_UNDO_MAX 200
 #define DT_SESSION_KEY_MAX 8300      /* session name of a target */
@@ -50,6 +51,9 @@ typedef struct dt_session_target {
                              (row and air from the fields above); zero = defaults */
   dt_judgement initial;   /* settings of a first look; resolution and
                              fwhm_kms both 0: the file header's R */
+  int has_window;         /* initial.vlo/vhi were given (else widened to
+                             cover the systems) */
+  dt_system_opts systems; /* target range and systems of the list/run */
 } dt_session_target;
 
 typedef struct dt_session {
@@ -84,6 +88,14 @@ typedef struct dt_session {
   int has_suggest;
   dt_verdict suggested;
   char reason[64];
+
+  /* absorber systems (systems.h): [0] the target */
+  dt_system_set systems;
+  size_t selsys;              /* the system verdicts go to */
+  int has_sysres;             /* sysres holds the first pass per system */
+  dt_system_result sysres[DT_MAX_SYSTEMS];
+  int has_sysmeas;            /* sysmeas: each system measured in out's state */
+  dt_system_result sysmeas[DT_MAX_SYSTEMS]; /* (no suggestion) */
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;
@@ -140,7 +152,12 @@ int dt_session_autofit(dt_session *ss);                /* replace by the first p
 int dt_session_switch_doublet(dt_session *ss);         /* next doublet the data cover */
 int dt_session_undo(dt_session *ss);
 int dt_session_redo(dt_session *ss);
+/* The verdict of the selected system.  The target's moves the queue on in
+ * the inspector; another system's is refused in a session file of format
+ * version < 3. */
 int dt_session_verdict(dt_session *ss, dt_verdict v);
+/* Select the next (+1) or previous (-1) system. */
+int dt_session_select_system(dt_session *ss, int step);
 int dt_session_note(dt_session *ss, const char *text);
 
 /* Set the message (for callers that speak through the session's line). */

@@ -2,7 +2,8 @@
  *
  *   # comment
  *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
- *             [window=VLO:VHI] [air] [ra=RA dec=DEC] [frame=NAME]
+ *             [window=VLO:VHI] [target-window=VLO:VHI] [system=NAME:VLO:VHI]...
+ *             [air] [ra=RA dec=DEC] [frame=NAME]
  *
  * Fields are separated by blanks; '#' starts a comment anywhere on a line
  * (outside quotes); blank lines are ignored.  A relative path is taken
@@ -36,6 +37,7 @@
 #include <stddef.h>
 #include "doubletty/frames.h"
 #include "doubletty/status.h"
+#include "doubletty/systems.h"
 
 #define DT_TARGET_PATH_MAX 4096
 #define DT_TARGET_LINE_MAX 8192
@@ -52,6 +54,7 @@ typedef struct dt_target_spec {
   char name[DT_TARGET_NAME_MAX];  /* "" = not given */
   int has_window;                 /* window=VLO:VHI given: */
   double vlo, vhi;                /* velocity window for fit and measurement [km/s] */
+  dt_system_opts systems;         /* target-window= (has_target) and system= */
   long line;                      /* line number in the list (0 = not from a list) */
   int air;                        /* 1: wavelengths in air (flag "air", or
                                      dt_targets_set_air); for dt_read_opts.air */

@@ -3,6 +3,7 @@
 #include "doubletty/num.h"
 
 #include <errno.h>
+#include <math.h>
 #include <limits.h>
 #include <stdarg.h>
 #include <stdlib.h>
@@ -143,6 +144,58 @@ int cli_check_not_dir(const char *path) {
   return 0;
 }
 
+
+int cli_system_option(const char *opt, const char *v, dt_system_opts *o) {
+  dt_err e;
+  if (!strcmp(opt, "--system")) {
+    dt_system y;
+    if (dt_system_parse(v, &y, &e) != DT_OK || dt_system_opts_add(o, &y, &e) != DT_OK) {
+      cli_errorf("--system: %s", e.what);
+      return 1;
+    }
+    return 0;
+  }
+  if (!strcmp(opt, "--milky-way")) {
+    double x;
+    if (cli_parse_double(opt, v, &x)) return 1;
+    if (!isfinite(x) || x < 0 || x > 5000) {
+      cli_errorf("--milky-way: %s is not a half width in km/s (0..5000; 0 = no Milky-Way system)", v);
+      return 1;
+    }
+    o->no_mw = x == 0;
+    o->mw_half = x;
+    return 0;
+  }
+  /* --target-window VLO:VHI */
+  const char *colon = v ? strchr(v, ':') : NULL;
+  char a[64], b[64];
+  if (!colon) {
+    cli_errorf("%s: '%s' is not VLO:VHI (e.g. -250:250)", opt, v ? v : "");
+    return 1;
+  }
+  snprintf(a, sizeof a, "%.*s", (int)(colon - v), v);
+  snprintf(b, sizeof b, "%s", colon + 1);
+  if (cli_parse_double(opt, a, &o->target_vlo) || cli_parse_double(opt, b, &o->target_vhi)) return 1;
+  if (!isfinite(o->target_vlo) || !isfinite(o->target_vhi) || o->target_vlo >= o->target_vhi) {
+    cli_errorf("%s: empty velocity window %s (VLO must be below VHI)", opt, v);
+    return 1;
+  }
+  o->has_target = 1;
+  return 0;
+}
+
+int cli_systems_check(const dt_system_opts *o) {
+  if (o->nextra == 0) return 0;
+  dt_system_opts so = *o;
+  dt_system_set tmp;
+  dt_err e;
+  so.no_mw = 1;
+  if (dt_systems_build(&so, 0.0, &tmp, &e) != DT_OK) {
+    cli_errorf("--system: %s", e.what);
+    return 1;
+  }
+  return 0;
+}
 
 static int frame_value(const char *cmd, const char *opt, const char *text, dt_frame *f) {
   if (dt_frame_parse(text, f) || *f == DT_FRAME_GALACTOC || *f == DT_FRAME_LOCALGRP) {

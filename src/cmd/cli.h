@@ -5,6 +5,7 @@
 #include "doubletty/atomic.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
+#include "doubletty/systems.h"
 
 /* Print "doubletty: FILE: WHERE: WHAT" (parts omitted when empty) on stderr. */
 void cli_report(const char *file, const dt_err *e);
@@ -52,5 +53,12 @@ int cli_opt_site(const char *cmd, const char *text, dt_read_opts *r);
 
 /* 1 after "PATH: is a directory, not a file" when path names a directory. */
 int cli_check_not_dir(const char *path);
+
+/* --target-window VLO:VHI, --system NAME:VLO:VHI or --milky-way HALF (opt)
+ * with value v into o; 1 after a message when the value is bad. */
+int cli_system_option(const char *opt, const char *v, dt_system_opts *o);
+/* The user's systems overlap neither the target nor each other: 0, else 1
+ * after a message. */
+int cli_systems_check(const dt_system_opts *o);
 
 #endif

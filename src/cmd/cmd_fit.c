@@ -35,15 +35,16 @@
 #include "doubletty/model.h"
 #include "doubletty/num.h"
 #include "doubletty/spectrum.h"
+#include "doubletty/systems.h"
 #include "doubletty/targets.h"
 
 /* The CSV columns, in order (the first must stay "index" for merge). */
 static const char *const COLUMNS[] = {
-    "index", "file", "name", "hdu", "row", "object", "doublet", "vsys", "status",
+    "index", "file", "name", "hdu", "row", "object", "doublet", "system", "vsys", "status",
     "ncomp", "component", "v_kms", "v_err", "b_kms", "b_err", "logN", "logN_err",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
+    "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
 /* the last columns: position and velocity frame (pos_cells) */
 #define NPOSCOLUMNS 3
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
@@ -76,6 +77,8 @@ typedef struct {
   const char *atomic_file;
   int force;                    /* replace an existing output file */
   int air;                      /* text spectra give air wavelengths */
+  dt_system_opts systems;       /* --target-window, --system, --milky-way */
+  int have_mw;                  /* --milky-way given */
 } config;
 
 typedef struct {
@@ -88,6 +91,7 @@ typedef struct {
   long ninputs;                 /* inputs seen (all shards) */
   long total;                   /* inputs known in advance (-1 unknown) */
   long fitted, failed, noconv;
+  long mw_joined;               /* spectra whose Milky Way lies in the target's range */
   int progress;                 /* draw a progress line on stderr */
   int bar_shown;
   double bar_last;              /* when it was last drawn [s, monotonic] */
@@ -102,6 +106,11 @@ static void usage(FILE *f) {
           "  --fwhm KMS              line-spread FWHM in km/s instead of R\n"
           "  --vsys KMS              rest frame of the absorber [km/s] (default 0)\n"
           "  --window VLO:VHI        velocity window around each line [km/s]\n"
+          "                          (default: -600:600 widened to cover every system)\n"
+          "  --target-window VLO:VHI the target system's range [km/s] (default -300:300)\n"
+          "  --system NAME:VLO:VHI   another absorber system [km/s] (repeatable)\n"
+          "  --milky-way HALF        Milky-Way system: -HALF..HALF km/s in the\n"
+          "                          observer's frame (default 150; 0 = none)\n"
           "  --ncomp N               fit exactly N components\n"
           "  --seed-v V1,V2,...      start components at these velocities\n"
           "  --continuum-order K     Legendre order of the continuum; -1 = fixed at 1\n"
@@ -180,7 +189,8 @@ static void report(run *r, const char *file, long row, const dt_err *e) {
 
 
 static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
-                     const char *doublet, double vsys, const char *status) {
+                     const char *doublet, const char *system, double vsys,
+                     const char *status) {
   dt_csv *w = &r->csv;
   dt_csv_long(w, r->index);
   dt_csv_text(w, t->path);
@@ -192,6 +202,7 @@ static void row_head(run *r, const dt_target_spec *t, const dt_spectrum *s, long
   else dt_csv_empty(w);
   dt_csv_text(w, s ? s->object : "");
   dt_csv_text(w, doublet);
+  dt_csv_text(w, system);
   dt_csv_fixed(w, vsys, 3);
   dt_csv_text(w, status);
 }
@@ -213,20 +224,21 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   char msg[sizeof e->where + sizeof e->what + 4];
   if (e->where[0]) snprintf(msg, sizeof msg, "%s: %s", e->where, e->what);
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
-  row_head(r, t, s, row, doublet, vsys, "failed");
+  row_head(r, t, s, row, doublet, "", vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 9; k + 1 + NPOSCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
   dt_csv_end(&r->csv);
 }
 
-/* The reason column: the first pass's words, and what a reader of the
- * table must know about the fit (fewer components than asked for,
- * parameters pinned at the limits of their ranges). */
+/* The reason column: the first pass's words for the row's system in base, and
+ * what a reader of the table must know about the fit (fewer components
+ * than asked for, parameters pinned at the limits of their ranges), and for
+ * the target why a default system is missing (note). */
 static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_out *o,
-                          char *buf, size_t n) {
-  size_t len = (size_t)snprintf(buf, n, "%s", o->reason);
+                          const char *base, const char *note, char *buf, size_t n) {
+  size_t len = (size_t)snprintf(buf, n, "%s", base);
   const config *c = r->cfg;
   if (c->ncomp > 0 && j->ncomp != (size_t)c->ncomp && len < n)
     len += (size_t)snprintf(buf + len, n - len, "%sasked for %d components but fitted %zu",
@@ -234,21 +246,41 @@ static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_
   int bound = 0;
   for (size_t k = 0; k < j->ncomp; k++) bound |= o->an.fit_info.at_bound[k] != 0;
   if (bound && len < n)
-    snprintf(buf + len, n - len, "%sparameters at the limit of their range", len ? "; " : "");
+    len += (size_t)snprintf(buf + len, n - len, "%sparameters at the limit of their range",
+                            len ? "; " : "");
+  if (note && note[0] && len < n) snprintf(buf + len, n - len, "%s%s", len ? "; " : "", note);
 }
 
+/* The rows of one spectrum: one per component, in the fit's order, each
+ * with its system, then one for each system without components (its
+ * measurement over its range and its limit).  ncomp, chi2_red, dof and bic
+ * are those of the spectrum's joint fit; W .. reason those of the row's
+ * system. */
 static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
-                         const dt_judgement *j, const dt_autofit_out *o, int st) {
+                         const dt_judgement *j, const dt_autofit_out *o, int st,
+                         const dt_system_set *set, const dt_system_result *res) {
   const dt_analysis_out *an = &o->an;
   const dt_fit_result *fr = &an->fit;
   dt_csv *w = &r->csv;
-  char reason[256];
-  honest_reason(r, j, o, reason, sizeof reason);
-  size_t nrows = j->ncomp ? j->ncomp : 1;
-  for (size_t k = 0; k < nrows; k++) {
-    row_head(r, t, s, row, j->doublet, j->vsys, st == DT_OK ? "ok" : "not-converged");
+  char reason[320];
+  size_t nrows = j->ncomp;
+  for (size_t k = 0; k < set->n; k++) nrows += res[k].ncomp == 0;
+  size_t empty_sys = 0;
+  for (size_t q = 0; q < nrows; q++) {
+    size_t k, sk;
+    if (q < j->ncomp) {
+      k = q;
+      sk = dt_systems_of(set, fr->comp[k].v);
+    } else {
+      k = (size_t)-1;
+      while (res[empty_sys].ncomp) empty_sys++;
+      sk = empty_sys++;
+    }
+    const dt_system_result *sr = &res[sk];
+    row_head(r, t, s, row, j->doublet, set->sys[sk].name, j->vsys,
+             st == DT_OK ? "ok" : "not-converged");
     dt_csv_long(w, (long)j->ncomp);
-    if (j->ncomp) {
+    if (k != (size_t)-1) {
       dt_csv_long(w, (long)k + 1);
       dt_csv_fixed(w, fr->comp[k].v, 3);
       dt_csv_fixed(w, fr->err[k].v, 3);
@@ -262,7 +294,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     dt_csv_fixed(w, fr->chi2_red, 4);
     dt_csv_long(w, fr->dof);
     dt_csv_fixed(w, fr->bic, 3);
-    const dt_analysis_line *a = &an->line[0], *b = &an->line[1];
+    const dt_analysis_line *a = &sr->line[0], *b = &sr->line[1];
     dt_csv_fixed(w, 1e3 * a->W, 2);
     dt_csv_fixed(w, 1e3 * a->W_err, 2);
     dt_csv_fixed(w, a->W_sig, 2);
@@ -272,11 +304,17 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     dt_csv_fixed(w, 1e3 * b->W_err, 2);
     dt_csv_fixed(w, b->logN_aod, 4);
     dt_csv_fixed(w, b->logN_aod_err, 4);
-    dt_csv_text(w, an->saturated ? "1" : "0");
-    /* the limit is given unless the first pass calls it a detection */
-    if (o->suggested != DT_VERDICT_DETECTED) dt_csv_fixed(w, a->logN_limit, 4);
-    else dt_csv_empty(w);
-    dt_csv_text(w, dt_verdict_name(o->suggested));
+    dt_csv_text(w, dt_systems_saturated(sr->line) ? "1" : "0");
+    /* the limits are given unless the first pass calls the system detected */
+    if (sr->suggested != DT_VERDICT_DETECTED) {
+      dt_csv_fixed(w, 1e3 * a->W_limit, 2);
+      dt_csv_fixed(w, a->logN_limit, 4);
+    } else {
+      dt_csv_empty(w);
+      dt_csv_empty(w);
+    }
+    dt_csv_text(w, dt_verdict_name(sr->suggested));
+    honest_reason(r, j, o, sr->reason, sk == 0 ? set->note : NULL, reason, sizeof reason);
     dt_csv_text(w, reason);
     pos_cells(w, s);
     dt_csv_end(w);
@@ -330,6 +368,26 @@ static int check_window(const config *c, const dt_target_spec *t, const dt_judge
   return DT_OK;
 }
 
+/* The systems of a spectrum: the command line's target range and
+ * Milky-Way width over the list's, the command line's systems then the
+ * list line's; the window widened to cover them unless one was given. */
+static int setup_systems(const config *c, const dt_target_spec *t, const dt_spectrum *s,
+                         const dt_doublet *d, dt_judgement *j, dt_system_set *set, dt_err *e) {
+  dt_system_opts so = c->systems;
+  if (!so.has_target && t->systems.has_target) {
+    so.has_target = 1;
+    so.target_vlo = t->systems.target_vlo;
+    so.target_vhi = t->systems.target_vhi;
+  }
+  for (size_t k = 0; k < t->systems.nextra; k++) {
+    int st = dt_system_opts_add(&so, &t->systems.extra[k], e);
+    if (st != DT_OK) return st;
+  }
+  double fw = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms;
+  return dt_systems_setup(&so, j->vsys, s, d, fw, c->have_window || t->has_window, &j->vlo,
+                          &j->vhi, set, e);
+}
+
 /* Fit one spectrum (one row of a table, or the only one). */
 static void fit_one(run *r, const dt_target_spec *t, long row) {
   const config *c = r->cfg;
@@ -367,6 +425,9 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
   if (st == DT_OK) st = check_window(c, t, &j, s, &e);
+  dt_system_set set;
+  memset(&set, 0, sizeof set);
+  if (st == DT_OK) st = setup_systems(c, t, s, d, &j, &set, &e);
   dt_autofit_out o;
   memset(&o, 0, sizeof o);
   if (st == DT_OK) {
@@ -388,7 +449,10 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   }
   long shown_row = s ? s->row : row;
   if (st == DT_OK || st == DT_ENOCONV) {
-    write_result(r, t, s, shown_row, &j, &o, st);
+    dt_system_result res[DT_MAX_SYSTEMS];
+    dt_systems_results(an, &set, &j, &o, st, res);
+    if (set.mw_joined) r->mw_joined++;
+    write_result(r, t, s, shown_row, &j, &o, st, &set, res);
     r->fitted++;
     if (st == DT_ENOCONV) r->noconv++;
   } else {
@@ -509,17 +573,18 @@ static void run_files_from(run *r, const char *path) {
 /* ---- options ---------------------------------------------------------- */
 
 static int parse_window(const char *text, double *lo, double *hi) {
+  const char *opt = "--window";
   const char *colon = text ? strchr(text, ':') : NULL;
   if (!colon) {
-    cli_errorf("--window: '%s' is not VLO:VHI (e.g. -400:300)", text ? text : "");
+    cli_errorf("%s: '%s' is not VLO:VHI (e.g. -400:300)", opt, text ? text : "");
     return 1;
   }
   char a[64], b[64];
   snprintf(a, sizeof a, "%.*s", (int)(colon - text), text);
   snprintf(b, sizeof b, "%s", colon + 1);
-  if (cli_parse_double("--window", a, lo) || cli_parse_double("--window", b, hi)) return 1;
+  if (cli_parse_double(opt, a, lo) || cli_parse_double(opt, b, hi)) return 1;
   if (!isfinite(*lo) || !isfinite(*hi) || *lo >= *hi) {
-    cli_errorf("--window: empty velocity window %s (VLO must be below VHI)", text);
+    cli_errorf("%s: empty velocity window %s (VLO must be below VHI)", opt, text);
     return 1;
   }
   return 0;
@@ -624,12 +689,29 @@ static void write_settings(dt_csv *w, const config *c) {
   if (c->ropts.has_site)
     dt_num_snprintf(buf, sizeof buf, "%.6f,%.6f,%.1f", c->ropts.site_lon, c->ropts.site_lat, c->ropts.site_height);
   dt_csv_comment(w, "site", buf);
+  buf[0] = '\0';
+  if (c->systems.has_target) {
+    char lo[40], hi[40];
+    dt_num_format(lo, sizeof lo, c->systems.target_vlo);
+    dt_num_format(hi, sizeof hi, c->systems.target_vhi);
+    snprintf(buf, sizeof buf, "%s:%s", lo, hi);
+  }
+  dt_csv_comment(w, "target-window", buf);
+  buf[0] = '\0';
+  if (c->have_mw) dt_num_format(buf, sizeof buf, c->systems.mw_half);
+  dt_csv_comment(w, "milky-way", buf);
+  dt_system_set us;
+  memset(&us, 0, sizeof us);
+  us.n = c->systems.nextra;
+  memcpy(us.sys, c->systems.extra, us.n * sizeof us.sys[0]);
+  dt_systems_format(&us, buf, sizeof buf);
+  dt_csv_comment(w, "systems", buf);
 }
 
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -658,6 +740,9 @@ static const struct option LONGOPTS[] = {
     {"frame", required_argument, NULL, O_FRAME},
     {"in-frame", required_argument, NULL, O_INFRAME},
     {"site", required_argument, NULL, O_SITE},
+    {"target-window", required_argument, NULL, O_TWIN},
+    {"system", required_argument, NULL, O_SYSTEM},
+    {"milky-way", required_argument, NULL, O_MW},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -752,6 +837,11 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case O_FRAME: return cli_opt_frame("fit", v, &c->ropts);
   case O_INFRAME: return cli_opt_in_frame("fit", v, &c->ropts);
   case O_SITE: return cli_opt_site("fit", v, &c->ropts);
+  case O_TWIN: return cli_system_option("--target-window", v, &c->systems);
+  case O_SYSTEM: return cli_system_option("--system", v, &c->systems);
+  case O_MW:
+    c->have_mw = 1;
+    return cli_system_option("--milky-way", v, &c->systems);
   }
   return 1;
 }
@@ -778,6 +868,7 @@ int cmd_fit(int argc, char **argv) {
   memset(&c, 0, sizeof c);
   c.shard_n = 1;
   c.limit_nsigma = 3.0;
+  dt_system_opts_init(&c.systems);
   source *src = calloc((size_t)argc + 1, sizeof *src);
   size_t nsrc = 0;
   int rc = 2;
@@ -801,6 +892,7 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("fit: give --resolution or --fwhm, not both");
     goto done;
   }
+  if (cli_systems_check(&c.systems)) goto done; /* no overlaps among the systems */
   if (c.ncomp > 0 && c.nseed > 0 && (size_t)c.ncomp != c.nseed) {
     cli_errorf("fit: --ncomp %d disagrees with %zu --seed-v velocities", c.ncomp, c.nseed);
     goto done;
@@ -873,6 +965,11 @@ int cmd_fit(int argc, char **argv) {
             r.fitted, r.failed, r.noconv);
   else
     fprintf(stderr, "doubletty: fitted %ld spectra, %ld failed\n", r.fitted, r.failed);
+  if (r.mw_joined)
+    fprintf(stderr,
+            "doubletty: in %ld spectra the Milky Way lies in the target's range (vsys too "
+            "small to separate them): no milky-way system there (see 'reason')\n",
+            r.mw_joined);
   rc = r.failed ? 1 : 0;
 done:
   dt_atomic_free(atomic);

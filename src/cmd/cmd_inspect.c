@@ -43,6 +43,10 @@ static void usage(FILE *f) {
           "  --resolution R       resolving power when neither list nor file says\n"
           "  --fwhm KMS           ... or the line-spread FWHM in km/s\n"
           "  --vsys KMS           rest frame when the list does not say\n"
+          "  --target-window VLO:VHI  the target system's range [km/s] (default -300:300)\n"
+          "  --system NAME:VLO:VHI    another absorber system [km/s] (repeatable)\n"
+          "  --milky-way HALF     Milky-Way system -HALF..HALF km/s in the observer's\n"
+          "                       frame (default 150; 0 = none)\n"
           "  --atomic FILE        extra atomic data table\n"
           CLI_FRAME_HELP
           "  --hi CUBE            show a 21-cm cube's spectrum at each sightline (a panel\n"
@@ -61,7 +65,7 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
   O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
-  O_FRAME, O_INFRAME, O_SITE, O_HI
+  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -75,6 +79,9 @@ static const struct option LONGOPTS[] = {
     {"resolution", required_argument, NULL, O_RES},
     {"fwhm", required_argument, NULL, O_FWHM},
     {"vsys", required_argument, NULL, O_VSYS},
+    {"target-window", required_argument, NULL, O_TWIN},
+    {"system", required_argument, NULL, O_SYSTEM},
+    {"milky-way", required_argument, NULL, O_MW},
     {"atomic", required_argument, NULL, O_ATOMIC},
     {"air", no_argument, NULL, O_AIR},
     {"frame", required_argument, NULL, O_FRAME},
@@ -159,6 +166,10 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     if (cli_parse_double("--vsys", v, &o->vsys)) return 1;
     o->has_vsys = 1;
     return 0;
+  case O_TWIN:
+  case O_SYSTEM:
+  case O_MW: return cli_system_option(opt == O_TWIN ? "--target-window" : opt == O_SYSTEM ? "--system" : "--milky-way",
+                                      v, &o->systems);
   case O_ATOMIC: a->atomic_file = v; return 0;
   case O_AIR: a->air = 1; return 0;
   case O_FRAME: return cli_opt_frame("inspect", v, &a->read);
@@ -467,6 +478,10 @@ int cmd_inspect(int argc, char **argv) {
   const char *nc = getenv("NO_COLOR"); /* the common convention for "no colours, please" */
   if (nc && *nc) o.colour = 0;
   if ((rc = check_args(&a, &o))) goto out;
+  if (cli_systems_check(&o.systems)) {
+    rc = 2;
+    goto out;
+  }
   atomic = cli_load_atomic(a.atomic_file);
   if (!atomic) {
     rc = 1;

@@ -44,6 +44,8 @@ static void usage(FILE *f) {
           "                    or a whole list name such as VPQ06)\n"
           "  --user NAME       only changes made by NAME\n"
           "  --action NAMES    only these actions (comma-separated), e.g. verdict,note\n"
+          "  --system NAME     only verdicts of the absorber system NAME (target,\n"
+          "                    milky-way, or a system of the list or the run)\n"
           "  --verify          instead of the trail: refit every spectrum whose final\n"
           "                    state has a fit and report whether the refit reproduces\n"
           "                    it (within 0.1 sigma) and whether the file is unchanged\n"
@@ -118,7 +120,12 @@ static void describe(const dt_journal_record *r, char *buf, size_t n) {
     }
     break;
   }
-  case DT_ACT_VERDICT: snprintf(buf, n, "%s", dt_verdict_name((dt_verdict)a->ival)); break;
+  case DT_ACT_VERDICT:
+    if (a->text[0] && strcmp(a->text, DT_JUDGE_TARGET))
+      snprintf(buf, n, "%s: %s", a->text, dt_verdict_name((dt_verdict)a->ival));
+    else
+      snprintf(buf, n, "%s", dt_verdict_name((dt_verdict)a->ival));
+    break;
   case DT_ACT_NOTE: {
     /* the note on one line, quoted: \\, \", \t, \n escapes; controls (C0,
        DEL, C1) and bytes that are not UTF-8 as \xHH, one per byte; a long
@@ -166,8 +173,18 @@ static void result(const dt_journal_record *r, char *buf, size_t n) {
     if (s->verdict == DT_VERDICT_NONE) k += (size_t)snprintf(buf + k, n - k, ", no verdict");
     else k += (size_t)snprintf(buf + k, n - k, ", %s", dt_verdict_name(s->verdict));
   }
+  for (size_t i = 0; i < s->nsysv && i < DT_JUDGE_MAX_SYS && k < n; i++)
+    k += (size_t)snprintf(buf + k, n - k, "%s%s: %s", i ? ", " : "; ", s->sysv[i].name,
+                          dt_verdict_name(s->sysv[i].verdict));
   if ((r->flags & DT_JFLAG_FILE_CHANGED) && k < n)
     snprintf(buf + k, n - k, " [input file changed since its last record]");
+}
+
+/* A verdict of system name ("target": one without a system). */
+static int verdict_of_system(const dt_action *a, const char *name) {
+  if (a->kind != DT_ACT_VERDICT) return 0;
+  const char *sys = a->text[0] ? a->text : DT_JUDGE_TARGET;
+  return !strcmp(sys, name);
 }
 
 /* Comma-separated action names -> bit set; -1 with a message when unknown. */
@@ -327,10 +344,12 @@ static const struct option LONGOPTS[] = {{"help", no_argument, NULL, 'h'},
                                          {"action", required_argument, NULL, 'a'},
                                          {"atomic", required_argument, NULL, 'A'},
                                          {"verify", no_argument, NULL, 'v'},
+                                         {"system", required_argument, NULL, 's'},
                                          {NULL, 0, NULL, 0}};
 
 int cmd_log(int argc, char **argv) {
   const char *session = NULL, *pattern = NULL, *user = NULL, *actions = NULL, *atomic = NULL;
+  const char *system = NULL;
   int do_verify = 0, opt;
   cli_getopt_reset();
   while ((opt = getopt_long(argc, argv, ":h", LONGOPTS, NULL)) != -1) {
@@ -341,6 +360,7 @@ int cmd_log(int argc, char **argv) {
     case 'a': actions = optarg; break;
     case 'A': atomic = optarg; break;
     case 'v': do_verify = 1; break;
+    case 's': system = optarg; break;
     default: return cli_opt_error("log", opt, argv);
     }
   }
@@ -356,8 +376,8 @@ int cmd_log(int argc, char **argv) {
   long actset = -1;
   if (actions && (actset = parse_actions(actions)) < 0) return 2;
   if (do_verify) {
-    if (user || actions) {
-      cli_errorf("log: --verify checks final states; --user and --action do not apply");
+    if (user || actions || system) {
+      cli_errorf("log: --verify checks final states; --user, --action and --system do not apply");
       return 2;
     }
     return verify(session, pattern, atomic);
@@ -393,6 +413,7 @@ int cmd_log(int argc, char **argv) {
     if (pattern && !target_matches(pattern, &rec->target)) continue;
     if (user && strcmp(user, rec->user) != 0) continue;
     if (actions && !(actset & (1L << rec->action.kind))) continue;
+    if (system && !verdict_of_system(&rec->action, system)) continue;
     printable(rec->user); /* one line per record, nothing the terminal obeys */
     printable((char *)rec->target.path);
     describe(rec, what, sizeof what);

@@ -16,6 +16,7 @@
 #include "doubletty/agree.h"
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -84,8 +85,8 @@ int dt_agree_category(dt_verdict v) {
   }
 }
 
-static int judged(const dt_journal_entry *en) {
-  return en && dt_agree_category(en->state.verdict) >= 0;
+static int judged(const dt_journal_entry *en, const char *sys) {
+  return en && dt_agree_category(dt_judgement_system_verdict(&en->state, sys)) >= 0;
 }
 
 /* The entry of s for the spectrum of a: the same identity (digest, HDU,
@@ -100,7 +101,14 @@ static const dt_journal_entry *partner(const dt_journal *s, const dt_journal_ent
 
 int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2, dt_agree_report *r,
                       dt_err *e) {
+  return dt_agree_sessions_system(s1, s2, "", r, e);
+}
+
+int dt_agree_sessions_system(const dt_journal *s1, const dt_journal *s2, const char *sys,
+                             dt_agree_report *r, dt_err *e) {
   memset(r, 0, sizeof *r);
+  if (!sys || !strcmp(sys, DT_JUDGE_TARGET)) sys = "";
+  snprintf(r->system, sizeof r->system, "%s", sys[0] ? sys : DT_JUDGE_TARGET);
   size_t n1 = dt_journal_count(s1);
   if (n1) {
     r->disagree = malloc(n1 * sizeof *r->disagree);
@@ -108,13 +116,14 @@ int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2, dt_agree_repor
   }
   for (size_t i = 0; i < n1; i++) {
     const dt_journal_entry *a = dt_journal_entry_at(s1, i);
-    if (!judged(a)) continue;
+    if (!judged(a, sys)) continue;
     const dt_journal_entry *b = partner(s2, a);
-    if (!judged(b)) {
+    if (!judged(b, sys)) {
       r->nonly1++;
       continue;
     }
-    int ca = dt_agree_category(a->state.verdict), cb = dt_agree_category(b->state.verdict);
+    int ca = dt_agree_category(dt_judgement_system_verdict(&a->state, sys)),
+        cb = dt_agree_category(dt_judgement_system_verdict(&b->state, sys));
     r->matrix[ca * DT_AGREE_NCAT + cb] += 1.0;
     r->nboth++;
     if (ca != cb) r->disagree[r->ndisagree++] = (dt_agree_pair){a, b};
@@ -122,8 +131,8 @@ int dt_agree_sessions(const dt_journal *s1, const dt_journal *s2, dt_agree_repor
   size_t n2 = dt_journal_count(s2);
   for (size_t i = 0; i < n2; i++) {
     const dt_journal_entry *b = dt_journal_entry_at(s2, i);
-    if (!judged(b)) continue;
-    if (!judged(partner(s1, b)))
+    if (!judged(b, sys)) continue;
+    if (!judged(partner(s1, b), sys))
       r->nonly2++;
   }
   if (r->nboth > 0) {

@@ -669,3 +669,22 @@ int dt_analysis_verify_fit(dt_analysis *a, const dt_judgement *recorded, double 
   free(out);
   return DT_OK;
 }
+
+/* The last run's measurement inputs, for dt_analysis_measure_range
+ * (analysis_range.c).  DT_ERANGE before a successful run. */
+int dt_analysis_last_input(const dt_analysis *a, dt_measure_input *in, const dt_doublet **d,
+                           double *nsigma, double *fwhm_kms) {
+  if (!a->have_run) return DT_ERANGE;
+  in->n = a->n;
+  in->wave = a->s->wave + a->i0;
+  in->flux = a->s->flux + a->i0;
+  in->sigma = a->s->sigma + a->i0;
+  in->mask = a->s->mask + a->i0;
+  in->cont = a->cont;
+  in->cont_err = a->cont_err;
+  in->vsys = a->mkey.vsys;
+  *d = a->mkey.doublet;
+  *nsigma = a->opts.limit_nsigma > 0 ? a->opts.limit_nsigma : 3.0;
+  *fwhm_kms = a->fwhm_kms;
+  return DT_OK;
+}

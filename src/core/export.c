@@ -10,6 +10,7 @@
 #include "doubletty/csv.h"
 #include "doubletty/hicube.h"
 #include "doubletty/num.h"
+#include "doubletty/systems.h"
 #include "doubletty/targets.h"
 
 /* ---- the table: columns and their values per row ---- */
@@ -30,7 +31,8 @@ static int is_log(const char *name) { return !strncmp(name, "logN", 4); }
 static const column COLS[] = {
     {"file", C_STR, ""},          {"name", C_STR, ""},
     {"hdu", C_INT, ""},
-    {"row", C_INT, ""},           {"verdict", C_STR, ""},
+    {"row", C_INT, ""},           {"system", C_STR, ""},
+    {"verdict", C_STR, ""},
     {"note", C_STR, ""},          {"judged_by", C_STR, ""},
     {"judged_at", C_STR, ""},     {"last_user", C_STR, ""},
     {"last_change", C_STR, ""},   {"changes", C_INT, ""},
@@ -85,12 +87,47 @@ const char *dt_export_stem(const char *file, char *buf, size_t n) {
   return buf;
 }
 
-/* Rows of one spectrum: one per component, or a single row (component 0)
- * when there is none -- or when the verdict is "not detected": such a
- * spectrum is a limit, and its first-pass components are no result. */
-static size_t comp_rows(const dt_journal_entry *en) {
-  if (en->state.verdict == DT_VERDICT_NOT_DETECTED) return 0;
-  return en->state.ncomp;
+/* The rows of one spectrum: for each of its absorber systems (systems.h;
+ * the target first) one row per component belonging to it, or a single row
+ * (component 0) when it has none -- or when that system's verdict is "not
+ * detected": such a system is a limit, and its first-pass components are no
+ * result. */
+#define MAX_ROWS (DT_MAX_COMP + DT_MAX_SYSTEMS)
+typedef struct spec_rows {
+  dt_system_set set;
+  size_t n;                          /* rows */
+  size_t sys[MAX_ROWS], comp[MAX_ROWS]; /* system; component (1-based, 0 none) */
+  size_t ncomp[DT_MAX_SYSTEMS];      /* component rows of each system */
+} spec_rows;
+
+static dt_verdict system_verdict(const dt_judgement *s, const dt_system_set *set, size_t k) {
+  return dt_judgement_system_verdict(s, k ? set->sys[k].name : "");
+}
+
+static void spectrum_rows(const dt_journal_entry *en, spec_rows *r) {
+  const dt_judgement *s = &en->state;
+  dt_systems_of_judgement(s, &r->set);
+  if (r->set.n == 0) { /* cannot happen for a valid state: all in the target */
+    snprintf(r->set.sys[0].name, sizeof r->set.sys[0].name, "%s", DT_SYSTEM_TARGET);
+    r->set.sys[0].vlo = s->vlo;
+    r->set.sys[0].vhi = s->vhi;
+    r->set.n = 1;
+  }
+  r->n = 0;
+  for (size_t k = 0; k < r->set.n; k++) {
+    r->ncomp[k] = 0;
+    int limit = system_verdict(s, &r->set, k) == DT_VERDICT_NOT_DETECTED;
+    for (size_t c = 0; !limit && c < s->ncomp && c < DT_MAX_COMP; c++)
+      if (dt_systems_of(&r->set, s->comp[c].v) == k) {
+        r->sys[r->n] = k;
+        r->comp[r->n++] = c + 1;
+        r->ncomp[k]++;
+      }
+    if (r->ncomp[k] == 0) {
+      r->sys[r->n] = k;
+      r->comp[r->n++] = 0;
+    }
+  }
 }
 
 /* The cells of one row: spectrum en, component k (0 = none). */
@@ -100,12 +137,16 @@ typedef struct row_text {
   char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
 } row_text;
 
-static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt) {
+/* The cells of row q of spectrum en.  The recorded measurements (taken
+ * around all its components) and the suggested verdict are the spectrum's
+ * and go to the target's rows only. */
+static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, cell *c, row_text *rt) {
+  size_t k = r->comp[q], sk = r->sys[q];
   char *flags = rt->flags, *frozen = rt->frozen, *status = rt->status;
   const dt_judgement *s = &en->state;
   const dt_meas_summary *m = &en->meas;
   dt_meas_summary none;
-  if (!en->has_meas) {
+  if (!en->has_meas || sk > 0) {
     dt_meas_summary_clear(&none);
     m = &none;
   }
@@ -130,7 +171,8 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt
                                                    : dt_export_stem(rt->file, rt->stem, sizeof rt->stem);
   c[i++].i = en->target.hdu;
   c[i++].i = en->target.row;
-  c[i++].s = dt_verdict_name(s->verdict);
+  c[i++].s = r->set.sys[sk].name;
+  c[i++].s = dt_verdict_name(system_verdict(s, &r->set, sk));
   c[i++].s = s->note;
   c[i++].s = en->judged_by;
   c[i++].s = en->judged_at;
@@ -141,7 +183,7 @@ static void fill_row(const dt_journal_entry *en, size_t k, cell *c, row_text *rt
   c[i++].s = en->target.sha256;
   c[i++].s = s->doublet;
   c[i++].d = s->vsys;
-  c[i++].i = (long long)comp_rows(en);
+  c[i++].i = (long long)r->ncomp[sk];
   c[i++].i = (long long)k;
   c[i++].d = comp ? comp->logN : NAN;
   c[i++].d = err ? err->logN : NAN;
@@ -233,15 +275,16 @@ static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube) {
   dt_csv_end(&w);
   cell cells[NCOL];
   row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
+  spec_rows rows;
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    size_t nc = comp_rows(en);
+    spectrum_rows(en, &rows);
     dt_hi_sample hs;
     const char *hstat = "";
     memset(&hs, 0, sizeof hs);
     if (cube) hi_of_entry(cube, en, &hs, &hstat);
-    for (size_t k = nc ? 1 : 0; k <= nc; k++) {
-      fill_row(en, k, cells, rt);
+    for (size_t q = 0; q < rows.n; q++) {
+      fill_row(en, &rows, q, cells, rt);
       for (size_t c = 0; c < NCOL; c++) {
         switch (COLS[c].type) {
         case C_STR: dt_csv_text(&w, cells[c].s); break;
@@ -303,10 +346,12 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
   for (size_t c = 0; c < NCOL; c++) width[c] = 1;
   cell cells[NCOL];
   row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
+  spec_rows rows;
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
-    for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en); k++) {
-      fill_row(en, k, cells, rt);
+    spectrum_rows(en, &rows);
+    for (size_t q = 0; q < rows.n; q++) {
+      fill_row(en, &rows, q, cells, rt);
       for (size_t c = 0; c < NCOL; c++)
         if (COLS[c].type == C_STR && (long)strlen(cells[c].s) > width[c])
           width[c] = (long)strlen(cells[c].s);
@@ -379,6 +424,7 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
   long long row = 0;
   for (size_t i = 0; i < dt_journal_count(j) && !st; i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
+    spectrum_rows(en, &rows);
     dt_hi_sample hs;
     const char *hstat = "";
     memset(&hs, 0, sizeof hs);
@@ -387,8 +433,8 @@ static int write_fits(const char *path, const dt_journal *j, const char *session
     double hv[NHI - 1] = {hok ? hs.logN : NAN, hok ? hs.logN_err : NAN, hok ? hs.v : NAN,
                           hok ? hs.sigma : NAN,
                           hok || hs.status == DT_HI_NO_EMISSION ? hs.tpeak : NAN};
-    for (size_t k = comp_rows(en) ? 1 : 0; k <= comp_rows(en) && !st; k++) {
-      fill_row(en, k, cells, rt);
+    for (size_t q = 0; q < rows.n && !st; q++) {
+      fill_row(en, &rows, q, cells, rt);
       row++;
       for (size_t c = 0; cube && c < NHI && !st; c++) {
         int col = (int)(NCOL + c) + 1;

@@ -184,6 +184,10 @@ static int same_summary(const dt_judgement *a, const dt_judgement *b) {
     return 0;
   for (size_t i = 0; i < a->ncomp; i++)
     if (a->frozen[i] != b->frozen[i] || !dt_jn_same_comp(&a->comp[i], &b->comp[i])) return 0;
+  if (a->nsysv != b->nsysv || a->nsysv > DT_JUDGE_MAX_SYS) return 0;
+  for (size_t i = 0; i < a->nsysv; i++)
+    if (strcmp(a->sysv[i].name, b->sysv[i].name) || a->sysv[i].verdict != b->sysv[i].verdict)
+      return 0;
   return !a->has_fit || dt_fit_result_same(&a->fit, &b->fit);
 }
 
@@ -193,6 +197,8 @@ static void adopt_summary(dt_judgement *s, const dt_judgement *rec) {
   memcpy(s->frozen, rec->frozen, sizeof s->frozen);
   s->tie_b = rec->tie_b;
   s->verdict = rec->verdict;
+  s->nsysv = rec->nsysv;
+  memcpy(s->sysv, rec->sysv, sizeof s->sysv);
   s->has_fit = rec->has_fit;
   s->fit = rec->fit;
 }
@@ -677,7 +683,40 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
   dt_target rt = *t;
   rt.path = hint;
   if (j->version < 2) rt.name = NULL;
-  int rc = append_record(j, find_index(j, t, 1), &rt, a, after, meas, e);
+  /* an older file goes on without the absorber systems; it cannot hold
+     the verdict of a system other than the target */
+  /* the target's verdict is written without system= (as version 2 wrote it) */
+  dt_action plain;
+  if (a->kind == DT_ACT_VERDICT && !strcmp(a->text, DT_JUDGE_TARGET)) {
+    plain = *a;
+    plain.text[0] = '\0';
+    a = &plain;
+  }
+  const dt_judgement *state = after;
+  dt_judgement *old = NULL;
+  if (j->version < 3) {
+    int other = after->nsysv > 0 || (a->kind == DT_ACT_VERDICT && a->text[0] &&
+                                     strcmp(a->text, DT_JUDGE_TARGET));
+    if (other) {
+      free(hint);
+      return dt_err_set(e, DT_EVERSION, NULL,
+                        "this session file is in format version %d, which holds only the "
+                        "target's verdict: judge other systems in a new session file",
+                        j->version);
+    }
+    if (after->nsys > 0) {
+      old = malloc(sizeof *old);
+      if (!old) {
+        free(hint);
+        return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+      }
+      *old = *after;
+      old->nsys = 0;
+      state = old;
+    }
+  }
+  int rc = append_record(j, find_index(j, t, 1), &rt, a, state, meas, e);
+  free(old);
   free(hint);
   return rc;
 }
@@ -732,3 +771,5 @@ size_t dt_journal_warning_count(const dt_journal *j) { return j->nwarn; }
 const char *dt_journal_warning(const dt_journal *j, size_t i) {
   return i < j->nwarn && i < MAX_WARN ? j->warn[i] : NULL;
 }
+
+int dt_journal_version(const dt_journal *j) { return j ? j->version : DT_JOURNAL_VERSION; }

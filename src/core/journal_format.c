@@ -1,9 +1,9 @@
 /* The session file format and its writer: one line per change.
  *
- * FORMAT (version 2).  UTF-8/ASCII text, one record per line, fields
+ * FORMAT (version 3).  UTF-8/ASCII text, one record per line, fields
  * separated by one TAB.  The first line is the header:
  *
- *   doubletty-session 2<TAB>created=2025-06-01T10:00:00.000Z<TAB>program=doubletty 0.1.0
+ *   doubletty-session 3<TAB>created=2025-06-01T10:00:00.000Z<TAB>program=doubletty 0.1.0
  *
  * A program that finds a larger version number refuses the file (it neither
  * reads nor appends).  Every other line is one change to one spectrum:
@@ -25,6 +25,11 @@
  * file changed since the last record of the same spectrum (a record whose
  * digest is new is matched to the spectrum by its path).
  *
+ * Version 3 adds the absorber systems: system= of a verdict, verdicts= and
+ * systems= (the fields marked JF_V3).  A version-2 file is read (its
+ * verdicts are the target's) and appended in version 2 without systems=; a
+ * verdict of another system cannot be written to it.
+ *
  * Version 1 differs only there: no name=, and PATH (always as given) with
  * HDU and ROW is the identity.  Version-1 files are read (records with a
  * digest are matched by it), and appends to them stay in version 1.
@@ -38,10 +43,11 @@
  *   tie-b tie=0|1                    cont-order order=K (-1 = continuum fixed at 1)
  *   doublet doublet=NAME             resolution R= fwhm= [km/s]
  *   vsys vsys= [km/s]                vwindow vlo= vhi= [km/s]
- *   verdict verdict=none|detected|not-detected|unsure|unusable
+ *   verdict verdict=none|detected|not-detected|unsure|unusable [system=NAME]
  *   note note=TEXT                   fit, restore, autofit (no fields: see the state)
  * The field "=>" separates the action from the state after it, which always
- * gives: verdict=; ncomp=N; c1= .. cN= as "logN=X,b=X,v=X[,frozen=LETTERS]"
+ * gives: verdict= (the target system's); verdicts=NAME:VERDICT,... (the
+ * other absorber systems' verdicts, left out when there are none); ncomp=N; c1= .. cN= as "logN=X,b=X,v=X[,frozen=LETTERS]"
  * (with "+-ERR" after each value when the fit gave these very values);
  * tie-b=1 when b is tied; and when a fit belongs to the state: fit=STATUS
  * (ok, no-convergence, ...), niter=, chi2=, dof=, chi2r=, bic=, npix=,
@@ -52,8 +58,9 @@
  * density, log10 cm^-2, +- error), logNlim1= logNlim2= (each left out when
  * not measured), nsigma= (of the limits; always present with measurements),
  * saturated=1, suggested=VERDICT.  With full=1 the state is complete:
- * doublet=, vsys=, R=, fwhm=, vlo=, vhi=, order=, windows=LO:HI,... and note=
- * follow too; this is written for the first record of a spectrum, for every
+ * doublet=, vsys=, R=, fwhm=, vlo=, vhi=, order=, windows=LO:HI,..., note=
+ * and systems=NAME:VLO:VHI,... (the absorber systems, the target first;
+ * left out: the defaults for vsys, systems.h) follow too; this is written for the first record of a spectrum, for every
  * restore (undo/redo), and whenever the state does not follow from the
  * previous record by the action.  The last field, sum=, is the FNV-1a 32-bit
  * hash (8 hex digits) of every byte of the line before "<TAB>sum=".
@@ -248,9 +255,11 @@ const dt_jn_field dt_jn_fields[] = {
     {"vlo", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(VWINDOW)},
     {"vhi", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(VWINDOW)},
     {"verdict", JP_ACT, JT_VERDICT_INT, 0, ACT(ival), 0, 0, 0, A(VERDICT)},
+    {"system", JP_ACT, JT_TEXT, JF_OMIT | JF_V3, ACT(text), 0, 0, DT_JUDGE_SYS_NAME, A(VERDICT)},
     {"note", JP_ACT, JT_TEXT, 0, ACT(text), 0, 0, TXT(dt_action, text), A(NOTE)},
     /* the state after (after "=>"): what every record states */
     {"verdict", JP_STATE, JT_VERDICT, JF_REQ, JDG(verdict), 0, 0, 0, 0},
+    {"verdicts", JP_STATE, JT_SYSV, JF_OMIT | JF_V3, 0, 0, 0, DT_JUDGE_MAX_SYS, 0},
     {"ncomp", JP_STATE, JT_SIZE, JF_REQ, JDG(ncomp), 0, 0, DT_MAX_COMP, 0},
     {"c", JP_STATE, JT_COMP, JF_NUMBERED, 0, 0, 0, DT_MAX_COMP, 0},
     {"tie-b", JP_STATE, JT_INT, JF_OMIT, JDG(tie_b), 0, 0, 1, 0},
@@ -284,6 +293,7 @@ const dt_jn_field dt_jn_fields[] = {
     {"order", JP_FULL, JT_INT, JF_REQ, JDG(cont_order), 0, -1, DT_MAX_CONT - 1, 0},
     {"windows", JP_FULL, JT_WINDOWS, JF_REQ, 0, 0, 0, DT_MAX_WINDOWS, 0},
     {"note", JP_FULL, JT_TEXT, JF_REQ, JDG(note), 0, 0, TXT(dt_judgement, note), 0},
+    {"systems", JP_FULL, JT_SYSTEMS, JF_OMIT | JF_V3, 0, 0, 0, DT_JUDGE_MAX_SYS, 0},
 };
 const size_t dt_jn_nfields = sizeof dt_jn_fields / sizeof dt_jn_fields[0];
 
@@ -415,6 +425,26 @@ static void write_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
     return;
   }
   case JT_FULL: sb_str(b, "\tfull=1"); return;
+  case JT_SYSV: {
+    const dt_judgement *s = p;
+    if (s->nsysv == 0) return;
+    sb_key(b, f, num);
+    for (size_t i = 0; i < s->nsysv && i < DT_JUDGE_MAX_SYS; i++)
+      sb_fmt(b, "%s%s:%s", i ? "," : "", s->sysv[i].name, dt_verdict_name(s->sysv[i].verdict));
+    return;
+  }
+  case JT_SYSTEMS: {
+    const dt_judgement *s = p;
+    if (s->nsys == 0) return;
+    sb_key(b, f, num);
+    for (size_t i = 0; i < s->nsys && i < DT_JUDGE_MAX_SYS; i++) {
+      sb_fmt(b, "%s%s:", i ? "," : "", s->sys[i].name);
+      sb_num(b, s->sys[i].vlo);
+      sb_str(b, ":");
+      sb_num(b, s->sys[i].vhi);
+    }
+    return;
+  }
   default: return;
   }
 }

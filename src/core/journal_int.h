@@ -71,13 +71,16 @@ enum {
   JT_FCOMP,       /* fitted component fN (with errors) */
   JT_CONT,        /* continuum coefficients C+-E,... */
   JT_WINDOWS,     /* continuum windows LO:HI,... */
-  JT_FULL         /* full=1: the settings follow */
+  JT_FULL,        /* full=1: the settings follow */
+  JT_SYSV,        /* verdicts of systems: NAME:VERDICT,... */
+  JT_SYSTEMS      /* system ranges: NAME:VLO:VHI,... */
 };
 enum {
   JF_REQ = 1,      /* required (for JP_FULL: when full=1; JP_FIT: when the fit is there) */
   JF_NONEMPTY = 2, /* text that may not be empty */
   JF_OMIT = 4,     /* left out when empty, zero or NaN */
-  JF_NUMBERED = 8  /* KEY1 .. KEYn, n = hi */
+  JF_NUMBERED = 8, /* KEY1 .. KEYn, n = hi */
+  JF_V3 = 16       /* new in format version 3 (absorber systems) */
 };
 typedef struct dt_jn_field {
   const char *key;

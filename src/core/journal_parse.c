@@ -221,6 +221,56 @@ static int read_list(const dt_jn_field *f, char *v, void *p) {
   return bad ? -1 : 0;
 }
 
+/* A system name as judge.h takes it. */
+static int sys_name_ok(const char *name) {
+  dt_judgement t;
+  dt_judgement_init(&t);
+  dt_action a;
+  dt_action_init(&a, DT_ACT_VERDICT);
+  a.ival = DT_VERDICT_DETECTED;
+  if (strlen(name) >= sizeof t.sysv[0].name || !strcmp(name, DT_JUDGE_TARGET) || !*name) return 0;
+  memcpy(a.text, name, strlen(name) + 1);
+  return dt_judgement_apply(&t, &a) == DT_OK;
+}
+
+/* "NAME:VERDICT,..." into the verdicts of systems, "NAME:VLO:VHI,..." into
+ * the systems; -1 if bad (names checked, none repeated). */
+static int read_systems(const dt_jn_field *f, char *v, dt_judgement *s) {
+  size_t n = 0;
+  for (char *tok = *v ? v : NULL; tok; n++) {
+    char *comma = strchr(tok, ',');
+    if (comma) *comma = '\0';
+    if (n >= (size_t)f->hi) return -1;
+    char *c1 = strchr(tok, ':');
+    if (!c1) return -1;
+    *c1 = '\0';
+    if (!sys_name_ok(tok) && !(f->type == JT_SYSTEMS && n == 0 && !strcmp(tok, DT_JUDGE_TARGET)))
+      return -1;
+    for (size_t i = 0; i < n; i++)
+      if (!strcmp(f->type == JT_SYSV ? s->sysv[i].name : s->sys[i].name, tok)) return -1;
+    if (f->type == JT_SYSV) {
+      dt_verdict vd;
+      if (dt_verdict_parse(c1 + 1, &vd) != DT_OK || vd == DT_VERDICT_NONE) return -1;
+      dt_jn_copy_str(s->sysv[n].name, sizeof s->sysv[n].name, tok);
+      s->sysv[n].verdict = vd;
+    } else {
+      char *c2 = strchr(c1 + 1, ':');
+      if (!c2) return -1;
+      *c2 = '\0';
+      dt_jn_copy_str(s->sys[n].name, sizeof s->sys[n].name, tok);
+      if (parse_num(c1 + 1, &s->sys[n].vlo) || parse_num(c2 + 1, &s->sys[n].vhi) ||
+          !(s->sys[n].vlo < s->sys[n].vhi))
+        return -1;
+    }
+    tok = comma ? comma + 1 : NULL;
+  }
+  if (n == 0) return -1;
+  if (f->type == JT_SYSV) s->nsysv = n;
+  else if (strcmp(s->sys[0].name, DT_JUDGE_TARGET)) return -1; /* the target first */
+  else s->nsys = n;
+  return 0;
+}
+
 /* Read value v of field f (number num) into the record; -1 if bad. */
 static int read_value(const dt_jn_field *f, char *v, int num, dt_journal_record *rec, pstate *ps) {
   void *p = part_base(rec, f->part, num);
@@ -280,6 +330,9 @@ static int read_value(const dt_jn_field *f, char *v, int num, dt_journal_record 
                : 0;
   case JT_CONT:
   case JT_WINDOWS: return read_list(f, v, p);
+  case JT_SYSV:
+  case JT_SYSTEMS:
+    return read_systems(f, v, p);
   case JT_FULL:
     if (parse_long(v, 1, 1, &lv)) return -1;
     rec->has |= DT_REC_FULL;
@@ -315,7 +368,8 @@ static int check_record(dt_journal_record *rec, const pstate *ps, dt_err *e) {
     return fail(e, "%s", "components c1.. do not match ncomp");
   for (size_t i = 0; i < dt_jn_nfields; i++) {
     const dt_jn_field *f = &dt_jn_fields[i];
-    if (f->part == JP_ACT && !ps->seen[i] != !(f->acts & (1u << a->kind)))
+    int has = (f->acts & (1u << a->kind)) != 0;
+    if (f->part == JP_ACT && ((ps->seen[i] && !has) || (!ps->seen[i] && has && !(f->flags & JF_OMIT))))
       return fail(e, "the fields of action '%s' are incomplete or wrong", dt_action_name(a->kind));
   }
   if (seen_of(ps, "was", JP_ID)) rec->flags |= DT_JFLAG_FILE_CHANGED;

@@ -8,6 +8,7 @@
 
 #include <assert.h>
 #include <math.h>
+#include <stdio.h>
 #include <string.h>
 
 #include "doubletty/status.h"
@@ -99,6 +100,51 @@ static int finite3(const double *x) { return isfinite(x[0]) && isfinite(x[1]) &&
 
 static int comp_ok(const double *x) { return finite3(x) && x[1] > 0.0; }
 
+/* "" and "target" name the target system. */
+static int is_target(const char *name) { return !name[0] || !strcmp(name, DT_JUDGE_TARGET); }
+
+/* A system name: 1..31 of letters, digits, '-', '_', '.' (systems.h). */
+static int sys_name_ok(const char *name) {
+  size_t n = strnlen(name, DT_JUDGE_SYS_NAME);
+  if (n == 0 || n >= DT_JUDGE_SYS_NAME) return 0;
+  for (size_t i = 0; i < n; i++) {
+    char c = name[i];
+    if (!((c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
+          c == '-' || c == '_' || c == '.'))
+      return 0;
+  }
+  return 1;
+}
+
+/* Set (NONE: clear) the verdict of a system other than the target; -1 for
+ * a bad name or too many systems (nothing changed). */
+static int set_system_verdict(dt_judgement *j, const char *name, dt_verdict v) {
+  if (!sys_name_ok(name)) return -1;
+  size_t k = 0;
+  while (k < j->nsysv && strcmp(j->sysv[k].name, name)) k++;
+  if (v == DT_VERDICT_NONE) {
+    if (k < j->nsysv) {
+      memmove(&j->sysv[k], &j->sysv[k + 1], (j->nsysv - k - 1) * sizeof j->sysv[0]);
+      j->nsysv--;
+    }
+    return 0;
+  }
+  if (k == j->nsysv) {
+    if (j->nsysv >= DT_JUDGE_MAX_SYS) return -1;
+    memcpy(j->sysv[k].name, name, strlen(name) + 1);
+    j->nsysv++;
+  }
+  j->sysv[k].verdict = v;
+  return 0;
+}
+
+dt_verdict dt_judgement_system_verdict(const dt_judgement *j, const char *name) {
+  if (is_target(name)) return j->verdict;
+  for (size_t k = 0; k < j->nsysv && k < DT_JUDGE_MAX_SYS; k++)
+    if (!strcmp(j->sysv[k].name, name)) return j->sysv[k].verdict;
+  return DT_VERDICT_NONE;
+}
+
 /* The state a judgement may be in (used to check restored states). */
 static int state_ok(const dt_judgement *s) {
   if (s->ncomp > DT_MAX_COMP || s->nwin > DT_MAX_WINDOWS) return 0;
@@ -110,6 +156,13 @@ static int state_ok(const dt_judgement *s) {
   for (size_t i = 0; i < s->ncomp; i++)
     if (s->frozen[i] > (DT_FREEZE_N | DT_FREEZE_B | DT_FREEZE_V)) return 0;
   if (s->has_fit && s->fit.ncomp != s->ncomp) return 0;
+  if (s->nsys > DT_JUDGE_MAX_SYS || s->nsysv > DT_JUDGE_MAX_SYS) return 0;
+  for (size_t i = 0; i < s->nsys; i++)
+    if (!sys_name_ok(s->sys[i].name) || !(s->sys[i].vlo < s->sys[i].vhi)) return 0;
+  for (size_t i = 0; i < s->nsysv; i++)
+    if (!sys_name_ok(s->sysv[i].name) || s->sysv[i].verdict <= DT_VERDICT_NONE ||
+        s->sysv[i].verdict > DT_VERDICT_UNUSABLE)
+      return 0;
   return 1;
 }
 
@@ -200,7 +253,8 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     return DT_OK;
   case DT_ACT_VERDICT:
     if (a->ival < DT_VERDICT_NONE || a->ival > DT_VERDICT_UNUSABLE) return DT_EINVAL;
-    j->verdict = (dt_verdict)a->ival;
+    if (is_target(a->text)) j->verdict = (dt_verdict)a->ival;
+    else if (set_system_verdict(j, a->text, (dt_verdict)a->ival)) return DT_EINVAL;
     model_change = 0;
     break;
   case DT_ACT_NOTE: {
@@ -258,5 +312,19 @@ int dt_judgement_same(const dt_judgement *a, const dt_judgement *b) {
     if (!same_comp(&a->comp[i], &b->comp[i]) || a->frozen[i] != b->frozen[i]) return 0;
   if (strncmp(a->note, b->note, sizeof a->note) != 0) return 0;
   if (a->has_fit && !dt_fit_result_same(&a->fit, &b->fit)) return 0;
+  return dt_judgement_same_systems(a, b);
+}
+
+int dt_judgement_same_systems(const dt_judgement *a, const dt_judgement *b) {
+  if (a->nsys != b->nsys || a->nsysv != b->nsysv || a->nsys > DT_JUDGE_MAX_SYS ||
+      a->nsysv > DT_JUDGE_MAX_SYS)
+    return 0;
+  for (size_t i = 0; i < a->nsys; i++)
+    if (strcmp(a->sys[i].name, b->sys[i].name) || !same_d(a->sys[i].vlo, b->sys[i].vlo) ||
+        !same_d(a->sys[i].vhi, b->sys[i].vhi))
+      return 0;
+  for (size_t i = 0; i < a->nsysv; i++)
+    if (strcmp(a->sysv[i].name, b->sysv[i].name) || a->sysv[i].verdict != b->sysv[i].verdict)
+      return 0;
   return 1;
 }

@@ -103,9 +103,22 @@ static int record(dt_session *ss, const dt_action *a, const dt_judgement *after,
   if (!dt_session_writable(ss)) return DT_EIO;
   dt_target t = dt_session_journal_target(ss);
   dt_meas_summary m;
-  if (with_meas)
-    dt_meas_summary_from_analysis(ss->an_ok && !ss->an_fallback ? &ss->out : NULL, ss->nsigma,
-                                  ss->has_suggest ? ss->suggested : DT_VERDICT_NONE, &m);
+  if (with_meas) {
+    /* with several systems, the target's own measurements are recorded */
+    const dt_analysis_out *o = ss->an_ok && !ss->an_fallback ? &ss->out : NULL;
+    dt_analysis_out *t = NULL;
+    if (o && ss->systems.n > 1 && ss->has_sysmeas && ss->sysmeas[0].measure_status == DT_OK &&
+        (t = malloc(sizeof *t)) != NULL) {
+      *t = *o;
+      memcpy(t->line, ss->sysmeas[0].line, sizeof t->line);
+      t->meas_vlo = ss->sysmeas[0].mvlo;
+      t->meas_vhi = ss->sysmeas[0].mvhi;
+      t->saturated = dt_systems_saturated(t->line);
+      o = t;
+    }
+    dt_meas_summary_from_analysis(o, ss->nsigma, ss->has_suggest ? ss->suggested : DT_VERDICT_NONE, &m);
+    free(t);
+  }
   dt_err e;
   dt_err_clear(&e);
   int rc = dt_journal_append(ss->jn, &t, a, after, with_meas ? &m : NULL, &e);
@@ -128,8 +141,20 @@ void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
   dt_err_clear(&e);
   if (fit) ss->nfits++;
   int rc = fit ? dt_analysis_run(ss->an, j, &ss->out, &e) : dt_analysis_eval(ss->an, j, &ss->out, &e);
+  ss->has_sysmeas = 0;
   if (rc == DT_OK || (fit && rc == DT_ENOCONV)) {
     ss->an_ok = 1;
+    /* each system measured in this state (components as the analysis has them) */
+    dt_judgement now = *j;
+    now.ncomp = ss->out.fit.ncomp;
+    memcpy(now.comp, ss->out.fit.comp, now.ncomp * sizeof now.comp[0]);
+    for (size_t k = 0; k < ss->systems.n; k++) {
+      dt_system_result *m = &ss->sysmeas[k];
+      memset(m, 0, sizeof *m);
+      m->measure_status = dt_systems_measure(ss->an, &ss->systems, &now, k, m->line, &m->mvlo, &m->mvhi,
+                                             &m->ncomp);
+    }
+    ss->has_sysmeas = ss->systems.n > 0;
     if (rc == DT_ENOCONV) snprintf(ss->an_msg, sizeof ss->an_msg, "the fit did not converge: %s", e.what);
     return;
   }
@@ -553,7 +578,37 @@ int dt_session_verdict(dt_session *ss, dt_verdict v) {
   dt_action a;
   dt_action_init(&a, DT_ACT_VERDICT);
   a.ival = v;
-  return dt_session_apply(ss, &a);
+  if (ss->selsys > 0 && ss->selsys < ss->systems.n) {
+    const char *name = ss->systems.sys[ss->selsys].name;
+    if (ss->jn && dt_journal_version(ss->jn) < 3) {
+      dt_session_say(ss, DT_TONE_WARN,
+                     "this session file (format version %d) holds only the target's verdict: "
+                     "judge %s in a new session file", dt_journal_version(ss->jn), name);
+      return DT_EINVAL;
+    }
+    snprintf(a.text, sizeof a.text, "%s", name);
+  }
+  int rc = dt_session_apply(ss, &a);
+  if (rc == DT_OK && ss->selsys > 0)
+    dt_session_say(ss, DT_TONE_GOOD, "saved: %s %s", a.text, dt_verdict_name(v));
+  return rc;
+}
+
+int dt_session_select_system(dt_session *ss, int step) {
+  size_t n = ss->systems.n;
+  if (n <= 1) {
+    dt_session_say(ss, DT_TONE_WARN, "only the target system here%s%s",
+                   ss->systems.note[0] ? ": " : "", ss->systems.note);
+    return DT_ENOTFOUND;
+  }
+  ss->selsys = (ss->selsys + n + (size_t)(step < 0 ? n - 1 : 1)) % n;
+  const dt_system *y = &ss->systems.sys[ss->selsys];
+  dt_verdict v = dt_judgement_system_verdict(&ss->j, ss->selsys ? y->name : "");
+  dt_session_say(ss, DT_TONE_TEXT, "%s (%.0f..%.0f km/s): verdict %s%s%s", y->name,
+                 y->vlo, y->vhi, v == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(v),
+                 ss->has_sysres ? ", suggested " : "",
+                 ss->has_sysres ? dt_verdict_name(ss->sysres[ss->selsys].suggested) : "");
+  return DT_OK;
 }
 
 int dt_session_note(dt_session *ss, const char *text) {

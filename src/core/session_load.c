@@ -13,6 +13,54 @@ void dt_session_suggest(dt_session *ss, const dt_autofit_out *af) {
   ss->has_suggest = 1;
   ss->suggested = af->suggested;
   snprintf(ss->reason, sizeof ss->reason, "%s", af->reason);
+  /* per system, from the analysis holding the first pass's final state */
+  dt_judgement fin = ss->j;
+  fin.ncomp = af->an.fit.ncomp;
+  memcpy(fin.comp, af->an.fit.comp, fin.ncomp * sizeof fin.comp[0]);
+  int st = af->an.fit_status == DT_ENOCONV ? DT_ENOCONV : DT_OK;
+  ss->has_sysres = 0;
+  if (ss->loaded && ss->systems.n > 0) {
+    dt_systems_results(ss->an, &ss->systems, &fin, af, st, ss->sysres);
+    ss->has_sysres = 1;
+    /* the target's suggestion is the first pass's for the target system */
+    ss->suggested = ss->sysres[0].suggested;
+    snprintf(ss->reason, sizeof ss->reason, "%s", ss->sysres[0].reason);
+  }
+}
+
+/* The systems of a state: recorded with it, else built from the run's and
+ * the list's settings for its rest frame, within its window. */
+static void systems_of_state(dt_session *ss, const dt_session_target *t, int recorded) {
+  dt_system_set *set = &ss->systems;
+  memset(set, 0, sizeof *set);
+  ss->selsys = 0;
+  dt_judgement *j = &ss->j;
+  if (j->nsys > 0) {
+    for (size_t k = 0; k < j->nsys && k < DT_MAX_SYSTEMS; k++) {
+      snprintf(set->sys[k].name, sizeof set->sys[k].name, "%s", j->sys[k].name);
+      set->sys[k].vlo = j->sys[k].vlo;
+      set->sys[k].vhi = j->sys[k].vhi;
+    }
+    set->n = j->nsys < DT_MAX_SYSTEMS ? j->nsys : DT_MAX_SYSTEMS;
+    return;
+  }
+  dt_err e;
+  const dt_doublet *d = dt_atomic_find(ss->atomic, j->doublet);
+  double fw = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms;
+  if (dt_systems_setup(&t->systems, j->vsys, ss->spec, d, fw, recorded || t->has_window, &j->vlo,
+                       &j->vhi, set, &e) != DT_OK) {
+    dt_system_opts plain;
+    dt_system_opts_init(&plain);
+    dt_systems_setup(&plain, j->vsys, ss->spec, d, fw, 1, &j->vlo, &j->vhi, set, &e);
+    dt_session_say(ss, DT_TONE_WARN, "systems: %s", e.what);
+  }
+  if (recorded) return; /* a recorded state keeps its own form */
+  j->nsys = set->n < DT_JUDGE_MAX_SYS ? set->n : DT_JUDGE_MAX_SYS;
+  for (size_t k = 0; k < j->nsys; k++) {
+    snprintf(j->sys[k].name, sizeof j->sys[k].name, "%s", set->sys[k].name);
+    j->sys[k].vlo = set->sys[k].vlo;
+    j->sys[k].vhi = set->sys[k].vhi;
+  }
 }
 
 void dt_session_unload(dt_session *ss) {
@@ -70,18 +118,22 @@ static int read_spectrum(dt_session *ss, const dt_session_target *t) {
 }
 
 /* The recorded state, with a refit checked against the recorded fit. */
-static void resume(dt_session *ss, const dt_journal_entry *en) {
+static void resume(dt_session *ss, const dt_journal_entry *en, const dt_session_target *t) {
   ss->j = en->state;
+  systems_of_state(ss, t, 1);
   ss->file_changed = ss->sha[0] && dt_journal_file_changed(en, ss->sha);
   if (en->has_meas && en->meas.suggested != DT_VERDICT_NONE) {
     ss->has_suggest = 1;
     ss->suggested = en->meas.suggested;
   }
-  if (!ss->has_suggest) {
+  if (!ss->has_suggest || ss->systems.n > 1) {
+    int keep = ss->has_suggest;
+    dt_verdict ks = ss->suggested;
     dt_judgement scratch = ss->j;
     dt_autofit_out af;
     if (dt_autofit_run(ss->an, &scratch, NULL, &af, NULL) == DT_OK || af.suggested != DT_VERDICT_NONE)
       dt_session_suggest(ss, &af);
+    if (keep) ss->suggested = ks; /* the recorded suggestion for the target stands */
   }
   char why[160] = "";
   if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
@@ -106,6 +158,7 @@ void dt_session_target_init(dt_session_target *t, const char *path, const char *
   t->row = row;
   t->name = "";
   dt_judgement_init(&t->initial);
+  dt_system_opts_init(&t->systems);
 }
 
 int dt_session_load(dt_session *ss, const dt_session_target *t) {
@@ -114,6 +167,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
   int rc = read_spectrum(ss, t);
   if (rc != DT_OK) {
     ss->j = en ? en->state : t->initial;
+    systems_of_state(ss, t, en != NULL);
     dt_session_say(ss, DT_TONE_BAD, "cannot read %s", ss->load_msg);
     return rc;
   }
@@ -126,7 +180,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     if (by_id) en = by_id;
   }
   if (en) {
-    resume(ss, en);
+    resume(ss, en, t);
   } else {
     /* first look: the automatic first pass, recorded at the first change */
     ss->j = t->initial;
@@ -134,6 +188,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
       ss->j.resolution = ss->spec->resolution;
       ss->j.fwhm_kms = 0;
     }
+    systems_of_state(ss, t, 0);
     dt_judgement trial = ss->j;
     dt_autofit_out af;
     dt_err_clear(&e);

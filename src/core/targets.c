@@ -26,6 +26,7 @@ struct dt_targets {
 
 void dt_target_spec_init(dt_target_spec *t, const char *path) {
   memset(t, 0, sizeof *t);
+  dt_system_opts_init(&t->systems);
   snprintf(t->path, sizeof t->path, "%s", path ? path : "");
 }
 
@@ -45,7 +46,7 @@ static int parse_num(const char *s, double *out) {
   return 0;
 }
 
-enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_WINDOW, K_AIR, NKEYS };
+enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_WINDOW, K_AIR, K_TWIN, K_SYSTEM, NKEYS };
 
 /* The position and frame fields ra=, dec=, frame=: DT_OK or an error when
  * the key is one of them, -1 when it is not.  Their bits in *seen sit
@@ -82,13 +83,14 @@ static int parse_field(dt_target_spec *t, const char *key, const char *val, long
                        unsigned *seen, dt_err *e) {
   int sky = parse_sky_field(t, key, val, lineno, seen, e);
   if (sky >= 0) return sky;
-  static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "window", "air"};
+  static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "window", "air",
+                                             "target-window", "system"};
   int k = -1;
   for (int i = 0; i < NKEYS; i++)
     if (!strcmp(key, keys[i])) k = i;
   if (k < 0 && !val) return bad(e, lineno, "field '%s' is neither key=value nor the flag air", key);
-  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window ra dec frame, flag air)", key);
-  if (*seen & (1u << k)) return bad(e, lineno, "key '%s' given twice", key);
+  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window target-window system ra dec frame, flag air)", key);
+  if (k != K_SYSTEM && (*seen & (1u << k))) return bad(e, lineno, "key '%s' given twice", key);
   *seen |= 1u << k;
   if (k == K_AIR) {
     if (val) return bad(e, lineno, "air is a flag and takes no value (write just: air)%s", "");
@@ -119,14 +121,29 @@ static int parse_field(dt_target_spec *t, const char *key, const char *val, long
     if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "fwhm must be a positive width in km/s, not '%s'", val);
     t->fwhm_kms = x;
     break;
+  case K_SYSTEM: {
+    /* NAME:VLO:VHI, repeatable: an absorber system of the user */
+    dt_system sy;
+    dt_err se;
+    if (dt_system_parse(val, &sy, &se) != DT_OK || dt_system_opts_add(&t->systems, &sy, &se) != DT_OK)
+      return bad(e, lineno, "system: %s", se.what);
+    break;
+  }
+  case K_TWIN:
   case K_WINDOW: {
     /* VLO:VHI in km/s around the rest frame */
     char lo[64], *colon = strchr(val, ':');
     double hi;
-    if (!colon || (size_t)(colon - val) >= sizeof lo) return bad(e, lineno, "window must be VLO:VHI in km/s, not '%s'", val);
+    if (!colon || (size_t)(colon - val) >= sizeof lo) return bad(e, lineno, k == K_TWIN ? "target-window must be VLO:VHI in km/s, not '%s'" : "window must be VLO:VHI in km/s, not '%s'", val);
     snprintf(lo, sizeof lo, "%.*s", (int)(colon - val), val);
     if (parse_num(lo, &x) || parse_num(colon + 1, &hi) || !(x < hi) || fabs(x) >= 1e5 || fabs(hi) >= 1e5)
-      return bad(e, lineno, "window must be VLO:VHI in km/s with VLO < VHI, not '%s'", val);
+      return bad(e, lineno, k == K_TWIN ? "target-window must be VLO:VHI in km/s with VLO < VHI, not '%s'" : "window must be VLO:VHI in km/s with VLO < VHI, not '%s'", val);
+    if (k == K_TWIN) {
+      t->systems.has_target = 1;
+      t->systems.target_vlo = x;
+      t->systems.target_vhi = hi;
+      break;
+    }
     t->has_window = 1;
     t->vlo = x;
     t->vhi = hi;

@@ -173,6 +173,18 @@ static void cmd_verdict(dt_insp *s, dt_verdict v) {
                 dt_insp_keyname(DT_CMD_NEXT_UNJUDGED, k2, sizeof k2));
     return;
   }
+  size_t sys = s->ss->selsys;
+  if (sys > 0) { /* another system's verdict: the spectrum stays, the target is selected again */
+    char name[DT_SYSTEM_NAME_MAX];
+    snprintf(name, sizeof name, "%s", s->ss->systems.sys[sys].name);
+    if (dt_session_verdict(s->ss, v) == DT_OK) {
+      s->ss->selsys = 0;
+      char ks[16];
+      dt_insp_say(s, DT_TONE_GOOD, "saved: %s %s - the target is selected again (%s selects a system)", name,
+                  dt_verdict_name(v), dt_insp_keyname(DT_CMD_NEXT_SYSTEM, ks, sizeof ks));
+    }
+    return;
+  }
   int was = dt_insp_verdict_of(s, s->cur);
   if (dt_session_verdict(s->ss, v) != DT_OK) {
     if (!s->ss->loaded && v != DT_VERDICT_UNUSABLE) {
@@ -352,6 +364,7 @@ static void judgement_cmd(dt_insp *s, dt_cmd c) {
     if (dt_session_switch_doublet(ss) == DT_OK && strcmp(was, ss->j.doublet)) reset_view(s);
     break;
   }
+  case DT_CMD_NEXT_SYSTEM: dt_session_select_system(s->ss, 1); break;
   case DT_CMD_VERDICT_DETECTED: cmd_verdict(s, DT_VERDICT_DETECTED); break;
   case DT_CMD_VERDICT_NOT_DETECTED: cmd_verdict(s, DT_VERDICT_NOT_DETECTED); break;
   case DT_CMD_VERDICT_UNSURE: cmd_verdict(s, DT_VERDICT_UNSURE); break;

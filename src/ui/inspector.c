@@ -24,6 +24,7 @@
 void dt_inspect_opts_init(dt_inspect_opts *o) {
   memset(o, 0, sizeof *o);
   o->colour = -1;
+  dt_system_opts_init(&o->systems);
 }
 
 int dt_inspect_check(const dt_inspect_opts *o, char *msg, size_t size) {
@@ -152,6 +153,20 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   if (s->q->e[idx].has_pos) t.read.has_pos = 1, t.read.ra = s->q->e[idx].ra, t.read.dec = s->q->e[idx].dec;
   if (s->q->e[idx].frame != DT_FRAME_UNSET) t.read.in_frame = (dt_frame)s->q->e[idx].frame;
   initial_state(s, idx, &t.initial);
+  t.has_window = s->q->e[idx].has_window;
+  t.systems = s->o->systems;
+  { /* the run's settings over the list line's; systems of both */
+    dt_system_opts ls;
+    dt_system_opts_init(&ls);
+    dt_queue_systems(s->q, idx, &ls);
+    if (!t.systems.has_target && ls.has_target) {
+      t.systems.has_target = 1;
+      t.systems.target_vlo = ls.target_vlo;
+      t.systems.target_vhi = ls.target_vhi;
+    }
+    dt_err e;
+    for (size_t k = 0; k < ls.nextra; k++) dt_system_opts_add(&t.systems, &ls.extra[k], &e);
+  }
   if (dt_session_load(s->ss, &t) != DT_OK) {
     char k1[16], k2[16];
     dt_insp_say(s, DT_TONE_BAD, "cannot read %s - %s skips, %s marks it unusable", s->ss->load_msg,

@@ -20,6 +20,7 @@ typedef struct dt_inspect_opts {
   double fwhm_kms;         /* > 0: LSF FWHM [km/s] */
   int has_vsys;
   double vsys;             /* [km/s] */
+  dt_system_opts systems;  /* target range, Milky-Way width, more systems */
   /* screen */
   int colour;              /* -1 auto, 0 never */
   int ascii;               /* 1: no Unicode even in a UTF-8 locale */

@@ -74,6 +74,7 @@ static const dt_keybind table[] = {
     {DT_CMD_VERDICT_NOT_DETECTED, "verdict-not-detected", 'n', "verdict", "not detected, then the next spectrum", 0, NULL},
     {DT_CMD_VERDICT_UNSURE, "verdict-unsure", 'm', "verdict", "unsure (maybe), then the next spectrum", 0, NULL},
     {DT_CMD_VERDICT_UNUSABLE, "verdict-unusable", 'b', "verdict", "bad data, cannot tell; then the next", 0, NULL},
+    {DT_CMD_NEXT_SYSTEM, "next-system", 's', "verdict", "select the next absorber system: the verdict keys judge it", 0, NULL},
     {DT_CMD_EDIT_NOTE, "edit-note", 'e', "verdict", "write a note (Enter keeps it, Esc drops it)", 0, NULL},
     /* queue */
     {DT_CMD_NEXT_SPECTRUM, "next-spectrum", 'j', "queue", "next spectrum of the queue", 0, NULL},

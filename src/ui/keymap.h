@@ -90,6 +90,7 @@ typedef enum dt_cmd {
   DT_CMD_NEXT_UNJUDGED,
   DT_CMD_PREV_UNJUDGED,
   DT_CMD_GOTO_SPECTRUM,
+  DT_CMD_NEXT_SYSTEM,
   DT_CMD__COUNT
 } dt_cmd;
 

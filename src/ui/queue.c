@@ -85,8 +85,22 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   memset(x, 0, sizeof *x);
   char key[8192];
   dt_queue_canonical(q->cwd, t->path, key, sizeof key);
+  char sys[1024] = "";
+  {
+    dt_system_set us;
+    memset(&us, 0, sizeof us);
+    const dt_system_opts *so = &t->systems;
+    if (so->has_target) {
+      snprintf(us.sys[0].name, sizeof us.sys[0].name, "target");
+      us.sys[0].vlo = so->target_vlo;
+      us.sys[0].vhi = so->target_vhi;
+      us.n = 1;
+    }
+    for (size_t k = 0; k < so->nextra && us.n < DT_MAX_SYSTEMS; k++) us.sys[us.n++] = so->extra[k];
+    dt_systems_format(&us, sys, sizeof sys);
+  }
   if (pool_add(q, t->path, &x->path) || pool_add(q, key[0] ? key : t->path, &x->key) ||
-      pool_add(q, t->name, &x->name))
+      pool_add(q, t->name, &x->name) || pool_add(q, sys, &x->systems))
     return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
   x->row = t->row;
   x->line = t->line;
@@ -162,6 +176,24 @@ int dt_queue_add_list(dt_queue *q, const char *list, size_t *nbad,
 const char *dt_queue_path(const dt_queue *q, size_t i) { return q->pool + q->e[i].path; }
 const char *dt_queue_key(const dt_queue *q, size_t i) { return q->pool + q->e[i].key; }
 const char *dt_queue_name(const dt_queue *q, size_t i) { return q->pool + q->e[i].name; }
+
+void dt_queue_systems(const dt_queue *q, size_t i, dt_system_opts *o) {
+  char buf[1024];
+  snprintf(buf, sizeof buf, "%s", q->pool + q->e[i].systems);
+  char *save = NULL;
+  for (char *tok = strtok_r(buf, ";", &save); tok; tok = strtok_r(NULL, ";", &save)) {
+    dt_system y;
+    dt_err e;
+    if (dt_system_parse(tok, &y, &e) != DT_OK) continue; /* checked when the list was read */
+    if (!strcmp(y.name, DT_SYSTEM_TARGET)) {
+      o->has_target = 1;
+      o->target_vlo = y.vlo;
+      o->target_vhi = y.vhi;
+    } else {
+      dt_system_opts_add(o, &y, &e);
+    }
+  }
+}
 
 void dt_queue_split_key(const char *key, char *path, size_t npath, char *doublet, size_t ndoublet) {
   const char *slash = strrchr(key, '/');

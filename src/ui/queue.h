@@ -30,6 +30,9 @@ typedef struct dt_qentry {
   unsigned char has_pos; /* ra=/dec= of the list: */
   double ra, dec;        /*   ICRS [deg] */
   signed char frame;     /* frame= of the list (dt_frame; UNSET = not given) */
+  size_t systems;        /* pool offset: the list line's target-window= and
+                            system= as "target:VLO:VHI;NAME:VLO:VHI;..."
+                            ("target" only when given; "" none) */
   signed char verdict;  /* cached verdict (dt_verdict), -1 = not known yet */
 } dt_qentry;
 
@@ -60,6 +63,8 @@ int dt_queue_add_list(dt_queue *q, const char *list, size_t *nbad,
 const char *dt_queue_path(const dt_queue *q, size_t i);
 const char *dt_queue_key(const dt_queue *q, size_t i);
 const char *dt_queue_name(const dt_queue *q, size_t i);
+/* The list line's systems of entry i into o (after dt_system_opts_init). */
+void dt_queue_systems(const dt_queue *q, size_t i, dt_system_opts *o);
 
 /* Split a session name "FILE#DOUBLET" (as the inspector records targets)
  * into the file and the doublet; without a '#' after the last '/', the

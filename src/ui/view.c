@@ -40,6 +40,7 @@ typedef struct layout {
   int pan_y[2], pan_h;
   int hi_y, hi_h;            /* the 21-cm panel (0 rows: none) */
   int vaxis_y;
+  int sys_y;                /* the systems' bands (-1: none, one system) */
   int gutter, plot_x, plot_w;
   int tab_x, tab_y, tab_w, tab_h;
   int status_y, status_h;   /* a long message takes two rows */
@@ -124,6 +125,9 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
     L->hi_h = rest / 4 < 3 ? 3 : rest / 4;
     rest -= L->hi_h;
   }
+  L->sys_y = -1;
+  int sysrow = s->ss->systems.n > 1 && rest >= 7; /* a row for the systems' bands */
+  rest -= sysrow;
   L->pan_h = rest / 2;
   if (L->ov_h) L->ov_h += rest % 2; /* an odd row goes to the overview */
   L->ov_y = 1;
@@ -132,6 +136,7 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   L->pan_y[1] = L->pan_y[0] + L->pan_h;
   L->hi_y = L->pan_y[1] + L->pan_h;
   L->vaxis_y = L->hi_y + L->hi_h;
+  if (sysrow) L->sys_y = L->vaxis_y++;
   L->plot_x = L->gutter;
   L->plot_w = (side ? L->tab_x - 1 : w) - L->gutter;
 }
@@ -451,6 +456,42 @@ static void draw_vaxis(dt_insp *s, const layout *L, const dt_plot *p, const dt_d
   dt_grid_text(g, L->plot_x + p->w - len, L->vaxis_y, cur, DT_R_LABEL, 0, -1);
 }
 
+/* The absorber systems as bands under the lower panel, each named with its
+ * verdict; the selected one (the one the verdict keys judge) in reverse. */
+static void draw_systems(dt_insp *s, const layout *L, const dt_plot *p) {
+  if (L->sys_y < 0) return;
+  dt_grid *g = &s->g;
+  const dt_system_set *set = &s->ss->systems;
+  dt_grid_printf(g, 0, L->sys_y, DT_R_AXIS, 0, L->gutter - 1, "system");
+  for (size_t k = 0; k < set->n; k++) {
+    const dt_system *y = &set->sys[k];
+    double lo = y->vlo > p->xmin ? y->vlo : p->xmin, hi = y->vhi < p->xmax ? y->vhi : p->xmax;
+    if (!(lo < hi)) continue;
+    int c0 = dt_plot_column(p, lo), c1 = dt_plot_column(p, hi);
+    if (c0 < 0 || c1 < 0) continue;
+    int sel = k == s->ss->selsys;
+    const char *bar = s->utf8 ? (sel ? "\xe2\x94\x81" : "\xe2\x94\x80") : (sel ? "=" : "-");
+    for (int c = c0; c <= c1; c++) dt_grid_text(g, L->plot_x + c, L->sys_y, bar, DT_R_LABEL, sel ? DT_A_BOLD : DT_A_DIM, 1);
+    dt_verdict v = dt_judgement_system_verdict(&s->ss->j, k ? y->name : "");
+    char lab[80];
+    snprintf(lab, sizeof lab, " %s: %s ", y->name, v == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(v));
+    int len = cells(lab), room = c1 - c0 + 1;
+    if (len > room) { /* shorter: the verdict's first three letters, then the name alone */
+      static const char *const short_name[] = {"-", "det", "not", "uns", "bad"};
+      snprintf(lab, sizeof lab, " %s: %s ", y->name, short_name[v >= 0 && v <= 4 ? v : 0]);
+      len = cells(lab);
+    }
+    if (len > room) {
+      snprintf(lab, sizeof lab, " %s ", y->name);
+      len = cells(lab);
+    }
+    int start = c0 + (room - len) / 2;
+    if (start < c0) start = c0;
+    int role = v == DT_VERDICT_DETECTED ? DT_R_GOOD : v == DT_VERDICT_NONE ? DT_R_LABEL : DT_R_WARN;
+    dt_grid_text(g, L->plot_x + start, L->sys_y, lab, role, sel ? DT_A_BOLD | DT_A_REVERSE : 0, room);
+  }
+}
+
 static void draw_panel(dt_insp *s, const layout *L, int l) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
@@ -533,7 +574,10 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
   /* without an analysis the panel says so in its top row: data only */
   if (!pd.from_analysis && l == 0)
     dt_grid_text(g, L->plot_x + 1, gy, " data only: no analysis of this state ", DT_R_WARN, DT_A_REVERSE, p->w - 2);
-  if (l == 1 && !L->hi_h) draw_vaxis(s, L, p, d);
+  if (l == 1 && !L->hi_h) {
+    draw_vaxis(s, L, p, d);
+    draw_systems(s, L, p);
+  }
 }
 
 /* The 21-cm spectrum at the sightline (inspect --hi), on the panels'
@@ -573,6 +617,7 @@ static void draw_hi(dt_insp *s, const layout *L) {
   /* the velocity axis goes under this panel */
   dt_plot_begin(p, s->mode, L->plot_w, 1, s->view_lo, s->view_hi, 0, 1);
   draw_vaxis(s, L, p, d);
+  draw_systems(s, L, p);
 }
 
 /* ------------------------------------------------------------------ table */
@@ -671,9 +716,13 @@ static void draw_table(dt_insp *s, const layout *L) {
                    status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");
   row++;
   /* measurements, one row per line */
+  /* with several systems, the selected system's own measurements */
+  size_t msel = s->ss->selsys;
+  int sysm = s->ss->systems.n > 1 && msel < s->ss->systems.n && s->ss->has_sysmeas;
   for (int l = 0; l < 2; l++) {
-    const dt_analysis_line *m = &s->ss->out.line[l];
-    if (!s->ss->an_ok || s->ss->out.measure_status != 0 || !m->line) {
+    const dt_analysis_line *m = sysm ? &s->ss->sysmeas[msel].line[l] : &s->ss->out.line[l];
+    int mst = sysm ? s->ss->sysmeas[msel].measure_status : s->ss->out.measure_status;
+    if (!s->ss->an_ok || mst != 0 || !m->line) {
       dt_grid_printf(g, x, row++, DT_R_TEXT, DT_A_DIM, maxw, "line %d   no measurement", l + 1);
       continue;
     }
@@ -693,7 +742,7 @@ static void draw_table(dt_insp *s, const layout *L) {
     int n2 = 0;
     if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
     if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
-    const char *sat = m->nsat ? "  saturated px" : l == 1 && s->ss->out.saturated ? "  ratio: saturated" : "";
+    const char *sat = m->nsat ? "  saturated px" : l == 1 && (sysm ? dt_systems_saturated(s->ss->sysmeas[msel].line) : s->ss->out.saturated) ? "  ratio: saturated" : "";
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
     row++;
   }
@@ -711,20 +760,27 @@ static void draw_table(dt_insp *s, const layout *L) {
                      s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
     row++;
   }
-  /* verdicts and note */
+  /* verdicts and note: those of the selected system */
   int vx = x;
-  if (s->ss->has_suggest) {
-    vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw, "suggested ");
-    vx += dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", dt_verdict_name(s->ss->suggested));
-    if (s->ss->reason[0]) vx += dt_grid_printf(g, vx, row, DT_R_TEXT, DT_A_DIM, maxw - (vx - x), " (%s)", s->ss->reason);
+  size_t sel = s->ss->selsys < s->ss->systems.n ? s->ss->selsys : 0;
+  if (sel > 0) /* another system than the target: its name first */
+    vx += dt_grid_printf(g, vx, row, DT_R_LABEL, DT_A_BOLD | DT_A_REVERSE, maxw, "%s", s->ss->systems.sys[sel].name) + 1;
+  int has_sug = s->ss->has_sysres || (s->ss->has_suggest && sel == 0);
+  dt_verdict sug = s->ss->has_sysres && sel > 0 ? s->ss->sysres[sel].suggested : s->ss->suggested;
+  const char *why = s->ss->has_sysres && sel > 0 ? s->ss->sysres[sel].reason : s->ss->reason;
+  if (has_sug) {
+    vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw - (vx - x), "suggested ");
+    vx += dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", dt_verdict_name(sug));
+    if (why[0]) vx += dt_grid_printf(g, vx, row, DT_R_TEXT, DT_A_DIM, maxw - (vx - x), " (%s)", why);
     vx += 3;
   }
-  int vrole = j->verdict == DT_VERDICT_DETECTED ? DT_R_GOOD : j->verdict == DT_VERDICT_NONE ? DT_R_TEXT :
-              j->verdict == DT_VERDICT_UNUSABLE ? DT_R_BAD : DT_R_WARN;
+  dt_verdict vd = dt_judgement_system_verdict(j, sel ? s->ss->systems.sys[sel].name : "");
+  int vrole = vd == DT_VERDICT_DETECTED ? DT_R_GOOD : vd == DT_VERDICT_NONE ? DT_R_TEXT :
+              vd == DT_VERDICT_UNUSABLE ? DT_R_BAD : DT_R_WARN;
   if (vx - x < maxw) vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw - (vx - x), "verdict ");
   if (vx - x < maxw)
     vx += dt_grid_printf(g, vx, row, vrole, DT_A_BOLD, maxw - (vx - x), "%s",
-                         j->verdict == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(j->verdict));
+                         vd == DT_VERDICT_NONE ? "none yet" : dt_verdict_name(vd));
   if (j->note[0] && vx - x + 3 < maxw) {
     vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw - (vx - x), "   note ");
     if (vx - x < maxw) dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", j->note);
@@ -779,10 +835,14 @@ static void draw_status(dt_insp *s, const layout *L) {
   dt_session_tone tone;
   const char *m = status_text(s, sb, sizeof sb, &tone);
   int mlen = cells(m);
-  snprintf(right, sizeof right, " %s/%s/%s/%s verdict  %s note  %s undo  %s help  %s quit ", k[0], k[1], k[2], k[3],
-           kn, ku, kh, kq);
+  char target[64] = "", ksys[16];
+  if (s->ss->selsys > 0 && s->ss->selsys < s->ss->systems.n) /* the target needs no word */
+    snprintf(target, sizeof target, " on %s  %s system ", s->ss->systems.sys[s->ss->selsys].name,
+             keyname_of_cmd(DT_CMD_NEXT_SYSTEM, ksys, sizeof ksys));
+  snprintf(right, sizeof right, " %s/%s/%s/%s verdict%s  %s note  %s undo  %s help  %s quit ", k[0], k[1], k[2],
+           k[3], target, kn, ku, kh, kq);
   if (mlen + (int)strlen(right) + 1 > L->w)
-    snprintf(right, sizeof right, " %s help  %s quit ", kh, kq);
+    snprintf(right, sizeof right, "%s %s help  %s quit ", target, kh, kq);
   int rw = (int)strlen(right);
   int role = dt_view_role_of_tone(tone), attr = role == DT_R_BAD ? DT_A_BOLD : 0;
   if (L->status_h == 2) {

@@ -23,7 +23,7 @@ for ext in csv fits; do
   check "$ext: --force replaces it (exit $?)" sh -c "! cmp -s keep old.$ext && [ -s old.$ext ]"
 done
 check "the replaced CSV is the export (header and two spectra)" \
-  sh -c "head -n 1 old.csv | grep -q '^file,name,hdu,row,verdict' && [ \$(grep -c ',detected,\\|,unsure,' old.csv) -ge 2 ]"
+  sh -c "head -n 1 old.csv | grep -q '^file,name,hdu,row,system,verdict' && [ \$(grep -c ',detected,\\|,unsure,' old.csv) -ge 2 ]"
 
 # a symbolic link at the output name: the link is never followed
 cp keep target

@@ -176,7 +176,7 @@ static void test_round_trip(void) {
   CHECK(dt_journal_open(p, DT_JOURNAL_RW, "Ana Quill", &j, &e) == DT_OK, "create a session");
   size_t n;
   char *txt = slurp(p, &n);
-  CHECK(txt && !strncmp(txt, "doubletty-session 2\t", 20) && txt[n - 1] == '\n',
+  CHECK(txt && !strncmp(txt, "doubletty-session 3\t", 20) && txt[n - 1] == '\n',
         "a new session starts with the versioned header line");
   free(txt);
 
@@ -388,9 +388,9 @@ static void test_damage(void) {
   /* 4. an unknown future version: refused, file untouched */
   char *fut = malloc(n + 1);
   memcpy(fut, orig, n + 1);
-  fut[18] = '3';
+  fut[18] = '4';
   spit(p, fut, n);
-  CHECK(dt_journal_open(p, DT_JOURNAL_RW, "kim", &j, &e) == DT_EVERSION && strstr(e.what, "version 3"),
+  CHECK(dt_journal_open(p, DT_JOURNAL_RW, "kim", &j, &e) == DT_EVERSION && strstr(e.what, "version 4"),
         "future version refused for writing: %s", e.what);
   CHECK(dt_journal_open(p, DT_JOURNAL_READ_ONLY, NULL, &j, &e) == DT_EVERSION, "and for reading");
   size_t n2;
