@@ -125,6 +125,17 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
 int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                      dt_err *e);
 
+/* Measurements of both lines (out[0] the stronger) over the velocity range
+ * [vlo, vhi] km/s relative to the judgement's vsys, each line in its own
+ * frame, against the continuum and the fitted model of the last
+ * dt_analysis_run or dt_analysis_eval (nothing is refitted).  The run's
+ * own measurements (out->line) come from the same code over out->meas_vlo
+ * .. meas_vhi.  Returns DT_OK; DT_EINVAL no run yet or an empty range;
+ * the measurement's error (DT_ERANGE range outside the data, DT_EMASKED)
+ * with out[] NaN.  e may be NULL. */
+int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
+                              dt_err *e);
+
 /* Arrays over the selected pixels (n values) of the last run; NULL before
  * a successful run. */
 const double *dt_analysis_wave(const dt_analysis *a);       /* [Angstrom] */

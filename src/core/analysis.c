@@ -68,6 +68,8 @@ struct dt_analysis {
   size_t i0, n, ncomp;
   dt_component comp[DT_MAX_COMP];
   double fwhm_kms;
+  const dt_doublet *d;        /* doublet, rest frame and window of the last run */
+  double vsys, jvlo, jvhi;
 };
 
 void dt_analysis_opts_init(dt_analysis_opts *o) {
@@ -446,6 +448,73 @@ static void set_continuum(dt_analysis *a, const double *coef, size_t ncoef) {
   }
 }
 
+/* The measurement input over the selection: the spectrum's pixels against
+ * the continuum of the last run. */
+static void measure_input(const dt_analysis *a, dt_measure_input *in) {
+  const dt_spectrum *s = a->s;
+  in->n = a->n;
+  in->wave = s->wave + a->i0;
+  in->flux = s->flux + a->i0;
+  in->sigma = s->sigma + a->i0;
+  in->mask = s->mask + a->i0;
+  in->cont = a->cont;
+  in->cont_err = a->cont_err;
+  in->vsys = a->vsys;
+}
+
+static void measure_opts(const dt_analysis *a, dt_measure_opts *mo) {
+  dt_measure_opts_init(mo);
+  if (a->opts.limit_nsigma > 0) mo->limit_nsigma = a->opts.limit_nsigma;
+}
+
+/* Both lines over [v1, v2] (each in its own frame) against the continuum
+ * and model of the last run: the measurement of dt_analysis_run and
+ * dt_analysis_measure_range alike.  L[l] NaN when it fails. */
+static int measure_lines(dt_analysis *a, double v1, double v2, dt_analysis_line L[2],
+                         int *saturated, dt_err *e) {
+  const dt_doublet *d = a->d;
+  dt_measure_input in;
+  measure_input(a, &in);
+  dt_measure_opts mo;
+  measure_opts(a, &mo);
+  dt_doublet_measure dm;
+  int st = dt_measure_doublet(&in, d, v1, v2, &mo, &dm, e);
+  for (int l = 0; l < 2; l++) {
+    dt_analysis_line *o = &L[l];
+    memset(o, 0, sizeof *o);
+    o->line = &d->line[l];
+    if (st == DT_OK) {
+      const dt_line_measure *m = &dm.line[l];
+      o->W = m->W;
+      o->W_err = m->W_err;
+      o->W_sig = m->signif;
+      o->logN_aod = m->logNa;
+      o->logN_aod_err = m->logNa_err;
+      o->W_limit = m->W_limit;
+      o->logN_limit = m->logN_limit;
+      o->nsat = m->nfloor;
+      o->npix = m->npix;
+    } else {
+      o->W = o->W_err = o->W_sig = o->logN_aod = o->logN_aod_err = NAN;
+      o->W_limit = o->logN_limit = NAN;
+    }
+  }
+  *saturated = st == DT_OK ? dm.saturated : 0;
+  return st;
+}
+
+int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
+                              dt_err *e) {
+  dt_err_clear(e);
+  if (!a || !out) return dt_err_set(e, DT_EINVAL, "measure", "missing argument");
+  if (!a->have_run)
+    return dt_err_set(e, DT_EINVAL, "measure", "no analysis run to measure against");
+  if (!(isfinite(vlo) && isfinite(vhi) && vlo < vhi))
+    return dt_err_set(e, DT_EINVAL, "measure", "empty velocity range [%g, %g] km/s", vlo, vhi);
+  int sat;
+  return measure_lines(a, vlo, vhi, out, &sat, e);
+}
+
 /* Residuals, measurements; the model must be in a->model. */
 static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *comp,
                    size_t ncomp, dt_analysis_out *out) {
@@ -458,6 +527,12 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   a->ncomp = ncomp;
   memcpy(a->comp, comp, ncomp * sizeof comp[0]);
   memset(a->compmod_ok, 0, sizeof a->compmod_ok);
+
+  a->d = out->doublet;
+  a->vsys = j->vsys;
+  a->jvlo = j->vlo;
+  a->jvhi = j->vhi;
+  a->have_run = 1;
 
   /* measurement window */
   double v1 = a->opts.int_vlo, v2 = a->opts.int_vhi;
@@ -481,50 +556,23 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
     if (v2 > j->vhi) v2 = j->vhi;
     if (!(v1 < v2)) { v1 = j->vlo; v2 = j->vhi; }
   }
-  dt_measure_input in;
-  in.n = n;
-  in.wave = s->wave + i0;
-  in.flux = s->flux + i0;
-  in.sigma = s->sigma + i0;
-  in.mask = s->mask + i0;
-  in.cont = a->cont;
-  in.cont_err = a->cont_err;
-  in.vsys = j->vsys;
-  dt_measure_opts mo;
-  dt_measure_opts_init(&mo);
-  if (a->opts.limit_nsigma > 0) mo.limit_nsigma = a->opts.limit_nsigma;
-  const dt_doublet *d = out->doublet;
-  dt_doublet_measure dm;
-  out->measure_status = dt_measure_doublet(&in, d, v1, v2, &mo, &dm, NULL);
   out->meas_vlo = v1;
   out->meas_vhi = v2;
+  out->measure_status = measure_lines(a, v1, v2, out->line, &out->saturated, NULL);
+
+  /* the N_a(v) profile over the whole window, for plots and the first pass */
+  dt_measure_input in;
+  measure_input(a, &in);
+  dt_measure_opts mo;
+  measure_opts(a, &mo);
+  const dt_doublet *d = out->doublet;
   for (int l = 0; l < 2; l++) {
-    dt_analysis_line *L = &out->line[l];
-    L->line = &d->line[l];
-    if (out->measure_status == DT_OK) {
-      const dt_line_measure *m = &dm.line[l];
-      L->W = m->W;
-      L->W_err = m->W_err;
-      L->W_sig = m->signif;
-      L->logN_aod = m->logNa;
-      L->logN_aod_err = m->logNa_err;
-      L->W_limit = m->W_limit;
-      L->logN_limit = m->logN_limit;
-      L->nsat = m->nfloor;
-      L->npix = m->npix;
-    } else {
-      L->W = L->W_err = L->W_sig = L->logN_aod = L->logN_aod_err = NAN;
-      L->W_limit = L->logN_limit = NAN;
-    }
-    /* the N_a(v) profile over the whole window, for plots and the first pass */
     dt_line_measure pm;
     if (dt_measure_line(&in, &d->line[l], j->vlo, j->vhi, &mo, &pm, a->na[l], a->na_err[l],
                         NULL) != DT_OK) {
       for (size_t i = 0; i < n; i++) a->na[l][i] = a->na_err[l][i] = NAN;
     }
   }
-  out->saturated = out->measure_status == DT_OK ? dm.saturated : 0;
-  a->have_run = 1;
 }
 
 /* Fitted parameters counted for BIC and dof when nothing is fitted. */

@@ -1,0 +1,115 @@
+/* Measurements over a velocity range against the last analysis run
+ * (dt_analysis_measure_range): windows, the other line of the doublet,
+ * masked pixels, upper limits.  Synthetic spectra made here (dt_model_eval
+ * times a known continuum plus Gaussian noise; fixed seeds).
+ *
+ * External references: Na I atomic data, Morton (2003, ApJS 149, 205); the
+ * linear curve of growth W = pi e^2/(m_e c^2) N f lambda^2 = 8.85e-13 N f
+ * lambda^2 [A, cm] (Spitzer 1978, Physical Processes in the Interstellar
+ * Medium, eq. 3-48) for an optically thin line. */
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "doubletty/analysis.h"
+#include "doubletty/atomic.h"
+#include "doubletty/model.h"
+#include "harness.h"
+
+static const char table[] =
+    "NaI 5891.5833 0.6408 6.16e7 5897.5581 0.3201 6.14e7 Morton (2003) ApJS 149, 205\n";
+
+/* Rest-frame W [A] of an optically thin line (Spitzer 1978, eq. 3-48). */
+static double thin_W(double logN, double f, double lam) {
+  return 8.85e-13 * pow(10.0, logN) * f * (lam * 1e-8) * lam;
+}
+
+/* A spectrum over [lo, hi) with pixels of dl, resolution R, components c,
+ * flat continuum 100, S/N snr (rng NULL: no noise). */
+static dt_spectrum *make(const dt_atomic *t, double lo, double hi, double dl, double R,
+                         const dt_component *c, size_t nc, double snr, gsl_rng *rng) {
+  size_t n = (size_t)((hi - lo) / dl);
+  dt_spectrum *s = dt_spectrum_alloc(n);
+  for (size_t i = 0; i < n; i++) s->wave[i] = lo + dl * (double)i;
+  dt_model_config cfg;
+  memset(&cfg, 0, sizeof cfg);
+  cfg.doublet = dt_atomic_find(t, "NaI");
+  cfg.resolution = R;
+  dt_model *m = dt_model_alloc(s->wave, n, &cfg, DT_MAX_COMP, NULL);
+  dt_model_eval(m, c, nc, s->flux, NULL, 0);
+  dt_model_free(m);
+  for (size_t i = 0; i < n; i++) {
+    s->sigma[i] = 100.0 / snr;
+    s->flux[i] = 100.0 * s->flux[i] + (rng ? gsl_ran_gaussian(rng, s->sigma[i]) : 0.0);
+    s->mask[i] = 0;
+  }
+  s->has_sigma = 1;
+  return s;
+}
+
+static void judgement(dt_judgement *j, double R) {
+  dt_judgement_init(j);
+  strcpy(j->doublet, "NaI");
+  j->resolution = R;
+  j->vlo = -600;
+  j->vhi = 600;
+  j->cont_order = 0;
+}
+
+/* The interface: the run's measurement is the range's; a range away from
+ * the gas measures nothing; errors for a range before a run or empty. */
+static void test_interface(const dt_atomic *t, gsl_rng *rng) {
+  dt_component truth[1] = {{11.5, 6.0, 40.0}};
+  dt_spectrum *s = make(t, 5850, 5940, 0.05, 40000, truth, 1, 200, rng);
+  dt_analysis *a = dt_analysis_alloc(s, t);
+  dt_analysis_line L[2];
+  dt_err e;
+  CHECK(dt_analysis_measure_range(a, -50, 50, L, &e) == DT_EINVAL,
+        "a range before any run is refused (%s)", e.what);
+  dt_judgement j;
+  judgement(&j, 40000);
+  j.ncomp = 1;
+  j.comp[0] = (dt_component){11.4, 8.0, 35.0};
+  dt_analysis_out o;
+  int st = dt_analysis_run(a, &j, &o, &e);
+  CHECK(st == DT_OK, "run (%s)", e.what);
+  st = dt_analysis_measure_range(a, o.meas_vlo, o.meas_vhi, L, &e);
+  CHECK(st == DT_OK, "range measured (%s)", e.what);
+  for (int l = 0; l < 2; l++) {
+    CHECK(L[l].W == o.line[l].W && L[l].W_err == o.line[l].W_err &&
+              L[l].logN_aod == o.line[l].logN_aod,
+          "line %d: the run's measurement is the range's (%g vs %g)", l, L[l].W, o.line[l].W);
+  }
+  st = dt_analysis_measure_range(a, -20, 100, L, &e);
+  CHECK(st == DT_OK, "a wider range measured");
+  for (int l = 0; l < 2; l++) {
+    double want = thin_W(11.5, L[l].line->f, L[l].line->lambda0);
+    CHECK(fabs(L[l].W - want) < 3 * L[l].W_err + 0.02 * want,
+          "line %d: W %.2f +- %.2f mA vs the linear curve of growth %.2f mA (Spitzer 1978)",
+          l, 1e3 * L[l].W, 1e3 * L[l].W_err, 1e3 * want);
+  }
+  st = dt_analysis_measure_range(a, -250, -150, L, &e);
+  CHECK(st == DT_OK && fabs(L[0].W) < 3.5 * L[0].W_err,
+        "a range away from the gas: W %.2f +- %.2f mA", 1e3 * L[0].W, 1e3 * L[0].W_err);
+  CHECK(dt_analysis_measure_range(a, 50, 50, L, &e) == DT_EINVAL, "an empty range is refused");
+  CHECK(dt_analysis_measure_range(a, 50, NAN, L, &e) == DT_EINVAL, "a NaN range is refused");
+  dt_analysis_free(a);
+  dt_spectrum_free(s);
+}
+
+int main(void) {
+  dt_atomic *t = dt_atomic_new();
+  dt_err e;
+  if (dt_atomic_parse(t, table, sizeof table - 1, &e) != DT_OK) {
+    printf("atomic table: %s\n", e.what);
+    return 1;
+  }
+  gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(rng, 9091);
+  test_interface(t, rng);
+  gsl_rng_free(rng);
+  dt_atomic_free(t);
+  return dt_test_done();
+}
