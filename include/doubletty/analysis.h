@@ -36,6 +36,10 @@
 #include "doubletty/status.h"
 
 #define DT_ANALYSIS_CONT_MARGIN 1500.0  /* km/s */
+/* Doppler parameter assumed for column-density limits [km/s]: cold gas.  A
+ * smaller b puts a given W further up the curve of growth (a larger N), so
+ * the limit of gas broader than this is conservative. */
+#define DT_ANALYSIS_LIMIT_B 2.0
 
 typedef struct dt_analysis_opts {
   size_t joint_cont;    /* 0: the continuum is fixed during the fit; k > 0:
@@ -44,6 +48,7 @@ typedef struct dt_analysis_opts {
   int oversample;       /* model sub-samples per pixel (0: model default) */
   double tau_cut;       /* model wing truncation (0: model default) */
   double limit_nsigma;  /* significance of upper limits (default 3) */
+  double limit_b;       /* b [km/s] of column limits (default DT_ANALYSIS_LIMIT_B) */
   double int_vlo, int_vhi; /* measurement (integration) window [km/s];
                               int_vlo >= int_vhi: the judgement's vlo..vhi */
   double cont_margin_kms; /* automatic continuum: fitted over the selection
@@ -69,12 +74,27 @@ typedef struct dt_analysis_line {
   double logN_aod;          /* log10 apparent column density N_a [cm^-2]
                                (Savage & Sembach 1991); NaN if N_a <= 0 */
   double logN_aod_err;      /* its 1-sigma error [dex] */
-  double W_limit;           /* limit_nsigma * W_err [Angstrom] */
-  double logN_limit;        /* log10 N upper limit from W_limit on the linear
-                               curve of growth */
+  double W_limit;           /* upper limit on W anywhere in the range
+                               (dt_measure_limit in measure.h) [Angstrom] */
+  double v_limit;           /* the velocity where the limit is set [km/s] */
+  double logN_limit;        /* log10 N [cm^-2] of W_limit on the full curve
+                               of growth (cog.h) at b = opts.limit_b */
   size_t nsat;              /* saturated pixels in the window */
   size_t npix;              /* pixels in the window */
+  double masked_frac;       /* fraction of the window's pixels masked (or
+                               unusable), filled from the fitted model */
+  int blend;                /* DT_BLEND_*: the other line of the doublet in
+                               this line's window */
+  double blend_frac;        /* fraction of the window's pixels taken from
+                               the model because the other line is black */
 } dt_analysis_line;
+
+enum {
+  DT_BLEND_NONE = 0,        /* the other line's model absorbs < 1% here */
+  DT_BLEND_DIVIDED,         /* its fitted absorption was divided out */
+  DT_BLEND_MODEL            /* it transmits < 50% somewhere: those pixels
+                               come from this line's own fitted model */
+};
 
 typedef struct dt_analysis_out {
   const dt_doublet *doublet;

@@ -19,6 +19,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/cog.h"
 #include "doubletty/continuum.h"
 #include "doubletty/legendre.h"
 #include "doubletty/measure.h"
@@ -70,11 +71,27 @@ struct dt_analysis {
   double fwhm_kms;
   const dt_doublet *d;        /* doublet, rest frame and window of the last run */
   double vsys, jvlo, jvhi;
+  /* each line alone: its transmission under the last components, and the
+   * line as measured (the other line divided out, gaps filled) */
+  double *ltr[2], *lflux[2], *lsig[2];
+  int have_ltr, have_sm;
+  model_key smkey;
+  dt_doublet sd[2];
+  dt_model *sm[2];
+  struct {
+    const dt_line *line;
+    double W, b, logN;
+  } cog_cache[2];
 };
+
+#define BLEND_T 0.5       /* the other line transmits less: the pixel is taken
+                             from the line's own model */
+#define BLEND_DEPTH 0.01  /* the other line's model is this deep: divided out */
 
 void dt_analysis_opts_init(dt_analysis_opts *o) {
   memset(o, 0, sizeof *o);
   o->limit_nsigma = 3.0;
+  o->limit_b = DT_ANALYSIS_LIMIT_B;
   o->cont_margin_kms = DT_ANALYSIS_CONT_MARGIN;
 }
 
@@ -98,7 +115,10 @@ static void free_buffers(dt_analysis *a) {
     free(a->vel[l]);
     free(a->na[l]);
     free(a->na_err[l]);
-    a->vel[l] = a->na[l] = a->na_err[l] = NULL;
+    free(a->ltr[l]);
+    free(a->lflux[l]);
+    free(a->lsig[l]);
+    a->vel[l] = a->na[l] = a->na_err[l] = a->ltr[l] = a->lflux[l] = a->lsig[l] = NULL;
   }
   free(a->cont_fixed); free(a->cont_err); free(a->cont); free(a->model);
   free(a->resid); free(a->poly); free(a->tmp); free(a->used); free(a->fitmask);
@@ -115,6 +135,8 @@ void dt_analysis_free(dt_analysis *a) {
   free(a->rcont);
   free(a->rerr);
   dt_model_free(a->m);
+  dt_model_free(a->sm[0]);
+  dt_model_free(a->sm[1]);
   dt_fit_free(a->fw);
   dt_cont_free(a->cw);
   free(a);
@@ -137,6 +159,9 @@ static int ensure_cap(dt_analysis *a, size_t n) {
     GET(a->vel[l], n);
     GET(a->na[l], n);
     GET(a->na_err[l], n);
+    GET(a->ltr[l], n);
+    GET(a->lflux[l], n);
+    GET(a->lsig[l], n);
   }
   GET(a->cont_fixed, n); GET(a->cont_err, n); GET(a->cont, n); GET(a->model, n);
   GET(a->resid, n); GET(a->poly, n); GET(a->tmp, n); GET(a->used, n); GET(a->fitmask, n);
@@ -467,40 +492,183 @@ static void measure_opts(const dt_analysis *a, dt_measure_opts *mo) {
   if (a->opts.limit_nsigma > 0) mo->limit_nsigma = a->opts.limit_nsigma;
 }
 
+/* The transmission of each line alone under the last run's components
+ * (a->ltr[l], normalised, through the LSF): models of the doublet with the
+ * other line's f scaled to nothing, built when first needed and kept with
+ * the main model.  1 everywhere without components. */
+static int single_line_models(dt_analysis *a) {
+  if (a->have_ltr) return DT_OK;
+  const size_t n = a->n;
+  if (a->ncomp == 0) {
+    for (int l = 0; l < 2; l++)
+      for (size_t i = 0; i < n; i++) a->ltr[l][i] = 1.0;
+    a->have_ltr = 1;
+    return DT_OK;
+  }
+  if (!a->have_sm || memcmp(&a->smkey, &a->mkey, sizeof a->mkey) != 0) {
+    for (int l = 0; l < 2; l++) {
+      dt_model_free(a->sm[l]);
+      a->sm[l] = NULL;
+    }
+    a->have_sm = 0;
+    for (int l = 0; l < 2; l++) {
+      a->sd[l] = *a->d;
+      a->sd[l].line[1 - l].f *= 1e-30;
+      dt_model_config cfg;
+      memset(&cfg, 0, sizeof cfg);
+      cfg.doublet = &a->sd[l];
+      cfg.vsys = a->mkey.vsys;
+      cfg.resolution = a->mkey.resolution;
+      cfg.fwhm_kms = a->mkey.fwhm;
+      cfg.oversample = a->opts.oversample;
+      cfg.tau_cut = a->opts.tau_cut;
+      a->sm[l] = dt_model_alloc(a->s->wave + a->i0, n, &cfg, DT_MAX_COMP, NULL);
+      if (!a->sm[l]) return DT_ENOMEM;
+    }
+    a->smkey = a->mkey;
+    a->have_sm = 1;
+  }
+  for (int l = 0; l < 2; l++)
+    if (dt_model_eval(a->sm[l], a->comp, a->ncomp, a->ltr[l], NULL, 0) != DT_OK)
+      return DT_EINVAL;
+  a->have_ltr = 1;
+  return DT_OK;
+}
+
+/* log10 N of the limit on the curve of growth at the assumed b, cached:
+ * the runs of a first pass measure the same limit again and again. */
+static double limit_logN(dt_analysis *a, int l, double W) {
+  if (!(W > 0)) return NAN;
+  double b = a->opts.limit_b > 0 ? a->opts.limit_b : DT_ANALYSIS_LIMIT_B;
+  const dt_line *ln = &a->d->line[l];
+  if (a->cog_cache[l].line == ln && a->cog_cache[l].W == W && a->cog_cache[l].b == b)
+    return a->cog_cache[l].logN;
+  double r = dt_cog_logN(ln, W, b);
+  a->cog_cache[l].line = ln;
+  a->cog_cache[l].W = W;
+  a->cog_cache[l].b = b;
+  a->cog_cache[l].logN = r;
+  return r;
+}
+
+/* Line l as the measurement sees it: the other line's fitted absorption
+ * divided out -- flux and sigma times T_l / T, T the whole model's
+ * transmission (model / continuum); without an LSF that is 1 / T_other,
+ * and with one it returns exactly the line's own model where the data
+ * follow the model -- and taken from the line's own model
+ * (continuum * T_l) where the data cannot say: masked or unusable pixels,
+ * and pixels where the other line's model transmits less than BLEND_T.
+ * Counts over the pixels whose centres lie in [v1, v2]. */
+static void line_view(dt_analysis *a, int l, double v1, double v2, dt_analysis_line *L) {
+  const dt_spectrum *s = a->s;
+  const size_t n = a->n, i0 = a->i0;
+  const double *To = a->ltr[1 - l], *Tl = a->ltr[l];
+  double *F = a->lflux[l], *S = a->lsig[l];
+  /* the noise of a filled pixel: the mean sigma of the usable ones near */
+  double ssum = 0;
+  size_t sn = 0;
+  for (size_t i = 0; i < n; i++)
+    if (a->used[i] || (!s->mask[i0 + i] && s->sigma[i0 + i] > 0 && isfinite(s->sigma[i0 + i]))) {
+      ssum += s->sigma[i0 + i];
+      sn++;
+    }
+  double sfill = sn ? ssum / (double)sn : 1.0;
+  size_t nwin = 0, nmask = 0, nblend = 0, ndiv = 0;
+  for (size_t i = 0; i < n; i++) {
+    double f = s->flux[i0 + i], sg = s->sigma[i0 + i], C = a->cont[i];
+    int bad = s->mask[i0 + i] || !isfinite(f) || !(sg > 0) || !isfinite(sg);
+    double v = a->vel[l][i];
+    int in = v >= v1 && v <= v2;
+    nwin += (size_t)in;
+    if (bad) {
+      F[i] = C * Tl[i];
+      S[i] = isfinite(sg) && sg > 0 ? sg : sfill;
+      nmask += (size_t)in;
+    } else if (To[i] < BLEND_T) {
+      F[i] = C * Tl[i];
+      S[i] = sg;
+      nblend += (size_t)in;
+    } else if (To[i] < 1.0) {
+      double T = a->model[i] / C, q = T > 0 ? Tl[i] / T : 1.0 / To[i];
+      F[i] = f * q;
+      S[i] = sg * q;
+      if (in && To[i] < 1.0 - BLEND_DEPTH) ndiv++;
+    } else {
+      F[i] = f;
+      S[i] = sg;
+    }
+  }
+  L->masked_frac = nwin ? (double)nmask / (double)nwin : 0.0;
+  L->blend_frac = nwin ? (double)nblend / (double)nwin : 0.0;
+  L->blend = nblend ? DT_BLEND_MODEL : ndiv ? DT_BLEND_DIVIDED : DT_BLEND_NONE;
+}
+
 /* Both lines over [v1, v2] (each in its own frame) against the continuum
  * and model of the last run: the measurement of dt_analysis_run and
- * dt_analysis_measure_range alike.  L[l] NaN when it fails. */
+ * dt_analysis_measure_range alike.  Each line is measured on its view
+ * (line_view): the other line of the doublet removed by the fitted model,
+ * masked pixels filled from it.  L[l] NaN when it fails. */
 static int measure_lines(dt_analysis *a, double v1, double v2, dt_analysis_line L[2],
                          int *saturated, dt_err *e) {
   const dt_doublet *d = a->d;
-  dt_measure_input in;
-  measure_input(a, &in);
   dt_measure_opts mo;
   measure_opts(a, &mo);
-  dt_doublet_measure dm;
-  int st = dt_measure_doublet(&in, d, v1, v2, &mo, &dm, e);
+  int st = single_line_models(a);
+  if (st != DT_OK) {
+    *saturated = 0;
+    for (int l = 0; l < 2; l++) {
+      memset(&L[l], 0, sizeof L[l]);
+      L[l].line = &d->line[l];
+      L[l].W = L[l].W_err = L[l].W_sig = L[l].logN_aod = L[l].logN_aod_err = NAN;
+      L[l].W_limit = L[l].logN_limit = L[l].v_limit = NAN;
+    }
+    return dt_err_set(e, st, "measure", "the single-line models cannot be evaluated");
+  }
+  double fw = a->fwhm_kms, bl = a->opts.limit_b > 0 ? a->opts.limit_b : DT_ANALYSIS_LIMIT_B;
+  double pix = fabs(a->vel[0][a->n - 1] - a->vel[0][0]) / (double)(a->n - 1);
+  /* the box of the limit: +- the FWHM of a line of b = limit_b seen
+   * through the LSF (Gaussian widths in quadrature; 2 sqrt(ln 2) b is the
+   * FWHM of the Doppler profile), at least 1.5 pixels */
+  double hw = fmax(sqrt(fw * fw + 4.0 * log(2.0) * bl * bl), 1.5 * pix);
+  dt_line_measure m[2];
+  int status = DT_OK;
   for (int l = 0; l < 2; l++) {
     dt_analysis_line *o = &L[l];
     memset(o, 0, sizeof *o);
     o->line = &d->line[l];
-    if (st == DT_OK) {
-      const dt_line_measure *m = &dm.line[l];
-      o->W = m->W;
-      o->W_err = m->W_err;
-      o->W_sig = m->signif;
-      o->logN_aod = m->logNa;
-      o->logN_aod_err = m->logNa_err;
-      o->W_limit = m->W_limit;
-      o->logN_limit = m->logN_limit;
-      o->nsat = m->nfloor;
-      o->npix = m->npix;
+    line_view(a, l, v1, v2, o);
+    dt_measure_input in;
+    measure_input(a, &in);
+    in.flux = a->lflux[l];
+    in.sigma = a->lsig[l];
+    in.mask = NULL;
+    int sl = dt_measure_line(&in, &d->line[l], v1, v2, &mo, &m[l], NULL, NULL,
+                             status == DT_OK ? e : NULL);
+    if (sl == DT_OK) {
+      o->W = m[l].W;
+      o->W_err = m[l].W_err;
+      o->W_sig = m[l].signif;
+      o->logN_aod = m[l].logNa;
+      o->logN_aod_err = m[l].logNa_err;
+      o->nsat = m[l].nfloor;
+      o->npix = m[l].npix;
+      double wl, vat;
+      if (dt_measure_limit(&in, &d->line[l], v1, v2, hw, mo.limit_nsigma, &wl, &vat, NULL) ==
+          DT_OK) {
+        o->W_limit = wl;
+        o->v_limit = vat;
+        o->logN_limit = limit_logN(a, l, wl);
+      } else {
+        o->W_limit = o->v_limit = o->logN_limit = NAN;
+      }
     } else {
+      if (status == DT_OK) status = sl;
       o->W = o->W_err = o->W_sig = o->logN_aod = o->logN_aod_err = NAN;
-      o->W_limit = o->logN_limit = NAN;
+      o->W_limit = o->logN_limit = o->v_limit = NAN;
     }
   }
-  *saturated = st == DT_OK ? dm.saturated : 0;
-  return st;
+  *saturated = status == DT_OK ? dt_measure_saturated(&m[0], &m[1], d, &mo) : 0;
+  return status;
 }
 
 int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
@@ -528,6 +696,7 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   memcpy(a->comp, comp, ncomp * sizeof comp[0]);
   memset(a->compmod_ok, 0, sizeof a->compmod_ok);
 
+  a->have_ltr = 0;
   a->d = out->doublet;
   a->vsys = j->vsys;
   a->jvlo = j->vlo;

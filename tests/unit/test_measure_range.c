@@ -15,6 +15,7 @@
 
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
+#include "doubletty/cog.h"
 #include "doubletty/model.h"
 #include "harness.h"
 
@@ -99,6 +100,103 @@ static void test_interface(const dt_atomic *t, gsl_rng *rng) {
   dt_spectrum_free(s);
 }
 
+/* Expected rest W of line l of components c (no overlap between them):
+ * the curve of growth (cog.h, checked against SciPy in cog_scipy.sh). */
+static double want_W(const dt_line *l, const dt_component *c, size_t nc) {
+  double w = 0;
+  for (size_t k = 0; k < nc; k++) w += dt_cog_W(l, c[k].logN, c[k].b);
+  return w;
+}
+
+/* Each line's window excludes the other line: components at -150 and +150
+ * km/s put the weaker line's -150 component inside the stronger line's
+ * window (Na I: 304 km/s apart).  Noise-free spectrum, fitted model = truth. */
+static void test_other_line(const dt_atomic *t) {
+  dt_component truth[2] = {{11.6, 5.0, -150.0}, {11.4, 6.0, 150.0}};
+  dt_spectrum *s = make(t, 5850, 5940, 0.05, 40000, truth, 2, 300, NULL);
+  dt_analysis *a = dt_analysis_alloc(s, t);
+  dt_judgement j;
+  judgement(&j, 40000);
+  j.ncomp = 2;
+  memcpy(j.comp, truth, sizeof truth);
+  dt_analysis_out o;
+  dt_err e;
+  int st = dt_analysis_eval(a, &j, &o, &e);
+  CHECK(st == DT_OK, "evaluated (%s)", e.what);
+  dt_analysis_line L[2];
+  st = dt_analysis_measure_range(a, -200, 200, L, &e);
+  CHECK(st == DT_OK, "measured -200..200 km/s");
+  for (int l = 0; l < 2; l++) {
+    double w = want_W(L[l].line, truth, 2);
+    CHECK_REL(L[l].W, w, 0.01, "%s: W %.2f mA = both components' %.2f mA, nothing of the "
+              "other line", L[l].line->label, 1e3 * L[l].W, 1e3 * w);
+    CHECK(L[l].blend == DT_BLEND_DIVIDED, "%s: the other line divided out (blend %d)",
+          L[l].line->label, L[l].blend);
+    CHECK(L[l].masked_frac == 0.0, "%s: nothing masked", L[l].line->label);
+  }
+  CHECK(!o.saturated, "thin gas is not flagged saturated");
+  /* a range away from the other line's image: nothing to divide */
+  st = dt_analysis_measure_range(a, -200, -100, L, &e);
+  CHECK(st == DT_OK && L[0].blend == DT_BLEND_NONE, "-200..-100 km/s: the stronger line's "
+        "window holds nothing of the weaker (blend %d)", L[0].blend);
+  dt_analysis_free(a);
+  dt_spectrum_free(s);
+
+  /* a black stronger line (+150 km/s, seen at -154 km/s from the weaker
+   * line) on the weaker line's -150 km/s component: blended */
+  dt_component deep[2] = {{11.4, 6.0, -150.0}, {13.5, 4.0, 150.0}};
+  s = make(t, 5850, 5940, 0.05, 40000, deep, 2, 300, NULL);
+  a = dt_analysis_alloc(s, t);
+  memcpy(j.comp, deep, sizeof deep);
+  st = dt_analysis_eval(a, &j, &o, &e);
+  st = dt_analysis_measure_range(a, -200, 200, L, &e);
+  CHECK(st == DT_OK && L[1].blend == DT_BLEND_MODEL && L[1].blend_frac > 0,
+        "a black line in the other's window: blended, %.1f%% of the window from the model",
+        100 * L[1].blend_frac);
+  double w = want_W(L[1].line, deep, 2);
+  CHECK_REL(L[1].W, w, 0.01, "%s: W %.2f mA vs %.2f mA", L[1].line->label, 1e3 * L[1].W,
+            1e3 * w);
+  dt_analysis_free(a);
+  dt_spectrum_free(s);
+}
+
+/* Masked pixels in the window are filled from the fitted model and counted;
+ * W does not shrink. */
+static void test_masked(const dt_atomic *t, gsl_rng *rng) {
+  dt_component truth[1] = {{11.8, 4.0, 0.0}};
+  dt_spectrum *s = make(t, 5850, 5940, 0.05, 40000, truth, 1, 100, rng);
+  dt_analysis *a = dt_analysis_alloc(s, t);
+  dt_judgement j;
+  judgement(&j, 40000);
+  j.ncomp = 1;
+  j.comp[0] = truth[0];
+  dt_analysis_out o;
+  dt_err e;
+  dt_analysis_run(a, &j, &o, &e);
+  dt_analysis_line ref[2], L[2];
+  dt_analysis_measure_range(a, -30, 30, ref, &e);
+  /* mask the two deepest pixels of the stronger line */
+  double lam = dt_wavelength(0.0, 5891.5833, 0.0);
+  size_t c = dt_spectrum_index(s, lam);
+  s->mask[c] = s->mask[c + 1] = 1;
+  j.comp[0] = o.fit.comp[0];
+  dt_analysis_run(a, &j, &o, &e);
+  int st = dt_analysis_measure_range(a, -30, 30, L, &e);
+  CHECK(st == DT_OK, "measured with masked pixels");
+  CHECK(fabs(L[0].W - ref[0].W) < 0.5 * ref[0].W_err,
+        "two masked core pixels: W %.2f mA vs %.2f +- %.2f unmasked", 1e3 * L[0].W,
+        1e3 * ref[0].W, 1e3 * ref[0].W_err);
+  size_t npix = 0;
+  for (size_t i = 0; i < s->n; i++) {
+    double v = dt_velocity(s->wave[i], 5891.5833, 0.0);
+    npix += v >= -30 && v <= 30;
+  }
+  CHECK_CLOSE(L[0].masked_frac, 2.0 / (double)npix, 1e-12, "masked fraction 2/%zu", npix);
+  CHECK(L[1].masked_frac == 0.0, "the weaker line's window has none");
+  dt_analysis_free(a);
+  dt_spectrum_free(s);
+}
+
 int main(void) {
   dt_atomic *t = dt_atomic_new();
   dt_err e;
@@ -109,6 +207,8 @@ int main(void) {
   gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
   gsl_rng_set(rng, 9091);
   test_interface(t, rng);
+  test_other_line(t);
+  test_masked(t, rng);
   gsl_rng_free(rng);
   dt_atomic_free(t);
   return dt_test_done();
