@@ -18,6 +18,10 @@
  * [i0, i0 + n) of the spectrum (out->i0, out->n), and stay valid until the
  * next run or dt_analysis_free.
  *
+ * Upper limits (W_limit, logN_limit): over the measurement window when
+ * one is given in the options, otherwise over the judgement's whole
+ * window [vlo, vhi] (where absorption may be); dt_analysis_measure_range
+ * over its range.
  * Measurement window: opts.int_vlo..int_vhi when given; otherwise, with
  * components, from the lowest v - (2b + FWHM) to the highest v + (2b + FWHM)
  * (FWHM of the LSF in km/s), and without components +-max(FWHM, 3 pixels)
@@ -40,6 +44,10 @@
  * smaller b puts a given W further up the curve of growth (a larger N), so
  * the limit of gas broader than this is conservative. */
 #define DT_ANALYSIS_LIMIT_B 2.0
+/* The box over which limits are measured is +- the FWHM of a line of this
+ * b [km/s] seen through the LSF (measure.h, dt_measure_limit): it holds
+ * >= 98% of the W of lines up to this b. */
+#define DT_ANALYSIS_LIMIT_BOX_B 10.0
 
 typedef struct dt_analysis_opts {
   size_t joint_cont;    /* 0: the continuum is fixed during the fit; k > 0:

@@ -603,13 +603,13 @@ static void line_view(dt_analysis *a, int l, double v1, double v2, dt_analysis_l
   L->blend = nblend ? DT_BLEND_MODEL : ndiv ? DT_BLEND_DIVIDED : DT_BLEND_NONE;
 }
 
-/* Both lines over [v1, v2] (each in its own frame) against the continuum
- * and model of the last run: the measurement of dt_analysis_run and
- * dt_analysis_measure_range alike.  Each line is measured on its view
+/* Both lines over [v1, v2] (each in its own frame), their limits over
+ * [l1, l2], against the continuum and model of the last run: the
+ * measurement of dt_analysis_run and dt_analysis_measure_range alike.  Each line is measured on its view
  * (line_view): the other line of the doublet removed by the fitted model,
  * masked pixels filled from it.  L[l] NaN when it fails. */
-static int measure_lines(dt_analysis *a, double v1, double v2, dt_analysis_line L[2],
-                         int *saturated, dt_err *e) {
+static int measure_lines(dt_analysis *a, double v1, double v2, double l1, double l2,
+                         dt_analysis_line L[2], int *saturated, dt_err *e) {
   const dt_doublet *d = a->d;
   dt_measure_opts mo;
   measure_opts(a, &mo);
@@ -624,11 +624,12 @@ static int measure_lines(dt_analysis *a, double v1, double v2, dt_analysis_line 
     }
     return dt_err_set(e, st, "measure", "the single-line models cannot be evaluated");
   }
-  double fw = a->fwhm_kms, bl = a->opts.limit_b > 0 ? a->opts.limit_b : DT_ANALYSIS_LIMIT_B;
+  double fw = a->fwhm_kms, bl = DT_ANALYSIS_LIMIT_BOX_B;
   double pix = fabs(a->vel[0][a->n - 1] - a->vel[0][0]) / (double)(a->n - 1);
-  /* the box of the limit: +- the FWHM of a line of b = limit_b seen
+  /* the box of the limit: +- the FWHM of a line of b = LIMIT_BOX_B seen
    * through the LSF (Gaussian widths in quadrature; 2 sqrt(ln 2) b is the
-   * FWHM of the Doppler profile), at least 1.5 pixels */
+   * FWHM of the Doppler profile; +- FWHM holds 98% of a Gaussian's area),
+   * at least 1.5 pixels */
   double hw = fmax(sqrt(fw * fw + 4.0 * log(2.0) * bl * bl), 1.5 * pix);
   dt_line_measure m[2];
   int status = DT_OK;
@@ -653,7 +654,7 @@ static int measure_lines(dt_analysis *a, double v1, double v2, dt_analysis_line 
       o->nsat = m[l].nfloor;
       o->npix = m[l].npix;
       double wl, vat;
-      if (dt_measure_limit(&in, &d->line[l], v1, v2, hw, mo.limit_nsigma, &wl, &vat, NULL) ==
+      if (dt_measure_limit(&in, &d->line[l], l1, l2, hw, mo.limit_nsigma, &wl, &vat, NULL) ==
           DT_OK) {
         o->W_limit = wl;
         o->v_limit = vat;
@@ -680,7 +681,7 @@ int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysi
   if (!(isfinite(vlo) && isfinite(vhi) && vlo < vhi))
     return dt_err_set(e, DT_EINVAL, "measure", "empty velocity range [%g, %g] km/s", vlo, vhi);
   int sat;
-  return measure_lines(a, vlo, vhi, out, &sat, e);
+  return measure_lines(a, vlo, vhi, vlo, vhi, out, &sat, e);
 }
 
 /* Residuals, measurements; the model must be in a->model. */
@@ -727,7 +728,11 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   }
   out->meas_vlo = v1;
   out->meas_vhi = v2;
-  out->measure_status = measure_lines(a, v1, v2, out->line, &out->saturated, NULL);
+  /* limits: where absorption may be, the whole window unless a
+   * measurement window was given */
+  int given = a->opts.int_vlo < a->opts.int_vhi;
+  out->measure_status = measure_lines(a, v1, v2, given ? v1 : j->vlo, given ? v2 : j->vhi,
+                                      out->line, &out->saturated, NULL);
 
   /* the N_a(v) profile over the whole window, for plots and the first pass */
   dt_measure_input in;
