@@ -36,6 +36,7 @@
 #include "doubletty/atomic.h"
 #include "doubletty/fit.h"
 #include "doubletty/judge.h"
+#include "doubletty/profile.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
 
@@ -64,6 +65,8 @@ typedef struct dt_analysis_opts {
                               each line's velocity window excluded (default
                               DT_ANALYSIS_CONT_MARGIN; 0: only the selection,
                               excluding the continuum module's default band) */
+  int no_intervals;     /* 1: dt_analysis_run skips the profile-likelihood
+                           intervals of log N (dt_analysis_intervals) */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
 } dt_analysis_opts;
@@ -124,6 +127,9 @@ typedef struct dt_analysis_out {
   dt_fit_info fit_info;     /* the fit's diagnostics (parameters at a bound,
                                convergence reason, time); zeros when nothing
                                was fitted */
+  int have_intervals;       /* 1: logN_int holds the components' intervals */
+  dt_profile_interval logN_int[DT_MAX_COMP]; /* 1-sigma profile-likelihood
+                               interval of each component's log N (profile.h) */
 } dt_analysis_out;
 
 typedef struct dt_analysis dt_analysis;
@@ -146,6 +152,19 @@ void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o);
  * fit reached.  e may be NULL. */
 int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                     dt_err *e);
+
+/* Profile-likelihood intervals of log N at dchi2 (1: 1 sigma) for every
+ * component of out->fit, the fit of the last dt_analysis_run with j, into
+ * out->logN_int (have_intervals = 1).  dt_analysis_run does this itself
+ * (dchi2 = 1) after a successful fit unless opts.no_intervals; the first
+ * pass (autofit.h) does it once for its final fit.  Costs one to a few
+ * dozen refits per component (one per side where the profile is a
+ * parabola).  DT_OK; DT_EINVAL no successful fit to take it from. */
+int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                          double dchi2);
+/* Switch the intervals of dt_analysis_run off (1) or on (0) without
+ * touching the other options; returns the previous setting. */
+int dt_analysis_no_intervals(dt_analysis *a, int off);
 
 /* The same without fitting: the model of j's components as they are, its
  * chi2, the continuum and the measurements (e.g. to show a restored state

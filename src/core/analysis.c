@@ -589,7 +589,10 @@ static void line_view(dt_analysis *a, int l, double v1, double v2, dt_analysis_l
       S[i] = sg;
       nblend += (size_t)in;
     } else if (To[i] < 1.0) {
-      double T = a->model[i] / C, q = T > 0 ? Tl[i] / T : 1.0 / To[i];
+      /* T_l / T, except where the pixel is nearly black (both ratios of
+       * tiny numbers): there 1 / T_other */
+      double T = a->model[i] / C, q = T > 0.05 ? Tl[i] / T : 1.0 / To[i];
+      if (!(q > 0 && q <= 1.0 / BLEND_T * 1.5)) q = 1.0 / To[i];
       F[i] = f * q;
       S[i] = sg * q;
       if (in && To[i] < 1.0 - BLEND_DEPTH) ndiv++;
@@ -783,11 +786,33 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   dt_fit_chi2(a->fw, &q, out->fit.comp, out->fit.cont_coef, a->model, &chi2, &npix);
   set_continuum(a, out->fit.cont_coef, out->fit.ncont);
   finish(a, j, out->fit.comp, out->fit.ncomp, out);
+  if (fst == DT_OK && !a->opts.no_intervals && out->fit.ncomp > 0)
+    dt_analysis_intervals(a, j, out, 1.0);
   if (fst != DT_OK) {
     if (e) *e = fe;
     return fst;
   }
   return DT_OK;
+}
+
+int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                          double dchi2) {
+  out->have_intervals = 0;
+  if (!a->have_run || !a->fw || out->fit.status != DT_OK || out->fit.ncomp != j->ncomp ||
+      !(dchi2 > 0))
+    return DT_EINVAL;
+  dt_fit_problem p;
+  fill_problem(a, j, &p);
+  for (size_t k = 0; k < out->fit.ncomp; k++)
+    dt_profile_logN(a->fw, &p, &out->fit, k, dchi2, &out->logN_int[k]);
+  out->have_intervals = 1;
+  return DT_OK;
+}
+
+int dt_analysis_no_intervals(dt_analysis *a, int off) {
+  int was = a->opts.no_intervals;
+  a->opts.no_intervals = off;
+  return was;
 }
 
 int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {

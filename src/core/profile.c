@@ -1,0 +1,132 @@
+/* Profile-likelihood intervals of log N (profile.h): refits with one
+ * column held, a bracket and regula falsi on each side. */
+#include "doubletty/profile.h"
+
+#include <math.h>
+#include <string.h>
+
+#define ACCEPT 0.05      /* a first probe this close (relative dchi2): done */
+#define XTOL 0.005       /* dex */
+#define MAX_STEPS 12     /* doublings per side */
+#define MAX_ROOT 8       /* regula falsi iterations per side */
+
+typedef struct prof {
+  dt_fit_workspace *w;
+  dt_fit_problem q;
+  const dt_fit_result *r;
+  size_t k;
+  unsigned char frozen[DT_MAX_COMP];
+  dt_component comp[DT_MAX_COMP];
+  double chi0, chimin, xmin;
+  int nfits;
+} prof;
+
+/* chi2 of the profile at log N_k = x (the rest refitted from the best). */
+static double chi2_at(prof *P, double x) {
+  memcpy(P->comp, P->r->comp, P->r->ncomp * sizeof P->comp[0]);
+  P->comp[P->k].logN = x;
+  P->q.comp = P->comp;
+  dt_fit_result fr;
+  dt_fit_run(P->w, &P->q, &fr, NULL);
+  P->nfits++;
+  double c = fr.chi2;
+  if (!isfinite(c)) return INFINITY;
+  if (c < P->chimin) {
+    P->chimin = c;
+    P->xmin = x;
+  }
+  return c;
+}
+
+/* One side (dir +1 or -1): the end, or NaN when the profile stays below
+ * dchi2 within reach. */
+static double side(prof *P, double x0, double s, double dchi2, int dir) {
+  double lim = dir > 0 ? fmin(x0 + DT_PROFILE_REACH, DT_FIT_LOGN_MAX - 0.01)
+                       : fmax(x0 - DT_PROFILE_REACH, DT_FIT_LOGN_MIN + 0.01);
+  double t = sqrt(dchi2);
+  double xa = x0, ha = -t;                  /* inside: h = sqrt(d) - t < 0 */
+  double step = s * t, xb = NAN, hb = NAN;
+  for (int i = 0; i < MAX_STEPS; i++) {
+    double x = x0 + dir * step;
+    if (dir * (x - lim) > 0) x = lim;
+    double d = chi2_at(P, x) - P->chi0;
+    double h = sqrt(fmax(d, 0.0)) - t;
+    if (i == 0 && fabs(d / dchi2 - 1.0) < ACCEPT) return x;
+    if (h >= 0) {
+      xb = x;
+      hb = h;
+      break;
+    }
+    xa = x;
+    ha = h;
+    if (x == lim) return NAN;
+    step *= 2.0;
+  }
+  if (!isfinite(xb)) return NAN;
+  /* regula falsi (Illinois) between xa (h < 0) and xb (h >= 0) */
+  int last = 0;
+  for (int i = 0; i < MAX_ROOT && fabs(xb - xa) > XTOL; i++) {
+    double x = xb - hb * (xb - xa) / (hb - ha);
+    double h = sqrt(fmax(chi2_at(P, x) - P->chi0, 0.0)) - t;
+    if (fabs(h) < 0.01) return x;
+    if (h >= 0) {
+      xb = x;
+      hb = h;
+      if (last == 1) ha *= 0.5;
+      last = 1;
+    } else {
+      xa = x;
+      ha = h;
+      if (last == -1) hb *= 0.5;
+      last = -1;
+    }
+  }
+  return 0.5 * (xa + xb);
+}
+
+int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_result *r,
+                    size_t k, double dchi2, dt_profile_interval *out) {
+  if (!w || !p || !r || !out || k >= r->ncomp || r->ncomp != p->ncomp || !(dchi2 > 0))
+    return DT_EINVAL;
+  memset(out, 0, sizeof *out);
+  double x0 = r->comp[k].logN;
+  out->best = x0;
+  if (p->frozen && (p->frozen[k] & DT_FREEZE_N)) {
+    out->lo = out->hi = x0;
+    return DT_OK;
+  }
+  prof P;
+  memset(&P, 0, sizeof P);
+  P.w = w;
+  P.q = *p;
+  P.r = r;
+  P.k = k;
+  if (p->frozen) memcpy(P.frozen, p->frozen, p->ncomp);
+  P.frozen[k] |= DT_FREEZE_N;
+  P.q.frozen = P.frozen;
+  if (r->ncont) P.q.cont_init = r->cont_coef;
+  P.chi0 = P.chimin = r->chi2;
+  P.xmin = x0;
+  double s = r->err[k].logN;
+  if (!(s > 0) || !isfinite(s)) s = 0.3;
+  s = fmin(fmax(s, 0.01), 0.5);
+  double lo = NAN, hi = NAN;
+  for (int pass = 0; pass < 2; pass++) {
+    hi = side(&P, x0, s, dchi2, +1);
+    lo = side(&P, x0, s, dchi2, -1);
+    /* a lower minimum found on the way: the reference moves there, once */
+    if (pass == 0 && P.chimin < P.chi0 - 0.1 * dchi2) {
+      P.chi0 = P.chimin;
+      x0 = P.xmin;
+      continue;
+    }
+    break;
+  }
+  out->best = x0;
+  out->lo = lo;
+  out->hi = hi;
+  out->flag = isfinite(lo) ? (isfinite(hi) ? DT_PROFILE_BOUNDED : DT_PROFILE_LOWER_LIMIT)
+                           : (isfinite(hi) ? DT_PROFILE_UPPER_LIMIT : DT_PROFILE_UNBOUNDED);
+  out->nfits = P.nfits;
+  return DT_OK;
+}
