@@ -127,6 +127,13 @@ typedef struct dt_analysis_out {
   dt_fit_info fit_info;     /* the fit's diagnostics (parameters at a bound,
                                convergence reason, time); zeros when nothing
                                was fitted */
+  double cont_tau;          /* the fitted components' largest optical depth
+                               (both lines, no LSF) at the inner edges of
+                               the continuum regions: > DT_ANALYSIS_CONT_TAU
+                               means damping wings reach them and pull the
+                               continuum down (dt_analysis_warning); 0 with
+                               no components or a fixed continuum */
+  double cont_tau_at;       /* where [Angstrom] */
   int have_intervals;       /* 1: logN_int holds the components' intervals */
   dt_profile_interval logN_int[DT_MAX_COMP]; /* 1-sigma profile-likelihood
                                interval of each component's log N (profile.h) */
@@ -162,6 +169,14 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
  * parabola).  DT_OK; DT_EINVAL no successful fit to take it from. */
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2);
+/* Warnings a reader of the measurements must see, as one line of text
+ * into buf: damping wings in the continuum regions (cont_tau above
+ * DT_ANALYSIS_CONT_TAU), a line whose window is partly taken from the
+ * model because the other line is black there.  Returns 1 when there is
+ * any, else 0 with buf "". */
+int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n);
+#define DT_ANALYSIS_CONT_TAU 0.01
+
 /* Switch the intervals of dt_analysis_run off (1) or on (0) without
  * touching the other options; returns the previous setting. */
 int dt_analysis_no_intervals(dt_analysis *a, int off);

@@ -41,9 +41,10 @@
 static const char *const COLUMNS[] = {
     "index", "file", "name", "hdu", "row", "object", "doublet", "vsys", "status",
     "ncomp", "component", "v_kms", "v_err", "b_kms", "b_err", "logN", "logN_err",
+    "logN_err_lo", "logN_err_hi", "logN_flag",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "logN_limit", "suggested", "reason"};
+    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason"};
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
 /* Below this resolving power the line-spread function (c/R > 3000 km/s) is
@@ -66,6 +67,7 @@ typedef struct {
   size_t nseed;
   double seed_v[DT_MAX_COMP];
   double limit_nsigma;
+  double limit_b;               /* b of column-density limits [km/s] */
   int joint_cont;               /* Legendre coefficients fitted with the components */
   dt_read_opts ropts;
   long row;                     /* --row: only this row of tables */
@@ -106,6 +108,8 @@ static void usage(FILE *f) {
           "  --joint-continuum K     also fit K multiplicative Legendre coefficients\n"
           "                          of the continuum together with the components\n"
           "  --limit-sigma S         significance of upper limits (default 3)\n"
+          "  --limit-b KMS           Doppler parameter of column-density limits\n"
+          "                          (full curve of growth; default 2)\n"
           "  --atomic FILE           extra atomic table (adds or replaces doublets)\n"
           "  --row N                 only row N of multi-row tables (default: all rows)\n"
           "  --wave-col C --flux-col C --err-col C --mask-col C   table columns\n"
@@ -218,7 +222,11 @@ static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_
   int bound = 0;
   for (size_t k = 0; k < j->ncomp; k++) bound |= o->an.fit_info.at_bound[k] != 0;
   if (bound && len < n)
-    snprintf(buf + len, n - len, "%sparameters at the limit of their range", len ? "; " : "");
+    len += (size_t)snprintf(buf + len, n - len, "%sparameters at the limit of their range",
+                            len ? "; " : "");
+  char warn[160];
+  if (dt_analysis_warning(&o->an, warn, sizeof warn) && len < n)
+    snprintf(buf + len, n - len, "%s%s", len ? "; " : "", warn);
 }
 
 static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
@@ -240,8 +248,14 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
       dt_csv_fixed(w, fr->err[k].b, 3);
       dt_csv_fixed(w, fr->comp[k].logN, 4);
       dt_csv_fixed(w, fr->err[k].logN, 4);
+      const dt_profile_interval *pi = &an->logN_int[k];
+      if (an->have_intervals && isfinite(pi->lo)) dt_csv_fixed(w, fr->comp[k].logN - pi->lo, 4);
+      else dt_csv_empty(w);
+      if (an->have_intervals && isfinite(pi->hi)) dt_csv_fixed(w, pi->hi - fr->comp[k].logN, 4);
+      else dt_csv_empty(w);
+      dt_csv_text(w, an->have_intervals ? dt_profile_flag_name(pi->flag) : "");
     } else {
-      for (int e = 0; e < 7; e++) dt_csv_empty(w);
+      for (int e = 0; e < 10; e++) dt_csv_empty(w);
     }
     dt_csv_fixed(w, fr->chi2_red, 4);
     dt_csv_long(w, fr->dof);
@@ -257,9 +271,15 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     dt_csv_fixed(w, b->logN_aod, 4);
     dt_csv_fixed(w, b->logN_aod_err, 4);
     dt_csv_text(w, an->saturated ? "1" : "0");
-    /* the limit is given unless the first pass calls it a detection */
-    if (o->suggested != DT_VERDICT_DETECTED) dt_csv_fixed(w, a->logN_limit, 4);
-    else dt_csv_empty(w);
+    dt_csv_fixed(w, a->masked_frac, 3);
+    /* the limits are given unless the first pass calls it a detection */
+    if (o->suggested != DT_VERDICT_DETECTED) {
+      dt_csv_fixed(w, 1e3 * a->W_limit, 2);
+      dt_csv_fixed(w, a->logN_limit, 4);
+    } else {
+      dt_csv_empty(w);
+      dt_csv_empty(w);
+    }
     dt_csv_text(w, dt_verdict_name(o->suggested));
     dt_csv_text(w, reason);
     dt_csv_end(w);
@@ -358,6 +378,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     dt_analysis_opts ao;
     dt_analysis_opts_init(&ao);
     ao.limit_nsigma = c->limit_nsigma;
+    ao.limit_b = c->limit_b;
     ao.joint_cont = (size_t)c->joint_cont;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
@@ -591,6 +612,8 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_csv_comment(w, "joint-continuum", buf);
   dt_num_format(buf, sizeof buf, c->limit_nsigma);
   dt_csv_comment(w, "limit-sigma", buf);
+  dt_num_format(buf, sizeof buf, c->limit_b);
+  dt_csv_comment(w, "limit-b", buf);
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
   snprintf(buf, sizeof buf, "%ld", c->row);
   dt_csv_comment(w, "row", c->row ? buf : "");
@@ -604,7 +627,7 @@ static void write_settings(dt_csv *w, const config *c) {
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR
+  O_FORCE, O_AIR, O_LIMB
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -618,6 +641,7 @@ static const struct option LONGOPTS[] = {
     {"continuum-order", required_argument, NULL, O_CORDER},
     {"joint-continuum", required_argument, NULL, O_JOINT},
     {"limit-sigma", required_argument, NULL, O_LIMSIG},
+    {"limit-b", required_argument, NULL, O_LIMB},
     {"atomic", required_argument, NULL, O_ATOMIC},
     {"row", required_argument, NULL, O_ROW},
     {"wave-col", required_argument, NULL, O_WCOL},
@@ -699,6 +723,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     c->joint_cont = (int)l;
     return 0;
   case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
+  case O_LIMB: return positive("--limit-b", v, "the Doppler parameter", &c->limit_b);
   case O_ATOMIC: c->atomic_file = v; return 0;
   case O_ROW:
     if (cli_parse_long("--row", v, &l)) return 1;
@@ -747,6 +772,7 @@ int cmd_fit(int argc, char **argv) {
   memset(&c, 0, sizeof c);
   c.shard_n = 1;
   c.limit_nsigma = 3.0;
+  c.limit_b = DT_ANALYSIS_LIMIT_B;
   source *src = calloc((size_t)argc + 1, sizeof *src);
   size_t nsrc = 0;
   int rc = 2;

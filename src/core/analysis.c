@@ -16,6 +16,7 @@
 #include "doubletty/analysis.h"
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -687,6 +688,65 @@ int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysi
   return measure_lines(a, vlo, vhi, vlo, vhi, out, &sat, e);
 }
 
+/* The components' optical depth (both lines, no LSF) at wavelength lam. */
+static double tau_at(const dt_analysis *a, const dt_doublet *d, const dt_component *comp,
+                     size_t ncomp, double vsys, double lam) {
+  double t = 0;
+  for (size_t k = 0; k < ncomp; k++)
+    for (int l = 0; l < 2; l++) t += dt_line_tau(&d->line[l], &comp[k], vsys, lam);
+  (void)a;
+  return t;
+}
+
+/* The largest optical depth of the components at the inner edges of the
+ * continuum regions (where damping wings are deepest there): the automatic
+ * continuum's regions begin where the lines' windows end; user windows at
+ * both their ends. */
+static void continuum_tau(const dt_analysis *a, const dt_judgement *j, const dt_doublet *d,
+                          const dt_component *comp, size_t ncomp, dt_analysis_out *out) {
+  out->cont_tau = 0;
+  out->cont_tau_at = NAN;
+  if (ncomp == 0 || j->cont_order < 0) return;
+  double edge[2 * DT_MAX_WINDOWS];
+  size_t ne = 0;
+  if (j->nwin == 0) {
+    double lo = INFINITY, hi = -INFINITY;
+    for (int l = 0; l < 2; l++) {
+      lo = fmin(lo, dt_wavelength(j->vlo, d->line[l].lambda0, j->vsys));
+      hi = fmax(hi, dt_wavelength(j->vhi, d->line[l].lambda0, j->vsys));
+    }
+    edge[ne++] = lo;
+    edge[ne++] = hi;
+  } else {
+    for (size_t k = 0; k < j->nwin && k < DT_MAX_WINDOWS; k++) {
+      edge[ne++] = j->win[k].lo;
+      edge[ne++] = j->win[k].hi;
+    }
+  }
+  for (size_t e = 0; e < ne; e++) {
+    double t = tau_at(a, d, comp, ncomp, j->vsys, edge[e]);
+    if (t > out->cont_tau) {
+      out->cont_tau = t;
+      out->cont_tau_at = edge[e];
+    }
+  }
+}
+
+int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n) {
+  size_t len = 0;
+  if (n) buf[0] = '\0';
+  if (o->cont_tau > DT_ANALYSIS_CONT_TAU && len < n)
+    len += (size_t)snprintf(buf + len, n - len,
+                            "damping wings reach the continuum (tau %.2g at %.1f A): widen "
+                            "the window", o->cont_tau, o->cont_tau_at);
+  for (int l = 0; l < 2 && len < n; l++)
+    if (o->line[l].blend == DT_BLEND_MODEL && o->line[l].line)
+      len += (size_t)snprintf(buf + len, n - len, "%s%s blended: %.0f%% of its window from "
+                              "the model", len ? "; " : "", o->line[l].line->label,
+                              100 * o->line[l].blend_frac);
+  return len > 0;
+}
+
 /* Residuals, measurements; the model must be in a->model. */
 static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *comp,
                    size_t ncomp, dt_analysis_out *out) {
@@ -701,6 +761,7 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   memset(a->compmod_ok, 0, sizeof a->compmod_ok);
 
   a->have_ltr = 0;
+  continuum_tau(a, j, out->doublet, comp, ncomp, out);
   a->d = out->doublet;
   a->vsys = j->vsys;
   a->jvlo = j->vlo;

@@ -6,9 +6,11 @@
 #include <string.h>
 
 #define ACCEPT 0.05      /* a first probe this close (relative dchi2): done */
-#define XTOL 0.005       /* dex */
+#define XTOL 0.02        /* dex */
 #define MAX_STEPS 12     /* doublings per side */
 #define MAX_ROOT 8       /* regula falsi iterations per side */
+#define PROFILE_MAX_ITER 40  /* iterations of one refit */
+#define PROFILE_TIME 0.1     /* seconds of one refit */
 
 typedef struct prof {
   dt_fit_workspace *w;
@@ -17,20 +19,29 @@ typedef struct prof {
   size_t k;
   unsigned char frozen[DT_MAX_COMP];
   dt_component comp[DT_MAX_COMP];
+  dt_component from[DT_MAX_COMP];   /* start of the next refit: the last
+                                       solution on this side (continuation) */
+  double cfrom[DT_MAX_CONT];
   double chi0, chimin, xmin;
   int nfits;
 } prof;
 
-/* chi2 of the profile at log N_k = x (the rest refitted from the best). */
+/* chi2 of the profile at log N_k = x (the rest refitted, starting from
+ * the last solution on this side). */
 static double chi2_at(prof *P, double x) {
-  memcpy(P->comp, P->r->comp, P->r->ncomp * sizeof P->comp[0]);
+  memcpy(P->comp, P->from, P->r->ncomp * sizeof P->comp[0]);
   P->comp[P->k].logN = x;
   P->q.comp = P->comp;
+  if (P->r->ncont) P->q.cont_init = P->cfrom;
   dt_fit_result fr;
   dt_fit_run(P->w, &P->q, &fr, NULL);
   P->nfits++;
   double c = fr.chi2;
   if (!isfinite(c)) return INFINITY;
+  if (fr.status == DT_OK || fr.status == DT_ENOCONV) {
+    memcpy(P->from, fr.comp, P->r->ncomp * sizeof P->from[0]);
+    if (P->r->ncont) memcpy(P->cfrom, fr.cont_coef, P->r->ncont * sizeof P->cfrom[0]);
+  }
   if (c < P->chimin) {
     P->chimin = c;
     P->xmin = x;
@@ -41,6 +52,8 @@ static double chi2_at(prof *P, double x) {
 /* One side (dir +1 or -1): the end, or NaN when the profile stays below
  * dchi2 within reach. */
 static double side(prof *P, double x0, double s, double dchi2, int dir) {
+  memcpy(P->from, P->r->comp, P->r->ncomp * sizeof P->from[0]);
+  if (P->r->ncont) memcpy(P->cfrom, P->r->cont_coef, P->r->ncont * sizeof P->cfrom[0]);
   double lim = dir > 0 ? fmin(x0 + DT_PROFILE_REACH, DT_FIT_LOGN_MAX - 0.01)
                        : fmax(x0 - DT_PROFILE_REACH, DT_FIT_LOGN_MIN + 0.01);
   double t = sqrt(dchi2);
@@ -60,7 +73,10 @@ static double side(prof *P, double x0, double s, double dchi2, int dir) {
     xa = x;
     ha = h;
     if (x == lim) return NAN;
-    step *= 2.0;
+    /* next: extrapolate sqrt(dchi2) linearly from x0 (a parabola's
+     * profile is linear there), 1.5 to 4 times further */
+    double grow = d > 0 ? 1.15 * t / sqrt(d) : 4.0;
+    step *= fmin(fmax(grow, 1.5), 4.0);
   }
   if (!isfinite(xb)) return NAN;
   /* regula falsi (Illinois) between xa (h < 0) and xb (h >= 0) */
@@ -68,7 +84,7 @@ static double side(prof *P, double x0, double s, double dchi2, int dir) {
   for (int i = 0; i < MAX_ROOT && fabs(xb - xa) > XTOL; i++) {
     double x = xb - hb * (xb - xa) / (hb - ha);
     double h = sqrt(fmax(chi2_at(P, x) - P->chi0, 0.0)) - t;
-    if (fabs(h) < 0.01) return x;
+    if (fabs(h) < 0.05) return x;
     if (h >= 0) {
       xb = x;
       hb = h;
@@ -105,6 +121,10 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.frozen[k] |= DT_FREEZE_N;
   P.q.frozen = P.frozen;
   if (r->ncont) P.q.cont_init = r->cont_coef;
+  /* refits start next to an optimum: a short leash */
+  P.q.max_iter = PROFILE_MAX_ITER;
+  P.q.time_limit = PROFILE_TIME;
+  P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
   P.chi0 = P.chimin = r->chi2;
   P.xmin = x0;
   double s = r->err[k].logN;
@@ -129,4 +149,13 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
                            : (isfinite(hi) ? DT_PROFILE_UPPER_LIMIT : DT_PROFILE_UNBOUNDED);
   out->nfits = P.nfits;
   return DT_OK;
+}
+
+const char *dt_profile_flag_name(int flag) {
+  switch (flag) {
+  case DT_PROFILE_LOWER_LIMIT: return "lower-limit";
+  case DT_PROFILE_UPPER_LIMIT: return "upper-limit";
+  case DT_PROFILE_UNBOUNDED: return "unconstrained";
+  default: return "";
+  }
 }

@@ -4,11 +4,15 @@ exp(-tau0 H(a, x))) dx over all x, H(a, x) = Re wofz(x + i a)
 (scipy.special.wofz), tau0 = N sigma0 f / (sqrt(pi) b/lambda0), a = Gamma /
 (4 pi b/lambda0), integrated with scipy.integrate.quad.  Reads the driver's
 table "lambda0 f gamma logN b W" on standard input; exits 1 when any W
-differs by more than 1e-6 relative."""
+differs by more than 1e-6 relative.  With --invert LAMBDA0 F GAMMA "W B"
+prints the log N whose line has rest W [A] at Doppler parameter B [km/s]."""
 import sys
 import numpy as np
 from scipy.special import wofz
-from scipy.integrate import quad
+from scipy.integrate import quad, IntegrationWarning
+import warnings
+
+warnings.simplefilter("ignore", IntegrationWarning)  # far wings of thin lines: below 1e-12
 
 SIGMA0 = 0.02654008856      # pi e^2/(m_e c) [cm^2 s^-1], CODATA 2018
 C_KMS = 299792.458
@@ -24,6 +28,15 @@ def cog_w(lam, f, gam, logn, b):
     i2 = quad(g, x1, np.inf, epsabs=0, epsrel=1e-11, limit=400)[0]
     return lam * (b / C_KMS) * 2 * (i1 + i2)
 
+
+if len(sys.argv) == 6 and sys.argv[1] == "--invert":
+    # --invert LAMBDA0 F GAMMA "W b": log N of rest W [A] at b [km/s]
+    from scipy.optimize import brentq
+    lam, f, gam = map(float, sys.argv[2:5])
+    w, b = map(float, sys.argv[5].split())
+    print("%.6f" % brentq(lambda x: np.log(cog_w(lam, f, gam, x, b) / w), 5.0, 24.0,
+                          xtol=1e-9))
+    sys.exit(0)
 
 worst = 0.0
 n = 0
