@@ -881,7 +881,12 @@ int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
   if (st != DT_OK) return st;
   dt_fit_problem p;
   fill_problem(a, j, &p);
-  const double *coef = NULL;
+  /* the joint polynomial: the recorded fit's, else 1 -- never the least-
+   * squares polynomial of the data against these components, which bends
+   * into any absorption the components do not model (with none, into all
+   * of it, hiding it from the first pass) */
+  double unit[DT_MAX_CONT] = {1.0};
+  const double *coef = p.ncont ? unit : NULL;
   if (p.ncont && j->has_fit && j->fit.ncont == p.ncont) coef = j->fit.cont_coef;
   double chi2 = NAN;
   size_t npix = 0;
