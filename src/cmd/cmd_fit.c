@@ -253,7 +253,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
       else dt_csv_empty(w);
       if (an->have_intervals && isfinite(pi->hi)) dt_csv_fixed(w, pi->hi - fr->comp[k].logN, 4);
       else dt_csv_empty(w);
-      dt_csv_text(w, an->have_intervals ? dt_profile_flag_name(pi->flag) : "");
+      dt_csv_text(w, an->have_intervals && !pi->incomplete ? dt_profile_flag_name(pi->flag) : "");
     } else {
       for (int e = 0; e < 10; e++) dt_csv_empty(w);
     }

@@ -4,6 +4,7 @@
 
 #include <math.h>
 #include <string.h>
+#include <time.h>
 
 #define ACCEPT 0.05      /* a first probe this close (relative dchi2): done */
 #define XTOL 0.02        /* dex */
@@ -11,6 +12,8 @@
 #define MAX_ROOT 8       /* regula falsi iterations per side */
 #define PROFILE_MAX_ITER 40  /* iterations of one refit */
 #define PROFILE_TIME 0.1     /* seconds of one refit */
+#define PROFILE_MAX_FITS 60  /* refits of one interval at most ... */
+#define PROFILE_BUDGET 0.5   /* ... and seconds: then it is incomplete */
 
 typedef struct prof {
   dt_fit_workspace *w;
@@ -24,11 +27,23 @@ typedef struct prof {
   double cfrom[DT_MAX_CONT];
   double chi0, chimin, xmin;
   int nfits;
+  double t0;          /* start [s] */
+  int incomplete;     /* ran out of refits or time */
 } prof;
+
+static double now_s(void) {
+  struct timespec ts;
+  clock_gettime(CLOCK_MONOTONIC, &ts);
+  return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
 
 /* chi2 of the profile at log N_k = x (the rest refitted, starting from
  * the last solution on this side). */
 static double chi2_at(prof *P, double x) {
+  if (P->nfits >= PROFILE_MAX_FITS || now_s() - P->t0 > PROFILE_BUDGET) {
+    P->incomplete = 1;
+    return NAN;
+  }
   memcpy(P->comp, P->from, P->r->ncomp * sizeof P->comp[0]);
   P->comp[P->k].logN = x;
   P->q.comp = P->comp;
@@ -63,6 +78,7 @@ static double side(prof *P, double x0, double s, double dchi2, int dir) {
     double x = x0 + dir * step;
     if (dir * (x - lim) > 0) x = lim;
     double d = chi2_at(P, x) - P->chi0;
+    if (P->incomplete) return NAN;
     double h = sqrt(fmax(d, 0.0)) - t;
     if (i == 0 && fabs(d / dchi2 - 1.0) < ACCEPT) return x;
     if (h >= 0) {
@@ -84,6 +100,7 @@ static double side(prof *P, double x0, double s, double dchi2, int dir) {
   for (int i = 0; i < MAX_ROOT && fabs(xb - xa) > XTOL; i++) {
     double x = xb - hb * (xb - xa) / (hb - ha);
     double h = sqrt(fmax(chi2_at(P, x) - P->chi0, 0.0)) - t;
+    if (P->incomplete) return NAN;
     if (fabs(h) < 0.05) return x;
     if (h >= 0) {
       xb = x;
@@ -127,6 +144,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
   P.chi0 = P.chimin = r->chi2;
   P.xmin = x0;
+  P.t0 = now_s();
   double s = r->err[k].logN;
   if (!(s > 0) || !isfinite(s)) s = 0.3;
   s = fmin(fmax(s, 0.01), 0.5);
@@ -148,6 +166,11 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   out->flag = isfinite(lo) ? (isfinite(hi) ? DT_PROFILE_BOUNDED : DT_PROFILE_LOWER_LIMIT)
                            : (isfinite(hi) ? DT_PROFILE_UPPER_LIMIT : DT_PROFILE_UNBOUNDED);
   out->nfits = P.nfits;
+  out->incomplete = P.incomplete;
+  if (P.incomplete) {
+    out->lo = out->hi = NAN;
+    out->flag = DT_PROFILE_BOUNDED;
+  }
   return DT_OK;
 }
 
