@@ -120,6 +120,8 @@ static void run_regime(const dt_atomic *t, const regime *g, unsigned long seed) 
       int ok3 = (isfinite(p3->lo) ? x >= p3->lo : 1) && (isfinite(p3->hi) ? x <= p3->hi : 1);
       if (p1->flag == DT_PROFILE_UNBOUNDED) ok1 = 1;
       if (p3->flag == DT_PROFILE_UNBOUNDED) ok3 = 1;
+      if (p1->incomplete) ok1 = 0;   /* no interval: counted as a miss */
+      if (p3->incomplete) ok3 = 0;
       ncase++;
       in1 += ok1;
       in3 += ok3;
