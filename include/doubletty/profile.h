@@ -39,8 +39,8 @@ typedef struct dt_profile_interval {
   double best;                 /* log N of the reference minimum */
   int flag;                    /* DT_PROFILE_* */
   int nfits;                   /* refits spent */
-  int incomplete;              /* 1: the search ran out of refits (60) or
-                                  time (0.5 s); lo, hi NaN, flag BOUNDED:
+  int incomplete;              /* 1: the search ran out of refits (80) or
+                                  time (2 s); lo, hi NaN, flag BOUNDED:
                                   no interval (use the covariance error) */
 } dt_profile_interval;
 

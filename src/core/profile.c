@@ -12,8 +12,8 @@
 #define MAX_ROOT 8       /* regula falsi iterations per side */
 #define PROFILE_MAX_ITER 40  /* iterations of one refit */
 #define PROFILE_TIME 0.1     /* seconds of one refit */
-#define PROFILE_MAX_FITS 60  /* refits of one interval at most ... */
-#define PROFILE_BUDGET 0.5   /* ... and seconds: then it is incomplete */
+#define PROFILE_MAX_FITS 80  /* refits of one interval at most ... */
+#define PROFILE_BUDGET 2.0   /* ... and seconds: then it is incomplete */
 
 typedef struct prof {
   dt_fit_workspace *w;

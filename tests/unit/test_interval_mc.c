@@ -13,9 +13,9 @@
  *     (99.73% for a Gaussian).
  * With N cases the binomial error of a coverage p is sqrt(p (1-p) / N);
  * the 1-sigma tolerance is the larger of 5% and three binomial errors
- * (60 cases per regime in the suite, 18% then -- a coarse check; with
- * DT_MC_SCALE=4, 240 cases, 9%), the 3-sigma one 99% less three binomial
- * errors.  Seeds are fixed.
+ * (30-60 cases per regime in the suite, 18-26% then -- a coarse check
+ * that keeps the suite near 10 s; DT_MC_SCALE=4 for the README's figures),
+ * the 3-sigma one 99% less three binomial errors.  Seeds are fixed.
  * Regimes: thin (R 20000, log N 11.9, b 10, S/N 50); saturated at R 5000
  * and at R 40000 (b 2, log N 13.5 and 13.0, S/N 30); unresolved at R 2000
  * (b 1, log N 12.5, S/N 100); a blend of two components 15 km/s apart
@@ -157,17 +157,17 @@ int main(int argc, char **argv) {
   dt_atomic *t = dt_atomic_new();
   dt_err e;
   if (dt_atomic_parse(t, table, sizeof table - 1, &e) != DT_OK) return 1;
-  /* counts: 60 per regime in the suite; DT_MC_SCALE=4 (or the first
+  /* counts: 30-60 per regime in the suite; DT_MC_SCALE=4 (or the first
    * argument) for the figures of the README */
   const char *env = getenv("DT_MC_SCALE");
   int scale = argc > 1 ? atoi(argv[1]) : env ? atoi(env) : 1;
   if (scale < 1) scale = 1;
   regime rs[] = {
       {"thin R 20000", 20000, 0.1, 50, 1, {{11.9, 10.0, 0.0}}, 60, 120, 0},
-      {"saturated R 5000", 5000, 0.4, 30, 1, {{13.5, 2.0, 0.0}}, 60, 200, 0},
-      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 60, 100, 0},
-      {"unresolved R 2000 S/N 100", 2000, 1.0, 100, 1, {{12.5, 1.0, 0.0}}, 60, 350, 1},
-      {"blend 15 km/s R 20000", 20000, 0.1, 50, 2, {{11.8, 5.0, -7.5}, {11.6, 5.0, 7.5}}, 45,
+      {"saturated R 5000", 5000, 0.4, 30, 1, {{13.5, 2.0, 0.0}}, 40, 200, 0},
+      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 40, 100, 0},
+      {"unresolved R 2000 S/N 100", 2000, 1.0, 100, 1, {{12.5, 1.0, 0.0}}, 30, 350, 1},
+      {"blend 15 km/s R 20000", 20000, 0.1, 50, 2, {{11.8, 5.0, -7.5}, {11.6, 5.0, 7.5}}, 30,
        120, 0},
   };
   for (size_t r = 0; r < sizeof rs / sizeof rs[0]; r++) {
