@@ -166,7 +166,10 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
  * (dchi2 = 1) after a successful fit unless opts.no_intervals; the first
  * pass (autofit.h) does it once for its final fit.  Costs one to a few
  * dozen refits per component (one per side where the profile is a
- * parabola).  DT_OK; DT_EINVAL no successful fit to take it from. */
+ * parabola); none in the linear regime (optically thin at the fitted b,
+ * tau0 < 0.3; covariance error < 0.1 dex; no saturation flag, bound or
+ * neighbour within FWHM + 2 (b_k + b_j)), where the covariance error is
+ * the interval.  DT_OK; DT_EINVAL no successful fit to take it from. */
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2);
 /* Warnings a reader of the measurements must see, as one line of text
@@ -178,8 +181,14 @@ int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n);
 #define DT_ANALYSIS_CONT_TAU 0.01
 
 /* Switch the intervals of dt_analysis_run off (1) or on (0) without
- * touching the other options; returns the previous setting. */
+ * touching the other options; returns the previous setting.  Off, the runs
+ * also skip the upper limits (W_limit, logN_limit NaN): a search that
+ * runs many fits measures them once at the end (dt_analysis_remeasure). */
 int dt_analysis_no_intervals(dt_analysis *a, int off);
+/* The measurements of out->line again, limits included, for the state of
+ * the last run or eval (out must be that run's).  DT_OK or the
+ * measurement's error; DT_EINVAL before any run. */
+int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out);
 
 /* The same without fitting: the model of j's components as they are, its
  * chi2, the continuum and the measurements (e.g. to show a restored state

@@ -72,6 +72,7 @@ struct dt_analysis {
   double fwhm_kms;
   const dt_doublet *d;        /* doublet, rest frame and window of the last run */
   double vsys, jvlo, jvhi;
+  double mv1, mv2, ml1, ml2;  /* its measurement window and limit range */
   /* each line alone: its transmission under the last components, and the
    * line as measured (the other line divided out, gaps filled) */
   double *ltr[2], *lflux[2], *lsig[2];
@@ -612,7 +613,7 @@ static void line_view(dt_analysis *a, int l, double v1, double v2, dt_analysis_l
  * measurement of dt_analysis_run and dt_analysis_measure_range alike.  Each line is measured on its view
  * (line_view): the other line of the doublet removed by the fitted model,
  * masked pixels filled from it.  L[l] NaN when it fails. */
-static int measure_lines(dt_analysis *a, double v1, double v2, double l1, double l2,
+static int measure_lines(dt_analysis *a, double v1, double v2, double l1, double l2, int full,
                          dt_analysis_line L[2], int *saturated, dt_err *e) {
   const dt_doublet *d = a->d;
   dt_measure_opts mo;
@@ -658,7 +659,9 @@ static int measure_lines(dt_analysis *a, double v1, double v2, double l1, double
       o->nsat = m[l].nfloor;
       o->npix = m[l].npix;
       double wl, vat;
-      if (dt_measure_limit(&in, &d->line[l], l1, l2, hw, mo.limit_nsigma, &wl, &vat, NULL) ==
+      if (!full) {
+        o->W_limit = o->v_limit = o->logN_limit = NAN;
+      } else if (dt_measure_limit(&in, &d->line[l], l1, l2, hw, mo.limit_nsigma, &wl, &vat, NULL) ==
           DT_OK) {
         o->W_limit = wl;
         o->v_limit = vat;
@@ -685,7 +688,7 @@ int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysi
   if (!(isfinite(vlo) && isfinite(vhi) && vlo < vhi))
     return dt_err_set(e, DT_EINVAL, "measure", "empty velocity range [%g, %g] km/s", vlo, vhi);
   int sat;
-  return measure_lines(a, vlo, vhi, vlo, vhi, out, &sat, e);
+  return measure_lines(a, vlo, vhi, vlo, vhi, 1, out, &sat, e);
 }
 
 /* The components' optical depth (both lines, no LSF) at wavelength lam. */
@@ -795,7 +798,11 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   /* limits: where absorption may be, the whole window unless a
    * measurement window was given */
   int given = a->opts.int_vlo < a->opts.int_vhi;
-  out->measure_status = measure_lines(a, v1, v2, given ? v1 : j->vlo, given ? v2 : j->vhi,
+  a->mv1 = v1;
+  a->mv2 = v2;
+  a->ml1 = given ? v1 : j->vlo;
+  a->ml2 = given ? v2 : j->vhi;
+  out->measure_status = measure_lines(a, v1, v2, a->ml1, a->ml2, !a->opts.no_intervals,
                                       out->line, &out->saturated, NULL);
 
   /* the N_a(v) profile over the whole window, for plots and the first pass */
@@ -856,6 +863,27 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   return DT_OK;
 }
 
+/* Component k is in the linear regime, where chi2 is a parabola in log N
+ * and the covariance error is the profile-likelihood interval (the
+ * profile search would accept its first probe, at two refits): optically
+ * thin at its fitted b (tau0 < LINEAR_TAU0, cog.h) with a covariance
+ * error below LINEAR_ERR dex (so log N and N are linear to within a few
+ * per cent over the interval), no saturation flag from the doublet ratios,
+ * no parameter at a bound, and no other component within FWHM + 2 (b_k +
+ * b_j) (a blend correlates the columns non-linearly). */
+#define LINEAR_TAU0 0.3
+#define LINEAR_ERR 0.1
+static int linear_regime(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  double e = r->err[k].logN;
+  if (!(e > 0) || !(e < LINEAR_ERR) || out->saturated || out->fit_info.at_bound[k]) return 0;
+  if (!(dt_cog_tau0(&a->d->line[0], c->logN, c->b) < LINEAR_TAU0)) return 0;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 0;
+  return 1;
+}
+
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2) {
   out->have_intervals = 0;
@@ -864,10 +892,29 @@ int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out
     return DT_EINVAL;
   dt_fit_problem p;
   fill_problem(a, j, &p);
-  for (size_t k = 0; k < out->fit.ncomp; k++)
-    dt_profile_logN(a->fw, &p, &out->fit, k, dchi2, &out->logN_int[k]);
+  const dt_fit_result *r = &out->fit;
+  for (size_t k = 0; k < r->ncomp; k++) {
+    if (linear_regime(a, out, k)) {
+      /* the covariance interval is the profile's here (see below) */
+      dt_profile_interval *pi = &out->logN_int[k];
+      memset(pi, 0, sizeof *pi);
+      double h = r->err[k].logN * sqrt(dchi2);
+      pi->best = r->comp[k].logN;
+      pi->lo = pi->best - h;
+      pi->hi = pi->best + h;
+      continue;
+    }
+    dt_profile_logN(a->fw, &p, r, k, dchi2, &out->logN_int[k]);
+  }
   out->have_intervals = 1;
   return DT_OK;
+}
+
+int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out) {
+  if (!a->have_run) return DT_EINVAL;
+  out->measure_status = measure_lines(a, a->mv1, a->mv2, a->ml1, a->ml2, 1, out->line,
+                                      &out->saturated, NULL);
+  return out->measure_status;
 }
 
 int dt_analysis_no_intervals(dt_analysis *a, int off) {

@@ -800,6 +800,9 @@ static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *base,
   int grow = want ? ns < want : (ns > 0 && op->nseed == 0);
   if (grow) grow_by_bic(&c, a, base, j, op, want, &f);
   hold_state(a, base, &f.best);
+  /* the limits and intervals, once, for the state reported (the analysis
+   * holds it after hold_state, or f.best is the run of no components) */
+  if (intervals_off == 0) dt_analysis_remeasure(a, &f.best);
   /* the profile-likelihood intervals, once, for the fit reported */
   if (f.st == DT_OK && f.best.fit.ncomp > 0 && !intervals_off) {
     dt_judgement fin = *base;

@@ -16,6 +16,7 @@
 #include "doubletty/model.h"
 
 #define COG_LIMIT 200   /* subintervals of the adaptive integration */
+#define COG_EPS 1e-8    /* its relative tolerance */
 
 typedef struct cog_par {
   double tau0, a;
@@ -45,8 +46,8 @@ double dt_cog_W(const dt_line *l, double logN, double b) {
   gsl_function F = {integrand, &c};
   double x1 = 4.0 + (c.tau0 > 1 ? 2.0 * sqrt(log(c.tau0)) : 0.0);
   double i1 = 0, i2 = 0, err;
-  gsl_integration_qag(&F, 0.0, x1, 0.0, 1e-9, COG_LIMIT, GSL_INTEG_GAUSS31, w, &i1, &err);
-  gsl_integration_qagiu(&F, x1, 0.0, 1e-9, COG_LIMIT, w, &i2, &err);
+  gsl_integration_qag(&F, 0.0, x1, 0.0, COG_EPS, COG_LIMIT, GSL_INTEG_GAUSS31, w, &i1, &err);
+  gsl_integration_qagiu(&F, x1, 0.0, COG_EPS, COG_LIMIT, w, &i2, &err);
   gsl_integration_workspace_free(w);
   gsl_set_error_handler(old);
   return l->lambda0 * (b / DT_C_KMS) * 2.0 * (i1 + i2);
@@ -90,7 +91,7 @@ double dt_cog_logN(const dt_line *l, double W, double b) {
       if (gsl_root_fsolver_iterate(s) != GSL_SUCCESS) break;
       r = gsl_root_fsolver_root(s);
       double a = gsl_root_fsolver_x_lower(s), c = gsl_root_fsolver_x_upper(s);
-      if (gsl_root_test_interval(a, c, 1e-7, 0) == GSL_SUCCESS) break;
+      if (gsl_root_test_interval(a, c, 1e-6, 0) == GSL_SUCCESS) break;
     }
   }
   gsl_root_fsolver_free(s);
