@@ -197,6 +197,60 @@ static void test_masked(const dt_atomic *t, gsl_rng *rng) {
   dt_spectrum_free(s);
 }
 
+/* Damping wings in the continuum regions: the fitted lines' optical depth
+ * at the inner edges of the automatic continuum's regions (where the
+ * lines' windows end) against the Lorentzian wing of each line,
+ *   tau = N sigma0 f Gamma / (4 pi^2 dnu^2),  dnu = dv / lambda
+ * (the far wing of the Voigt profile; e.g. Draine 2011, Physics of the
+ * Interstellar and Intergalactic Medium, eq. 6.41 -- from memory), and the
+ * warning it raises; a thin line raises none. */
+static void test_wings(const dt_atomic *t) {
+  const double sigma0 = 0.02654008856, c_cms = 2.99792458e10;
+  dt_component damped[1] = {{19.0, 5.0, 0.0}};
+  dt_spectrum *s = make(t, 5800, 5990, 0.1, 20000, damped, 1, 100, NULL);
+  dt_analysis *a = dt_analysis_alloc(s, t);
+  dt_judgement j;
+  judgement(&j, 20000);
+  j.cont_order = 2;
+  j.nwin = 0;
+  j.ncomp = 1;
+  j.comp[0] = damped[0];
+  dt_analysis_out o;
+  dt_err e;
+  int st = dt_analysis_eval(a, &j, &o, &e);
+  CHECK(st == DT_OK, "damped line evaluated (%s)", e.what);
+  const dt_doublet *d = dt_atomic_find(t, "NaI");
+  double want = 0;
+  for (int side = 0; side < 2; side++) {
+    /* the edges: -600 km/s from the bluer line, +600 from the redder */
+    double lam = side ? d->line[1].lambda0 * (1 + 600 / 299792.458)
+                      : d->line[0].lambda0 * (1 - 600 / 299792.458);
+    double tau = 0;
+    for (int l = 0; l < 2; l++) {
+      const dt_line *ln = &d->line[l];
+      double dnu = c_cms / (lam * 1e-8) - c_cms / (ln->lambda0 * 1e-8);
+      tau += 1e19 * sigma0 * ln->f * ln->gamma / (4 * M_PI * M_PI * dnu * dnu);
+    }
+    if (tau > want) want = tau;
+  }
+  CHECK_REL(o.cont_tau, want, 0.02, "log N 19: tau %.3g at the continuum's edge (Lorentzian "
+            "wings %.3g)", o.cont_tau, want);
+  char w[200];
+  CHECK(dt_analysis_warning(&o, w, sizeof w) && strstr(w, "damping wings"),
+        "the warning says so: '%s'", w);
+  dt_analysis_free(a);
+  dt_spectrum_free(s);
+  dt_component thin[1] = {{12.0, 5.0, 0.0}};
+  s = make(t, 5800, 5990, 0.1, 20000, thin, 1, 100, NULL);
+  a = dt_analysis_alloc(s, t);
+  j.comp[0] = thin[0];
+  dt_analysis_eval(a, &j, &o, &e);
+  CHECK(o.cont_tau < 1e-6 && !dt_analysis_warning(&o, w, sizeof w),
+        "log N 12: no warning (tau %.2g)", o.cont_tau);
+  dt_analysis_free(a);
+  dt_spectrum_free(s);
+}
+
 int main(void) {
   dt_atomic *t = dt_atomic_new();
   dt_err e;
@@ -209,6 +263,7 @@ int main(void) {
   test_interface(t, rng);
   test_other_line(t);
   test_masked(t, rng);
+  test_wings(t);
   gsl_rng_free(rng);
   dt_atomic_free(t);
   return dt_test_done();
