@@ -10,13 +10,14 @@
  * column the data cannot bound from above has no upper end.
  *
  * Search, each side: the first point at x0 +- s sqrt(dchi2), s the
- * covariance error (clipped to 0.01..0.5 dex); accepted when its dchi2 is
- * within 5% of the target (a parabolic profile: one refit per side);
+ * covariance error (clipped to 0.001..0.5 dex); accepted when its dchi2 is
+ * within 10% of the target (a parabolic profile: one refit per side);
  * otherwise the step grows (1.5 to 4 times, extrapolating sqrt(dchi2_p)
  * linearly from the best fit) until the profile rises above dchi2 (or the
  * search reaches DT_PROFILE_REACH dex or the fit's bounds: no end, a
  * limit), then regula falsi on sqrt(dchi2_p) (linear in x for a parabola)
- * to 0.02 dex (or sqrt(dchi2_p) within 0.05 of sqrt(dchi2)).  Each refit starts from the last solution on its side (the
+ * to 0.02 dex or a tenth of the error (or sqrt(dchi2_p) within 0.05 of
+ * sqrt(dchi2)).  Each refit starts from the last solution on its side (the
  * first from the best fit); a lower chi2 found on
  * the way (the fit was in a local minimum) becomes the reference and the
  * search restarts from it once. */

@@ -77,6 +77,9 @@ struct dt_analysis {
    * line as measured (the other line divided out, gaps filled) */
   double *ltr[2], *lflux[2], *lsig[2];
   int have_ltr, have_sm;
+  size_t sm_cap;              /* components the single-line models hold */
+  int ltr_exact;              /* ltr from the models (else ones, valid over */
+  double ltr_lo, ltr_hi;      /* this range: nothing of the other line there) */
   model_key smkey;
   dt_doublet sd[2];
   dt_model *sm[2];
@@ -494,20 +497,54 @@ static void measure_opts(const dt_analysis *a, dt_measure_opts *mo) {
   if (a->opts.limit_nsigma > 0) mo->limit_nsigma = a->opts.limit_nsigma;
 }
 
+/* Whether the single-line models matter for measurements over [lo, hi]
+ * (each line's frame): a pixel to fill (masked or unusable) there, or a
+ * component whose image in the other line's frame (v shifted by the
+ * lines' separation) comes within reach of it -- 3 FWHM + 5 b, and
+ * everywhere for columns with damping wings (log N > 17). */
+static int models_needed(const dt_analysis *a, double lo, double hi) {
+  const dt_spectrum *s = a->s;
+  for (size_t i = 0; i < a->n; i++) {
+    size_t p = a->i0 + i;
+    int bad = s->mask[p] || !isfinite(s->flux[p]) || !(s->sigma[p] > 0) || !isfinite(s->sigma[p]);
+    if (!bad) continue;
+    for (int l = 0; l < 2; l++)
+      if (a->vel[l][i] >= lo && a->vel[l][i] <= hi) return 1;
+  }
+  const dt_doublet *d = a->d;
+  for (size_t k = 0; k < a->ncomp; k++) {
+    const dt_component *c = &a->comp[k];
+    if (c->logN > 17.0) return 1;
+    double reach = 3.0 * a->fwhm_kms + 5.0 * c->b;
+    for (int l = 0; l < 2; l++) {
+      /* component k's line 1-l seen from line l */
+      double w = dt_wavelength(c->v, d->line[1 - l].lambda0, a->vsys);
+      double v = dt_velocity(w, d->line[l].lambda0, a->vsys);
+      if (v + reach >= lo && v - reach <= hi) return 1;
+    }
+  }
+  return 0;
+}
+
 /* The transmission of each line alone under the last run's components
  * (a->ltr[l], normalised, through the LSF): models of the doublet with the
  * other line's f scaled to nothing, built when first needed and kept with
  * the main model.  1 everywhere without components. */
-static int single_line_models(dt_analysis *a) {
-  if (a->have_ltr) return DT_OK;
+static int single_line_models(dt_analysis *a, double lo, double hi) {
+  /* valid: the models' values (any range), or ones for a range within */
+  if (a->have_ltr && (a->ltr_exact || (lo >= a->ltr_lo && hi <= a->ltr_hi))) return DT_OK;
   const size_t n = a->n;
-  if (a->ncomp == 0) {
+  a->have_ltr = 0;
+  a->ltr_exact = 0;
+  a->ltr_lo = lo;
+  a->ltr_hi = hi;
+  if (a->ncomp == 0 || !models_needed(a, lo, hi)) {
     for (int l = 0; l < 2; l++)
       for (size_t i = 0; i < n; i++) a->ltr[l][i] = 1.0;
     a->have_ltr = 1;
     return DT_OK;
   }
-  if (!a->have_sm || memcmp(&a->smkey, &a->mkey, sizeof a->mkey) != 0) {
+  if (!a->have_sm || memcmp(&a->smkey, &a->mkey, sizeof a->mkey) != 0 || a->ncomp > a->sm_cap) {
     for (int l = 0; l < 2; l++) {
       dt_model_free(a->sm[l]);
       a->sm[l] = NULL;
@@ -524,16 +561,20 @@ static int single_line_models(dt_analysis *a) {
       cfg.fwhm_kms = a->mkey.fwhm;
       cfg.oversample = a->opts.oversample;
       cfg.tau_cut = a->opts.tau_cut;
-      a->sm[l] = dt_model_alloc(a->s->wave + a->i0, n, &cfg, DT_MAX_COMP, NULL);
+      /* sized for the components at hand: a model's buffers grow with
+       * its capacity, and most spectra have one or two */
+      a->sm[l] = dt_model_alloc(a->s->wave + a->i0, n, &cfg, a->ncomp, NULL);
       if (!a->sm[l]) return DT_ENOMEM;
     }
     a->smkey = a->mkey;
+    a->sm_cap = a->ncomp;
     a->have_sm = 1;
   }
   for (int l = 0; l < 2; l++)
     if (dt_model_eval(a->sm[l], a->comp, a->ncomp, a->ltr[l], NULL, 0) != DT_OK)
       return DT_EINVAL;
   a->have_ltr = 1;
+  a->ltr_exact = 1;
   return DT_OK;
 }
 
@@ -618,7 +659,7 @@ static int measure_lines(dt_analysis *a, double v1, double v2, double l1, double
   const dt_doublet *d = a->d;
   dt_measure_opts mo;
   measure_opts(a, &mo);
-  int st = single_line_models(a);
+  int st = single_line_models(a, fmin(v1, full ? l1 : v1), fmax(v2, full ? l2 : v2));
   if (st != DT_OK) {
     *saturated = 0;
     for (int l = 0; l < 2; l++) {

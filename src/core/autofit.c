@@ -800,9 +800,6 @@ static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *base,
   int grow = want ? ns < want : (ns > 0 && op->nseed == 0);
   if (grow) grow_by_bic(&c, a, base, j, op, want, &f);
   hold_state(a, base, &f.best);
-  /* the limits and intervals, once, for the state reported (the analysis
-   * holds it after hold_state, or f.best is the run of no components) */
-  if (intervals_off == 0) dt_analysis_remeasure(a, &f.best);
   /* the profile-likelihood intervals, once, for the fit reported */
   if (f.st == DT_OK && f.best.fit.ncomp > 0 && !intervals_off) {
     dt_judgement fin = *base;
@@ -810,9 +807,12 @@ static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *base,
     memcpy(fin.comp, f.best.fit.comp, fin.ncomp * sizeof fin.comp[0]);
     dt_analysis_intervals(a, &fin, &f.best, 1.0);
   }
-  o->an = f.best;
-
   verdict(&cd, &f, o);
+  /* the limits, once, for the state reported unless it is a detection (the
+   * analysis holds it after hold_state, or f.best is the run of no
+   * components) */
+  if (intervals_off == 0 && o->suggested != DT_VERDICT_DETECTED) dt_analysis_remeasure(a, &f.best);
+  o->an = f.best;
 
   /* 6. the judgement takes the components and the fit */
   j->ncomp = f.best.fit.ncomp;
@@ -847,13 +847,20 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
   memset(base.frozen, 0, sizeof base.frozen);
   base.has_fit = 0;
   dt_analysis_out an0;
+  /* the search's many fits skip the intervals and limits; the reported
+   * state gets them */
+  int off = dt_analysis_no_intervals(a, 1);
   int st = dt_analysis_eval(a, &base, &an0, e);
-  if (st != DT_OK) return st;
+  if (st != DT_OK) {
+    dt_analysis_no_intervals(a, off);
+    return st;
+  }
   /* the depth profiles of both lines with their errors */
   double *work = malloc(4 * an0.n * sizeof *work);
-  if (!work) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
-  /* the search's many fits skip the intervals; the final one gets them */
-  int off = dt_analysis_no_intervals(a, 1);
+  if (!work) {
+    dt_analysis_no_intervals(a, off);
+    return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  }
   st = first_pass(a, j, &base, &op, &an0, work, off, o, e);
   dt_analysis_no_intervals(a, off);
   free(work);

@@ -6,11 +6,12 @@
 #include <string.h>
 #include <time.h>
 
-#define ACCEPT 0.05      /* a first probe this close (relative dchi2): done */
+#define ACCEPT 0.1       /* a first probe this close (relative dchi2): done
+                            (the end then within ~5% of the error) */
 #define XTOL 0.02        /* dex */
 #define MAX_STEPS 12     /* doublings per side */
 #define MAX_ROOT 8       /* regula falsi iterations per side */
-#define PROFILE_MAX_ITER 40  /* iterations of one refit */
+#define PROFILE_MAX_ITER 15  /* iterations of one refit (it starts next to its optimum) */
 #define PROFILE_TIME 0.1     /* seconds of one refit */
 #define PROFILE_MAX_FITS 80  /* refits of one interval at most ... */
 #define PROFILE_BUDGET 2.0   /* ... and seconds: then it is incomplete */
@@ -97,7 +98,8 @@ static double side(prof *P, double x0, double s, double dchi2, int dir) {
   if (!isfinite(xb)) return NAN;
   /* regula falsi (Illinois) between xa (h < 0) and xb (h >= 0) */
   int last = 0;
-  for (int i = 0; i < MAX_ROOT && fabs(xb - xa) > XTOL; i++) {
+  double xtol = fmin(XTOL, 0.1 * s);   /* a tenth of the error at least */
+  for (int i = 0; i < MAX_ROOT && fabs(xb - xa) > xtol; i++) {
     double x = xb - hb * (xb - xa) / (hb - ha);
     double h = sqrt(fmax(chi2_at(P, x) - P->chi0, 0.0)) - t;
     if (P->incomplete) return NAN;
@@ -147,7 +149,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.t0 = now_s();
   double s = r->err[k].logN;
   if (!(s > 0) || !isfinite(s)) s = 0.3;
-  s = fmin(fmax(s, 0.01), 0.5);
+  s = fmin(fmax(s, 0.001), 0.5);
   double lo = NAN, hi = NAN;
   for (int pass = 0; pass < 2; pass++) {
     hi = side(&P, x0, s, dchi2, +1);
