@@ -26,7 +26,10 @@
  * components, from the lowest v - (2b + FWHM) to the highest v + (2b + FWHM)
  * (FWHM of the LSF in km/s), and without components +-max(FWHM, 3 pixels)
  * around v = 0, clipped to the judgement's window.  (A close doublet puts
- * the other line inside a wide window: Na I's lines are 304 km/s apart.)
+ * the other line inside a wide window: Na I's lines are 304 km/s apart.
+ * Each line is therefore measured with the other removed by the fitted
+ * model's decomposition, and masked pixels filled from the model: see
+ * dt_analysis_line's masked_frac and blend.)
  * With a joint continuum, the continuum shown and measured against is the
  * fixed continuum times the fitted polynomial; its error is that of the
  * fixed part only. */

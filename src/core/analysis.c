@@ -12,7 +12,11 @@
  * components, FWHM the LSF's in km/s; without, +-max(FWHM, 3 pixels) around
  * v = 0; clipped to the judgement's window.  A close doublet (Na I: the lines
  * are 304 km/s apart) puts the other line inside a wide window, which is why
- * the integration does not default to the whole window. */
+ * the integration does not default to the whole window, and why each line
+ * is measured on its own view (line_view: the other line divided out with
+ * the fitted model, masked pixels filled from it).  Limits scan a box over
+ * the range (measure.h, dt_measure_limit) and go through the curve of
+ * growth (cog.h); the profile-likelihood intervals are profile.c's. */
 #include "doubletty/analysis.h"
 
 #include <math.h>
