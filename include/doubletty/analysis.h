@@ -166,7 +166,9 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
 /* Profile-likelihood intervals of log N at dchi2 (1: 1 sigma) for every
  * component of out->fit, the fit of the last dt_analysis_run with j, into
  * out->logN_int (have_intervals = 1).  dt_analysis_run does this itself
- * (dchi2 = 1) after a successful fit unless opts.no_intervals; the first
+ * (dchi2 = 1) after a successful fit unless opts.no_intervals, within
+ * DT_ANALYSIS_RUN_INTERVAL_S seconds in all (an interval it cannot finish
+ * in time is marked incomplete: the covariance error stands); the first
  * pass (autofit.h) does it once for its final fit.  Costs one to a few
  * dozen refits per component (one per side where the profile is a
  * parabola); none in the linear regime (optically thin at the fitted b,
@@ -175,6 +177,7 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
  * the interval.  DT_OK; DT_EINVAL no successful fit to take it from. */
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2);
+#define DT_ANALYSIS_RUN_INTERVAL_S 0.03
 /* Warnings a reader of the measurements must see, as one line of text
  * into buf: damping wings in the continuum regions (cont_tau above
  * DT_ANALYSIS_CONT_TAU), a line whose window is partly taken from the

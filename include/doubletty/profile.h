@@ -50,10 +50,11 @@ typedef struct dt_profile_interval {
 const char *dt_profile_flag_name(int flag);
 
 /* The interval of component k for the problem p (as fitted) and its best
- * fit r (status DT_OK).  A component whose log N is frozen gets
+ * fit r (status DT_OK), in at most budget seconds (0, or more than the
+ * 2 s cap: the cap; beyond it the interval is incomplete).  A component whose log N is frozen gets
  * lo = hi = its value.  Uses w for the refits (its last-run diagnostics
  * change).  DT_OK; DT_EINVAL bad arguments. */
 int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_result *r,
-                    size_t k, double dchi2, dt_profile_interval *out);
+                    size_t k, double dchi2, double budget, dt_profile_interval *out);
 
 #endif

@@ -97,6 +97,9 @@ struct dt_analysis {
                              from the line's own model */
 #define BLEND_DEPTH 0.01  /* the other line's model is this deep: divided out */
 
+static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
+                     double budget);
+
 void dt_analysis_opts_init(dt_analysis_opts *o) {
   memset(o, 0, sizeof *o);
   o->limit_nsigma = 3.0;
@@ -899,8 +902,10 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   dt_fit_chi2(a->fw, &q, out->fit.comp, out->fit.cont_coef, a->model, &chi2, &npix);
   set_continuum(a, out->fit.cont_coef, out->fit.ncont);
   finish(a, j, out->fit.comp, out->fit.ncomp, out);
+  /* a run (a keystroke of the inspector) spends little on them; the
+   * first pass and explicit calls what they need */
   if (fst == DT_OK && !a->opts.no_intervals && out->fit.ncomp > 0)
-    dt_analysis_intervals(a, j, out, 1.0);
+    intervals(a, j, out, 1.0, DT_ANALYSIS_RUN_INTERVAL_S / (double)out->fit.ncomp);
   if (fst != DT_OK) {
     if (e) *e = fe;
     return fst;
@@ -929,8 +934,8 @@ static int linear_regime(const dt_analysis *a, const dt_analysis_out *out, size_
   return 1;
 }
 
-int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
-                          double dchi2) {
+static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
+                     double budget) {
   out->have_intervals = 0;
   if (!a->have_run || !a->fw || out->fit.status != DT_OK || out->fit.ncomp != j->ncomp ||
       !(dchi2 > 0))
@@ -949,10 +954,15 @@ int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out
       pi->hi = pi->best + h;
       continue;
     }
-    dt_profile_logN(a->fw, &p, r, k, dchi2, &out->logN_int[k]);
+    dt_profile_logN(a->fw, &p, r, k, dchi2, budget, &out->logN_int[k]);
   }
   out->have_intervals = 1;
   return DT_OK;
+}
+
+int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                          double dchi2) {
+  return intervals(a, j, out, dchi2, 0);
 }
 
 int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out) {

@@ -29,6 +29,7 @@ typedef struct prof {
   double chi0, chimin, xmin;
   int nfits;
   double t0;          /* start [s] */
+  double budget;      /* seconds it may take */
   int incomplete;     /* ran out of refits or time */
 } prof;
 
@@ -41,7 +42,7 @@ static double now_s(void) {
 /* chi2 of the profile at log N_k = x (the rest refitted, starting from
  * the last solution on this side). */
 static double chi2_at(prof *P, double x) {
-  if (P->nfits >= PROFILE_MAX_FITS || now_s() - P->t0 > PROFILE_BUDGET) {
+  if (P->nfits >= PROFILE_MAX_FITS || now_s() - P->t0 > P->budget) {
     P->incomplete = 1;
     return NAN;
   }
@@ -120,7 +121,7 @@ static double side(prof *P, double x0, double s, double dchi2, int dir) {
 }
 
 int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_result *r,
-                    size_t k, double dchi2, dt_profile_interval *out) {
+                    size_t k, double dchi2, double budget, dt_profile_interval *out) {
   if (!w || !p || !r || !out || k >= r->ncomp || r->ncomp != p->ncomp || !(dchi2 > 0))
     return DT_EINVAL;
   memset(out, 0, sizeof *out);
@@ -147,6 +148,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.chi0 = P.chimin = r->chi2;
   P.xmin = x0;
   P.t0 = now_s();
+  P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : PROFILE_BUDGET;
   double s = r->err[k].logN;
   if (!(s > 0) || !isfinite(s)) s = 0.3;
   s = fmin(fmax(s, 0.001), 0.5);
