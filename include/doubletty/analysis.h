@@ -177,7 +177,7 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
  * the interval.  DT_OK; DT_EINVAL no successful fit to take it from. */
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2);
-#define DT_ANALYSIS_RUN_INTERVAL_S 0.03
+#define DT_ANALYSIS_RUN_INTERVAL_S 0.01
 /* Warnings a reader of the measurements must see, as one line of text
  * into buf: damping wings in the continuum regions (cont_tau above
  * DT_ANALYSIS_CONT_TAU), a line whose window is partly taken from the
