@@ -18,11 +18,18 @@
  * [i0, i0 + n) of the spectrum (out->i0, out->n), and stay valid until the
  * next run or dt_analysis_free.
  *
+ * Upper limits (W_limit, logN_limit): over the measurement window when
+ * one is given in the options, otherwise over the judgement's whole
+ * window [vlo, vhi] (where absorption may be); dt_analysis_measure_range
+ * over its range.
  * Measurement window: opts.int_vlo..int_vhi when given; otherwise, with
  * components, from the lowest v - (2b + FWHM) to the highest v + (2b + FWHM)
  * (FWHM of the LSF in km/s), and without components +-max(FWHM, 3 pixels)
  * around v = 0, clipped to the judgement's window.  (A close doublet puts
- * the other line inside a wide window: Na I's lines are 304 km/s apart.)
+ * the other line inside a wide window: Na I's lines are 304 km/s apart.
+ * Each line is therefore measured with the other removed by the fitted
+ * model's decomposition, and masked pixels filled from the model: see
+ * dt_analysis_line's masked_frac and blend.)
  * With a joint continuum, the continuum shown and measured against is the
  * fixed continuum times the fitted polynomial; its error is that of the
  * fixed part only. */
@@ -32,10 +39,19 @@
 #include "doubletty/atomic.h"
 #include "doubletty/fit.h"
 #include "doubletty/judge.h"
+#include "doubletty/profile.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
 
 #define DT_ANALYSIS_CONT_MARGIN 1500.0  /* km/s */
+/* Doppler parameter assumed for column-density limits [km/s]: cold gas.  A
+ * smaller b puts a given W further up the curve of growth (a larger N), so
+ * the limit of gas broader than this is conservative. */
+#define DT_ANALYSIS_LIMIT_B 2.0
+/* The box over which limits are measured is +- the FWHM of a line of this
+ * b [km/s] seen through the LSF (measure.h, dt_measure_limit): it holds
+ * >= 98% of the W of lines up to this b. */
+#define DT_ANALYSIS_LIMIT_BOX_B 10.0
 
 typedef struct dt_analysis_opts {
   size_t joint_cont;    /* 0: the continuum is fixed during the fit; k > 0:
@@ -44,6 +60,7 @@ typedef struct dt_analysis_opts {
   int oversample;       /* model sub-samples per pixel (0: model default) */
   double tau_cut;       /* model wing truncation (0: model default) */
   double limit_nsigma;  /* significance of upper limits (default 3) */
+  double limit_b;       /* b [km/s] of column limits (default DT_ANALYSIS_LIMIT_B) */
   double int_vlo, int_vhi; /* measurement (integration) window [km/s];
                               int_vlo >= int_vhi: the judgement's vlo..vhi */
   double cont_margin_kms; /* automatic continuum: fitted over the selection
@@ -51,6 +68,8 @@ typedef struct dt_analysis_opts {
                               each line's velocity window excluded (default
                               DT_ANALYSIS_CONT_MARGIN; 0: only the selection,
                               excluding the continuum module's default band) */
+  int no_intervals;     /* 1: dt_analysis_run skips the profile-likelihood
+                           intervals of log N (dt_analysis_intervals) */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
 } dt_analysis_opts;
@@ -69,12 +88,27 @@ typedef struct dt_analysis_line {
   double logN_aod;          /* log10 apparent column density N_a [cm^-2]
                                (Savage & Sembach 1991); NaN if N_a <= 0 */
   double logN_aod_err;      /* its 1-sigma error [dex] */
-  double W_limit;           /* limit_nsigma * W_err [Angstrom] */
-  double logN_limit;        /* log10 N upper limit from W_limit on the linear
-                               curve of growth */
+  double W_limit;           /* upper limit on W anywhere in the range
+                               (dt_measure_limit in measure.h) [Angstrom] */
+  double v_limit;           /* the velocity where the limit is set [km/s] */
+  double logN_limit;        /* log10 N [cm^-2] of W_limit on the full curve
+                               of growth (cog.h) at b = opts.limit_b */
   size_t nsat;              /* saturated pixels in the window */
   size_t npix;              /* pixels in the window */
+  double masked_frac;       /* fraction of the window's pixels masked (or
+                               unusable), filled from the fitted model */
+  int blend;                /* DT_BLEND_*: the other line of the doublet in
+                               this line's window */
+  double blend_frac;        /* fraction of the window's pixels taken from
+                               the model because the other line is black */
 } dt_analysis_line;
+
+enum {
+  DT_BLEND_NONE = 0,        /* the other line's model absorbs < 1% here */
+  DT_BLEND_DIVIDED,         /* its fitted absorption was divided out */
+  DT_BLEND_MODEL            /* it transmits < 50% somewhere: those pixels
+                               come from this line's own fitted model */
+};
 
 typedef struct dt_analysis_out {
   const dt_doublet *doublet;
@@ -96,6 +130,16 @@ typedef struct dt_analysis_out {
   dt_fit_info fit_info;     /* the fit's diagnostics (parameters at a bound,
                                convergence reason, time); zeros when nothing
                                was fitted */
+  double cont_tau;          /* the fitted components' largest optical depth
+                               (both lines, no LSF) at the inner edges of
+                               the continuum regions: > DT_ANALYSIS_CONT_TAU
+                               means damping wings reach them and pull the
+                               continuum down (dt_analysis_warning); 0 with
+                               no components or a fixed continuum */
+  double cont_tau_at;       /* where [Angstrom] */
+  int have_intervals;       /* 1: logN_int holds the components' intervals */
+  dt_profile_interval logN_int[DT_MAX_COMP]; /* 1-sigma profile-likelihood
+                               interval of each component's log N (profile.h) */
 } dt_analysis_out;
 
 typedef struct dt_analysis dt_analysis;
@@ -119,11 +163,55 @@ void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o);
 int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                     dt_err *e);
 
+/* Profile-likelihood intervals of log N at dchi2 (1: 1 sigma) for every
+ * component of out->fit, the fit of the last dt_analysis_run with j, into
+ * out->logN_int (have_intervals = 1).  dt_analysis_run does this itself
+ * (dchi2 = 1) after a successful fit unless opts.no_intervals, within
+ * DT_ANALYSIS_RUN_INTERVAL_S seconds in all (an interval it cannot finish
+ * in time is marked incomplete: the covariance error stands); the first
+ * pass (autofit.h) does it once for its final fit.  Costs one to a few
+ * dozen refits per component (one per side where the profile is a
+ * parabola); none in the linear regime (optically thin at the fitted b,
+ * tau0 < 0.3; covariance error < 0.1 dex; no saturation flag, bound or
+ * neighbour within FWHM + 2 (b_k + b_j)), where the covariance error is
+ * the interval.  DT_OK; DT_EINVAL no successful fit to take it from. */
+int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                          double dchi2);
+#define DT_ANALYSIS_RUN_INTERVAL_S 0.01
+/* Warnings a reader of the measurements must see, as one line of text
+ * into buf: damping wings in the continuum regions (cont_tau above
+ * DT_ANALYSIS_CONT_TAU), a line whose window is partly taken from the
+ * model because the other line is black there.  Returns 1 when there is
+ * any, else 0 with buf "". */
+int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n);
+#define DT_ANALYSIS_CONT_TAU 0.01
+
+/* Switch the intervals of dt_analysis_run off (1) or on (0) without
+ * touching the other options; returns the previous setting.  Off, the runs
+ * also skip the upper limits (W_limit, logN_limit NaN): a search that
+ * runs many fits measures them once at the end (dt_analysis_remeasure). */
+int dt_analysis_no_intervals(dt_analysis *a, int off);
+/* The measurements of out->line again, limits included, for the state of
+ * the last run or eval (out must be that run's).  DT_OK or the
+ * measurement's error; DT_EINVAL before any run. */
+int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out);
+
 /* The same without fitting: the model of j's components as they are, its
  * chi2, the continuum and the measurements (e.g. to show a restored state
  * or a component being nudged). */
 int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                      dt_err *e);
+
+/* Measurements of both lines (out[0] the stronger) over the velocity range
+ * [vlo, vhi] km/s relative to the judgement's vsys, each line in its own
+ * frame, against the continuum and the fitted model of the last
+ * dt_analysis_run or dt_analysis_eval (nothing is refitted).  The run's
+ * own measurements (out->line) come from the same code over out->meas_vlo
+ * .. meas_vhi.  Returns DT_OK; DT_EINVAL no run yet or an empty range;
+ * the measurement's error (DT_ERANGE range outside the data, DT_EMASKED)
+ * with out[] NaN.  e may be NULL. */
+int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
+                              dt_err *e);
 
 /* Arrays over the selected pixels (n values) of the last run; NULL before
  * a successful run. */
@@ -148,13 +236,6 @@ const double *dt_analysis_residual(const dt_analysis *a);
  * [j->vlo, j->vhi]; NaN outside it and at masked pixels. */
 const double *dt_analysis_na_profile(const dt_analysis *a, int line);
 const double *dt_analysis_na_profile_err(const dt_analysis *a, int line);
-
-/* Measurements of both lines (out[0] the stronger) over [vlo, vhi] km/s
- * relative to vsys, from the continuum and model of the last run, without
- * refitting.  DT_OK; DT_ERANGE before a successful run; DT_EINVAL for an
- * empty range; the measurement's error otherwise (values NaN). */
-int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
-                              dt_err *e);
 
 /* Refit a recorded state with an analysis of its spectrum (analysis.h; its
  * options must be those the fit was made with -- e.g. joint_cont = the

@@ -21,6 +21,12 @@
  *                     one line only), "implausible doublet ratio", "poor fit
  *                     (chi2_red X)" (confirmed, but chi2_red > 3), "fit did
  *                     not converge"
+ *    A doubtful model (chi2 well above its dof while one more component,
+ *    rejected by the BIC margin, improves chi2 significantly) adds
+ *    "; +1 comp: chi2 -X, BIC short Y" to the reason.
+ *    The reported fit gets its profile-likelihood intervals of log N
+ *    (analysis.h, dt_analysis_intervals) once, at the end; the search's
+ *    fits skip them.
  * Black cores: when pixels of either line reach zero flux (the floor of
  * the apparent optical depth, measure.h) N_a is no measurement there, and
  * steps 1-3 run on the depth 1 - F/C instead: both lines' equivalent
@@ -57,7 +63,16 @@ void dt_autofit_opts_init(dt_autofit_opts *o);
 
 typedef struct dt_autofit_out {
   dt_verdict suggested;        /* DETECTED, NOT_DETECTED or UNSURE */
-  char reason[64];             /* a few words, e.g. "doublet confirmed" */
+  char reason[64];             /* a few words, e.g. "doublet confirmed"; a
+                                  doubtful model adds "; +1 comp: chi2 -X,
+                                  BIC short Y" (doubt_* below) */
+  double doubt_dchi2;          /* > 0: the fit's chi2 lies more than 3 sigma
+                                  above its dof, and one more component,
+                                  rejected by the BIC margin, lowered chi2 by
+                                  this much -- more than chance would (0.1%
+                                  point of chi2 for its extra parameters) */
+  double doubt_bic;            /* by how much that component missed the
+                                  margin (BIC units) */
   size_t ncand;                /* absorption intervals found in line 0 ... */
   double cand_v[DT_MAX_COMP];  /* ... their velocities [km/s] */
   int cand_confirmed[DT_MAX_COMP]; /* 1: the weaker line confirms it */

@@ -92,6 +92,10 @@ typedef struct dt_fit_problem {
   int tie_b;                     /* 1: one b for all components */
   double vlo, vhi;               /* velocity bounds [km/s], vlo < vhi */
   int max_iter;                  /* 0: DT_FIT_MAX_ITER */
+  int single_run;                /* 1: no second, accelerated run when the
+                                    solution looks suspicious (near a bound
+                                    or a high chi2) -- for refits that start
+                                    next to an optimum on purpose */
   double time_limit;             /* seconds (monotonic clock); 0: DT_FIT_TIME_LIMIT;
                                     < 0: none (the iteration limit still holds) */
 } dt_fit_problem;

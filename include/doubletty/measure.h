@@ -30,10 +30,16 @@
  * (including F <= 0) the flux is raised to the floor and the pixel counted in
  * nfloor; N_a is then a lower limit.
  *
- * Saturation flag of a doublet: for unresolved saturated structure N_a of the
- * stronger line falls below that of the weaker line (Savage & Sembach 1991).
- * The flag is set when N_a(weak) - N_a(strong) exceeds sat_nsigma times the
- * combined error, or when either line has floored pixels.
+ * Saturation flag of a doublet (dt_measure_saturated), from both ratios:
+ * for unresolved saturated structure N_a of the stronger line falls below
+ * that of the weaker line (Savage & Sembach 1991), and the ratio of the
+ * equivalent widths W_s/W_w falls from its optically thin value
+ * R = f_s lambda_s^2 / (f_w lambda_w^2) (~2 for Na I; the linear curve of
+ * growth) towards 1.  The flag is set when N_a(weak) - N_a(strong) exceeds
+ * sat_nsigma times the combined error, or when the stronger line is
+ * significant (W_s >= 3 sigma) and R W_w - W_s exceeds sat_nsigma times
+ * sqrt((R sigma_Ww)^2 + sigma_Ws^2), or when either line has floored
+ * pixels.
  *
  * Upper limits: W_limit = limit_nsigma * sigma_W (the noise of the window, as
  * measured), and the column on the linear part of the curve of growth,
@@ -103,11 +109,32 @@ int dt_measure_line(const dt_measure_input *in, const dt_line *line, double v1,
                     double v2, const dt_measure_opts *o, dt_line_measure *out,
                     double *Na_v, double *Na_v_err, dt_err *e);
 
+/* The upper limit on a line's rest-frame equivalent width anywhere in
+ * [v1, v2]: the box [vc - hw, vc + hw] is moved over every pixel centre vc
+ * inside [v1, v2] (and vc = v1, v2), its W(vc) and sigma_W(vc) measured as
+ * by dt_measure_line, and
+ *     W_limit = max over vc of W(vc) + nsigma sigma_W(vc),
+ * *v_at the vc where the maximum is.  For a line of true width W_t centred
+ * at v_t in the range whose profile the box holds, W(v_t) is Gaussian about
+ * W_t, so P(W_t > W(v_t) + n sigma) = Phi(-n); the maximum is at least
+ * that term, so W_t exceeds W_limit with probability at most Phi(-n)
+ * wherever the line lies (a one-sided confidence bound that holds at the
+ * unknown position; common practice for a bound valid over a search).
+ * Boxes are clipped to the region's pixels only.  DT_OK; DT_EINVAL bad
+ * arguments; DT_ERANGE no box measurable. */
+int dt_measure_limit(const dt_measure_input *in, const dt_line *line, double v1, double v2,
+                     double hw, double nsigma, double *W_limit, double *v_at, dt_err *e);
+
 /* Both lines of a doublet over the same velocity window, and the
  * saturation test.  The profiles are not returned (use dt_measure_line). */
 int dt_measure_doublet(const dt_measure_input *in, const dt_doublet *d, double v1,
                        double v2, const dt_measure_opts *o, dt_doublet_measure *out,
                        dt_err *e);
+
+/* The saturation flag above from the two lines' measurements (s the
+ * stronger line of d, w the weaker). */
+int dt_measure_saturated(const dt_line_measure *s, const dt_line_measure *w,
+                         const dt_doublet *d, const dt_measure_opts *o);
 
 /* Constants of the formulas above, from DT_SIGMA0 and DT_C_KMS. */
 double dt_aod_const(void);        /* ~3.768e14 */

@@ -42,9 +42,10 @@
 static const char *const COLUMNS[] = {
     "index", "file", "name", "hdu", "row", "object", "doublet", "system", "vsys", "status",
     "ncomp", "component", "v_kms", "v_err", "b_kms", "b_err", "logN", "logN_err",
+    "logN_err_lo", "logN_err_hi", "logN_flag",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
+    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
 /* the last columns: position and velocity frame (pos_cells) */
 #define NPOSCOLUMNS 3
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
@@ -69,6 +70,7 @@ typedef struct {
   size_t nseed;
   double seed_v[DT_MAX_COMP];
   double limit_nsigma;
+  double limit_b;               /* b of column-density limits [km/s] */
   int joint_cont;               /* Legendre coefficients fitted with the components */
   dt_read_opts ropts;
   long row;                     /* --row: only this row of tables */
@@ -117,6 +119,8 @@ static void usage(FILE *f) {
           "  --joint-continuum K     also fit K multiplicative Legendre coefficients\n"
           "                          of the continuum together with the components\n"
           "  --limit-sigma S         significance of upper limits (default 3)\n"
+          "  --limit-b KMS           Doppler parameter of column-density limits\n"
+          "                          (full curve of growth; default 2)\n"
           "  --atomic FILE           extra atomic table (adds or replaces doublets)\n"
           "  --row N                 only row N of multi-row tables (default: all rows)\n"
           "  --wave-col C --flux-col C --err-col C --mask-col C   table columns\n"
@@ -248,7 +252,10 @@ static void honest_reason(const run *r, const dt_judgement *j, const dt_autofit_
   if (bound && len < n)
     len += (size_t)snprintf(buf + len, n - len, "%sparameters at the limit of their range",
                             len ? "; " : "");
-  if (note && note[0] && len < n) snprintf(buf + len, n - len, "%s%s", len ? "; " : "", note);
+  if (note && note[0] && len < n) len += (size_t)snprintf(buf + len, n - len, "%s%s", len ? "; " : "", note);
+  char warn[160];
+  if (dt_analysis_warning(&o->an, warn, sizeof warn) && len < n)
+    snprintf(buf + len, n - len, "%s%s", len ? "; " : "", warn);
 }
 
 /* The rows of one spectrum: one per component, in the fit's order, each
@@ -288,8 +295,14 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
       dt_csv_fixed(w, fr->err[k].b, 3);
       dt_csv_fixed(w, fr->comp[k].logN, 4);
       dt_csv_fixed(w, fr->err[k].logN, 4);
+      const dt_profile_interval *pi = &an->logN_int[k];
+      if (an->have_intervals && isfinite(pi->lo)) dt_csv_fixed(w, fr->comp[k].logN - pi->lo, 4);
+      else dt_csv_empty(w);
+      if (an->have_intervals && isfinite(pi->hi)) dt_csv_fixed(w, pi->hi - fr->comp[k].logN, 4);
+      else dt_csv_empty(w);
+      dt_csv_text(w, an->have_intervals && !pi->incomplete ? dt_profile_flag_name(pi->flag) : "");
     } else {
-      for (int e = 0; e < 7; e++) dt_csv_empty(w);
+      for (int e = 0; e < 10; e++) dt_csv_empty(w);
     }
     dt_csv_fixed(w, fr->chi2_red, 4);
     dt_csv_long(w, fr->dof);
@@ -305,6 +318,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     dt_csv_fixed(w, b->logN_aod, 4);
     dt_csv_fixed(w, b->logN_aod_err, 4);
     dt_csv_text(w, dt_systems_saturated(sr->line) ? "1" : "0");
+    dt_csv_fixed(w, a->masked_frac, 3);
     /* the limits are given unless the first pass calls the system detected */
     if (sr->suggested != DT_VERDICT_DETECTED) {
       dt_csv_fixed(w, 1e3 * a->W_limit, 2);
@@ -438,6 +452,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     dt_analysis_opts ao;
     dt_analysis_opts_init(&ao);
     ao.limit_nsigma = c->limit_nsigma;
+    ao.limit_b = c->limit_b;
     ao.joint_cont = (size_t)c->joint_cont;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
@@ -675,6 +690,8 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_csv_comment(w, "joint-continuum", buf);
   dt_num_format(buf, sizeof buf, c->limit_nsigma);
   dt_csv_comment(w, "limit-sigma", buf);
+  dt_num_format(buf, sizeof buf, c->limit_b);
+  dt_csv_comment(w, "limit-b", buf);
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
   snprintf(buf, sizeof buf, "%ld", c->row);
   dt_csv_comment(w, "row", c->row ? buf : "");
@@ -711,7 +728,7 @@ static void write_settings(dt_csv *w, const config *c) {
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -725,6 +742,7 @@ static const struct option LONGOPTS[] = {
     {"continuum-order", required_argument, NULL, O_CORDER},
     {"joint-continuum", required_argument, NULL, O_JOINT},
     {"limit-sigma", required_argument, NULL, O_LIMSIG},
+    {"limit-b", required_argument, NULL, O_LIMB},
     {"atomic", required_argument, NULL, O_ATOMIC},
     {"row", required_argument, NULL, O_ROW},
     {"wave-col", required_argument, NULL, O_WCOL},
@@ -812,6 +830,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     c->joint_cont = (int)l;
     return 0;
   case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
+  case O_LIMB: return positive("--limit-b", v, "the Doppler parameter", &c->limit_b);
   case O_ATOMIC: c->atomic_file = v; return 0;
   case O_ROW:
     if (cli_parse_long("--row", v, &l)) return 1;
@@ -869,6 +888,7 @@ int cmd_fit(int argc, char **argv) {
   c.shard_n = 1;
   c.limit_nsigma = 3.0;
   dt_system_opts_init(&c.systems);
+  c.limit_b = DT_ANALYSIS_LIMIT_B;
   source *src = calloc((size_t)argc + 1, sizeof *src);
   size_t nsrc = 0;
   int rc = 2;

@@ -12,13 +12,19 @@
  * components, FWHM the LSF's in km/s; without, +-max(FWHM, 3 pixels) around
  * v = 0; clipped to the judgement's window.  A close doublet (Na I: the lines
  * are 304 km/s apart) puts the other line inside a wide window, which is why
- * the integration does not default to the whole window. */
+ * the integration does not default to the whole window, and why each line
+ * is measured on its own view (line_view: the other line divided out with
+ * the fitted model, masked pixels filled from it).  Limits scan a box over
+ * the range (measure.h, dt_measure_limit) and go through the curve of
+ * growth (cog.h); the profile-likelihood intervals are profile.c's. */
 #include "doubletty/analysis.h"
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/cog.h"
 #include "doubletty/continuum.h"
 #include "doubletty/legendre.h"
 #include "doubletty/measure.h"
@@ -68,11 +74,36 @@ struct dt_analysis {
   size_t i0, n, ncomp;
   dt_component comp[DT_MAX_COMP];
   double fwhm_kms;
+  const dt_doublet *d;        /* doublet, rest frame and window of the last run */
+  double vsys, jvlo, jvhi;
+  double mv1, mv2, ml1, ml2;  /* its measurement window and limit range */
+  /* each line alone: its transmission under the last components, and the
+   * line as measured (the other line divided out, gaps filled) */
+  double *ltr[2], *lflux[2], *lsig[2];
+  int have_ltr, have_sm;
+  size_t sm_cap;              /* components the single-line models hold */
+  int ltr_exact;              /* ltr from the models (else ones, valid over */
+  double ltr_lo, ltr_hi;      /* this range: nothing of the other line there) */
+  model_key smkey;
+  dt_doublet sd[2];
+  dt_model *sm[2];
+  struct {
+    const dt_line *line;
+    double W, b, logN;
+  } cog_cache[2];
 };
+
+#define BLEND_T 0.5       /* the other line transmits less: the pixel is taken
+                             from the line's own model */
+#define BLEND_DEPTH 0.01  /* the other line's model is this deep: divided out */
+
+static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
+                     double budget);
 
 void dt_analysis_opts_init(dt_analysis_opts *o) {
   memset(o, 0, sizeof *o);
   o->limit_nsigma = 3.0;
+  o->limit_b = DT_ANALYSIS_LIMIT_B;
   o->cont_margin_kms = DT_ANALYSIS_CONT_MARGIN;
 }
 
@@ -96,7 +127,10 @@ static void free_buffers(dt_analysis *a) {
     free(a->vel[l]);
     free(a->na[l]);
     free(a->na_err[l]);
-    a->vel[l] = a->na[l] = a->na_err[l] = NULL;
+    free(a->ltr[l]);
+    free(a->lflux[l]);
+    free(a->lsig[l]);
+    a->vel[l] = a->na[l] = a->na_err[l] = a->ltr[l] = a->lflux[l] = a->lsig[l] = NULL;
   }
   free(a->cont_fixed); free(a->cont_err); free(a->cont); free(a->model);
   free(a->resid); free(a->poly); free(a->tmp); free(a->used); free(a->fitmask);
@@ -113,6 +147,8 @@ void dt_analysis_free(dt_analysis *a) {
   free(a->rcont);
   free(a->rerr);
   dt_model_free(a->m);
+  dt_model_free(a->sm[0]);
+  dt_model_free(a->sm[1]);
   dt_fit_free(a->fw);
   dt_cont_free(a->cw);
   free(a);
@@ -135,6 +171,9 @@ static int ensure_cap(dt_analysis *a, size_t n) {
     GET(a->vel[l], n);
     GET(a->na[l], n);
     GET(a->na_err[l], n);
+    GET(a->ltr[l], n);
+    GET(a->lflux[l], n);
+    GET(a->lsig[l], n);
   }
   GET(a->cont_fixed, n); GET(a->cont_err, n); GET(a->cont, n); GET(a->model, n);
   GET(a->resid, n); GET(a->poly, n); GET(a->tmp, n); GET(a->used, n); GET(a->fitmask, n);
@@ -446,6 +485,319 @@ static void set_continuum(dt_analysis *a, const double *coef, size_t ncoef) {
   }
 }
 
+/* The measurement input over the selection: the spectrum's pixels against
+ * the continuum of the last run. */
+static void measure_input(const dt_analysis *a, dt_measure_input *in) {
+  const dt_spectrum *s = a->s;
+  in->n = a->n;
+  in->wave = s->wave + a->i0;
+  in->flux = s->flux + a->i0;
+  in->sigma = s->sigma + a->i0;
+  in->mask = s->mask + a->i0;
+  in->cont = a->cont;
+  in->cont_err = a->cont_err;
+  in->vsys = a->vsys;
+}
+
+static void measure_opts(const dt_analysis *a, dt_measure_opts *mo) {
+  dt_measure_opts_init(mo);
+  if (a->opts.limit_nsigma > 0) mo->limit_nsigma = a->opts.limit_nsigma;
+}
+
+/* Whether the single-line models matter for measurements over [lo, hi]
+ * (each line's frame): a pixel to fill (masked or unusable) there, or a
+ * component whose image in the other line's frame (v shifted by the
+ * lines' separation) comes within reach of it -- 3 FWHM + 5 b, and
+ * everywhere for columns with damping wings (log N > 17). */
+static int models_needed(const dt_analysis *a, double lo, double hi) {
+  const dt_spectrum *s = a->s;
+  for (size_t i = 0; i < a->n; i++) {
+    size_t p = a->i0 + i;
+    int bad = s->mask[p] || !isfinite(s->flux[p]) || !(s->sigma[p] > 0) || !isfinite(s->sigma[p]);
+    if (!bad) continue;
+    for (int l = 0; l < 2; l++)
+      if (a->vel[l][i] >= lo && a->vel[l][i] <= hi) return 1;
+  }
+  const dt_doublet *d = a->d;
+  for (size_t k = 0; k < a->ncomp; k++) {
+    const dt_component *c = &a->comp[k];
+    if (c->logN > 17.0) return 1;
+    double reach = 3.0 * a->fwhm_kms + 5.0 * c->b;
+    for (int l = 0; l < 2; l++) {
+      /* component k's line 1-l seen from line l */
+      double w = dt_wavelength(c->v, d->line[1 - l].lambda0, a->vsys);
+      double v = dt_velocity(w, d->line[l].lambda0, a->vsys);
+      if (v + reach >= lo && v - reach <= hi) return 1;
+    }
+  }
+  return 0;
+}
+
+/* The transmission of each line alone under the last run's components
+ * (a->ltr[l], normalised, through the LSF): models of the doublet with the
+ * other line's f scaled to nothing, built when first needed and kept with
+ * the main model.  1 everywhere without components. */
+static int single_line_models(dt_analysis *a, double lo, double hi) {
+  /* valid: the models' values (any range), or ones for a range within */
+  if (a->have_ltr && (a->ltr_exact || (lo >= a->ltr_lo && hi <= a->ltr_hi))) return DT_OK;
+  const size_t n = a->n;
+  a->have_ltr = 0;
+  a->ltr_exact = 0;
+  a->ltr_lo = lo;
+  a->ltr_hi = hi;
+  if (a->ncomp == 0 || !models_needed(a, lo, hi)) {
+    for (int l = 0; l < 2; l++)
+      for (size_t i = 0; i < n; i++) a->ltr[l][i] = 1.0;
+    a->have_ltr = 1;
+    return DT_OK;
+  }
+  if (!a->have_sm || memcmp(&a->smkey, &a->mkey, sizeof a->mkey) != 0 || a->ncomp > a->sm_cap) {
+    for (int l = 0; l < 2; l++) {
+      dt_model_free(a->sm[l]);
+      a->sm[l] = NULL;
+    }
+    a->have_sm = 0;
+    for (int l = 0; l < 2; l++) {
+      a->sd[l] = *a->d;
+      a->sd[l].line[1 - l].f *= 1e-30;
+      dt_model_config cfg;
+      memset(&cfg, 0, sizeof cfg);
+      cfg.doublet = &a->sd[l];
+      cfg.vsys = a->mkey.vsys;
+      cfg.resolution = a->mkey.resolution;
+      cfg.fwhm_kms = a->mkey.fwhm;
+      cfg.oversample = a->opts.oversample;
+      cfg.tau_cut = a->opts.tau_cut;
+      /* sized for the components at hand: a model's buffers grow with
+       * its capacity, and most spectra have one or two */
+      a->sm[l] = dt_model_alloc(a->s->wave + a->i0, n, &cfg, a->ncomp, NULL);
+      if (!a->sm[l]) return DT_ENOMEM;
+    }
+    a->smkey = a->mkey;
+    a->sm_cap = a->ncomp;
+    a->have_sm = 1;
+  }
+  for (int l = 0; l < 2; l++)
+    if (dt_model_eval(a->sm[l], a->comp, a->ncomp, a->ltr[l], NULL, 0) != DT_OK)
+      return DT_EINVAL;
+  a->have_ltr = 1;
+  a->ltr_exact = 1;
+  return DT_OK;
+}
+
+/* log10 N of the limit on the curve of growth at the assumed b, cached:
+ * the runs of a first pass measure the same limit again and again. */
+static double limit_logN(dt_analysis *a, int l, double W) {
+  if (!(W > 0)) return NAN;
+  double b = a->opts.limit_b > 0 ? a->opts.limit_b : DT_ANALYSIS_LIMIT_B;
+  const dt_line *ln = &a->d->line[l];
+  if (a->cog_cache[l].line == ln && a->cog_cache[l].W == W && a->cog_cache[l].b == b)
+    return a->cog_cache[l].logN;
+  double r = dt_cog_logN(ln, W, b);
+  a->cog_cache[l].line = ln;
+  a->cog_cache[l].W = W;
+  a->cog_cache[l].b = b;
+  a->cog_cache[l].logN = r;
+  return r;
+}
+
+/* Line l as the measurement sees it: the other line's fitted absorption
+ * divided out -- flux and sigma times T_l / T, T the whole model's
+ * transmission (model / continuum); without an LSF that is 1 / T_other,
+ * and with one it returns exactly the line's own model where the data
+ * follow the model -- and taken from the line's own model
+ * (continuum * T_l) where the data cannot say: masked or unusable pixels,
+ * and pixels where the other line's model transmits less than BLEND_T.
+ * Counts over the pixels whose centres lie in [v1, v2]. */
+static void line_view(dt_analysis *a, int l, double v1, double v2, dt_analysis_line *L) {
+  const dt_spectrum *s = a->s;
+  const size_t n = a->n, i0 = a->i0;
+  const double *To = a->ltr[1 - l], *Tl = a->ltr[l];
+  double *F = a->lflux[l], *S = a->lsig[l];
+  /* the noise of a filled pixel: the mean sigma of the usable ones near */
+  double ssum = 0;
+  size_t sn = 0;
+  for (size_t i = 0; i < n; i++)
+    if (a->used[i] || (!s->mask[i0 + i] && s->sigma[i0 + i] > 0 && isfinite(s->sigma[i0 + i]))) {
+      ssum += s->sigma[i0 + i];
+      sn++;
+    }
+  double sfill = sn ? ssum / (double)sn : 1.0;
+  size_t nwin = 0, nmask = 0, nblend = 0, ndiv = 0;
+  for (size_t i = 0; i < n; i++) {
+    double f = s->flux[i0 + i], sg = s->sigma[i0 + i], C = a->cont[i];
+    int bad = s->mask[i0 + i] || !isfinite(f) || !(sg > 0) || !isfinite(sg);
+    double v = a->vel[l][i];
+    int in = v >= v1 && v <= v2;
+    nwin += (size_t)in;
+    if (bad) {
+      F[i] = C * Tl[i];
+      S[i] = isfinite(sg) && sg > 0 ? sg : sfill;
+      nmask += (size_t)in;
+    } else if (To[i] < BLEND_T) {
+      F[i] = C * Tl[i];
+      S[i] = sg;
+      nblend += (size_t)in;
+    } else if (To[i] < 1.0) {
+      /* T_l / T, except where the pixel is nearly black (both ratios of
+       * tiny numbers): there 1 / T_other */
+      double T = a->model[i] / C, q = T > 0.05 ? Tl[i] / T : 1.0 / To[i];
+      if (!(q > 0 && q <= 1.0 / BLEND_T * 1.5)) q = 1.0 / To[i];
+      F[i] = f * q;
+      S[i] = sg * q;
+      if (in && To[i] < 1.0 - BLEND_DEPTH) ndiv++;
+    } else {
+      F[i] = f;
+      S[i] = sg;
+    }
+  }
+  L->masked_frac = nwin ? (double)nmask / (double)nwin : 0.0;
+  L->blend_frac = nwin ? (double)nblend / (double)nwin : 0.0;
+  L->blend = nblend ? DT_BLEND_MODEL : ndiv ? DT_BLEND_DIVIDED : DT_BLEND_NONE;
+}
+
+/* Both lines over [v1, v2] (each in its own frame), their limits over
+ * [l1, l2], against the continuum and model of the last run: the
+ * measurement of dt_analysis_run and dt_analysis_measure_range alike.  Each line is measured on its view
+ * (line_view): the other line of the doublet removed by the fitted model,
+ * masked pixels filled from it.  L[l] NaN when it fails. */
+static int measure_lines(dt_analysis *a, double v1, double v2, double l1, double l2, int full,
+                         dt_analysis_line L[2], int *saturated, dt_err *e) {
+  const dt_doublet *d = a->d;
+  dt_measure_opts mo;
+  measure_opts(a, &mo);
+  int st = single_line_models(a, fmin(v1, full ? l1 : v1), fmax(v2, full ? l2 : v2));
+  if (st != DT_OK) {
+    *saturated = 0;
+    for (int l = 0; l < 2; l++) {
+      memset(&L[l], 0, sizeof L[l]);
+      L[l].line = &d->line[l];
+      L[l].W = L[l].W_err = L[l].W_sig = L[l].logN_aod = L[l].logN_aod_err = NAN;
+      L[l].W_limit = L[l].logN_limit = L[l].v_limit = NAN;
+    }
+    return dt_err_set(e, st, "measure", "the single-line models cannot be evaluated");
+  }
+  double fw = a->fwhm_kms, bl = DT_ANALYSIS_LIMIT_BOX_B;
+  double pix = fabs(a->vel[0][a->n - 1] - a->vel[0][0]) / (double)(a->n - 1);
+  /* the box of the limit: +- the FWHM of a line of b = LIMIT_BOX_B seen
+   * through the LSF (Gaussian widths in quadrature; 2 sqrt(ln 2) b is the
+   * FWHM of the Doppler profile; +- FWHM holds 98% of a Gaussian's area),
+   * at least 1.5 pixels */
+  double hw = fmax(sqrt(fw * fw + 4.0 * log(2.0) * bl * bl), 1.5 * pix);
+  dt_line_measure m[2];
+  int status = DT_OK;
+  for (int l = 0; l < 2; l++) {
+    dt_analysis_line *o = &L[l];
+    memset(o, 0, sizeof *o);
+    o->line = &d->line[l];
+    line_view(a, l, v1, v2, o);
+    dt_measure_input in;
+    measure_input(a, &in);
+    in.flux = a->lflux[l];
+    in.sigma = a->lsig[l];
+    in.mask = NULL;
+    int sl = dt_measure_line(&in, &d->line[l], v1, v2, &mo, &m[l], NULL, NULL,
+                             status == DT_OK ? e : NULL);
+    if (sl == DT_OK) {
+      o->W = m[l].W;
+      o->W_err = m[l].W_err;
+      o->W_sig = m[l].signif;
+      o->logN_aod = m[l].logNa;
+      o->logN_aod_err = m[l].logNa_err;
+      o->nsat = m[l].nfloor;
+      o->npix = m[l].npix;
+      double wl, vat;
+      if (!full) {
+        o->W_limit = o->v_limit = o->logN_limit = NAN;
+      } else if (dt_measure_limit(&in, &d->line[l], l1, l2, hw, mo.limit_nsigma, &wl, &vat, NULL) ==
+          DT_OK) {
+        o->W_limit = wl;
+        o->v_limit = vat;
+        o->logN_limit = limit_logN(a, l, wl);
+      } else {
+        o->W_limit = o->v_limit = o->logN_limit = NAN;
+      }
+    } else {
+      if (status == DT_OK) status = sl;
+      o->W = o->W_err = o->W_sig = o->logN_aod = o->logN_aod_err = NAN;
+      o->W_limit = o->logN_limit = o->v_limit = NAN;
+    }
+  }
+  *saturated = status == DT_OK ? dt_measure_saturated(&m[0], &m[1], d, &mo) : 0;
+  return status;
+}
+
+int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysis_line out[2],
+                              dt_err *e) {
+  dt_err_clear(e);
+  if (!a || !out) return dt_err_set(e, DT_EINVAL, "measure", "missing argument");
+  if (!a->have_run)
+    return dt_err_set(e, DT_EINVAL, "measure", "no analysis run to measure against");
+  if (!(isfinite(vlo) && isfinite(vhi) && vlo < vhi))
+    return dt_err_set(e, DT_EINVAL, "measure", "empty velocity range [%g, %g] km/s", vlo, vhi);
+  int sat;
+  return measure_lines(a, vlo, vhi, vlo, vhi, 1, out, &sat, e);
+}
+
+/* The components' optical depth (both lines, no LSF) at wavelength lam. */
+static double tau_at(const dt_analysis *a, const dt_doublet *d, const dt_component *comp,
+                     size_t ncomp, double vsys, double lam) {
+  double t = 0;
+  for (size_t k = 0; k < ncomp; k++)
+    for (int l = 0; l < 2; l++) t += dt_line_tau(&d->line[l], &comp[k], vsys, lam);
+  (void)a;
+  return t;
+}
+
+/* The largest optical depth of the components at the inner edges of the
+ * continuum regions (where damping wings are deepest there): the automatic
+ * continuum's regions begin where the lines' windows end; user windows at
+ * both their ends. */
+static void continuum_tau(const dt_analysis *a, const dt_judgement *j, const dt_doublet *d,
+                          const dt_component *comp, size_t ncomp, dt_analysis_out *out) {
+  out->cont_tau = 0;
+  out->cont_tau_at = NAN;
+  if (ncomp == 0 || j->cont_order < 0) return;
+  double edge[2 * DT_MAX_WINDOWS];
+  size_t ne = 0;
+  if (j->nwin == 0) {
+    double lo = INFINITY, hi = -INFINITY;
+    for (int l = 0; l < 2; l++) {
+      lo = fmin(lo, dt_wavelength(j->vlo, d->line[l].lambda0, j->vsys));
+      hi = fmax(hi, dt_wavelength(j->vhi, d->line[l].lambda0, j->vsys));
+    }
+    edge[ne++] = lo;
+    edge[ne++] = hi;
+  } else {
+    for (size_t k = 0; k < j->nwin && k < DT_MAX_WINDOWS; k++) {
+      edge[ne++] = j->win[k].lo;
+      edge[ne++] = j->win[k].hi;
+    }
+  }
+  for (size_t e = 0; e < ne; e++) {
+    double t = tau_at(a, d, comp, ncomp, j->vsys, edge[e]);
+    if (t > out->cont_tau) {
+      out->cont_tau = t;
+      out->cont_tau_at = edge[e];
+    }
+  }
+}
+
+int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n) {
+  size_t len = 0;
+  if (n) buf[0] = '\0';
+  if (o->cont_tau > DT_ANALYSIS_CONT_TAU && len < n)
+    len += (size_t)snprintf(buf + len, n - len,
+                            "damping wings reach the continuum (tau %.2g at %.1f A): widen "
+                            "the window", o->cont_tau, o->cont_tau_at);
+  for (int l = 0; l < 2 && len < n; l++)
+    if (o->line[l].blend == DT_BLEND_MODEL && o->line[l].line)
+      len += (size_t)snprintf(buf + len, n - len, "%s%s blended: %.0f%% of its window from "
+                              "the model", len ? "; " : "", o->line[l].line->label,
+                              100 * o->line[l].blend_frac);
+  return len > 0;
+}
+
 /* Residuals, measurements; the model must be in a->model. */
 static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *comp,
                    size_t ncomp, dt_analysis_out *out) {
@@ -458,6 +810,14 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   a->ncomp = ncomp;
   memcpy(a->comp, comp, ncomp * sizeof comp[0]);
   memset(a->compmod_ok, 0, sizeof a->compmod_ok);
+
+  a->have_ltr = 0;
+  continuum_tau(a, j, out->doublet, comp, ncomp, out);
+  a->d = out->doublet;
+  a->vsys = j->vsys;
+  a->jvlo = j->vlo;
+  a->jvhi = j->vhi;
+  a->have_run = 1;
 
   /* measurement window */
   double v1 = a->opts.int_vlo, v2 = a->opts.int_vhi;
@@ -481,50 +841,31 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
     if (v2 > j->vhi) v2 = j->vhi;
     if (!(v1 < v2)) { v1 = j->vlo; v2 = j->vhi; }
   }
-  dt_measure_input in;
-  in.n = n;
-  in.wave = s->wave + i0;
-  in.flux = s->flux + i0;
-  in.sigma = s->sigma + i0;
-  in.mask = s->mask + i0;
-  in.cont = a->cont;
-  in.cont_err = a->cont_err;
-  in.vsys = j->vsys;
-  dt_measure_opts mo;
-  dt_measure_opts_init(&mo);
-  if (a->opts.limit_nsigma > 0) mo.limit_nsigma = a->opts.limit_nsigma;
-  const dt_doublet *d = out->doublet;
-  dt_doublet_measure dm;
-  out->measure_status = dt_measure_doublet(&in, d, v1, v2, &mo, &dm, NULL);
   out->meas_vlo = v1;
   out->meas_vhi = v2;
+  /* limits: where absorption may be, the whole window unless a
+   * measurement window was given */
+  int given = a->opts.int_vlo < a->opts.int_vhi;
+  a->mv1 = v1;
+  a->mv2 = v2;
+  a->ml1 = given ? v1 : j->vlo;
+  a->ml2 = given ? v2 : j->vhi;
+  out->measure_status = measure_lines(a, v1, v2, a->ml1, a->ml2, !a->opts.no_intervals,
+                                      out->line, &out->saturated, NULL);
+
+  /* the N_a(v) profile over the whole window, for plots and the first pass */
+  dt_measure_input in;
+  measure_input(a, &in);
+  dt_measure_opts mo;
+  measure_opts(a, &mo);
+  const dt_doublet *d = out->doublet;
   for (int l = 0; l < 2; l++) {
-    dt_analysis_line *L = &out->line[l];
-    L->line = &d->line[l];
-    if (out->measure_status == DT_OK) {
-      const dt_line_measure *m = &dm.line[l];
-      L->W = m->W;
-      L->W_err = m->W_err;
-      L->W_sig = m->signif;
-      L->logN_aod = m->logNa;
-      L->logN_aod_err = m->logNa_err;
-      L->W_limit = m->W_limit;
-      L->logN_limit = m->logN_limit;
-      L->nsat = m->nfloor;
-      L->npix = m->npix;
-    } else {
-      L->W = L->W_err = L->W_sig = L->logN_aod = L->logN_aod_err = NAN;
-      L->W_limit = L->logN_limit = NAN;
-    }
-    /* the N_a(v) profile over the whole window, for plots and the first pass */
     dt_line_measure pm;
     if (dt_measure_line(&in, &d->line[l], j->vlo, j->vhi, &mo, &pm, a->na[l], a->na_err[l],
                         NULL) != DT_OK) {
       for (size_t i = 0; i < n; i++) a->na[l][i] = a->na_err[l][i] = NAN;
     }
   }
-  out->saturated = out->measure_status == DT_OK ? dm.saturated : 0;
-  a->have_run = 1;
 }
 
 /* Fitted parameters counted for BIC and dof when nothing is fitted. */
@@ -561,6 +902,10 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   dt_fit_chi2(a->fw, &q, out->fit.comp, out->fit.cont_coef, a->model, &chi2, &npix);
   set_continuum(a, out->fit.cont_coef, out->fit.ncont);
   finish(a, j, out->fit.comp, out->fit.ncomp, out);
+  /* a run (a keystroke of the inspector) spends little on them; the
+   * first pass and explicit calls what they need */
+  if (fst == DT_OK && !a->opts.no_intervals && out->fit.ncomp > 0)
+    intervals(a, j, out, 1.0, DT_ANALYSIS_RUN_INTERVAL_S / (double)out->fit.ncomp);
   if (fst != DT_OK) {
     if (e) *e = fe;
     return fst;
@@ -568,12 +913,82 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   return DT_OK;
 }
 
+/* Component k is in the linear regime, where chi2 is a parabola in log N
+ * and the covariance error is the profile-likelihood interval (the
+ * profile search would accept its first probe, at two refits): optically
+ * thin at its fitted b (tau0 < LINEAR_TAU0, cog.h) with a covariance
+ * error below LINEAR_ERR dex (so log N and N are linear to within a few
+ * per cent over the interval), no saturation flag from the doublet ratios,
+ * no parameter at a bound, and no other component within FWHM + 2 (b_k +
+ * b_j) (a blend correlates the columns non-linearly). */
+#define LINEAR_TAU0 0.3
+#define LINEAR_ERR 0.1
+static int linear_regime(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  double e = r->err[k].logN;
+  if (!(e > 0) || !(e < LINEAR_ERR) || out->saturated || out->fit_info.at_bound[k]) return 0;
+  if (!(dt_cog_tau0(&a->d->line[0], c->logN, c->b) < LINEAR_TAU0)) return 0;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 0;
+  return 1;
+}
+
+static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
+                     double budget) {
+  out->have_intervals = 0;
+  if (!a->have_run || !a->fw || out->fit.status != DT_OK || out->fit.ncomp != j->ncomp ||
+      !(dchi2 > 0))
+    return DT_EINVAL;
+  dt_fit_problem p;
+  fill_problem(a, j, &p);
+  const dt_fit_result *r = &out->fit;
+  for (size_t k = 0; k < r->ncomp; k++) {
+    if (linear_regime(a, out, k)) {
+      /* the covariance interval is the profile's here (see below) */
+      dt_profile_interval *pi = &out->logN_int[k];
+      memset(pi, 0, sizeof *pi);
+      double h = r->err[k].logN * sqrt(dchi2);
+      pi->best = r->comp[k].logN;
+      pi->lo = pi->best - h;
+      pi->hi = pi->best + h;
+      continue;
+    }
+    dt_profile_logN(a->fw, &p, r, k, dchi2, budget, &out->logN_int[k]);
+  }
+  out->have_intervals = 1;
+  return DT_OK;
+}
+
+int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                          double dchi2) {
+  return intervals(a, j, out, dchi2, 0);
+}
+
+int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out) {
+  if (!a->have_run) return DT_EINVAL;
+  out->measure_status = measure_lines(a, a->mv1, a->mv2, a->ml1, a->ml2, 1, out->line,
+                                      &out->saturated, NULL);
+  return out->measure_status;
+}
+
+int dt_analysis_no_intervals(dt_analysis *a, int off) {
+  int was = a->opts.no_intervals;
+  a->opts.no_intervals = off;
+  return was;
+}
+
 int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
   int st = prepare(a, j, out, e);
   if (st != DT_OK) return st;
   dt_fit_problem p;
   fill_problem(a, j, &p);
-  const double *coef = NULL;
+  /* the joint polynomial: the recorded fit's, else 1 -- never the least-
+   * squares polynomial of the data against these components, which bends
+   * into any absorption the components do not model (with none, into all
+   * of it, hiding it from the first pass) */
+  double unit[DT_MAX_CONT] = {1.0};
+  const double *coef = p.ncont ? unit : NULL;
   if (p.ncont && j->has_fit && j->fit.ncont == p.ncont) coef = j->fit.cont_coef;
   double chi2 = NAN;
   size_t npix = 0;
@@ -667,24 +1082,5 @@ int dt_analysis_verify_fit(dt_analysis *a, const dt_judgement *recorded, double 
   if (rc != DT_OK) dt_err_clear(e);
   *agrees = dt_fit_check_refit(&recorded->fit, &out->fit, tol_sigma, why, nwhy);
   free(out);
-  return DT_OK;
-}
-
-/* The last run's measurement inputs, for dt_analysis_measure_range
- * (analysis_range.c).  DT_ERANGE before a successful run. */
-int dt_analysis_last_input(const dt_analysis *a, dt_measure_input *in, const dt_doublet **d,
-                           double *nsigma, double *fwhm_kms) {
-  if (!a->have_run) return DT_ERANGE;
-  in->n = a->n;
-  in->wave = a->s->wave + a->i0;
-  in->flux = a->s->flux + a->i0;
-  in->sigma = a->s->sigma + a->i0;
-  in->mask = a->s->mask + a->i0;
-  in->cont = a->cont;
-  in->cont_err = a->cont_err;
-  in->vsys = a->mkey.vsys;
-  *d = a->mkey.doublet;
-  *nsigma = a->opts.limit_nsigma > 0 ? a->opts.limit_nsigma : 3.0;
-  *fwhm_kms = a->fwhm_kms;
   return DT_OK;
 }

@@ -49,6 +49,7 @@
  * velocity to the fit (nothing in the window places it). */
 #include "doubletty/autofit.h"
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_math.h>   /* M_PI */
 #include <math.h>
 #include <stdio.h>
@@ -64,6 +65,7 @@
 #define UNSURE_SIGMA 5.0    /* unconfirmed absorption this strong: unsure */
 #define POOR_CHI2 3.0       /* reduced chi2 of a poor fit */
 #define RESID_SIGMA 3.0     /* residual significance worth a new component */
+#define DOUBT_SIGMA 3.0     /* chi2 this many sigma above dof: a poor model */
 
 enum { G_WEAK, G_CONFIRMED, G_ODD };
 
@@ -417,6 +419,9 @@ typedef struct pass_fit {
   dt_analysis_out best;
   int st;                    /* its status */
   dt_err fe;                 /* its error, if any */
+  double doubt_dchi2;        /* > 0: a rejected extra component improved chi2
+                                by this much (see doubtful_model) ... */
+  double doubt_short;        /* ... and missed the BIC margin by this much */
 } pass_fit;
 
 /* Step 1b: the context of the first pass, the analysis holding the state of
@@ -661,6 +666,22 @@ static int first_fit(dt_analysis *a, const dt_judgement *base, dt_component *see
   return DT_OK;
 }
 
+/* A model in doubt: its chi2 lies well above its degrees of freedom
+ * (chi2 - dof > DOUBT_SIGMA sqrt(2 dof), chi2 having mean dof and variance
+ * 2 dof for a right model) while a model with more components, rejected by
+ * the BIC margin, improves chi2 by more than the 0.1% point of chi2 with as
+ * many degrees of freedom as it adds (3 per component: 16.27 for 3, from
+ * gsl_cdf_chisq_Qinv; Wilks' theorem -- common practice). */
+static int doubtful_model(const dt_fit_result *cur, const dt_fit_result *more) {
+  if (cur->dof <= 0 || more->dof <= 0 || !isfinite(cur->chi2) || !isfinite(more->chi2))
+    return 0;
+  double dof = (double)cur->dof;
+  if (!(cur->chi2 - dof > DOUBT_SIGMA * sqrt(2.0 * dof))) return 0;
+  double dk = (double)(cur->dof - more->dof);
+  if (!(dk > 0)) return 0;
+  return cur->chi2 - more->chi2 > gsl_cdf_chisq_Qinv(1e-3, dk);
+}
+
 /* Step 4b: add components at the strongest residual while the BIC improves
  * by bic_min (or, with want > 0, up to want components whatever the BIC);
  * the analysis holds the state of f->best (the last successful run). */
@@ -681,6 +702,10 @@ static void grow_by_bic(const ctx *c, dt_analysis *a, const dt_judgement *base,
     dt_analysis_out trial;
     int ts = fit_with(a, base, next, nc + 1, &trial, &f->fe);
     int accept = ts == DT_OK && (want || trial.fit.bic < f->best.fit.bic - op->bic_min);
+    if (!accept && ts == DT_OK && !want && doubtful_model(&f->best.fit, &trial.fit)) {
+      f->doubt_dchi2 = f->best.fit.chi2 - trial.fit.chi2;
+      f->doubt_short = trial.fit.bic - (f->best.fit.bic - op->bic_min);
+    }
     if (!accept) {
       if (want) {   /* a fixed number: keep the attempt even if it failed */
         f->best = trial;
@@ -735,7 +760,19 @@ static void verdict(const candidates *cd, const pass_fit *f, dt_autofit_out *o) 
     o->suggested = DT_VERDICT_NOT_DETECTED;
     why = cd->n0 > 0 ? "no confirmed absorption" : "no significant absorption";
   }
-  snprintf(o->reason, sizeof o->reason, "%s", why);
+  if (f->doubt_dchi2 > 0 && f->st == DT_OK) {
+    o->doubt_dchi2 = f->doubt_dchi2;
+    o->doubt_bic = f->doubt_short;
+    char tmp[160];
+    int len = snprintf(tmp, sizeof tmp, "%s; +1 comp: chi2 -%.1f, BIC short %.1f", why,
+                       f->doubt_dchi2, f->doubt_short);
+    size_t k = len < 0 ? 0 : (size_t)len;
+    if (k >= sizeof o->reason) k = sizeof o->reason - 1;
+    memcpy(o->reason, tmp, k);
+    o->reason[k] = '\0';
+  } else {
+    snprintf(o->reason, sizeof o->reason, "%s", why);
+  }
 }
 
 /* Steps 2 to 6 of dt_autofit_run, the analysis holding the state of an0
@@ -744,7 +781,7 @@ static void verdict(const candidates *cd, const pass_fit *f, dt_autofit_out *o) 
  * judgement takes the fit. */
 static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *base,
                       const dt_autofit_opts *op, const dt_analysis_out *an0, double *work,
-                      dt_autofit_out *o, dt_err *e) {
+                      int intervals_off, dt_autofit_out *o, dt_err *e) {
   ctx c;
   setup_ctx(&c, a, j, an0, work);
   candidates cd;
@@ -757,14 +794,25 @@ static int first_pass(dt_analysis *a, dt_judgement *j, const dt_judgement *base,
   size_t want = op->ncomp > 0 ? (size_t)op->ncomp : 0;
   pass_fit f;
   f.best = *an0;
+  f.doubt_dchi2 = f.doubt_short = 0;
   int st = first_fit(a, base, seed, alt, ns, have_alt, &f, e);
   if (st != DT_OK) return st;
   int grow = want ? ns < want : (ns > 0 && op->nseed == 0);
   if (grow) grow_by_bic(&c, a, base, j, op, want, &f);
   hold_state(a, base, &f.best);
-  o->an = f.best;
-
+  /* the profile-likelihood intervals, once, for the fit reported */
+  if (f.st == DT_OK && f.best.fit.ncomp > 0 && !intervals_off) {
+    dt_judgement fin = *base;
+    fin.ncomp = f.best.fit.ncomp;
+    memcpy(fin.comp, f.best.fit.comp, fin.ncomp * sizeof fin.comp[0]);
+    dt_analysis_intervals(a, &fin, &f.best, 1.0);
+  }
   verdict(&cd, &f, o);
+  /* the limits, once, for the state reported unless it is a detection (the
+   * analysis holds it after hold_state, or f.best is the run of no
+   * components) */
+  if (intervals_off == 0 && o->suggested != DT_VERDICT_DETECTED) dt_analysis_remeasure(a, &f.best);
+  o->an = f.best;
 
   /* 6. the judgement takes the components and the fit */
   j->ncomp = f.best.fit.ncomp;
@@ -799,12 +847,22 @@ int dt_autofit_run(dt_analysis *a, dt_judgement *j, const dt_autofit_opts *opts,
   memset(base.frozen, 0, sizeof base.frozen);
   base.has_fit = 0;
   dt_analysis_out an0;
+  /* the search's many fits skip the intervals and limits; the reported
+   * state gets them */
+  int off = dt_analysis_no_intervals(a, 1);
   int st = dt_analysis_eval(a, &base, &an0, e);
-  if (st != DT_OK) return st;
+  if (st != DT_OK) {
+    dt_analysis_no_intervals(a, off);
+    return st;
+  }
   /* the depth profiles of both lines with their errors */
   double *work = malloc(4 * an0.n * sizeof *work);
-  if (!work) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
-  st = first_pass(a, j, &base, &op, &an0, work, o, e);
+  if (!work) {
+    dt_analysis_no_intervals(a, off);
+    return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  }
+  st = first_pass(a, j, &base, &op, &an0, work, off, o, e);
+  dt_analysis_no_intervals(a, off);
   free(work);
   return st;
 }

@@ -45,7 +45,7 @@ static const column COLS[] = {
     {"frozen", C_STR, ""},        {"fit_status", C_STR, ""},
     {"chi2", C_DBL, ""},          {"dof", C_INT, ""},
     {"chi2_red", C_DBL, ""},      {"W_mA", C_DBL, "10**-3 Angstrom"},
-    {"W_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_lim_mA", C_DBL, "10**-3 Angstrom"},
+    {"W_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_limit_mA", C_DBL, "10**-3 Angstrom"},
     {"logN_aod", C_DBL, ""}, {"logN_aod_err", C_DBL, ""},
     {"logN_limit", C_DBL, ""}, {"W_weak_mA", C_DBL, "10**-3 Angstrom"},
     {"W_weak_err_mA", C_DBL, "10**-3 Angstrom"}, {"W_weak_lim_mA", C_DBL, "10**-3 Angstrom"},

@@ -637,6 +637,29 @@ static const char *param_text(const dt_insp *s, size_t k, dt_session_param p, ch
   return buf;
 }
 
+/* log N with its profile-likelihood interval where the last fit has one
+ * and it is not the symmetric error: "13.52+0.31-0.08", "> 13.20 sat"
+ * (no upper end: saturated), "< 11.40", "11.9 ?" (neither end). */
+static const char *logn_text(const dt_insp *s, size_t k, char *buf, size_t size, double v, double err) {
+  const dt_analysis_out *o = &s->ss->out;
+  const dt_judgement *j = &s->ss->j;
+  if (!s->ss->an_ok || !o->have_intervals || o->fit.ncomp != j->ncomp || (j->frozen[k] & DT_FREEZE_N) ||
+      !j->has_fit || j->fit.status != 0)
+    return param_text(s, k, DT_PARAM_LOGN, buf, size, v, err, 2);
+  const dt_profile_interval *p = &o->logN_int[k];
+  if (p->incomplete) return param_text(s, k, DT_PARAM_LOGN, buf, size, v, err, 2);
+  double lo = v - p->lo, hi = p->hi - v;
+  switch (p->flag) {
+  case DT_PROFILE_LOWER_LIMIT: snprintf(buf, size, "> %.2f sat", p->lo); break;
+  case DT_PROFILE_UPPER_LIMIT: snprintf(buf, size, "< %.2f", p->hi); break;
+  case DT_PROFILE_UNBOUNDED: snprintf(buf, size, "%.2f ?", v); break;
+  default:
+    if (fabs(lo - hi) < 0.01 || !(lo >= 0) || !(hi >= 0)) return param_text(s, k, DT_PARAM_LOGN, buf, size, v, err, 2);
+    snprintf(buf, size, "%.2f+%.2f-%.2f", v, hi, lo);
+  }
+  return buf;
+}
+
 static void draw_table(dt_insp *s, const layout *L) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
@@ -679,8 +702,8 @@ static void draw_table(dt_insp *s, const layout *L) {
     dt_grid_text(g, x + TC_V, row, b2, role, attr, TC_B - TC_V - 1);
     dt_grid_text(g, x + TC_B, row, param_text(s, k, DT_PARAM_B, b1, sizeof b1, c->b, e ? e->b : NAN, 1), role, attr,
                  TC_N - TC_B - 1);
-    dt_grid_text(g, x + TC_N, row, param_text(s, k, DT_PARAM_LOGN, b1, sizeof b1, c->logN, e ? e->logN : NAN, 2), role,
-                 attr, TC_FIX - TC_N - 1);
+    dt_grid_text(g, x + TC_N, row, logn_text(s, k, b1, sizeof b1, c->logN, e ? e->logN : NAN), role, attr,
+                 TC_FIX - TC_N - 1);
     char fz[4];
     dt_freeze_str(j->frozen[k], fz);
     snprintf(b1, sizeof b1, "%s%s%s", fz, j->tie_b && fz[0] ? " " : "", j->tie_b ? "tied-b" : "");
@@ -742,7 +765,14 @@ static void draw_table(dt_insp *s, const layout *L) {
     int n2 = 0;
     if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
     if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
-    const char *sat = m->nsat ? "  saturated px" : l == 1 && (sysm ? dt_systems_saturated(s->ss->sysmeas[msel].line) : s->ss->out.saturated) ? "  ratio: saturated" : "";
+    char sat[96];
+    int ns = snprintf(sat, sizeof sat, "%s", m->nsat ? "  saturated px" : l == 1 && (sysm ? dt_systems_saturated(s->ss->sysmeas[msel].line) : s->ss->out.saturated) ? "  ratio: saturated" : "");
+    if (m->masked_frac > 0 && ns >= 0 && (size_t)ns < sizeof sat)
+      ns += snprintf(sat + ns, sizeof sat - (size_t)ns, "  masked %.0f%%", 100 * m->masked_frac);
+    if (m->blend == DT_BLEND_MODEL && ns >= 0 && (size_t)ns < sizeof sat)
+      ns += snprintf(sat + ns, sizeof sat - (size_t)ns, "  blended %.0f%%", 100 * m->blend_frac);
+    if (l == 0 && s->ss->out.cont_tau > DT_ANALYSIS_CONT_TAU && ns >= 0 && (size_t)ns < sizeof sat)
+      snprintf(sat + ns, sizeof sat - (size_t)ns, "  wings in continuum: widen window");
     if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
     row++;
   }

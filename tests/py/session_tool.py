@@ -315,7 +315,7 @@ def check_export(jpath, csvpath, fitspath, session, version):
                  r0["b_kms"] == "" and r0["v_kms"] == "" and math.isnan(t["logN"][f0]),
                  "%s: no components: component 0, empty values" % path)
         if e["verdict"] == "not-detected" and e.get("meas"):
-            want(close(float(r0["W_lim_mA"]), 1e3 * e["meas"][0]["W_lim"]) and
+            want(close(float(r0["W_limit_mA"]), 1e3 * e["meas"][0]["W_lim"]) and
                  close(float(r0["logN_limit"]), e["meas"][0]["logN_lim"]),
                  "%s: not detected: the limits are exported" % path)
         if e.get("chi2") is not None:
@@ -325,7 +325,7 @@ def check_export(jpath, csvpath, fitspath, session, version):
             m1, m2 = e["meas"]
             # W in mA in both outputs (the session records Angstrom)
             want(close(float(r0["W_mA"]), 1e3 * m1["W"]) and close(float(r0["W_err_mA"]), 1e3 * m1["W_err"]) and
-                 close(float(r0["W_lim_mA"]), 1e3 * m1["W_lim"]) and close(t["W_weak_mA"][f0], 1e3 * m2["W"]) and
+                 close(float(r0["W_limit_mA"]), 1e3 * m1["W_lim"]) and close(t["W_weak_mA"][f0], 1e3 * m2["W"]) and
                  close(float(r0["logN_limit_weak"]), m2["logN_lim"]), "%s: equivalent widths and limits" % path)
             if m1.get("logNa") is not None:
                 want(close(float(r0["logN_aod"]), m1["logNa"]) and close(t["logN_aod_weak_err"][f0], m2["logNa_err"]),

@@ -226,8 +226,10 @@ static void check_analysis(const char *who, const xcase *c, int st, const dt_ana
     int ok = 1;
     for (int l = 0; l < 2; l++) {
       const dt_analysis_line *L = &o->line[l];
+      /* limits: finite, or both NaN (the first pass gives none for what it
+       * calls a detection) */
       ok &= isfinite(L->W) && isfinite(L->W_err) && L->W_err >= 0 && isfinite(L->W_sig) &&
-            isfinite(L->W_limit) && isfinite(L->logN_limit);
+            (isfinite(L->W_limit) ? isfinite(L->logN_limit) : isnan(L->logN_limit));
       ok &= isfinite(L->logN_aod) ? isfinite(L->logN_aod_err) : isnan(L->logN_aod_err);
     }
     CHECK(ok, "%s %s: measurements finite (W %g +- %g, logNa %g; W2 %g +- %g)", c->name, who,

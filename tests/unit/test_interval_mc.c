@@ -1,0 +1,179 @@
+/* Coverage of the profile-likelihood intervals of log N (profile.h) by
+ * Monte Carlo (fixed seeds).
+ *
+ * In each regime synthetic Na I spectra (dt_model_eval plus Gaussian noise
+ * of known sigma, continuum known and fixed at 1 so that only the interval
+ * method is tested) are fitted from a displaced start with the right
+ * number of components, and the 1-sigma (dchi2 = 1) and 3-sigma
+ * (dchi2 = 9) intervals computed.  The truth must lie
+ *   - inside the 1-sigma interval in 68.27% +- 5% of the cases
+ *     (erf(1/sqrt 2), Abramowitz & Stegun 1964, 26.2), a lower limit
+ *     counting as the interval [lo, inf);
+ *   - inside the 3-sigma interval (or above its lower limit) in >= 99%
+ *     (99.73% for a Gaussian).
+ * With N cases the binomial error of a coverage p is sqrt(p (1-p) / N);
+ * the 1-sigma tolerance is the larger of 5% and three binomial errors
+ * (30-60 cases per regime in the suite, 18-26% then -- a coarse check
+ * that keeps the suite near 10 s; DT_MC_SCALE=4 for the README's figures),
+ * the 3-sigma one 99% less three binomial errors.  Seeds are fixed.
+ * Regimes: thin (R 20000, log N 11.9, b 10, S/N 50); saturated at R 5000
+ * and at R 40000 (b 2, log N 13.5 and 13.0, S/N 30); unresolved at R 2000
+ * (b 1, log N 12.5, S/N 100); a blend of two components 15 km/s apart
+ * (R 20000, b 5).  Atomic data: Morton (2003, ApJS 149, 205). */
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "doubletty/analysis.h"
+#include "doubletty/atomic.h"
+#include "doubletty/model.h"
+#include "harness.h"
+
+static const char table[] =
+    "NaI 5891.5833 0.6408 6.16e7 5897.5581 0.3201 6.14e7 Morton (2003) ApJS 149, 205\n";
+
+typedef struct regime {
+  const char *name;
+  double R, dl, snr;
+  size_t nc;
+  dt_component truth[2];
+  int ntrial;
+  double win;           /* fit window +-win km/s */
+  int known_short;      /* the figures are printed, not checked */
+} regime;
+
+static int by_v(const void *a, const void *b) {
+  const double *x = a, *y = b;
+  return (x[2] > y[2]) - (x[2] < y[2]);
+}
+
+static void run_regime(const dt_atomic *t, const regime *g, unsigned long seed) {
+  double lo = 5875.0, hi = 5915.0;
+  size_t n = (size_t)((hi - lo) / g->dl);
+  dt_spectrum *s = dt_spectrum_alloc(n);
+  for (size_t i = 0; i < n; i++) {
+    s->wave[i] = lo + g->dl * (double)i;
+    s->sigma[i] = 1.0 / g->snr;
+    s->mask[i] = 0;
+  }
+  s->has_sigma = 1;
+  dt_model_config cfg;
+  memset(&cfg, 0, sizeof cfg);
+  cfg.doublet = dt_atomic_find(t, "NaI");
+  cfg.resolution = g->R;
+  dt_model *m = dt_model_alloc(s->wave, n, &cfg, 2, NULL);
+  double *clean = malloc(n * sizeof *clean);
+  dt_model_eval(m, g->truth, g->nc, clean, NULL, 0);
+  gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(rng, seed);
+  dt_analysis *a = dt_analysis_alloc(s, t);
+  dt_analysis_opts ao;
+  dt_analysis_opts_init(&ao);
+  ao.no_intervals = 1;
+  dt_analysis_set_opts(a, &ao);
+  double tfit = 0;
+  int ncase = 0, in1 = 0, in3 = 0, nlow = 0, nfit = 0, nref = 0;
+  for (int tr = 0; tr < g->ntrial; tr++) {
+    for (size_t i = 0; i < n; i++) s->flux[i] = clean[i] + gsl_ran_gaussian(rng, 1.0 / g->snr);
+    dt_judgement j;
+    dt_judgement_init(&j);
+    strcpy(j.doublet, "NaI");
+    j.resolution = g->R;
+    j.cont_order = -1;
+    j.vlo = -g->win;
+    j.vhi = g->win;
+    j.ncomp = g->nc;
+    for (size_t k = 0; k < g->nc; k++) {
+      j.comp[k] = g->truth[k];
+      j.comp[k].logN += 0.2 * gsl_ran_gaussian(rng, 1.0);
+      j.comp[k].b *= 1.3;
+      j.comp[k].v += 2.0 * gsl_ran_gaussian(rng, 1.0);
+    }
+    dt_analysis_out o;
+    clock_t c0 = clock();
+    int rst = dt_analysis_run(a, &j, &o, NULL);
+    tfit += (double)(clock() - c0) / CLOCKS_PER_SEC;
+    if (rst != DT_OK) continue;
+    nfit++;
+    dt_profile_interval i1[2], i3[2];
+    j.ncomp = o.fit.ncomp;
+    if (dt_analysis_intervals(a, &j, &o, 1.0) != DT_OK) continue;
+    memcpy(i1, o.logN_int, g->nc * sizeof i1[0]);
+    if (dt_analysis_intervals(a, &j, &o, 9.0) != DT_OK) continue;
+    memcpy(i3, o.logN_int, g->nc * sizeof i3[0]);
+    /* match fitted components to the truth by velocity order */
+    double fit[2][4];
+    for (size_t k = 0; k < g->nc; k++) {
+      fit[k][0] = (double)k;
+      fit[k][2] = o.fit.comp[k].v;
+    }
+    qsort(fit, g->nc, sizeof fit[0], by_v);
+    for (size_t q = 0; q < g->nc; q++) {
+      size_t k = (size_t)fit[q][0];
+      double x = g->truth[q].logN;
+      const dt_profile_interval *p1 = &i1[k], *p3 = &i3[k];
+      int low1 = p1->flag == DT_PROFILE_LOWER_LIMIT;
+      int ok1 = (isfinite(p1->lo) ? x >= p1->lo : 1) && (isfinite(p1->hi) ? x <= p1->hi : 1);
+      int ok3 = (isfinite(p3->lo) ? x >= p3->lo : 1) && (isfinite(p3->hi) ? x <= p3->hi : 1);
+      if (p1->flag == DT_PROFILE_UNBOUNDED) ok1 = 1;
+      if (p3->flag == DT_PROFILE_UNBOUNDED) ok3 = 1;
+      if (p1->incomplete) ok1 = 0;   /* no interval: counted as a miss */
+      if (p3->incomplete) ok3 = 0;
+      ncase++;
+      in1 += ok1;
+      in3 += ok3;
+      nlow += low1;
+      nref += p1->nfits + p3->nfits;
+    }
+  }
+  double c1 = ncase ? (double)in1 / ncase : 0, c3 = ncase ? (double)in3 / ncase : 0;
+  printf("# %s: %d fits of %d, %d components: truth inside 1 sigma %.1f%%, inside 3 sigma "
+         "%.1f%%; %d lower limits at 1 sigma; %.1f refits per component (fits %.2f s)\n",
+         g->name, nfit, g->ntrial, ncase, 100 * c1, 100 * c3, nlow,
+         ncase ? (double)nref / ncase : 0.0, tfit);
+  CHECK(ncase >= g->ntrial * (int)g->nc * 9 / 10, "%s: %d of %d fits succeeded", g->name, nfit,
+        g->ntrial);
+  double tol = fmax(0.05, 3.0 * sqrt(0.6827 * 0.3173 / (ncase ? ncase : 1)));
+  if (g->known_short) {
+    printf("# %s: a known shortfall of the method (README, Measurements)\n", g->name);
+  } else {
+    CHECK(fabs(c1 - 0.6827) <= tol, "%s: truth inside the 1-sigma interval %.1f%% (68.3 +- %.1f)",
+          g->name, 100 * c1, 100 * tol);
+    CHECK(c3 >= 0.99 - 3.0 * sqrt(0.01 * 0.99 / (ncase ? ncase : 1)),
+          "%s: truth inside the 3-sigma interval %.1f%% (>= 99 less 3 binomial errors)",
+          g->name, 100 * c3);
+  }
+  dt_analysis_free(a);
+  gsl_rng_free(rng);
+  free(clean);
+  dt_model_free(m);
+  dt_spectrum_free(s);
+}
+
+int main(int argc, char **argv) {
+  dt_atomic *t = dt_atomic_new();
+  dt_err e;
+  if (dt_atomic_parse(t, table, sizeof table - 1, &e) != DT_OK) return 1;
+  /* counts: 30-60 per regime in the suite; DT_MC_SCALE=4 (or the first
+   * argument) for the figures of the README */
+  const char *env = getenv("DT_MC_SCALE");
+  int scale = argc > 1 ? atoi(argv[1]) : env ? atoi(env) : 1;
+  if (scale < 1) scale = 1;
+  regime rs[] = {
+      {"thin R 20000", 20000, 0.1, 50, 1, {{11.9, 10.0, 0.0}}, 60, 120, 0},
+      {"saturated R 5000", 5000, 0.4, 30, 1, {{13.5, 2.0, 0.0}}, 40, 200, 0},
+      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 40, 100, 0},
+      {"unresolved R 2000 S/N 100", 2000, 1.0, 100, 1, {{12.5, 1.0, 0.0}}, 30, 350, 1},
+      {"blend 15 km/s R 20000", 20000, 0.1, 50, 2, {{11.8, 5.0, -7.5}, {11.6, 5.0, 7.5}}, 30,
+       120, 0},
+  };
+  for (size_t r = 0; r < sizeof rs / sizeof rs[0]; r++) {
+    rs[r].ntrial *= scale;
+    run_regime(t, &rs[r], 777 + r);
+  }
+  dt_atomic_free(t);
+  return dt_test_done();
+}
