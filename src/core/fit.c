@@ -40,6 +40,7 @@
 #include <gsl/gsl_linalg.h>
 #include <gsl/gsl_multifit_nlinear.h>
 #include <math.h>
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -445,6 +446,17 @@ static void fill_result(dt_fit_workspace *w, dt_fit_result *r, double chi2) {
   r->bic = chi2 + (double)w->npar * log((double)w->nused);
 }
 
+/* GSL's default error handler aborts the process; the fit reports its own
+ * status codes instead, so the handler is turned off -- once for the
+ * process (pthread_once), because the handler is a process-wide setting
+ * that threads fitting at the same time must not swap back and forth. */
+static void gsl_handler_off(void) { gsl_set_error_handler_off(); }
+
+static void gsl_quiet(void) {
+  static pthread_once_t once = PTHREAD_ONCE_INIT;
+  pthread_once(&once, gsl_handler_off);
+}
+
 /* Starting joint continuum coefficients: the model is linear in them, so
  * solve the weighted linear least-squares problem for the starting
  * components (normal equations, Cholesky; at most DT_MAX_CONT unknowns).
@@ -509,9 +521,8 @@ int dt_fit_chi2(dt_fit_workspace *w, const dt_fit_problem *p, const dt_component
   for (size_t j = 0; j < p->ncont; j++)
     w->cinit[j] = q.cont_init ? q.cont_init[j] : (j == 0 ? 1.0 : 0.0);
   if (!q.cont_init) {
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    gsl_quiet();
     linear_cont_start(w);
-    gsl_set_error_handler(old);
   }
   memcpy(w->ccur, w->cinit, p->ncont * sizeof w->ccur[0]);
   int ok;
@@ -715,9 +726,8 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   w->info.nparam = w->npar;
   set_params(w, NULL);
   if (w->ncont && !p->cont_init) {
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    gsl_quiet();
     linear_cont_start(w);
-    gsl_set_error_handler(old);
     set_params(w, NULL);
   }
 
@@ -751,7 +761,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   int max_iter = p->max_iter > 0 ? p->max_iter : DT_FIT_MAX_ITER;
   double tlim = p->time_limit == 0 ? DT_FIT_TIME_LIMIT : p->time_limit;
 
-  gsl_error_handler_t *old_handler = gsl_set_error_handler_off();
+  gsl_quiet();
   int iter = 0;
   run_state rs;
   solve(w, &fdf, x0, FIRST_ACCEL, max_iter, tlim, t0, &iter, &rs);
@@ -765,7 +775,6 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
       rs = ra;
   }
   if (!rs.slot) {
-    gsl_set_error_handler(old_handler);
     r->status = DT_ENOMEM;
     return dt_err_set(e, DT_ENOMEM, "fit", "out of memory");
   }
@@ -810,7 +819,6 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
       }
     }
   }
-  gsl_set_error_handler(old_handler);
   w->info.reason = rs.info;
   w->info.seconds = now_seconds() - t0;
   if (why) {
