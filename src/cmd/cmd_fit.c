@@ -916,6 +916,8 @@ int cmd_fit(int argc, char **argv) {
   for (size_t k = 0; k < NCOLUMNS; k++) dt_csv_text(&r.csv, COLUMNS[k]);
   dt_csv_end(&r.csv);
   int jobs = c.jobs > 0 ? (int)c.jobs : batch_cores();
+  /* a FITS library built without thread support reads on one thread only */
+  if (jobs > 1 && dt_spectrum_threads_init() != DT_OK) jobs = 1;
   r.pool = batch_start(jobs, (size_t)jobs * FIT_WINDOW_PER_JOB, task_work, task_done, &r);
   if (!r.pool) {
     cli_errorf("fit: cannot start %d threads: out of memory or threads", jobs);
