@@ -222,20 +222,20 @@ static int eval_model(dt_fit_workspace *w, int with_jac) {
                        with_jac ? w->mjac : NULL, 3 * w->ncomp);
 }
 
-/* The residuals.  The model's Jacobian costs little on top of its flux,
- * and GSL asks for the Jacobian at every accepted point right after the
- * residuals there, so both are computed here and the Jacobian is kept for
- * resid_df (keyed by x). */
+/* The residuals: the model's flux only.  Half of the points GSL asks for
+ * never get a Jacobian (rejected steps, and the points of the
+ * finite-difference second derivative for the geodesic acceleration); at
+ * an accepted point resid_df follows at once, and the model, which keeps
+ * the state of its last evaluation, then adds only the Jacobian -- the
+ * same numbers as computing both here. */
 static int resid_f(const gsl_vector *x, void *params, gsl_vector *f) {
   dt_fit_workspace *w = params;
   set_params(w, x->data);
   w->jac_valid = 0;
-  if (eval_model(w, 1) != DT_OK) {
+  if (eval_model(w, 0) != DT_OK) {
     gsl_vector_set_all(f, BAD_RESIDUAL);
     return GSL_SUCCESS;
   }
-  memcpy(w->jac_x, x->data, w->npar * sizeof w->jac_x[0]);
-  w->jac_valid = 1;
   for (size_t m = 0; m < w->nused; m++) {
     double pred = w->base[m] * poly_at(w, m) * w->mflux[w->idx[m]];
     double r = (w->y[m] - pred) * w->isig[m];
