@@ -30,8 +30,8 @@ CSTD     := -std=c11
 OPT      ?= -O2 -g
 CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -DDT_VERSION=\"$(VERSION)\" \
             -DDT_DATADIR=\"$(PREFIX)/share/doubletty\"
-CFLAGS   += $(CSTD) $(WARN) $(OPT) $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
-LDLIBS   += $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lm
+CFLAGS   += $(CSTD) $(WARN) $(OPT) -pthread $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+LDLIBS   += $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lm -pthread
 
 CORE_SRC := $(sort $(wildcard src/core/*.c))
 UI_SRC   := $(sort $(wildcard src/ui/*.c))

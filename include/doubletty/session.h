@@ -19,6 +19,7 @@
 #include <stddef.h>
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
+#include "doubletty/autofit.h"
 #include "doubletty/digest.h"
 #include "doubletty/journal.h"
 #include "doubletty/judge.h"
@@ -40,6 +41,8 @@ typedef enum dt_session_tone {
 /* Which parameter of a component (nudges and holds). */
 typedef enum dt_session_param { DT_PARAM_V = 0, DT_PARAM_B, DT_PARAM_LOGN } dt_session_param;
 
+struct dt_session_ahead;
+
 /* One spectrum to vet. */
 typedef struct dt_session_target {
   const char *path;       /* the file to read */
@@ -54,6 +57,8 @@ typedef struct dt_session_target {
   int has_window;         /* initial.vlo/vhi were given (else widened to
                              cover the systems) */
   dt_system_opts systems; /* target range and systems of the list/run */
+  struct dt_session_ahead *ahead; /* made in advance for this target (NULL:
+                             none); dt_session_load takes its parts */
 } dt_session_target;
 
 typedef struct dt_session {
@@ -122,6 +127,29 @@ void dt_session_target_init(dt_session_target *t, const char *path, const char *
  * Returns DT_OK, or the reader's error (loaded = 0, load_msg says why; the
  * target can still take a note or the verdict "unusable"). */
 int dt_session_load(dt_session *ss, const dt_session_target *t);
+
+/* The part of opening a target that needs no session: the file read,
+ * its digest, and (with `first`) the automatic first pass from the
+ * target's first-look settings.  Touches no journal and no session, so it
+ * may be made on another thread while the session goes on; given to
+ * dt_session_load as t->ahead (for the same target and first-look
+ * settings), the load reads and fits nothing more and the result is the
+ * same as without.  NULL when out of memory. */
+typedef struct dt_session_ahead {
+  int rc;                        /* the reader's status */
+  char load_msg[400];            /* why not (rc != DT_OK) */
+  dt_spectrum *spec;             /* taken by dt_session_load */
+  dt_analysis *an;               /* taken by dt_session_load */
+  char sha[DT_SHA256_HEX];       /* "" when the digest failed */
+  int has_first;                 /* the first pass was run: */
+  int first_rc;                  /* its status */
+  dt_judgement first;            /* the judgement it gave */
+  dt_autofit_out af;             /* and its output */
+} dt_session_ahead;
+
+dt_session_ahead *dt_session_ahead_make(const dt_atomic *atomic, const dt_session_target *t,
+                                        int first);
+void dt_session_ahead_free(dt_session_ahead *a);
 
 /* The verdict the journal holds for a target (NONE if none). */
 dt_verdict dt_session_recorded_verdict(const dt_session *ss, const char *key, long row);

@@ -148,6 +148,13 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts,
 int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
                          dt_spectrum **out, dt_err *e);
 
+/* Once before several threads read spectra at the same time: the FITS
+ * library's one-time set-up (its global lock), which is not itself safe
+ * to race.  Reading from many threads is safe after it (cfitsio is built
+ * reentrant on Debian, fits_is_reentrant() == 1); DT_EINVAL if the FITS
+ * library is not reentrant, and reads must then be serialised. */
+int dt_spectrum_threads_init(void);
+
 /* Number of spectra in a file: rows of a multi-row table, otherwise 1. */
 int dt_spectrum_count(const char *path, const dt_read_opts *opts,
                       long *count, dt_err *e);

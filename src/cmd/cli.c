@@ -16,12 +16,14 @@
 #define DT_DATADIR "/usr/local/share/doubletty"
 #endif
 
-void cli_report(const char *file, const dt_err *e) {
-  fprintf(stderr, "doubletty: ");
-  if (file && *file) fprintf(stderr, "%s: ", file);
-  if (e && e->where[0]) fprintf(stderr, "%s: ", e->where);
-  fprintf(stderr, "%s\n", e && e->what[0] ? e->what : dt_status_str(e ? e->code : DT_EINVAL));
+void cli_report_to(FILE *f, const char *file, const dt_err *e) {
+  fprintf(f, "doubletty: ");
+  if (file && *file) fprintf(f, "%s: ", file);
+  if (e && e->where[0]) fprintf(f, "%s: ", e->where);
+  fprintf(f, "%s\n", e && e->what[0] ? e->what : dt_status_str(e ? e->code : DT_EINVAL));
 }
+
+void cli_report(const char *file, const dt_err *e) { cli_report_to(stderr, file, e); }
 
 void cli_errorf(const char *fmt, ...) {
   va_list ap;

@@ -9,6 +9,8 @@
 
 /* Print "doubletty: FILE: WHERE: WHAT" (parts omitted when empty) on stderr. */
 void cli_report(const char *file, const dt_err *e);
+/* The same on stream f. */
+void cli_report_to(FILE *f, const char *file, const dt_err *e);
 /* printf-style "doubletty: ..." on stderr. */
 void cli_errorf(const char *fmt, ...)
 #if defined(__GNUC__)

@@ -12,7 +12,14 @@
  * component fields when there is none, and one with status "failed" and the
  * message in `reason` when it could not be fitted (so a merged table
  * accounts for every input).  Settings on the command line override those
- * of a target list; without either, R comes from the file's header. */
+ * of a target list; without either, R comes from the file's header.
+ *
+ * With --jobs N the inputs are fitted by N threads (batch.c): each input
+ * is a task that writes its rows and messages into buffers of its own,
+ * through a copy of the run with its own table writer; the buffers are
+ * written out in input order as the tasks finish, so the output is the
+ * same byte for byte whatever N, and only a window of inputs is in
+ * memory at a time. */
 #include <errno.h>
 #include <getopt.h>
 #include <math.h>
@@ -23,6 +30,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "batch.h"
 #include "cli.h"
 #include "commands.h"
 #include "outfile.h"
@@ -55,6 +63,10 @@ static const char *const COLUMNS[] = {
  * parameters at their bounds, so such an R is refused as a mistake. */
 #define FIT_MIN_R 100
 
+/* --jobs: at most this many threads; inputs in flight per thread. */
+#define FIT_MAX_JOBS 1024
+#define FIT_WINDOW_PER_JOB 4
+
 typedef enum { SRC_FILE, SRC_LIST, SRC_FILES_FROM } src_kind;
 typedef struct {
   src_kind kind;
@@ -78,13 +90,15 @@ typedef struct {
   const char *out_path;
   const char *atomic_file;
   int force;                    /* replace an existing output file */
+  long jobs;                    /* worker threads (0: one per core) */
   int air;                      /* text spectra give air wavelengths */
   dt_system_opts systems;       /* --target-window, --system, --milky-way */
   int have_mw;                  /* --milky-way given */
 } config;
 
 typedef struct {
-  dt_csv csv;                   /* the output table */
+  dt_csv csv;                   /* the output table (a task's: its buffer) */
+  FILE *msg;                    /* a task's messages (NULL: standard error) */
   const cli_out *outf;          /* the output file, to refuse it as an input */
   int clash;                    /* an input is the output file: stop */
   const dt_atomic *atomic;
@@ -97,6 +111,9 @@ typedef struct {
   int progress;                 /* draw a progress line on stderr */
   int bar_shown;
   double bar_last;              /* when it was last drawn [s, monotonic] */
+  batch *pool;                  /* the workers */
+  long inflight;                /* inputs handed to the pool, not yet written */
+  int oom;                      /* a task could not be set up: stop */
 } run;
 
 static void usage(FILE *f) {
@@ -127,6 +144,7 @@ static void usage(FILE *f) {
           "  --list FILE             targets from a list file (path vsys= R= ...)\n"
           "  --files-from FILE       spectrum paths, one a line ('-': standard input)\n"
           "  --shard K/N             only inputs with index %% N == K (0 <= K < N)\n"
+          "  --jobs N                fit with N threads (default: one per core)\n"
           "  -o, --output FILE       write the CSV to FILE (default: standard output)\n"
           "  --force                 replace FILE if it exists (never an input)\n"
           "  --air                   wavelengths are in air where a file does not say\n"
@@ -156,17 +174,18 @@ static double now_s(void) {
 static void bar_draw(run *r) {
   if (!r->progress) return;
   double t = now_s();
-  if (r->bar_shown && t - r->bar_last < 0.1 && r->ninputs != r->total) return;
+  long ndone = r->ninputs - r->inflight; /* inputs written out */
+  if (r->bar_shown && t - r->bar_last < 0.1 && ndone != r->total) return;
   r->bar_last = t;
   long done = r->fitted + r->failed;
   if (r->total > 0) {
-    int width = 30, fill = (int)(width * (double)r->ninputs / (double)r->total);
+    int width = 30, fill = (int)(width * (double)ndone / (double)r->total);
     if (fill > width) fill = width;
     fprintf(stderr, "\r\033[Kfit [%.*s%*s] %ld/%ld inputs, %ld failed",
-            fill, "==============================", width - fill, "", r->ninputs,
+            fill, "==============================", width - fill, "", ndone,
             r->total, r->failed);
   } else {
-    fprintf(stderr, "\r\033[Kfit: %ld inputs, %ld spectra, %ld failed", r->ninputs, done,
+    fprintf(stderr, "\r\033[Kfit: %ld inputs, %ld spectra, %ld failed", ndone, done,
             r->failed);
   }
   fflush(stderr);
@@ -175,7 +194,7 @@ static void bar_draw(run *r) {
 
 /* Message for spectrum `label` (file, with row when from a table). */
 static void report(run *r, const char *file, long row, const dt_err *e) {
-  bar_clear(r);
+  if (!r->msg) bar_clear(r);
   dt_err e2 = *e;
   if (row > 0) {
     char where[sizeof e2.where + 32];
@@ -186,7 +205,7 @@ static void report(run *r, const char *file, long row, const dt_err *e) {
     memcpy(e2.where, where, n);
     e2.where[n] = '\0';
   }
-  cli_report(file, &e2);
+  cli_report_to(r->msg ? r->msg : stderr, file, &e2);
 }
 
 /* ---- one spectrum ---------------------------------------------------- */
@@ -504,24 +523,101 @@ static void fit_input(run *r, const dt_target_spec *t) {
   for (long k = 1; k <= count; k++) fit_one(r, t, k);
 }
 
+/* ---- inputs as tasks of the pool -------------------------------------- */
+
+/* One input in flight: a copy of the run whose table writer and messages
+ * go to buffers of their own, the target, and (for a bad list line) the
+ * error to report instead of fitting. */
+typedef struct {
+  run r;
+  dt_target_spec t;
+  int bad;
+  dt_err err;
+  char *out, *msg;              /* the buffers of r.csv and r.msg */
+  size_t nout, nmsg;
+} fit_task;
+
+/* On a worker: fit the input (or report its bad line) into the buffers. */
+static void task_work(void *ctx, void *arg) {
+  (void)ctx;
+  fit_task *k = arg;
+  run *r = &k->r;
+  if (k->bad) {
+    report(r, k->t.path, 0, &k->err);
+    write_failed(r, &k->t, NULL, 0, r->cfg->doublet ? r->cfg->doublet : "", NAN, &k->err);
+    r->failed++;
+  } else {
+    fit_input(r, &k->t);
+  }
+}
+
+/* On the main thread, in input order: the task's rows and messages out. */
+static void task_done(void *ctx, void *arg) {
+  run *r = ctx;
+  fit_task *k = arg;
+  fclose(k->r.csv.f);
+  fclose(k->r.msg);
+  if (k->nmsg) {
+    bar_clear(r);
+    fwrite(k->msg, 1, k->nmsg, stderr);
+  }
+  fwrite(k->out, 1, k->nout, r->csv.f);
+  r->fitted += k->r.fitted;
+  r->failed += k->r.failed;
+  r->noconv += k->r.noconv;
+  r->mw_joined += k->r.mw_joined;
+  r->inflight--;
+  free(k->out);
+  free(k->msg);
+  free(k);
+  bar_draw(r);
+}
+
+/* Hand input r->index to the pool (t, or the bad line's error e). */
+static void submit(run *r, const dt_target_spec *t, const char *file, const dt_err *e) {
+  fit_task *k = malloc(sizeof *k);
+  FILE *out = NULL, *msg = NULL;
+  if (k) {
+    out = open_memstream(&k->out, &k->nout);
+    msg = open_memstream(&k->msg, &k->nmsg);
+  }
+  if (!k || !out || !msg) {
+    if (out) fclose(out), free(k->out);
+    if (msg) fclose(msg), free(k->msg);
+    free(k);
+    r->oom = 1;
+    return;
+  }
+  k->r = *r;
+  k->r.msg = msg;
+  k->r.progress = 0;
+  k->r.bar_shown = 0;
+  k->r.pool = NULL;
+  k->r.fitted = k->r.failed = k->r.noconv = k->r.mw_joined = 0;
+  dt_csv_init(&k->r.csv, out);
+  k->r.csv.one_line = r->csv.one_line;
+  k->bad = e != NULL;
+  if (t) k->t = *t;
+  else dt_target_spec_init(&k->t, file);
+  if (e) k->err = *e;
+  else dt_err_clear(&k->err);
+  r->inflight++;
+  batch_submit(r->pool, k);
+}
+
 /* Next input of the run: counts it, and fits it when it is in our shard. */
 static void take(run *r, const dt_target_spec *t) {
-  if (r->clash || (r->clash = cli_out_is_input(r->outf, t->path))) return;
+  if (r->oom || r->clash || (r->clash = cli_out_is_input(r->outf, t->path))) return;
   r->index = r->ninputs++;
-  if (r->index % r->cfg->shard_n == r->cfg->shard_k) fit_input(r, t);
+  if (r->index % r->cfg->shard_n == r->cfg->shard_k) submit(r, t, NULL, NULL);
   bar_draw(r);
 }
 
 /* A bad line of a list is an input too (it has an index in every shard). */
 static void take_bad(run *r, const char *file, const dt_err *e) {
+  if (r->oom) return;
   r->index = r->ninputs++;
-  if (r->index % r->cfg->shard_n == r->cfg->shard_k) {
-    dt_target_spec t;
-    dt_target_spec_init(&t, file);
-    report(r, file, 0, e);
-    write_failed(r, &t, NULL, 0, r->cfg->doublet ? r->cfg->doublet : "", NAN, e);
-    r->failed++;
-  }
+  if (r->index % r->cfg->shard_n == r->cfg->shard_k) submit(r, NULL, file, e);
   bar_draw(r);
 }
 
@@ -553,7 +649,7 @@ static void run_list(run *r, const char *path) {
       take_bad(r, path, &e);
       continue;
     }
-    if (!got || r->clash) break;
+    if (!got || r->clash || r->oom) break;
     take(r, t);
   }
   free(t);
@@ -572,7 +668,7 @@ static void run_files_from(run *r, const char *path) {
   char *line = NULL;
   size_t cap = 0;
   ssize_t len;
-  while (t && !r->clash && (len = getline(&line, &cap, f)) != -1) {
+  while (t && !r->clash && !r->oom && (len = getline(&line, &cap, f)) != -1) {
     while (len > 0 && (line[len - 1] == '\n' || line[len - 1] == '\r')) line[--len] = '\0';
     char *p = line;
     while (*p == ' ' || *p == '\t') p++;
@@ -728,7 +824,7 @@ static void write_settings(dt_csv *w, const config *c) {
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -761,6 +857,7 @@ static const struct option LONGOPTS[] = {
     {"target-window", required_argument, NULL, O_TWIN},
     {"system", required_argument, NULL, O_SYSTEM},
     {"milky-way", required_argument, NULL, O_MW},
+    {"jobs", required_argument, NULL, O_JOBS},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -861,6 +958,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case O_MW:
     c->have_mw = 1;
     return cli_system_option("--milky-way", v, &c->systems);
+  case O_JOBS: return ranged("--jobs", v, 1, FIT_MAX_JOBS, &c->jobs);
   }
   return 1;
 }
@@ -961,7 +1059,17 @@ int cmd_fit(int argc, char **argv) {
   write_settings(&r.csv, &c);
   for (size_t k = 0; k < NCOLUMNS; k++) dt_csv_text(&r.csv, COLUMNS[k]);
   dt_csv_end(&r.csv);
-  for (size_t k = 0; k < nsrc && !r.clash; k++) {
+  int jobs = c.jobs > 0 ? (int)c.jobs : batch_cores();
+  /* a FITS library built without thread support reads on one thread only */
+  if (jobs > 1 && dt_spectrum_threads_init() != DT_OK) jobs = 1;
+  r.pool = batch_start(jobs, (size_t)jobs * FIT_WINDOW_PER_JOB, task_work, task_done, &r);
+  if (!r.pool) {
+    cli_errorf("fit: cannot start %d threads: out of memory or threads", jobs);
+    cli_out_abort(&of);
+    rc = 1;
+    goto done;
+  }
+  for (size_t k = 0; k < nsrc && !r.clash && !r.oom; k++) {
     if (src[k].kind == SRC_FILE) {
       dt_target_spec t;
       dt_target_spec_init(&t, src[k].arg);
@@ -973,7 +1081,14 @@ int cmd_fit(int argc, char **argv) {
     }
     fflush(of.f);
   }
+  batch_finish(r.pool);
   bar_clear(&r);
+  if (r.oom) {
+    cli_errorf("fit: out of memory after %ld inputs", r.ninputs);
+    cli_out_abort(&of);
+    rc = 1;
+    goto done;
+  }
   if (r.clash) {
     cli_out_abort(&of);
     rc = 2;

@@ -57,7 +57,8 @@ static void usage(FILE *f) {
           "                       line; 'type TEXT' types text), no terminal needed\n"
           "  --screen-dump FILE   with --replay-keys: write the last screen as text\n"
           "  --size WxH           with --replay-keys: screen size (default 100x32)\n"
-          "  --bench              with --replay-keys: print the time per keystroke\n");
+          "  --bench              with --replay-keys: print the time per keystroke\n"
+          "  --no-look-ahead      do not open the next spectra in the background\n");
 }
 
 static void report_line(const char *list, const dt_err *e) { cli_report(list, e); }
@@ -65,7 +66,7 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
   O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
-  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW
+  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -95,6 +96,7 @@ static const struct option LONGOPTS[] = {
     {"screen-dump", required_argument, NULL, O_DUMP},
     {"size", required_argument, NULL, O_SIZE},
     {"bench", no_argument, NULL, O_BENCH},
+    {"no-look-ahead", no_argument, NULL, O_NOAHEAD},
     {NULL, 0, NULL, 0}};
 
 /* What the command line asks for, besides the inspector's own options. */
@@ -182,6 +184,7 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
   case O_DUMP: o->dump = v; return 0;
   case O_SIZE: return parse_size(v, o);
   case O_BENCH: o->bench = 1; return 0;
+  case O_NOAHEAD: o->no_look_ahead = 1; return 0;
   }
   return 1;
 }

@@ -3,6 +3,8 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include <gsl/gsl_errno.h>
+
 #include "commands.h"
 
 typedef struct {
@@ -61,6 +63,9 @@ static void usage(FILE *f) {
 }
 
 int main(int argc, char **argv) {
+  /* The core reports GSL's errors as status codes: GSL's process-wide
+   * handler (abort by default) is turned off here, before any thread. */
+  gsl_set_error_handler_off();
   if (argc < 2) {
     usage(stderr);
     return 2;

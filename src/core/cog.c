@@ -14,6 +14,7 @@
 #include <math.h>
 
 #include "doubletty/model.h"
+#include "gsl_quiet.h"
 
 #define COG_LIMIT 200   /* subintervals of the adaptive integration */
 #define COG_EPS 1e-8    /* its relative tolerance */
@@ -37,10 +38,9 @@ double dt_cog_tau0(const dt_line *l, double logN, double b) {
 double dt_cog_W(const dt_line *l, double logN, double b) {
   if (!l || !(l->f > 0) || !(l->lambda0 > 0) || !(b > 0) || !isfinite(logN)) return NAN;
   cog_par c = {dt_cog_tau0(l, logN, b), l->gamma / (4.0 * M_PI * dnu_d(l, b))};
-  gsl_error_handler_t *old = gsl_set_error_handler_off();
+  dt_gsl_quiet();
   gsl_integration_workspace *w = gsl_integration_workspace_alloc(COG_LIMIT);
   if (!w) {
-    gsl_set_error_handler(old);
     return NAN;
   }
   gsl_function F = {integrand, &c};
@@ -49,7 +49,6 @@ double dt_cog_W(const dt_line *l, double logN, double b) {
   gsl_integration_qag(&F, 0.0, x1, 0.0, COG_EPS, COG_LIMIT, GSL_INTEG_GAUSS31, w, &i1, &err);
   gsl_integration_qagiu(&F, x1, 0.0, COG_EPS, COG_LIMIT, w, &i2, &err);
   gsl_integration_workspace_free(w);
-  gsl_set_error_handler(old);
   return l->lambda0 * (b / DT_C_KMS) * 2.0 * (i1 + i2);
 }
 
@@ -78,10 +77,9 @@ double dt_cog_logN(const dt_line *l, double W, double b) {
     hi += 2.0;
     if (++guard > 20 || hi > DT_MODEL_LOGN_MAX) return NAN;
   }
-  gsl_error_handler_t *old = gsl_set_error_handler_off();
+  dt_gsl_quiet();
   gsl_root_fsolver *s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
   if (!s) {
-    gsl_set_error_handler(old);
     return NAN;
   }
   gsl_function F = {inv_f, &q};
@@ -95,6 +93,5 @@ double dt_cog_logN(const dt_line *l, double W, double b) {
     }
   }
   gsl_root_fsolver_free(s);
-  gsl_set_error_handler(old);
   return r;
 }

@@ -40,9 +40,12 @@
 #include <gsl/gsl_linalg.h>
 #include <gsl/gsl_multifit_nlinear.h>
 #include <math.h>
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+
+#include "gsl_quiet.h"
 
 #define NCACHE 6
 #define MAXPAR (3 * DT_MAX_COMP + DT_MAX_CONT)
@@ -221,20 +224,20 @@ static int eval_model(dt_fit_workspace *w, int with_jac) {
                        with_jac ? w->mjac : NULL, 3 * w->ncomp);
 }
 
-/* The residuals.  The model's Jacobian costs little on top of its flux,
- * and GSL asks for the Jacobian at every accepted point right after the
- * residuals there, so both are computed here and the Jacobian is kept for
- * resid_df (keyed by x). */
+/* The residuals: the model's flux only.  Half of the points GSL asks for
+ * never get a Jacobian (rejected steps, and the points of the
+ * finite-difference second derivative for the geodesic acceleration); at
+ * an accepted point resid_df follows at once, and the model, which keeps
+ * the state of its last evaluation, then adds only the Jacobian -- the
+ * same numbers as computing both here. */
 static int resid_f(const gsl_vector *x, void *params, gsl_vector *f) {
   dt_fit_workspace *w = params;
   set_params(w, x->data);
   w->jac_valid = 0;
-  if (eval_model(w, 1) != DT_OK) {
+  if (eval_model(w, 0) != DT_OK) {
     gsl_vector_set_all(f, BAD_RESIDUAL);
     return GSL_SUCCESS;
   }
-  memcpy(w->jac_x, x->data, w->npar * sizeof w->jac_x[0]);
-  w->jac_valid = 1;
   for (size_t m = 0; m < w->nused; m++) {
     double pred = w->base[m] * poly_at(w, m) * w->mflux[w->idx[m]];
     double r = (w->y[m] - pred) * w->isig[m];
@@ -445,6 +448,17 @@ static void fill_result(dt_fit_workspace *w, dt_fit_result *r, double chi2) {
   r->bic = chi2 + (double)w->npar * log((double)w->nused);
 }
 
+/* GSL's default error handler aborts the process; the fit reports its own
+ * status codes instead, so the handler is turned off -- once for the
+ * process (pthread_once), because the handler is a process-wide setting
+ * that threads fitting at the same time must not swap back and forth. */
+static void gsl_handler_off(void) { gsl_set_error_handler_off(); }
+
+void dt_gsl_quiet(void) {
+  static pthread_once_t once = PTHREAD_ONCE_INIT;
+  pthread_once(&once, gsl_handler_off);
+}
+
 /* Starting joint continuum coefficients: the model is linear in them, so
  * solve the weighted linear least-squares problem for the starting
  * components (normal equations, Cholesky; at most DT_MAX_CONT unknowns).
@@ -509,9 +523,8 @@ int dt_fit_chi2(dt_fit_workspace *w, const dt_fit_problem *p, const dt_component
   for (size_t j = 0; j < p->ncont; j++)
     w->cinit[j] = q.cont_init ? q.cont_init[j] : (j == 0 ? 1.0 : 0.0);
   if (!q.cont_init) {
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    dt_gsl_quiet();
     linear_cont_start(w);
-    gsl_set_error_handler(old);
   }
   memcpy(w->ccur, w->cinit, p->ncont * sizeof w->ccur[0]);
   int ok;
@@ -715,9 +728,8 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   w->info.nparam = w->npar;
   set_params(w, NULL);
   if (w->ncont && !p->cont_init) {
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    dt_gsl_quiet();
     linear_cont_start(w);
-    gsl_set_error_handler(old);
     set_params(w, NULL);
   }
 
@@ -751,7 +763,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   int max_iter = p->max_iter > 0 ? p->max_iter : DT_FIT_MAX_ITER;
   double tlim = p->time_limit == 0 ? DT_FIT_TIME_LIMIT : p->time_limit;
 
-  gsl_error_handler_t *old_handler = gsl_set_error_handler_off();
+  dt_gsl_quiet();
   int iter = 0;
   run_state rs;
   solve(w, &fdf, x0, FIRST_ACCEL, max_iter, tlim, t0, &iter, &rs);
@@ -765,7 +777,6 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
       rs = ra;
   }
   if (!rs.slot) {
-    gsl_set_error_handler(old_handler);
     r->status = DT_ENOMEM;
     return dt_err_set(e, DT_ENOMEM, "fit", "out of memory");
   }
@@ -810,7 +821,6 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
       }
     }
   }
-  gsl_set_error_handler(old_handler);
   w->info.reason = rs.info;
   w->info.seconds = now_seconds() - t0;
   if (why) {

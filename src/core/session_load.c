@@ -4,6 +4,7 @@
  * time.  The first pass is shown at once and becomes part of the record
  * with the first change or verdict; merely looking writes nothing. */
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "doubletty/autofit.h"
@@ -95,26 +96,101 @@ static void reset(dt_session *ss, const dt_session_target *t) {
   ss->tone = DT_TONE_TEXT;
 }
 
-static int read_spectrum(dt_session *ss, const dt_session_target *t) {
+/* The spectrum of t and its analysis into *spec, *an; else the reason in
+ * msg[0..size). */
+static int read_into(const dt_atomic *atomic, const dt_session_target *t, dt_spectrum **spec,
+                     dt_analysis **an, char *msg, size_t size) {
   dt_err e;
   dt_err_clear(&e);
   dt_read_opts ro = t->read;
   ro.row = t->row;
   ro.air = t->air;
-  int rc = dt_spectrum_read(t->path, &ro, &ss->spec, &e);
+  int rc = dt_spectrum_read(t->path, &ro, spec, &e);
   if (rc == DT_OK) {
-    ss->an = dt_analysis_alloc(ss->spec, ss->atomic);
-    if (!ss->an) {
-      dt_spectrum_free(ss->spec);
-      ss->spec = NULL;
+    *an = dt_analysis_alloc(*spec, atomic);
+    if (!*an) {
+      dt_spectrum_free(*spec);
+      *spec = NULL;
       dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
       rc = DT_ENOMEM;
     }
   }
   if (rc != DT_OK)
-    snprintf(ss->load_msg, sizeof ss->load_msg, "%s%s%s%s%s", t->path, e.where[0] ? ": " : "", e.where, ": ",
+    snprintf(msg, size, "%s%s%s%s%s", t->path, e.where[0] ? ": " : "", e.where, ": ",
              e.what[0] ? e.what : dt_status_str(rc));
   return rc;
+}
+
+static int read_spectrum(dt_session *ss, const dt_session_target *t) {
+  dt_session_ahead *ah = t->ahead;
+  if (!ah) return read_into(ss->atomic, t, &ss->spec, &ss->an, ss->load_msg, sizeof ss->load_msg);
+  ss->spec = ah->spec;
+  ss->an = ah->an;
+  ah->spec = NULL;
+  ah->an = NULL;
+  snprintf(ss->load_msg, sizeof ss->load_msg, "%s", ah->load_msg);
+  return ah->rc;
+}
+
+/* The first-look judgement of t on a freshly read spectrum. */
+/* The state a first look starts from (first_state): the target's initial
+ * state with the file's resolution where none was given; first_look adds
+ * the systems of the run and the list with the window widened to cover them,
+ * as systems_of_state does for a session (which also says why, and falls
+ * back to the plain systems, when that fails). */
+static dt_judgement first_state(const dt_session_target *t, const dt_spectrum *spec) {
+  dt_judgement j = t->initial;
+  if (!(j.resolution > 0) && !(j.fwhm_kms > 0) && spec->resolution > 0) {
+    j.resolution = spec->resolution;
+    j.fwhm_kms = 0;
+  }
+  return j;
+}
+
+static dt_judgement first_look(const dt_atomic *atomic, const dt_session_target *t,
+                               const dt_spectrum *spec) {
+  dt_judgement j = first_state(t, spec);
+  if (j.nsys > 0) return j;
+  dt_system_set set;
+  dt_err e;
+  dt_judgement w = j;
+  const dt_doublet *d = dt_atomic_find(atomic, j.doublet);
+  double fw = j.resolution > 0 ? DT_C_KMS / j.resolution : j.fwhm_kms;
+  if (dt_systems_setup(&t->systems, j.vsys, spec, d, fw, t->has_window, &w.vlo, &w.vhi, &set, &e) !=
+      DT_OK)
+    return j;
+  j = w;
+  j.nsys = set.n < DT_JUDGE_MAX_SYS ? set.n : DT_JUDGE_MAX_SYS;
+  for (size_t k = 0; k < j.nsys; k++) {
+    snprintf(j.sys[k].name, sizeof j.sys[k].name, "%s", set.sys[k].name);
+    j.sys[k].vlo = set.sys[k].vlo;
+    j.sys[k].vhi = set.sys[k].vhi;
+  }
+  return j;
+}
+
+dt_session_ahead *dt_session_ahead_make(const dt_atomic *atomic, const dt_session_target *t,
+                                        int first) {
+  dt_session_ahead *a = calloc(1, sizeof *a);
+  if (!a) return NULL;
+  a->rc = read_into(atomic, t, &a->spec, &a->an, a->load_msg, sizeof a->load_msg);
+  if (a->rc != DT_OK) return a;
+  dt_err e;
+  if (dt_digest_file(t->path, a->sha, &e) != DT_OK) a->sha[0] = '\0';
+  if (first) {
+    a->first = first_look(atomic, t, a->spec);
+    dt_err_clear(&e);
+    a->first_rc = dt_autofit_run(a->an, &a->first, NULL, &a->af, &e);
+    a->has_first = 1;
+  }
+  return a;
+}
+
+void dt_session_ahead_free(dt_session_ahead *a) {
+  if (!a) return;
+  dt_analysis_free(a->an);
+  dt_spectrum_free(a->spec);
+  free(a);
 }
 
 /* The recorded state, with a refit checked against the recorded fit. */
@@ -173,7 +249,8 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
   }
   ss->loaded = 1;
   dt_err e;
-  if (dt_digest_file(t->path, ss->sha, &e) != DT_OK) ss->sha[0] = '\0';
+  if (t->ahead) snprintf(ss->sha, sizeof ss->sha, "%s", t->ahead->sha);
+  else if (dt_digest_file(t->path, ss->sha, &e) != DT_OK) ss->sha[0] = '\0';
   if (ss->jn && ss->sha[0]) { /* the session knows a spectrum by its file's digest */
     dt_target tg = dt_session_journal_target(ss);
     const dt_journal_entry *by_id = dt_journal_find(ss->jn, &tg);
@@ -183,16 +260,21 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     resume(ss, en, t);
   } else {
     /* first look: the automatic first pass, recorded at the first change */
-    ss->j = t->initial;
-    if (!(ss->j.resolution > 0) && !(ss->j.fwhm_kms > 0) && ss->spec->resolution > 0) {
-      ss->j.resolution = ss->spec->resolution;
-      ss->j.fwhm_kms = 0;
-    }
+    ss->j = first_state(t, ss->spec);
     systems_of_state(ss, t, 0);
     dt_judgement trial = ss->j;
     dt_autofit_out af;
-    dt_err_clear(&e);
-    int arc = dt_autofit_run(ss->an, &trial, NULL, &af, &e);
+    int arc;
+    if (t->ahead && t->ahead->has_first && t->ahead->first.vlo == ss->j.vlo &&
+        t->ahead->first.vhi == ss->j.vhi && t->ahead->first.nsys == ss->j.nsys) {
+      /* made in advance, the same way (the same window and systems) */
+      trial = t->ahead->first;
+      af = t->ahead->af;
+      arc = t->ahead->first_rc;
+    } else {
+      dt_err_clear(&e);
+      arc = dt_autofit_run(ss->an, &trial, NULL, &af, &e);
+    }
     if (arc == DT_OK || arc == DT_ENOCONV) {
       ss->j = trial;
       dt_session_suggest(ss, &af);

@@ -743,6 +743,11 @@ int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel
   return dt_num_with_c_locale(call_read, &a);
 }
 
+int dt_spectrum_threads_init(void) {
+  fits_init_cfitsio();
+  return fits_is_reentrant() ? DT_OK : DT_EINVAL;
+}
+
 int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_read_opts *o,
                            long *count, dt_err *e) {
   *count = 0;

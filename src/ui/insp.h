@@ -36,6 +36,7 @@ typedef struct dt_insp {
   int utf8;
   dt_plot_mode mode;
   dt_session *ss;                /* the judgement of the current spectrum */
+  struct dt_prefetch *pf;        /* the look-ahead thread (NULL: none) */
 
   /* the queue */
   size_t cur;

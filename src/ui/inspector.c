@@ -19,6 +19,7 @@
 #include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
+#include "prefetch.h"
 #include "term.h"
 
 void dt_inspect_opts_init(dt_inspect_opts *o) {
@@ -138,6 +139,47 @@ static void hi_sample(dt_insp *s) {
   s->hs_vsys = ho.vsys;
 }
 
+/* The session target of queue entry idx (key: its buffer): the list line's
+ * reading options (frames: --frame, --in-frame, --site, then the list's),
+ * window and systems (the run's settings over the line's; systems of both). */
+static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *key, size_t size) {
+  dt_session_target_init(t, dt_queue_path(s->q, idx), entry_key(s, idx, key, size), s->q->e[idx].row);
+  t->name = dt_queue_name(s->q, idx);
+  t->air = s->q->e[idx].air;
+  t->read = s->q->read;
+  if (s->q->e[idx].has_pos) t->read.has_pos = 1, t->read.ra = s->q->e[idx].ra, t->read.dec = s->q->e[idx].dec;
+  if (s->q->e[idx].frame != DT_FRAME_UNSET) t->read.in_frame = (dt_frame)s->q->e[idx].frame;
+  initial_state(s, idx, &t->initial);
+  t->has_window = s->q->e[idx].has_window;
+  t->systems = s->o->systems;
+  dt_system_opts ls;
+  dt_system_opts_init(&ls);
+  dt_queue_systems(s->q, idx, &ls);
+  if (!t->systems.has_target && ls.has_target) {
+    t->systems.has_target = 1;
+    t->systems.target_vlo = ls.target_vlo;
+    t->systems.target_vhi = ls.target_vhi;
+  }
+  dt_err e;
+  for (size_t k = 0; k < ls.nextra; k++) dt_system_opts_add(&t->systems, &ls.extra[k], &e);
+}
+
+/* While the current spectrum is judged, the next two are opened in the
+ * background (the first pass too when the session has no record of them),
+ * so that a verdict shows the next one at once. */
+#define LOOK_AHEAD 2
+
+static void look_ahead(dt_insp *s) {
+  for (size_t d = 1; d <= LOOK_AHEAD && s->pf && s->cur + d < s->q->n; d++) {
+    size_t idx = s->cur + d;
+    char key[DT_KEY_MAX];
+    dt_session_target t;
+    target_of(s, idx, &t, key, sizeof key);
+    int first = !s->jn || !dt_journal_lookup(s->jn, key, 0, t.row);
+    dt_prefetch_want(s->pf, idx, &t, first);
+  }
+}
+
 void dt_insp_load(dt_insp *s, size_t idx) {
   if (idx >= s->q->n) return;
   s->cur = idx;
@@ -146,28 +188,12 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   s->finished = 0;
   char key[DT_KEY_MAX];
   dt_session_target t;
-  dt_session_target_init(&t, dt_queue_path(s->q, idx), entry_key(s, idx, key, sizeof key), s->q->e[idx].row);
-  t.name = dt_queue_name(s->q, idx);
-  t.air = s->q->e[idx].air;
-  t.read = s->q->read; /* frames: --frame, --in-frame, --site; then the list's */
-  if (s->q->e[idx].has_pos) t.read.has_pos = 1, t.read.ra = s->q->e[idx].ra, t.read.dec = s->q->e[idx].dec;
-  if (s->q->e[idx].frame != DT_FRAME_UNSET) t.read.in_frame = (dt_frame)s->q->e[idx].frame;
-  initial_state(s, idx, &t.initial);
-  t.has_window = s->q->e[idx].has_window;
-  t.systems = s->o->systems;
-  { /* the run's settings over the list line's; systems of both */
-    dt_system_opts ls;
-    dt_system_opts_init(&ls);
-    dt_queue_systems(s->q, idx, &ls);
-    if (!t.systems.has_target && ls.has_target) {
-      t.systems.has_target = 1;
-      t.systems.target_vlo = ls.target_vlo;
-      t.systems.target_vhi = ls.target_vhi;
-    }
-    dt_err e;
-    for (size_t k = 0; k < ls.nextra; k++) dt_system_opts_add(&t.systems, &ls.extra[k], &e);
-  }
-  if (dt_session_load(s->ss, &t) != DT_OK) {
+  target_of(s, idx, &t, key, sizeof key);
+  t.ahead = dt_prefetch_take(s->pf, idx);
+  int rc = dt_session_load(s->ss, &t);
+  dt_session_ahead_free(t.ahead);
+  look_ahead(s);
+  if (rc != DT_OK) {
     char k1[16], k2[16];
     dt_insp_say(s, DT_TONE_BAD, "cannot read %s - %s skips, %s marks it unusable", s->ss->load_msg,
                 dt_insp_keyname(DT_CMD_NEXT_SPECTRUM, k1, sizeof k1),
@@ -219,6 +245,14 @@ static int replay_next(replay *r, char *msg, size_t size) {
     while (*p == ' ' || *p == '\t') p++;
     size_t n = strlen(p);
     while (n && (p[n - 1] == '\n' || p[n - 1] == '\r')) p[--n] = '\0';
+    if (!strncmp(p, "pause ", 6)) { /* a person looking: MS milliseconds */
+      long ms = strtol(p + 6, NULL, 10);
+      if (ms > 0 && ms <= 60000) {
+        struct timespec ts = {ms / 1000, (ms % 1000) * 1000000L};
+        nanosleep(&ts, NULL);
+      }
+      continue;
+    }
     if (!strncmp(p, "type ", 5)) {
       if (!dt_utf8_valid(p + 5, strlen(p + 5))) {
         snprintf(msg, size, "line %ld: the text to type is not UTF-8", r->line);
@@ -310,6 +344,7 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
     return 1;
   }
   s->atomic = t;
+  s->pf = o->no_look_ahead ? NULL : dt_prefetch_start(t);
   s->q = q;
   s->jn = jn;
   s->o = o;
@@ -347,8 +382,8 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
   draw(s);
 
   /* keystroke times: all, and those that refitted within one spectrum */
-  double *times = NULL, *ftimes = NULL;
-  size_t ntimes = 0, nftimes = 0, captimes = 0;
+  double *times = NULL, *ftimes = NULL, *mtimes = NULL; /* mtimes: moves to another spectrum */
+  size_t ntimes = 0, nftimes = 0, nmtimes = 0, captimes = 0;
   int status = 0;
   msg[0] = '\0';
   for (;;) {
@@ -379,13 +414,16 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
     if (ntimes == captimes) {
       size_t cap = captimes ? 2 * captimes : 256;
       double *nt = realloc(times, cap * sizeof *nt), *nf = nt ? realloc(ftimes, cap * sizeof *nf) : NULL;
+      double *nm = nf ? realloc(mtimes, cap * sizeof *nm) : NULL;
       if (nt) times = nt;
-      if (nf) {
-        ftimes = nf;
+      if (nf) ftimes = nf;
+      if (nm) {
+        mtimes = nm;
         captimes = cap;
       }
     }
     if (ntimes < captimes) {
+      if (s->cur != c0) mtimes[nmtimes++] = dt;
       times[ntimes++] = dt;
       if (s->ss->nfits > f0 && s->cur == c0) ftimes[nftimes++] = dt;
     }
@@ -401,10 +439,17 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
       printf("refits %zu  median %.3f ms  p90 %.3f ms  max %.3f ms\n", nftimes, ftimes[nftimes / 2],
              ftimes[(size_t)(0.9 * (double)(nftimes - 1))], ftimes[nftimes - 1]);
     }
+    if (nmtimes > 0) {
+      qsort(mtimes, nmtimes, sizeof *mtimes, cmp_double);
+      printf("next %zu  median %.3f ms  p90 %.3f ms  max %.3f ms\n", nmtimes, mtimes[nmtimes / 2],
+             mtimes[(size_t)(0.9 * (double)(nmtimes - 1))], mtimes[nmtimes - 1]);
+    }
   }
   free(times);
   free(ftimes);
+  free(mtimes);
   if (rp.f) fclose(rp.f);
+  dt_prefetch_stop(s->pf);
   dt_session_free(s->ss);
   dt_hi_sample_free(&s->hs);
   free(s->tmp);

@@ -30,6 +30,7 @@ typedef struct dt_inspect_opts {
   const char *dump;        /* write the last screen as text here (or NULL) */
   int width, height;       /* headless screen size (0: 100 x 32) */
   int bench;               /* print per-keystroke timing at the end */
+  int no_look_ahead;       /* 1: open each spectrum only when it is shown */
   /* set by the command, for the inspector to show and use */
   const char *session_path; /* shown at the start (NULL: the journal's path) */
   const struct dt_hicube *hi; /* a 21-cm cube to show at each sightline (or NULL) */
