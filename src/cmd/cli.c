@@ -169,20 +169,25 @@ int cli_system_option(const char *opt, const char *v, dt_system_opts *o) {
     return 0;
   }
   /* --target-window VLO:VHI */
-  const char *colon = v ? strchr(v, ':') : NULL;
-  char a[64], b[64];
-  if (!colon) {
-    cli_errorf("%s: '%s' is not VLO:VHI (e.g. -250:250)", opt, v ? v : "");
-    return 1;
-  }
-  snprintf(a, sizeof a, "%.*s", (int)(colon - v), v);
-  snprintf(b, sizeof b, "%s", colon + 1);
-  if (cli_parse_double(opt, a, &o->target_vlo) || cli_parse_double(opt, b, &o->target_vhi)) return 1;
-  if (!isfinite(o->target_vlo) || !isfinite(o->target_vhi) || o->target_vlo >= o->target_vhi) {
-    cli_errorf("%s: empty velocity window %s (VLO must be below VHI)", opt, v);
-    return 1;
-  }
+  if (cli_parse_range(opt, v, &o->target_vlo, &o->target_vhi)) return 1;
   o->has_target = 1;
+  return 0;
+}
+
+int cli_parse_range(const char *opt, const char *text, double *lo, double *hi) {
+  const char *colon = text ? strchr(text, ':') : NULL;
+  if (!colon) {
+    cli_errorf("%s: '%s' is not VLO:VHI (e.g. -400:300)", opt, text ? text : "");
+    return 1;
+  }
+  char a[64], b[64];
+  snprintf(a, sizeof a, "%.*s", (int)(colon - text), text);
+  snprintf(b, sizeof b, "%s", colon + 1);
+  if (cli_parse_double(opt, a, lo) || cli_parse_double(opt, b, hi)) return 1;
+  if (!isfinite(*lo) || !isfinite(*hi) || *lo >= *hi) {
+    cli_errorf("%s: empty velocity window %s (VLO must be below VHI)", opt, text);
+    return 1;
+  }
   return 0;
 }
 

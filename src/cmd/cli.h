@@ -56,6 +56,10 @@ int cli_opt_site(const char *cmd, const char *text, dt_read_opts *r);
 /* 1 after "PATH: is a directory, not a file" when path names a directory. */
 int cli_check_not_dir(const char *path);
 
+/* A velocity range VLO:VHI [km/s] of option opt (VLO < VHI, both finite);
+ * 1 with a message when it is not one. */
+int cli_parse_range(const char *opt, const char *text, double *lo, double *hi);
+
 /* --target-window VLO:VHI, --system NAME:VLO:VHI or --milky-way HALF (opt)
  * with value v into o; 1 after a message when the value is bad. */
 int cli_system_option(const char *opt, const char *v, dt_system_opts *o);

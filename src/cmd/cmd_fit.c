@@ -683,24 +683,6 @@ static void run_files_from(run *r, const char *path) {
 
 /* ---- options ---------------------------------------------------------- */
 
-static int parse_window(const char *text, double *lo, double *hi) {
-  const char *opt = "--window";
-  const char *colon = text ? strchr(text, ':') : NULL;
-  if (!colon) {
-    cli_errorf("%s: '%s' is not VLO:VHI (e.g. -400:300)", opt, text ? text : "");
-    return 1;
-  }
-  char a[64], b[64];
-  snprintf(a, sizeof a, "%.*s", (int)(colon - text), text);
-  snprintf(b, sizeof b, "%s", colon + 1);
-  if (cli_parse_double(opt, a, lo) || cli_parse_double(opt, b, hi)) return 1;
-  if (!isfinite(*lo) || !isfinite(*hi) || *lo >= *hi) {
-    cli_errorf("%s: empty velocity window %s (VLO must be below VHI)", opt, text);
-    return 1;
-  }
-  return 0;
-}
-
 static int parse_shard(const char *text, long *k, long *n) {
   const char *slash = text ? strchr(text, '/') : NULL;
   char a[32], b[32];
@@ -911,7 +893,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     return 0;
   case O_WINDOW:
     c->have_window = 1;
-    return parse_window(v, &c->vlo, &c->vhi);
+    return cli_parse_range("--window", v, &c->vlo, &c->vhi);
   case O_NCOMP:
     if (ranged("--ncomp", v, 0, DT_MAX_COMP, &l)) return 1;
     c->ncomp = (int)l;

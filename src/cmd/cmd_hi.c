@@ -121,15 +121,6 @@ static void one(hi_run *r, const dt_target_spec *t, const char *path) {
   dt_spectrum_free(s);
 }
 
-static int parse_window(const char *v, double *lo, double *hi) {
-  const char *colon = strchr(v, ':');
-  char a[64];
-  if (!colon || (size_t)(colon - v) >= sizeof a) return 1;
-  snprintf(a, sizeof a, "%.*s", (int)(colon - v), v);
-  if (dt_num_parse(a, lo) || dt_num_parse(colon + 1, hi) || !(*lo < *hi)) return 1;
-  return 0;
-}
-
 int cmd_hi(int argc, char **argv) {
   enum { O_LIST = 256, O_VSYS, O_WINDOW, O_APER, O_FRAME, O_INFRAME, O_SITE, O_FORCE };
   static const struct option longopts[] = {
@@ -165,10 +156,7 @@ int cmd_hi(int argc, char **argv) {
       r.have_vsys = 1;
       break;
     case O_WINDOW:
-      if (parse_window(v, &r.ho.vlo, &r.ho.vhi)) {
-        cli_errorf("hi: --window %s: not VLO:VHI in km/s with VLO < VHI", v);
-        goto usage_error;
-      }
+      if (cli_parse_range("hi: --window", v, &r.ho.vlo, &r.ho.vhi)) goto usage_error;
       r.ho.has_window = 1;
       break;
     case O_APER:

@@ -13,6 +13,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "doubletty/csv.h"
+#include "doubletty/hicube.h"
 #include "doubletty/num.h"
 #include "doubletty/sphere.h"
 #include "survey.h"
@@ -26,6 +27,9 @@ static void usage(FILE *f) {
           "  --threshold-mA W     count by the rule of 'fraction' at W [mA] (default: verdicts)\n"
           "  --threshold-logN N   or at log10 N [cm-2]\n"
           "  --vmax V             colour scale -V..+V [km/s] (default: the largest |v|)\n"
+          "  --hi CUBE            log N(HI) contours of a 21-cm cube beneath (figure)\n"
+          "  --hi-window VLO:VHI  velocities integrated for them [km/s, barycentric]\n"
+          "                       (default: every channel)\n"
           "  --system NAME        which system: default target\n"
           "  --doublet NAME       the doublet, when the catalogues hold several\n"
           "  --with TABLE.csv     extra columns joined by 'name'\n"
@@ -74,14 +78,75 @@ static void tmap(const dt_fig_map_point *pt, size_t n, double half) {
   dt_grid_free(&g);
 }
 
+/* log N(HI) contours of a 21-cm cube on the map's tangent plane: the
+ * column density of every spatial pixel (hicube.h), placed by the positions
+ * of three pixels -- the cube's axes must run along RA and Dec (no rotation,
+ * checked to 1% of a pixel step) -- at levels every 0.5 dex from 18.5 up to
+ * the map's largest value.  *z is allocated. */
+#define HI_MAX_LEVELS 12
+static int hi_contours(const char *path, const dt_hi_opts *ho, double ra0, double dec0, dt_fig_contours *hc,
+                       double **z, double *level, char *label, size_t nlabel) {
+  dt_hicube *cube = NULL;
+  dt_err e;
+  dt_err_clear(&e);
+  size_t nx = 0, ny = 0;
+  if (dt_hicube_open(path, &cube, &e) != DT_OK || dt_hicube_column_map(cube, ho, z, &nx, &ny, &e) != DT_OK) {
+    cli_errorf("map: %s: %s", path, e.what);
+    dt_hicube_close(cube);
+    return 1;
+  }
+  double p[3][2]; /* tangent-plane offsets [arcmin] of pixels (0,0), (1,0), (0,1) */
+  const double pix[3][2] = {{0, 0}, {1, 0}, {0, 1}};
+  int bad = nx < 2 || ny < 2;
+  for (int k = 0; k < 3 && !bad; k++) {
+    double ra, dec, xi, eta;
+    bad = dt_hicube_pixel_world(cube, pix[k][0], pix[k][1], &ra, &dec) ||
+          dt_sphere_gnomonic(ra, dec, ra0, dec0, &xi, &eta);
+    p[k][0] = 60 * xi;
+    p[k][1] = 60 * eta;
+  }
+  dt_hicube_close(cube);
+  double dx = bad ? 0 : p[1][0] - p[0][0], dy = bad ? 0 : p[2][1] - p[0][1];
+  if (bad || fabs(p[2][0] - p[0][0]) > 0.01 * fabs(dx) || fabs(p[1][1] - p[0][1]) > 0.01 * fabs(dy)) {
+    cli_errorf("map: %s: the cube's pixels cannot be placed on the map (its axes must run along RA and Dec)", path);
+    return 1;
+  }
+  double zmax = -INFINITY;
+  for (size_t i = 0; i < nx * ny; i++)
+    if (isfinite((*z)[i]) && (*z)[i] > zmax) zmax = (*z)[i];
+  size_t nl = 0;
+  for (double l = 18.5; l <= zmax && nl < HI_MAX_LEVELS; l += 0.5) level[nl++] = l;
+  if (nl == 0) snprintf(label, nlabel, "log N(HI): none above 18.5");
+  else dt_num_snprintf(label, nlabel, "log N(HI) %.1f-%.1f /0.5", level[0], level[nl - 1]);
+  hc->nx = nx;
+  hc->ny = ny;
+  hc->x0 = p[0][0];
+  hc->y0 = p[0][1];
+  hc->dx = dx;
+  hc->dy = dy;
+  hc->z = *z;
+  hc->nlevel = nl;
+  hc->level = level;
+  hc->label = label;
+  return 0;
+}
+
 int cmd_map(int argc, char **argv) {
   survey_opts so = {0};
   double thr = NAN, vmax = NAN;
+  const char *hi_path = NULL;
+  dt_hi_opts ho;
+  memset(&ho, 0, sizeof ho);
+  ho.has_window = 1; /* every channel unless --hi-window */
+  ho.vlo = -1e6;
+  ho.vhi = 1e6;
   dt_threshold_kind kind = DT_THRESHOLD_NONE;
   static const struct option longopts[] = {{"help", no_argument, NULL, 'h'},
                                            {"threshold-mA", required_argument, NULL, 1},
                                            {"threshold-logN", required_argument, NULL, 2},
                                            {"vmax", required_argument, NULL, 3},
+                                           {"hi", required_argument, NULL, 4},
+                                           {"hi-window", required_argument, NULL, 5},
                                            SURVEY_LONGOPTS,
                                            {NULL, 0, NULL, 0}};
   int opt;
@@ -110,6 +175,10 @@ int cmd_map(int argc, char **argv) {
         return 2;
       }
       break;
+    case 4: hi_path = optarg; break;
+    case 5:
+      if (cli_parse_range("map: --hi-window", optarg, &ho.vlo, &ho.vhi)) return 2;
+      break;
     default: return cli_opt_error("map", opt, argv);
     }
   }
@@ -119,7 +188,14 @@ int cmd_map(int argc, char **argv) {
   dt_fig_format fmt = DT_FIG_PDF;
   int rc = survey_check_outputs("map", &so, files, nfiles, &tab, &fig, &fmt);
   if (rc) return rc;
+  if (hi_path && !so.figure) {
+    cli_errorf("map: --hi draws contours into the figure: give --figure FILE too");
+    return 2;
+  }
   dt_catalog c;
+  dt_fig_contours hc;
+  double *hz = NULL, hlevel[HI_MAX_LEVELS];
+  char hlabel[160];
   dt_fig_map_point *pt = NULL;
   double *ra = NULL, *dec = NULL;
   if ((rc = survey_load("map", files, nfiles, &so, &c))) goto done;
@@ -187,6 +263,8 @@ int cmd_map(int argc, char **argv) {
     cli_errorf("map: note: %zu sightline%s more than 60 deg from the centre left off the map", far, far == 1 ? "" : "s");
   if (!isfinite(vmax)) vmax = vabs > 0 ? vabs : 100;
 
+  /* the contours first: a cube that cannot be drawn stops before any output */
+  if (hi_path && (rc = hi_contours(hi_path, &ho, ra0, dec0, &hc, &hz, hlevel, hlabel, sizeof hlabel))) goto done;
   if (!so.out && survey_stdout_tty()) tmap(pt, c.n, half > 0 ? half * 1.05 : 1);
   if (cli_out_open(&tab)) {
     rc = 1;
@@ -232,9 +310,11 @@ int cmd_map(int argc, char **argv) {
     dt_num_snprintf(centre, sizeof centre, "centre RA %.4f\xc2\xb0 Dec %+.4f\xc2\xb0 (ICRS), gnomonic projection%s", ra0,
                     dec0, kind == DT_THRESHOLD_LOGN ? "; limits: log N" : "; limits: W [m\xc3\x85]");
     dt_fig_map m = {title, centre, vmax, "", c.n, pt, NULL};
+    if (hi_path) m.contours = &hc;
     rc = survey_write_figure("map", &fig, fmt, draw, &m);
   }
 done:
+  free(hz);
   free(pt);
   free(ra);
   free(dec);

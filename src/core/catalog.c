@@ -537,6 +537,13 @@ int dt_catalog_select(dt_catalog *c, const char *system, const char *doublet, dt
   return DT_OK;
 }
 
+/* Rows r and q of t hold the same texts in every column. */
+static int same_row(const dt_catalog_table *t, size_t r, size_t q) {
+  for (size_t k = 0; k < t->ncol; k++)
+    if (strcmp(cell(t, r, (long)k), cell(t, q, (long)k))) return 0;
+  return 1;
+}
+
 int dt_catalog_join(dt_catalog *c, const char *path, dt_err *e) {
   dt_err_clear(e);
   if (c->with_table >= 0) return dt_err_set(e, DT_EINVAL, NULL, "one joined table at most");
@@ -548,9 +555,11 @@ int dt_catalog_join(dt_catalog *c, const char *path, dt_err *e) {
     table_free(&c->tab[--c->ntab]);
     return dt_err_set(e, DT_ENOTFOUND, NULL, "no column 'name'");
   }
+  /* a name twice is refused, unless the two rows say the same (one
+   * sightline measured once per doublet of a list, as `hi` writes it) */
   for (size_t r = 0; r < t->nrow; r++)
     for (size_t q = 0; q < r; q++)
-      if (!strcmp(cell(t, r, nc), cell(t, q, nc))) {
+      if (!strcmp(cell(t, r, nc), cell(t, q, nc)) && !same_row(t, r, q)) {
         char w[64];
         where_of(t, r, NULL, w, sizeof w);
         rc = dt_err_set(e, DT_EFORMAT, w, "name '%.40s' again (first on line %ld)", cell(t, r, nc), t->line[q]);

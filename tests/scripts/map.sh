@@ -61,6 +61,18 @@ if need_tool script "the map in a terminal"; then
   script -qc "'$DT' map cat.csv --threshold-mA 100" /dev/null 2>&1 | tr -d '\r' >tty.txt
   check "terminal: a map with the three symbols" sh -c "grep -q '^sky map' tty.txt && grep -q '[*]' tty.txt && grep -q ' v ' tty.txt && grep -q 'x' tty.txt"
 fi
+# 21-cm contours beneath: the demo's cube under the demo's first pass
+"$DT" demo demo >/dev/null 2>&1 && "$DT" fit --list demo/targets.list -o demo.csv 2>/dev/null
+"$DT" map demo.csv --doublet NaI --figure plain.svg -o /dev/stdout >/dev/null 2>&1
+"$DT" map demo.csv --doublet NaI --hi demo/velloran_hi.fits --figure hi.svg -o hi.csv 2>/dev/null
+check "--hi: the map is written (exit $?)" [ -s hi.svg ]
+# contour strokes are 0.7 pt wide (fig_map.c); the plain map has none
+check "--hi: contours drawn beneath the sightlines" [ "$(grep -c 'stroke-width:0.7' hi.svg)" -gt 0 ]
+check "... and none without --hi" [ "$(grep -c 'stroke-width:0.7' plain.svg)" -eq 0 ]
+expect_fail "--hi without a figure" "give --figure" "$DT" map demo.csv --doublet NaI --hi demo/velloran_hi.fits
+expect_fail "--hi on a spectrum, not a cube: file named" "vpq01.fits" "$DT" map demo.csv --doublet NaI --hi demo/vpq01.fits --figure x.svg
+check "... and no table written before the refusal" [ ! -e x.svg ]
+expect_fail "--hi-window empty" "VLO must be below VHI" "$DT" map demo.csv --hi demo/velloran_hi.fits --hi-window 5:1 --figure y.svg
 printf 'name,suggested\nA,detected\n' >nopos.csv
 expect_fail "no position columns: file and column named" "nopos.csv.*ra_deg" "$DT" map nopos.csv
 expect_fail "--vmax negative" "positive" "$DT" map cat.csv --vmax -3

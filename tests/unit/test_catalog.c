@@ -84,6 +84,18 @@ int main(void) {
   CHECK(dt_catalog_has(&c, "W_limit_mA", &e), "W_limit_mA present");
   dt_catalog_free(&c);
 
+  /* a joined table naming a sightline twice: refused, unless both rows say
+   * the same (a sightline listed once per doublet) */
+  dt_catalog_init(&c);
+  CHECK(dt_catalog_read(&c, put("c2.csv", "name,doublet,system,component,W_mA,W_limit_mA,suggested\n"
+                                          "A,NaI,target,,10,40,not-detected\n"), &e) == DT_OK, "read again");
+  CHECK(dt_catalog_join(&c, put("w2.csv", "name,b_kpc\nA,3\nA,4\n"), &e) == DT_EFORMAT && strstr(e.what, "again"),
+        "a name twice with different values is refused: %s", e.what);
+  CHECK(dt_catalog_join(&c, put("w3.csv", "name,b_kpc\nA,3\nA,3\n"), &e) == DT_OK &&
+            dt_catalog_number(&c, 0, "b_kpc", &x, &e) == DT_OK && x == 3,
+        "the same row twice is one row");
+  dt_catalog_free(&c);
+
   /* export layout: verdict over suggested; W_lim_mA accepted; no system column */
   dt_catalog_init(&c);
   CHECK(dt_catalog_read(&c, put("exp.csv",
