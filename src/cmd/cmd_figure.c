@@ -22,6 +22,7 @@
 #include "doubletty/journal.h"
 #include "doubletty/num.h"
 #include "doubletty/session.h"
+#include "doubletty/systems.h"
 #include "outfile.h"
 #include "progress.h"
 
@@ -65,12 +66,17 @@ static void safe_name(const char *in, char *out, size_t n) {
   if (!k) snprintf(out, n, "spectrum");
 }
 
-/* DIR/NAME_DOUBLET[_rowN][-K].EXT, unique within this run. */
-static char *figure_path(fig_job *job, const char *name, const char *doublet, long row) {
-  char base[300], stem[200];
+/* DIR/NAME_DOUBLET[_rowN][_SYSTEM][-K].EXT, unique within this run (the
+ * target's figure has no system in its name). */
+static char *figure_path(fig_job *job, const char *name, const char *doublet, long row, const char *sys) {
+  char base[400], stem[200], sysname[64] = "";
   safe_name(name, stem, sizeof stem);
-  if (row > 0) snprintf(base, sizeof base, "%s_%s_row%ld", stem, doublet, row);
-  else snprintf(base, sizeof base, "%s_%s", stem, doublet);
+  if (sys && sys[0]) {
+    sysname[0] = '_';
+    safe_name(sys, sysname + 1, sizeof sysname - 1);
+  }
+  if (row > 0) snprintf(base, sizeof base, "%s_%s_row%ld%s", stem, doublet, row, sysname);
+  else snprintf(base, sizeof base, "%s_%s%s", stem, doublet, sysname);
   size_t len = strlen(job->dir) + strlen(base) + 32;
   char *path = malloc(len);
   if (!path) return NULL;
@@ -96,7 +102,13 @@ static int draw_stack(FILE *f, dt_fig_format fmt, const dt_fig_stack *s) {
   return dt_fig_stack_write(f, fmt, &stack_page, s);
 }
 
-/* Draw the loaded state of session ss into its figure file. */
+/* Draw the loaded state of session ss into its figure files: one per
+ * absorber system, over the system's range widened by SYS_MARGIN_KMS on
+ * each side (the target's over the whole window when it is the only one). */
+#define SYS_MARGIN_KMS 100.0
+static void draw_system(fig_job *job, dt_session *ss, const char *name, long row, size_t k,
+                        dt_fig_panel *panel);
+
 static void draw_target(fig_job *job, dt_session *ss, const char *shown, const char *name, long row) {
   if (!ss->loaded) {
     cli_errorf("figure: %s: %s", shown, ss->load_msg);
@@ -141,17 +153,38 @@ static void draw_target(fig_job *job, dt_session *ss, const char *shown, const c
     job->failed++;
     return;
   }
+  size_t nsys = ss->systems.n ? ss->systems.n : 1;
+  for (size_t k = 0; k < nsys; k++) draw_system(job, ss, name, row, k, panel);
+}
+
+static void draw_system(fig_job *job, dt_session *ss, const char *name, long row, size_t k,
+                        dt_fig_panel *panel) {
+  const dt_judgement *j = &ss->j;
+  size_t nc = j->ncomp;
+  const dt_system *y = ss->systems.n ? &ss->systems.sys[k] : NULL;
+  const char *sysname = y ? y->name : "target";
+  double vlo = j->vlo, vhi = j->vhi;
+  if (y && ss->systems.n > 1) {
+    vlo = fmax(j->vlo, y->vlo - SYS_MARGIN_KMS);
+    vhi = fmin(j->vhi, y->vhi + SYS_MARGIN_KMS);
+  }
+  size_t ncs = 0; /* components of this system */
+  for (size_t c = 0; c < nc; c++) ncs += !y || dt_systems_of(&ss->systems, j->comp[c].v) == k;
   char title[300], sub[300];
-  snprintf(title, sizeof title, "%s   %s", name, j->doublet);
-  const char *verdict = j->verdict != DT_VERDICT_NONE ? dt_verdict_name(j->verdict) : NULL;
+  snprintf(title, sizeof title, "%s   %s   system %s", name, j->doublet, sysname);
+  dt_verdict v = k ? dt_judgement_system_verdict(j, sysname) : j->verdict;
+  const char *verdict = v != DT_VERDICT_NONE ? dt_verdict_name(v) : NULL;
+  dt_verdict sug = k < DT_MAX_SYSTEMS && ss->has_sysres ? ss->sysres[k].suggested
+                   : ss->has_suggest && k == 0      ? ss->suggested
+                                                    : DT_VERDICT_NONE;
   char fit[96] = "";
-  if (nc) dt_num_snprintf(fit, sizeof fit, "; %zu component%s, \xcf\x87\xc2\xb2/dof = %.2f", nc, nc == 1 ? "" : "s",
-                          ss->out.fit.chi2_red);
+  if (ncs) dt_num_snprintf(fit, sizeof fit, "; %zu component%s, \xcf\x87\xc2\xb2/dof = %.2f", ncs, ncs == 1 ? "" : "s",
+                           ss->out.fit.chi2_red);
   dt_num_snprintf(sub, sizeof sub, "%s%s%s; v relative to %.1f km/s%s", verdict ? "verdict: " : "",
                   verdict ? verdict : "first pass, suggested: ",
-                  verdict ? "" : (ss->has_suggest ? dt_verdict_name(ss->suggested) : "none"), j->vsys, fit);
-  dt_fig_stack st = {title, sub, j->vlo, j->vhi, 1, 2, panel};
-  char *path = figure_path(job, name, j->doublet, row);
+                  verdict ? "" : (sug != DT_VERDICT_NONE ? dt_verdict_name(sug) : "none"), j->vsys, fit);
+  dt_fig_stack st = {title, sub, vlo, vhi, 1, 2, panel};
+  char *path = figure_path(job, name, j->doublet, row, k ? sysname : NULL);
   if (!path) {
     cli_errorf("out of memory");
     job->failed++;

@@ -12,7 +12,10 @@ EOF2
 "$DT" figure --list q.list -o pdf 2>err.txt
 check "figure --list runs (exit $?)" [ -s pdf/VPQ01_NaI.pdf ]
 check "a table row is named with its row" [ -s pdf/VPQ06_NaI_row1.pdf ]
-check "the summary names the count" grep -q "2 figures written into pdf" err.txt
+# one figure per spectrum and absorber system: VPQ01 and VPQ06 (vsys 512)
+# each have the target and the Milky Way
+check "the summary names the count (4: two spectra, two systems each)" grep -q "4 figures written into pdf" err.txt
+check "the Milky Way's figure is named for its system" [ -s pdf/VPQ01_NaI_milky-way.pdf ]
 check "standard error not a terminal: no progress line" sh -c "! grep -q 'left' err.txt"
 "$DT" figure --list q.list -o png --format png 2>/dev/null
 "$DT" figure --list q.list -o svg --format svg 2>/dev/null
@@ -42,8 +45,8 @@ printf 'remove-component\nverdict-not-detected\nquit\n' >keys
 check "session written" [ -s s.session ]
 "$DT" figure s.session -o sess --format svg 2>err2.txt
 n=$(ls sess | wc -l)
-check "one figure per spectrum the session holds ($n)" [ "$n" -eq 1 ]
-f=$(ls sess/*.svg | head -1)
+check "one figure per spectrum and system the session holds ($n)" [ "$n" -eq 2 ]
+f=sess/VPQ01_NaI.svg
 check "the session's final state: one component fewer than the first pass" [ "$(comp_strokes "$f")" -eq $((2 * (${n01:-0} - 1) + 1)) ]
 
 # refusals
