@@ -61,6 +61,9 @@ typedef struct dt_analysis_opts {
   double tau_cut;       /* model wing truncation (0: model default) */
   double limit_nsigma;  /* significance of upper limits (default 3) */
   double limit_b;       /* b [km/s] of column limits (default DT_ANALYSIS_LIMIT_B) */
+  struct dt_cog_cache *cog; /* curve-of-growth tables for the column limits,
+                              shared between analyses and threads (cog.h);
+                              NULL: the exact inverse each time */
   double int_vlo, int_vhi; /* measurement (integration) window [km/s];
                               int_vlo >= int_vhi: the judgement's vlo..vhi */
   double cont_margin_kms; /* automatic continuum: fitted over the selection

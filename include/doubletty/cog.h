@@ -32,4 +32,24 @@ double dt_cog_tau0(const dt_line *line, double logN, double b);
  * dex.  NaN for W <= 0 or a bad line or b. */
 double dt_cog_logN(const dt_line *line, double W, double b);
 
+/* The inverse by a table made once for a line and b: ln W on a grid of
+ * log N every 0.025 dex from the linear part (core optical depth 1e-4) to
+ * log N 22.5, interpolated by Steffen's monotone cubic (agrees with
+ * dt_cog_logN to 1e-5 dex; tests/unit/test_cog.c); the exact inverse
+ * outside the table.  alloc: NULL for a bad line or b, or out of memory. */
+typedef struct dt_cog_table dt_cog_table;
+dt_cog_table *dt_cog_table_alloc(const dt_line *line, double b);
+double dt_cog_table_logN(const dt_cog_table *t, double W);
+void dt_cog_table_free(dt_cog_table *t);
+
+/* Tables for the lines and b values asked for, made on first use and
+ * shared: dt_cog_cache_logN may be called from several threads at once
+ * (the cache is locked while it looks up or adds a table; a table is only
+ * read).  c == NULL: the exact inverse.  At most 32 tables; beyond, the
+ * exact inverse. */
+typedef struct dt_cog_cache dt_cog_cache;
+dt_cog_cache *dt_cog_cache_alloc(void);
+void dt_cog_cache_free(dt_cog_cache *c);
+double dt_cog_cache_logN(dt_cog_cache *c, const dt_line *line, double W, double b);
+
 #endif

@@ -36,6 +36,7 @@
 #include "outfile.h"
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
+#include "doubletty/cog.h"
 #include "doubletty/csv.h"
 #include "doubletty/export.h"
 #include "doubletty/autofit.h"
@@ -114,6 +115,7 @@ typedef struct {
   batch *pool;                  /* the workers */
   long inflight;                /* inputs handed to the pool, not yet written */
   int oom;                      /* a task could not be set up: stop */
+  dt_cog_cache *cog;            /* curve-of-growth tables of the limits, shared */
 } run;
 
 static void usage(FILE *f) {
@@ -472,6 +474,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     dt_analysis_opts_init(&ao);
     ao.limit_nsigma = c->limit_nsigma;
     ao.limit_b = c->limit_b;
+    ao.cog = r->cog;
     ao.joint_cont = (size_t)c->joint_cont;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
@@ -973,6 +976,7 @@ int cmd_fit(int argc, char **argv) {
   size_t nsrc = 0;
   int rc = 2;
   dt_atomic *atomic = NULL;
+  dt_cog_cache *cog = NULL; /* made once, shared by the threads */
   if (!src) {
     cli_errorf("out of memory");
     return 2;
@@ -1038,6 +1042,7 @@ int cmd_fit(int argc, char **argv) {
   r.cfg = &c;
   r.total = only_files ? (long)nsrc : -1;
   r.progress = isatty(STDERR_FILENO);
+  r.cog = cog = dt_cog_cache_alloc(); /* NULL (out of memory): the exact inverse */
   write_settings(&r.csv, &c);
   for (size_t k = 0; k < NCOLUMNS; k++) dt_csv_text(&r.csv, COLUMNS[k]);
   dt_csv_end(&r.csv);
@@ -1089,6 +1094,7 @@ int cmd_fit(int argc, char **argv) {
             r.mw_joined);
   rc = r.failed ? 1 : 0;
 done:
+  dt_cog_cache_free(cog);
   dt_atomic_free(atomic);
   free(src);
   return rc;

@@ -593,7 +593,7 @@ static double limit_logN(dt_analysis *a, int l, double W) {
   const dt_line *ln = &a->d->line[l];
   if (a->cog_cache[l].line == ln && a->cog_cache[l].W == W && a->cog_cache[l].b == b)
     return a->cog_cache[l].logN;
-  double r = dt_cog_logN(ln, W, b);
+  double r = dt_cog_cache_logN(a->opts.cog, ln, W, b);
   a->cog_cache[l].line = ln;
   a->cog_cache[l].W = W;
   a->cog_cache[l].b = b;

@@ -10,8 +10,11 @@
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
+#include <gsl/gsl_interp.h>
 #include <gsl/gsl_roots.h>
 #include <math.h>
+#include <pthread.h>
+#include <stdlib.h>
 
 #include "doubletty/model.h"
 #include "gsl_quiet.h"
@@ -94,4 +97,108 @@ double dt_cog_logN(const dt_line *l, double W, double b) {
   }
   gsl_root_fsolver_free(s);
   return r;
+}
+
+/* ---- tables: the inverse by interpolation ----
+ *
+ * ln W on a grid of log N every COG_TABLE_STEP dex, from where the core's
+ * optical depth is COG_TABLE_TAU_LO (the linear part, W = W_lin to 1e-4) to
+ * COG_TABLE_LOGN_HI (or where the integration stops giving a rising W);
+ * the inverse log N(ln W) by Steffen's monotone cubic
+ * (GSL gsl_interp_steffen: the curve of growth rises strictly, and the
+ * interpolant neither overshoots nor turns back).  Outside the table the
+ * exact inverse is taken. */
+#define COG_TABLE_STEP 0.025
+#define COG_TABLE_TAU_LO 1e-4
+#define COG_TABLE_LOGN_HI 22.5
+#define COG_CACHE_MAX 32
+
+struct dt_cog_table {
+  dt_line line;
+  double b;
+  size_t n;
+  double *lnW, *logN;
+  gsl_interp *interp;
+};
+
+dt_cog_table *dt_cog_table_alloc(const dt_line *l, double b) {
+  if (!l || !(l->f > 0) || !(l->lambda0 > 0) || !(b > 0)) return NULL;
+  double lo = log10(COG_TABLE_TAU_LO / dt_cog_tau0(l, 0.0, b));
+  if (!(lo < COG_TABLE_LOGN_HI)) return NULL;
+  size_t n = (size_t)ceil((COG_TABLE_LOGN_HI - lo) / COG_TABLE_STEP) + 1;
+  dt_cog_table *t = calloc(1, sizeof *t);
+  if (!t) return NULL;
+  t->line = *l;
+  t->b = b;
+  t->lnW = malloc(n * sizeof *t->lnW);
+  t->logN = malloc(n * sizeof *t->logN);
+  int ok = t->lnW && t->logN;
+  /* the table ends early where the integration no longer gives a rising W
+   * (far out on the damping part, beyond any limit of interest) */
+  size_t m = 0;
+  for (; ok && m < n; m++) {
+    t->logN[m] = lo + COG_TABLE_STEP * (double)m;
+    t->lnW[m] = log(dt_cog_W(l, t->logN[m], b));
+    if (!isfinite(t->lnW[m]) || (m > 0 && !(t->lnW[m] > t->lnW[m - 1]))) break;
+  }
+  ok = ok && m >= 8 && (t->interp = gsl_interp_alloc(gsl_interp_steffen, m));
+  dt_gsl_quiet();
+  if (ok) ok = gsl_interp_init(t->interp, t->lnW, t->logN, m) == GSL_SUCCESS;
+  t->n = m;
+  if (!ok) {
+    dt_cog_table_free(t);
+    return NULL;
+  }
+  return t;
+}
+
+void dt_cog_table_free(dt_cog_table *t) {
+  if (!t) return;
+  gsl_interp_free(t->interp);
+  free(t->lnW);
+  free(t->logN);
+  free(t);
+}
+
+double dt_cog_table_logN(const dt_cog_table *t, double W) {
+  if (!(W > 0) || !isfinite(W)) return NAN;
+  double x = log(W);
+  if (x < t->lnW[0] || x > t->lnW[t->n - 1]) return dt_cog_logN(&t->line, W, t->b);
+  return gsl_interp_eval(t->interp, t->lnW, t->logN, x, NULL);
+}
+
+struct dt_cog_cache {
+  pthread_mutex_t lock;
+  size_t n;
+  dt_cog_table *t[COG_CACHE_MAX];
+};
+
+dt_cog_cache *dt_cog_cache_alloc(void) {
+  dt_cog_cache *c = calloc(1, sizeof *c);
+  if (c && pthread_mutex_init(&c->lock, NULL)) {
+    free(c);
+    return NULL;
+  }
+  return c;
+}
+
+void dt_cog_cache_free(dt_cog_cache *c) {
+  if (!c) return;
+  for (size_t i = 0; i < c->n; i++) dt_cog_table_free(c->t[i]);
+  pthread_mutex_destroy(&c->lock);
+  free(c);
+}
+
+double dt_cog_cache_logN(dt_cog_cache *c, const dt_line *l, double W, double b) {
+  if (!c) return dt_cog_logN(l, W, b);
+  const dt_cog_table *t = NULL;
+  pthread_mutex_lock(&c->lock);
+  for (size_t i = 0; i < c->n && !t; i++)
+    if (c->t[i]->b == b && c->t[i]->line.lambda0 == l->lambda0 && c->t[i]->line.f == l->f &&
+        c->t[i]->line.gamma == l->gamma)
+      t = c->t[i];
+  if (!t && c->n < COG_CACHE_MAX && (c->t[c->n] = dt_cog_table_alloc(l, b))) t = c->t[c->n++];
+  pthread_mutex_unlock(&c->lock);
+  /* a table, once made, is only read */
+  return t ? dt_cog_table_logN(t, W) : dt_cog_logN(l, W, b);
 }

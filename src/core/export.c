@@ -166,9 +166,10 @@ static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, c
   if (!s->has_fit) status[0] = '\0';
   else snprintf(status, sizeof rt->status, "%s", s->fit.status == DT_OK ? "ok" : dt_status_str(s->fit.status));
   size_t i = 0;
-  c[i++].s = target_file(en->target.path, rt->file, sizeof rt->file);
+  const char *file = target_file(en->target.path, rt->file, sizeof rt->file);
+  c[i++].s = file;
   c[i++].s = en->target.name && en->target.name[0] ? en->target.name
-                                                   : dt_export_stem(rt->file, rt->stem, sizeof rt->stem);
+                                                   : dt_export_stem(file, rt->stem, sizeof rt->stem);
   c[i++].i = en->target.hdu;
   c[i++].i = en->target.row;
   c[i++].s = r->set.sys[sk].name;

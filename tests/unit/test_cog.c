@@ -88,5 +88,26 @@ int main(int argc, char **argv) {
   double ln = log10(0.1 / lin_W(&NA, 0.0));
   double cg = dt_cog_logN(&NA, 0.1, 1.5);
   CHECK(cg > ln + 0.5, "W 100 mA, b 1.5: log N %.2f above the linear %.2f", cg, ln);
+
+  /* the table (interpolated inverse) against the exact inverse above, from
+   * the linear part through the flat part into the damping wings */
+  for (double b = 1.0; b <= 16; b *= 4) {
+    dt_cog_table *t = dt_cog_table_alloc(&NA, b);
+    double tw = 0;
+    for (double logN = 9.03; t && logN <= 21.5; logN += 0.173) {
+      double W = dt_cog_W(&NA, logN, b), d = fabs(dt_cog_table_logN(t, W) - dt_cog_logN(&NA, W, b));
+      if (!(d <= tw)) tw = isfinite(d) ? d : INFINITY;
+    }
+    CHECK(t && tw < 1e-5, "b %g: the table's inverse agrees with the exact one to %.2g dex", b, tw);
+    CHECK(t && isnan(dt_cog_table_logN(t, 0.0)), "b %g: the table gives no column for W 0", b);
+    dt_cog_table_free(t);
+  }
+  dt_cog_cache *cc = dt_cog_cache_alloc();
+  double w1 = dt_cog_W(&NA, 13.2, 2.0);
+  CHECK(cc && fabs(dt_cog_cache_logN(cc, &NA, w1, 2.0) - 13.2) < 1e-5 &&
+            fabs(dt_cog_cache_logN(cc, &NA, w1, 2.0) - 13.2) < 1e-5,
+        "the cache: made once, asked twice, log N 13.2 back");
+  CHECK(fabs(dt_cog_cache_logN(NULL, &NA, w1, 2.0) - 13.2) < 1e-5, "no cache: the exact inverse");
+  dt_cog_cache_free(cc);
   return dt_test_done();
 }
