@@ -57,6 +57,8 @@ typedef struct dt_session_target {
   int has_window;         /* initial.vlo/vhi were given (else widened to
                              cover the systems) */
   dt_system_opts systems; /* target range and systems of the list/run */
+  struct dt_cog_cache *cog; /* curve-of-growth tables shared by the analyses
+                             (cog.h; NULL: the exact inverse) */
   struct dt_session_ahead *ahead; /* made in advance for this target (NULL:
                              none); dt_session_load takes its parts */
 } dt_session_target;

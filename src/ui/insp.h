@@ -37,6 +37,7 @@ typedef struct dt_insp {
   dt_plot_mode mode;
   dt_session *ss;                /* the judgement of the current spectrum */
   struct dt_prefetch *pf;        /* the look-ahead thread (NULL: none) */
+  struct dt_cog_cache *cog;      /* curve-of-growth tables of all spectra */
 
   /* the queue */
   size_t cur;

@@ -16,6 +16,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "doubletty/cog.h"
 #include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
@@ -150,6 +151,7 @@ static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *
   if (s->q->e[idx].has_pos) t->read.has_pos = 1, t->read.ra = s->q->e[idx].ra, t->read.dec = s->q->e[idx].dec;
   if (s->q->e[idx].frame != DT_FRAME_UNSET) t->read.in_frame = (dt_frame)s->q->e[idx].frame;
   initial_state(s, idx, &t->initial);
+  t->cog = s->cog;
   t->has_window = s->q->e[idx].has_window;
   t->systems = s->o->systems;
   dt_system_opts ls;
@@ -344,6 +346,7 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
     return 1;
   }
   s->atomic = t;
+  s->cog = dt_cog_cache_alloc(); /* NULL: the exact inverse */
   s->pf = o->no_look_ahead ? NULL : dt_prefetch_start(t);
   s->q = q;
   s->jn = jn;
@@ -451,6 +454,7 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
   if (rp.f) fclose(rp.f);
   dt_prefetch_stop(s->pf);
   dt_session_free(s->ss);
+  dt_cog_cache_free(s->cog);
   dt_hi_sample_free(&s->hs);
   free(s->tmp);
   dt_grid_free(&s->g);
