@@ -182,6 +182,10 @@ void dt_systems_results(dt_analysis *a, const dt_system_set *set, const dt_judge
  * before systems were). */
 void dt_systems_of_judgement(const dt_judgement *j, dt_system_set *set);
 
+/* The systems of set written into j (j->sys, j->nsys; at most
+ * DT_JUDGE_MAX_SYS). */
+void dt_systems_to_judgement(const dt_system_set *set, dt_judgement *j);
+
 /* "name:vlo:vhi;..." of the set, numbers through num.h (settings lines). */
 void dt_systems_format(const dt_system_set *set, char *buf, size_t n);
 

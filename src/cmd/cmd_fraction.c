@@ -77,16 +77,7 @@ int cmd_fraction(int argc, char **argv) {
     case 'h': usage(stdout); return 0;
     case 1:
     case 2:
-      if (kind != DT_THRESHOLD_NONE) {
-        cli_errorf("fraction: one threshold at a time (--threshold-mA or --threshold-logN)");
-        return 2;
-      }
-      if (cli_parse_double(opt == 1 ? "--threshold-mA" : "--threshold-logN", optarg, &thr)) return 2;
-      if (!isfinite(thr)) {
-        cli_errorf("fraction: the threshold must be a finite number");
-        return 2;
-      }
-      kind = opt == 1 ? DT_THRESHOLD_W_MA : DT_THRESHOLD_LOGN;
+      if (survey_threshold("fraction", opt == 1 ? DT_THRESHOLD_W_MA : DT_THRESHOLD_LOGN, optarg, &kind, &thr)) return 2;
       break;
     case 3: by = optarg; break;
     case 4: bins = optarg; break;

@@ -157,16 +157,7 @@ int cmd_map(int argc, char **argv) {
     case 'h': usage(stdout); return 0;
     case 1:
     case 2:
-      if (kind != DT_THRESHOLD_NONE) {
-        cli_errorf("map: one threshold at a time (--threshold-mA or --threshold-logN)");
-        return 2;
-      }
-      if (cli_parse_double(opt == 1 ? "--threshold-mA" : "--threshold-logN", optarg, &thr)) return 2;
-      if (!isfinite(thr)) {
-        cli_errorf("map: the threshold must be a finite number");
-        return 2;
-      }
-      kind = opt == 1 ? DT_THRESHOLD_W_MA : DT_THRESHOLD_LOGN;
+      if (survey_threshold("map", opt == 1 ? DT_THRESHOLD_W_MA : DT_THRESHOLD_LOGN, optarg, &kind, &thr)) return 2;
       break;
     case 3:
       if (cli_parse_double("--vmax", optarg, &vmax)) return 2;

@@ -246,3 +246,18 @@ long survey_bin(const double *edges, size_t n, double x) {
     if (x < edges[i + 1]) return (long)i;
   return (long)n - 2; /* x == the last edge */
 }
+
+int survey_threshold(const char *cmd, dt_threshold_kind which, const char *arg, dt_threshold_kind *kind,
+                     double *thr) {
+  if (*kind != DT_THRESHOLD_NONE) {
+    cli_errorf("%s: one threshold at a time (--threshold-mA or --threshold-logN)", cmd);
+    return 1;
+  }
+  if (cli_parse_double(which == DT_THRESHOLD_W_MA ? "--threshold-mA" : "--threshold-logN", arg, thr)) return 1;
+  if (!isfinite(*thr)) {
+    cli_errorf("%s: the threshold must be a finite number", cmd);
+    return 1;
+  }
+  *kind = which;
+  return 0;
+}

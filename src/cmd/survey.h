@@ -30,6 +30,11 @@ typedef struct survey_opts {
       {"output", required_argument, NULL, 'o'}
 int survey_opt(int opt, const char *arg, survey_opts *o);
 
+/* --threshold-mA / --threshold-logN (which) of command cmd: one at a time,
+ * a finite number.  0, or 1 with a message. */
+int survey_threshold(const char *cmd, dt_threshold_kind which, const char *arg, dt_threshold_kind *kind,
+                     double *thr);
+
 /* Read the catalogues files[0..n) and the --with table, keep the chosen
  * system and doublet.  0, or the exit status after a message naming the
  * file and the place. */

@@ -37,12 +37,7 @@ static void systems_of_state(dt_session *ss, const dt_session_target *t, int rec
   ss->selsys = 0;
   dt_judgement *j = &ss->j;
   if (j->nsys > 0) {
-    for (size_t k = 0; k < j->nsys && k < DT_MAX_SYSTEMS; k++) {
-      snprintf(set->sys[k].name, sizeof set->sys[k].name, "%s", j->sys[k].name);
-      set->sys[k].vlo = j->sys[k].vlo;
-      set->sys[k].vhi = j->sys[k].vhi;
-    }
-    set->n = j->nsys < DT_MAX_SYSTEMS ? j->nsys : DT_MAX_SYSTEMS;
+    dt_systems_of_judgement(j, set);
     return;
   }
   dt_err e;
@@ -56,12 +51,7 @@ static void systems_of_state(dt_session *ss, const dt_session_target *t, int rec
     dt_session_say(ss, DT_TONE_WARN, "systems: %s", e.what);
   }
   if (recorded) return; /* a recorded state keeps its own form */
-  j->nsys = set->n < DT_JUDGE_MAX_SYS ? set->n : DT_JUDGE_MAX_SYS;
-  for (size_t k = 0; k < j->nsys; k++) {
-    snprintf(j->sys[k].name, sizeof j->sys[k].name, "%s", set->sys[k].name);
-    j->sys[k].vlo = set->sys[k].vlo;
-    j->sys[k].vhi = set->sys[k].vhi;
-  }
+  dt_systems_to_judgement(set, j);
 }
 
 void dt_session_unload(dt_session *ss) {
@@ -166,12 +156,7 @@ static dt_judgement first_look(const dt_atomic *atomic, const dt_session_target 
       DT_OK)
     return j;
   j = w;
-  j.nsys = set.n < DT_JUDGE_MAX_SYS ? set.n : DT_JUDGE_MAX_SYS;
-  for (size_t k = 0; k < j.nsys; k++) {
-    snprintf(j.sys[k].name, sizeof j.sys[k].name, "%s", set.sys[k].name);
-    j.sys[k].vlo = set.sys[k].vlo;
-    j.sys[k].vhi = set.sys[k].vhi;
-  }
+  dt_systems_to_judgement(&set, &j);
   return j;
 }
 

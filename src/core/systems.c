@@ -376,6 +376,15 @@ void dt_systems_of_judgement(const dt_judgement *j, dt_system_set *set) {
   if (j->vlo < j->vhi) dt_systems_clip(set, j->vlo, j->vhi);
 }
 
+void dt_systems_to_judgement(const dt_system_set *set, dt_judgement *j) {
+  j->nsys = set->n < DT_JUDGE_MAX_SYS ? set->n : DT_JUDGE_MAX_SYS;
+  for (size_t k = 0; k < j->nsys; k++) {
+    snprintf(j->sys[k].name, sizeof j->sys[k].name, "%s", set->sys[k].name);
+    j->sys[k].vlo = set->sys[k].vlo;
+    j->sys[k].vhi = set->sys[k].vhi;
+  }
+}
+
 int dt_systems_saturated(const dt_analysis_line l[2]) {
   if (!isfinite(l[0].logN_aod) || !isfinite(l[1].logN_aod)) return 0;
   double ns = pow(10.0, l[0].logN_aod), nw = pow(10.0, l[1].logN_aod);
