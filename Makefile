@@ -109,7 +109,7 @@ check: tests
 	@BUILD=$(BUILD) sh tests/run
 
 bench: $(BIN)
-	@BUILD=$(BUILD) sh tests/bench/run
+	@BUILD=$(BUILD) PKGS="$(PKGS)" sh tests/bench/run
 
 # The slow tier runs here: the whole suite under ASan+UBSan, then the
 # valgrind memcheck (tests marked "# tier: sanitize") on the plain build.

@@ -73,6 +73,9 @@ typedef struct dt_analysis_opts {
                               excluding the continuum module's default band) */
   int no_intervals;     /* 1: dt_analysis_run skips the profile-likelihood
                            intervals of log N (dt_analysis_intervals) */
+  int covariance_only;  /* 1: the intervals of log N are the covariance
+                           matrix's (symmetric, no refits) for every
+                           component, not only in the linear regime */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
 } dt_analysis_opts;

@@ -94,6 +94,7 @@ typedef struct {
   long jobs;                    /* worker threads (0: one per core) */
   int air;                      /* text spectra give air wavelengths */
   dt_system_opts systems;       /* --target-window, --system, --milky-way */
+  int cov_only;                 /* --intervals covariance */
   int have_mw;                  /* --milky-way given */
 } config;
 
@@ -140,6 +141,9 @@ static void usage(FILE *f) {
           "  --limit-sigma S         significance of upper limits (default 3)\n"
           "  --limit-b KMS           Doppler parameter of column-density limits\n"
           "                          (full curve of growth; default 2)\n"
+          "  --intervals M           log N intervals: profile (default: the profile\n"
+          "                          likelihood where the lines are not thin) or\n"
+          "                          covariance (symmetric, from the fit alone: faster)\n"
           "  --atomic FILE           extra atomic table (adds or replaces doublets)\n"
           "  --row N                 only row N of multi-row tables (default: all rows)\n"
           "  --wave-col C --flux-col C --err-col C --mask-col C   table columns\n"
@@ -475,6 +479,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     ao.limit_nsigma = c->limit_nsigma;
     ao.limit_b = c->limit_b;
     ao.cog = r->cog;
+    ao.covariance_only = c->cov_only;
     ao.joint_cont = (size_t)c->joint_cont;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
@@ -773,6 +778,7 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_csv_comment(w, "limit-sigma", buf);
   dt_num_format(buf, sizeof buf, c->limit_b);
   dt_csv_comment(w, "limit-b", buf);
+  dt_csv_comment(w, "intervals", c->cov_only ? "covariance" : "profile");
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
   snprintf(buf, sizeof buf, "%ld", c->row);
   dt_csv_comment(w, "row", c->row ? buf : "");
@@ -809,7 +815,7 @@ static void write_settings(dt_csv *w, const config *c) {
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -843,6 +849,7 @@ static const struct option LONGOPTS[] = {
     {"system", required_argument, NULL, O_SYSTEM},
     {"milky-way", required_argument, NULL, O_MW},
     {"jobs", required_argument, NULL, O_JOBS},
+    {"intervals", required_argument, NULL, O_INTERVALS},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -944,6 +951,13 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     c->have_mw = 1;
     return cli_system_option("--milky-way", v, &c->systems);
   case O_JOBS: return ranged("--jobs", v, 1, FIT_MAX_JOBS, &c->jobs);
+  case O_INTERVALS:
+    if (strcmp(v, "profile") && strcmp(v, "covariance")) {
+      cli_errorf("--intervals: '%s' is not profile or covariance", v);
+      return 1;
+    }
+    c->cov_only = !strcmp(v, "covariance");
+    return 0;
   }
   return 1;
 }

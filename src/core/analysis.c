@@ -944,8 +944,9 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
   fill_problem(a, j, &p);
   const dt_fit_result *r = &out->fit;
   for (size_t k = 0; k < r->ncomp; k++) {
-    if (linear_regime(a, out, k)) {
-      /* the covariance interval is the profile's here (see below) */
+    if (a->opts.covariance_only || linear_regime(a, out, k)) {
+      /* the covariance interval is the profile's here (see below), or was
+       * asked for */
       dt_profile_interval *pi = &out->logN_int[k];
       memset(pi, 0, sizeof *pi);
       double h = r->err[k].logN * sqrt(dchi2);

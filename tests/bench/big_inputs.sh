@@ -24,7 +24,7 @@ CC=${CC:-cc}
 NPIX=${SIZE_PIX:-10000000}
 NLIST=${SIZE_LIST:-100000}
 NLINES=${SIZE_LINES:-1000000}
-PKGS="gsl cfitsio libcerf ncursesw libcrypto"
+PKGS=${PKGS:-"gsl cfitsio libcerf ncursesw libcrypto erfa wcslib cairo"}
 W=$(mktemp -d "${TMPDIR:-/tmp}/dt-big.XXXXXX")
 trap 'rm -rf "$W"' EXIT
 export LANG=C.UTF-8 LC_ALL=C.UTF-8

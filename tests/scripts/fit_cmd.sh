@@ -222,4 +222,16 @@ EOF
   check "--row 3: the +80 km/s sightline ($v)" awk -v x="$v" 'BEGIN { exit !(x > 75 && x < 85) }'
 fi
 
+# --intervals covariance: every interval the symmetric error of the fit,
+# said in the settings; the default is the profile likelihood
+"$DT" demo "$TMP/dmo" >/dev/null 2>&1
+"$DT" fit --list "$TMP/dmo/targets.list" --intervals covariance -o "$TMP/cov.csv" 2>/dev/null
+check "--intervals covariance: the settings say so" grep -q '^# intervals=covariance$' "$TMP/cov.csv"
+check "... and every interval is logN -+ logN_err" awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[$i] = i; next }
+  $c["logN"] != "" { n++; if ($c["logN_err_lo"] != $c["logN_err"] || $c["logN_err_hi"] != $c["logN_err"]) bad++ }
+  END { exit !(n > 0 && bad == 0) }' "$TMP/cov.csv"
+"$DT" fit --list "$TMP/dmo/targets.list" -o "$TMP/prof.csv" 2>/dev/null
+check "the default: profile, with asymmetric intervals somewhere" sh -c "grep -q '^# intervals=profile$' '$TMP/prof.csv' && awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[\$i] = i; next } \$c[\"logN\"] != \"\" && \$c[\"logN_err_lo\"] != \$c[\"logN_err_hi\"] { f = 1 } END { exit !f }' '$TMP/prof.csv'"
+expect_fail "--intervals of another kind" "not profile or covariance" "$DT" fit --intervals exact "$TMP/dmo/vpq01.fits"
+
 finish
