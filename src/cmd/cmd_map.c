@@ -99,7 +99,7 @@ static int hi_contours(const char *path, const dt_hi_opts *ho, double ra0, doubl
   const double pix[3][2] = {{0, 0}, {1, 0}, {0, 1}};
   int bad = nx < 2 || ny < 2;
   for (int k = 0; k < 3 && !bad; k++) {
-    double ra, dec, xi, eta;
+    double ra = 0, dec = 0, xi = 0, eta = 0;
     bad = dt_hicube_pixel_world(cube, pix[k][0], pix[k][1], &ra, &dec) ||
           dt_sphere_gnomonic(ra, dec, ra0, dec0, &xi, &eta);
     p[k][0] = 60 * xi;
