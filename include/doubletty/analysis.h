@@ -73,6 +73,9 @@ typedef struct dt_analysis_opts {
                               excluding the continuum module's default band) */
   int no_intervals;     /* 1: dt_analysis_run skips the profile-likelihood
                            intervals of log N (dt_analysis_intervals) */
+  int defer_intervals;  /* 1: dt_analysis_run leaves the intervals of log N
+                           to a later dt_analysis_run_intervals (the
+                           inspector computes them after the frame) */
   int covariance_only;  /* 1: the intervals of log N are the covariance
                            matrix's (symmetric, no refits) for every
                            component, not only in the linear regime */
@@ -197,6 +200,11 @@ int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n);
  * also skip the upper limits (W_limit, logN_limit NaN): a search that
  * runs many fits measures them once at the end (dt_analysis_remeasure). */
 int dt_analysis_no_intervals(dt_analysis *a, int off);
+
+/* The intervals dt_analysis_run computes itself unless opts.defer_intervals,
+ * within its time (DT_ANALYSIS_RUN_INTERVAL_S), for out of the last run of
+ * j.  DT_OK; DT_EINVAL when out holds no successful fit of j. */
+int dt_analysis_run_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out);
 /* The measurements of out->line again, limits included, for the state of
  * the last run or eval (out must be that run's).  DT_OK or the
  * measurement's error; DT_EINVAL before any run. */

@@ -57,6 +57,8 @@ typedef struct dt_session_target {
   int has_window;         /* initial.vlo/vhi were given (else widened to
                              cover the systems) */
   dt_system_opts systems; /* target range and systems of the list/run */
+  int defer_intervals;   /* the log N intervals after the frame, not in each
+                             analysis (dt_session_finish_intervals) */
   struct dt_cog_cache *cog; /* curve-of-growth tables shared by the analyses
                              (cog.h; NULL: the exact inverse) */
   struct dt_session_ahead *ahead; /* made in advance for this target (NULL:
@@ -87,6 +89,8 @@ typedef struct dt_session {
   int pending;                /* j is the automatic first pass, not yet recorded */
   size_t sel;                 /* selected component */
   int an_ok;                  /* out holds a valid analysis of j ... */
+  int defer_intervals;        /* the target's: intervals left for later */
+  int intervals_tried;        /* dt_session_finish_intervals ran for out */
   int an_fallback;            /* ... or, when 1, of j without its continuum
                                  windows (they cannot carry the fit yet:
                                  an_msg says why); nothing of it is recorded */
@@ -200,5 +204,11 @@ void dt_session_say(dt_session *ss, dt_session_tone tone, const char *fmt, ...)
 /* 1 when parameter p of component k sits at a bound of the fit (within a
  * thousandth of the range): its error is then meaningless. */
 int dt_session_at_bound(const dt_session *ss, size_t k, dt_session_param p);
+
+/* With a target's defer_intervals: 1 when the state shown has a fit whose
+ * log N intervals are still to be computed; dt_session_finish_intervals
+ * computes them (within the time of one analysis run, analysis.h). */
+int dt_session_intervals_pending(const dt_session *ss);
+void dt_session_finish_intervals(dt_session *ss);
 
 #endif

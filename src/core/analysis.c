@@ -904,8 +904,8 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   finish(a, j, out->fit.comp, out->fit.ncomp, out);
   /* a run (a keystroke of the inspector) spends little on them; the
    * first pass and explicit calls what they need */
-  if (fst == DT_OK && !a->opts.no_intervals && out->fit.ncomp > 0)
-    intervals(a, j, out, 1.0, DT_ANALYSIS_RUN_INTERVAL_S / (double)out->fit.ncomp);
+  if (fst == DT_OK && !a->opts.no_intervals && !a->opts.defer_intervals && out->fit.ncomp > 0)
+    dt_analysis_run_intervals(a, j, out);
   if (fst != DT_OK) {
     if (e) *e = fe;
     return fst;
@@ -964,6 +964,11 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2) {
   return intervals(a, j, out, dchi2, 0);
+}
+
+int dt_analysis_run_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out) {
+  if (!out->fit.ncomp) return DT_EINVAL;
+  return intervals(a, j, out, 1.0, DT_ANALYSIS_RUN_INTERVAL_S / (double)out->fit.ncomp);
 }
 
 int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out) {

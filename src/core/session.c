@@ -132,8 +132,21 @@ static int record(dt_session *ss, const dt_action *a, const dt_judgement *after,
 
 /* ---------------------------------------------------------------- analysis */
 
+int dt_session_intervals_pending(const dt_session *ss) {
+  return ss->defer_intervals && ss->loaded && ss->an_ok && ss->out.fitted && !ss->intervals_tried &&
+         !ss->out.have_intervals &&
+         ss->out.fit.status == DT_OK && ss->out.fit.ncomp > 0 && ss->out.fit.ncomp == ss->j.ncomp;
+}
+
+void dt_session_finish_intervals(dt_session *ss) {
+  if (!dt_session_intervals_pending(ss)) return;
+  ss->intervals_tried = 1;
+  dt_analysis_run_intervals(ss->an, &ss->j, &ss->out);
+}
+
 void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
   ss->an_ok = 0;
+  ss->intervals_tried = 0;
   ss->an_fallback = 0;
   ss->an_msg[0] = '\0';
   if (!ss->loaded) return;

@@ -72,6 +72,7 @@ static void reset(dt_session *ss, const dt_session_target *t) {
   snprintf(ss->key, sizeof ss->key, "%s", t->key);
   snprintf(ss->name, sizeof ss->name, "%s", t->name ? t->name : "");
   ss->row = t->row;
+  ss->defer_intervals = t->defer_intervals;
   ss->nundo = ss->nredo = 0;
   ss->sel = 0;
   ss->pending = 0;
@@ -98,10 +99,11 @@ static int read_into(const dt_atomic *atomic, const dt_session_target *t, dt_spe
   int rc = dt_spectrum_read(t->path, &ro, spec, &e);
   if (rc == DT_OK) {
     *an = dt_analysis_alloc(*spec, atomic);
-    if (*an && t->cog) {
+    if (*an && (t->cog || t->defer_intervals)) {
       dt_analysis_opts ao;
       dt_analysis_opts_init(&ao);
       ao.cog = t->cog;
+      ao.defer_intervals = t->defer_intervals;
       dt_analysis_set_opts(*an, &ao);
     }
     if (!*an) {

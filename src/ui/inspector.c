@@ -152,6 +152,7 @@ static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *
   if (s->q->e[idx].frame != DT_FRAME_UNSET) t->read.in_frame = (dt_frame)s->q->e[idx].frame;
   initial_state(s, idx, &t->initial);
   t->cog = s->cog;
+  t->defer_intervals = 1; /* drawn a frame later (the event loop) */
   t->has_window = s->q->e[idx].has_window;
   t->systems = s->o->systems;
   dt_system_opts ls;
@@ -170,6 +171,10 @@ static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *
  * background (the first pass too when the session has no record of them),
  * so that a verdict shows the next one at once. */
 #define LOOK_AHEAD 2
+
+/* How long the event loop waits for a key before it computes the log N
+ * intervals of a new fit (and draws them). */
+#define INTERVALS_IDLE_MS 15
 
 static void look_ahead(dt_insp *s) {
   for (size_t d = 1; d <= LOOK_AHEAD && s->pf && s->cur + d < s->q->n; d++) {
@@ -404,8 +409,17 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
         break;
       }
     } else {
-      key = dt_term_getkey(-1);
-      if (key == DT_KEY_NONE) continue;
+      /* the log N intervals of a new fit follow in the next frame, when no
+       * key comes within INTERVALS_IDLE_MS */
+      int pending = dt_session_intervals_pending(s->ss);
+      key = dt_term_getkey(pending ? INTERVALS_IDLE_MS : -1);
+      if (key == DT_KEY_NONE) {
+        if (pending) {
+          dt_session_finish_intervals(s->ss);
+          draw(s);
+        }
+        continue;
+      }
     }
     double t0 = now_ms();
     long f0 = s->ss->nfits;
@@ -414,6 +428,10 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
     if (ev & EV_QUIT) break;
     draw(s);
     double dt = now_ms() - t0;
+    if (rp.f && dt_session_intervals_pending(s->ss)) { /* a replay has no idle time */
+      dt_session_finish_intervals(s->ss);
+      draw(s);
+    }
     if (ntimes == captimes) {
       size_t cap = captimes ? 2 * captimes : 256;
       double *nt = realloc(times, cap * sizeof *nt), *nf = nt ? realloc(ftimes, cap * sizeof *nf) : NULL;
