@@ -131,6 +131,110 @@ static int hi_contours(const char *path, const dt_hi_opts *ho, double ra0, doubl
   return 0;
 }
 
+/* The centre of the sightlines with a position (a note for those
+ * without).  0, or 1 after a message. */
+static int map_centre(const dt_catalog *c, double *ra0, double *dec0) {
+  double *ra = malloc((c->n ? c->n : 1) * sizeof *ra), *dec = malloc((c->n ? c->n : 1) * sizeof *dec);
+  if (!ra || !dec) {
+    free(ra);
+    free(dec);
+    cli_errorf("out of memory");
+    return 1;
+  }
+  size_t npos = 0, nopos = 0;
+  for (size_t i = 0; i < c->n; i++)
+    if (isfinite(c->s[i].ra_deg) && isfinite(c->s[i].dec_deg) && fabs(c->s[i].dec_deg) <= 90) {
+      ra[npos] = c->s[i].ra_deg;
+      dec[npos++] = c->s[i].dec_deg;
+    } else {
+      nopos++;
+    }
+  int bad = dt_sphere_centre(ra, dec, npos, ra0, dec0) != 0;
+  free(ra);
+  free(dec);
+  if (bad) {
+    cli_errorf("map: no sightline with a position (columns ra_deg, dec_deg)");
+    return 1;
+  }
+  if (nopos) cli_errorf("map: note: %zu sightline%s without a position left off the map", nopos, nopos == 1 ? "" : "s");
+  return 0;
+}
+
+/* Each sightline on the tangent plane about (ra0, dec0) with its mark by
+ * the counting rule, its velocity (detections) and limit (non-detections);
+ * *vabs the largest |v|, *half the largest offset [arcmin]. */
+static void place_points(const dt_catalog *c, dt_threshold_kind kind, double thr, double ra0, double dec0,
+                         dt_fig_map_point *pt, double *vabs, double *half) {
+  size_t far = 0;
+  for (size_t i = 0; i < c->n; i++) {
+    const dt_sightline *s = &c->s[i];
+    dt_fig_map_point *q = &pt[i];
+    q->label = s->name;
+    q->x = q->y = q->v_kms = q->limit = NAN;
+    double xi, eta;
+    if (isfinite(s->ra_deg) && isfinite(s->dec_deg) && fabs(s->dec_deg) <= 90) {
+      if (dt_sphere_gnomonic(s->ra_deg, s->dec_deg, ra0, dec0, &xi, &eta) == 0 && hypot(xi, eta) < 60) {
+        q->x = 60 * xi;
+        q->y = 60 * eta;
+        *half = fmax(*half, fmax(fabs(q->x), fabs(q->y)));
+      } else {
+        far++;
+      }
+    }
+    dt_count k = dt_sightline_count(s, kind, thr);
+    q->mark = k == DT_COUNT_DETECTION      ? DT_FIG_MARK_DETECTED
+              : k == DT_COUNT_NONDETECTION ? DT_FIG_MARK_NOT_DETECTED
+                                           : DT_FIG_MARK_LEFT_OUT;
+    if (k == DT_COUNT_DETECTION) {
+      double v, sv;
+      dt_err e;
+      if (dt_sightline_velocity(c, i, DT_VELOCITY_MEAN, &v, &sv, &e) == DT_OK) {
+        q->v_kms = v;
+        *vabs = fmax(*vabs, fabs(v));
+      }
+    }
+    if (s->verdict == DT_VERDICT_NOT_DETECTED) q->limit = kind == DT_THRESHOLD_LOGN ? s->logN_limit : s->W_limit_mA;
+  }
+  if (far)
+    cli_errorf("map: note: %zu sightline%s more than 60 deg from the centre left off the map", far, far == 1 ? "" : "s");
+}
+
+/* The table: one row per sightline.  0, or 1 after a message. */
+static int write_table(const dt_catalog *c, const dt_fig_map_point *pt, dt_threshold_kind kind, double ra0,
+                       double dec0, cli_out *tab) {
+  if (cli_out_open(tab)) return 1;
+  dt_csv w;
+  dt_csv_init(&w, tab->f);
+  char num[64];
+  dt_csv_comment(&w, "program", "doubletty map " DT_VERSION);
+  dt_num_format(num, sizeof num, ra0);
+  dt_csv_comment(&w, "centre_ra_deg", num);
+  dt_num_format(num, sizeof num, dec0);
+  dt_csv_comment(&w, "centre_dec_deg", num);
+  dt_csv_comment(&w, "projection", "gnomonic (TAN); x east, y north");
+  dt_csv_comment(&w, "limit", kind == DT_THRESHOLD_LOGN ? "logN_limit" : "W_limit_mA");
+  const char *head[] = {"name", "ra_deg", "dec_deg", "x_arcmin", "y_arcmin", "status", "v_kms", "limit"};
+  for (int h = 0; h < 8; h++) dt_csv_text(&w, head[h]);
+  dt_csv_end(&w);
+  for (size_t i = 0; i < c->n; i++) {
+    dt_csv_text(&w, c->s[i].name);
+    dt_csv_num(&w, c->s[i].ra_deg);
+    dt_csv_num(&w, c->s[i].dec_deg);
+    dt_csv_fixed(&w, pt[i].x, 4);
+    dt_csv_fixed(&w, pt[i].y, 4);
+    dt_csv_text(&w, status_name[pt[i].mark]);
+    dt_csv_fixed(&w, pt[i].v_kms, 3);
+    dt_csv_num(&w, pt[i].limit);
+    dt_csv_end(&w);
+  }
+  if (dt_csv_error(&w)) {
+    cli_errorf("map: cannot write the table");
+    cli_out_abort(tab);
+    return 1;
+  }
+  return cli_out_commit(tab) ? 1 : 0;
+}
+
 int cmd_map(int argc, char **argv) {
   survey_opts so = {0};
   double thr = NAN, vmax = NAN;
@@ -188,7 +292,6 @@ int cmd_map(int argc, char **argv) {
   double *hz = NULL, hlevel[HI_MAX_LEVELS];
   char hlabel[160];
   dt_fig_map_point *pt = NULL;
-  double *ra = NULL, *dec = NULL;
   if ((rc = survey_load("map", files, nfiles, &so, &c))) goto done;
   if (survey_need("map", &c, "ra_deg") || survey_need("map", &c, "dec_deg") ||
       (kind == DT_THRESHOLD_W_MA && (survey_need("map", &c, "W_mA") || survey_need("map", &c, "W_limit_mA"))) ||
@@ -197,104 +300,21 @@ int cmd_map(int argc, char **argv) {
     goto done;
   }
   pt = calloc(c.n, sizeof *pt);
-  ra = malloc(c.n * sizeof *ra);
-  dec = malloc(c.n * sizeof *dec);
-  if (!pt || !ra || !dec) {
+  if (!pt) {
     cli_errorf("out of memory");
     rc = 1;
     goto done;
   }
-  size_t npos = 0, nopos = 0;
-  for (size_t i = 0; i < c.n; i++)
-    if (isfinite(c.s[i].ra_deg) && isfinite(c.s[i].dec_deg) && fabs(c.s[i].dec_deg) <= 90) {
-      ra[npos] = c.s[i].ra_deg;
-      dec[npos++] = c.s[i].dec_deg;
-    } else {
-      nopos++;
-    }
   double ra0, dec0;
-  if (dt_sphere_centre(ra, dec, npos, &ra0, &dec0) != 0) {
-    cli_errorf("map: no sightline with a position (columns ra_deg, dec_deg)");
-    rc = 1;
-    goto done;
-  }
-  if (nopos) cli_errorf("map: note: %zu sightline%s without a position left off the map", nopos, nopos == 1 ? "" : "s");
+  if ((rc = map_centre(&c, &ra0, &dec0))) goto done;
   double vabs = 0, half = 0;
-  size_t far = 0;
-  for (size_t i = 0; i < c.n; i++) {
-    const dt_sightline *s = &c.s[i];
-    dt_fig_map_point *q = &pt[i];
-    q->label = s->name;
-    q->x = q->y = q->v_kms = q->limit = NAN;
-    double xi, eta;
-    if (isfinite(s->ra_deg) && isfinite(s->dec_deg) && fabs(s->dec_deg) <= 90) {
-      if (dt_sphere_gnomonic(s->ra_deg, s->dec_deg, ra0, dec0, &xi, &eta) == 0 && hypot(xi, eta) < 60) {
-        q->x = 60 * xi;
-        q->y = 60 * eta;
-        half = fmax(half, fmax(fabs(q->x), fabs(q->y)));
-      } else {
-        far++;
-      }
-    }
-    dt_count k = dt_sightline_count(s, kind, thr);
-    q->mark = k == DT_COUNT_DETECTION ? DT_FIG_MARK_DETECTED
-              : k == DT_COUNT_NONDETECTION ? DT_FIG_MARK_NOT_DETECTED : DT_FIG_MARK_LEFT_OUT;
-    if (k == DT_COUNT_DETECTION) {
-      double v, sv;
-      dt_err e;
-      if (dt_sightline_velocity(&c, i, DT_VELOCITY_MEAN, &v, &sv, &e) == DT_OK) {
-        q->v_kms = v;
-        vabs = fmax(vabs, fabs(v));
-      }
-    }
-    if (s->verdict == DT_VERDICT_NOT_DETECTED)
-      q->limit = kind == DT_THRESHOLD_LOGN ? s->logN_limit : s->W_limit_mA;
-  }
-  if (far)
-    cli_errorf("map: note: %zu sightline%s more than 60 deg from the centre left off the map", far, far == 1 ? "" : "s");
+  place_points(&c, kind, thr, ra0, dec0, pt, &vabs, &half);
   if (!isfinite(vmax)) vmax = vabs > 0 ? vabs : 100;
 
   /* the contours first: a cube that cannot be drawn stops before any output */
   if (hi_path && (rc = hi_contours(hi_path, &ho, ra0, dec0, &hc, &hz, hlevel, hlabel, sizeof hlabel))) goto done;
   if (!so.out && survey_stdout_tty()) tmap(pt, c.n, half > 0 ? half * 1.05 : 1);
-  if (cli_out_open(&tab)) {
-    rc = 1;
-    goto done;
-  }
-  dt_csv w;
-  dt_csv_init(&w, tab.f);
-  char num[64];
-  dt_csv_comment(&w, "program", "doubletty map " DT_VERSION);
-  dt_num_format(num, sizeof num, ra0);
-  dt_csv_comment(&w, "centre_ra_deg", num);
-  dt_num_format(num, sizeof num, dec0);
-  dt_csv_comment(&w, "centre_dec_deg", num);
-  dt_csv_comment(&w, "projection", "gnomonic (TAN); x east, y north");
-  dt_csv_comment(&w, "limit", kind == DT_THRESHOLD_LOGN ? "logN_limit" : "W_limit_mA");
-  const char *head[] = {"name", "ra_deg", "dec_deg", "x_arcmin", "y_arcmin", "status", "v_kms", "limit"};
-  for (int h = 0; h < 8; h++) dt_csv_text(&w, head[h]);
-  dt_csv_end(&w);
-  for (size_t i = 0; i < c.n; i++) {
-    dt_csv_text(&w, c.s[i].name);
-    dt_csv_num(&w, c.s[i].ra_deg);
-    dt_csv_num(&w, c.s[i].dec_deg);
-    dt_csv_fixed(&w, pt[i].x, 4);
-    dt_csv_fixed(&w, pt[i].y, 4);
-    dt_csv_text(&w, status_name[pt[i].mark]);
-    dt_csv_fixed(&w, pt[i].v_kms, 3);
-    dt_csv_num(&w, pt[i].limit);
-    dt_csv_end(&w);
-  }
-  if (dt_csv_error(&w)) {
-    cli_errorf("map: cannot write the table");
-    cli_out_abort(&tab);
-    rc = 1;
-    goto done;
-  }
-  if (cli_out_commit(&tab)) {
-    rc = 1;
-    goto done;
-  }
+  if ((rc = write_table(&c, pt, kind, ra0, dec0, &tab))) goto done;
   if (so.figure) {
     char title[128], centre[128];
     snprintf(title, sizeof title, "Sightlines: %s, system %s", c.s[0].doublet, so.system ? so.system : "target");
@@ -307,8 +327,6 @@ int cmd_map(int argc, char **argv) {
 done:
   free(hz);
   free(pt);
-  free(ra);
-  free(dec);
   dt_catalog_free(&c);
   return rc;
 }
