@@ -310,6 +310,64 @@ static void draw(dt_insp *s) {
   dt_term_draw(&s->g);
 }
 
+/* Keystroke times [ms] for --bench. */
+typedef struct key_times {
+  double *t;
+  size_t n, cap;
+} key_times;
+
+static void key_times_add(key_times *k, double ms) {
+  if (k->n == k->cap) {
+    size_t cap = k->cap ? 2 * k->cap : 256;
+    double *t = realloc(k->t, cap * sizeof *t);
+    if (!t) return; /* out of memory: this time is not counted */
+    k->t = t;
+    k->cap = cap;
+  }
+  k->t[k->n++] = ms;
+}
+
+/* "LABEL N  median ...  p90 ...  max ..." (nothing when empty). */
+static void key_times_print(const char *label, key_times *k) {
+  if (!k->n) return;
+  qsort(k->t, k->n, sizeof *k->t, cmp_double);
+  printf("%s %zu  median %.3f ms  p90 %.3f ms  max %.3f ms\n", label, k->n, k->t[k->n / 2],
+         k->t[(size_t)(0.9 * (double)(k->n - 1))], k->t[k->n - 1]);
+}
+
+/* Open on the first spectrum without a verdict (the judged counted), and
+ * say what the session is: all judged, damaged lines, read-only, its file. */
+static void open_first(dt_insp *s, dt_journal *jn, const dt_inspect_opts *o) {
+  const dt_queue *q = s->q;
+  int found = 0;
+  size_t first = 0;
+  for (size_t i = 0; i < q->n; i++) {
+    if (dt_insp_verdict_of(s, i) != DT_VERDICT_NONE) s->njudged++;
+    else if (!found) {
+      first = i;
+      found = 1;
+    }
+  }
+  draw(s); /* something on screen while the first spectrum loads */
+  dt_insp_load(s, first);
+  const dt_session *ss = s->ss;
+  if (!found && (ss->tone == DT_TONE_TEXT || !ss->msg[0]))
+    dt_insp_say(s, DT_TONE_GOOD, "every spectrum of the queue has a verdict already (%zu)", q->n);
+  if (jn && dt_journal_warning_count(jn) > 0 && ss->tone != DT_TONE_BAD)
+    dt_insp_say(s, DT_TONE_WARN, "session file: %zu damaged line%s skipped (%s)", dt_journal_warning_count(jn),
+                dt_journal_warning_count(jn) == 1 ? "" : "s", dt_journal_warning(jn, 0));
+  if (jn && dt_journal_read_only(jn) && ss->tone == DT_TONE_TEXT)
+    dt_insp_say(s, DT_TONE_WARN, "read-only: looking only");
+  if (jn && ss->tone == DT_TONE_TEXT) {
+    /* say where the judgements go, after what the first spectrum said */
+    const char *sp = o->session_path ? o->session_path : dt_journal_path(jn);
+    size_t n = strlen(ss->msg);
+    if (!n) dt_insp_say(s, DT_TONE_TEXT, "session file: %s", sp);
+    else snprintf(s->ss->msg + n, sizeof s->ss->msg - n, " - session file: %s", sp);
+  }
+  draw(s);
+}
+
 int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_inspect_opts *o, char *msg,
                    size_t msgsize) {
   dt_inspect_opts def;
@@ -360,38 +418,12 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
   s->mode = s->utf8 ? DT_PLOT_BRAILLE : DT_PLOT_ASCII;
   s->normalised = 1;
 
-  /* resume: count the judged, open on the first spectrum without a verdict */
-  int found = 0;
-  size_t first = 0;
-  for (size_t i = 0; i < q->n; i++) {
-    if (dt_insp_verdict_of(s, i) != DT_VERDICT_NONE) s->njudged++;
-    else if (!found) {
-      first = i;
-      found = 1;
-    }
-  }
-  draw(s); /* something on screen while the first spectrum loads */
-  dt_insp_load(s, first);
-  const dt_session *ss = s->ss;
-  if (!found && (ss->tone == DT_TONE_TEXT || !ss->msg[0]))
-    dt_insp_say(s, DT_TONE_GOOD, "every spectrum of the queue has a verdict already (%zu)", q->n);
-  if (jn && dt_journal_warning_count(jn) > 0 && ss->tone != DT_TONE_BAD)
-    dt_insp_say(s, DT_TONE_WARN, "session file: %zu damaged line%s skipped (%s)", dt_journal_warning_count(jn),
-                dt_journal_warning_count(jn) == 1 ? "" : "s", dt_journal_warning(jn, 0));
-  if (jn && dt_journal_read_only(jn) && ss->tone == DT_TONE_TEXT)
-    dt_insp_say(s, DT_TONE_WARN, "read-only: looking only");
-  if (jn && ss->tone == DT_TONE_TEXT) {
-    /* say where the judgements go, after what the first spectrum said */
-    const char *sp = o->session_path ? o->session_path : dt_journal_path(jn);
-    size_t n = strlen(ss->msg);
-    if (!n) dt_insp_say(s, DT_TONE_TEXT, "session file: %s", sp);
-    else snprintf(s->ss->msg + n, sizeof s->ss->msg - n, " - session file: %s", sp);
-  }
-  draw(s);
+  open_first(s, jn, o);
 
-  /* keystroke times: all, and those that refitted within one spectrum */
-  double *times = NULL, *ftimes = NULL, *mtimes = NULL; /* mtimes: moves to another spectrum */
-  size_t ntimes = 0, nftimes = 0, nmtimes = 0, captimes = 0;
+  /* keystroke times: all, those that refitted within one spectrum, and the
+   * moves to another spectrum */
+  key_times kt[3];
+  memset(kt, 0, sizeof kt);
   int status = 0;
   msg[0] = '\0';
   for (;;) {
@@ -432,43 +464,17 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
       dt_session_finish_intervals(s->ss);
       draw(s);
     }
-    if (ntimes == captimes) {
-      size_t cap = captimes ? 2 * captimes : 256;
-      double *nt = realloc(times, cap * sizeof *nt), *nf = nt ? realloc(ftimes, cap * sizeof *nf) : NULL;
-      double *nm = nf ? realloc(mtimes, cap * sizeof *nm) : NULL;
-      if (nt) times = nt;
-      if (nf) ftimes = nf;
-      if (nm) {
-        mtimes = nm;
-        captimes = cap;
-      }
-    }
-    if (ntimes < captimes) {
-      if (s->cur != c0) mtimes[nmtimes++] = dt;
-      times[ntimes++] = dt;
-      if (s->ss->nfits > f0 && s->cur == c0) ftimes[nftimes++] = dt;
-    }
+    key_times_add(&kt[0], dt);
+    if (s->ss->nfits > f0 && s->cur == c0) key_times_add(&kt[1], dt);
+    if (s->cur != c0) key_times_add(&kt[2], dt);
   }
   if (o->dump) dump_screen(s, o->dump);
   dt_term_close();
-  if (o->bench && ntimes > 0) {
-    qsort(times, ntimes, sizeof *times, cmp_double);
-    printf("keys %zu  median %.3f ms  p90 %.3f ms  max %.3f ms\n", ntimes, times[ntimes / 2],
-           times[(size_t)(0.9 * (double)(ntimes - 1))], times[ntimes - 1]);
-    if (nftimes > 0) {
-      qsort(ftimes, nftimes, sizeof *ftimes, cmp_double);
-      printf("refits %zu  median %.3f ms  p90 %.3f ms  max %.3f ms\n", nftimes, ftimes[nftimes / 2],
-             ftimes[(size_t)(0.9 * (double)(nftimes - 1))], ftimes[nftimes - 1]);
-    }
-    if (nmtimes > 0) {
-      qsort(mtimes, nmtimes, sizeof *mtimes, cmp_double);
-      printf("next %zu  median %.3f ms  p90 %.3f ms  max %.3f ms\n", nmtimes, mtimes[nmtimes / 2],
-             mtimes[(size_t)(0.9 * (double)(nmtimes - 1))], mtimes[nmtimes - 1]);
-    }
+  static const char *const label[3] = {"keys", "refits", "next"};
+  for (int k = 0; k < 3; k++) {
+    if (o->bench && kt[0].n > 0) key_times_print(label[k], &kt[k]);
+    free(kt[k].t);
   }
-  free(times);
-  free(ftimes);
-  free(mtimes);
   if (rp.f) fclose(rp.f);
   dt_prefetch_stop(s->pf);
   dt_session_free(s->ss);
