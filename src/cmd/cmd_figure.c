@@ -221,6 +221,78 @@ static int make_dir(const char *dir) {
 
 static void report_list(const char *list, const dt_err *e) { cli_report(list, e); }
 
+/* Every spectrum of a session, in its final state. */
+static void draw_session(fig_job *job, dt_session *ss, dt_journal *jn, cli_progress *pr) {
+  size_t n = dt_journal_count(jn);
+  cli_progress_start(pr, "figure", n, 0);
+  for (size_t i = 0; i < n; i++) {
+    const dt_journal_entry *en = dt_journal_entry_at(jn, i);
+    char path[4096], dbl[32], stem[256];
+    dt_queue_split_key(en->target.path, path, sizeof path, dbl, sizeof dbl);
+    dt_session_target t;
+    dt_session_target_init(&t, path, en->target.path, en->target.row);
+    t.name = en->target.name ? en->target.name : "";
+    t.initial = en->state;
+    dt_session_load(ss, &t);
+    const char *name = t.name[0] ? t.name : dt_export_stem(path, stem, sizeof stem);
+    draw_target(job, ss, path, name, en->target.row);
+    cli_progress_update(pr, i + 1);
+  }
+}
+
+/* Every spectrum of a list or of files, as the first pass leaves it
+ * (doublet d0 where the list does not say).  0, or 1 after a message. */
+static int draw_queue(fig_job *job, dt_session *ss, const dt_atomic *atomic, const char *list, char **in, int nin,
+                      const char *d0, cli_progress *pr) {
+  int rc = 0;
+  dt_queue q;
+  dt_queue_init(&q);
+  dt_err e;
+  size_t nbad = 0;
+  if (list) {
+    if (dt_queue_add_list(&q, list, &nbad, report_list, &e) != DT_OK) {
+      cli_report(list, &e);
+      rc = 1;
+    } else if (nbad) {
+      job->failed += (long)nbad;
+    }
+  } else {
+    for (int i = 0; i < nin && !rc; i++) {
+      if (cli_check_not_dir(in[i])) rc = 1;
+      else if (dt_queue_add_file(&q, in[i], &e) != DT_OK) {
+        cli_report(in[i], &e);
+        rc = 1;
+      }
+    }
+  }
+  cli_progress_start(pr, "figure", q.n, 0);
+  for (size_t i = 0; !rc && i < q.n; i++) {
+    const dt_qentry *qe = &q.e[i];
+    const char *dn = qe->doublet[0] ? qe->doublet : d0;
+    const dt_doublet *dd = dt_atomic_find(atomic, dn);
+    char key[4200], stem[256];
+    snprintf(key, sizeof key, "%s#%s", dt_queue_key(&q, i), dd ? dd->name : dn);
+    dt_session_target t;
+    dt_session_target_init(&t, dt_queue_path(&q, i), key, qe->row);
+    t.name = dt_queue_name(&q, i);
+    t.air = qe->air;
+    snprintf(t.initial.doublet, sizeof t.initial.doublet, "%s", dd ? dd->name : dn);
+    if (qe->has_vsys) t.initial.vsys = qe->vsys;
+    if (qe->has_window) {
+      t.initial.vlo = qe->vlo;
+      t.initial.vhi = qe->vhi;
+    }
+    t.initial.resolution = qe->resolution;
+    t.initial.fwhm_kms = qe->resolution > 0 ? 0 : qe->fwhm_kms;
+    dt_session_load(ss, &t);
+    const char *name = t.name && t.name[0] ? t.name : dt_export_stem(t.path, stem, sizeof stem);
+    draw_target(job, ss, t.path, name, qe->row);
+    cli_progress_update(pr, i + 1);
+  }
+  dt_queue_free(&q);
+  return rc;
+}
+
 int cmd_figure(int argc, char **argv) {
   const char *dir = NULL, *list = NULL, *doublet = NULL;
   fig_job job;
@@ -300,69 +372,8 @@ int cmd_figure(int argc, char **argv) {
   }
   const char *d0 = doublet ? doublet : "NaI";
   cli_progress pr;
-  if (jn) {
-    size_t n = dt_journal_count(jn);
-    cli_progress_start(&pr, "figure", n, 0);
-    for (size_t i = 0; i < n; i++) {
-      const dt_journal_entry *en = dt_journal_entry_at(jn, i);
-      char path[4096], dbl[32], stem[256];
-      dt_queue_split_key(en->target.path, path, sizeof path, dbl, sizeof dbl);
-      dt_session_target t;
-      dt_session_target_init(&t, path, en->target.path, en->target.row);
-      t.name = en->target.name ? en->target.name : "";
-      t.initial = en->state;
-      dt_session_load(ss, &t);
-      const char *name = t.name[0] ? t.name : dt_export_stem(path, stem, sizeof stem);
-      draw_target(&job, ss, path, name, en->target.row);
-      cli_progress_update(&pr, i + 1);
-    }
-  } else {
-    dt_queue q;
-    dt_queue_init(&q);
-    dt_err e;
-    size_t nbad = 0;
-    if (list) {
-      if (dt_queue_add_list(&q, list, &nbad, report_list, &e) != DT_OK) {
-        cli_report(list, &e);
-        rc = 1;
-      } else if (nbad) {
-        job.failed += (long)nbad;
-      }
-    } else {
-      for (int i = 0; i < nin && !rc; i++) {
-        if (cli_check_not_dir(in[i])) rc = 1;
-        else if (dt_queue_add_file(&q, in[i], &e) != DT_OK) {
-          cli_report(in[i], &e);
-          rc = 1;
-        }
-      }
-    }
-    cli_progress_start(&pr, "figure", q.n, 0);
-    for (size_t i = 0; !rc && i < q.n; i++) {
-      const dt_qentry *qe = &q.e[i];
-      const char *dn = qe->doublet[0] ? qe->doublet : d0;
-      const dt_doublet *dd = dt_atomic_find(atomic, dn);
-      char key[4200], stem[256];
-      snprintf(key, sizeof key, "%s#%s", dt_queue_key(&q, i), dd ? dd->name : dn);
-      dt_session_target t;
-      dt_session_target_init(&t, dt_queue_path(&q, i), key, qe->row);
-      t.name = dt_queue_name(&q, i);
-      t.air = qe->air;
-      snprintf(t.initial.doublet, sizeof t.initial.doublet, "%s", dd ? dd->name : dn);
-      if (qe->has_vsys) t.initial.vsys = qe->vsys;
-      if (qe->has_window) {
-        t.initial.vlo = qe->vlo;
-        t.initial.vhi = qe->vhi;
-      }
-      t.initial.resolution = qe->resolution;
-      t.initial.fwhm_kms = qe->resolution > 0 ? 0 : qe->fwhm_kms;
-      dt_session_load(ss, &t);
-      const char *name = t.name && t.name[0] ? t.name : dt_export_stem(t.path, stem, sizeof stem);
-      draw_target(&job, ss, t.path, name, qe->row);
-      cli_progress_update(&pr, i + 1);
-    }
-    dt_queue_free(&q);
-  }
+  if (jn) draw_session(&job, ss, jn, &pr);
+  else rc = draw_queue(&job, ss, atomic, list, in, nin, d0, &pr);
   cli_progress_end(&pr);
   if (!rc)
     fprintf(stderr, "doubletty: figure: %ld figure%s written into %s%s", job.written, job.written == 1 ? "" : "s", dir,
