@@ -660,19 +660,12 @@ static const char *logn_text(const dt_insp *s, size_t k, char *buf, size_t size,
   return buf;
 }
 
-static void draw_table(dt_insp *s, const layout *L) {
+/* The component table: heading, then as many rows as fit (up to row end
+ * less the rows below) around the selection.  Returns the next row. */
+static int table_components(dt_insp *s, const syms *y, int x, int row, int maxw, int end) {
   dt_grid *g = &s->g;
-  syms y = symbols(s);
-  int x = L->tab_x + 1, row = L->tab_y, maxw = L->tab_w - 2;
   const dt_judgement *j = &s->ss->j;
-  int side = L->tab_x > 0;
-  int end = L->tab_y + L->tab_h; /* first row not ours */
-  if (side)
-    for (int r = L->tab_y; r < end; r++) dt_grid_text(g, L->tab_x - 1, r, y.vbar, DT_R_AXIS, 0, 1);
-  else if (L->h >= 28)
-    dt_grid_fill(g, 0, row++, L->w, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
   char b1[64], b2[64];
-  /* components: heading, then as many rows as fit around the selection */
   int errs = j->has_fit && j->fit.status == 0 && j->fit.ncomp == j->ncomp;
   int rows = end - row - 5;
   if (rows < 1) rows = 1;
@@ -696,7 +689,7 @@ static void draw_table(dt_insp *s, const layout *L) {
   for (size_t k = first; k < j->ncomp && k < first + shown; k++) {
     const dt_component *c = &j->comp[k], *e = errs ? &j->fit.err[k] : NULL;
     int sel = k == s->ss->sel, role = sel ? DT_R_COMPSEL : DT_R_TEXT, attr = sel ? DT_A_BOLD : 0;
-    if (sel) dt_grid_text(g, x, row, y.arrow, role, attr, 1);
+    if (sel) dt_grid_text(g, x, row, y->arrow, role, attr, 1);
     dt_grid_printf(g, x + TC_NUM, row, role, attr, 3, "%zu", k + 1);
     snprintf(b2, sizeof b2, "%s%s", c->v >= 0 ? "+" : "", param_text(s, k, DT_PARAM_V, b1, sizeof b1, c->v, e ? e->v : NAN, 1));
     dt_grid_text(g, x + TC_V, row, b2, role, attr, TC_B - TC_V - 1);
@@ -710,9 +703,13 @@ static void draw_table(dt_insp *s, const layout *L) {
     dt_grid_text(g, x + TC_FIX, row, b1, DT_R_WARN, 0, maxw - TC_FIX);
     row++;
   }
-  int hirow = s->o && s->o->hi ? 1 : 0;
-  if (row > end - 4 - hirow) row = end - 4 - hirow;
-  /* the fit */
+  return row;
+}
+
+/* The fit's row: chi2, dof, BIC, the continuum, a failed fit. */
+static void table_fit(dt_insp *s, const syms *y, int x, int row, int maxw) {
+  dt_grid *g = &s->g;
+  const dt_judgement *j = &s->ss->j;
   double chi2r = NAN, bic = NAN;
   long dof = 0;
   int status = 0;
@@ -732,65 +729,75 @@ static void draw_table(dt_insp *s, const layout *L) {
     snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
   else snprintf(cont, sizeof cont, "continuum order %d, auto", j->cont_order);
   int cx = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "fit ");
-  cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s", y.chi, chi2r, dof,
+  cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s", y->chi, chi2r, dof,
                        bic, cont, s->ss->auto_refit ? "" : "  refit: manual");
   if (status != 0 && cx < maxw)
     dt_grid_printf(g, x + cx, row, DT_R_BAD, DT_A_BOLD, maxw - cx, "  %s",
                    status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");
-  row++;
-  /* measurements, one row per line */
-  /* with several systems, the selected system's own measurements */
+}
+
+/* Line l's measurements: of the selected system's range when there are
+ * several systems, else of the analysis. */
+static void table_line(dt_insp *s, const syms *y, int x, int row, int maxw, int l) {
+  dt_grid *g = &s->g;
+  char b1[64], b2[64];
   size_t msel = s->ss->selsys;
   int sysm = s->ss->systems.n > 1 && msel < s->ss->systems.n && s->ss->has_sysmeas;
-  for (int l = 0; l < 2; l++) {
-    const dt_analysis_line *m = sysm ? &s->ss->sysmeas[msel].line[l] : &s->ss->out.line[l];
-    int mst = sysm ? s->ss->sysmeas[msel].measure_status : s->ss->out.measure_status;
-    if (!s->ss->an_ok || mst != 0 || !m->line) {
-      dt_grid_printf(g, x, row++, DT_R_TEXT, DT_A_DIM, maxw, "line %d   no measurement", l + 1);
-      continue;
-    }
-    int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", m->line->label);
-    int n1 = dt_grid_printf(g, x + n0, row, m->W_sig >= 3 ? DT_R_GOOD : DT_R_TEXT, 0, maxw - n0, " W %s %s (%.1f%s)",
-                            dt_view_pm(s, b2, sizeof b2, 1e3 * m->W, 1e3 * m->W_err, 0), y.mA, m->W_sig, y.sig);
-    if (isfinite(m->logN_aod)) snprintf(b1, sizeof b1, "%s", dt_view_pm(s, b2, sizeof b2, m->logN_aod, m->logN_aod_err, 2));
-    else snprintf(b1, sizeof b1, "-");
-    /* every number labelled; when the row is short, the column density of
-     * a detection or the limits of a non-detection come first */
-    char na[96], lim[96];
-    snprintf(na, sizeof na, "  log Na %s", b1);
-    snprintf(lim, sizeof lim, "  %g%s lim %.0f %s, log N < %.2f", s->ss->nsigma, y.sig, 1e3 * m->W_limit, y.mA,
-             m->logN_limit);
-    int room = maxw - n0 - n1, wn = cells(na), wl = cells(lim);
-    int show_na = wn + wl <= room || m->W_sig >= 3, show_lim = wn + wl <= room || m->W_sig < 3;
-    int n2 = 0;
-    if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
-    if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
-    char sat[96];
-    int ns = snprintf(sat, sizeof sat, "%s", m->nsat ? "  saturated px" : l == 1 && (sysm ? dt_systems_saturated(s->ss->sysmeas[msel].line) : s->ss->out.saturated) ? "  ratio: saturated" : "");
-    if (m->masked_frac > 0 && ns >= 0 && (size_t)ns < sizeof sat)
-      ns += snprintf(sat + ns, sizeof sat - (size_t)ns, "  masked %.0f%%", 100 * m->masked_frac);
-    if (m->blend == DT_BLEND_MODEL && ns >= 0 && (size_t)ns < sizeof sat)
-      ns += snprintf(sat + ns, sizeof sat - (size_t)ns, "  blended %.0f%%", 100 * m->blend_frac);
-    if (l == 0 && s->ss->out.cont_tau > DT_ANALYSIS_CONT_TAU && ns >= 0 && (size_t)ns < sizeof sat)
-      snprintf(sat + ns, sizeof sat - (size_t)ns, "  wings in continuum: widen window");
-    if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
-    row++;
+  const dt_analysis_line *m = sysm ? &s->ss->sysmeas[msel].line[l] : &s->ss->out.line[l];
+  int mst = sysm ? s->ss->sysmeas[msel].measure_status : s->ss->out.measure_status;
+  if (!s->ss->an_ok || mst != 0 || !m->line) {
+    dt_grid_printf(g, x, row, DT_R_TEXT, DT_A_DIM, maxw, "line %d   no measurement", l + 1);
+    return;
   }
-  if (hirow) { /* the 21-cm numbers at this sightline */
-    const dt_hi_sample *h = &s->hs;
-    int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", "HI 21cm");
-    if (s->has_hi && h->status == DT_HI_OK)
-      dt_grid_printf(g, x + n0, row, DT_R_TEXT, 0, maxw - n0,
-                     " log N(HI) %s  v %+.1f  %s %.1f km/s  Tpeak %.2f K  (thin: lower limit)",
-                     dt_view_pm(s, b2, sizeof b2, h->logN, h->logN_err, 2),
-                     DT_C_KMS * ((1 + h->v / DT_C_KMS) * (1 + s->hs_vsys / DT_C_KMS) / (1 + j->vsys / DT_C_KMS) - 1),
-                     y.sig, h->sigma, h->tpeak);
-    else
-      dt_grid_printf(g, x + n0, row, DT_R_WARN, 0, maxw - n0, " %s",
-                     s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
-    row++;
-  }
-  /* verdicts and note: those of the selected system */
+  int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", m->line->label);
+  int n1 = dt_grid_printf(g, x + n0, row, m->W_sig >= 3 ? DT_R_GOOD : DT_R_TEXT, 0, maxw - n0, " W %s %s (%.1f%s)",
+                          dt_view_pm(s, b2, sizeof b2, 1e3 * m->W, 1e3 * m->W_err, 0), y->mA, m->W_sig, y->sig);
+  if (isfinite(m->logN_aod)) snprintf(b1, sizeof b1, "%s", dt_view_pm(s, b2, sizeof b2, m->logN_aod, m->logN_aod_err, 2));
+  else snprintf(b1, sizeof b1, "-");
+  /* every number labelled; when the row is short, the column density of
+   * a detection or the limits of a non-detection come first */
+  char na[96], lim[96];
+  snprintf(na, sizeof na, "  log Na %s", b1);
+  snprintf(lim, sizeof lim, "  %g%s lim %.0f %s, log N < %.2f", s->ss->nsigma, y->sig, 1e3 * m->W_limit, y->mA,
+           m->logN_limit);
+  int room = maxw - n0 - n1, wn = cells(na), wl = cells(lim);
+  int show_na = wn + wl <= room || m->W_sig >= 3, show_lim = wn + wl <= room || m->W_sig < 3;
+  int n2 = 0;
+  if (show_na) n2 += dt_grid_text(g, x + n0 + n1, row, na, DT_R_TEXT, 0, room);
+  if (show_lim) n2 += dt_grid_text(g, x + n0 + n1 + n2, row, lim, DT_R_TEXT, 0, room - n2);
+  char sat[96];
+  int ns = snprintf(sat, sizeof sat, "%s", m->nsat ? "  saturated px" : l == 1 && (sysm ? dt_systems_saturated(s->ss->sysmeas[msel].line) : s->ss->out.saturated) ? "  ratio: saturated" : "");
+  if (m->masked_frac > 0 && ns >= 0 && (size_t)ns < sizeof sat)
+    ns += snprintf(sat + ns, sizeof sat - (size_t)ns, "  masked %.0f%%", 100 * m->masked_frac);
+  if (m->blend == DT_BLEND_MODEL && ns >= 0 && (size_t)ns < sizeof sat)
+    ns += snprintf(sat + ns, sizeof sat - (size_t)ns, "  blended %.0f%%", 100 * m->blend_frac);
+  if (l == 0 && s->ss->out.cont_tau > DT_ANALYSIS_CONT_TAU && ns >= 0 && (size_t)ns < sizeof sat)
+    snprintf(sat + ns, sizeof sat - (size_t)ns, "  wings in continuum: widen window");
+  if (sat[0]) dt_grid_text(g, x + n0 + n1 + n2, row, sat, DT_R_WARN, 0, maxw - n0 - n1 - n2);
+}
+
+/* The 21-cm numbers at this sightline (inspect --hi). */
+static void table_hi(dt_insp *s, const syms *y, int x, int row, int maxw) {
+  dt_grid *g = &s->g;
+  const dt_judgement *j = &s->ss->j;
+  char b2[64];
+  const dt_hi_sample *h = &s->hs;
+  int n0 = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "%-9s", "HI 21cm");
+  if (s->has_hi && h->status == DT_HI_OK)
+    dt_grid_printf(g, x + n0, row, DT_R_TEXT, 0, maxw - n0,
+                   " log N(HI) %s  v %+.1f  %s %.1f km/s  Tpeak %.2f K  (thin: lower limit)",
+                   dt_view_pm(s, b2, sizeof b2, h->logN, h->logN_err, 2),
+                   DT_C_KMS * ((1 + h->v / DT_C_KMS) * (1 + s->hs_vsys / DT_C_KMS) / (1 + j->vsys / DT_C_KMS) - 1),
+                   y->sig, h->sigma, h->tpeak);
+  else
+    dt_grid_printf(g, x + n0, row, DT_R_WARN, 0, maxw - n0, " %s",
+                   s->has_hi ? dt_hi_status_name(h->status) : s->hi_msg);
+}
+
+/* The verdict row: the selected system's suggestion, verdict and the note. */
+static void table_verdict(dt_insp *s, int x, int row, int maxw) {
+  dt_grid *g = &s->g;
+  const dt_judgement *j = &s->ss->j;
   int vx = x;
   size_t sel = s->ss->selsys < s->ss->systems.n ? s->ss->selsys : 0;
   if (sel > 0) /* another system than the target: its name first */
@@ -815,6 +822,25 @@ static void draw_table(dt_insp *s, const layout *L) {
     vx += dt_grid_printf(g, vx, row, DT_R_LABEL, 0, maxw - (vx - x), "   note ");
     if (vx - x < maxw) dt_grid_printf(g, vx, row, DT_R_TEXT, 0, maxw - (vx - x), "%s", j->note);
   }
+}
+
+static void draw_table(dt_insp *s, const layout *L) {
+  dt_grid *g = &s->g;
+  syms y = symbols(s);
+  int x = L->tab_x + 1, row = L->tab_y, maxw = L->tab_w - 2;
+  int side = L->tab_x > 0;
+  int end = L->tab_y + L->tab_h; /* first row not ours */
+  if (side)
+    for (int r = L->tab_y; r < end; r++) dt_grid_text(g, L->tab_x - 1, r, y.vbar, DT_R_AXIS, 0, 1);
+  else if (L->h >= 28)
+    dt_grid_fill(g, 0, row++, L->w, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
+  row = table_components(s, &y, x, row, maxw, end);
+  int hirow = s->o && s->o->hi ? 1 : 0;
+  if (row > end - 4 - hirow) row = end - 4 - hirow;
+  table_fit(s, &y, x, row++, maxw);
+  for (int l = 0; l < 2; l++) table_line(s, &y, x, row++, maxw, l);
+  if (hirow) table_hi(s, &y, x, row++, maxw);
+  table_verdict(s, x, row, maxw);
 }
 
 /* ------------------------------------------------------------------ status */
