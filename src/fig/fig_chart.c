@@ -32,15 +32,20 @@ static int ok_pt(const fig_axis *x, const fig_axis *y, double a, double b) {
   return isfinite(a) && isfinite(b) && (!x->log || a > 0) && (!y->log || b > 0);
 }
 
-static void draw_series(cairo_t *cr, const fig_axis *x, const fig_axis *y, const dt_fig_series *q) {
-  cairo_save(cr);
+/* A series' pen: its colour, the line width, dashes for a dashed line. */
+static void series_pen(cairo_t *cr, const dt_fig_series *q) {
   fig_colour(cr, q->colour);
   cairo_set_line_width(cr, 1.2);
+  if ((q->style & DT_FIG_LINE) && (q->style & DT_FIG_DASHED)) {
+    double d[2] = {5, 3};
+    cairo_set_dash(cr, d, 2, 0);
+  }
+}
+
+static void draw_series(cairo_t *cr, const fig_axis *x, const fig_axis *y, const dt_fig_series *q) {
+  cairo_save(cr);
+  series_pen(cr, q);
   if (q->style & DT_FIG_LINE) {
-    if (q->style & DT_FIG_DASHED) {
-      double d[2] = {5, 3};
-      cairo_set_dash(cr, d, 2, 0);
-    }
     int pen = 0;
     for (size_t i = 0; i < q->n; i++) {
       if (!ok_pt(x, y, q->x[i], q->y[i])) {
@@ -97,13 +102,8 @@ static void legend(cairo_t *cr, double x, double y, const dt_fig_chart *c) {
     const dt_fig_series *q = &c->series[s];
     if (!q->label) continue;
     cairo_save(cr);
-    fig_colour(cr, q->colour);
-    cairo_set_line_width(cr, 1.2);
+    series_pen(cr, q);
     if (q->style & DT_FIG_LINE) {
-      if (q->style & DT_FIG_DASHED) {
-        double d[2] = {5, 3};
-        cairo_set_dash(cr, d, 2, 0);
-      }
       cairo_move_to(cr, x - 22, y);
       cairo_line_to(cr, x - 4, y);
       cairo_stroke(cr);
