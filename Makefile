@@ -40,7 +40,7 @@ CMD_SRC  := $(sort $(wildcard src/cmd/*.c))
 DEMO_SRC := $(sort $(wildcard src/demo/*.c))
 TEST_SRC := $(sort $(wildcard tests/unit/test_*.c))
 
-CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o) $(BUILD)/gen/atomic_builtin.o
+CORE_OBJ := $(CORE_SRC:%.c=$(BUILD)/%.o) $(BUILD)/gen/atomic_builtin.o $(BUILD)/gen/hyperfine_builtin.o
 UI_OBJ   := $(UI_SRC:%.c=$(BUILD)/%.o)
 FIG_OBJ  := $(FIG_SRC:%.c=$(BUILD)/%.o)
 CMD_OBJ  := $(CMD_SRC:%.c=$(BUILD)/%.o)
@@ -77,6 +77,22 @@ $(BUILD)/gen/atomic_builtin.c: share/doubletty/atomic.dat
 	} >$@.tmp && mv $@.tmp $@
 
 $(BUILD)/gen/atomic_builtin.o: $(BUILD)/gen/atomic_builtin.c
+	$(CC) $(CPPFLAGS) $(CFLAGS) -c $< -o $@
+
+# The same for the default hyperfine table.
+$(BUILD)/gen/hyperfine_builtin.c: share/doubletty/hyperfine.dat
+	@mkdir -p $(dir $@)
+	{ echo '/* Generated from share/doubletty/hyperfine.dat by the Makefile: do not edit. */'; \
+	  echo '#include <stddef.h>'; \
+	  echo 'extern const unsigned char dt_hyperfine_builtin_data[];'; \
+	  echo 'extern const size_t dt_hyperfine_builtin_size;'; \
+	  echo 'const unsigned char dt_hyperfine_builtin_data[] = {'; \
+	  od -An -v -tu1 share/doubletty/hyperfine.dat | awk 'NF { line = ""; for (i = 1; i <= NF; i++) line = line $$i ","; print line }'; \
+	  echo '0};'; \
+	  echo "const size_t dt_hyperfine_builtin_size = $$(wc -c <share/doubletty/hyperfine.dat);"; \
+	} >$@.tmp && mv $@.tmp $@
+
+$(BUILD)/gen/hyperfine_builtin.o: $(BUILD)/gen/hyperfine_builtin.c
 	$(CC) $(CPPFLAGS) $(CFLAGS) -c $< -o $@
 
 $(LIBCORE): $(CORE_OBJ)

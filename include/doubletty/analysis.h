@@ -81,6 +81,10 @@ typedef struct dt_analysis_opts {
                            component, not only in the linear regime */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
+  const dt_hyperfine *hyperfine; /* hyperfine components (hyperfine.h):
+                           lines with a row in this table are modelled as
+                           the sum of their components; NULL (default): every
+                           line single.  Must outlive the analysis. */
 } dt_analysis_opts;
 
 /* Defaults as documented above. */

@@ -14,6 +14,12 @@
  * Both lines share N, b, v.  The model is normalised (continuum = 1); the
  * fitter multiplies by the continuum.
  *
+ * Hyperfine structure (cfg.hfs, off by default): a line given components
+ * (dv_h, s_h) is the sum of lines at lambda0 (1 + dv_h/c) with oscillator
+ * strength s_h f, each with the component's N, b and v, evaluated like any
+ * other line (narrow-line sub-sampling and Jacobian included).  A line
+ * with one component at dv = 0, share 1 is the single line exactly.
+ *
  * The discretisation: pixel edges lie half-way between pixel centres (the
  * first and last pixels are symmetric about their centres).  The sub-pixel
  * cells are uniform in ln(lambda), of width (narrowest pixel)/oversample
@@ -51,6 +57,7 @@
 #define DOUBLETTY_MODEL_H
 #include <stddef.h>
 #include "doubletty/atomic.h"
+#include "doubletty/hyperfine.h"
 #include "doubletty/status.h"
 
 #define DT_MAX_COMP 8
@@ -76,6 +83,11 @@ typedef struct dt_model_config {
                          slow); 0: interpolate w(z) from exact values at
                          nodes where that is cheaper (error in tau below
                          0.1 tau_cut) */
+  const dt_hfs_line *hfs[2]; /* hyperfine components of line[0], line[1]
+                         (hyperfine.h; copied by dt_model_alloc); NULL: the
+                         line is single.  A split line is the sum of its
+                         components: the same N, b, v, f times the share,
+                         wavelength lambda0 (1 + dv/c) */
 } dt_model_config;
 
 /* Defaults used when the config leaves a field at 0.

@@ -61,6 +61,8 @@ typedef struct dt_session_target {
                              analysis (dt_session_finish_intervals) */
   struct dt_cog_cache *cog; /* curve-of-growth tables shared by the analyses
                              (cog.h; NULL: the exact inverse) */
+  const dt_hyperfine *hyperfine; /* model lines with hyperfine structure
+                             (analysis.h, opts.hyperfine); NULL: none */
   struct dt_session_ahead *ahead; /* made in advance for this target (NULL:
                              none); dt_session_load takes its parts */
 } dt_session_target;

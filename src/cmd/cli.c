@@ -95,6 +95,30 @@ dt_atomic *cli_load_atomic(const char *user_table) {
   return t;
 }
 
+dt_hyperfine *cli_load_hyperfine(const char *user_table) {
+  char path[PATH_MAX + 16];
+  snprintf(path, sizeof path, "%s/hyperfine.dat", cli_datadir());
+  dt_hyperfine *t = NULL;
+  dt_err e;
+  /* A data directory from before the table had none: the built-in one. */
+  if (access(path, F_OK) == 0) {
+    if (dt_hyperfine_load(path, &t, &e) != DT_OK) {
+      report_table(path, &e, "repair or remove it to use the built-in hyperfine table");
+      return NULL;
+    }
+  } else if (dt_hyperfine_load_builtin(&t, &e) != DT_OK) {
+    cli_report("built-in hyperfine table", &e);
+    return NULL;
+  }
+  if (user_table && dt_hyperfine_merge(t, user_table, &e) != DT_OK) {
+    report_table(user_table, &e, "--hyperfine-table FILE must name a readable hyperfine table, "
+                                 "in the format described in doubletty(1)");
+    dt_hyperfine_free(t);
+    return NULL;
+  }
+  return t;
+}
+
 int cli_parse_double(const char *opt, const char *text, double *out) {
   if (dt_num_parse(text ? text : "", out) != DT_OK) {
     cli_errorf("%s: '%s' is not a number", opt, text ? text : "");

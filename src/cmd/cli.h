@@ -3,6 +3,7 @@
 #define DT_CLI_H
 #include <stdio.h>
 #include "doubletty/atomic.h"
+#include "doubletty/hyperfine.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/status.h"
 #include "doubletty/systems.h"
@@ -25,6 +26,11 @@ const char *cli_datadir(void);
  * optional user table (NULL = none).  Prints the error, with how to point
  * to a good table, and returns NULL on failure. */
 dt_atomic *cli_load_atomic(const char *user_table);
+/* Load the hyperfine table (hyperfine.dat of cli_datadir() when it exists,
+ * else the table built into the program), plus an optional user table
+ * (NULL = none).  Prints the error naming the file and line and returns
+ * NULL on failure. */
+dt_hyperfine *cli_load_hyperfine(const char *user_table);
 
 /* Parse a double / long option value; print an error naming the option and
  * return nonzero when the text is not a number. */

@@ -96,6 +96,8 @@ typedef struct {
   dt_system_opts systems;       /* --target-window, --system, --milky-way */
   int cov_only;                 /* --intervals covariance */
   int have_mw;                  /* --milky-way given */
+  int hyperfine;                /* --hyperfine: every target's lines split */
+  const char *hfs_file;         /* --hyperfine-table FILE */
 } config;
 
 typedef struct {
@@ -117,6 +119,7 @@ typedef struct {
   long inflight;                /* inputs handed to the pool, not yet written */
   int oom;                      /* a task could not be set up: stop */
   dt_cog_cache *cog;            /* curve-of-growth tables of the limits, shared */
+  const dt_hyperfine *hfs;      /* hyperfine table (NULL: could not be read) */
 } run;
 
 static void usage(FILE *f) {
@@ -145,6 +148,9 @@ static void usage(FILE *f) {
           "                          likelihood where the lines are not thin) or\n"
           "                          covariance (symmetric, from the fit alone: faster)\n"
           "  --atomic FILE           extra atomic table (adds or replaces doublets)\n"
+          "  --hyperfine             model Na I and K I lines as their hyperfine\n"
+          "                          components (a list line may say hfs=1)\n"
+          "  --hyperfine-table FILE  extra hyperfine table (adds or replaces lines)\n"
           "  --row N                 only row N of multi-row tables (default: all rows)\n"
           "  --wave-col C --flux-col C --err-col C --mask-col C   table columns\n"
           "  --list FILE             targets from a list file (path vsys= R= ...)\n"
@@ -481,6 +487,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     ao.cog = r->cog;
     ao.covariance_only = c->cov_only;
     ao.joint_cont = (size_t)c->joint_cont;
+    if (c->hyperfine || t->hyperfine) ao.hyperfine = r->hfs;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
     dt_autofit_opts_init(&fo);
@@ -780,6 +787,8 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_csv_comment(w, "limit-b", buf);
   dt_csv_comment(w, "intervals", c->cov_only ? "covariance" : "profile");
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
+  if (c->hyperfine) /* only when asked for: without it the header is as before */
+    dt_csv_comment(w, "hyperfine", c->hfs_file ? c->hfs_file : "yes");
   snprintf(buf, sizeof buf, "%ld", c->row);
   dt_csv_comment(w, "row", c->row ? buf : "");
   snprintf(buf, sizeof buf, "%s:%s:%s:%s", c->ropts.wave_col ? c->ropts.wave_col : "",
@@ -815,7 +824,8 @@ static void write_settings(dt_csv *w, const config *c) {
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS,
+  O_HFS, O_HFSTAB
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -850,6 +860,8 @@ static const struct option LONGOPTS[] = {
     {"milky-way", required_argument, NULL, O_MW},
     {"jobs", required_argument, NULL, O_JOBS},
     {"intervals", required_argument, NULL, O_INTERVALS},
+    {"hyperfine", no_argument, NULL, O_HFS},
+    {"hyperfine-table", required_argument, NULL, O_HFSTAB},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -921,6 +933,8 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
   case O_LIMB: return positive("--limit-b", v, "the Doppler parameter", &c->limit_b);
   case O_ATOMIC: c->atomic_file = v; return 0;
+  case O_HFS: c->hyperfine = 1; return 0;
+  case O_HFSTAB: c->hfs_file = v; c->hyperfine = 1; return 0;
   case O_ROW:
     if (cli_parse_long("--row", v, &l)) return 1;
     if (l < 1) {
@@ -991,6 +1005,7 @@ int cmd_fit(int argc, char **argv) {
   int rc = 2;
   dt_atomic *atomic = NULL;
   dt_cog_cache *cog = NULL; /* made once, shared by the threads */
+  dt_hyperfine *hfs = NULL;
   if (!src) {
     cli_errorf("out of memory");
     return 2;
@@ -1038,6 +1053,12 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("--doublet: unknown doublet '%s' (known: %s)", c.doublet, known);
     goto done;
   }
+  /* The hyperfine table: for --hyperfine, and for list lines that may say
+   * hfs=1. */
+  if (c.hyperfine || !only_files) {
+    hfs = cli_load_hyperfine(c.hfs_file);
+    if (!hfs) goto done;
+  }
   cli_out of;
   if ((rc = cli_out_check(&of, "fit", c.out_path, c.force))) goto done;
   rc = 2;
@@ -1057,6 +1078,7 @@ int cmd_fit(int argc, char **argv) {
   r.total = only_files ? (long)nsrc : -1;
   r.progress = isatty(STDERR_FILENO);
   r.cog = cog = dt_cog_cache_alloc(); /* NULL (out of memory): the exact inverse */
+  r.hfs = hfs;
   write_settings(&r.csv, &c);
   for (size_t k = 0; k < NCOLUMNS; k++) dt_csv_text(&r.csv, COLUMNS[k]);
   dt_csv_end(&r.csv);
@@ -1109,6 +1131,7 @@ int cmd_fit(int argc, char **argv) {
   rc = r.failed ? 1 : 0;
 done:
   dt_cog_cache_free(cog);
+  dt_hyperfine_free(hfs);
   dt_atomic_free(atomic);
   free(src);
   return rc;

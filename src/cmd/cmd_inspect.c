@@ -48,6 +48,9 @@ static void usage(FILE *f) {
           "  --milky-way HALF     Milky-Way system -HALF..HALF km/s in the observer's\n"
           "                       frame (default 150; 0 = none)\n"
           "  --atomic FILE        extra atomic data table\n"
+          "  --hyperfine          model Na I and K I lines as their hyperfine components\n"
+          "                       (a list line may say hfs=1)\n"
+          "  --hyperfine-table FILE  extra hyperfine table (adds or replaces lines)\n"
           CLI_FRAME_HELP
           "  --hi CUBE            show a 21-cm cube's spectrum at each sightline (a panel\n"
           "                       on the velocity axis) and N(HI) in the table\n"
@@ -66,7 +69,7 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
   O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
-  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD
+  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD, O_HFS, O_HFSTAB
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -84,6 +87,8 @@ static const struct option LONGOPTS[] = {
     {"system", required_argument, NULL, O_SYSTEM},
     {"milky-way", required_argument, NULL, O_MW},
     {"atomic", required_argument, NULL, O_ATOMIC},
+    {"hyperfine", no_argument, NULL, O_HFS},
+    {"hyperfine-table", required_argument, NULL, O_HFSTAB},
     {"air", no_argument, NULL, O_AIR},
     {"frame", required_argument, NULL, O_FRAME},
     {"in-frame", required_argument, NULL, O_INFRAME},
@@ -102,6 +107,7 @@ static const struct option LONGOPTS[] = {
 /* What the command line asks for, besides the inspector's own options. */
 typedef struct {
   const char *session, *user, *atomic_file;
+  const char *hfs_file;  /* --hyperfine-table */
   const char *dis[2];
   int read_only, air;
   dt_read_opts read;     /* --frame, --in-frame, --site */
@@ -173,6 +179,8 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
   case O_MW: return cli_system_option(opt == O_TWIN ? "--target-window" : opt == O_SYSTEM ? "--system" : "--milky-way",
                                       v, &o->systems);
   case O_ATOMIC: a->atomic_file = v; return 0;
+  case O_HFS: o->hyperfine_all = 1; return 0;
+  case O_HFSTAB: a->hfs_file = v; o->hyperfine_all = 1; return 0;
   case O_AIR: a->air = 1; return 0;
   case O_FRAME: return cli_opt_frame("inspect", v, &a->read);
   case O_INFRAME: return cli_opt_in_frame("inspect", v, &a->read);
@@ -467,6 +475,7 @@ int cmd_inspect(int argc, char **argv) {
   int rc = 2;
   dt_atomic *atomic = NULL;
   dt_hicube *cube = NULL;
+  dt_hyperfine *hfs = NULL;
   dt_queue q;
   dt_queue_init(&q);
   if (!a.files || !a.lists || !a.from) {
@@ -500,6 +509,17 @@ int cmd_inspect(int argc, char **argv) {
     if (rc < 0) rc = 0;
     goto out;
   }
+  /* the hyperfine table, when asked for or a list line says hfs=1 */
+  int want_hfs = o.hyperfine_all;
+  for (size_t k = 0; k < q.n && !want_hfs; k++) want_hfs = q.e[k].hyperfine;
+  if (want_hfs) {
+    hfs = cli_load_hyperfine(a.hfs_file);
+    if (!hfs) {
+      rc = 1;
+      goto out;
+    }
+    o.hyperfine = hfs;
+  }
   if (a.hi) {
     dt_err e;
     if (dt_hicube_open(a.hi, &cube, &e) != DT_OK) {
@@ -512,6 +532,7 @@ int cmd_inspect(int argc, char **argv) {
   rc = run_session(&q, atomic, &a, &o);
 out:
   dt_hicube_close(cube);
+  dt_hyperfine_free(hfs);
   dt_queue_free(&q);
   dt_atomic_free(atomic);
   free(a.files);

@@ -35,6 +35,7 @@ typedef struct model_key {
   double vsys, resolution, fwhm, vlo, vhi, tau_cut;
   int oversample;
   size_t i0, n;
+  const dt_hyperfine *hfs;
 } model_key;
 
 typedef struct cont_key {
@@ -293,7 +294,7 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   memset(&mk, 0, sizeof mk);
   mk.doublet = d; mk.vsys = j->vsys; mk.resolution = j->resolution; mk.fwhm = j->fwhm_kms;
   mk.vlo = j->vlo; mk.vhi = j->vhi; mk.tau_cut = a->opts.tau_cut;
-  mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n;
+  mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n; mk.hfs = a->opts.hyperfine;
   if (a->have_model && memcmp(&mk, &a->mkey, sizeof mk) == 0) return DT_OK;
   dt_model_free(a->m);
   a->have_model = 0;
@@ -305,6 +306,7 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   cfg.fwhm_kms = j->fwhm_kms;
   cfg.oversample = a->opts.oversample;
   cfg.tau_cut = a->opts.tau_cut;
+  for (int l = 0; l < 2; l++) cfg.hfs[l] = dt_hyperfine_find(a->opts.hyperfine, d, l);
   dt_err me;
   dt_err_clear(&me);
   a->m = dt_model_alloc(a->s->wave + i0, n, &cfg, DT_MAX_COMP, &me);
@@ -568,6 +570,7 @@ static int single_line_models(dt_analysis *a, double lo, double hi) {
       cfg.fwhm_kms = a->mkey.fwhm;
       cfg.oversample = a->opts.oversample;
       cfg.tau_cut = a->opts.tau_cut;
+      for (int h = 0; h < 2; h++) cfg.hfs[h] = dt_hyperfine_find(a->mkey.hfs, &a->sd[l], h);
       /* sized for the components at hand: a model's buffers grow with
        * its capacity, and most spectra have one or two */
       a->sm[l] = dt_model_alloc(a->s->wave + a->i0, n, &cfg, a->ncomp, NULL);

@@ -172,8 +172,32 @@ static int check_config(const double *wave, size_t n, const dt_model_config *cfg
       return dt_err_set(e, DT_EINVAL, NULL, "model: doublet %s has unusable atomic data",
                  cfg->doublet->name);
     }
+    const dt_hfs_line *h = cfg->hfs[j];
+    if (!h) continue;
+    int bad = h->n < 1 || h->n > DT_HFS_MAX;
+    for (int c = 0; !bad && c < h->n; c++)
+      bad = !(fabs(h->dv[c]) <= DT_HFS_DV_MAX) || !(h->share[c] > 0 && h->share[c] <= 1);
+    if (bad)
+      return dt_err_set(e, DT_EINVAL, NULL, "model: unusable hyperfine components of %s",
+                        l->label);
   }
   return DT_OK;
+}
+
+/* dt_model_alloc: the lines each component gives (hyperfine components, or
+ * the line itself at dv = 0 with share 1). */
+static void line_split(dt_model *m, const dt_model_config *cfg) {
+  m->nlc = 0;
+  for (int l = 0; l < 2; l++) {
+    if (cfg->hfs[l]) {
+      m->hfs[l] = *cfg->hfs[l];
+    } else {
+      memset(&m->hfs[l], 0, sizeof m->hfs[l]);
+      m->hfs[l].n = 1;
+      m->hfs[l].share[0] = 1.0;
+    }
+    m->nlc += m->hfs[l].n;
+  }
 }
 
 /* dt_model_alloc, stage 2: the pixel edges lo[], hi[] in ln(lambda)
@@ -245,8 +269,8 @@ static int alloc_buffers(dt_model *m) {
    * pages never used are never touched). */
   size_t kc = max_comp ? max_comp : 1;
   double ppl = fmin(dt_model_sub_points_per_line(DT_C_KMS * m->dy), SUB_LINE_CAP);
-  m->pmax = 2 * kc * (size_t)ppl;
-  m->sfirst = malloc((m->pmax + 2 * DT_MAX_COMP + 1) * sizeof *m->sfirst);
+  m->pmax = (size_t)m->nlc * kc * (size_t)ppl;
+  m->sfirst = malloc((m->pmax + MAX_LINES + 1) * sizeof *m->sfirst);
   m->sinv = malloc(m->pmax * sizeof *m->sinv);
   m->stau = malloc(m->pmax * sizeof *m->stau);
   m->sex = malloc(m->pmax * sizeof *m->sex);
@@ -287,6 +311,7 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   m->exact = cfg->exact_wings != 0;
   m->n = n;
   m->max_comp = max_comp;
+  line_split(m, cfg);
   double fwhm = cfg->resolution > 0 ? DT_C_KMS / cfg->resolution
                                     : (cfg->fwhm_kms > 0 ? cfg->fwhm_kms : 0.0);
   m->sigma_kms = fwhm / FWHM_PER_SIGMA;
@@ -368,31 +393,39 @@ static int setup_lines(dt_model *m, const dt_component *comp, size_t ncomp) {
   for (int u = 0; u < m->nprev; u++)
     memset(m->tau + m->prev[u].lo, 0, (size_t)(m->prev[u].hi - m->prev[u].lo + 1) * sizeof(double));
   int nl = 0;
+  const int nlc = m->nlc;
   for (size_t k = 0; k < ncomp; k++) {
     const dt_component *c = &comp[k];
     double N = pow(10.0, c->logN);
+    line_setup *s = &m->ls[(size_t)nlc * k];
     for (int l = 0; l < 2; l++) {
-      line_setup *s = &m->ls[2 * k + l];
-      const dt_line *li = &d->line[l];
-      dt_model_line_scales(li, N, c->b, &s->t0, &s->a);
-      s->lc = li->lambda0 * m->s * (1.0 + c->v / DT_C_KMS);
-      s->cb = DT_C_KMS / c->b;
-      s->dxdv_fac = 1.0 / (c->b * (1.0 + c->v / DT_C_KMS));
-      dt_model_sub_setup(m, s, c->b);
-      s->r = dt_model_line_range(m, s->t0, s->a, c->b, s->lc, s->narrow);
-      if (s->sr.lo < s->r.lo) s->sr.lo = s->r.lo;
-      if (s->sr.hi > s->r.hi) s->sr.hi = s->r.hi;
-      if (s->r.lo <= s->r.hi) m->uni[nl++] = s->r;
+      const dt_hfs_line *h = &m->hfs[l];
+      for (int hc = 0; hc < h->n; hc++, s++) {
+        /* a hyperfine component: f times its share at lambda0 (1 + dv/c)
+         * (both factors exactly 1 for a single line) */
+        dt_line li = d->line[l];
+        li.f *= h->share[hc];
+        dt_model_line_scales(&li, N, c->b, &s->t0, &s->a);
+        s->lc = li.lambda0 * m->s * (1.0 + c->v / DT_C_KMS) * (1.0 + h->dv[hc] / DT_C_KMS);
+        s->cb = DT_C_KMS / c->b;
+        s->dxdv_fac = 1.0 / (c->b * (1.0 + c->v / DT_C_KMS));
+        dt_model_sub_setup(m, s, c->b);
+        s->r = dt_model_line_range(m, s->t0, s->a, c->b, s->lc, s->narrow);
+        if (s->sr.lo < s->r.lo) s->sr.lo = s->r.lo;
+        if (s->sr.hi > s->r.hi) s->sr.hi = s->r.hi;
+        if (s->r.lo <= s->r.hi) m->uni[nl++] = s->r;
+      }
     }
     int nc = 0;
-    for (int l = 0; l < 2; l++)
-      if (m->ls[2 * k + l].r.lo <= m->ls[2 * k + l].r.hi) m->cspan[k][nc++] = m->ls[2 * k + l].r;
+    s = &m->ls[(size_t)nlc * k];
+    for (int l = 0; l < nlc; l++)
+      if (s[l].r.lo <= s[l].r.hi) m->cspan[k][nc++] = s[l].r;
     m->ncspan[k] = dt_model_merge_spans(m->cspan[k], nc);
   }
   int nu = dt_model_merge_spans(m->uni, nl);
   memcpy(m->prev, m->uni, (size_t)nu * sizeof(span));
   m->nprev = nu;
-  dt_model_sub_build(m, (int)(2 * ncomp));
+  dt_model_sub_build(m, (int)((size_t)nlc * ncomp));
   const size_t np = m->np;
   if (np) {
     memset(m->stau, 0, np * sizeof *m->stau);
@@ -411,8 +444,8 @@ static void optical_depths(dt_model *m, const dt_component *comp, size_t ncomp, 
     for (int u = 0; u < m->ncspan[k]; u++)
       memset(qk + 3 * m->cspan[k][u].lo, 0,
              (size_t)(m->cspan[k][u].hi - m->cspan[k][u].lo + 1) * 3 * sizeof(double));
-    dt_model_eval_line(m, &m->ls[2 * k], comp[k].b, qk, sqk);
-    dt_model_eval_line(m, &m->ls[2 * k + 1], comp[k].b, qk, sqk);
+    for (int l = 0; l < m->nlc; l++)
+      dt_model_eval_line(m, &m->ls[(size_t)m->nlc * k + (size_t)l], comp[k].b, qk, sqk);
   }
   for (int u = 0; u < nu; u++)
     for (long j = m->uni[u].lo; j <= m->uni[u].hi; j++) {

@@ -62,6 +62,11 @@
 #define MOM_SMIN 1.0
 #define MOM_CHUNK 64
 
+/* Lines one component can have: both lines of the doublet, each split into
+ * up to DT_HFS_MAX hyperfine components. */
+#define LINES_PER_COMP (2 * DT_HFS_MAX)
+#define MAX_LINES (LINES_PER_COMP * DT_MAX_COMP)
+
 typedef struct span {
   long lo, hi; /* inclusive cell indices; lo > hi = empty */
 } span;
@@ -87,6 +92,11 @@ typedef struct line_setup {
 
 struct dt_model {
   const dt_doublet *dbl;
+  /* The lines one component gives: line[l] of the doublet split into its
+   * hyperfine components (one at dv = 0, share 1 when single); nlc in all,
+   * the lines of component k are ls[k nlc .. k nlc + nlc - 1]. */
+  dt_hfs_line hfs[2];
+  int nlc;
   double s;         /* 1 + vsys/c */
   double tau_cut;
   int ovs;
@@ -106,7 +116,7 @@ struct dt_model {
   int exact;        /* no wing interpolation */
   double wing[WING_KMAX][12]; /* per interval: cubic coefficients of H, Re w', Im w' */
   double core[CORE_KMAX][18]; /* per interval: quintic coefficients of H, Re w', Im w' */
-  span prev[2 * DT_MAX_COMP]; /* cells where tau was set by the last evaluation */
+  span prev[MAX_LINES]; /* cells where tau was set by the last evaluation */
   int nprev;
   /* The last evaluation's components and flux: a Jacobian asked for at the
    * parameters of the previous call (as a least-squares solver does after
@@ -115,17 +125,17 @@ struct dt_model {
   size_t nlast;
   int have_last;
   double *last_flux;
-  line_setup ls[2 * DT_MAX_COMP];
-  span uni[2 * DT_MAX_COMP];    /* union of all line ranges, disjoint, sorted */
-  span cspan[DT_MAX_COMP][2];   /* each component's own ranges */
+  line_setup ls[MAX_LINES];
+  span uni[MAX_LINES];          /* union of all line ranges, disjoint, sorted */
+  span cspan[DT_MAX_COMP][LINES_PER_COMP]; /* each component's own ranges */
   int ncspan[DT_MAX_COMP];
   /* Sub-sampled cells of the last evaluation: the disjoint sorted spans
    * sub[0..nsub-1]; cell j of span u has the sub-points
    * sfirst[sbase[u] + j - lo] .. sfirst[sbase[u] + j - lo + 1] - 1. */
-  span sub[2 * DT_MAX_COMP];
+  span sub[MAX_LINES];
   int nsub;
-  size_t sbase[2 * DT_MAX_COMP];
-  size_t *sfirst;   /* pmax + 2 DT_MAX_COMP entries */
+  size_t sbase[MAX_LINES];
+  size_t *sfirst;   /* pmax + MAX_LINES + 1 entries */
   size_t pmax, np;  /* sub-points reserved, used */
   double *sinv;     /* 1/lambda at each sub-point [1/A] */
   double *stau;     /* total optical depth at each sub-point */

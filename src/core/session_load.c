@@ -99,11 +99,12 @@ static int read_into(const dt_atomic *atomic, const dt_session_target *t, dt_spe
   int rc = dt_spectrum_read(t->path, &ro, spec, &e);
   if (rc == DT_OK) {
     *an = dt_analysis_alloc(*spec, atomic);
-    if (*an && (t->cog || t->defer_intervals)) {
+    if (*an && (t->cog || t->defer_intervals || t->hyperfine)) {
       dt_analysis_opts ao;
       dt_analysis_opts_init(&ao);
       ao.cog = t->cog;
       ao.defer_intervals = t->defer_intervals;
+      ao.hyperfine = t->hyperfine;
       dt_analysis_set_opts(*an, &ao);
     }
     if (!*an) {

@@ -46,7 +46,7 @@ static int parse_num(const char *s, double *out) {
   return 0;
 }
 
-enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_WINDOW, K_AIR, K_TWIN, K_SYSTEM, NKEYS };
+enum { K_ROW, K_VSYS, K_R, K_FWHM, K_DOUBLET, K_NAME, K_WINDOW, K_AIR, K_TWIN, K_SYSTEM, K_HFS, NKEYS };
 
 /* The position and frame fields ra=, dec=, frame=: DT_OK or an error when
  * the key is one of them, -1 when it is not.  Their bits in *seen sit
@@ -84,12 +84,12 @@ static int parse_field(dt_target_spec *t, const char *key, const char *val, long
   int sky = parse_sky_field(t, key, val, lineno, seen, e);
   if (sky >= 0) return sky;
   static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "window", "air",
-                                             "target-window", "system"};
+                                             "target-window", "system", "hfs"};
   int k = -1;
   for (int i = 0; i < NKEYS; i++)
     if (!strcmp(key, keys[i])) k = i;
   if (k < 0 && !val) return bad(e, lineno, "field '%s' is neither key=value nor the flag air", key);
-  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window target-window system ra dec frame, flag air)", key);
+  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window target-window system hfs ra dec frame, flag air)", key);
   if (k != K_SYSTEM && (*seen & (1u << k))) return bad(e, lineno, "key '%s' given twice", key);
   *seen |= 1u << k;
   if (k == K_AIR) {
@@ -120,6 +120,11 @@ static int parse_field(dt_target_spec *t, const char *key, const char *val, long
   case K_FWHM:
     if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "fwhm must be a positive width in km/s, not '%s'", val);
     t->fwhm_kms = x;
+    break;
+  case K_HFS:
+    /* 1: the lines are modelled as their hyperfine components */
+    if (strcmp(val, "0") && strcmp(val, "1")) return bad(e, lineno, "hfs must be 0 or 1, not '%s'", val);
+    t->hyperfine = val[0] == '1';
     break;
   case K_SYSTEM: {
     /* NAME:VLO:VHI, repeatable: an absorber system of the user */

@@ -152,6 +152,7 @@ static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *
   if (s->q->e[idx].frame != DT_FRAME_UNSET) t->read.in_frame = (dt_frame)s->q->e[idx].frame;
   initial_state(s, idx, &t->initial);
   t->cog = s->cog;
+  if (s->o->hyperfine_all || s->q->e[idx].hyperfine) t->hyperfine = s->o->hyperfine;
   t->defer_intervals = 1; /* drawn a frame later (the event loop) */
   t->has_window = s->q->e[idx].has_window;
   t->systems = s->o->systems;

@@ -10,6 +10,7 @@
 #define DT_UI_INSPECTOR_H
 #include <stddef.h>
 #include "doubletty/atomic.h"
+#include "doubletty/hyperfine.h"
 #include "doubletty/journal.h"
 #include "queue.h"
 
@@ -21,6 +22,9 @@ typedef struct dt_inspect_opts {
   int has_vsys;
   double vsys;             /* [km/s] */
   dt_system_opts systems;  /* target range, Milky-Way width, more systems */
+  int hyperfine_all;       /* 1: every target's lines with hyperfine structure */
+  const dt_hyperfine *hyperfine; /* the table, for hyperfine_all and list lines
+                              saying hfs=1 (NULL: none read) */
   /* screen */
   int colour;              /* -1 auto, 0 never */
   int ascii;               /* 1: no Unicode even in a UTF-8 locale */

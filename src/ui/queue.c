@@ -112,6 +112,7 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   x->ra = t->ra;
   x->dec = t->dec;
   x->frame = (signed char)t->frame;
+  x->hyperfine = (unsigned char)(t->hyperfine != 0);
   x->vlo = t->vlo;
   x->vhi = t->vhi;
   x->resolution = t->resolution;

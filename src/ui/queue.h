@@ -30,6 +30,7 @@ typedef struct dt_qentry {
   unsigned char has_pos; /* ra=/dec= of the list: */
   double ra, dec;        /*   ICRS [deg] */
   signed char frame;     /* frame= of the list (dt_frame; UNSET = not given) */
+  unsigned char hyperfine; /* hfs=1 of the list: lines split into hyperfine components */
   size_t systems;        /* pool offset: the list line's target-window= and
                             system= as "target:VLO:VHI;NAME:VLO:VHI;..."
                             ("target" only when given; "" none) */
