@@ -50,6 +50,8 @@ static void usage(FILE *f) {
           "                    state has a fit and report whether the refit reproduces\n"
           "                    it (within 0.1 sigma) and whether the file is unchanged\n"
           "  --atomic FILE     with --verify: add (or replace) doublets from FILE\n"
+          "  --hyperfine       with --verify: refit with hyperfine structure (for a\n"
+          "                    session made with inspect --hyperfine)\n"
           "  -h, --help        this text\n\n"
           "actions: window-add window-remove comp-add comp-remove comp-set freeze tie-b\n"
           "         cont-order doublet resolution vsys vwindow fit verdict note restore autofit\n");
@@ -256,11 +258,13 @@ static const char *locate(const char *path, const char *session, char *buf, size
   return path;
 }
 
-static int verify(const char *session, const char *pattern, const char *atomic_file) {
+static int verify(const char *session, const char *pattern, const char *atomic_file, int hfs) {
   dt_journal *j = su_open(session);
   if (!j) return 1;
   dt_atomic *at = cli_load_atomic(atomic_file);
-  if (!at) {
+  dt_hyperfine *ht = hfs && at ? cli_load_hyperfine(NULL) : NULL;
+  if (!at || (hfs && !ht)) {
+    dt_atomic_free(at);
     dt_journal_close(j);
     return 1;
   }
@@ -315,6 +319,7 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     dt_analysis_opts o;
     dt_analysis_opts_init(&o);
     o.joint_cont = en->state.fit.ncont;
+    o.hyperfine = ht;
     dt_analysis_set_opts(an, &o);
     int agrees = 0;
     if (dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
@@ -333,6 +338,7 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
   printf("%ld fits: %ld reproduced within %.1f sigma, %ld differ, %ld could not be refitted or "
          "checked; %ld files changed\n",
          nfit, nok, DT_REFIT_TOL_SIGMA, nbad, nfail, nchanged);
+  dt_hyperfine_free(ht);
   dt_atomic_free(at);
   dt_journal_close(j);
   return (nbad || nfail || nchanged) ? 1 : 0;
@@ -344,13 +350,14 @@ static const struct option LONGOPTS[] = {{"help", no_argument, NULL, 'h'},
                                          {"action", required_argument, NULL, 'a'},
                                          {"atomic", required_argument, NULL, 'A'},
                                          {"verify", no_argument, NULL, 'v'},
+                                         {"hyperfine", no_argument, NULL, 'H'},
                                          {"system", required_argument, NULL, 's'},
                                          {NULL, 0, NULL, 0}};
 
 int cmd_log(int argc, char **argv) {
   const char *session = NULL, *pattern = NULL, *user = NULL, *actions = NULL, *atomic = NULL;
   const char *system = NULL;
-  int do_verify = 0, opt;
+  int do_verify = 0, hfs = 0, opt;
   cli_getopt_reset();
   while ((opt = getopt_long(argc, argv, ":h", LONGOPTS, NULL)) != -1) {
     switch (opt) {
@@ -360,6 +367,7 @@ int cmd_log(int argc, char **argv) {
     case 'a': actions = optarg; break;
     case 'A': atomic = optarg; break;
     case 'v': do_verify = 1; break;
+    case 'H': hfs = 1; break;
     case 's': system = optarg; break;
     default: return cli_opt_error("log", opt, argv);
     }
@@ -373,6 +381,10 @@ int cmd_log(int argc, char **argv) {
     usage(stderr);
     return 2;
   }
+  if (hfs && !do_verify) {
+    cli_errorf("log: --hyperfine applies to refits, with --verify");
+    return 2;
+  }
   long actset = -1;
   if (actions && (actset = parse_actions(actions)) < 0) return 2;
   if (do_verify) {
@@ -380,7 +392,7 @@ int cmd_log(int argc, char **argv) {
       cli_errorf("log: --verify checks final states; --user, --action and --system do not apply");
       return 2;
     }
-    return verify(session, pattern, atomic);
+    return verify(session, pattern, atomic, hfs);
   }
 
   dt_journal_reader *rd;

@@ -61,6 +61,13 @@
  * accepting a step) costs only the pixel sums.  All buffers are allocated in
  * dt_model_alloc; dt_model_eval never allocates.
  *
+ * Hyperfine structure (cfg.hfs): a split line of the doublet becomes its
+ * components, each an ordinary line (f times its share, lambda0 times
+ * 1 + dv/c) with the component's N, b and v; the evaluation, the narrow-line
+ * sub-sampling and the Jacobian treat them like the two lines of an unsplit
+ * doublet, summing into the component's derivatives.  A line without
+ * components is one line at dv = 0 with share 1, computed exactly as before.
+ *
  * This file holds the grid (dt_model_alloc, in stages: check the config,
  * lay out the cells, allocate, build the kernel and the pixel operator) and
  * the evaluation (dt_model_eval: set up the lines, their optical depths,

@@ -49,7 +49,24 @@ if need_py "split lines against scipy.special.wofz"; then
   l1=$(field b_kms "$TMP/list.csv" 1); l2=$(field b_kms "$TMP/list.csv" 2)
   check "list hfs=1: the same b as --hyperfine ($l1)" [ -n "$l1" -a "$l1" = "$(field b_kms "$TMP/hfs.csv" 1)" ]
   check "list hfs=0: the same b as single lines ($l2)" [ -n "$l2" -a "$l2" = "$(field b_kms "$TMP/single.csv" 1)" ]
+
+  # the inspector (headless) with hfs=1 fits what fit --hyperfine fits; the
+  # session does not record the option, so log --verify needs --hyperfine
+  mkdir -p "$TMP/ins"
+  cp "$TMP/split7.txt" "$TMP/ins/"
+  printf 'split7.txt R=100000 window=-100:100 hfs=1\n' >"$TMP/ins/t.list"
+  printf 'refit\nverdict-detected\nquit\n' >"$TMP/ins/keys"
+  $DT inspect --replay-keys "$TMP/ins/keys" --session "$TMP/ins/s.session" --list "$TMP/ins/t.list" --user t >/dev/null 2>&1
+  bi=$(grep -o 'c1=logN=[^	]*' "$TMP/ins/s.session" | tail -n 1 | sed 's/.*,b=\([0-9.]*\).*/\1/')
+  bh=$(field b_kms "$TMP/hfs.csv" 1)
+  check "inspect with hfs=1 records b = $bi, as fit --hyperfine ($bh)" \
+    awk -v x="$bi" -v y="$bh" 'BEGIN { d = x - y; exit !(x != "" && d * d < 1e-6) }'
+  $DT log --verify "$TMP/ins/s.session" >"$TMP/v1.out" 2>&1
+  check "log --verify without --hyperfine: the refit differs" grep -q '^MISMATCH' "$TMP/v1.out"
+  $DT log --verify --hyperfine "$TMP/ins/s.session" >"$TMP/v2.out" 2>&1
+  check "log --verify --hyperfine reproduces the fit" grep -q '^reproduced    split7.txt#NaI' "$TMP/v2.out"
 fi
+expect_fail "log --hyperfine without --verify" "applies to refits" $DT log --hyperfine "$TMP/none.session"
 
 # ---- bad input ------------------------------------------------------------
 printf 'x.txt hfs=2\n' >"$TMP/bad.list"
