@@ -39,6 +39,8 @@ static void usage(FILE *f) {
           "  --list TARGETS      the spectra of a target list\n"
           "  --doublet NAME      doublet of spectra that do not name one (default NaI)\n"
           "  --force             replace existing figures\n"
+          "  --hyperfine         model Na I and K I lines as their hyperfine components\n"
+          "                      (as fit and inspect --hyperfine; a list line may say hfs=1)\n"
           "  -h, --help          this text\n"
           "Each figure is DIR/NAME_DOUBLET.FMT (NAME: the list's name or the file's stem;\n"
           "_rowN for a table row); a page of 432 x 420 pt (PNG 900 x 875 pixels).\n");
@@ -54,6 +56,8 @@ typedef struct fig_job {
   char **used;   /* file names written so far (to keep them apart) */
   size_t nused;
   long written, failed;
+  int hfs_all;               /* --hyperfine */
+  const dt_hyperfine *hfs;   /* the table (NULL: not read) */
 } fig_job;
 
 static void safe_name(const char *in, char *out, size_t n) {
@@ -233,6 +237,7 @@ static void draw_session(fig_job *job, dt_session *ss, dt_journal *jn, cli_progr
     dt_session_target_init(&t, path, en->target.path, en->target.row);
     t.name = en->target.name ? en->target.name : "";
     t.initial = en->state;
+    if (job->hfs_all) t.hyperfine = job->hfs;
     dt_session_load(ss, &t);
     const char *name = t.name[0] ? t.name : dt_export_stem(path, stem, sizeof stem);
     draw_target(job, ss, path, name, en->target.row);
@@ -284,6 +289,7 @@ static int draw_queue(fig_job *job, dt_session *ss, const dt_atomic *atomic, con
     }
     t.initial.resolution = qe->resolution;
     t.initial.fwhm_kms = qe->resolution > 0 ? 0 : qe->fwhm_kms;
+    if (job->hfs_all || qe->hyperfine) t.hyperfine = job->hfs;
     dt_session_load(ss, &t);
     const char *name = t.name && t.name[0] ? t.name : dt_export_stem(t.path, stem, sizeof stem);
     draw_target(job, ss, t.path, name, qe->row);
@@ -304,6 +310,7 @@ int cmd_figure(int argc, char **argv) {
                                            {"list", required_argument, NULL, 2},
                                            {"doublet", required_argument, NULL, 3},
                                            {"force", no_argument, NULL, 4},
+                                           {"hyperfine", no_argument, NULL, 5},
                                            {NULL, 0, NULL, 0}};
   int opt;
   cli_getopt_reset();
@@ -320,6 +327,7 @@ int cmd_figure(int argc, char **argv) {
     case 2: list = optarg; break;
     case 3: doublet = optarg; break;
     case 4: job.force = 1; break;
+    case 5: job.hfs_all = 1; break;
     default: return cli_opt_error("figure", opt, argv);
     }
   }
@@ -345,6 +353,16 @@ int cmd_figure(int argc, char **argv) {
     dt_atomic_free(atomic);
     return 2;
   }
+  /* the hyperfine table: for --hyperfine, or list lines saying hfs=1 */
+  dt_hyperfine *hfs = NULL;
+  if (job.hfs_all || list) {
+    hfs = cli_load_hyperfine(NULL);
+    if (!hfs) {
+      dt_atomic_free(atomic);
+      return 1;
+    }
+    job.hfs = hfs;
+  }
   int rc = 0;
   /* a session file: its first line says so */
   dt_journal *jn = NULL;
@@ -353,6 +371,7 @@ int cmd_figure(int argc, char **argv) {
     int jr = dt_journal_open(in[0], DT_JOURNAL_READ_ONLY, NULL, &jn, &e);
     if (jr != DT_OK && jr != DT_EFORMAT) {
       cli_report(in[0], &e);
+      dt_hyperfine_free(hfs);
       dt_atomic_free(atomic);
       return 1;
     }
@@ -360,6 +379,7 @@ int cmd_figure(int argc, char **argv) {
   }
   if ((rc = make_dir(dir))) {
     if (jn) dt_journal_close(jn);
+    dt_hyperfine_free(hfs);
     dt_atomic_free(atomic);
     return rc;
   }
@@ -367,6 +387,7 @@ int cmd_figure(int argc, char **argv) {
   if (!ss) {
     cli_errorf("out of memory");
     if (jn) dt_journal_close(jn);
+    dt_hyperfine_free(hfs);
     dt_atomic_free(atomic);
     return 1;
   }
@@ -384,6 +405,7 @@ int cmd_figure(int argc, char **argv) {
   free(job.used);
   dt_session_free(ss);
   if (jn) dt_journal_close(jn);
+  dt_hyperfine_free(hfs);
   dt_atomic_free(atomic);
   return rc;
 }
