@@ -65,7 +65,7 @@ if need_py "split lines against scipy.special.wofz"; then
   check "log --verify without --hyperfine: the refit differs" grep -q '^MISMATCH' "$TMP/v1.out"
   $DT log --verify --hyperfine "$TMP/ins/s.session" >"$TMP/v2.out" 2>&1
   check "log --verify --hyperfine reproduces the fit" grep -q '^reproduced    split7.txt#NaI' "$TMP/v2.out"
-  $DT figure --hyperfine "$TMP/ins/s.session" -o "$TMP/fig" --format svg >/dev/null 2>&1
+  (cd "$TMP/ins" && $DT figure --hyperfine s.session -o "$TMP/fig" --format svg >/dev/null 2>&1)
   check "figure --hyperfine draws the session's spectrum" test -s "$TMP/fig/split7_NaI.svg"
 fi
 expect_fail "log --hyperfine without --verify" "applies to refits" $DT log --hyperfine "$TMP/none.session"
