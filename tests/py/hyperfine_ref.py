@@ -15,6 +15,10 @@ C code.
                                    (DRIVER --cog), against direct integration
                                    of 1 - exp(-tau)
 
+  hyperfine_ref.py --into DIR DRIVER
+                                   pixels and cog into DIR/MODE.out and
+                                   DIR/MODE.rc, and the two spectra of the
+                                   command-line tests (see into())
   hyperfine_ref.py spectrum OUT LOGN B R SNR SEED
                                    a text spectrum of split Na I D for the
                                    command-line tests
@@ -148,7 +152,7 @@ def check_cog(driver):
     bad = 0
     lam0 = LINES["NaI"][0][0]
     # |v| <= 100 km/s around D2, the window of the C equivalent width
-    lam = lam0 * (1 + np.linspace(-100, 100, 400001) / C_KMS)
+    lam = lam0 * (1 + np.linspace(-100, 100, 40001) / C_KMS)
     for ln in run_driver(driver, "cog"):
         _, logN, ws, w1 = ln.split()
         logN, ws, w1 = float(logN), float(ws), float(w1)
@@ -181,7 +185,15 @@ def write_spectrum(out, logN, b, R, snr, seed):
     sig = C_KMS / R / (2 * np.sqrt(2 * np.log(2)))
     dv = 0.01
     y = np.arange(np.log(wave[0]) - 8 * sig / C_KMS, np.log(wave[-1]) + 8 * sig / C_KMS, dv / C_KMS)
-    T = np.exp(-tau_total(np.exp(y), "NaI", [(logN, b, 0.0)]))
+    # tau only within 80 km/s of the lines (beyond, log N <= 12 at b < 2
+    # km/s leaves tau < 1e-7 even in the damping wings)
+    lam = np.exp(y)
+    near = np.zeros(lam.size, dtype=bool)
+    for (lam0, _, _) in LINES["NaI"]:
+        near |= np.abs(lam / lam0 - 1) * C_KMS < 80
+    tau = np.zeros(lam.size)
+    tau[near] = tau_total(lam[near], "NaI", [(logN, b, 0.0)])
+    T = np.exp(-tau)
     hk = int(np.ceil(6 * sig / dv))
     g = np.exp(-0.5 * (np.arange(-hk, hk + 1) * dv / sig) ** 2)
     T = np.convolve(T, g / g.sum(), mode="same")
@@ -197,7 +209,34 @@ def write_spectrum(out, logN, b, R, snr, seed):
             f.write("%.4f %.6e %.6e\n" % (w, fl, 1 / snr))
 
 
+def into(outdir, driver):
+    """Everything the test script needs, in one interpreter (SciPy imported
+    once): DIR/pixels.out and .rc, DIR/cog.out and .rc (0: agrees), and the
+    spectra DIR/split7.txt and DIR/split8.txt (log N 11.5, b 0.6 km/s,
+    R 100000, S/N 300, noise seeds 7 and 8)."""
+    import contextlib
+    import io
+    for mode, fn in (("pixels", check_pixels), ("cog", check_cog)):
+        buf = io.StringIO()
+        try:
+            with contextlib.redirect_stdout(buf):
+                bad = fn(driver)
+                print("%s: %s" % (mode, "agrees" if bad == 0 else "%d mismatches" % bad))
+        except Exception as exc:  # reported, and counted as a mismatch
+            buf.write("error: %r\n" % (exc,))
+            bad = 1
+        with open("%s/%s.out" % (outdir, mode), "w") as f:
+            f.write(buf.getvalue())
+        with open("%s/%s.rc" % (outdir, mode), "w") as f:
+            f.write("%d\n" % (1 if bad else 0))
+    for seed in (7, 8):
+        write_spectrum("%s/split%d.txt" % (outdir, seed), 11.5, 0.6, 100000.0, 300.0, seed)
+
+
 def main():
+    if sys.argv[1] == "--into":
+        into(sys.argv[2], sys.argv[3])
+        return
     if sys.argv[1] == "spectrum":
         out, logN, b, R, snr, seed = sys.argv[2:8]
         write_spectrum(out, float(logN), float(b), float(R), float(snr), int(seed))
