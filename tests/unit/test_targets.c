@@ -123,6 +123,16 @@ int main(void) {
   CHECK(rc == DT_OK && got && t.air == 0, "no flag: air = 0");
   bad_line("a.fits air air", "given twice");
   bad_line("a.fits air=yes", "air is a flag");
+  /* hfs=0|1: lines with hyperfine structure */
+  rc = parse("a.txt hfs=1 R=90000", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.hyperfine == 1 && t.resolution == 90000, "hfs=1");
+  rc = parse("a.txt hfs=0", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.hyperfine == 0, "hfs=0");
+  rc = parse("a.txt", NULL, &t, &got, &e);
+  CHECK(rc == DT_OK && got && t.hyperfine == 0, "no hfs: single lines");
+  bad_line("a.fits hfs=yes", "hfs must be 0 or 1");
+  bad_line("a.fits hfs=1 hfs=1", "given twice");
+  bad_line("a.fits hfs", "not key=value");
   /* dt_targets_quote writes what the parser reads back */
   {
     const char *texts[] = {"plain.fits", "a b", "#x", "q\"uote", "back\\slash", "k=v", "", "\"\\#\" \t"};
