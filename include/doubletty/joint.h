@@ -23,9 +23,12 @@
  *   ln b      logistic in [ln DT_FIT_B_MIN, ln DT_FIT_B_MAX]   (same, free)
  *   v         logistic in the problem's [vlo, vhi]
  *   ln T      logistic in [ln DT_JOINT_T_MIN, ln DT_JOINT_T_MAX] (thermal)
- *   b_turb    logistic in [0, DT_FIT_B_MAX]                     (thermal)
+ *   q         logistic in [-DT_FIT_B_MAX^2, DT_FIT_B_MAX^2]      (thermal)
+ * where q = b_turb^2: b_s^2 = q + 2 k_B T / (m_s m_u) is linear in q, so
+ * b_turb = 0 is an inner point, neither a bound nor a saddle; q may come
+ * out below 0 within its error (b_s^2 is held at 1e-4 (km/s)^2 at least).
  * The Jacobian is analytic: each model's d flux / d(log N, b, v) chained
- * through the tie (d b_s / d b_turb = b_turb / b_s, d b_s / d T =
+ * through the tie (d b_s / d q = 1 / (2 b_s), d b_s / d T =
  * k_B / (m_s m_u b_s)) and the transforms.  Errors are 1-sigma from the
  * covariance (J^T J)^-1 at the solution, mapped back through the
  * transforms, not scaled by chi2_red (as fit.h); the b of each species
@@ -109,7 +112,13 @@ typedef struct dt_joint_result {
   size_t nspec, ncomp;
   double v[DT_MAX_COMP], v_err[DT_MAX_COMP];       /* shared velocities */
   double T[DT_MAX_COMP], T_err[DT_MAX_COMP];       /* [K]; NaN unless thermal */
-  double b_turb[DT_MAX_COMP], b_turb_err[DT_MAX_COMP]; /* [km/s]; NaN unless thermal */
+  double b_turb[DT_MAX_COMP], b_turb_err[DT_MAX_COMP]; /* [km/s]; NaN unless thermal:
+                                      sqrt(max(q, 0)) of the fitted q =
+                                      b_turb^2, and the upward 1-sigma step
+                                      sqrt(max(q, 0) + sigma_q) - b_turb */
+  double b_turb2[DT_MAX_COMP], b_turb2_err[DT_MAX_COMP]; /* q = b_turb^2 as fitted
+                                      [(km/s)^2], may be < 0 within its
+                                      error; NaN unless thermal */
   /* each species' components as fitted (v the shared one; b by the rule)
    * and their 1-sigma errors; [s][k] */
   dt_component comp[DT_JOINT_MAX_SPECIES][DT_MAX_COMP];
@@ -238,8 +247,8 @@ int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
  * is searched by the single-doublet first pass (autofit.h, with opts);
  * its components' velocities then seed a joint fit over all species as
  * dt_joint_analysis_run does.  bic_search = 1: components are then added
- * (at the largest residual of any species) or removed while the joint BIC
- * drops by more than opts->bic_min (0: 10).  On success j->ncomp/comp take
+ * (at the largest residual of any species) while the joint BIC
+ * drops by more than opts->bic_min (0: 10), up to opts->max_comp.  On success j->ncomp/comp take
  * the joint components of j's own doublet (frozen bits cleared, has_fit 0:
  * j->fit is a single-doublet fit and is not set here).  *strongest: the
  * index in out->sp of the species searched.  Errors as
