@@ -25,4 +25,9 @@ int dt_element_mass(const char *sym, double *mass_u);
  * when the element is not in the table.  e may be NULL. */
 int dt_element_mass_of(const char *name, double *mass_u, dt_err *e);
 
+/* The table itself: its size, and the symbol (and *mass_u) of entry i
+ * (NULL for i out of range). */
+size_t dt_element_count(void);
+const char *dt_element_get(size_t i, double *mass_u);
+
 #endif

@@ -60,3 +60,11 @@ int dt_element_mass_of(const char *name, double *mass_u, dt_err *e) {
                       sym);
   return DT_OK;
 }
+
+size_t dt_element_count(void) { return sizeof table / sizeof table[0]; }
+
+const char *dt_element_get(size_t i, double *mass_u) {
+  if (i >= dt_element_count()) return NULL;
+  if (mass_u) *mass_u = table[i].mass;
+  return table[i].sym;
+}

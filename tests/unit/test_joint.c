@@ -4,6 +4,8 @@
  *   test_joint --peer F   fit the problem in file F (written by
  *                         tests/py/joint_scipy.py) and print the results
  *                         for the comparison with its SciPy fit
+ *   test_joint --masses   print the table of atomic weights (compared with
+ *                         the periodictable package by joint_scipy.py)
  *
  * Checks:
  *  - the thermal Doppler parameter against the handbook form
@@ -574,6 +576,7 @@ static int peer(const char *path) {
     if (p.btie == DT_JOINT_B_THERMAL) {
       printf("T%zu %.10g %.10g\n", k, r.T[k], r.T_err[k]);
       printf("bturb%zu %.10g %.10g\n", k, r.b_turb[k], r.b_turb_err[k]);
+      printf("q%zu %.10g %.10g\n", k, r.b_turb2[k], r.b_turb2_err[k]);
     }
     for (size_t s = 0; s < ns; s++) {
       printf("logN_%s_%zu %.10g %.10g\n", names[s], k, r.comp[s][k].logN, r.err[s][k].logN);
@@ -593,6 +596,14 @@ static int peer(const char *path) {
 
 int main(int argc, char **argv) {
   if (argc == 3 && strcmp(argv[1], "--peer") == 0) return peer(argv[2]);
+  if (argc == 2 && strcmp(argv[1], "--masses") == 0) {
+    double m;
+    for (size_t i = 0; i < dt_element_count(); i++) {
+      const char *sym = dt_element_get(i, &m);
+      printf("%s %.6f\n", sym, m);
+    }
+    return 0;
+  }
   dt_atomic *t;
   dt_atomic_load_builtin(&t, NULL);
   check_basics();
