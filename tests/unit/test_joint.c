@@ -426,7 +426,11 @@ static void check_analysis(void) {
   const char *linked[] = {"CaII", "KI", "FooI", "nai"};
   static dt_joint_out out;
   dt_err e;
+  double t0 = now();
   int st = dt_joint_analysis_run(ja, &j, linked, 4, DT_JOINT_B_FREE, &out, &e);
+  double t1 = now();
+  dt_joint_analysis_run(ja, &j, linked, 4, DT_JOINT_B_FREE, &out, NULL);
+  printf("#    analysis: first run %.1f ms, again %.1f ms\n", 1e3 * (t1 - t0), 1e3 * (now() - t1));
   CHECK(st == DT_OK, "analysis: joint run (%s)", st ? e.what : "ok");
   CHECK(out.nspec == 4 && out.nfit == 2, "analysis: 4 species listed (duplicate skipped), 2 fitted");
   CHECK(out.sp[0].status == DT_OK && out.sp[1].status == DT_OK, "analysis: Na I and Ca II fitted");
