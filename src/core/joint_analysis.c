@@ -299,7 +299,10 @@ static void species_result(dt_joint_analysis *ja, size_t s, size_t f, dt_joint_o
     so->err[k] = r->err[f][k];
     double el = so->err[k].logN;
     so->N_sig[k] = el > 0 && isfinite(el) ? 1.0 / (log(10.0) * el) : 0.0;
-    so->detected[k] = r->status == DT_OK && so->N_sig[k] >= ja->opts.detect_sigma;
+    /* a column at the lower end of its range has a flattened transform and
+     * a meaningless small error: never a detection */
+    int low = so->comp[k].logN < DT_FIT_LOGN_MIN + 0.01 * (DT_FIT_LOGN_MAX - DT_FIT_LOGN_MIN);
+    so->detected[k] = r->status == DT_OK && !low && so->N_sig[k] >= ja->opts.detect_sigma;
     so->any_detected |= so->detected[k];
   }
 }

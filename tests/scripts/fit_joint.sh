@@ -93,6 +93,16 @@ check "list: line 0 fitted jointly over Na I and Ca II" \
 check "list: line 1 failed, naming the reason" \
   sh -c "awk -F, '/^#/ { next } \$1 == 1' '$TMP/list.csv' | grep -q 'failed,.*not covered\|failed,.*outside the data'"
 
+# ---- a species without absorption: its columns, not detected, its limit --
+awk -v step=0.05 -v snr=50 -v seed=5 -v comps="-30:6:0:0.9;25:8:0:0.6" -f "$AWKGEN" >"$TMP/ca.txt"
+$DT fit --doublet NaI,CaII --joint --fwhm 1 "$TMP/ca.txt" >"$TMP/ca.csv" 2>/dev/null
+awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[$i] = i; next }
+  { print $c["doublet"], $c["suggested"], ($c["logN_limit"] != "" ? "limit" : "none"), ($c["logN_err"] != "" ? "err" : "noerr") }' \
+  "$TMP/ca.csv" | sort | uniq -c | awk '{ $1 = $1; print }' >"$TMP/ca.rows"
+check "Ca II only: Ca II components detected without limits" grep -qx '2 CaII detected none err' "$TMP/ca.rows"
+check "Ca II only: Na I rows not detected, with N, its error and a limit" \
+  grep -qx '2 NaI not-detected limit err' "$TMP/ca.rows"
+
 # ---- refusals ------------------------------------------------------------
 expect_fail "unknown doublet in the list" "unknown doublet 'FooI'" \
   $DT fit --doublet NaI,FooI --joint "$TMP/two.txt"
