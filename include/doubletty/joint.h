@@ -242,6 +242,17 @@ int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
                           const char *const *linked, size_t nlinked, dt_joint_btie btie,
                           dt_joint_out *out, dt_err *e);
 
+/* The same, starting the linked species from a previous run's values
+ * (start, typically the last out; may be out itself): where start has a
+ * fit of as many components as j and a species of the same name, its
+ * log N (and b under `free`) start from start's instead of a fit of that
+ * species alone, and under `thermal` T and b_turb from start's.  A refit
+ * after a nudge then costs one joint fit.  start NULL: as
+ * dt_joint_analysis_run. */
+int dt_joint_analysis_run_from(dt_joint_analysis *ja, const dt_judgement *j,
+                               const char *const *linked, size_t nlinked, dt_joint_btie btie,
+                               const dt_joint_out *start, dt_joint_out *out, dt_err *e);
+
 /* The joint first pass.  The species of largest significance (the
  * stronger line's equivalent width over j's window divided by its error)
  * is searched by the single-doublet first pass (autofit.h, with opts);
