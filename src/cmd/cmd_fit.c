@@ -571,6 +571,24 @@ static size_t doublet_names(const config *c, const dt_target_spec *t,
   return n;
 }
 
+/* Is any parameter of component k of a joint fit within 1% of the end of
+ * its range (the logistic transforms of joint.h: log N, ln b, ln T)? */
+static int joint_at_bound(const dt_joint_result *fr, size_t k) {
+  const double nlo = DT_FIT_LOGN_MIN, nhi = DT_FIT_LOGN_MAX, m = 0.01;
+  const double blo = log(DT_FIT_B_MIN), bhi = log(DT_FIT_B_MAX);
+  for (size_t s = 0; s < fr->nspec; s++) {
+    double n = fr->comp[s][k].logN, b = log(fr->comp[s][k].b);
+    if (n < nlo + m * (nhi - nlo) || n > nhi - m * (nhi - nlo)) return 1;
+    if (fr->btie != DT_JOINT_B_THERMAL && (b < blo + m * (bhi - blo) || b > bhi - m * (bhi - blo)))
+      return 1;
+  }
+  if (fr->btie == DT_JOINT_B_THERMAL) {
+    double t = log(fr->T[k]), tlo = log(DT_JOINT_T_MIN), thi = log(DT_JOINT_T_MAX);
+    if (t < tlo + m * (thi - tlo) || t > thi - m * (thi - tlo)) return 1;
+  }
+  return 0;
+}
+
 /* The rows of one species of a joint fit: one per component (its values,
  * the joint fit's chi2, dof and BIC, the doublet's detection and, when not
  * detected, its limit; the component's N/sigma in the reason), or one with
@@ -618,8 +636,10 @@ static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectr
     char reason[320];
     size_t len = (size_t)snprintf(reason, sizeof reason, "%s", why);
     if (has && len < sizeof reason)
-      snprintf(reason + len, sizeof reason - len, "; N/sigma %.1f%s", so->N_sig[k],
-               so->detected[k] ? "" : " (not significant)");
+      len += (size_t)snprintf(reason + len, sizeof reason - len, "; N/sigma %.1f%s",
+                              so->N_sig[k], so->detected[k] ? "" : " (not significant)");
+    if (has && joint_at_bound(fr, k) && len < sizeof reason)
+      snprintf(reason + len, sizeof reason - len, "; parameters at the limit of their range");
     dt_csv_text(w, reason);
     pos_cells(w, s);
     tail_cells(w, has ? fr : NULL, k);
