@@ -32,7 +32,7 @@
  * k_B / (m_s m_u b_s)) and the transforms.  Errors are 1-sigma from the
  * covariance (J^T J)^-1 at the solution, mapped back through the
  * transforms, not scaled by chi2_red (as fit.h); the b of each species
- * under `thermal` gets its error from the covariance of (T, b_turb).
+ * under `thermal` gets its error from the covariance of (T, q).
  * BIC = chi2 + k ln n over all species' pixels (Schwarz 1978).
  *
  * The analysis level (dt_joint_analysis_*) does for a spectrum what
