@@ -253,6 +253,14 @@ int dt_joint_analysis_run_from(dt_joint_analysis *ja, const dt_judgement *j,
                                const char *const *linked, size_t nlinked, dt_joint_btie btie,
                                const dt_joint_out *start, dt_joint_out *out, dt_err *e);
 
+/* Species q of out (out->sp[q], fitted) as a single-doublet fit result:
+ * its components and errors, the joint fit's status, iterations, chi2,
+ * dof, BIC and pixels (all species'), no joint continuum.  For recording
+ * the joint values in a judgement (DT_ACT_FIT); note that a single-doublet
+ * refit of that judgement (dt_analysis_verify_fit) need not reproduce
+ * them.  DT_OK; DT_EINVAL when species q was not fitted. */
+int dt_joint_species_fit(const dt_joint_out *out, size_t q, dt_fit_result *r);
+
 /* The joint first pass.  The species of largest significance (the
  * stronger line's equivalent width over j's window divided by its error)
  * is searched by the single-doublet first pass (autofit.h, with opts);

@@ -466,6 +466,24 @@ static int run_joint(dt_joint_analysis *ja, const dt_judgement *j, const char *c
   return st;
 }
 
+int dt_joint_species_fit(const dt_joint_out *out, size_t q, dt_fit_result *r) {
+  memset(r, 0, sizeof *r);
+  if (!out || q >= out->nspec || out->sp[q].fit_index < 0) return DT_EINVAL;
+  const dt_joint_species_out *so = &out->sp[q];
+  const dt_joint_result *f = &out->fit;
+  r->status = f->status;
+  r->niter = f->niter;
+  r->ncomp = so->ncomp;
+  memcpy(r->comp, so->comp, so->ncomp * sizeof r->comp[0]);
+  memcpy(r->err, so->err, so->ncomp * sizeof r->err[0]);
+  r->chi2 = f->chi2;
+  r->dof = f->dof;
+  r->chi2_red = f->chi2_red;
+  r->bic = f->bic;
+  r->npix = f->npix;
+  return DT_OK;
+}
+
 /* ---- the joint first pass ------------------------------------------- */
 
 /* The significance of species s's absorption: the stronger line's W over

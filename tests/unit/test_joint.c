@@ -461,6 +461,11 @@ static void check_analysis(void) {
   CHECK(fabs(chi - out.fit.chi2) < 1e-6 * out.fit.chi2 && nu == out.fit.npix,
         "analysis: the species' models give the fit's chi2 (%.2f over %zu pixels)", chi, nu);
   CHECK(out.sp[0].any_detected && out.sp[1].any_detected, "analysis: both species detected");
+  dt_fit_result fr1;
+  CHECK(dt_joint_species_fit(&out, 1, &fr1) == DT_OK && fr1.ncomp == 2 &&
+            fr1.comp[1].logN == out.sp[1].comp[1].logN && fr1.chi2 == out.fit.chi2 &&
+            dt_joint_species_fit(&out, 2, &fr1) == DT_EINVAL,
+        "analysis: a species' values as a fit result (none for one not fitted)");
   /* a refit from the last result: the same minimum */
   static dt_joint_out again;
   again = out;
