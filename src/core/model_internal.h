@@ -144,6 +144,13 @@ struct dt_model {
   double g0;     /* the kernel's centre weight */
   int interp;    /* cells of sigma / DT_MODEL_LSF_CELLS, read by interpolation */
   size_t ncoef;  /* entries of coef */
+  /* Resolution per pixel (cfg.lsf_fwhm_kms; NULL sigpix: constant) */
+  double *sigpix;       /* LSF sigma of each pixel [cells] */
+  double sigma_max_kms; /* the widest (sigma_kms: the narrowest) */
+  double *gloc;         /* a kernel of 2 hw + 1 weights */
+  double *g0pix;        /* each pixel's kernel centre weight */
+  double hk_sig;        /* sigma [cells] that hk was last built for */
+  int hk_nmom;          /* and its number of terms */
 };
 
 /* x + i y without CMPLX (not every C library provides it); a complex is
@@ -183,6 +190,7 @@ void dt_model_lsf_kernel(dt_model *m, double *g, double sig_cells);
 void dt_model_moment_kernel(dt_model *m, const double *g, double sig_cells);
 int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, const double *g);
 void dt_model_apply_flux(const dt_model *m, int nu, double *flux);
+void dt_model_moments_pix(dt_model *m, long j0, long j1, int nv, double *out, size_t ld);
 void dt_model_apply_jac(const dt_model *m, size_t ncomp, double *jac, size_t ldj);
 
 /* The first i in [0, n) with a[i] >= x (n if none), a sorted ascending:

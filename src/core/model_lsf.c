@@ -71,6 +71,63 @@ void dt_model_lsf_kernel(dt_model *m, double *g, double sig_cells) {
   m->g0 = g[hw];
 }
 
+/* Resolution per pixel: the kernel of sig_cells cells in g[0..2hw], cut
+ * where the constant kernel of that width would be (ceil(NSIGMA sigma)
+ * cells, zeros beyond up to hw) and normalised to sum 1; g0 its centre. */
+static void kernel_cut(dt_model *m, double *g, double sig_cells) {
+  const int hw = m->hw;
+  double cut = ceil(DT_MODEL_LSF_NSIGMA * sig_cells), gsum = 0;
+  for (int k = -hw; k <= hw; k++) {
+    double t = k / sig_cells;
+    g[k + hw] = fabs((double)k) <= cut ? exp(-0.5 * t * t) : 0.0;
+    gsum += g[k + hw];
+  }
+  for (int k = 0; k <= 2 * hw; k++) g[k] /= gsum;
+  m->g0 = g[hw];
+}
+
+/* Resolution per pixel: the corrections of narrow lines in cells j0..j1
+ * (model_narrow.c, sub_moments: their moments in m->mom, nv planes), each
+ * pixel through the moved kernel of its own width, built when the width
+ * changes from the pixel before.  The moments were taken to the order the
+ * narrowest kernel needs (m->nmom); wider kernels need fewer. */
+void dt_model_moments_pix(dt_model *m, long j0, long j1, int nv, double *out, size_t ld) {
+  const int hw = m->hw, nm_all = m->nmom;
+  const size_t kw = (size_t)(2 * hw + 1);
+  long A = j0 - hw, B = j1 + hw;
+  if (A < 0) A = 0;
+  if (B > (long)m->nf - 1) B = (long)m->nf - 1;
+  for (size_t i = dt_model_first_reaching(m->pc1, m->n, A); i < m->n && m->pc0[i] <= B; i++) {
+    double s = m->sigpix[i];
+    if (s != m->hk_sig) {
+      kernel_cut(m, m->gloc, s);
+      dt_model_moment_kernel(m, m->gloc, s);
+      m->hk_sig = s;
+      m->hk_nmom = m->nmom;
+      m->nmom = nm_all;
+    }
+    const int nm = m->hk_nmom < nm_all ? m->hk_nmom : nm_all;
+    long c0 = m->pc0[i] > A ? m->pc0[i] : A, c1 = m->pc1[i] < B ? m->pc1[i] : B;
+    const double *pw = m->pw + m->pwoff[i] - m->pc0[i];
+    for (int v = 0; v < nv; v++) {
+      double acc = 0;
+      for (long c = c0; c <= c1; c++) {
+        if (pw[c] == 0) continue;
+        /* convolved moments at cell c: sum over cells j of mu_q(j) hk_q(c - j) */
+        long ja = c - hw > j0 ? c - hw : j0, jb = c + hw < j1 ? c + hw : j1;
+        double sc = 0;
+        for (long j = ja; j <= jb; j++) {
+          const double *mv = m->mom + (size_t)(j - j0) * 3 * MOM_MAX + (size_t)v * MOM_MAX;
+          const double *hq = m->hk + (size_t)(c - j + hw);
+          for (int q = 0; q < nm; q++) sc += mv[q] * hq[(size_t)q * kw];
+        }
+        acc += pw[c] * sc;
+      }
+      out[i * ld + (size_t)v] -= acc;
+    }
+  }
+}
+
 /* The kernel moved by a fraction of a cell, for the moments of sub-sampled
  * cells (model_narrow.c), in m->hk and m->nmom. */
 void dt_model_moment_kernel(dt_model *m, const double *g, double sig_cells) {
@@ -148,6 +205,7 @@ int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, con
   m->pw = calloc(ptotal, sizeof *m->pw);
   if (!m->coef || !m->pw) return DT_ENOMEM;
   m->ncoef = total;
+  m->hk_sig = -1;
   for (size_t i = 0; i < n; i++) {
     double *row = m->coef + m->off[i], *pwi = m->pw + m->pwoff[i] - clo[i];
     if (m->interp) {
@@ -165,11 +223,17 @@ int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, con
         if (ov > 0) pwi[j] = ov / wsum;
       }
     }
+    const double *gi = g;
+    if (m->sigpix) { /* this pixel's own width */
+      kernel_cut(m, m->gloc, m->sigpix[i]);
+      gi = m->gloc;
+      m->g0pix[i] = m->g0;
+    }
     for (long j = clo[i]; j <= chi[i]; j++) {
       double p = pwi[j];
       if (p == 0) continue;
       /* convolved cell j = sum_k g[k] * cell(j - k) */
-      for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * g[k + hw];
+      for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * gi[k + hw];
     }
   }
   return DT_OK;
