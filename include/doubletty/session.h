@@ -61,6 +61,9 @@ typedef struct dt_session_target {
                              analysis (dt_session_finish_intervals) */
   struct dt_cog_cache *cog; /* curve-of-growth tables shared by the analyses
                              (cog.h; NULL: the exact inverse) */
+  int lsf_constant;       /* 1: the judgement's R or FWHM even where the
+                             spectrum has widths per pixel (a value the user
+                             gave; lsf.h, dt_analysis_opts.lsf_constant) */
   struct dt_session_ahead *ahead; /* made in advance for this target (NULL:
                              none); dt_session_load takes its parts */
 } dt_session_target;

@@ -41,6 +41,7 @@
 #include "doubletty/export.h"
 #include "doubletty/autofit.h"
 #include "doubletty/judge.h"
+#include "doubletty/lsf.h"
 #include "doubletty/model.h"
 #include "doubletty/num.h"
 #include "doubletty/spectrum.h"
@@ -54,9 +55,11 @@ static const char *const COLUMNS[] = {
     "logN_err_lo", "logN_err_hi", "logN_flag",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
-/* the last columns: position and velocity frame (pos_cells) */
-#define NPOSCOLUMNS 3
+    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame",
+    "lsf_fwhm_kms", "lsf_source"};
+/* the last columns: position and velocity frame (pos_cells), line-spread
+ * function (lsf_cells) */
+#define NPOSCOLUMNS 5
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
 /* Below this resolving power the line-spread function (c/R > 3000 km/s) is
@@ -86,6 +89,9 @@ typedef struct {
   double limit_b;               /* b of column-density limits [km/s] */
   int joint_cont;               /* Legendre coefficients fitted with the components */
   dt_read_opts ropts;
+  dt_lsf_per Rper, Fper;        /* --resolution, --fwhm (per doublet or plain) */
+  const char *R_text, *F_text;  /* as given */
+  dt_lsf_table *rtable;         /* --resolution-table (ropts.lsf_table) */
   long row;                     /* --row: only this row of tables */
   long shard_k, shard_n;
   const char *out_path;
@@ -117,6 +123,8 @@ typedef struct {
   long inflight;                /* inputs handed to the pool, not yet written */
   int oom;                      /* a task could not be set up: stop */
   dt_cog_cache *cog;            /* curve-of-growth tables of the limits, shared */
+  const char *lsf_label;        /* the current spectrum's line-spread function: */
+  double lsf_fwhm;              /*   where from, FWHM at the line [km/s] */
 } run;
 
 static void usage(FILE *f) {
@@ -124,8 +132,11 @@ static void usage(FILE *f) {
           "usage: doubletty fit [options] FILE...\n"
           "Automatic first pass: fit and measure each spectrum, write CSV.\n\n"
           "  --doublet NAME          doublet of the atomic table (default NaI)\n"
-          "  --resolution R          resolving power (default: the file's header)\n"
-          "  --fwhm KMS              line-spread FWHM in km/s instead of R\n"
+          "  --resolution R          resolving power (default: the file's header);\n"
+          "                          per doublet: NaI:4800,CaII:3600 (and a plain R)\n"
+          "  --fwhm KMS              line-spread FWHM in km/s instead of R (also per doublet)\n"
+          "  --resolution-table FILE R at wavelengths (two columns: Angstrom, R), linear\n"
+          "                          in between; over the list's R= and the files' own\n"
           "  --vsys KMS              rest frame of the absorber [km/s] (default 0)\n"
           "  --window VLO:VHI        velocity window around each line [km/s]\n"
           "                          (default: -600:600 widened to cover every system)\n"
@@ -248,6 +259,14 @@ static void pos_cells(dt_csv *w, const dt_spectrum *s) {
   dt_csv_text(w, s ? dt_frame_name(s->frame) : "");
 }
 
+/* The line-spread function of the fit: its FWHM at the stronger line and
+ * where it came from (pick_resolution); empty for a failed spectrum. */
+static void lsf_cells(dt_csv *w, const run *r, int ok) {
+  if (ok && r->lsf_fwhm > 0) dt_csv_fixed(w, r->lsf_fwhm, 3);
+  else dt_csv_empty(w);
+  dt_csv_text(w, ok && r->lsf_label ? r->lsf_label : "");
+}
+
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const char *doublet, double vsys, const dt_err *e) {
   char msg[sizeof e->where + sizeof e->what + 4];
@@ -258,6 +277,7 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   for (size_t k = 10; k + 1 + NPOSCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
+  lsf_cells(&r->csv, r, 0);
   dt_csv_end(&r->csv);
 }
 
@@ -356,23 +376,45 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     honest_reason(r, j, o, sr->reason, sk == 0 ? set->note : NULL, reason, sizeof reason);
     dt_csv_text(w, reason);
     pos_cells(w, s);
+    lsf_cells(w, r, 1);
     dt_csv_end(w);
   }
 }
 
-/* Resolution: command line, else the target list, else the header. */
+/* Resolution of doublet d (lsf.h, first found): the command line's value
+ * for it, else --resolution-table, else the list's, else the file's widths
+ * per pixel, else its header.  *constant: a single value, over any widths
+ * per pixel of the spectrum; *label: where it came from.  With widths per
+ * pixel the judgement keeps R at the stronger line (or the header's) as
+ * its nominal value. */
 static int pick_resolution(const config *c, const dt_target_spec *t, const dt_spectrum *s,
-                           dt_judgement *j, dt_err *e) {
+                           const dt_doublet *d, dt_judgement *j, int *constant,
+                           const char **label, dt_err *e) {
+  double R = dt_lsf_per_get(&c->Rper, d->name), F = dt_lsf_per_get(&c->Fper, d->name), tR, tF;
+  dt_target_resolution(t, d->name, &tR, &tF);
   j->resolution = 0;
   j->fwhm_kms = 0;
-  if (c->have_R) j->resolution = c->R;
-  else if (c->have_fwhm) j->fwhm_kms = c->fwhm;
-  else if (t->resolution > 0) j->resolution = t->resolution;
-  else if (t->fwhm_kms > 0) j->fwhm_kms = t->fwhm_kms;
-  else if (s->resolution > 0) j->resolution = s->resolution;
-  else
+  *constant = 1;
+  *label = "option";
+  if (R > 0) j->resolution = R;
+  else if (F > 0) j->fwhm_kms = F;
+  else if (!c->rtable && (tR > 0 || tF > 0)) {
+    j->resolution = tR;
+    j->fwhm_kms = tR > 0 ? 0 : tF;
+    *label = "list";
+  } else if (s->lsf_fwhm_kms) {
+    *constant = 0;
+    *label = s->lsf_from;
+    size_t ic = dt_spectrum_index(s, dt_wavelength(0.0, d->line[0].lambda0, j->vsys));
+    double fw = ic < s->n ? s->lsf_fwhm_kms[ic] : NAN;
+    j->resolution = isfinite(fw) && fw > 0 ? DT_C_KMS / fw : s->resolution;
+  } else if (s->resolution > 0) {
+    j->resolution = s->resolution;
+    *label = "header";
+  } else
     return dt_err_set(e, DT_EINVAL, NULL,
-                      "no resolving power in the file: give --resolution R or --fwhm KMS");
+                      "no resolving power in the file: give --resolution R, --fwhm KMS or "
+                      "--resolution-table FILE");
   return DT_OK;
 }
 
@@ -449,6 +491,9 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   }
   dt_judgement j;
   dt_judgement_init(&j);
+  int lsf_constant = 1;
+  r->lsf_label = NULL;
+  r->lsf_fwhm = 0;
   if (st == DT_OK) {
     snprintf(j.doublet, sizeof j.doublet, "%s", d->name);
     j.vsys = vsys;
@@ -460,7 +505,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
       j.vhi = t->vhi;
     }
     if (c->have_order) j.cont_order = c->cont_order;
-    st = pick_resolution(c, t, s, &j, &e);
+    st = pick_resolution(c, t, s, d, &j, &lsf_constant, &r->lsf_label, &e);
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
   if (st == DT_OK) st = check_window(c, t, &j, s, &e);
@@ -481,6 +526,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     ao.cog = r->cog;
     ao.covariance_only = c->cov_only;
     ao.joint_cont = (size_t)c->joint_cont;
+    ao.lsf_constant = lsf_constant;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
     dt_autofit_opts_init(&fo);
@@ -490,6 +536,7 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     st = dt_autofit_run(an, &j, &fo, &o, &e);
   }
   long shown_row = s ? s->row : row;
+  if (an) r->lsf_fwhm = dt_analysis_lsf_fwhm(an);
   if (st == DT_OK || st == DT_ENOCONV) {
     dt_system_result res[DT_MAX_SYSTEMS];
     dt_systems_results(an, &set, &j, &o, st, res);
@@ -742,12 +789,9 @@ static void write_settings(dt_csv *w, const config *c) {
   snprintf(buf, sizeof buf, "%ld/%ld", c->shard_k, c->shard_n);
   dt_csv_comment(w, "shard", buf);
   dt_csv_comment(w, "doublet", c->doublet ? c->doublet : "");
-  buf[0] = '\0';
-  if (c->have_R) dt_num_format(buf, sizeof buf, c->R);
-  dt_csv_comment(w, "resolution", buf);
-  buf[0] = '\0';
-  if (c->have_fwhm) dt_num_format(buf, sizeof buf, c->fwhm);
-  dt_csv_comment(w, "fwhm", buf);
+  dt_csv_comment(w, "resolution", c->have_R ? c->R_text : "");
+  dt_csv_comment(w, "fwhm", c->have_fwhm ? c->F_text : "");
+  dt_csv_comment(w, "resolution-table", c->rtable ? dt_lsf_table_name(c->rtable) : "");
   buf[0] = '\0';
   if (c->have_vsys) dt_num_format(buf, sizeof buf, c->vsys);
   dt_csv_comment(w, "vsys", buf);
@@ -813,7 +857,7 @@ static void write_settings(dt_csv *w, const config *c) {
 }
 
 enum {
-  O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
+  O_DOUBLET = 256, O_RESTAB, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
   O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS
 };
@@ -821,6 +865,7 @@ static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
     {"doublet", required_argument, NULL, O_DOUBLET},
     {"resolution", required_argument, NULL, O_RES},
+    {"resolution-table", required_argument, NULL, O_RESTAB},
     {"fwhm", required_argument, NULL, O_FWHM},
     {"vsys", required_argument, NULL, O_VSYS},
     {"window", required_argument, NULL, O_WINDOW},
@@ -881,18 +926,23 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
   switch (opt) {
   case O_DOUBLET: c->doublet = v; return 0;
   case O_RES:
-    if (positive("--resolution", v, "R", &c->R)) return 1;
-    if (c->R < FIT_MIN_R) {
-      cli_errorf("--resolution: R = %s is below %g: a resolving power that low smears a "
-                 "doublet beyond fitting (did you mean a FWHM? use --fwhm KMS)",
-                 v, (double)FIT_MIN_R);
-      return 1;
-    }
+    if (cli_opt_per_doublet("--resolution", v, "R", &c->Rper)) return 1;
+    for (int k = 0; k < c->Rper.n; k++)
+      if (c->Rper.e[k].value < FIT_MIN_R) {
+        cli_errorf("--resolution: R = %g is below %g: a resolving power that low smears a "
+                   "doublet beyond fitting (did you mean a FWHM? use --fwhm KMS)",
+                   c->Rper.e[k].value, (double)FIT_MIN_R);
+        return 1;
+      }
+    c->R_text = v;
     c->have_R = 1;
     return 0;
   case O_FWHM:
     c->have_fwhm = 1;
-    return positive("--fwhm", v, "the FWHM", &c->fwhm);
+    c->F_text = v;
+    return cli_opt_per_doublet("--fwhm", v, "the FWHM", &c->Fper);
+  case O_RESTAB:
+    return cli_opt_resolution_table("fit", v, &c->rtable, &c->ropts);
   case O_VSYS:
     if (cli_parse_double("--vsys", v, &c->vsys)) return 1;
     if (!isfinite(c->vsys) || c->vsys <= -DT_C_KMS) {
@@ -1110,6 +1160,7 @@ int cmd_fit(int argc, char **argv) {
 done:
   dt_cog_cache_free(cog);
   dt_atomic_free(atomic);
+  dt_lsf_table_free(c.rtable);
   free(src);
   return rc;
 }
