@@ -131,6 +131,9 @@ void dt_model_free(dt_model *m) {
   free(m->sigpix);
   free(m->gloc);
   free(m->g0pix);
+  free(m->hkt);
+  free(m->kc);
+  free(m->tc);
   free(m);
 }
 
@@ -323,7 +326,6 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
     }
     m->sigma_kms = smin;
     m->sigma_max_kms = smax;
-    m->hk_sig = -1; /* the narrow-line kernels: built where needed */
   }
   lo = malloc(n * sizeof *lo);
   hi = malloc(n * sizeof *hi);
@@ -336,6 +338,7 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   dt_model_moment_kernel(m, g, sig_cells);
   cell_centres(m, lo, hi);
   if (dt_model_pixel_operator(m, lo, hi, g) != DT_OK) goto nomem;
+  if (m->sigpix && dt_model_moment_table(m) != DT_OK) goto nomem;
   free(g);
   free(lo);
   free(hi);

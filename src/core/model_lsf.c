@@ -86,43 +86,87 @@ static void kernel_cut(dt_model *m, double *g, double sig_cells) {
   m->g0 = g[hw];
 }
 
-/* Resolution per pixel: the corrections of narrow lines in cells j0..j1
- * (model_narrow.c, sub_moments: their moments in m->mom, nv planes), each
- * pixel through the moved kernel of its own width, built when the width
- * changes from the pixel before.  The moments were taken to the order the
- * narrowest kernel needs (m->nmom); wider kernels need fewer. */
+/* Resolution per pixel: the moved kernels of the narrow-line corrections
+ * (dt_model_moment_kernel) for every width, tabulated at widths a factor
+ * 1 + KT_STEP apart from the narrowest; each cell takes the width of the
+ * pixel holding its centre (the nearest pixel for cells beyond them) and
+ * interpolates linearly between the two tabulated kernels around it.  The
+ * number of terms is the narrowest kernel's (m->nmom); wider kernels need
+ * fewer, their further rows are zero.  Nothing without widths per pixel or
+ * without moments (an LSF below MOM_SMIN cells: pixel edges, g0pix). */
+int dt_model_moment_table(dt_model *m) {
+  const int nm_all = m->nmom, hw = m->hw;
+  if (!m->sigpix || nm_all == 0) return DT_OK;
+  const size_t kw = (size_t)(2 * hw + 1), nf = m->nf, n = m->n;
+  double smin = INFINITY, smax = 0;
+  for (size_t i = 0; i < n; i++) {
+    smin = fmin(smin, m->sigpix[i]);
+    smax = fmax(smax, m->sigpix[i]);
+  }
+  const double lstep = log1p(KT_STEP);
+  int nkt = 1 + (int)ceil(log(smax / smin) / lstep - 1e-9);
+  if (nkt < 1) nkt = 1;
+  m->hkt = calloc((size_t)(nkt + 1) * (size_t)nm_all * kw, sizeof *m->hkt);
+  m->kc = malloc(nf * sizeof *m->kc);
+  m->tc = malloc(nf * sizeof *m->tc);
+  if (!m->hkt || !m->kc || !m->tc) return DT_ENOMEM;
+  m->nkt = nkt;
+  for (int k = 0; k <= nkt; k++) { /* one more, never weighted, for k + 1 */
+    double s = k == 0 ? smin : smin * exp(k * lstep);
+    kernel_cut(m, m->gloc, s);
+    dt_model_moment_kernel(m, m->gloc, s);
+    for (int q = 0; q < m->nmom && q < nm_all; q++)
+      memcpy(m->hkt + ((size_t)k * (size_t)nm_all + (size_t)q) * kw, m->hk + (size_t)q * kw,
+             kw * sizeof *m->hkt);
+  }
+  m->nmom = nm_all;
+  size_t i = 0;
+  for (size_t c = 0; c < nf; c++) {
+    double yc = m->y0 + ((double)c + 0.5) * m->dy;
+    while (i + 1 < n && m->pedge[i + 1] <= yc) i++;
+    double u = m->sigpix[i] > smin ? log(m->sigpix[i] / smin) / lstep : 0.0;
+    int k = (int)floor(u);
+    if (k >= nkt) k = nkt - 1;
+    m->kc[c] = k;
+    m->tc[c] = u - k;
+  }
+  return DT_OK;
+}
+
+/* Resolution per pixel: what sub_moments does through one kernel, here
+ * with the kernel of each cell's width (dt_model_moment_table): the
+ * moments of cells j0..j1 (m->mom, nv planes) convolved at the cells they
+ * reach, then each pixel's share of them taken off out[i*ld + v]. */
 void dt_model_moments_pix(dt_model *m, long j0, long j1, int nv, double *out, size_t ld) {
-  const int hw = m->hw, nm_all = m->nmom;
-  const size_t kw = (size_t)(2 * hw + 1);
+  const int hw = m->hw, nm = m->nmom;
+  const size_t kw = (size_t)(2 * hw + 1), nf = m->nf, kstride = (size_t)nm * kw;
   long A = j0 - hw, B = j1 + hw;
   if (A < 0) A = 0;
-  if (B > (long)m->nf - 1) B = (long)m->nf - 1;
-  for (size_t i = dt_model_first_reaching(m->pc1, m->n, A); i < m->n && m->pc0[i] <= B; i++) {
-    double s = m->sigpix[i];
-    if (s != m->hk_sig) {
-      kernel_cut(m, m->gloc, s);
-      dt_model_moment_kernel(m, m->gloc, s);
-      m->hk_sig = s;
-      m->hk_nmom = m->nmom;
-      m->nmom = nm_all;
+  if (B > (long)nf - 1) B = (long)nf - 1;
+  for (long c = A; c <= B; c++) {
+    const double *h0 = m->hkt + (size_t)m->kc[c] * kstride, *h1 = h0 + kstride;
+    const double t = m->tc[c];
+    long ja = c - hw > j0 ? c - hw : j0, jb = c + hw < j1 ? c + hw : j1;
+    for (int v = 0; v < nv; v++) {
+      double s0 = 0, s1 = 0;
+      for (long j = ja; j <= jb; j++) {
+        const double *mv = m->mom + (size_t)(j - j0) * 3 * MOM_MAX + (size_t)v * MOM_MAX;
+        const size_t k = (size_t)(c - j + hw);
+        for (int q = 0; q < nm; q++) {
+          s0 += mv[q] * h0[(size_t)q * kw + k];
+          s1 += mv[q] * h1[(size_t)q * kw + k];
+        }
+      }
+      m->scr[(size_t)v * nf + (size_t)c] = t > 0 ? (1.0 - t) * s0 + t * s1 : s0;
     }
-    const int nm = m->hk_nmom < nm_all ? m->hk_nmom : nm_all;
+  }
+  for (size_t i = dt_model_first_reaching(m->pc1, m->n, A); i < m->n && m->pc0[i] <= B; i++) {
     long c0 = m->pc0[i] > A ? m->pc0[i] : A, c1 = m->pc1[i] < B ? m->pc1[i] : B;
     const double *pw = m->pw + m->pwoff[i] - m->pc0[i];
     for (int v = 0; v < nv; v++) {
+      const double *sv = m->scr + (size_t)v * nf;
       double acc = 0;
-      for (long c = c0; c <= c1; c++) {
-        if (pw[c] == 0) continue;
-        /* convolved moments at cell c: sum over cells j of mu_q(j) hk_q(c - j) */
-        long ja = c - hw > j0 ? c - hw : j0, jb = c + hw < j1 ? c + hw : j1;
-        double sc = 0;
-        for (long j = ja; j <= jb; j++) {
-          const double *mv = m->mom + (size_t)(j - j0) * 3 * MOM_MAX + (size_t)v * MOM_MAX;
-          const double *hq = m->hk + (size_t)(c - j + hw);
-          for (int q = 0; q < nm; q++) sc += mv[q] * hq[(size_t)q * kw];
-        }
-        acc += pw[c] * sc;
-      }
+      for (long c = c0; c <= c1; c++) acc += pw[c] * sv[c];
       out[i * ld + (size_t)v] -= acc;
     }
   }
@@ -205,7 +249,6 @@ int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, con
   m->pw = calloc(ptotal, sizeof *m->pw);
   if (!m->coef || !m->pw) return DT_ENOMEM;
   m->ncoef = total;
-  m->hk_sig = -1;
   for (size_t i = 0; i < n; i++) {
     double *row = m->coef + m->off[i], *pwi = m->pw + m->pwoff[i] - clo[i];
     if (m->interp) {
