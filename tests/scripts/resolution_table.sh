@@ -95,6 +95,10 @@ printf 'var.txt R=NaI:abc\n' >"$TMP/badr.list"
 expect_fail "list R=NaI:abc refused naming the line" "line 1: R must be positive" \
   "$DT" fit --list "$TMP/badr.list"
 
+"$DT" info "$TMP/var.fits" >"$TMP/info.out" 2>&1
+check "info shows the file's widths per pixel (R 3000-9000, as written)" \
+  grep -q "line-spread per pixel from column RESPOWER (resolving power): R 3000-9000" "$TMP/info.out"
+
 # the other commands that build models take the table too
 check "figure --resolution-table draws the varying spectrum" \
   "$DT" figure --resolution-table "$TMP/table.txt" --format png -o "$TMP/fig" "$TMP/var.txt"
