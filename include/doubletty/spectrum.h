@@ -112,7 +112,8 @@ typedef struct dt_spectrum {
   char frame_note[200];  /* a warning or an assumption to show, or "" */
   dt_frame_obs obs;      /* time and site of the observation where known */
   /* Line-spread width per pixel (lsf.h), or NULL: a FWHM [km/s] for each
-   * pixel, NaN where the source gives none.  From a FITS table column
+   * pixel, NaN where the source gives none (a column's gaps are
+   * interpolated; only beyond its first or last value is there none).  From a FITS table column
    * (LSF_FWHM, LSF_SIGMA: a width in the unit of TUNITn, Angstrom when
    * none, also nm, km/s or pixel; RESPOWER, RESOLUTION: R per pixel; the
    * first present is read) or a resolution table (dt_lsf_table_apply). */

@@ -199,8 +199,9 @@ static int table_wave_unit(fctx *c, const colinfo *w, int *log10, double *scale,
 /* The line-spread column: its kind from the name, its unit from TUNITn
  * (widths: a length, km/s, or pixel; R: none), into s->lsf_fwhm_kms as a
  * FWHM in km/s at each pixel (FWHM = 2 sqrt(2 ln 2) sigma for a Gaussian;
- * FWHM [km/s] = c FWHM [A] / lambda; FWHM = c / R), NaN where the value is
- * not a positive number.  s->wave is read (scaled to Angstrom); buf holds
+ * FWHM [km/s] = c FWHM [A] / lambda; FWHM = c / R); where the value is not
+ * a positive number, interpolated from the pixels around, NaN beyond the
+ * first or last value.  s->wave is read (scaled to Angstrom); buf holds
  * n doubles. */
 static int table_lsf(fctx *c, const colinfo *ci, long long row, dt_spectrum *s, double *buf,
                      const char *where, dt_err *e) {
@@ -252,6 +253,19 @@ static int table_lsf(fctx *c, const colinfo *ci, long long row, dt_spectrum *s, 
       }
     }
     s->lsf_fwhm_kms[i] = isfinite(out) && out > 0 ? out : NAN;
+  }
+  /* a pixel without a value between two with one (a masked pixel, say)
+   * takes the width interpolated linearly in wavelength between them;
+   * beyond the first or last value there is none */
+  size_t prev = n;
+  for (size_t i = 0; i < n; i++) {
+    if (isnan(s->lsf_fwhm_kms[i])) continue;
+    if (prev < n && i > prev + 1)
+      for (size_t k = prev + 1; k < i; k++) {
+        double f = (s->wave[k] - s->wave[prev]) / (s->wave[i] - s->wave[prev]);
+        s->lsf_fwhm_kms[k] = s->lsf_fwhm_kms[prev] + f * (s->lsf_fwhm_kms[i] - s->lsf_fwhm_kms[prev]);
+      }
+    prev = i;
   }
   snprintf(s->lsf_from, sizeof s->lsf_from, "column %.30s (%s%s%s)", ci->name,
            rpow ? "resolving power" : fac > 1 ? "sigma" : "FWHM", rpow ? "" : ", ",

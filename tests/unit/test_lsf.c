@@ -143,14 +143,18 @@ static void test_fits_column(void) {
   };
   for (size_t k = 0; k < sizeof cs / sizeof *cs; k++) {
     for (int i = 0; i < N; i++) v[i] = cs[k].val;
-    v[4] = -1; /* no usable value at the last pixel */
+    v[4] = -1;  /* no usable value at the last pixel: none there */
+    v[1] = NAN; /* nor at the second: interpolated from its neighbours */
+    v[0] = 2 * cs[k].val;
     dt_spectrum *s = NULL;
     dt_err e;
     int ok = write_table(path, w, N, cs[k].col, cs[k].unit, v) == 0 &&
              dt_spectrum_read(path, NULL, &s, &e) == DT_OK;
     CHECK(ok && s->lsf_fwhm_kms && fabs(s->lsf_fwhm_kms[2] - cs[k].want_kms) < 1e-9 * cs[k].want_kms &&
-              isnan(s->lsf_fwhm_kms[4]) && strstr(s->lsf_from, cs[k].col),
-          "column %s [%s] read: FWHM %.4f km/s at 5890 A (%s)", cs[k].col, cs[k].unit,
+              isnan(s->lsf_fwhm_kms[4]) && strstr(s->lsf_from, cs[k].col) &&
+              fabs(s->lsf_fwhm_kms[1] - 0.5 * (s->lsf_fwhm_kms[0] + s->lsf_fwhm_kms[2])) <
+                  1e-9 * cs[k].want_kms,
+          "column %s [%s] read: FWHM %.4f km/s at 5890 A, a gap filled, none past the end (%s)", cs[k].col, cs[k].unit,
           ok && s->lsf_fwhm_kms ? s->lsf_fwhm_kms[2] : NAN, ok ? s->lsf_from : e.what);
     dt_spectrum_free(s);
   }
