@@ -5,17 +5,17 @@
  * ("NaI:4800,CaII:3600").  The model takes either one width for its window
  * or one per pixel (model.h, dt_model_config.lsf_fwhm_kms).
  *
- * Which source wins, for one doublet of one spectrum (first found):
- *   1. a constant given for it by the user: fit --resolution/--fwhm, the
- *      list's R=/fwhm= (an entry naming the doublet before a plain one),
- *      inspect --resolution/--fwhm -- among these each command keeps its
- *      order (fit: option, list; inspect: list, option);
- *   2. --resolution-table FILE (R at each pixel's wavelength);
- *   3. the spectrum's own width per pixel (FITS table column);
- *   4. the file header's R;
- *   5. fit refuses to go on; inspect starts at R 3000 and says so.
- * A specific, constant statement by the user thus beats a general one, and
- * anything the user says beats the file. */
+ * Which source wins, for one doublet of one spectrum (first found; the
+ * commands decide, the analysis takes the widths per pixel unless told
+ * otherwise, dt_analysis_opts.lsf_constant):
+ *   fit:            --resolution/--fwhm (the entry naming the doublet, then
+ *                   a plain one), --resolution-table, the list's R=/fwhm=
+ *                   (named, then plain), the file's widths per pixel (FITS
+ *                   column), the file header's R; none: an error;
+ *   inspect/figure: --resolution-table, the list's R=/fwhm=,
+ *                   --resolution/--fwhm (a default for targets that say
+ *                   nothing), the file's widths per pixel, the header's R.
+ * Whatever the user says (options, list) beats what the file says. */
 #ifndef DOUBLETTY_LSF_H
 #define DOUBLETTY_LSF_H
 #include <stddef.h>
