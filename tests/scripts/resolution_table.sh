@@ -71,6 +71,10 @@ set -- $(row optover); check "--resolution beats the table and the column (sourc
 fit optnamed --resolution "CaII:3000,NaI:$RD2" const.txt
 set -- $(row optnamed); check "--resolution NaI:R per doublet (log N $2)" near "$2" "$cN" 0.0005
 
+FW=$(awk -v r="$RD2" 'BEGIN { printf "%.6f", 299792.458 / r }')
+fit fwnamed --fwhm "CaII:80,NaI:$FW" const.txt
+set -- $(row fwnamed); check "--fwhm NaI:c/R per doublet (log N $2)" near "$2" "$cN" 0.0005
+
 # bad tables: one message naming the option, the file, the line and the problem
 printf '5850 3000\n5950 9000\n5900 4000\n' >"$TMP/unsorted.txt"
 expect_fail "unsorted table refused" "fit: --resolution-table .*unsorted.txt: line 3: wavelengths must increase" \
@@ -109,4 +113,8 @@ check "inspect says where the widths come from" grep -q "line-spread width per p
 "$DT" inspect --session "$TMP/j.session" --replay-keys /dev/null --screen-dump "$TMP/dump2" --size 120x40 \
   "$TMP/var.fits" >/dev/null 2>&1
 check "inspect of a FITS table with RESPOWER takes the column" grep -q "from column RESPOWER" "$TMP/dump2"
+printf '%s R=NaI:3000\n' "$TMP/var.fits" >"$TMP/ilist.list"
+"$DT" inspect --list "$TMP/ilist.list" --session "$TMP/k.session" --replay-keys /dev/null --screen-dump "$TMP/dump3" \
+  --size 120x40 >/dev/null 2>&1
+check "inspect: the list's R=NaI:3000 beats the file's column" sh -c "grep -q ' R 3000 ' '$TMP/dump3' && ! grep -q 'R(lambda)' '$TMP/dump3'"
 finish
