@@ -789,8 +789,19 @@ static void write_settings(dt_csv *w, const config *c) {
   snprintf(buf, sizeof buf, "%ld/%ld", c->shard_k, c->shard_n);
   dt_csv_comment(w, "shard", buf);
   dt_csv_comment(w, "doublet", c->doublet ? c->doublet : "");
-  dt_csv_comment(w, "resolution", c->have_R ? c->R_text : "");
-  dt_csv_comment(w, "fwhm", c->have_fwhm ? c->F_text : "");
+  /* a plain value as a number (as before), values per doublet as given */
+  buf[0] = '\0';
+  if (c->have_R) {
+    if (strchr(c->R_text, ':')) snprintf(buf, sizeof buf, "%s", c->R_text);
+    else dt_num_format(buf, sizeof buf, dt_lsf_per_get(&c->Rper, ""));
+  }
+  dt_csv_comment(w, "resolution", buf);
+  buf[0] = '\0';
+  if (c->have_fwhm) {
+    if (strchr(c->F_text, ':')) snprintf(buf, sizeof buf, "%s", c->F_text);
+    else dt_num_format(buf, sizeof buf, dt_lsf_per_get(&c->Fper, ""));
+  }
+  dt_csv_comment(w, "fwhm", buf);
   dt_csv_comment(w, "resolution-table", c->rtable ? dt_lsf_table_name(c->rtable) : "");
   buf[0] = '\0';
   if (c->have_vsys) dt_num_format(buf, sizeof buf, c->vsys);
