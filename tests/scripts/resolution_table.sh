@@ -116,6 +116,15 @@ check "inspect says where the widths come from" grep -q "line-spread width per p
 "$DT" inspect --session "$TMP/j.session" --replay-keys /dev/null --screen-dump "$TMP/dump2" --size 120x40 \
   "$TMP/var.fits" >/dev/null 2>&1
 check "inspect of a FITS table with RESPOWER takes the column" grep -q "from column RESPOWER" "$TMP/dump2"
+# a session made with the table is reproduced by log --verify given it again
+printf 'refit\nverdict-detected\n' >"$TMP/keys"
+"$DT" inspect --resolution-table "$TMP/table.txt" --session "$TMP/v.session" --replay-keys "$TMP/keys" \
+  "$TMP/var.txt" >/dev/null 2>&1
+check "log --verify --resolution-table reproduces a fit made with the table" \
+  sh -c "'$DT' log --verify --resolution-table '$TMP/table.txt' '$TMP/v.session' | grep -q '^reproduced'"
+check "log --verify without the table does not (the session records one R)" \
+  sh -c "'$DT' log --verify '$TMP/v.session' | grep -q '^MISMATCH'"
+
 printf '%s R=NaI:3000\n' "$TMP/var.fits" >"$TMP/ilist.list"
 "$DT" inspect --list "$TMP/ilist.list" --session "$TMP/k.session" --replay-keys /dev/null --screen-dump "$TMP/dump3" \
   --size 120x40 >/dev/null 2>&1
