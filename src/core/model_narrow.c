@@ -273,7 +273,7 @@ static void sub_moments(dt_model *m, int u, long j0, long j1, const double *sqk,
     for (int v = 0; v < nv; v++)
       for (int q = 0; q < nm; q++) mj[v * MOM_MAX + q] *= w;
   }
-  if (m->sigpix) { /* widths per pixel: each pixel through its own kernel */
+  if (m->sigpix) { /* widths per pixel: each cell through its pixel's kernel (model_lsf.c) */
     dt_model_moments_pix(m, j0, j1, nv, out, ld);
     return;
   }
