@@ -85,6 +85,11 @@ typedef struct dt_analysis_opts {
                            lines with a row in this table are modelled as
                            the sum of their components; NULL (default): every
                            line single.  Must outlive the analysis. */
+  int lsf_constant;     /* 1: the model takes the judgement's R or FWHM even
+                           where the spectrum has a line-spread width per
+                           pixel; 0 (default): the widths per pixel
+                           (dt_spectrum.lsf_fwhm_kms) win, each line seen at
+                           its own wavelength (lsf.h says who sets which) */
 } dt_analysis_opts;
 
 /* Defaults as documented above. */
@@ -233,6 +238,13 @@ int dt_analysis_measure_range(dt_analysis *a, double vlo, double vhi, dt_analysi
 
 /* Arrays over the selected pixels (n values) of the last run; NULL before
  * a successful run. */
+/* The line-spread function of the last run: its FWHM [km/s] at the
+ * stronger line's centre (v = 0), and where it came from: the spectrum's
+ * lsf_from when the widths per pixel were used ("table FILE", "column
+ * LSF_FWHM (FWHM, Angstrom)"), NULL when the judgement's R or FWHM was. */
+double dt_analysis_lsf_fwhm(const dt_analysis *a);
+const char *dt_analysis_lsf_source(const dt_analysis *a);
+
 const double *dt_analysis_wave(const dt_analysis *a);       /* [Angstrom] */
 const double *dt_analysis_flux(const dt_analysis *a);
 const double *dt_analysis_sigma(const dt_analysis *a);

@@ -63,6 +63,9 @@ typedef struct dt_session_target {
                              (cog.h; NULL: the exact inverse) */
   const dt_hyperfine *hyperfine; /* model lines with hyperfine structure
                              (analysis.h, opts.hyperfine); NULL: none */
+  int lsf_constant;       /* 1: the judgement's R or FWHM even where the
+                             spectrum has widths per pixel (a value the user
+                             gave; lsf.h, dt_analysis_opts.lsf_constant) */
   struct dt_session_ahead *ahead; /* made in advance for this target (NULL:
                              none); dt_session_load takes its parts */
 } dt_session_target;

@@ -111,6 +111,14 @@ typedef struct dt_spectrum {
   double frame_kms;      /* shift applied: c (k - 1), lambda_out = k lambda_in */
   char frame_note[200];  /* a warning or an assumption to show, or "" */
   dt_frame_obs obs;      /* time and site of the observation where known */
+  /* Line-spread width per pixel (lsf.h), or NULL: a FWHM [km/s] for each
+   * pixel, NaN where the source gives none (a column's gaps are
+   * interpolated; only beyond its first or last value is there none).  From a FITS table column
+   * (LSF_FWHM, LSF_SIGMA: a width in the unit of TUNITn, Angstrom when
+   * none, also nm, km/s or pixel; RESPOWER, RESOLUTION: R per pixel; the
+   * first present is read) or a resolution table (dt_lsf_table_apply). */
+  double *lsf_fwhm_kms;
+  char lsf_from[160];    /* "column LSF_FWHM (FWHM, Angstrom)", "table FILE" */
 } dt_spectrum;
 
 typedef struct dt_read_opts {
@@ -131,6 +139,9 @@ typedef struct dt_read_opts {
   double ra, dec;        /* ICRS [deg] */
   int has_site;          /* 1: site used where the file gives none (--site) */
   double site_lon, site_lat, site_height; /* [deg east], [deg], [m] */
+  const struct dt_lsf_table *lsf_table; /* resolution table (lsf.h): gives the
+                            spectrum its width per pixel after reading,
+                            replacing the file's; NULL = none */
 } dt_read_opts;
 
 /* Read one spectrum.  path may carry an extension selector "FILE[N]" (N the

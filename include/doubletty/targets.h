@@ -51,6 +51,11 @@ typedef struct dt_target_spec {
   double vsys;                    /* rest frame [km/s] */
   double resolution;              /* resolving power R; 0 = not given */
   double fwhm_kms;                /* LSF FWHM [km/s]; 0 = not given */
+  char res_text[128];             /* R= or fwhm= as written when it names
+                                     doublets ("NaI:4800,CaII:3600", lsf.h);
+                                     resolution/fwhm_kms then hold its plain
+                                     value (0: none); "" = a plain value */
+  int res_is_fwhm;                /* res_text holds fwhm= values */
   char doublet[16];               /* "" = not given */
   char name[DT_TARGET_NAME_MAX];  /* "" = not given */
   int has_window;                 /* window=VLO:VHI given: */
@@ -66,6 +71,10 @@ typedef struct dt_target_spec {
   int hyperfine;                  /* hfs=1: lines split into their hyperfine
                                      components (analysis.h, opts.hyperfine) */
 } dt_target_spec;
+
+/* The resolving power R or the FWHM [km/s] the target gives doublet
+ * (named or plain entry of R=/fwhm=; lsf.h); both 0: none. */
+void dt_target_resolution(const dt_target_spec *t, const char *doublet, double *R, double *fwhm);
 
 /* A target with nothing but a path (as given, not resolved). */
 void dt_target_spec_init(dt_target_spec *t, const char *path);

@@ -1,5 +1,6 @@
 /* Messages at the edge and location of the bundled data. */
 #include "cli.h"
+#include "doubletty/lsf.h"
 #include "doubletty/num.h"
 
 #include <errno.h>
@@ -243,6 +244,31 @@ int cli_opt_frame(const char *cmd, const char *text, dt_read_opts *r) {
 
 int cli_opt_in_frame(const char *cmd, const char *text, dt_read_opts *r) {
   return frame_value(cmd, "--in-frame", text, &r->in_frame);
+}
+
+int cli_opt_resolution_table(const char *cmd, const char *path, dt_lsf_table **t,
+                             dt_read_opts *r) {
+  dt_err e;
+  dt_lsf_table *nt = NULL;
+  if (cli_check_not_dir(path)) return 1;
+  if (dt_lsf_table_read(path, &nt, &e) != DT_OK) {
+    cli_errorf("%s: --resolution-table %s: %s%s%s", cmd, path, e.where, e.where[0] ? ": " : "",
+               e.what);
+    return 1;
+  }
+  dt_lsf_table_free(*t);
+  *t = nt;
+  r->lsf_table = nt;
+  return 0;
+}
+
+int cli_opt_per_doublet(const char *opt, const char *text, const char *what, dt_lsf_per *p) {
+  dt_err e;
+  if (dt_lsf_per_parse(text, what, p, &e) != DT_OK) {
+    cli_errorf("%s: %s", opt, e.what);
+    return 1;
+  }
+  return 0;
 }
 
 int cli_opt_site(const char *cmd, const char *text, dt_read_opts *r) {

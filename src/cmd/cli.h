@@ -59,6 +59,17 @@ int cli_opt_frame(const char *cmd, const char *text, dt_read_opts *r);
 int cli_opt_in_frame(const char *cmd, const char *text, dt_read_opts *r);
 int cli_opt_site(const char *cmd, const char *text, dt_read_opts *r);
 
+/* Resolution per line (lsf.h).  --resolution-table FILE: read into *t
+ * (the caller frees it with dt_lsf_table_free; a second one replaces the
+ * first) and set r->lsf_table; --resolution/--fwhm with values per doublet
+ * ("NaI:4800,CaII:3600", "3000"): parsed into p.  1 after a message naming
+ * the option, the file and the place. */
+struct dt_lsf_table;
+struct dt_lsf_per;
+int cli_opt_resolution_table(const char *cmd, const char *path, struct dt_lsf_table **t,
+                             dt_read_opts *r);
+int cli_opt_per_doublet(const char *opt, const char *text, const char *what, struct dt_lsf_per *p);
+
 /* 1 after "PATH: is a directory, not a file" when path names a directory. */
 int cli_check_not_dir(const char *path);
 

@@ -18,6 +18,7 @@
 #include "../ui/queue.h"
 #include "cli.h"
 #include "commands.h"
+#include "doubletty/lsf.h"
 #include "doubletty/export.h"
 #include "doubletty/journal.h"
 #include "doubletty/num.h"
@@ -41,6 +42,8 @@ static void usage(FILE *f) {
           "  --force             replace existing figures\n"
           "  --hyperfine         model Na I and K I lines as their hyperfine components\n"
           "                      (as fit and inspect --hyperfine; a list line may say hfs=1)\n"
+          "  --resolution-table FILE  R at wavelengths (two columns: Angstrom, R), linear\n"
+          "                      in between; over the list's R= and the files' own\n"
           "  -h, --help          this text\n"
           "Each figure is DIR/NAME_DOUBLET.FMT (NAME: the list's name or the file's stem;\n"
           "_rowN for a table row); a page of 432 x 420 pt (PNG 900 x 875 pixels).\n");
@@ -58,6 +61,7 @@ typedef struct fig_job {
   long written, failed;
   int hfs_all;               /* --hyperfine */
   const dt_hyperfine *hfs;   /* the table (NULL: not read) */
+  dt_lsf_table *rtable; /* --resolution-table (NULL: none) */
 } fig_job;
 
 static void safe_name(const char *in, char *out, size_t n) {
@@ -238,6 +242,7 @@ static void draw_session(fig_job *job, dt_session *ss, dt_journal *jn, cli_progr
     t.name = en->target.name ? en->target.name : "";
     t.initial = en->state;
     if (job->hfs_all) t.hyperfine = job->hfs;
+    t.read.lsf_table = job->rtable;
     dt_session_load(ss, &t);
     const char *name = t.name[0] ? t.name : dt_export_stem(path, stem, sizeof stem);
     draw_target(job, ss, path, name, en->target.row);
@@ -290,6 +295,14 @@ static int draw_queue(fig_job *job, dt_session *ss, const dt_atomic *atomic, con
     t.initial.resolution = qe->resolution;
     t.initial.fwhm_kms = qe->resolution > 0 ? 0 : qe->fwhm_kms;
     if (job->hfs_all || qe->hyperfine) t.hyperfine = job->hfs;
+    /* resolution (lsf.h): the table, else the list's for the doublet, else
+     * the file's widths per pixel or header */
+    double qR = 0, qF = 0;
+    if (!job->rtable) dt_queue_resolution(&q, i, t.initial.doublet, &qR, &qF);
+    t.initial.resolution = qR;
+    t.initial.fwhm_kms = qR > 0 ? 0 : qF;
+    t.lsf_constant = qR > 0 || qF > 0;
+    t.read.lsf_table = job->rtable;
     dt_session_load(ss, &t);
     const char *name = t.name && t.name[0] ? t.name : dt_export_stem(t.path, stem, sizeof stem);
     draw_target(job, ss, t.path, name, qe->row);
@@ -311,6 +324,7 @@ int cmd_figure(int argc, char **argv) {
                                            {"doublet", required_argument, NULL, 3},
                                            {"force", no_argument, NULL, 4},
                                            {"hyperfine", no_argument, NULL, 5},
+                                           {"resolution-table", required_argument, NULL, 6},
                                            {NULL, 0, NULL, 0}};
   int opt;
   cli_getopt_reset();
@@ -328,6 +342,12 @@ int cmd_figure(int argc, char **argv) {
     case 3: doublet = optarg; break;
     case 4: job.force = 1; break;
     case 5: job.hfs_all = 1; break;
+    case 6:
+      if (cli_opt_resolution_table("figure", optarg, &job.rtable, &(dt_read_opts){0})) {
+        dt_lsf_table_free(job.rtable);
+        return 2;
+      }
+      break;
     default: return cli_opt_error("figure", opt, argv);
     }
   }
@@ -407,5 +427,6 @@ int cmd_figure(int argc, char **argv) {
   if (jn) dt_journal_close(jn);
   dt_hyperfine_free(hfs);
   dt_atomic_free(atomic);
+  dt_lsf_table_free(job.rtable);
   return rc;
 }

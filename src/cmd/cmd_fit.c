@@ -44,6 +44,7 @@
 #include "doubletty/autofit.h"
 #include "doubletty/joint.h"
 #include "doubletty/judge.h"
+#include "doubletty/lsf.h"
 #include "doubletty/model.h"
 #include "doubletty/num.h"
 #include "doubletty/spectrum.h"
@@ -58,10 +59,12 @@ static const char *const COLUMNS[] = {
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
     "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame",
-    "T_K", "T_err_K", "b_turb_kms", "b_turb_err_kms"};
-/* after the reason: position and velocity frame (pos_cells), then the
- * columns of joint fits (tail_cells) */
+    "lsf_fwhm_kms", "lsf_source", "T_K", "T_err_K", "b_turb_kms", "b_turb_err_kms"};
+/* after the reason: position and velocity frame (pos_cells), the
+ * line-spread function (lsf_cells), then the columns of joint fits
+ * (tail_cells) */
 #define NPOSCOLUMNS 3
+#define NLSFCOLUMNS 2
 #define NTAILCOLUMNS 4
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
@@ -97,6 +100,9 @@ typedef struct {
   double limit_b;               /* b of column-density limits [km/s] */
   int joint_cont;               /* Legendre coefficients fitted with the components */
   dt_read_opts ropts;
+  dt_lsf_per Rper, Fper;        /* --resolution, --fwhm (per doublet or plain) */
+  const char *R_text, *F_text;  /* as given */
+  dt_lsf_table *rtable;         /* --resolution-table (ropts.lsf_table) */
   long row;                     /* --row: only this row of tables */
   long shard_k, shard_n;
   const char *out_path;
@@ -131,6 +137,8 @@ typedef struct {
   int oom;                      /* a task could not be set up: stop */
   dt_cog_cache *cog;            /* curve-of-growth tables of the limits, shared */
   const dt_hyperfine *hfs;      /* hyperfine table (NULL: could not be read) */
+  const char *lsf_label;        /* the current spectrum's line-spread function: */
+  double lsf_fwhm;              /*   where from, FWHM at the line [km/s] */
 } run;
 
 static void usage(FILE *f) {
@@ -143,8 +151,11 @@ static void usage(FILE *f) {
           "                          velocity per component for all of them\n"
           "  --b-tie RULE            b across the doublets of --joint: same (default),\n"
           "                          thermal (T and b_turb per component) or free\n"
-          "  --resolution R          resolving power (default: the file's header)\n"
-          "  --fwhm KMS              line-spread FWHM in km/s instead of R\n"
+          "  --resolution R          resolving power (default: the file's header);\n"
+          "                          per doublet: NaI:4800,CaII:3600 (and a plain R)\n"
+          "  --fwhm KMS              line-spread FWHM in km/s instead of R (also per doublet)\n"
+          "  --resolution-table FILE R at wavelengths (two columns: Angstrom, R), linear\n"
+          "                          in between; over the list's R= and the files' own\n"
           "  --vsys KMS              rest frame of the absorber [km/s] (default 0)\n"
           "  --window VLO:VHI        velocity window around each line [km/s]\n"
           "                          (default: -600:600 widened to cover every system)\n"
@@ -287,6 +298,14 @@ static void tail_cells(dt_csv *w, const dt_joint_result *fr, size_t k) {
   }
 }
 
+/* The line-spread function of the fit: its FWHM at the stronger line and
+ * where it came from (pick_resolution); empty for a failed spectrum. */
+static void lsf_cells(dt_csv *w, const run *r, int ok) {
+  if (ok && r->lsf_fwhm > 0) dt_csv_fixed(w, r->lsf_fwhm, 3);
+  else dt_csv_empty(w);
+  dt_csv_text(w, ok && r->lsf_label ? r->lsf_label : "");
+}
+
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const char *doublet, double vsys, const dt_err *e) {
   char msg[sizeof e->where + sizeof e->what + 4];
@@ -294,9 +313,10 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, "", vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
+  lsf_cells(&r->csv, r, 0);
   tail_cells(&r->csv, NULL, 0);
   dt_csv_end(&r->csv);
 }
@@ -396,24 +416,46 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     honest_reason(r, j, o, sr->reason, sk == 0 ? set->note : NULL, reason, sizeof reason);
     dt_csv_text(w, reason);
     pos_cells(w, s);
+    lsf_cells(w, r, 1);
     tail_cells(w, NULL, 0);
     dt_csv_end(w);
   }
 }
 
-/* Resolution: command line, else the target list, else the header. */
+/* Resolution of doublet d (lsf.h, first found): the command line's value
+ * for it, else --resolution-table, else the list's, else the file's widths
+ * per pixel, else its header.  *constant: a single value, over any widths
+ * per pixel of the spectrum; *label: where it came from.  With widths per
+ * pixel the judgement keeps R at the stronger line (or the header's) as
+ * its nominal value. */
 static int pick_resolution(const config *c, const dt_target_spec *t, const dt_spectrum *s,
-                           dt_judgement *j, dt_err *e) {
+                           const dt_doublet *d, dt_judgement *j, int *constant,
+                           const char **label, dt_err *e) {
+  double R = dt_lsf_per_get(&c->Rper, d->name), F = dt_lsf_per_get(&c->Fper, d->name), tR, tF;
+  dt_target_resolution(t, d->name, &tR, &tF);
   j->resolution = 0;
   j->fwhm_kms = 0;
-  if (c->have_R) j->resolution = c->R;
-  else if (c->have_fwhm) j->fwhm_kms = c->fwhm;
-  else if (t->resolution > 0) j->resolution = t->resolution;
-  else if (t->fwhm_kms > 0) j->fwhm_kms = t->fwhm_kms;
-  else if (s->resolution > 0) j->resolution = s->resolution;
-  else
+  *constant = 1;
+  *label = "option";
+  if (R > 0) j->resolution = R;
+  else if (F > 0) j->fwhm_kms = F;
+  else if (!c->rtable && (tR > 0 || tF > 0)) {
+    j->resolution = tR;
+    j->fwhm_kms = tR > 0 ? 0 : tF;
+    *label = "list";
+  } else if (s->lsf_fwhm_kms) {
+    *constant = 0;
+    *label = s->lsf_from;
+    size_t ic = dt_spectrum_index(s, dt_wavelength(0.0, d->line[0].lambda0, j->vsys));
+    double fw = ic < s->n ? s->lsf_fwhm_kms[ic] : NAN;
+    j->resolution = isfinite(fw) && fw > 0 ? DT_C_KMS / fw : s->resolution;
+  } else if (s->resolution > 0) {
+    j->resolution = s->resolution;
+    *label = "header";
+  } else
     return dt_err_set(e, DT_EINVAL, NULL,
-                      "no resolving power in the file: give --resolution R or --fwhm KMS");
+                      "no resolving power in the file: give --resolution R, --fwhm KMS or "
+                      "--resolution-table FILE");
   return DT_OK;
 }
 
@@ -489,6 +531,9 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
   }
   dt_judgement j;
   dt_judgement_init(&j);
+  int lsf_constant = 1;
+  r->lsf_label = NULL;
+  r->lsf_fwhm = 0;
   if (st == DT_OK) {
     snprintf(j.doublet, sizeof j.doublet, "%s", d->name);
     j.vsys = vsys;
@@ -500,7 +545,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
       j.vhi = t->vhi;
     }
     if (c->have_order) j.cont_order = c->cont_order;
-    st = pick_resolution(c, t, s, &j, &e);
+    st = pick_resolution(c, t, s, d, &j, &lsf_constant, &r->lsf_label, &e);
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
   if (st == DT_OK) st = check_window(c, t, &j, s, &e);
@@ -522,6 +567,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     ao.covariance_only = c->cov_only;
     ao.joint_cont = (size_t)c->joint_cont;
     if (c->hyperfine || t->hyperfine) ao.hyperfine = r->hfs;
+    ao.lsf_constant = lsf_constant;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
     dt_autofit_opts_init(&fo);
@@ -531,6 +577,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     st = dt_autofit_run(an, &j, &fo, &o, &e);
   }
   long shown_row = s ? s->row : row;
+  if (an) r->lsf_fwhm = dt_analysis_lsf_fwhm(an);
   if (st == DT_OK || st == DT_ENOCONV) {
     dt_system_result res[DT_MAX_SYSTEMS];
     dt_systems_results(an, &set, &j, &o, st, res);
@@ -649,6 +696,7 @@ static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectr
       snprintf(reason + len, sizeof reason - len, "; parameters at the limit of their range");
     dt_csv_text(w, reason);
     pos_cells(w, s);
+    lsf_cells(w, r, 1);
     tail_cells(w, has ? fr : NULL, k);
     dt_csv_end(w);
   }
@@ -662,9 +710,10 @@ static void write_joint_missing(run *r, const dt_target_spec *t, const dt_spectr
   else snprintf(msg, sizeof msg, "left out of the joint fit: %s", why->what);
   row_head(r, t, s, row, name, "", vsys,
            why->code == DT_ERANGE || why->code == DT_EMASKED ? "not-covered" : "failed");
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
+  lsf_cells(&r->csv, r, 0);
   tail_cells(&r->csv, NULL, 0);
   dt_csv_end(&r->csv);
 }
@@ -679,6 +728,9 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
   dt_err e;
   dt_err_clear(&e);
   double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
+  int lsf_constant = 1;
+  r->lsf_label = NULL;
+  r->lsf_fwhm = 0;
   dt_read_opts ro = c->ropts;
   ro.row = row;
   if (t->air) ro.air = 1;
@@ -714,7 +766,9 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
       j.vhi = t->vhi;
     }
     if (c->have_order) j.cont_order = c->cont_order;
-    st = pick_resolution(c, t, s, &j, &e);
+    st = pick_resolution(c, t, s, d, &j, &lsf_constant, &r->lsf_label, &e);
+    /* the lead doublet's width at its stronger line (lsf_fwhm_kms) */
+    r->lsf_fwhm = j.resolution > 0 ? DT_C_KMS / j.resolution : j.fwhm_kms;
   }
   if (st == DT_OK) st = check_window(c, t, &j, s, &e);
   dt_system_set set;
@@ -740,6 +794,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
     jo.an.cog = r->cog;
     jo.an.covariance_only = c->cov_only;
     if (c->hyperfine || t->hyperfine) jo.an.hyperfine = r->hfs;
+    jo.an.lsf_constant = lsf_constant;
     dt_joint_analysis_set_opts(ja, &jo);
     dt_autofit_opts fo;
     dt_autofit_opts_init(&fo);
@@ -1085,12 +1140,20 @@ static void write_settings(dt_csv *w, const config *c) {
   snprintf(buf, sizeof buf, "%ld/%ld", c->shard_k, c->shard_n);
   dt_csv_comment(w, "shard", buf);
   dt_csv_comment(w, "doublet", c->doublet ? c->doublet : "");
+  /* a plain value as a number (as before), values per doublet as given */
   buf[0] = '\0';
-  if (c->have_R) dt_num_format(buf, sizeof buf, c->R);
+  if (c->have_R) {
+    if (strchr(c->R_text, ':')) snprintf(buf, sizeof buf, "%s", c->R_text);
+    else dt_num_format(buf, sizeof buf, dt_lsf_per_get(&c->Rper, ""));
+  }
   dt_csv_comment(w, "resolution", buf);
   buf[0] = '\0';
-  if (c->have_fwhm) dt_num_format(buf, sizeof buf, c->fwhm);
+  if (c->have_fwhm) {
+    if (strchr(c->F_text, ':')) snprintf(buf, sizeof buf, "%s", c->F_text);
+    else dt_num_format(buf, sizeof buf, dt_lsf_per_get(&c->Fper, ""));
+  }
   dt_csv_comment(w, "fwhm", buf);
+  dt_csv_comment(w, "resolution-table", c->rtable ? dt_lsf_table_name(c->rtable) : "");
   buf[0] = '\0';
   if (c->have_vsys) dt_num_format(buf, sizeof buf, c->vsys);
   dt_csv_comment(w, "vsys", buf);
@@ -1160,7 +1223,7 @@ static void write_settings(dt_csv *w, const config *c) {
 }
 
 enum {
-  O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
+  O_DOUBLET = 256, O_RESTAB, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
   O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS,
   O_HFS, O_HFSTAB,
@@ -1170,6 +1233,7 @@ static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
     {"doublet", required_argument, NULL, O_DOUBLET},
     {"resolution", required_argument, NULL, O_RES},
+    {"resolution-table", required_argument, NULL, O_RESTAB},
     {"fwhm", required_argument, NULL, O_FWHM},
     {"vsys", required_argument, NULL, O_VSYS},
     {"window", required_argument, NULL, O_WINDOW},
@@ -1242,18 +1306,23 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     c->have_btie = 1;
     return 0;
   case O_RES:
-    if (positive("--resolution", v, "R", &c->R)) return 1;
-    if (c->R < FIT_MIN_R) {
-      cli_errorf("--resolution: R = %s is below %g: a resolving power that low smears a "
-                 "doublet beyond fitting (did you mean a FWHM? use --fwhm KMS)",
-                 v, (double)FIT_MIN_R);
-      return 1;
-    }
+    if (cli_opt_per_doublet("--resolution", v, "R", &c->Rper)) return 1;
+    for (int k = 0; k < c->Rper.n; k++)
+      if (c->Rper.e[k].value < FIT_MIN_R) {
+        cli_errorf("--resolution: R = %g is below %g: a resolving power that low smears a "
+                   "doublet beyond fitting (did you mean a FWHM? use --fwhm KMS)",
+                   c->Rper.e[k].value, (double)FIT_MIN_R);
+        return 1;
+      }
+    c->R_text = v;
     c->have_R = 1;
     return 0;
   case O_FWHM:
     c->have_fwhm = 1;
-    return positive("--fwhm", v, "the FWHM", &c->fwhm);
+    c->F_text = v;
+    return cli_opt_per_doublet("--fwhm", v, "the FWHM", &c->Fper);
+  case O_RESTAB:
+    return cli_opt_resolution_table("fit", v, &c->rtable, &c->ropts);
   case O_VSYS:
     if (cli_parse_double("--vsys", v, &c->vsys)) return 1;
     if (!isfinite(c->vsys) || c->vsys <= -DT_C_KMS) {
@@ -1500,6 +1569,7 @@ done:
   dt_cog_cache_free(cog);
   dt_hyperfine_free(hfs);
   dt_atomic_free(atomic);
+  dt_lsf_table_free(c.rtable);
   free(src);
   return rc;
 }

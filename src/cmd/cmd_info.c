@@ -96,6 +96,26 @@ static void print_block(const char *file, const dt_spectrum *s, long nrows, cons
     printf("%sresolution  R = %.0f (header)\n", p, s->resolution);
   else
     printf("%sresolution  none in the header\n", p);
+  if (s->lsf_fwhm_kms) { /* widths per pixel (lsf.h) */
+    double lo = INFINITY, hi = 0;
+    size_t none = 0;
+    for (size_t i = 0; i < s->n; i++) {
+      double w = s->lsf_fwhm_kms[i];
+      if (isfinite(w) && w > 0) {
+        lo = fmin(lo, w);
+        hi = fmax(hi, w);
+      } else {
+        none++;
+      }
+    }
+    if (hi > 0)
+      printf("%sline-spread per pixel from %s: R %.0f-%.0f (FWHM %.2f-%.2f km/s)", p, s->lsf_from,
+             DT_C_KMS / hi, DT_C_KMS / lo, lo, hi);
+    else
+      printf("%sline-spread per pixel from %s: no usable value", p, s->lsf_from);
+    if (none && hi > 0) printf(", %zu pixel%s without", none, none == 1 ? "" : "s");
+    printf("\n");
+  }
 
   /* Doublets whose two lines both fall inside the range, at --vsys. */
   double z1 = 1.0 + o->vsys / DT_C_KMS;

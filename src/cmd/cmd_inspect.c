@@ -17,6 +17,7 @@
 
 #include "../ui/ui.h"
 #include "cli.h"
+#include "doubletty/lsf.h"
 #include "doubletty/hicube.h"
 #include "commands.h"
 #include "doubletty/agree.h"
@@ -40,8 +41,11 @@ static void usage(FILE *f) {
           "                       queue the spectra two sessions gave different verdicts\n"
           "                       (with --list: only the list's entries among them)\n"
           "  --doublet NAME       doublet when the list does not say (default NaI)\n"
-          "  --resolution R       resolving power when neither list nor file says\n"
+          "  --resolution R       resolving power when neither list nor file says (also\n"
+          "                       per doublet: NaI:4800,CaII:3600)\n"
           "  --fwhm KMS           ... or the line-spread FWHM in km/s\n"
+          "  --resolution-table FILE  R at wavelengths (two columns: Angstrom, R), linear\n"
+          "                       in between; over the list's R= and the files' own\n"
           "  --vsys KMS           rest frame when the list does not say\n"
           "  --target-window VLO:VHI  the target system's range [km/s] (default -300:300)\n"
           "  --system NAME:VLO:VHI    another absorber system [km/s] (repeatable)\n"
@@ -67,7 +71,7 @@ static void usage(FILE *f) {
 static void report_line(const char *list, const dt_err *e) { cli_report(list, e); }
 
 enum {
-  O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_VSYS,
+  O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_RESTAB, O_VSYS,
   O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
   O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD, O_HFS, O_HFSTAB
 };
@@ -81,6 +85,7 @@ static const struct option LONGOPTS[] = {
     {"only-disagreements", required_argument, NULL, O_DIS},
     {"doublet", required_argument, NULL, O_DOUBLET},
     {"resolution", required_argument, NULL, O_RES},
+    {"resolution-table", required_argument, NULL, O_RESTAB},
     {"fwhm", required_argument, NULL, O_FWHM},
     {"vsys", required_argument, NULL, O_VSYS},
     {"target-window", required_argument, NULL, O_TWIN},
@@ -110,7 +115,8 @@ typedef struct {
   const char *hfs_file;  /* --hyperfine-table */
   const char *dis[2];
   int read_only, air;
-  dt_read_opts read;     /* --frame, --in-frame, --site */
+  dt_read_opts read;     /* --frame, --in-frame, --site, --resolution-table */
+  dt_lsf_table *rtable;  /* --resolution-table */
   const char *hi;        /* --hi CUBE */
   const char **files, **lists, **from;
   size_t nfiles, nlists, nfrom;
@@ -157,19 +163,31 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
     return 0;
   case O_DOUBLET: o->doublet = v; return 0;
   case O_RES:
-    if (cli_parse_double("--resolution", v, &o->resolution)) return 1;
-    if (!(o->resolution > 0) || !isfinite(o->resolution)) {
-      cli_errorf("inspect: --resolution must be a positive resolving power, not '%s'", v);
-      return 1;
+  case O_FWHM: {
+    /* a plain value, or values per doublet (lsf.h) */
+    int fw = opt == O_FWHM;
+    if (!strchr(v, ':')) {
+      double *x = fw ? &o->fwhm_kms : &o->resolution;
+      if (cli_parse_double(fw ? "--fwhm" : "--resolution", v, x)) return 1;
+      if (!(*x > 0) || !isfinite(*x)) {
+        cli_errorf(fw ? "inspect: --fwhm must be a positive width in km/s, not '%s'"
+                      : "inspect: --resolution must be a positive resolving power, not '%s'",
+                   v);
+        return 1;
+      }
+      return 0;
     }
-    return 0;
-  case O_FWHM:
-    if (cli_parse_double("--fwhm", v, &o->fwhm_kms)) return 1;
-    if (!(o->fwhm_kms > 0) || !isfinite(o->fwhm_kms)) {
-      cli_errorf("inspect: --fwhm must be a positive width in km/s, not '%s'", v);
+    if (cli_opt_per_doublet(fw ? "inspect: --fwhm" : "inspect: --resolution", v,
+                            fw ? "the FWHM" : "R", &o->res_per))
       return 1;
-    }
+    o->res_per_fwhm = fw;
+    double x = dt_lsf_per_get(&o->res_per, "");
+    if (fw) o->fwhm_kms = x;
+    else o->resolution = x;
     return 0;
+  }
+  case O_RESTAB:
+    return cli_opt_resolution_table("inspect", v, &a->rtable, &a->read);
   case O_VSYS:
     if (cli_parse_double("--vsys", v, &o->vsys)) return 1;
     o->has_vsys = 1;
@@ -535,6 +553,7 @@ out:
   dt_hyperfine_free(hfs);
   dt_queue_free(&q);
   dt_atomic_free(atomic);
+  dt_lsf_table_free(a.rtable);
   free(a.files);
   free(a.lists);
   free(a.from);

@@ -23,6 +23,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "doubletty/lsf.h"
 #include "doubletty/num.h"
 #include "commands.h"
 #include "doubletty/analysis.h"
@@ -52,6 +53,7 @@ static void usage(FILE *f) {
           "  --atomic FILE     with --verify: add (or replace) doublets from FILE\n"
           "  --hyperfine       with --verify: refit with hyperfine structure (for a\n"
           "                    session made with inspect --hyperfine)\n"
+          "  --resolution-table FILE  with --verify: the R(lambda) table the fits used\n"
           "  -h, --help        this text\n\n"
           "actions: window-add window-remove comp-add comp-remove comp-set freeze tie-b\n"
           "         cont-order doublet resolution vsys vwindow fit verdict note restore autofit\n");
@@ -258,7 +260,8 @@ static const char *locate(const char *path, const char *session, char *buf, size
   return path;
 }
 
-static int verify(const char *session, const char *pattern, const char *atomic_file, int hfs) {
+static int verify(const char *session, const char *pattern, const char *atomic_file, int hfs,
+                  const dt_lsf_table *rtable) {
   dt_journal *j = su_open(session);
   if (!j) return 1;
   dt_atomic *at = cli_load_atomic(atomic_file);
@@ -291,6 +294,7 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     nfit++;
     dt_read_opts ro;
     memset(&ro, 0, sizeof ro);
+    ro.lsf_table = rtable;
     ro.hdu = en->target.hdu;
     ro.row = en->target.row;
     /* the frame and position the fit was made in, as recorded */
@@ -352,12 +356,14 @@ static const struct option LONGOPTS[] = {{"help", no_argument, NULL, 'h'},
                                          {"verify", no_argument, NULL, 'v'},
                                          {"hyperfine", no_argument, NULL, 'H'},
                                          {"system", required_argument, NULL, 's'},
+                                         {"resolution-table", required_argument, NULL, 'T'},
                                          {NULL, 0, NULL, 0}};
 
 int cmd_log(int argc, char **argv) {
   const char *session = NULL, *pattern = NULL, *user = NULL, *actions = NULL, *atomic = NULL;
   const char *system = NULL;
   int do_verify = 0, hfs = 0, opt;
+  dt_lsf_table *rtable = NULL;
   cli_getopt_reset();
   while ((opt = getopt_long(argc, argv, ":h", LONGOPTS, NULL)) != -1) {
     switch (opt) {
@@ -369,7 +375,10 @@ int cmd_log(int argc, char **argv) {
     case 'v': do_verify = 1; break;
     case 'H': hfs = 1; break;
     case 's': system = optarg; break;
-    default: return cli_opt_error("log", opt, argv);
+    case 'T':
+      if (cli_opt_resolution_table("log", optarg, &rtable, &(dt_read_opts){0})) return 2;
+      break;
+    default: dt_lsf_table_free(rtable); return cli_opt_error("log", opt, argv);
     }
   }
   if (optind < argc) session = argv[optind++];
@@ -382,6 +391,7 @@ int cmd_log(int argc, char **argv) {
     return 2;
   }
   if (hfs && !do_verify) {
+    dt_lsf_table_free(rtable);
     cli_errorf("log: --hyperfine applies to refits, with --verify");
     return 2;
   }
@@ -392,7 +402,14 @@ int cmd_log(int argc, char **argv) {
       cli_errorf("log: --verify checks final states; --user, --action and --system do not apply");
       return 2;
     }
-    return verify(session, pattern, atomic, hfs);
+    int vrc = verify(session, pattern, atomic, hfs, rtable);
+    dt_lsf_table_free(rtable);
+    return vrc;
+  }
+  if (rtable) {
+    dt_lsf_table_free(rtable);
+    cli_errorf("log: --resolution-table goes with --verify");
+    return 2;
   }
 
   dt_journal_reader *rd;

@@ -27,11 +27,13 @@
 #include "doubletty/cog.h"
 #include "doubletty/continuum.h"
 #include "doubletty/legendre.h"
+#include "doubletty/lsf.h"
 #include "doubletty/measure.h"
 #include "doubletty/model.h"
 
 typedef struct model_key {
   const dt_doublet *doublet;
+  const double *lsf;          /* widths per pixel of the window, or NULL */
   double vsys, resolution, fwhm, vlo, vhi, tau_cut;
   int oversample;
   size_t i0, n;
@@ -295,6 +297,21 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   mk.doublet = d; mk.vsys = j->vsys; mk.resolution = j->resolution; mk.fwhm = j->fwhm_kms;
   mk.vlo = j->vlo; mk.vhi = j->vhi; mk.tau_cut = a->opts.tau_cut;
   mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n; mk.hfs = a->opts.hyperfine;
+  if (!a->opts.lsf_constant && a->s->lsf_fwhm_kms) {
+    /* widths per pixel: every pixel of the window needs one */
+    size_t bad = dt_lsf_first_bad(a->s, i0, n);
+    if (bad < n)
+      return dt_err_set(e, DT_ERANGE, "resolution",
+                        "no line-spread width at %.3f A from %.100s (outside the table, or no "
+                        "usable value there)",
+                        a->s->wave[i0 + bad], a->s->lsf_from);
+    mk.lsf = a->s->lsf_fwhm_kms + i0;
+    mk.resolution = mk.fwhm = 0;
+    size_t ic = dt_spectrum_index(a->s, dt_wavelength(0.0, d->line[0].lambda0, j->vsys));
+    if (ic < i0) ic = i0;
+    if (ic > i0 + n - 1) ic = i0 + n - 1;
+    a->fwhm_kms = a->s->lsf_fwhm_kms[ic];
+  }
   if (a->have_model && memcmp(&mk, &a->mkey, sizeof mk) == 0) return DT_OK;
   dt_model_free(a->m);
   a->have_model = 0;
@@ -302,8 +319,9 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   memset(&cfg, 0, sizeof cfg);
   cfg.doublet = d;
   cfg.vsys = j->vsys;
-  cfg.resolution = j->resolution;
-  cfg.fwhm_kms = j->fwhm_kms;
+  cfg.resolution = mk.resolution;
+  cfg.fwhm_kms = mk.fwhm;
+  cfg.lsf_fwhm_kms = mk.lsf;
   cfg.oversample = a->opts.oversample;
   cfg.tau_cut = a->opts.tau_cut;
   for (int l = 0; l < 2; l++) cfg.hfs[l] = dt_hyperfine_find(a->opts.hyperfine, d, l);
@@ -568,6 +586,7 @@ static int single_line_models(dt_analysis *a, double lo, double hi) {
       cfg.vsys = a->mkey.vsys;
       cfg.resolution = a->mkey.resolution;
       cfg.fwhm_kms = a->mkey.fwhm;
+      cfg.lsf_fwhm_kms = a->mkey.lsf;
       cfg.oversample = a->opts.oversample;
       cfg.tau_cut = a->opts.tau_cut;
       for (int h = 0; h < 2; h++) cfg.hfs[h] = dt_hyperfine_find(a->mkey.hfs, &a->sd[l], h);
@@ -1022,6 +1041,12 @@ int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
   set_continuum(a, r->cont_coef, p.ncont);
   finish(a, j, j->comp, j->ncomp, out);
   return DT_OK;
+}
+
+double dt_analysis_lsf_fwhm(const dt_analysis *a) { return a ? a->fwhm_kms : 0.0; }
+
+const char *dt_analysis_lsf_source(const dt_analysis *a) {
+  return a && a->have_model && a->mkey.lsf ? a->s->lsf_from : NULL;
 }
 
 const double *dt_analysis_wave(const dt_analysis *a) {

@@ -462,7 +462,7 @@ static void setup_ctx(ctx *c, dt_analysis *a, const dt_judgement *j,
     c->dep.e[l] = ye;
   }
   c->p = c->black ? &c->dep : &c->na;
-  c->fwhm = j->resolution > 0 ? DT_C_KMS / j->resolution : j->fwhm_kms > 0 ? j->fwhm_kms : 0;
+  c->fwhm = dt_analysis_lsf_fwhm(a); /* the judgement's, or the width per pixel at the line */
   c->pix = fabs(c->vel[0][c->n - 1] - c->vel[0][0]) / (double)(c->n - 1);
   double bw = c->fwhm > 0 ? c->fwhm / c->pix : 3.0;
   c->box = bw < 1 ? 1 : bw > 31 ? 31 : (size_t)lround(bw);

@@ -27,6 +27,7 @@
 
 #include "doubletty/elements.h"
 #include "doubletty/hyperfine.h"
+#include "doubletty/lsf.h"
 
 typedef struct model_key {
   const dt_doublet *d;
@@ -35,6 +36,7 @@ typedef struct model_key {
   const double *wave;
   size_t n;
   const dt_hyperfine *hfs;
+  const double *lsf; /* widths per pixel (lsf.h); NULL: resolution/fwhm */
 } model_key;
 
 typedef struct species_slot {
@@ -200,6 +202,19 @@ static int ensure_model(dt_joint_analysis *ja, size_t s, const dt_judgement *j,
   k.wave = wave;
   k.n = n;
   k.hfs = ja->opts.an.hyperfine;
+  const dt_spectrum *sp = ja->s;
+  if (!ja->opts.an.lsf_constant && sp->lsf_fwhm_kms && wave >= sp->wave &&
+      wave < sp->wave + sp->n) {
+    /* widths per pixel: each species' lines at their own wavelengths */
+    size_t i0 = (size_t)(wave - sp->wave), bad = dt_lsf_first_bad(sp, i0, n);
+    if (bad < n)
+      return dt_err_set(e, DT_ERANGE, "resolution",
+                        "no line-spread width at %.3f A from %.100s (outside the table, or no "
+                        "usable value there)",
+                        wave[bad], sp->lsf_from);
+    k.lsf = sp->lsf_fwhm_kms + i0;
+    k.resolution = k.fwhm = 0;
+  }
   if (sl->have_model && memcmp(&k, &sl->key, sizeof k) == 0) return DT_OK;
   dt_model_free(sl->m);
   sl->have_model = 0;
@@ -207,8 +222,9 @@ static int ensure_model(dt_joint_analysis *ja, size_t s, const dt_judgement *j,
   memset(&cfg, 0, sizeof cfg);
   cfg.doublet = d;
   cfg.vsys = j->vsys;
-  cfg.resolution = j->resolution;
-  cfg.fwhm_kms = j->fwhm_kms;
+  cfg.resolution = k.resolution;
+  cfg.fwhm_kms = k.fwhm;
+  cfg.lsf_fwhm_kms = k.lsf;
   cfg.oversample = ja->opts.an.oversample;
   cfg.tau_cut = ja->opts.an.tau_cut;
   for (int l = 0; l < 2; l++) cfg.hfs[l] = dt_hyperfine_find(k.hfs, d, l);

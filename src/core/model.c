@@ -106,6 +106,8 @@ void dt_model_get_info(const dt_model *m, dt_model_info *info) {
   info->tau_cut = m->tau_cut;
   info->interpolated = m->interp;
   info->ncoef = m->ncoef;
+  info->lsf_per_pixel = m->sigpix != NULL;
+  info->lsf_sigma_max_kms = m->sigpix ? m->sigma_max_kms : m->sigma_kms;
 }
 
 void dt_model_free(dt_model *m) {
@@ -133,6 +135,12 @@ void dt_model_free(dt_model *m) {
   free(m->mom);
   free(m->scr);
   free(m->pedge);
+  free(m->sigpix);
+  free(m->gloc);
+  free(m->g0pix);
+  free(m->hkt);
+  free(m->kc);
+  free(m->tc);
   free(m);
 }
 
@@ -167,6 +175,12 @@ static int check_config(const double *wave, size_t n, const dt_model_config *cfg
   if (!isfinite(cfg->resolution) || !isfinite(cfg->fwhm_kms)) {
     return dt_err_set(e, DT_EINVAL, NULL, "model: resolution or LSF width is not a number");
   }
+  if (cfg->lsf_fwhm_kms)
+    for (size_t i = 0; i < n; i++)
+      if (!isfinite(cfg->lsf_fwhm_kms[i]) || !(cfg->lsf_fwhm_kms[i] > 0))
+        return dt_err_set(e, DT_EINVAL, NULL,
+                          "model: LSF width %g km/s at pixel %zu (%.3f A) is not a positive number",
+                          cfg->lsf_fwhm_kms[i], i, wave[i]);
   if (cfg->oversample < 0 || cfg->oversample > 1000) {
     return dt_err_set(e, DT_EINVAL, NULL, "model: oversampling %d outside 1..1000", cfg->oversample);
   }
@@ -240,7 +254,9 @@ static int grid_layout(dt_model *m, const double *wave, double *lo, double *hi,
     m->dy = m->sigma_kms / DT_C_KMS / DT_MODEL_LSF_CELLS;
     sc = DT_MODEL_LSF_CELLS;
   }
-  double hwd = m->sigma_kms > 0 ? ceil(DT_MODEL_LSF_NSIGMA * sc) : 0.0;
+  /* with widths per pixel, cells from the narrowest, reach from the widest */
+  double scmax = m->sigpix ? sc * (m->sigma_max_kms / m->sigma_kms) : sc;
+  double hwd = m->sigma_kms > 0 ? ceil(DT_MODEL_LSF_NSIGMA * scmax) : 0.0;
   /* interpolation reaches two cell centres beyond a pixel's ends */
   double pad = hwd + (m->interp ? 2.0 : 0.0);
   double nfd = ceil((hi[n - 1] - lo[0]) / m->dy) + 2.0 * pad + 1.0;
@@ -254,6 +270,10 @@ static int grid_layout(dt_model *m, const double *wave, double *lo, double *hi,
   m->nf = (size_t)nfd;
   m->y0 = lo[0] - pad * m->dy;
   *sig_cells = sc;
+  if (m->sigpix) /* the widths in cells (sigpix held them in km/s) */
+    for (size_t i = 0; i < n; i++)
+      m->sigpix[i] = m->interp ? DT_MODEL_LSF_CELLS * (m->sigpix[i] / m->sigma_kms)
+                               : m->sigpix[i] / (DT_C_KMS * m->dy);
   return DT_OK;
 }
 
@@ -289,6 +309,11 @@ static int alloc_buffers(dt_model *m) {
   m->mom = malloc(MOM_CHUNK * 3 * MOM_MAX * sizeof *m->mom);
   m->scr = malloc(3 * nf * sizeof *m->scr);
   m->pedge = malloc((n + 1) * sizeof *m->pedge);
+  if (m->sigpix) {
+    m->gloc = malloc((size_t)(2 * hw + 1) * sizeof *m->gloc);
+    m->g0pix = malloc(n * sizeof *m->g0pix);
+    if (!m->gloc || !m->g0pix) return DT_ENOMEM;
+  }
   if (!m->invlam || !m->m0 || !m->m1 || !m->off || !m->tau || !m->dep || !m->ex || !m->q ||
       !m->last_flux || !m->sfirst || !m->sinv || !m->stau || !m->sex || !m->sq || !m->pc0 ||
       !m->pc1 || !m->pwoff || !m->hk || !m->mom || !m->scr || !m->pedge)
@@ -322,6 +347,18 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   double fwhm = cfg->resolution > 0 ? DT_C_KMS / cfg->resolution
                                     : (cfg->fwhm_kms > 0 ? cfg->fwhm_kms : 0.0);
   m->sigma_kms = fwhm / FWHM_PER_SIGMA;
+  if (cfg->lsf_fwhm_kms) {
+    m->sigpix = malloc(n * sizeof *m->sigpix);
+    if (!m->sigpix) goto nomem;
+    double smin = INFINITY, smax = 0;
+    for (size_t i = 0; i < n; i++) {
+      m->sigpix[i] = cfg->lsf_fwhm_kms[i] / FWHM_PER_SIGMA;
+      smin = fmin(smin, m->sigpix[i]);
+      smax = fmax(smax, m->sigpix[i]);
+    }
+    m->sigma_kms = smin;
+    m->sigma_max_kms = smax;
+  }
   lo = malloc(n * sizeof *lo);
   hi = malloc(n * sizeof *hi);
   if (!lo || !hi) goto nomem;
@@ -333,6 +370,7 @@ dt_model *dt_model_alloc(const double *wave, size_t n, const dt_model_config *cf
   dt_model_moment_kernel(m, g, sig_cells);
   cell_centres(m, lo, hi);
   if (dt_model_pixel_operator(m, lo, hi, g) != DT_OK) goto nomem;
+  if (m->sigpix && dt_model_moment_table(m) != DT_OK) goto nomem;
   free(g);
   free(lo);
   free(hi);

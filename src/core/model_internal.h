@@ -61,6 +61,10 @@
 #define MOM_MAX 16
 #define MOM_SMIN 1.0
 #define MOM_CHUNK 64
+/* Widths per pixel: the moved kernels tabulated at widths a factor 1 +
+ * KT_STEP apart and interpolated linearly in between (relative error of
+ * the corrections ~KT_STEP^2/8, 5e-5) */
+#define KT_STEP 0.02
 
 /* Lines one component can have: both lines of the doublet, each split into
  * up to DT_HFS_MAX hyperfine components. */
@@ -154,6 +158,16 @@ struct dt_model {
   double g0;     /* the kernel's centre weight */
   int interp;    /* cells of sigma / DT_MODEL_LSF_CELLS, read by interpolation */
   size_t ncoef;  /* entries of coef */
+  /* Resolution per pixel (cfg.lsf_fwhm_kms; NULL sigpix: constant) */
+  double *sigpix;       /* LSF sigma of each pixel [cells] */
+  double sigma_max_kms; /* the widest (sigma_kms: the narrowest) */
+  double *gloc;         /* a kernel of 2 hw + 1 weights */
+  double *g0pix;        /* each pixel's kernel centre weight */
+  /* the moved kernels of the narrow-line corrections, tabulated at widths
+   * sigma_min (1 + KT_STEP)^k, k < nkt: nkt x nmom x (2 hw + 1) in hkt; cell
+   * c uses kernel kc[c] and kc[c] + 1 with weights 1 - tc[c], tc[c] */
+  double *hkt, *tc;
+  int *kc, nkt;
 };
 
 /* x + i y without CMPLX (not every C library provides it); a complex is
@@ -193,6 +207,8 @@ void dt_model_lsf_kernel(dt_model *m, double *g, double sig_cells);
 void dt_model_moment_kernel(dt_model *m, const double *g, double sig_cells);
 int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, const double *g);
 void dt_model_apply_flux(const dt_model *m, int nu, double *flux);
+void dt_model_moments_pix(dt_model *m, long j0, long j1, int nv, double *out, size_t ld);
+int dt_model_moment_table(dt_model *m);
 void dt_model_apply_jac(const dt_model *m, size_t ncomp, double *jac, size_t ldj);
 
 /* The first i in [0, n) with a[i] >= x (n if none), a sorted ascending:

@@ -71,6 +71,107 @@ void dt_model_lsf_kernel(dt_model *m, double *g, double sig_cells) {
   m->g0 = g[hw];
 }
 
+/* Resolution per pixel: the kernel of sig_cells cells in g[0..2hw], cut
+ * where the constant kernel of that width would be (ceil(NSIGMA sigma)
+ * cells, zeros beyond up to hw) and normalised to sum 1; g0 its centre. */
+static void kernel_cut(dt_model *m, double *g, double sig_cells) {
+  const int hw = m->hw;
+  double cut = ceil(DT_MODEL_LSF_NSIGMA * sig_cells), gsum = 0;
+  for (int k = -hw; k <= hw; k++) {
+    double t = k / sig_cells;
+    g[k + hw] = fabs((double)k) <= cut ? exp(-0.5 * t * t) : 0.0;
+    gsum += g[k + hw];
+  }
+  for (int k = 0; k <= 2 * hw; k++) g[k] /= gsum;
+  m->g0 = g[hw];
+}
+
+/* Resolution per pixel: the moved kernels of the narrow-line corrections
+ * (dt_model_moment_kernel) for every width, tabulated at widths a factor
+ * 1 + KT_STEP apart from the narrowest; each cell takes the width of the
+ * pixel holding its centre (the nearest pixel for cells beyond them) and
+ * interpolates linearly between the two tabulated kernels around it.  The
+ * number of terms is the narrowest kernel's (m->nmom); wider kernels need
+ * fewer, their further rows are zero.  Nothing without widths per pixel or
+ * without moments (an LSF below MOM_SMIN cells: pixel edges, g0pix). */
+int dt_model_moment_table(dt_model *m) {
+  const int nm_all = m->nmom, hw = m->hw;
+  if (!m->sigpix || nm_all == 0) return DT_OK;
+  const size_t kw = (size_t)(2 * hw + 1), nf = m->nf, n = m->n;
+  double smin = INFINITY, smax = 0;
+  for (size_t i = 0; i < n; i++) {
+    smin = fmin(smin, m->sigpix[i]);
+    smax = fmax(smax, m->sigpix[i]);
+  }
+  const double lstep = log1p(KT_STEP);
+  int nkt = 1 + (int)ceil(log(smax / smin) / lstep - 1e-9);
+  if (nkt < 1) nkt = 1;
+  m->hkt = calloc((size_t)(nkt + 1) * (size_t)nm_all * kw, sizeof *m->hkt);
+  m->kc = malloc(nf * sizeof *m->kc);
+  m->tc = malloc(nf * sizeof *m->tc);
+  if (!m->hkt || !m->kc || !m->tc) return DT_ENOMEM;
+  m->nkt = nkt;
+  for (int k = 0; k <= nkt; k++) { /* one more, never weighted, for k + 1 */
+    double s = k == 0 ? smin : smin * exp(k * lstep);
+    kernel_cut(m, m->gloc, s);
+    dt_model_moment_kernel(m, m->gloc, s);
+    for (int q = 0; q < m->nmom && q < nm_all; q++)
+      memcpy(m->hkt + ((size_t)k * (size_t)nm_all + (size_t)q) * kw, m->hk + (size_t)q * kw,
+             kw * sizeof *m->hkt);
+  }
+  m->nmom = nm_all;
+  size_t i = 0;
+  for (size_t c = 0; c < nf; c++) {
+    double yc = m->y0 + ((double)c + 0.5) * m->dy;
+    while (i + 1 < n && m->pedge[i + 1] <= yc) i++;
+    double u = m->sigpix[i] > smin ? log(m->sigpix[i] / smin) / lstep : 0.0;
+    int k = (int)floor(u);
+    if (k >= nkt) k = nkt - 1;
+    m->kc[c] = k;
+    m->tc[c] = u - k;
+  }
+  return DT_OK;
+}
+
+/* Resolution per pixel: what sub_moments does through one kernel, here
+ * with the kernel of each cell's width (dt_model_moment_table): the
+ * moments of cells j0..j1 (m->mom, nv planes) convolved at the cells they
+ * reach, then each pixel's share of them taken off out[i*ld + v]. */
+void dt_model_moments_pix(dt_model *m, long j0, long j1, int nv, double *out, size_t ld) {
+  const int hw = m->hw, nm = m->nmom;
+  const size_t kw = (size_t)(2 * hw + 1), nf = m->nf, kstride = (size_t)nm * kw;
+  long A = j0 - hw, B = j1 + hw;
+  if (A < 0) A = 0;
+  if (B > (long)nf - 1) B = (long)nf - 1;
+  for (long c = A; c <= B; c++) {
+    const double *h0 = m->hkt + (size_t)m->kc[c] * kstride, *h1 = h0 + kstride;
+    const double t = m->tc[c];
+    long ja = c - hw > j0 ? c - hw : j0, jb = c + hw < j1 ? c + hw : j1;
+    for (int v = 0; v < nv; v++) {
+      double s0 = 0, s1 = 0;
+      for (long j = ja; j <= jb; j++) {
+        const double *mv = m->mom + (size_t)(j - j0) * 3 * MOM_MAX + (size_t)v * MOM_MAX;
+        const size_t k = (size_t)(c - j + hw);
+        for (int q = 0; q < nm; q++) {
+          s0 += mv[q] * h0[(size_t)q * kw + k];
+          s1 += mv[q] * h1[(size_t)q * kw + k];
+        }
+      }
+      m->scr[(size_t)v * nf + (size_t)c] = t > 0 ? (1.0 - t) * s0 + t * s1 : s0;
+    }
+  }
+  for (size_t i = dt_model_first_reaching(m->pc1, m->n, A); i < m->n && m->pc0[i] <= B; i++) {
+    long c0 = m->pc0[i] > A ? m->pc0[i] : A, c1 = m->pc1[i] < B ? m->pc1[i] : B;
+    const double *pw = m->pw + m->pwoff[i] - m->pc0[i];
+    for (int v = 0; v < nv; v++) {
+      const double *sv = m->scr + (size_t)v * nf;
+      double acc = 0;
+      for (long c = c0; c <= c1; c++) acc += pw[c] * sv[c];
+      out[i * ld + (size_t)v] -= acc;
+    }
+  }
+}
+
 /* The kernel moved by a fraction of a cell, for the moments of sub-sampled
  * cells (model_narrow.c), in m->hk and m->nmom. */
 void dt_model_moment_kernel(dt_model *m, const double *g, double sig_cells) {
@@ -165,11 +266,17 @@ int dt_model_pixel_operator(dt_model *m, const double *lo, const double *hi, con
         if (ov > 0) pwi[j] = ov / wsum;
       }
     }
+    const double *gi = g;
+    if (m->sigpix) { /* this pixel's own width */
+      kernel_cut(m, m->gloc, m->sigpix[i]);
+      gi = m->gloc;
+      m->g0pix[i] = m->g0;
+    }
     for (long j = clo[i]; j <= chi[i]; j++) {
       double p = pwi[j];
       if (p == 0) continue;
       /* convolved cell j = sum_k g[k] * cell(j - k) */
-      for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * g[k + hw];
+      for (int k = -hw; k <= hw; k++) row[j - k - m->m0[i]] += p * gi[k + hw];
     }
   }
   return DT_OK;

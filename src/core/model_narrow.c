@@ -273,6 +273,10 @@ static void sub_moments(dt_model *m, int u, long j0, long j1, const double *sqk,
     for (int v = 0; v < nv; v++)
       for (int q = 0; q < nm; q++) mj[v * MOM_MAX + q] *= w;
   }
+  if (m->sigpix) { /* widths per pixel: each cell through its pixel's kernel (model_lsf.c) */
+    dt_model_moments_pix(m, j0, j1, nv, out, ld);
+    return;
+  }
   /* through the kernel: plane v of scr over cells A..B */
   long A = j0 - hw, B = j1 + hw;
   if (A < 0) A = 0;
@@ -339,6 +343,12 @@ static void sub_edges(dt_model *m, int u, long j0, long j1, const double *sqk, c
         left += (fp < 1 ? fp : 1.0) * x;
       }
       double mean = sqk ? qk[3 * c + v] : m->dep[c];
+      if (m->sigpix) { /* widths per pixel: each pixel's own centre weight */
+        double x = (left / r - f * mean) * m->dy;
+        out[i * ld + (size_t)v] -= m->g0pix[i] * x / wl;
+        out[(i + 1) * ld + (size_t)v] += m->g0pix[i + 1] * x / wr;
+        continue;
+      }
       double d = g0 * (left / r - f * mean) * m->dy; /* content moved below the edge */
       out[i * ld + (size_t)v] -= d / wl;
       out[(i + 1) * ld + (size_t)v] += d / wr;

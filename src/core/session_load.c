@@ -99,12 +99,13 @@ static int read_into(const dt_atomic *atomic, const dt_session_target *t, dt_spe
   int rc = dt_spectrum_read(t->path, &ro, spec, &e);
   if (rc == DT_OK) {
     *an = dt_analysis_alloc(*spec, atomic);
-    if (*an && (t->cog || t->defer_intervals || t->hyperfine)) {
+    if (*an && (t->cog || t->defer_intervals || t->hyperfine || t->lsf_constant)) {
       dt_analysis_opts ao;
       dt_analysis_opts_init(&ao);
       ao.cog = t->cog;
       ao.defer_intervals = t->defer_intervals;
       ao.hyperfine = t->hyperfine;
+      ao.lsf_constant = t->lsf_constant;
       dt_analysis_set_opts(*an, &ao);
     }
     if (!*an) {
@@ -275,7 +276,10 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     }
     ss->pending = 1;
     dt_session_analyse_state(ss, &ss->j, 0);
-    if (!ss->j.resolution && !ss->j.fwhm_kms)
+    if (ss->an_ok && dt_analysis_lsf_source(ss->an))
+      dt_session_say(ss, DT_TONE_TEXT, "line-spread width per pixel from %s (FWHM %.1f km/s at the line)",
+                     dt_analysis_lsf_source(ss->an), dt_analysis_lsf_fwhm(ss->an));
+    else if (!ss->j.resolution && !ss->j.fwhm_kms)
       dt_session_say(ss, DT_TONE_WARN, "no resolution known (file header, list R=/fwhm= or --resolution): "
                                        "fitting without instrumental broadening");
   }

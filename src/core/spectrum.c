@@ -25,6 +25,7 @@
 
 #include "doubletty/airvac.h"
 #include "doubletty/atomic.h"
+#include "doubletty/lsf.h"
 #include "doubletty/num.h"
 #include "spectrum_priv.h"
 
@@ -50,6 +51,7 @@ void dt_spectrum_free(dt_spectrum *s) {
   free(s->flux);
   free(s->sigma);
   free(s->mask);
+  free(s->lsf_fwhm_kms);
   free(s);
 }
 
@@ -151,6 +153,7 @@ int dt_spectrum_finish(dt_spectrum *s, const char *prefix, const char *label,
     reverse_d(s->wave, n);
     reverse_d(s->flux, n);
     reverse_d(s->sigma, n);
+    if (s->lsf_fwhm_kms) reverse_d(s->lsf_fwhm_kms, n);
     for (size_t i = 0, j = n - 1; i < j; i++, j--) {
       unsigned char t = s->mask[i];
       s->mask[i] = s->mask[j];
@@ -455,6 +458,7 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **o
   free(base);
   free(sel);
   if (rc == DT_OK && *out) rc = dt_spectrum_settle_frame(*out, opts, e);
+  if (rc == DT_OK && *out && opts && opts->lsf_table) rc = dt_lsf_table_apply(opts->lsf_table, *out, e);
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);
     *out = NULL;
@@ -480,6 +484,7 @@ int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
       rc = dt_spectrum_read_text_mem(buf, len, opts, out, e);
   }
   if (rc == DT_OK && *out) rc = dt_spectrum_settle_frame(*out, opts, e);
+  if (rc == DT_OK && *out && opts && opts->lsf_table) rc = dt_lsf_table_apply(opts->lsf_table, *out, e);
   if (rc != DT_OK && *out) {
     dt_spectrum_free(*out);
     *out = NULL;

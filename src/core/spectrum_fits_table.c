@@ -109,9 +109,12 @@ static const char *const mask_names[] = {"MASK", "AND_MASK", NULL};
 /* Sky position per row, degrees (ICRS): the first pair present */
 static const char *const ra_names[] = {"RA", "PLUG_RA", "RA_OBJ", NULL};
 static const char *const dec_names[] = {"DEC", "PLUG_DEC", "DEC_OBJ", NULL};
+/* Line-spread width per pixel (optional; spectrum.h): a FWHM or a Gaussian
+ * sigma in the unit of TUNITn, or a resolving power; the first present */
+static const char *const lsf_names[] = {"LSF_FWHM", "LSF_SIGMA", "RESPOWER", "RESOLUTION", NULL};
 
 typedef struct table_cols {
-  colinfo wave, flux, err, mask, ra, dec;
+  colinfo wave, flux, err, mask, ra, dec, lsf;
   long long nrows;
   int rows_layout;
 } table_cols;
@@ -137,6 +140,7 @@ static int table_columns(fctx *c, int hdu, const dt_read_opts *o, table_cols *t,
   if (!rc) rc = find_column(c->f, ncols, names, wo, wave_names, "wavelength", &t->wave, where, e);
   if (!rc) rc = find_column(c->f, ncols, names, eo, err_names, "uncertainty", &t->err, where, e);
   if (!rc) rc = find_column(c->f, ncols, names, mo, mask_names, "mask", &t->mask, where, e);
+  if (!rc) rc = find_column(c->f, ncols, names, NULL, lsf_names, "line-spread", &t->lsf, where, e);
   memset(&t->ra, 0, sizeof t->ra);
   memset(&t->dec, 0, sizeof t->dec);
   for (int k = 0; !rc && ra_names[k] && !t->ra.num; k++) {
@@ -192,6 +196,83 @@ static int table_wave_unit(fctx *c, const colinfo *w, int *log10, double *scale,
   return DT_OK;
 }
 
+/* The line-spread column: its kind from the name, its unit from TUNITn
+ * (widths: a length, km/s, or pixel; R: none), into s->lsf_fwhm_kms as a
+ * FWHM in km/s at each pixel (FWHM = 2 sqrt(2 ln 2) sigma for a Gaussian;
+ * FWHM [km/s] = c FWHM [A] / lambda; FWHM = c / R); where the value is not
+ * a positive number, interpolated from the pixels around, NaN beyond the
+ * first or last value.  s->wave is read (scaled to Angstrom); buf holds
+ * n doubles. */
+static int table_lsf(fctx *c, const colinfo *ci, long long row, dt_spectrum *s, double *buf,
+                     const char *where, dt_err *e) {
+  const size_t n = s->n;
+  int rpow = dt_spectrum_name_eq(ci->name, "RESPOWER") || dt_spectrum_name_eq(ci->name, "RESOLUTION");
+  double fac = dt_spectrum_name_eq(ci->name, "LSF_SIGMA") ? 2.3548200450309493820 : 1.0;
+  char key[FLEN_KEYWORD], unit[FLEN_VALUE], canon[16] = "";
+  snprintf(key, sizeof key, "TUNIT%d", ci->num);
+  dt_fits_key_str(c->f, key, unit);
+  enum { U_LEN, U_KMS, U_PIX } kind = U_LEN;
+  double scale = 1.0;
+  if (!rpow) {
+    char low[FLEN_VALUE];
+    size_t k = 0;
+    for (const char *p = unit; *p && k + 1 < sizeof low; p++)
+      if (*p != ' ') low[k++] = (char)tolower((unsigned char)*p);
+    low[k] = '\0';
+    if (!strcmp(low, "km/s") || !strcmp(low, "kms-1") || !strcmp(low, "km.s**-1") ||
+        !strcmp(low, "km.s-1"))
+      kind = U_KMS;
+    else if (!strcmp(low, "pix") || !strcmp(low, "pixel") || !strcmp(low, "pixels"))
+      kind = U_PIX;
+    else if (dt_spectrum_unit_scale(unit, &scale, canon, sizeof canon) != 0)
+      return dt_err_set(e, DT_EFORMAT, where,
+                        "unknown unit %s = '%s' of column %s (a length, km/s or pixel)", key, unit,
+                        ci->name);
+  } else if (unit[0] && strspn(unit, " ") != strlen(unit)) {
+    return dt_err_set(e, DT_EFORMAT, where, "column %s is a resolving power, without unit, not '%s'",
+                      ci->name, unit);
+  }
+  int rc = read_col(c->f, ci, row, (long long)n, buf, where, e);
+  if (rc) return rc;
+  s->lsf_fwhm_kms = malloc(n * sizeof *s->lsf_fwhm_kms);
+  if (!s->lsf_fwhm_kms) return dt_err_set(e, DT_ENOMEM, where, "out of memory");
+  for (size_t i = 0; i < n; i++) {
+    double v = buf[i], w = s->wave[i], out = NAN;
+    if (isfinite(v) && v > 0 && isfinite(w) && w > 0) {
+      if (rpow) {
+        out = DT_C_KMS / v;
+      } else if (kind == U_KMS) {
+        out = fac * v;
+      } else {
+        double len = fac * v * scale; /* Angstrom */
+        if (kind == U_PIX) { /* pixels: times the local pixel width */
+          size_t a = i > 0 ? i - 1 : i, b = i + 1 < n ? i + 1 : i;
+          len = fac * v * fabs(s->wave[b] - s->wave[a]) / (double)(b - a);
+        }
+        out = DT_C_KMS * len / w;
+      }
+    }
+    s->lsf_fwhm_kms[i] = isfinite(out) && out > 0 ? out : NAN;
+  }
+  /* a pixel without a value between two with one (a masked pixel, say)
+   * takes the width interpolated linearly in wavelength between them;
+   * beyond the first or last value there is none */
+  size_t prev = n;
+  for (size_t i = 0; i < n; i++) {
+    if (isnan(s->lsf_fwhm_kms[i])) continue;
+    if (prev < n && i > prev + 1)
+      for (size_t k = prev + 1; k < i; k++) {
+        double f = (s->wave[k] - s->wave[prev]) / (s->wave[i] - s->wave[prev]);
+        s->lsf_fwhm_kms[k] = s->lsf_fwhm_kms[prev] + f * (s->lsf_fwhm_kms[i] - s->lsf_fwhm_kms[prev]);
+      }
+    prev = i;
+  }
+  snprintf(s->lsf_from, sizeof s->lsf_from, "column %.30s (%s%s%s)", ci->name,
+           rpow ? "resolving power" : fac > 1 ? "sigma" : "FWHM", rpow ? "" : ", ",
+           rpow ? "" : kind == U_KMS ? "km/s" : kind == U_PIX ? "pixels" : canon);
+  return DT_OK;
+}
+
 int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **out, dt_err *e) {
   char where[96];
   snprintf(where, sizeof where, "HDU %d", hdu);
@@ -203,7 +284,7 @@ int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **ou
   long want = o ? o->row : 0;
   long long row = 1, n = 0;
   int st = 0;
-  colinfo *cols[4] = {&t.flux, &t.wave, &t.err, &t.mask};
+  colinfo *cols[5] = {&t.flux, &t.wave, &t.err, &t.mask, &t.lsf};
   if (t.rows_layout) {
     row = want > 0 ? want : 1;
     if (row > t.nrows)
@@ -211,7 +292,7 @@ int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **ou
                         t.nrows, t.nrows == 1 ? "" : "s");
     snprintf(where, sizeof where, "HDU %d, row %lld", hdu, row);
     col_len(c->f, &t.flux, row, &n, &st);
-    for (int k = 1; k < 4 && !st; k++) {
+    for (int k = 1; k < 5 && !st; k++) {
       if (!cols[k]->num) continue;
       long long len = 0;
       if (col_len(c->f, cols[k], row, &len, &st)) break;
@@ -230,7 +311,7 @@ int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **ou
                         "per pixel)",
                         want);
     n = t.nrows;
-    for (int k = 1; k < 4; k++)
+    for (int k = 1; k < 5; k++)
       if (cols[k]->num && (cols[k]->vla || cols[k]->repeat != 1))
         return dt_err_set(e, DT_EFORMAT, where,
                           "column %s holds %s values per row but column %s one: mixed layouts",
@@ -300,6 +381,7 @@ int dt_fits_read_table(fctx *c, int hdu, const dt_read_opts *o, dt_spectrum **ou
     for (long long i = 0; i < n && !rc; i++)
       if (buf[i] != 0) s->mask[i] = 1; /* NaN (undefined) counts as set */
   }
+  if (!rc && t.lsf.num) rc = table_lsf(c, &t.lsf, row, s, buf, where, e);
   free(buf);
   if (!rc) {
     dt_spectrum_settle_air(s, o);

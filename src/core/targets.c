@@ -6,6 +6,8 @@
  * line number, and reading may go on after a bad line.  The format is
  * described in include/doubletty/targets.h. */
 #include "doubletty/targets.h"
+
+#include "doubletty/lsf.h"
 #include "doubletty/num.h"
 #include "doubletty/sky.h"
 
@@ -23,6 +25,18 @@ struct dt_targets {
   char basedir[DT_TARGET_PATH_MAX];
   char buf[DT_TARGET_LINE_MAX + 2];
 };
+
+void dt_target_resolution(const dt_target_spec *t, const char *doublet, double *R, double *fwhm) {
+  *R = t->resolution;
+  *fwhm = t->fwhm_kms;
+  if (!t->res_text[0]) return;
+  dt_lsf_per per;
+  dt_err pe;
+  if (dt_lsf_per_parse(t->res_text, "R", &per, &pe) != DT_OK) return;
+  double v = dt_lsf_per_get(&per, doublet);
+  *R = t->res_is_fwhm ? 0.0 : v;
+  *fwhm = t->res_is_fwhm ? v : 0.0;
+}
 
 void dt_target_spec_init(dt_target_spec *t, const char *path) {
   memset(t, 0, sizeof *t);
@@ -114,12 +128,26 @@ static int parse_field(dt_target_spec *t, const char *key, const char *val, long
     t->has_vsys = 1;
     break;
   case K_R:
-    if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "R must be a positive resolving power, not '%s'", val);
-    t->resolution = x;
-    break;
   case K_FWHM:
-    if (parse_num(val, &x) || x <= 0) return bad(e, lineno, "fwhm must be a positive width in km/s, not '%s'", val);
-    t->fwhm_kms = x;
+    if (strchr(val, ':')) { /* values per doublet */
+      dt_lsf_per per;
+      dt_err pe;
+      if (strlen(val) >= sizeof t->res_text) return bad(e, lineno, "'%s' is too long", val);
+      if (dt_lsf_per_parse(val, k == K_R ? "R" : "fwhm", &per, &pe) != DT_OK)
+        return bad(e, lineno, "%s", pe.what);
+      snprintf(t->res_text, sizeof t->res_text, "%s", val);
+      t->res_is_fwhm = k == K_FWHM;
+      x = dt_lsf_per_get(&per, "");
+      if (k == K_R) t->resolution = x;
+      else t->fwhm_kms = x;
+      break;
+    }
+    if (k == K_R && (parse_num(val, &x) || x <= 0))
+      return bad(e, lineno, "R must be a positive resolving power (or DOUBLET:R,...), not '%s'", val);
+    if (k == K_FWHM && (parse_num(val, &x) || x <= 0))
+      return bad(e, lineno, "fwhm must be a positive width in km/s (or DOUBLET:FWHM,...), not '%s'", val);
+    if (k == K_R) t->resolution = x;
+    else t->fwhm_kms = x;
     break;
   case K_HFS:
     /* 1: the lines are modelled as their hyperfine components */

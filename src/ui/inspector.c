@@ -90,8 +90,12 @@ static void overview_range(dt_insp *s) {
 }
 
 /* Settings of a first look: the list line, then the command line (then,
- * in the session core, the file's header). */
-static void initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
+ * in the session core, the file's header).  The resolution (lsf.h):
+ * --resolution-table, else the list's R=/fwhm= for the doublet, else
+ * --resolution/--fwhm, else the file's widths per pixel or its header R;
+ * returns 1 when a single value given by the user is to beat the
+ * spectrum's widths per pixel. */
+static int initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
   const dt_qentry *q = &s->q->e[idx];
   const dt_inspect_opts *o = s->o;
   dt_judgement_init(j);
@@ -103,16 +107,26 @@ static void initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
     j->vlo = q->vlo;
     j->vhi = q->vhi;
   }
-  if (q->resolution > 0 || q->fwhm_kms > 0) {
-    j->resolution = q->resolution;
-    j->fwhm_kms = q->resolution > 0 ? 0 : q->fwhm_kms;
-  } else if (o->resolution > 0 || o->fwhm_kms > 0) {
-    j->resolution = o->resolution;
-    j->fwhm_kms = o->resolution > 0 ? 0 : o->fwhm_kms;
-  } else {
-    j->resolution = 0;
-    j->fwhm_kms = 0;
+  double qR, qF, oR = o->resolution, oF = o->fwhm_kms;
+  dt_queue_resolution(s->q, idx, j->doublet, &qR, &qF);
+  if (o->res_per.n) {
+    double v = dt_lsf_per_get(&o->res_per, j->doublet);
+    oR = o->res_per_fwhm ? 0 : v;
+    oF = o->res_per_fwhm ? v : 0;
   }
+  j->resolution = 0;
+  j->fwhm_kms = 0;
+  if (s->q->read.lsf_table) return 0;
+  if (qR > 0 || qF > 0) {
+    j->resolution = qR;
+    j->fwhm_kms = qR > 0 ? 0 : qF;
+  } else if (oR > 0 || oF > 0) {
+    j->resolution = oR;
+    j->fwhm_kms = oR > 0 ? 0 : oF;
+  } else {
+    return 0;
+  }
+  return 1;
 }
 
 /* The 21-cm spectrum at the sightline, in the spectrum's frame. */
@@ -150,7 +164,7 @@ static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *
   t->read = s->q->read;
   if (s->q->e[idx].has_pos) t->read.has_pos = 1, t->read.ra = s->q->e[idx].ra, t->read.dec = s->q->e[idx].dec;
   if (s->q->e[idx].frame != DT_FRAME_UNSET) t->read.in_frame = (dt_frame)s->q->e[idx].frame;
-  initial_state(s, idx, &t->initial);
+  t->lsf_constant = initial_state(s, idx, &t->initial);
   t->cog = s->cog;
   if (s->o->hyperfine_all || s->q->e[idx].hyperfine) t->hyperfine = s->o->hyperfine;
   t->defer_intervals = 1; /* drawn a frame later (the event loop) */

@@ -12,6 +12,7 @@
 #include "doubletty/atomic.h"
 #include "doubletty/hyperfine.h"
 #include "doubletty/journal.h"
+#include "doubletty/lsf.h"
 #include "queue.h"
 
 typedef struct dt_inspect_opts {
@@ -19,6 +20,8 @@ typedef struct dt_inspect_opts {
   const char *doublet;     /* NULL: "NaI" */
   double resolution;       /* > 0: R */
   double fwhm_kms;         /* > 0: LSF FWHM [km/s] */
+  dt_lsf_per res_per;      /* --resolution / --fwhm per doublet (n > 0: */
+  int res_per_fwhm;        /*   over the two above; lsf.h); FWHM values */
   int has_vsys;
   double vsys;             /* [km/s] */
   dt_system_opts systems;  /* target range, Milky-Way width, more systems */

@@ -100,7 +100,8 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
     dt_systems_format(&us, sys, sizeof sys);
   }
   if (pool_add(q, t->path, &x->path) || pool_add(q, key[0] ? key : t->path, &x->key) ||
-      pool_add(q, t->name, &x->name) || pool_add(q, sys, &x->systems))
+      pool_add(q, t->name, &x->name) || pool_add(q, sys, &x->systems) ||
+      pool_add(q, t->res_text, &x->res_text))
     return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
   x->row = t->row;
   x->line = t->line;
@@ -117,6 +118,7 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   x->vhi = t->vhi;
   x->resolution = t->resolution;
   x->fwhm_kms = t->fwhm_kms;
+  x->res_is_fwhm = (unsigned char)t->res_is_fwhm;
   memcpy(x->doublet, t->doublet, sizeof x->doublet);
   x->verdict = -1;
   q->n++;
@@ -177,6 +179,16 @@ int dt_queue_add_list(dt_queue *q, const char *list, size_t *nbad,
 const char *dt_queue_path(const dt_queue *q, size_t i) { return q->pool + q->e[i].path; }
 const char *dt_queue_key(const dt_queue *q, size_t i) { return q->pool + q->e[i].key; }
 const char *dt_queue_name(const dt_queue *q, size_t i) { return q->pool + q->e[i].name; }
+
+void dt_queue_resolution(const dt_queue *q, size_t i, const char *doublet, double *R, double *fwhm) {
+  dt_target_spec t;
+  memset(&t, 0, sizeof t);
+  t.resolution = q->e[i].resolution;
+  t.fwhm_kms = q->e[i].fwhm_kms;
+  snprintf(t.res_text, sizeof t.res_text, "%s", q->pool + q->e[i].res_text);
+  t.res_is_fwhm = q->e[i].res_is_fwhm;
+  dt_target_resolution(&t, doublet, R, fwhm);
+}
 
 void dt_queue_systems(const dt_queue *q, size_t i, dt_system_opts *o) {
   char buf[1024];

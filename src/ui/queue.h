@@ -35,6 +35,8 @@ typedef struct dt_qentry {
                             system= as "target:VLO:VHI;NAME:VLO:VHI;..."
                             ("target" only when given; "" none) */
   signed char verdict;  /* cached verdict (dt_verdict), -1 = not known yet */
+  size_t res_text;      /* pool offset: R=/fwhm= per doublet as written ("" none) */
+  unsigned char res_is_fwhm;
 } dt_qentry;
 
 typedef struct dt_queue {
@@ -64,6 +66,9 @@ int dt_queue_add_list(dt_queue *q, const char *list, size_t *nbad,
 const char *dt_queue_path(const dt_queue *q, size_t i);
 const char *dt_queue_key(const dt_queue *q, size_t i);
 const char *dt_queue_name(const dt_queue *q, size_t i);
+/* The resolving power or FWHM [km/s] entry i gives doublet (lsf.h:
+ * an entry naming it, else the plain value); both 0: none. */
+void dt_queue_resolution(const dt_queue *q, size_t i, const char *doublet, double *R, double *fwhm);
 /* The list line's systems of entry i into o (after dt_system_opts_init). */
 void dt_queue_systems(const dt_queue *q, size_t i, dt_system_opts *o);
 

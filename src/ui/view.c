@@ -198,6 +198,9 @@ static void draw_title(dt_insp *s, const layout *L) {
   char res[32] = "R ?";
   if (s->ss->j.resolution > 0) snprintf(res, sizeof res, "R %.0f", s->ss->j.resolution);
   else if (s->ss->j.fwhm_kms > 0) snprintf(res, sizeof res, "FWHM %.0f km/s", s->ss->j.fwhm_kms);
+  /* widths per pixel (lsf.h): R at the line, marked as varying */
+  if (s->ss->an && dt_analysis_lsf_source(s->ss->an) && dt_analysis_lsf_fwhm(s->ss->an) > 0)
+    snprintf(res, sizeof res, "R(lambda) %.0f", DT_C_KMS / dt_analysis_lsf_fwhm(s->ss->an));
   const char *flag = NULL;
   int role = DT_R_BAD;
   if (s->jn && dt_journal_failed(s->jn)) flag = " SESSION NOT WRITABLE ";
