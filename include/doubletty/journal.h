@@ -21,7 +21,7 @@
 #include "doubletty/measure.h"
 #include "doubletty/status.h"
 
-#define DT_JOURNAL_VERSION 3       /* format version written by this program (reads 1 and 2 too) */
+#define DT_JOURNAL_VERSION 4       /* format version written by this program (reads 1 to 3 too) */
 #define DT_JOURNAL_USER_MAX 64
 #define DT_JOURNAL_TIME_MAX 32     /* "2025-06-01T10:00:00.123Z" */
 

@@ -164,7 +164,8 @@ int dt_action_kind_parse(const char *s, dt_action_kind *k);
  * them from the restored state.  DT_ACT_LINK refuses the main doublet, a
  * species linked twice, a fourth one, and unlinking one that is not linked;
  * DT_ACT_JOINT_FIT refuses a result whose species are not the linked ones
- * in their order (and any when none is linked).  A DT_ACT_FIT whose result has
+ * in their order (and any when none is linked or there is no component);
+ * its T and b_turb are kept only under the thermal rule (else NaN).  A DT_ACT_FIT whose result has
  * status DT_OK gives the components its values; a failed fit is recorded
  * (has_fit = 1, fit.status != DT_OK) and leaves the components as they were.
  * Its fit.ncomp must equal the judgement's ncomp. */

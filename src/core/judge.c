@@ -204,7 +204,8 @@ static int linked_ok(const dt_judgement *s) {
       if (!strcmp(s->linked[k], s->linked[i])) return 0;
   }
   if (!s->has_joint) return 1;
-  if (!s->has_fit || s->nlinked == 0 || s->joint.nspecies != s->nlinked) return 0;
+  if (!s->has_fit || s->nlinked == 0 || s->ncomp == 0 || s->joint.nspecies != s->nlinked)
+    return 0;
   for (size_t i = 0; i < s->nlinked; i++)
     if (strncmp(s->joint.sp[i].doublet, s->linked[i], DT_JUDGE_DOUBLET)) return 0;
   return 1;
@@ -333,6 +334,9 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     dt_judgement t = *j;
     t.has_joint = 1;
     t.joint = a->joint;
+    if (t.btie != DT_BTIE_THERMAL) /* T and b_turb belong to the thermal rule alone */
+      for (size_t k = 0; k < DT_MAX_COMP; k++)
+        t.joint.T[k] = t.joint.T_err[k] = t.joint.bturb[k] = t.joint.bturb_err[k] = NAN;
     if (take_fit(&t, &a->fit) || !linked_ok(&t)) return DT_EINVAL;
     *j = t;
     return DT_OK;
