@@ -55,6 +55,7 @@ dt_session *dt_session_alloc(const dt_atomic *atomic, dt_journal *jn) {
 void dt_session_free(dt_session *ss) {
   if (!ss) return;
   dt_session_unload(ss);
+  dt_session_linked_free(ss);
   free(ss->undo);
   free(ss->redo);
   free(ss);
@@ -144,7 +145,14 @@ void dt_session_finish_intervals(dt_session *ss) {
   dt_analysis_run_intervals(ss->an, &ss->j, &ss->out);
 }
 
+static void analyse_main(dt_session *ss, const dt_judgement *j, int fit);
+
 void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
+  analyse_main(ss, j, fit);
+  if (!fit || j->nlinked == 0) dt_session_linked_eval(ss, j); /* a refit shows them after */
+}
+
+static void analyse_main(dt_session *ss, const dt_judgement *j, int fit) {
   ss->an_ok = 0;
   ss->intervals_tried = 0;
   ss->an_fallback = 0;
@@ -195,6 +203,7 @@ void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
 static int fit_into(dt_session *ss, dt_judgement *j) {
   dt_session_analyse_state(ss, j, 1);
   if (!ss->an_ok || ss->an_fallback || ss->out.fit.ncomp != j->ncomp) return -1;
+  if (j->nlinked > 0 && j->ncomp > 0) return dt_session_joint_into(ss, j);
   dt_action a;
   dt_action_init(&a, DT_ACT_FIT);
   a.fit = ss->out.fit;
@@ -459,8 +468,9 @@ int dt_session_refit(dt_session *ss) {
     return DT_EINVAL;
   }
   dt_action a;
-  dt_action_init(&a, DT_ACT_FIT);
+  dt_action_init(&a, next.has_joint ? DT_ACT_JOINT_FIT : DT_ACT_FIT);
   a.fit = next.fit;
+  a.joint = next.joint;
   int rc = record(ss, &a, &next, 1);
   if (rc != DT_OK) {
     dt_session_analyse_state(ss, &ss->j, 0);
@@ -469,7 +479,7 @@ int dt_session_refit(dt_session *ss) {
   ss->j = next;
   ss->pending = 0;
   if (ss->an_msg[0]) dt_session_say(ss, DT_TONE_WARN, "%s", ss->an_msg);
-  else dt_session_say(ss, DT_TONE_GOOD, "refitted");
+  else dt_session_say(ss, DT_TONE_GOOD, "refitted%s", next.has_joint ? " jointly" : "");
   return DT_OK;
 }
 

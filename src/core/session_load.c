@@ -55,6 +55,7 @@ static void systems_of_state(dt_session *ss, const dt_session_target *t, int rec
 }
 
 void dt_session_unload(dt_session *ss) {
+  dt_session_linked_free(ss);
   dt_analysis_free(ss->an);
   dt_spectrum_free(ss->spec);
   ss->an = NULL;
@@ -205,7 +206,12 @@ static void resume(dt_session *ss, const dt_journal_entry *en, const dt_session_
     if (keep) ss->suggested = ks; /* the recorded suggestion for the target stands */
   }
   char why[160] = "";
-  if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
+  if (ss->j.has_joint && ss->j.fit.status == DT_OK) {
+    if (!dt_session_joint_verify(ss, &ss->j, why, sizeof why)) {
+      dt_journal_set_flag(ss->jn, ss->key, 0, ss->row, DT_JFLAG_REFIT_MISMATCH, 1);
+      dt_session_say(ss, DT_TONE_WARN, "a joint refit differs from the recorded fit: %s", why);
+    }
+  } else if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
     dt_session_analyse_state(ss, &ss->j, 1);
     if (ss->an_ok && !dt_fit_check_refit(&ss->j.fit, &ss->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
       dt_journal_set_flag(ss->jn, ss->key, 0, ss->row, DT_JFLAG_REFIT_MISMATCH, 1);
