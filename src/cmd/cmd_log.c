@@ -210,10 +210,10 @@ static void result(const dt_journal_record *r, char *buf, size_t n) {
   for (size_t i = 0; i < s->nsysv && i < DT_JUDGE_MAX_SYS && k < n; i++)
     k += (size_t)snprintf(buf + k, n - k, "%s%s: %s", i ? ", " : "; ", s->sysv[i].name,
                           dt_verdict_name(s->sysv[i].verdict));
-  for (size_t i = 0; i < s->nlinked && i < DT_JUDGE_MAX_LINKED && k < n; i++)
-    k += (size_t)snprintf(buf + k, n - k, "%s%s", i ? "," : "; linked ", s->linked[i]);
-  if (s->nlinked && k < n)
-    k += (size_t)snprintf(buf + k, n - k, " (b %s%s)", dt_btie_name(s->btie), s->has_joint ? ", joint fit" : "");
+  if (s->nlinked && k < n) {
+    char lt[600];
+    k += (size_t)snprintf(buf + k, n - k, "; %s", su_linked_text(s, lt, sizeof lt));
+  }
   if ((r->flags & DT_JFLAG_FILE_CHANGED) && k < n)
     snprintf(buf + k, n - k, " [input file changed since its last record]");
 }
@@ -440,7 +440,7 @@ int cmd_log(int argc, char **argv) {
   }
   int rc, status = 0;
   long shown = 0, damaged = 0;
-  char name[4200], what[2400], res[256], when[40];
+  char name[4200], what[2400], res[1024], when[40];
   while ((rc = dt_journal_reader_next(rd, rec, &e)) != DT_ENOTFOUND) {
     if (rc == DT_EFORMAT) {
       fflush(stdout);

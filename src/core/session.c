@@ -149,7 +149,7 @@ static void analyse_main(dt_session *ss, const dt_judgement *j, int fit);
 
 void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
   analyse_main(ss, j, fit);
-  if (!fit || j->nlinked == 0) dt_session_linked_eval(ss, j); /* a refit shows them after */
+  if (!fit || j->nlinked == 0 || j->ncomp == 0) dt_session_linked_eval(ss, j); /* a joint refit shows them after */
 }
 
 static void analyse_main(dt_session *ss, const dt_judgement *j, int fit) {

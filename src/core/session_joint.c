@@ -217,9 +217,11 @@ int dt_session_link(dt_session *ss, const char *name) {
   snprintf(a.text, sizeof a.text, "%s", d ? d->name : name);
   a.ival = on;
   int rc = dt_session_apply(ss, &a);
-  if (rc == DT_OK)
-    dt_session_say(ss, ss->an_msg[0] ? DT_TONE_WARN : DT_TONE_GOOD, "%s %s%s%s", a.text,
-                   on ? "linked: fitted jointly" : "unlinked", ss->an_msg[0] ? " - " : "", ss->an_msg);
+  if (rc != DT_OK) return rc;
+  const char *how = !on ? "unlinked" : ss->j.has_joint ? "linked: fitted jointly"
+                    : ss->j.ncomp == 0 ? "linked: no component to fit jointly yet" : "linked, not fitted";
+  dt_session_say(ss, ss->an_msg[0] ? DT_TONE_WARN : DT_TONE_GOOD, "%s %s%s%.300s", a.text, how,
+                 ss->an_msg[0] ? " - " : "", ss->an_msg);
   return rc;
 }
 

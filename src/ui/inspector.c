@@ -192,6 +192,7 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   s->cur = idx;
   s->anchor = 0;
   s->editing = DT_EDIT_NONE;
+  s->choosing = 0;
   s->finished = 0;
   char key[DT_KEY_MAX];
   dt_session_target t;
