@@ -59,22 +59,22 @@ int dt_btie_parse(const char *s, dt_btie *m);
 /* One linked species' values in a joint fit: per component log N [cm^-2]
  * and b [km/s] with their 1-sigma errors (b of SAME is the shared b, of
  * THERMAL the b its T and b_turb give). */
-typedef struct dt_joint_species {
+typedef struct dt_linked_species {
   char doublet[DT_JUDGE_DOUBLET];
   double logN[DT_MAX_COMP], logN_err[DT_MAX_COMP];
   double b[DT_MAX_COMP], b_err[DT_MAX_COMP];
-} dt_joint_species;
+} dt_linked_species;
 
 /* What a joint fit adds to the main doublet's dt_fit_result (whose
  * components, chi2, dof and npix are those of the joint fit): the linked
  * species in the judgement's order and, for THERMAL, each component's T [K]
  * and b_turb [km/s] with errors (NaN otherwise). */
-typedef struct dt_joint_fit {
+typedef struct dt_linked_fit {
   size_t nspecies;
-  dt_joint_species sp[DT_JUDGE_MAX_LINKED];
+  dt_linked_species sp[DT_JUDGE_MAX_LINKED];
   double T[DT_MAX_COMP], T_err[DT_MAX_COMP];
   double bturb[DT_MAX_COMP], bturb_err[DT_MAX_COMP];
-} dt_joint_fit;
+} dt_linked_fit;
 
 typedef struct dt_judgement {
   char doublet[DT_JUDGE_DOUBLET]; /* doublet name, e.g. "NaI" */
@@ -104,7 +104,7 @@ typedef struct dt_judgement {
   dt_fit_result fit;
   int has_joint;              /* joint below completes fit (a joint fit of
                                  every linked species; only with has_fit) */
-  dt_joint_fit joint;
+  dt_linked_fit joint;
 } dt_judgement;
 
 typedef enum dt_action_kind {
@@ -139,7 +139,7 @@ typedef struct dt_action {
   double x[3];
   char text[DT_NOTE_MAX];
   dt_fit_result fit;                 /* DT_ACT_FIT, DT_ACT_JOINT_FIT */
-  dt_joint_fit joint;                /* DT_ACT_JOINT_FIT */
+  dt_linked_fit joint;                /* DT_ACT_JOINT_FIT */
   const dt_judgement *state;         /* DT_ACT_RESTORE (not owned) */
 } dt_action;
 
@@ -184,9 +184,9 @@ int dt_judgement_same_systems(const dt_judgement *a, const dt_judgement *b);
 int dt_fit_result_same(const dt_fit_result *a, const dt_fit_result *b);
 /* The same for two joint fits (the species' values, T and b_turb of the
  * first ncomp components). */
-int dt_joint_fit_same(const dt_joint_fit *a, const dt_joint_fit *b, size_t ncomp);
+int dt_linked_fit_same(const dt_linked_fit *a, const dt_linked_fit *b, size_t ncomp);
 /* A joint fit with no species and every value NaN. */
-void dt_joint_fit_clear(dt_joint_fit *jf);
+void dt_linked_fit_clear(dt_linked_fit *jf);
 /* The index of species name among j's linked ones, -1 if not linked. */
 int dt_judgement_linked_index(const dt_judgement *j, const char *name);
 

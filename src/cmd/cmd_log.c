@@ -93,7 +93,7 @@ static void describe_joint(const dt_journal_record *r, char *buf, size_t n) {
     k += (size_t)snprintf(buf + k, n - k, "%s %s", i ? ";" : ":", c);
   }
   for (size_t sp = 0; sp < s->joint.nspecies && sp < DT_JUDGE_MAX_LINKED && k < n; sp++) {
-    const dt_joint_species *js = &s->joint.sp[sp];
+    const dt_linked_species *js = &s->joint.sp[sp];
     k += (size_t)snprintf(buf + k, n - k, " | %s", js->doublet);
     for (size_t i = 0; i < s->ncomp && k < n; i++)
       k += (size_t)snprintf(buf + k, n - k, "%s logN %.2f+-%.2f b %.1f+-%.1f", i ? ";" : ":", js->logN[i],

@@ -210,7 +210,7 @@ static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, c
   c[i++].i = en->nchanges;
   c[i++].s = flags;
   c[i++].s = en->target.sha256;
-  const dt_joint_species *js = sp ? &s->joint.sp[sp - 1] : NULL;
+  const dt_linked_species *js = sp ? &s->joint.sp[sp - 1] : NULL;
   c[i++].s = js ? js->doublet : s->doublet;
   c[i++].d = s->vsys;
   c[i++].i = (long long)r->ncomp[sk];

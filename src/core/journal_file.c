@@ -185,7 +185,7 @@ static int same_linked(const dt_judgement *a, const dt_judgement *b) {
     return 0;
   for (size_t i = 0; i < a->nlinked; i++)
     if (strcmp(a->linked[i], b->linked[i])) return 0;
-  return !a->has_joint || dt_joint_fit_same(&a->joint, &b->joint, a->ncomp);
+  return !a->has_joint || dt_linked_fit_same(&a->joint, &b->joint, a->ncomp);
 }
 
 static void adopt_linked(dt_judgement *s, const dt_judgement *rec) {

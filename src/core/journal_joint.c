@@ -65,7 +65,7 @@ int dt_jn_write_joint(const dt_jn_field *f, const dt_judgement *s, const dt_acti
     return 0;
   case JT_SPECIES: {
     if (!s->has_joint || num < 0 || (size_t)num >= s->joint.nspecies) return -1;
-    const dt_joint_species *sp = &s->joint.sp[num];
+    const dt_linked_species *sp = &s->joint.sp[num];
     put(ctx, sp->doublet);
     put(ctx, ":");
     put_pairs(put, ctx, s->ncomp, sp->logN, sp->logN_err, sp->b, sp->b_err);
@@ -151,7 +151,7 @@ int dt_jn_read_joint(const dt_jn_field *f, char *v, int num, dt_journal_record *
     if (!colon) return -1;
     *colon = '\0';
     if (!name_ok(v)) return -1;
-    dt_joint_species *sp = &s->joint.sp[num];
+    dt_linked_species *sp = &s->joint.sp[num];
     memcpy(sp->doublet, v, strlen(v) + 1);
     return read_pairs(colon + 1, sp->logN, sp->logN_err, sp->b, sp->b_err, &ncomp_sp[num]);
   }

@@ -92,7 +92,7 @@ void dt_judgement_init(dt_judgement *j) {
   j->vhi = 600.0;
   j->cont_order = 2;
   j->verdict = DT_VERDICT_NONE;
-  dt_joint_fit_clear(&j->joint);
+  dt_linked_fit_clear(&j->joint);
 }
 
 const char *dt_freeze_str(unsigned bits, char buf[4]) {
@@ -184,7 +184,7 @@ int dt_judgement_linked_index(const dt_judgement *j, const char *name) {
   return -1;
 }
 
-void dt_joint_fit_clear(dt_joint_fit *jf) {
+void dt_linked_fit_clear(dt_linked_fit *jf) {
   memset(jf, 0, sizeof *jf);
   for (size_t k = 0; k < DT_MAX_COMP; k++) {
     jf->T[k] = jf->T_err[k] = jf->bturb[k] = jf->bturb_err[k] = NAN;
@@ -426,11 +426,11 @@ int dt_judgement_same(const dt_judgement *a, const dt_judgement *b) {
     return 0;
   for (size_t i = 0; i < a->nlinked; i++)
     if (strncmp(a->linked[i], b->linked[i], DT_JUDGE_DOUBLET)) return 0;
-  if (a->has_joint && !dt_joint_fit_same(&a->joint, &b->joint, a->ncomp)) return 0;
+  if (a->has_joint && !dt_linked_fit_same(&a->joint, &b->joint, a->ncomp)) return 0;
   return dt_judgement_same_systems(a, b);
 }
 
-int dt_joint_fit_same(const dt_joint_fit *a, const dt_joint_fit *b, size_t ncomp) {
+int dt_linked_fit_same(const dt_linked_fit *a, const dt_linked_fit *b, size_t ncomp) {
   if (a->nspecies != b->nspecies || a->nspecies > DT_JUDGE_MAX_LINKED || ncomp > DT_MAX_COMP)
     return 0;
   for (size_t k = 0; k < ncomp; k++)
@@ -438,7 +438,7 @@ int dt_joint_fit_same(const dt_joint_fit *a, const dt_joint_fit *b, size_t ncomp
         !same_d(a->bturb[k], b->bturb[k]) || !same_d(a->bturb_err[k], b->bturb_err[k]))
       return 0;
   for (size_t s = 0; s < a->nspecies; s++) {
-    const dt_joint_species *p = &a->sp[s], *q = &b->sp[s];
+    const dt_linked_species *p = &a->sp[s], *q = &b->sp[s];
     if (strncmp(p->doublet, q->doublet, DT_JUDGE_DOUBLET)) return 0;
     for (size_t k = 0; k < ncomp; k++)
       if (!same_d(p->logN[k], q->logN[k]) || !same_d(p->logN_err[k], q->logN_err[k]) ||

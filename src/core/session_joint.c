@@ -94,16 +94,16 @@ void dt_session_linked_eval(dt_session *ss, const dt_judgement *j) {
  * velocities (held), b held too under the rule "same"; T and b_turb are
  * left unknown (NaN).  The simultaneous fit of all species is the joint
  * fitter's (joint.h); this is where it is called. */
-static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, dt_joint_fit *jf,
+static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, dt_linked_fit *jf,
                      char *msg, size_t n) {
   *fit = ss->out.fit;
-  dt_joint_fit_clear(jf);
+  dt_linked_fit_clear(jf);
   jf->nspecies = j->nlinked;
   dt_judgement main = *j;
   main.ncomp = fit->ncomp;
   memcpy(main.comp, fit->comp, fit->ncomp * sizeof fit->comp[0]);
   for (size_t k = 0; k < j->nlinked; k++) {
-    dt_joint_species *sp = &jf->sp[k];
+    dt_linked_species *sp = &jf->sp[k];
     snprintf(sp->doublet, sizeof sp->doublet, "%s", j->linked[k]);
     dt_analysis *an = species_analysis(ss, k);
     if (!an) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
@@ -157,7 +157,7 @@ int dt_session_joint_verify(dt_session *ss, const dt_judgement *j, char *why, si
   if (!dt_fit_check_refit(&j->fit, &again.fit, DT_REFIT_TOL_SIGMA, why, n)) return 0;
   for (size_t k = 0; k < j->nlinked; k++)
     for (size_t c = 0; c < j->ncomp; c++) {
-      const dt_joint_species *a = &j->joint.sp[k], *b = &again.joint.sp[k];
+      const dt_linked_species *a = &j->joint.sp[k], *b = &again.joint.sp[k];
       double tol = DT_REFIT_TOL_SIGMA * fmax(a->logN_err[c], b->logN_err[c]);
       if (!(fabs(a->logN[c] - b->logN[c]) <= fmax(tol, 1e-6))) {
         snprintf(why, n, "%s log N of component %zu: %.3f recorded, %.3f now", j->linked[k], c + 1,

@@ -76,7 +76,7 @@ static dt_action joint_of(const dt_judgement *s) {
   a.fit.chi2_red = a.fit.chi2 / 301.0;
   a.fit.bic = 400.25;
   a.fit.npix = 320;
-  dt_joint_fit_clear(&a.joint);
+  dt_linked_fit_clear(&a.joint);
   a.joint.nspecies = s->nlinked;
   for (size_t i = 0; i < s->nlinked; i++) {
     snprintf(a.joint.sp[i].doublet, sizeof a.joint.sp[i].doublet, "%s", s->linked[i]);
@@ -152,7 +152,7 @@ static void test_round_trip(void) {
       if (rec->action.kind == DT_ACT_LINK && rec->action.ival == 1) nlink++;
       if (rec->action.kind == DT_ACT_BTIE && rec->action.ival == DT_BTIE_THERMAL) nbt++;
       if (rec->action.kind == DT_ACT_JOINT_FIT &&
-          dt_joint_fit_same(&rec->action.joint, &held.joint, held.ncomp))
+          dt_linked_fit_same(&rec->action.joint, &held.joint, held.ncomp))
         njoint++;
     }
     dt_journal_reader_close(r);

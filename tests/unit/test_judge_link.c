@@ -35,7 +35,7 @@ static dt_action joint_act(const dt_judgement *j) {
   a.fit.chi2 = 101.5;
   a.fit.dof = 98;
   a.fit.npix = 120;
-  dt_joint_fit_clear(&a.joint);
+  dt_linked_fit_clear(&a.joint);
   a.joint.nspecies = j->nlinked;
   for (size_t s = 0; s < j->nlinked; s++) {
     strcpy(a.joint.sp[s].doublet, j->linked[s]);
