@@ -15,7 +15,7 @@ VERSION  := 0.1.0
 PKGS      := gsl cfitsio libcerf ncursesw libcrypto erfa wcslib cairo
 DEB_PKGS  := build-essential pkg-config libgsl-dev libcfitsio-dev libcerf-dev \
              libncurses-dev libssl-dev liberfa-dev wcslib-dev libcairo2-dev
-TEST_DEBS := locales python3 python3-numpy python3-scipy python3-astropy tmux parallel man-db valgrind time e2fsprogs util-linux clang libclang-rt-14-dev
+TEST_DEBS := locales python3 python3-numpy python3-scipy python3-astropy python3-periodictable tmux parallel man-db valgrind time e2fsprogs util-linux clang libclang-rt-14-dev
 
 PKG_OK := $(shell pkg-config --exists $(PKGS) 2>/dev/null && echo yes)
 ifneq ($(PKG_OK),yes)

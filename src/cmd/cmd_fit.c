@@ -26,6 +26,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 #include <time.h>
 #include <sys/stat.h>
 #include <unistd.h>
@@ -38,8 +39,10 @@
 #include "doubletty/atomic.h"
 #include "doubletty/cog.h"
 #include "doubletty/csv.h"
+#include "doubletty/elements.h"
 #include "doubletty/export.h"
 #include "doubletty/autofit.h"
+#include "doubletty/joint.h"
 #include "doubletty/judge.h"
 #include "doubletty/model.h"
 #include "doubletty/num.h"
@@ -54,9 +57,12 @@ static const char *const COLUMNS[] = {
     "logN_err_lo", "logN_err_hi", "logN_flag",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
-/* the last columns: position and velocity frame (pos_cells) */
+    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame",
+    "T_K", "T_err_K", "b_turb_kms", "b_turb_err_kms"};
+/* after the reason: position and velocity frame (pos_cells), then the
+ * columns of joint fits (tail_cells) */
 #define NPOSCOLUMNS 3
+#define NTAILCOLUMNS 4
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
 /* Below this resolving power the line-spread function (c/R > 3000 km/s) is
@@ -75,7 +81,12 @@ typedef struct {
 } source;
 
 typedef struct {
-  const char *doublet;          /* NULL: target's, else NaI */
+  const char *doublet;          /* NULL: target's, else NaI (as given: may be a list) */
+  size_t ndoub;                 /* --doublet split at commas (0: not given) */
+  char doub[DT_JOINT_MAX_SPECIES][16];
+  int joint;                    /* --joint: one fit over all the doublets */
+  dt_joint_btie btie;           /* --b-tie */
+  int have_btie;
   int have_R, have_fwhm, have_vsys, have_window, have_order;
   double R, fwhm, vsys, vlo, vhi;
   int cont_order;
@@ -123,7 +134,12 @@ static void usage(FILE *f) {
   fprintf(f,
           "usage: doubletty fit [options] FILE...\n"
           "Automatic first pass: fit and measure each spectrum, write CSV.\n\n"
-          "  --doublet NAME          doublet of the atomic table (default NaI)\n"
+          "  --doublet NAME[,NAME]   doublet(s) of the atomic table (default NaI);\n"
+          "                          several: each fitted on its own, rows per doublet\n"
+          "  --joint                 fit the doublets of --doublet together: one\n"
+          "                          velocity per component for all of them\n"
+          "  --b-tie RULE            b across the doublets of --joint: same (default),\n"
+          "                          thermal (T and b_turb per component) or free\n"
           "  --resolution R          resolving power (default: the file's header)\n"
           "  --fwhm KMS              line-spread FWHM in km/s instead of R\n"
           "  --vsys KMS              rest frame of the absorber [km/s] (default 0)\n"
@@ -248,6 +264,23 @@ static void pos_cells(dt_csv *w, const dt_spectrum *s) {
   dt_csv_text(w, s ? dt_frame_name(s->frame) : "");
 }
 
+/* T_K, T_err_K, b_turb_kms, b_turb_err_kms of component k of a joint fit
+ * under the thermal rule (fr NULL, or another rule: empty). */
+static void tail_cells(dt_csv *w, const dt_joint_result *fr, size_t k) {
+  int th = fr && fr->btie == DT_JOINT_B_THERMAL && k < fr->ncomp;
+  double v[4] = {NAN, NAN, NAN, NAN};
+  if (th) {
+    v[0] = fr->T[k];
+    v[1] = fr->T_err[k];
+    v[2] = fr->b_turb[k];
+    v[3] = fr->b_turb_err[k];
+  }
+  for (int i = 0; i < 4; i++) {
+    if (isfinite(v[i])) dt_csv_fixed(w, v[i], i < 2 ? 0 : 3);
+    else dt_csv_empty(w);
+  }
+}
+
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const char *doublet, double vsys, const dt_err *e) {
   char msg[sizeof e->where + sizeof e->what + 4];
@@ -255,9 +288,10 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, "", vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
+  tail_cells(&r->csv, NULL, 0);
   dt_csv_end(&r->csv);
 }
 
@@ -356,6 +390,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     honest_reason(r, j, o, sr->reason, sk == 0 ? set->note : NULL, reason, sizeof reason);
     dt_csv_text(w, reason);
     pos_cells(w, s);
+    tail_cells(w, NULL, 0);
     dt_csv_end(w);
   }
 }
@@ -427,12 +462,11 @@ static int setup_systems(const config *c, const dt_target_spec *t, const dt_spec
                           &j->vhi, set, e);
 }
 
-/* Fit one spectrum (one row of a table, or the only one). */
-static void fit_one(run *r, const dt_target_spec *t, long row) {
+/* Fit one spectrum (one row of a table, or the only one) for one doublet. */
+static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const char *dname) {
   const config *c = r->cfg;
   dt_err e;
   dt_err_clear(&e);
-  const char *dname = c->doublet ? c->doublet : (t->doublet[0] ? t->doublet : "NaI");
   double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
   dt_read_opts ro = c->ropts;
   ro.row = row;
@@ -504,6 +538,248 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   }
   dt_analysis_free(an);
   dt_spectrum_free(s);
+}
+
+/* ---- several doublets ------------------------------------------------ */
+
+/* The doublets of an input: --doublet's, else the list line's (both may
+ * be comma lists), else Na I.  Returns how many (0 after an error in e). */
+static size_t doublet_names(const config *c, const dt_target_spec *t,
+                            char names[DT_JOINT_MAX_SPECIES][16], dt_err *e) {
+  if (c->ndoub) {
+    memcpy(names, c->doub, sizeof c->doub);
+    return c->ndoub;
+  }
+  const char *text = t->doublet[0] ? t->doublet : "NaI";
+  size_t n = 0;
+  char buf[sizeof t->doublet];
+  snprintf(buf, sizeof buf, "%s", text);
+  char *save = NULL;
+  for (char *tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
+    while (*tok == ' ') tok++;
+    if (!*tok) continue;
+    if (n == DT_JOINT_MAX_SPECIES) {
+      dt_err_set(e, DT_EINVAL, "doublet", "more than %d doublets in '%s'", DT_JOINT_MAX_SPECIES,
+                 text);
+      return 0;
+    }
+    int dup = 0;
+    for (size_t q = 0; q < n; q++) dup |= strcasecmp(names[q], tok) == 0;
+    if (!dup) snprintf(names[n++], 16, "%s", tok);
+  }
+  if (n == 0) dt_err_set(e, DT_EINVAL, "doublet", "no doublet in '%s'", text);
+  return n;
+}
+
+/* The rows of one species of a joint fit: one per component (its values,
+ * the joint fit's chi2, dof and BIC, its detection and, when not detected,
+ * its limit), or one with empty component fields when there is none. */
+static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                                const dt_judgement *j, const dt_joint_out *o, size_t q, int st,
+                                const dt_system_set *set, const char *why) {
+  const dt_joint_species_out *so = &o->sp[q];
+  const dt_joint_result *fr = &o->fit;
+  dt_csv *w = &r->csv;
+  size_t nrows = so->ncomp ? so->ncomp : 1;
+  for (size_t k = 0; k < nrows; k++) {
+    int has = k < so->ncomp;
+    size_t sk = has ? dt_systems_of(set, so->comp[k].v) : 0;
+    row_head(r, t, s, row, so->d ? so->d->name : so->doublet, set->sys[sk].name, j->vsys,
+             st == DT_OK ? "ok" : "not-converged");
+    dt_csv_long(w, (long)so->ncomp);
+    if (has) {
+      dt_csv_long(w, (long)k + 1);
+      dt_csv_fixed(w, so->comp[k].v, 3);
+      dt_csv_fixed(w, so->err[k].v, 3);
+      dt_csv_fixed(w, so->comp[k].b, 3);
+      dt_csv_fixed(w, so->err[k].b, 3);
+      dt_csv_fixed(w, so->comp[k].logN, 4);
+      dt_csv_fixed(w, so->err[k].logN, 4);
+      for (int e = 0; e < 3; e++) dt_csv_empty(w);  /* no profile intervals */
+    } else {
+      for (int e = 0; e < 10; e++) dt_csv_empty(w);
+    }
+    dt_csv_fixed(w, fr->chi2_red, 4);
+    dt_csv_long(w, fr->dof);
+    dt_csv_fixed(w, fr->bic, 3);
+    for (int e = 0; e < 11; e++) dt_csv_empty(w);   /* W_mA .. masked_frac */
+    int det = has && so->detected[k];
+    if (!det) {
+      dt_csv_fixed(w, 1e3 * so->W_limit, 2);
+      dt_csv_fixed(w, so->logN_limit, 4);
+    } else {
+      dt_csv_empty(w);
+      dt_csv_empty(w);
+    }
+    dt_csv_text(w, det ? "detected" : "not-detected");
+    char reason[320];
+    size_t len = (size_t)snprintf(reason, sizeof reason, "%s", why);
+    if (has && len < sizeof reason)
+      snprintf(reason + len, sizeof reason - len, "; N/sigma %.1f", so->N_sig[k]);
+    dt_csv_text(w, reason);
+    pos_cells(w, s);
+    tail_cells(w, has ? fr : NULL, k);
+    dt_csv_end(w);
+  }
+}
+
+/* A species set aside (not covered, unknown): one row saying why. */
+static void write_joint_missing(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                                const char *name, double vsys, const dt_err *why) {
+  char msg[sizeof why->where + sizeof why->what + 48];
+  if (why->where[0]) snprintf(msg, sizeof msg, "left out of the joint fit: %s: %s", why->where, why->what);
+  else snprintf(msg, sizeof msg, "left out of the joint fit: %s", why->what);
+  row_head(r, t, s, row, name, "", vsys,
+           why->code == DT_ERANGE || why->code == DT_EMASKED ? "not-covered" : "failed");
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  dt_csv_text(&r->csv, msg);
+  pos_cells(&r->csv, s);
+  tail_cells(&r->csv, NULL, 0);
+  dt_csv_end(&r->csv);
+}
+
+/* Fit one spectrum jointly over the doublets names[0..n): the first that
+ * the spectrum covers leads (its settings, systems and window), the
+ * first pass finds the components in the strongest, the rows come per
+ * doublet in the order given. */
+static void fit_joint(run *r, const dt_target_spec *t, long row,
+                      char names[DT_JOINT_MAX_SPECIES][16], size_t n) {
+  const config *c = r->cfg;
+  dt_err e;
+  dt_err_clear(&e);
+  double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
+  dt_read_opts ro = c->ropts;
+  ro.row = row;
+  if (t->air) ro.air = 1;
+  if (t->has_pos) ro.has_pos = 1, ro.ra = t->ra, ro.dec = t->dec;
+  if (t->frame != DT_FRAME_UNSET) ro.in_frame = t->frame;
+  dt_spectrum *s = NULL;
+  int st = dt_spectrum_read(t->path, &ro, &s, &e);
+  /* the lead: the first known doublet the spectrum covers */
+  size_t lead = n;
+  dt_err first_e;
+  dt_err_clear(&first_e);
+  for (size_t q = 0; st == DT_OK && q < n && lead == n; q++) {
+    const dt_doublet *d = dt_atomic_find(r->atomic, names[q]);
+    dt_err ce;
+    if (!d) dt_err_set(&ce, DT_ENOTFOUND, NULL, "unknown doublet '%s'", names[q]);
+    else if (check_coverage(s, d, vsys, &ce) == DT_OK) lead = q;
+    if (q == 0 && lead != 0) first_e = ce;
+  }
+  if (st == DT_OK && lead == n)
+    st = dt_err_set(&e, DT_ERANGE, NULL, "none of the doublets is covered (%s: %s)", names[0],
+                    first_e.what);
+  const dt_doublet *d = st == DT_OK ? dt_atomic_find(r->atomic, names[lead]) : NULL;
+  dt_judgement j;
+  dt_judgement_init(&j);
+  if (st == DT_OK) {
+    snprintf(j.doublet, sizeof j.doublet, "%s", d->name);
+    j.vsys = vsys;
+    if (c->have_window) {
+      j.vlo = c->vlo;
+      j.vhi = c->vhi;
+    } else if (t->has_window) {
+      j.vlo = t->vlo;
+      j.vhi = t->vhi;
+    }
+    if (c->have_order) j.cont_order = c->cont_order;
+    st = pick_resolution(c, t, s, &j, &e);
+  }
+  if (st == DT_OK) st = check_window(c, t, &j, s, &e);
+  dt_system_set set;
+  memset(&set, 0, sizeof set);
+  if (st == DT_OK) st = setup_systems(c, t, s, d, &j, &set, &e);
+  dt_joint_analysis *ja = NULL;
+  dt_joint_out *o = NULL;
+  size_t strongest = 0;
+  const char *linked[DT_JOINT_MAX_SPECIES];
+  size_t nl = 0;
+  for (size_t q = 0; q < n; q++)
+    if (q != lead) linked[nl++] = names[q];
+  if (st == DT_OK) {
+    ja = dt_joint_analysis_alloc(s, r->atomic);
+    o = malloc(sizeof *o);
+    if (!ja || !o) st = dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
+  }
+  if (st == DT_OK) {
+    dt_joint_opts jo;
+    dt_joint_opts_init(&jo);
+    jo.an.limit_nsigma = c->limit_nsigma;
+    jo.an.limit_b = c->limit_b;
+    jo.an.cog = r->cog;
+    jo.an.covariance_only = c->cov_only;
+    dt_joint_analysis_set_opts(ja, &jo);
+    dt_autofit_opts fo;
+    dt_autofit_opts_init(&fo);
+    fo.ncomp = c->ncomp;
+    fo.nseed = c->nseed;
+    for (size_t k = 0; k < c->nseed; k++) fo.seed_v[k] = c->seed_v[k];
+    st = dt_joint_autofit_run(ja, &j, linked, nl, c->btie, &fo, 1, o, &strongest, &e);
+  }
+  long shown_row = s ? s->row : row;
+  if (st == DT_OK || st == DT_ENOCONV) {
+    char why[200], fitted[120] = "";
+    for (size_t i = 0; i < o->nspec; i++)
+      if (o->sp[i].fit_index >= 0) {
+        size_t len = strlen(fitted);
+        snprintf(fitted + len, sizeof fitted - len, "%s%s", len ? "+" : "", o->sp[i].d->name);
+      }
+    snprintf(why, sizeof why, "joint fit of %s (b %s); components from %s", fitted,
+             dt_joint_btie_name(c->btie),
+             o->sp[strongest].d ? o->sp[strongest].d->name : o->sp[strongest].doublet);
+    if (set.mw_joined) r->mw_joined++;
+    /* rows in the order the doublets were given (o->sp: the lead first) */
+    for (size_t q = 0; q < n; q++) {
+      size_t i = q == lead ? 0 : (q < lead ? q + 1 : q);
+      const dt_joint_species_out *so = &o->sp[i];
+      if (so->status == DT_OK && so->fit_index >= 0)
+        write_joint_species(r, t, s, shown_row, &j, o, i, st, &set, why);
+      else
+        write_joint_missing(r, t, s, shown_row, so->d ? so->d->name : names[q], vsys, &so->why);
+    }
+    r->fitted++;
+    if (st == DT_ENOCONV) r->noconv++;
+  } else {
+    report(r, t->path, shown_row, &e);
+    for (size_t q = 0; q < n; q++) {
+      const dt_doublet *dq = dt_atomic_find(r->atomic, names[q]);
+      write_failed(r, t, s, shown_row, dq ? dq->name : names[q], vsys, &e);
+    }
+    r->failed++;
+  }
+  free(o);
+  dt_joint_analysis_free(ja);
+  dt_spectrum_free(s);
+}
+
+/* Fit one spectrum: jointly, or each doublet on its own. */
+static void fit_one(run *r, const dt_target_spec *t, long row) {
+  const config *c = r->cfg;
+  char names[DT_JOINT_MAX_SPECIES][16];
+  dt_err e;
+  dt_err_clear(&e);
+  size_t n = doublet_names(c, t, names, &e);
+  if (n == 0) {
+    report(r, t->path, row, &e);
+    write_failed(r, t, NULL, row, t->doublet, c->have_vsys ? c->vsys : t->vsys, &e);
+    r->failed++;
+    return;
+  }
+  if (c->joint) {
+    fit_joint(r, t, row, names, n);
+    return;
+  }
+  /* counted once per spectrum: fitted when every doublet was, failed
+   * when any failed */
+  long fitted = r->fitted, failed = r->failed, noconv = r->noconv, mw = r->mw_joined;
+  for (size_t q = 0; q < n; q++) fit_one_doublet(r, t, row, names[q]);
+  if (n > 1) {
+    int anyfail = r->failed > failed;
+    r->failed = failed + anyfail;
+    r->fitted = fitted + !anyfail;
+    r->noconv = noconv + (r->noconv > noconv);
+    r->mw_joined = mw + (r->mw_joined > mw);
+  }
 }
 
 /* One input: every row of a multi-row table (or --row), else the spectrum. */
@@ -733,6 +1009,38 @@ static int parse_seeds(const char *text, config *c) {
   return 0;
 }
 
+/* --doublet NAME[,NAME...]: at most DT_JOINT_MAX_SPECIES names, each once. */
+static int parse_doublets(const char *text, config *c) {
+  char buf[256];
+  snprintf(buf, sizeof buf, "%s", text ? text : "");
+  c->doublet = text;
+  c->ndoub = 0;
+  char *save = NULL;
+  for (char *tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
+    while (*tok == ' ') tok++;
+    if (!*tok) continue;
+    if (c->ndoub == DT_JOINT_MAX_SPECIES) {
+      cli_errorf("--doublet: at most %d doublets", DT_JOINT_MAX_SPECIES);
+      return 1;
+    }
+    if (strlen(tok) >= sizeof c->doub[0]) {
+      cli_errorf("--doublet: '%s' is too long for a doublet name", tok);
+      return 1;
+    }
+    for (size_t q = 0; q < c->ndoub; q++)
+      if (strcasecmp(c->doub[q], tok) == 0) {
+        cli_errorf("--doublet: '%s' is named twice", tok);
+        return 1;
+      }
+    snprintf(c->doub[c->ndoub++], sizeof c->doub[0], "%s", tok);
+  }
+  if (c->ndoub == 0) {
+    cli_errorf("--doublet: no doublet named");
+    return 1;
+  }
+  return 0;
+}
+
 /* The run's settings as "# key=value" lines above the header: what was
  * asked for, so that `merge` can refuse shards run differently.  Every
  * setting is written (empty when not given), in a fixed order. */
@@ -810,12 +1118,15 @@ static void write_settings(dt_csv *w, const config *c) {
   memcpy(us.sys, c->systems.extra, us.n * sizeof us.sys[0]);
   dt_systems_format(&us, buf, sizeof buf);
   dt_csv_comment(w, "systems", buf);
+  dt_csv_comment(w, "joint", c->joint ? "yes" : "");
+  dt_csv_comment(w, "b-tie", c->joint ? dt_joint_btie_name(c->btie) : "");
 }
 
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS,
+  O_JOINTFIT, O_BTIE
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -850,6 +1161,8 @@ static const struct option LONGOPTS[] = {
     {"milky-way", required_argument, NULL, O_MW},
     {"jobs", required_argument, NULL, O_JOBS},
     {"intervals", required_argument, NULL, O_INTERVALS},
+    {"joint", no_argument, NULL, O_JOINTFIT},
+    {"b-tie", required_argument, NULL, O_BTIE},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -879,7 +1192,15 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
                       int *only_files) {
   long l;
   switch (opt) {
-  case O_DOUBLET: c->doublet = v; return 0;
+  case O_DOUBLET: return parse_doublets(v, c);
+  case O_JOINTFIT: c->joint = 1; return 0;
+  case O_BTIE:
+    if (dt_joint_btie_parse(v, &c->btie) != DT_OK) {
+      cli_errorf("--b-tie: '%s' is not same, thermal or free", v);
+      return 1;
+    }
+    c->have_btie = 1;
+    return 0;
   case O_RES:
     if (positive("--resolution", v, "R", &c->R)) return 1;
     if (c->R < FIT_MIN_R) {
@@ -1006,6 +1327,14 @@ int cmd_fit(int argc, char **argv) {
     usage(stderr);
     goto done;
   }
+  if (c.have_btie && !c.joint) {
+    cli_errorf("fit: --b-tie applies to joint fits: give --joint too");
+    goto done;
+  }
+  if (c.joint && c.joint_cont > 0) {
+    cli_errorf("fit: --joint fits with fixed continua: --joint-continuum is not available with it");
+    goto done;
+  }
   if (c.have_R && c.have_fwhm) {
     cli_errorf("fit: give --resolution or --fwhm, not both");
     goto done;
@@ -1028,16 +1357,26 @@ int cmd_fit(int argc, char **argv) {
   }
   atomic = cli_load_atomic(c.atomic_file);
   if (!atomic) goto done;
-  if (c.doublet && !dt_atomic_find(atomic, c.doublet)) {
-    char known[256] = "";
-    for (size_t k = 0; k < dt_atomic_count(atomic); k++) {
-      size_t len = strlen(known);
-      snprintf(known + len, sizeof known - len, "%s%s", k ? ", " : "",
-               dt_atomic_get(atomic, k)->name);
+  for (size_t q = 0; q < c.ndoub; q++)
+    if (!dt_atomic_find(atomic, c.doub[q])) {
+      char known[256] = "";
+      for (size_t k = 0; k < dt_atomic_count(atomic); k++) {
+        size_t len = strlen(known);
+        snprintf(known + len, sizeof known - len, "%s%s", k ? ", " : "",
+                 dt_atomic_get(atomic, k)->name);
+      }
+      cli_errorf("--doublet: unknown doublet '%s' (known: %s)", c.doub[q], known);
+      goto done;
     }
-    cli_errorf("--doublet: unknown doublet '%s' (known: %s)", c.doublet, known);
-    goto done;
-  }
+  if (c.joint && c.btie == DT_JOINT_B_THERMAL)
+    for (size_t q = 0; q < c.ndoub; q++) {
+      double m;
+      dt_err me;
+      if (dt_element_mass_of(dt_atomic_find(atomic, c.doub[q])->name, &m, &me) != DT_OK) {
+        cli_errorf("--b-tie thermal: %s", me.what);
+        goto done;
+      }
+    }
   cli_out of;
   if ((rc = cli_out_check(&of, "fit", c.out_path, c.force))) goto done;
   rc = 2;
