@@ -121,6 +121,7 @@ typedef struct dt_session {
 
   /* linked species (session_joint.c) */
   dt_session_species lsp[DT_JUDGE_MAX_LINKED];
+  struct dt_joint_analysis *jan; /* the joint fits' analysis (joint.h); NULL until one */
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;

@@ -201,9 +201,9 @@ static void analyse_main(dt_session *ss, const dt_judgement *j, int fit) {
 /* Refit state *j in place: its components take the fit's values through a
  * DT_ACT_FIT action.  0 when there is a fit to keep. */
 static int fit_into(dt_session *ss, dt_judgement *j) {
+  if (j->nlinked > 0 && j->ncomp > 0 && ss->loaded) return dt_session_joint_into(ss, j);
   dt_session_analyse_state(ss, j, 1);
   if (!ss->an_ok || ss->an_fallback || ss->out.fit.ncomp != j->ncomp) return -1;
-  if (j->nlinked > 0 && j->ncomp > 0) return dt_session_joint_into(ss, j);
   dt_action a;
   dt_action_init(&a, DT_ACT_FIT);
   a.fit = ss->out.fit;

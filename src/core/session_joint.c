@@ -5,7 +5,8 @@
  * the main doublet's components: one velocity per component for all, b by
  * the judgement's rule, log N per species.  Every change goes through
  * dt_session_apply (check, refit, record, adopt) like any other, so the
- * session file holds the link and each joint fit's values.  Each linked
+ * session file holds the link and each joint fit's values (the fit is the
+ * joint fitter's, joint.h, over the spectrum and every species).  Each linked
  * species has its own analysis of the spectrum, evaluated in the state's
  * components, for the inspector's panels. */
 #include <math.h>
@@ -13,6 +14,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "doubletty/joint.h"
 #include "doubletty/model.h"
 #include "doubletty/session.h"
 #include "session_priv.h"
@@ -20,6 +22,8 @@
 /* ------------------------------------------------------------ the species */
 
 void dt_session_linked_free(dt_session *ss) {
+  dt_joint_analysis_free(ss->jan);
+  ss->jan = NULL;
   for (size_t i = 0; i < DT_JUDGE_MAX_LINKED; i++) {
     dt_analysis_free(ss->lsp[i].an);
     ss->lsp[i].an = NULL;
@@ -86,59 +90,89 @@ void dt_session_linked_eval(dt_session *ss, const dt_judgement *j) {
 
 /* ------------------------------------------------------------ the joint fit */
 
-/* The joint fit of state j: the main doublet's components into *fit, every
- * linked species' values into *jf.  ss->out holds the main doublet's own
- * fit of j.  Returns DT_OK or the failure, with msg saying why.
- *
- * This fits the species one after another on the main doublet's
- * velocities (held), b held too under the rule "same"; T and b_turb are
- * left unknown (NaN).  The simultaneous fit of all species is the joint
- * fitter's (joint.h); this is where it is called. */
-static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, dt_linked_fit *jf,
-                     char *msg, size_t n) {
-  *fit = ss->out.fit;
+/* The joint analysis' result as the judgement records it: the main
+ * doublet's components (sp[0]) as a fit result, the linked species' log N
+ * and b, and T and b_turb of the thermal rule. */
+static int joint_take(const dt_judgement *j, const dt_joint_out *out, dt_fit_result *fit, dt_linked_fit *jf,
+                      char *msg, size_t n) {
+  if (out->nspec != 1 + j->nlinked || out->sp[0].status != DT_OK) return snprintf(msg, n, "joint fit: no result"), DT_EINVAL;
+  for (size_t k = 1; k < out->nspec; k++)
+    if (out->sp[k].status != DT_OK || out->sp[k].ncomp != j->ncomp) {
+      snprintf(msg, n, "joint fit: %s left out (%.200s)", out->sp[k].doublet,
+               out->sp[k].why.what[0] ? out->sp[k].why.what : dt_status_str(out->sp[k].status));
+      return out->sp[k].status != DT_OK ? out->sp[k].status : DT_EINVAL;
+    }
+  const dt_joint_result *r = &out->fit;
+  memset(fit, 0, sizeof *fit);
+  fit->status = out->fit_status;
+  fit->niter = r->niter;
+  fit->ncomp = out->sp[0].ncomp;
+  memcpy(fit->comp, out->sp[0].comp, sizeof fit->comp);
+  memcpy(fit->err, out->sp[0].err, sizeof fit->err);
+  fit->chi2 = r->chi2;
+  fit->dof = r->dof;
+  fit->chi2_red = r->chi2_red;
+  fit->bic = r->bic;
+  fit->npix = r->npix;
   dt_linked_fit_clear(jf);
   jf->nspecies = j->nlinked;
-  dt_judgement main = *j;
-  main.ncomp = fit->ncomp;
-  memcpy(main.comp, fit->comp, fit->ncomp * sizeof fit->comp[0]);
   for (size_t k = 0; k < j->nlinked; k++) {
+    const dt_joint_species_out *so = &out->sp[k + 1];
     dt_linked_species *sp = &jf->sp[k];
     snprintf(sp->doublet, sizeof sp->doublet, "%s", j->linked[k]);
-    dt_analysis *an = species_analysis(ss, k);
-    if (!an) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
-    dt_judgement s = species_state(&main, k);
-    for (size_t c = 0; c < s.ncomp; c++) {
-      s.comp[c].b = fit->comp[c].b;
-      s.frozen[c] = DT_FREEZE_V | (j->btie == DT_BTIE_SAME ? DT_FREEZE_B : 0);
+    for (size_t c = 0; c < j->ncomp; c++) {
+      sp->logN[c] = so->comp[c].logN;
+      sp->logN_err[c] = so->err[c].logN;
+      sp->b[c] = so->comp[c].b;
+      sp->b_err[c] = so->err[c].b;
     }
-    dt_err e;
-    dt_err_clear(&e);
-    int rc = dt_analysis_run(an, &s, &ss->lsp[k].out, &e);
-    if (rc != DT_OK) {
-      snprintf(msg, n, "joint fit, %s: %s", j->linked[k], e.what[0] ? e.what : dt_status_str(rc));
-      return rc;
-    }
-    const dt_fit_result *r = &ss->lsp[k].out.fit;
-    for (size_t c = 0; c < s.ncomp; c++) {
-      sp->logN[c] = r->comp[c].logN;
-      sp->logN_err[c] = r->err[c].logN;
-      sp->b[c] = r->comp[c].b;
-      sp->b_err[c] = j->btie == DT_BTIE_SAME ? fit->err[c].b : r->err[c].b;
-    }
+  }
+  for (size_t c = 0; j->btie == DT_BTIE_THERMAL && c < j->ncomp; c++) {
+    jf->T[c] = r->T[c];
+    jf->T_err[c] = r->T_err[c];
+    jf->bturb[c] = r->b_turb[c];
+    jf->bturb_err[c] = r->b_turb_err[c];
   }
   return DT_OK;
 }
 
+/* The joint fit of state j (joint.h): the main doublet's components into
+ * *fit, every linked species' values into *jf.  Returns DT_OK or the
+ * failure, with msg saying why. */
+static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, dt_linked_fit *jf,
+                     char *msg, size_t n) {
+  if (!ss->jan) {
+    ss->jan = dt_joint_analysis_alloc(ss->spec, ss->atomic);
+    if (!ss->jan) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
+  }
+  dt_joint_out *out = malloc(sizeof *out);
+  if (!out) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
+  const char *names[DT_JUDGE_MAX_LINKED];
+  for (size_t k = 0; k < j->nlinked; k++) names[k] = j->linked[k];
+  dt_err e;
+  dt_err_clear(&e);
+  int rc = dt_joint_analysis_run(ss->jan, j, names, j->nlinked, (dt_joint_btie)j->btie, out, &e);
+  if (rc == DT_OK || rc == DT_ENOCONV) { /* a fit that did not converge is recorded as such */
+    int t = joint_take(j, out, fit, jf, msg, n);
+    if (t != DT_OK) rc = t;
+    else if (rc != DT_OK) snprintf(msg, n, "the joint fit did not converge: %.200s", e.what);
+  } else {
+    snprintf(msg, n, "joint fit: %.250s", e.what[0] ? e.what : dt_status_str(rc));
+  }
+  free(out);
+  return rc;
+}
+
 int dt_session_joint_into(dt_session *ss, dt_judgement *j) {
-  if (j->nlinked == 0 || j->ncomp == 0) return -1;
+  if (j->nlinked == 0 || j->ncomp == 0 || !ss->loaded) return -1;
+  ss->nfits++;
   dt_action a;
   dt_action_init(&a, DT_ACT_JOINT_FIT);
   char msg[300] = "";
   int rc = joint_run(ss, j, &a.fit, &a.joint, msg, sizeof msg);
-  if (rc != DT_OK || a.fit.ncomp != j->ncomp) {
+  if ((rc != DT_OK && rc != DT_ENOCONV) || a.fit.ncomp != j->ncomp) {
+    dt_session_analyse_state(ss, j, 0); /* shown as it stands */
     snprintf(ss->an_msg, sizeof ss->an_msg, "%s", msg[0] ? msg : "the joint fit failed");
-    dt_session_linked_eval(ss, j);
     return -1;
   }
   if (dt_judgement_apply(j, &a) != DT_OK) return -1;
@@ -149,8 +183,7 @@ int dt_session_joint_into(dt_session *ss, dt_judgement *j) {
 int dt_session_joint_verify(dt_session *ss, const dt_judgement *j, char *why, size_t n) {
   why[0] = '\0';
   dt_judgement again = *j;
-  dt_session_analyse_state(ss, &again, 1);
-  if (!ss->an_ok || dt_session_joint_into(ss, &again)) {
+  if (dt_session_joint_into(ss, &again)) {
     snprintf(why, n, "the joint refit failed");
     return 0;
   }

@@ -140,6 +140,24 @@ int main(void) {
   CHECK(dt_session_btie_next(ss) == DT_OK && ss->j.btie == DT_BTIE_THERMAL && last_is(sess, "b-tie"),
         "b rule: thermal, recorded");
   CHECK(ss->j.has_joint, "refitted jointly under the new rule");
+  /* b^2 = b_turb^2 + 2 k T / m for each species (Spitzer 1978, ch. 3 -- from
+   * memory): k = 1.380649e-23 J/K (SI 2019, exact), m_u = 1.66053906660e-27
+   * kg (CODATA 2018), standard atomic weights Na 22.98976928, Ca 40.078
+   * (IUPAC -- from memory) */
+  {
+    const double kB = 1.380649e-23, mu = 1.66053906660e-27;
+    int ok = ss->j.ncomp > 0;
+    for (size_t c = 0; c < ss->j.ncomp; c++) {
+      double T = ss->j.joint.T[c], bt = ss->j.joint.bturb[c];
+      double bna = sqrt(bt * bt + 2 * kB * T / (22.98976928 * mu) * 1e-6);
+      double bca = sqrt(bt * bt + 2 * kB * T / (40.078 * mu) * 1e-6);
+      if (!isfinite(T) || !(fabs(bna - ss->j.comp[c].b) < 1e-3 * bna) ||
+          !(fabs(bca - ss->j.joint.sp[0].b[c]) < 1e-3 * bca))
+        ok = 0;
+    }
+    CHECK(ok, "thermal: each species' b from T and b_turb by its mass (Na I %.2f, Ca II %.2f km/s)",
+          ss->j.comp[0].b, ss->j.joint.sp[0].b[0]);
+  }
   CHECK(dt_session_btie_next(ss) == DT_OK && ss->j.btie == DT_BTIE_FREE, "b rule: free");
   dt_judgement free_state = ss->j;
   CHECK(dt_session_verdict(ss, DT_VERDICT_DETECTED) == DT_OK, "verdict detected");
