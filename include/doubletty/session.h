@@ -220,6 +220,14 @@ int dt_session_btie_next(dt_session *ss);
 /* The doublets of the table other than the main one whose two lines the
  * spectrum covers at vsys, in table order, into out[0..max); their count. */
 size_t dt_session_linkable(const dt_session *ss, const dt_doublet **out, size_t max);
+/* Refit a recorded joint state (has_joint) of spectrum sp jointly, starting
+ * from its components, and compare: the main doublet's fit as
+ * dt_fit_check_refit does, each linked species' log N within tol_sigma of
+ * the larger 1-sigma error.  *agrees 1 when it reproduces the record (or
+ * the state has no joint fit), else 0 with why naming the difference.
+ * DT_OK, or the joint analysis' error with e filled. */
+int dt_linked_verify(const dt_spectrum *sp, const dt_atomic *at, const dt_judgement *recorded,
+                     double tol_sigma, int *agrees, char *why, size_t nwhy, dt_err *e);
 
 /* Set the message (for callers that speak through the session's line). */
 void dt_session_say(dt_session *ss, dt_session_tone tone, const char *fmt, ...)

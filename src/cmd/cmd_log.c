@@ -29,6 +29,7 @@
 #include "doubletty/atomic.h"
 #include "doubletty/digest.h"
 #include "doubletty/journal.h"
+#include "doubletty/session.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/utf8.h"
 #include "session_util.h"
@@ -322,11 +323,6 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
       }
     }
     if (!en->state.has_fit) continue;
-    if (en->state.has_joint) { /* the inspector checks these on resume, by a joint refit */
-      printf("joint fit     %s: %s with %zu linked species, not refitted here\n", name, en->state.doublet,
-             en->state.nlinked);
-      continue;
-    }
     nfit++;
     dt_read_opts ro;
     memset(&ro, 0, sizeof ro);
@@ -360,11 +356,15 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     o.joint_cont = en->state.fit.ncont;
     dt_analysis_set_opts(an, &o);
     int agrees = 0;
-    if (dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
+    int vrc = en->state.has_joint /* refitted jointly, every species compared */
+                  ? dt_linked_verify(sp, at, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e)
+                  : dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e);
+    if (vrc != DT_OK) {
       printf("cannot refit  %s: %s\n", name, e.what);
       nfail++;
     } else if (agrees) {
-      printf("reproduced    %s  (chi2_red %.3f)\n", name, en->state.fit.chi2_red);
+      printf("reproduced    %s  (chi2_red %.3f%s)\n", name, en->state.fit.chi2_red,
+             en->state.has_joint ? ", joint fit" : "");
       nok++;
     } else {
       printf("MISMATCH      %s: %s\n", name, why);

@@ -180,18 +180,15 @@ int dt_session_joint_into(dt_session *ss, dt_judgement *j) {
   return 0;
 }
 
-int dt_session_joint_verify(dt_session *ss, const dt_judgement *j, char *why, size_t n) {
-  why[0] = '\0';
-  dt_judgement again = *j;
-  if (dt_session_joint_into(ss, &again)) {
-    snprintf(why, n, "the joint refit failed");
-    return 0;
-  }
-  if (!dt_fit_check_refit(&j->fit, &again.fit, DT_REFIT_TOL_SIGMA, why, n)) return 0;
+/* Does joint fit `now` reproduce the recorded joint state j?  1 yes; 0
+ * with why naming the first difference. */
+static int joint_agrees(const dt_judgement *j, const dt_fit_result *fit, const dt_linked_fit *now,
+                        double tol_sigma, char *why, size_t n) {
+  if (!dt_fit_check_refit(&j->fit, fit, tol_sigma, why, n)) return 0;
   for (size_t k = 0; k < j->nlinked; k++)
     for (size_t c = 0; c < j->ncomp; c++) {
-      const dt_linked_species *a = &j->joint.sp[k], *b = &again.joint.sp[k];
-      double tol = DT_REFIT_TOL_SIGMA * fmax(a->logN_err[c], b->logN_err[c]);
+      const dt_linked_species *a = &j->joint.sp[k], *b = &now->sp[k];
+      double tol = tol_sigma * fmax(a->logN_err[c], b->logN_err[c]);
       if (!(fabs(a->logN[c] - b->logN[c]) <= fmax(tol, 1e-6))) {
         snprintf(why, n, "%s log N of component %zu: %.3f recorded, %.3f now", j->linked[k], c + 1,
                  a->logN[c], b->logN[c]);
@@ -199,6 +196,44 @@ int dt_session_joint_verify(dt_session *ss, const dt_judgement *j, char *why, si
       }
     }
   return 1;
+}
+
+int dt_session_joint_verify(dt_session *ss, const dt_judgement *j, char *why, size_t n) {
+  why[0] = '\0';
+  dt_judgement again = *j;
+  if (dt_session_joint_into(ss, &again)) {
+    snprintf(why, n, "the joint refit failed");
+    return 0;
+  }
+  return joint_agrees(j, &again.fit, &again.joint, DT_REFIT_TOL_SIGMA, why, n);
+}
+
+int dt_linked_verify(const dt_spectrum *sp, const dt_atomic *at, const dt_judgement *recorded,
+                     double tol_sigma, int *agrees, char *why, size_t nwhy, dt_err *e) {
+  *agrees = 1;
+  if (nwhy) why[0] = '\0';
+  if (!recorded->has_joint) return DT_OK;
+  dt_joint_analysis *ja = dt_joint_analysis_alloc(sp, at);
+  dt_joint_out *out = malloc(sizeof *out);
+  if (!ja || !out) {
+    dt_joint_analysis_free(ja);
+    free(out);
+    return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  }
+  const char *names[DT_JUDGE_MAX_LINKED];
+  for (size_t k = 0; k < recorded->nlinked; k++) names[k] = recorded->linked[k];
+  int rc = dt_joint_analysis_run(ja, recorded, names, recorded->nlinked, (dt_joint_btie)recorded->btie, out, e);
+  if (rc == DT_OK || rc == DT_ENOCONV) {
+    dt_fit_result fit;
+    dt_linked_fit now;
+    char msg[300];
+    rc = joint_take(recorded, out, &fit, &now, msg, sizeof msg);
+    if (rc != DT_OK) dt_err_set(e, rc, NULL, "%s", msg);
+    else *agrees = joint_agrees(recorded, &fit, &now, tol_sigma, why, nwhy);
+  }
+  dt_joint_analysis_free(ja);
+  free(out);
+  return rc;
 }
 
 /* ------------------------------------------------------------ the actions */

@@ -71,6 +71,11 @@ check "the session replays without warnings" sh -c "'$DT' log '$S' >'$TMP/log' 2
 check "log names the link and gives each species' log N" \
   grep -Eq "  link  linked CaII  => .*; linked CaII \(b same\): NaI logN [0-9.]+ [0-9.]+ \| CaII logN [0-9.]+ [0-9.]+" "$TMP/log"
 
+"$DT" log --verify "$S" >"$TMP/verify" 2>&1
+vrc=$?
+check "log --verify: the joint fit is reproduced by a joint refit (exit $vrc)" \
+  sh -c "test $vrc -eq 0 && grep -Eq '^reproduced +demo/vpq16.fits#NaI .*joint fit\)' '$TMP/verify'"
+
 "$DT" export "$S" -o "$TMP/x.csv" 2>"$TMP/x.err"
 check "export: exit 0" test $? -eq 0
 col() { awk -F, -v d="$1" -v k="$2" -v c="$3" 'NR == 1 { for (i = 1; i <= NF; i++) h[$i] = i; next }
