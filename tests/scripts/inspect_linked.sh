@@ -98,4 +98,19 @@ check "Ca II log N of the Milky-Way cloud: $mw (injected 12.936)" \
   awk -v x="$mw" 'BEGIN { exit !(x != "" && x - 12.936 < 0.35 && 12.936 - x < 0.35) }'
 check "Ca II log N of the pair cloud: $pr (injected 12.293)" \
   awk -v x="$pr" 'BEGIN { exit !(x != "" && x - 12.293 < 0.35 && 12.293 - x < 0.35) }'
+
+# a second person, headless (--replay-keys): links Ca II through the chooser
+# under the rule "same" and calls it unsure; compare shows both sides' links
+"$DT" inspect --list "$TMP/demo/one.list" --session "$TMP/b.session" --user bo --replay-keys /dev/stdin \
+  >/dev/null 2>&1 <<'KEYS'
+link-species
+1
+verdict-unsure
+KEYS
+check "replayed keys record the link" grep -q "act=link	doublet=CaII	link=1" "$TMP/b.session"
+"$DT" compare "$S" "$TMP/b.session" >"$TMP/cmp" 2>&1
+check "compare: one disagreement (detected vs unsure)" grep -q "^disagreements: 1" "$TMP/cmp"
+check "compare: each side's linked species with every species' log N" \
+  sh -c "grep -Eq '^    1: linked CaII \(b free\): NaI logN [0-9.]+ [0-9.]+ \| CaII logN' '$TMP/cmp' &&
+         grep -Eq '^    2: linked CaII \(b same\): NaI logN [0-9.]+ [0-9.]+ \| CaII logN' '$TMP/cmp'"
 finish
