@@ -32,7 +32,7 @@
  * k_B / (m_s m_u b_s)) and the transforms.  Errors are 1-sigma from the
  * covariance (J^T J)^-1 at the solution, mapped back through the
  * transforms, not scaled by chi2_red (as fit.h); the b of each species
- * under `thermal` gets its error from the covariance of (T, b_turb).
+ * under `thermal` gets its error from the covariance of (T, q).
  * BIC = chi2 + k ln n over all species' pixels (Schwarz 1978).
  *
  * The analysis level (dt_joint_analysis_*) does for a spectrum what
@@ -241,6 +241,25 @@ void dt_joint_analysis_set_opts(dt_joint_analysis *ja, const dt_joint_opts *o);
 int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
                           const char *const *linked, size_t nlinked, dt_joint_btie btie,
                           dt_joint_out *out, dt_err *e);
+
+/* The same, starting the linked species from a previous run's values
+ * (start, typically the last out; may be out itself): where start has a
+ * fit of as many components as j and a species of the same name, its
+ * log N (and b under `free`) start from start's instead of a fit of that
+ * species alone, and under `thermal` T and b_turb from start's.  A refit
+ * after a nudge then costs one joint fit.  start NULL: as
+ * dt_joint_analysis_run. */
+int dt_joint_analysis_run_from(dt_joint_analysis *ja, const dt_judgement *j,
+                               const char *const *linked, size_t nlinked, dt_joint_btie btie,
+                               const dt_joint_out *start, dt_joint_out *out, dt_err *e);
+
+/* Species q of out (out->sp[q], fitted) as a single-doublet fit result:
+ * its components and errors, the joint fit's status, iterations, chi2,
+ * dof, BIC and pixels (all species'), no joint continuum.  For recording
+ * the joint values in a judgement (DT_ACT_FIT); note that a single-doublet
+ * refit of that judgement (dt_analysis_verify_fit) need not reproduce
+ * them.  DT_OK; DT_EINVAL when species q was not fitted. */
+int dt_joint_species_fit(const dt_joint_out *out, size_t q, dt_fit_result *r);
 
 /* The joint first pass.  The species of largest significance (the
  * stronger line's equivalent width over j's window divided by its error)

@@ -571,9 +571,28 @@ static size_t doublet_names(const config *c, const dt_target_spec *t,
   return n;
 }
 
+/* Is any parameter of component k of a joint fit within 1% of the end of
+ * its range (the logistic transforms of joint.h: log N, ln b, ln T)? */
+static int joint_at_bound(const dt_joint_result *fr, size_t k) {
+  const double nlo = DT_FIT_LOGN_MIN, nhi = DT_FIT_LOGN_MAX, m = 0.01;
+  const double blo = log(DT_FIT_B_MIN), bhi = log(DT_FIT_B_MAX);
+  for (size_t s = 0; s < fr->nspec; s++) {
+    double n = fr->comp[s][k].logN, b = log(fr->comp[s][k].b);
+    if (n < nlo + m * (nhi - nlo) || n > nhi - m * (nhi - nlo)) return 1;
+    if (fr->btie != DT_JOINT_B_THERMAL && (b < blo + m * (bhi - blo) || b > bhi - m * (bhi - blo)))
+      return 1;
+  }
+  if (fr->btie == DT_JOINT_B_THERMAL) {
+    double t = log(fr->T[k]), tlo = log(DT_JOINT_T_MIN), thi = log(DT_JOINT_T_MAX);
+    if (t < tlo + m * (thi - tlo) || t > thi - m * (thi - tlo)) return 1;
+  }
+  return 0;
+}
+
 /* The rows of one species of a joint fit: one per component (its values,
- * the joint fit's chi2, dof and BIC, its detection and, when not detected,
- * its limit), or one with empty component fields when there is none. */
+ * the joint fit's chi2, dof and BIC, the doublet's detection and, when not
+ * detected, its limit; the component's N/sigma in the reason), or one with
+ * empty component fields when there is none. */
 static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                                 const dt_judgement *j, const dt_joint_out *o, size_t q, int st,
                                 const dt_system_set *set, const char *why) {
@@ -603,7 +622,9 @@ static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectr
     dt_csv_long(w, fr->dof);
     dt_csv_fixed(w, fr->bic, 3);
     for (int e = 0; e < 11; e++) dt_csv_empty(w);   /* W_mA .. masked_frac */
-    int det = has && so->detected[k];
+    /* the verdict and limits per doublet, as a single fit gives them per
+     * system: detected when any of its components is significant */
+    int det = so->any_detected;
     if (!det) {
       dt_csv_fixed(w, 1e3 * so->W_limit, 2);
       dt_csv_fixed(w, so->logN_limit, 4);
@@ -615,7 +636,10 @@ static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectr
     char reason[320];
     size_t len = (size_t)snprintf(reason, sizeof reason, "%s", why);
     if (has && len < sizeof reason)
-      snprintf(reason + len, sizeof reason - len, "; N/sigma %.1f", so->N_sig[k]);
+      len += (size_t)snprintf(reason + len, sizeof reason - len, "; N/sigma %.1f%s",
+                              so->N_sig[k], so->detected[k] ? "" : " (not significant)");
+    if (has && joint_at_bound(fr, k) && len < sizeof reason)
+      snprintf(reason + len, sizeof reason - len, "; parameters at the limit of their range");
     dt_csv_text(w, reason);
     pos_cells(w, s);
     tail_cells(w, has ? fr : NULL, k);

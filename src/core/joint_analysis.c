@@ -307,10 +307,50 @@ static void species_result(dt_joint_analysis *ja, size_t s, size_t f, dt_joint_o
   }
 }
 
+static int run_joint(dt_joint_analysis *ja, const dt_judgement *j, const char *const *linked,
+                     size_t nlinked, dt_joint_btie btie, const dt_joint_out *start,
+                     dt_joint_out *out, dt_err *e);
+
+/* The species of a previous run named like species name, with a fit of
+ * ncomp components; NULL when there is none. */
+static const dt_joint_species_out *start_species(const dt_joint_out *start, const char *name,
+                                                 size_t ncomp) {
+  if (!start || start->fit.ncomp != ncomp ||
+      (start->fit_status != DT_OK && start->fit_status != DT_ENOCONV))
+    return NULL;
+  for (size_t q = 0; q < start->nspec; q++) {
+    const dt_joint_species_out *so = &start->sp[q];
+    if (so->fit_index >= 0 && so->ncomp == ncomp && same_name(so->doublet, name)) return so;
+  }
+  return NULL;
+}
+
 int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
                           const char *const *linked, size_t nlinked, dt_joint_btie btie,
                           dt_joint_out *out, dt_err *e) {
+  return dt_joint_analysis_run_from(ja, j, linked, nlinked, btie, NULL, out, e);
+}
+
+int dt_joint_analysis_run_from(dt_joint_analysis *ja, const dt_judgement *j,
+                               const char *const *linked, size_t nlinked, dt_joint_btie btie,
+                               const dt_joint_out *start, dt_joint_out *out, dt_err *e) {
   dt_err_clear(e);
+  /* out may be start: keep what is needed of it first */
+  dt_joint_out *prev = NULL;
+  if (start) {
+    prev = malloc(sizeof *prev);
+    if (!prev) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+    *prev = *start;
+    start = prev;
+  }
+  int st = run_joint(ja, j, linked, nlinked, btie, start, out, e);
+  free(prev);
+  return st;
+}
+
+static int run_joint(dt_joint_analysis *ja, const dt_judgement *j, const char *const *linked,
+                     size_t nlinked, dt_joint_btie btie, const dt_joint_out *start,
+                     dt_joint_out *out, dt_err *e) {
   memset(out, 0, sizeof *out);
   out->fit_status = DT_EINVAL;
   if (!ja || !j) return dt_err_set(e, DT_EINVAL, NULL, "no analysis or judgement");
@@ -370,6 +410,12 @@ int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
     p->b[k] = j->comp[k].b;
     p->T[k] = 0;
     p->b_turb[k] = -1;
+    if (start && start->fit.ncomp == j->ncomp && start->fit.btie == DT_JOINT_B_THERMAL &&
+        btie == DT_JOINT_B_THERMAL && isfinite(start->fit.T[k]) &&
+        isfinite(start->fit.b_turb[k])) {
+      p->T[k] = start->fit.T[k];
+      p->b_turb[k] = start->fit.b_turb[k];
+    }
   }
   size_t nf = 0;
   size_t fidx[DT_JOINT_MAX_SPECIES];
@@ -380,11 +426,19 @@ int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
     const double *wave = dt_analysis_wave(sl->an);
     st = ensure_model(ja, s, j, so->d, wave, so->n, e);
     if (st) return st;
-    double logN[DT_MAX_COMP];
-    if (s == 0)
+    double logN[DT_MAX_COMP], bstart[DT_MAX_COMP];
+    const dt_joint_species_out *ps = s ? start_species(start, so->doublet, j->ncomp) : NULL;
+    for (size_t k = 0; k < j->ncomp; k++) bstart[k] = j->comp[k].b;
+    if (s == 0) {
       for (size_t k = 0; k < j->ncomp; k++) logN[k] = j->comp[k].logN;
-    else if (j->ncomp)
+    } else if (ps) {
+      for (size_t k = 0; k < j->ncomp; k++) {
+        logN[k] = ps->comp[k].logN;
+        if (btie == DT_JOINT_B_FREE) bstart[k] = ps->comp[k].b;
+      }
+    } else if (j->ncomp) {
       start_logN(ja, s, j, &sj[s], logN);
+    }
     const unsigned char *used = dt_analysis_used(sl->an);
     for (size_t i = 0; i < so->n; i++) sl->mask[i] = !used[i];
     dt_joint_species *sp = &ja->sp[nf];
@@ -397,7 +451,7 @@ int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
     sp->mass_u = so->mass_u;
     for (size_t k = 0; k < j->ncomp; k++) {
       sp->logN[k] = logN[k];
-      sp->b[k] = j->comp[k].b;
+      sp->b[k] = bstart[k];
     }
     fidx[nf] = s;
     nf++;
@@ -410,6 +464,24 @@ int dt_joint_analysis_run(dt_joint_analysis *ja, const dt_judgement *j,
   if (st != DT_OK && st != DT_ENOCONV) return st;
   for (size_t f = 0; f < nf; f++) species_result(ja, fidx[f], f, out);
   return st;
+}
+
+int dt_joint_species_fit(const dt_joint_out *out, size_t q, dt_fit_result *r) {
+  memset(r, 0, sizeof *r);
+  if (!out || q >= out->nspec || out->sp[q].fit_index < 0) return DT_EINVAL;
+  const dt_joint_species_out *so = &out->sp[q];
+  const dt_joint_result *f = &out->fit;
+  r->status = f->status;
+  r->niter = f->niter;
+  r->ncomp = so->ncomp;
+  memcpy(r->comp, so->comp, so->ncomp * sizeof r->comp[0]);
+  memcpy(r->err, so->err, so->ncomp * sizeof r->err[0]);
+  r->chi2 = f->chi2;
+  r->dof = f->dof;
+  r->chi2_red = f->chi2_red;
+  r->bic = f->bic;
+  r->npix = f->npix;
+  return DT_OK;
 }
 
 /* ---- the joint first pass ------------------------------------------- */
@@ -521,11 +593,15 @@ int dt_joint_autofit_run(dt_joint_analysis *ja, dt_judgement *j, const char *con
     if (!trial) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
     int ts = dt_joint_analysis_run(ja, &tj, linked, nlinked, btie, trial, NULL);
     int better = ts == DT_OK && trial->fit.bic < out->fit.bic - margin;
-    free(trial);
-    if (!better) break;
+    if (!better) {
+      free(trial);
+      break;
+    }
     jj = tj;
-    /* run again to leave the analysis (and out's arrays) in the kept state */
-    st = dt_joint_analysis_run(ja, &jj, linked, nlinked, btie, out, e);
+    /* run again (from the trial's values) to leave the analysis and out's
+     * arrays in the kept state */
+    st = dt_joint_analysis_run_from(ja, &jj, linked, nlinked, btie, trial, out, e);
+    free(trial);
   }
   if (st == DT_OK || st == DT_ENOCONV) {
     if (out->sp[0].fit_index >= 0) take_components(out, &jj);

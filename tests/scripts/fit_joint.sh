@@ -103,6 +103,12 @@ check "Ca II only: Ca II components detected without limits" grep -qx '2 CaII de
 check "Ca II only: Na I rows not detected, with N, its error and a limit" \
   grep -qx '2 NaI not-detected limit err' "$TMP/ca.rows"
 
+# ---- threads: the same bytes ---------------------------------------------
+for i in 1 2 3; do printf '%s fwhm=1\n%s fwhm=1\n' "$TMP/two.txt" "$TMP/ca.txt"; done >"$TMP/j.list"
+$DT fit --doublet NaI,CaII --joint --jobs 1 --list "$TMP/j.list" -o "$TMP/j1.csv" 2>/dev/null
+$DT fit --doublet NaI,CaII --joint --jobs 2 --list "$TMP/j.list" -o "$TMP/j2.csv" 2>/dev/null
+check "joint fits: --jobs 2 writes the --jobs 1 table byte for byte" cmp -s "$TMP/j1.csv" "$TMP/j2.csv"
+
 # ---- refusals ------------------------------------------------------------
 expect_fail "unknown doublet in the list" "unknown doublet 'FooI'" \
   $DT fit --doublet NaI,FooI --joint "$TMP/two.txt"

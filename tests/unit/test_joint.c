@@ -461,6 +461,24 @@ static void check_analysis(void) {
   CHECK(fabs(chi - out.fit.chi2) < 1e-6 * out.fit.chi2 && nu == out.fit.npix,
         "analysis: the species' models give the fit's chi2 (%.2f over %zu pixels)", chi, nu);
   CHECK(out.sp[0].any_detected && out.sp[1].any_detected, "analysis: both species detected");
+  dt_fit_result fr1;
+  CHECK(dt_joint_species_fit(&out, 1, &fr1) == DT_OK && fr1.ncomp == 2 &&
+            fr1.comp[1].logN == out.sp[1].comp[1].logN && fr1.chi2 == out.fit.chi2 &&
+            dt_joint_species_fit(&out, 2, &fr1) == DT_EINVAL,
+        "analysis: a species' values as a fit result (none for one not fitted)");
+  /* a refit from the last result: the same minimum */
+  static dt_joint_out again;
+  again = out;
+  double t2 = now();
+  st = dt_joint_analysis_run_from(ja, &j, linked, 4, DT_JOINT_B_FREE, &again, &again, &e);
+  double t3 = now();
+  int same = st == DT_OK && again.fit.ncomp == out.fit.ncomp;
+  for (size_t k = 0; same && k < out.fit.ncomp; k++)
+    for (int q = 0; q < 2; q++)
+      same &= fabs(again.sp[q].comp[k].logN - out.sp[q].comp[k].logN) < 0.01 * out.sp[q].err[k].logN &&
+              fabs(again.sp[q].comp[k].v - out.sp[q].comp[k].v) < 0.01 * out.sp[q].err[k].v;
+  CHECK(same, "analysis: a refit from the last result finds the same minimum (%.1f ms)",
+        1e3 * (t3 - t2));
 
   /* thermal with a species without a mass: an error naming it */
   const char *lx[] = {"XqI"};
