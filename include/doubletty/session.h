@@ -122,6 +122,8 @@ typedef struct dt_session {
   /* linked species (session_joint.c) */
   dt_session_species lsp[DT_JUDGE_MAX_LINKED];
   struct dt_joint_analysis *jan; /* the joint fits' analysis (joint.h); NULL until one */
+  struct dt_joint_out *jout;  /* its last result (the next fit starts from it) ... */
+  int jout_ok;                /* ... when this is 1 */
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;

@@ -24,6 +24,9 @@
 void dt_session_linked_free(dt_session *ss) {
   dt_joint_analysis_free(ss->jan);
   ss->jan = NULL;
+  free(ss->jout);
+  ss->jout = NULL;
+  ss->jout_ok = 0;
   for (size_t i = 0; i < DT_JUDGE_MAX_LINKED; i++) {
     dt_analysis_free(ss->lsp[i].an);
     ss->lsp[i].an = NULL;
@@ -103,17 +106,7 @@ static int joint_take(const dt_judgement *j, const dt_joint_out *out, dt_fit_res
       return out->sp[k].status != DT_OK ? out->sp[k].status : DT_EINVAL;
     }
   const dt_joint_result *r = &out->fit;
-  memset(fit, 0, sizeof *fit);
-  fit->status = out->fit_status;
-  fit->niter = r->niter;
-  fit->ncomp = out->sp[0].ncomp;
-  memcpy(fit->comp, out->sp[0].comp, sizeof fit->comp);
-  memcpy(fit->err, out->sp[0].err, sizeof fit->err);
-  fit->chi2 = r->chi2;
-  fit->dof = r->dof;
-  fit->chi2_red = r->chi2_red;
-  fit->bic = r->bic;
-  fit->npix = r->npix;
+  if (dt_joint_species_fit(out, 0, fit) != DT_OK) return snprintf(msg, n, "joint fit: no result"), DT_EINVAL;
   dt_linked_fit_clear(jf);
   jf->nspecies = j->nlinked;
   for (size_t k = 0; k < j->nlinked; k++) {
@@ -145,13 +138,16 @@ static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, 
     ss->jan = dt_joint_analysis_alloc(ss->spec, ss->atomic);
     if (!ss->jan) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
   }
-  dt_joint_out *out = malloc(sizeof *out);
-  if (!out) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
+  if (!ss->jout && !(ss->jout = malloc(sizeof *ss->jout))) return snprintf(msg, n, "out of memory"), DT_ENOMEM;
+  dt_joint_out *out = ss->jout;
   const char *names[DT_JUDGE_MAX_LINKED];
   for (size_t k = 0; k < j->nlinked; k++) names[k] = j->linked[k];
   dt_err e;
   dt_err_clear(&e);
-  int rc = dt_joint_analysis_run(ss->jan, j, names, j->nlinked, (dt_joint_btie)j->btie, out, &e);
+  /* from the last joint fit of this spectrum: a refit after a nudge is one joint fit */
+  int rc = dt_joint_analysis_run_from(ss->jan, j, names, j->nlinked, (dt_joint_btie)j->btie,
+                                      ss->jout_ok ? out : NULL, out, &e);
+  ss->jout_ok = rc == DT_OK || rc == DT_ENOCONV;
   if (rc == DT_OK || rc == DT_ENOCONV) { /* a fit that did not converge is recorded as such */
     int t = joint_take(j, out, fit, jf, msg, n);
     if (t != DT_OK) rc = t;
@@ -159,7 +155,6 @@ static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, 
   } else {
     snprintf(msg, n, "joint fit: %.250s", e.what[0] ? e.what : dt_status_str(rc));
   }
-  free(out);
   return rc;
 }
 
