@@ -512,6 +512,7 @@ int dt_session_autofit_to(dt_session *ss, const dt_judgement *base, const dt_act
   }
   ss->out = af.an; /* the measurements recorded are the new state's */
   ss->an_ok = 1;
+  if (trial.nlinked > 0 && ss->auto_refit) dt_session_joint_into(ss, &trial); /* linked: jointly */
   int keep = ss->has_suggest;
   dt_verdict ks = ss->suggested;
   char kr[sizeof ss->reason];

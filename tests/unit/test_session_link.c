@@ -165,6 +165,8 @@ int main(void) {
   CHECK(dt_session_redo(ss) == DT_OK && ss->j.verdict == DT_VERDICT_DETECTED, "redo");
   CHECK(dt_session_refit(ss) == DT_OK && last_is(sess, "joint-fit") && ss->j.has_joint,
         "a refit is a joint fit, recorded as one");
+  CHECK(dt_session_autofit(ss) == DT_OK && ss->j.has_joint && ss->j.nlinked == 1 && last_is(sess, "autofit"),
+        "the first pass keeps the link and is fitted jointly");
   dt_judgement held = ss->j;
 
   /* the file replays to the state held */
