@@ -277,6 +277,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     if (arc == DT_OK || arc == DT_ENOCONV) {
       ss->j = trial;
       dt_session_suggest(ss, &af);
+      if (ss->j.nlinked > 0) dt_session_joint_into(ss, &ss->j); /* linked in the list: jointly */
     }
     ss->pending = 1;
     dt_session_analyse_state(ss, &ss->j, 0);

@@ -113,4 +113,15 @@ check "compare: one disagreement (detected vs unsure)" grep -q "^disagreements: 
 check "compare: each side's linked species with every species' log N" \
   sh -c "grep -Eq '^    1: linked CaII \(b free\): NaI logN [0-9.]+ [0-9.]+ \| CaII logN' '$TMP/cmp' &&
          grep -Eq '^    2: linked CaII \(b same\): NaI logN [0-9.]+ [0-9.]+ \| CaII logN' '$TMP/cmp'"
+
+# a list line naming two doublets opens with the second linked and fitted
+# jointly; its session key is the first doublet's
+sed 's/doublet=NaI/doublet=NaI,CaII/' "$TMP/demo/one.list" >"$TMP/demo/two.list"
+"$DT" inspect --list "$TMP/demo/two.list" --session "$TMP/c.session" --user cy --replay-keys /dev/stdin \
+  --screen-dump "$TMP/c.screen" >/dev/null 2>&1 <<'KEYS'
+verdict-detected
+KEYS
+check "doublet=NaI,CaII: vetted as Na I with Ca II linked, fitted jointly" \
+  grep -q "file=demo/vpq16.fits#NaI	.*	linked=CaII	.*	joint=1	sp1=CaII:" "$TMP/c.session"
+check "... and shown with a Ca II panel" grep -q "CaII 3934" "$TMP/c.screen"
 finish
