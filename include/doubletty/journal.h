@@ -163,9 +163,11 @@ typedef struct dt_journal_record {
   char user[DT_JOURNAL_USER_MAX];
   dt_target target;              /* path and name valid until the next read */
   dt_action action;              /* DT_ACT_FIT: fit = after.fit;
+                                    DT_ACT_JOINT_FIT: fit and joint = after's;
                                     DT_ACT_RESTORE: state = &after */
   dt_judgement after;            /* the recorded state after the change: components,
-                                    freezes, tie, verdict and fit always; the other
+                                    freezes, tie, verdict, linked species, b rule,
+                                    fit and joint fit always; the other
                                     settings only when has & DT_REC_FULL */
   unsigned has;                  /* DT_REC_* */
   dt_meas_summary meas;          /* when has & DT_REC_MEAS */
