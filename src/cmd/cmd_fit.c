@@ -754,7 +754,10 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
     if (set.mw_joined) r->mw_joined++;
     /* rows in the order the doublets were given (o->sp: the lead first) */
     for (size_t q = 0; q < n; q++) {
-      size_t i = q == lead ? 0 : (q < lead ? q + 1 : q);
+      size_t i = 0;
+      if (q != lead) /* as given to the analysis (which skips a name given twice) */
+        for (i = 1; i < o->nspec && strcmp(o->sp[i].doublet, names[q]); i++) {}
+      if (i >= o->nspec) continue;
       const dt_joint_species_out *so = &o->sp[i];
       if (so->status == DT_OK && so->fit_index >= 0)
         write_joint_species(r, t, s, shown_row, &j, o, i, st, &set, why);

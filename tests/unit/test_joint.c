@@ -480,6 +480,22 @@ static void check_analysis(void) {
   CHECK(same, "analysis: a refit from the last result finds the same minimum (%.1f ms)",
         1e3 * (t3 - t2));
 
+  /* continuum windows near Na I serve Na I; Ca II gets the automatic continuum */
+  dt_judgement jw = j;
+  jw.nwin = 2;
+  jw.win[0] = (dt_window){5870.0, 5884.0};
+  jw.win[1] = (dt_window){5903.0, 5915.0};
+  st = dt_joint_analysis_run(ja, &jw, linked, 1, DT_JOINT_B_SAME, &out, &e);
+  int okw = st == DT_OK && out.nfit == 2;
+  for (size_t k = 0; okw && k < 2; k++)
+    okw &= fabs(out.sp[1].comp[k].logN - ca[k].logN) < 4 * out.sp[1].err[k].logN;
+  double cmin = 1e9, cmax = -1e9;
+  for (size_t i = 0; okw && i < out.sp[1].n; i++) {
+    cmin = fmin(cmin, out.sp[1].cont[i]);
+    cmax = fmax(cmax, out.sp[1].cont[i]);
+  }
+  CHECK(okw && cmin > 0.98 && cmax < 1.02,
+        "analysis: Na I's continuum windows leave Ca II its own continuum (%.3f-%.3f)", cmin, cmax);
   /* thermal with a species without a mass: an error naming it */
   const char *lx[] = {"XqI"};
   j.vlo = -150;
