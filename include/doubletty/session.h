@@ -124,6 +124,7 @@ typedef struct dt_session {
   struct dt_joint_analysis *jan; /* the joint fits' analysis (joint.h); NULL until one */
   struct dt_joint_out *jout;  /* its last result (the next fit starts from it) ... */
   int jout_ok;                /* ... when this is 1 */
+  char jmsg[300];             /* why the last joint fit failed ("" when it did not) */
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;

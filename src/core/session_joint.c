@@ -27,6 +27,7 @@ void dt_session_linked_free(dt_session *ss) {
   free(ss->jout);
   ss->jout = NULL;
   ss->jout_ok = 0;
+  ss->jmsg[0] = '\0';
   for (size_t i = 0; i < DT_JUDGE_MAX_LINKED; i++) {
     dt_analysis_free(ss->lsp[i].an);
     ss->lsp[i].an = NULL;
@@ -159,6 +160,7 @@ static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, 
 }
 
 int dt_session_joint_into(dt_session *ss, dt_judgement *j) {
+  ss->jmsg[0] = '\0';
   if (j->nlinked == 0 || j->ncomp == 0 || !ss->loaded) return -1;
   ss->nfits++;
   dt_action a;
@@ -167,9 +169,11 @@ int dt_session_joint_into(dt_session *ss, dt_judgement *j) {
   int rc = joint_run(ss, j, &a.fit, &a.joint, msg, sizeof msg);
   if ((rc != DT_OK && rc != DT_ENOCONV) || a.fit.ncomp != j->ncomp) {
     dt_session_analyse_state(ss, j, 0); /* shown as it stands */
-    snprintf(ss->an_msg, sizeof ss->an_msg, "%s", msg[0] ? msg : "the joint fit failed");
+    snprintf(ss->jmsg, sizeof ss->jmsg, "%s", msg[0] ? msg : "the joint fit failed");
+    snprintf(ss->an_msg, sizeof ss->an_msg, "%s", ss->jmsg);
     return -1;
   }
+  ss->jmsg[0] = '\0';
   if (dt_judgement_apply(j, &a) != DT_OK) return -1;
   dt_session_analyse_state(ss, j, 0); /* every species shown in the joint values */
   return 0;

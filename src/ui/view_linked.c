@@ -19,7 +19,8 @@ static void species_row(dt_insp *s, int x, int row, int maxw, size_t k) {
   const dt_judgement *j = &s->ss->j;
   int cx = dt_grid_printf(g, x, row, DT_R_GOOD, DT_A_BOLD, maxw, "%-5s", j->linked[k]);
   if (!j->has_joint) {
-    dt_grid_printf(g, x + cx, row, DT_R_WARN, 0, maxw - cx, " linked (b %s): no joint fit yet", dt_btie_name(j->btie));
+    dt_grid_printf(g, x + cx, row, DT_R_WARN, 0, maxw - cx, " linked (b %s): no joint fit%s%s", dt_btie_name(j->btie),
+                   s->ss->jmsg[0] ? " - " : " yet", s->ss->jmsg);
     return;
   }
   cx += dt_grid_printf(g, x + cx, row, DT_R_LABEL, 0, maxw - cx, " logN");
