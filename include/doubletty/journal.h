@@ -21,7 +21,7 @@
 #include "doubletty/measure.h"
 #include "doubletty/status.h"
 
-#define DT_JOURNAL_VERSION 3       /* format version written by this program (reads 1 and 2 too) */
+#define DT_JOURNAL_VERSION 4       /* format version written by this program (reads 1 to 3 too) */
 #define DT_JOURNAL_USER_MAX 64
 #define DT_JOURNAL_TIME_MAX 32     /* "2025-06-01T10:00:00.123Z" */
 
@@ -163,9 +163,11 @@ typedef struct dt_journal_record {
   char user[DT_JOURNAL_USER_MAX];
   dt_target target;              /* path and name valid until the next read */
   dt_action action;              /* DT_ACT_FIT: fit = after.fit;
+                                    DT_ACT_JOINT_FIT: fit and joint = after's;
                                     DT_ACT_RESTORE: state = &after */
   dt_judgement after;            /* the recorded state after the change: components,
-                                    freezes, tie, verdict and fit always; the other
+                                    freezes, tie, verdict, linked species, b rule,
+                                    fit and joint fit always; the other
                                     settings only when has & DT_REC_FULL */
   unsigned has;                  /* DT_REC_* */
   dt_meas_summary meas;          /* when has & DT_REC_MEAS */

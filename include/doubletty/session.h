@@ -43,6 +43,17 @@ typedef enum dt_session_param { DT_PARAM_V = 0, DT_PARAM_B, DT_PARAM_LOGN } dt_s
 
 struct dt_session_ahead;
 
+/* A species linked to the judgement, shown with the main doublet: an
+ * analysis of the same spectrum for its doublet, evaluated in the state's
+ * components (their velocities; its own log N and b from the joint fit, or
+ * starting guesses before one).  Index k is j.linked[k]. */
+typedef struct dt_session_species {
+  dt_analysis *an;            /* NULL until the species is first shown */
+  int ok;                     /* out holds the analysis of the state shown */
+  dt_analysis_out out;
+  char msg[200];              /* why not (ok = 0) */
+} dt_session_species;
+
 /* One spectrum to vet. */
 typedef struct dt_session_target {
   const char *path;       /* the file to read */
@@ -95,6 +106,9 @@ typedef struct dt_session {
   size_t sel;                 /* selected component */
   int an_ok;                  /* out holds a valid analysis of j ... */
   int defer_intervals;        /* the target's: intervals left for later */
+  const dt_hyperfine *hyperfine; /* the target's model settings, for the */
+  int lsf_constant;           /*   linked species' analyses too */
+  struct dt_cog_cache *cog;
   int intervals_tried;        /* dt_session_finish_intervals ran for out */
   int an_fallback;            /* ... or, when 1, of j without its continuum
                                  windows (they cannot carry the fit yet:
@@ -112,6 +126,13 @@ typedef struct dt_session {
   dt_system_result sysres[DT_MAX_SYSTEMS];
   int has_sysmeas;            /* sysmeas: each system measured in out's state */
   dt_system_result sysmeas[DT_MAX_SYSTEMS]; /* (no suggestion) */
+
+  /* linked species (session_joint.c) */
+  dt_session_species lsp[DT_JUDGE_MAX_LINKED];
+  struct dt_joint_analysis *jan; /* the joint fits' analysis (joint.h); NULL until one */
+  struct dt_joint_out *jout;  /* its last result (the next fit starts from it) ... */
+  int jout_ok;                /* ... when this is 1 */
+  char jmsg[300];             /* why the last joint fit failed ("" when it did not) */
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;
@@ -198,6 +219,26 @@ int dt_session_verdict(dt_session *ss, dt_verdict v);
 /* Select the next (+1) or previous (-1) system. */
 int dt_session_select_system(dt_session *ss, int step);
 int dt_session_note(dt_session *ss, const char *text);
+
+/* Linked species (joint fits across doublets).  Link doublet name to the
+ * judgement, or unlink it when it is linked; the model changes, so the
+ * state is refitted jointly (auto_refit).  Refused: the main doublet, a
+ * doublet the table does not have or whose lines the spectrum does not
+ * cover, a fourth species. */
+int dt_session_link(dt_session *ss, const char *name);
+/* The next b rule: same -> thermal -> free -> same. */
+int dt_session_btie_next(dt_session *ss);
+/* The doublets of the table other than the main one whose two lines the
+ * spectrum covers at vsys, in table order, into out[0..max); their count. */
+size_t dt_session_linkable(const dt_session *ss, const dt_doublet **out, size_t max);
+/* Refit a recorded joint state (has_joint) of spectrum sp jointly, starting
+ * from its components, and compare: the main doublet's fit as
+ * dt_fit_check_refit does, each linked species' log N within tol_sigma of
+ * the larger 1-sigma error.  *agrees 1 when it reproduces the record (or
+ * the state has no joint fit), else 0 with why naming the difference.
+ * DT_OK, or the joint analysis' error with e filled. */
+int dt_linked_verify(const dt_spectrum *sp, const dt_atomic *at, const dt_judgement *recorded,
+                     double tol_sigma, int *agrees, char *why, size_t nwhy, dt_err *e);
 
 /* Set the message (for callers that speak through the session's line). */
 void dt_session_say(dt_session *ss, dt_session_tone tone, const char *fmt, ...)

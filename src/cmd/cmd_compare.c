@@ -105,6 +105,9 @@ static void print_report(const dt_agree_report *r, const char *s1, const char *s
            dt_verdict_name(dt_judgement_system_verdict(&a->state, sys)), a->judged_by,
            su_when(a->judged_at, w1, sizeof w1), dt_verdict_name(dt_judgement_system_verdict(&b->state, sys)),
            b->judged_by, su_when(b->judged_at, w2, sizeof w2));
+    char l1[600], l2[600];
+    if (a->state.nlinked) printf("    1: %s\n", su_linked_text(&a->state, l1, sizeof l1));
+    if (b->state.nlinked) printf("    2: %s\n", su_linked_text(&b->state, l2, sizeof l2));
   }
 }
 

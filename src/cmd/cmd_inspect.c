@@ -358,6 +358,16 @@ static int queue_disagreements(dt_queue *q, const inspect_args *a, const char *d
 
 /* The queue: files, lists, files-from, then the disagreement filter.
  * 0, -1 (nothing to do, exit 0) or the exit status. */
+/* The first name of a doublet list "NAME[,NAME...]" (the first is vetted,
+ * the others linked) that the table lacks, into buf; 0 when all are known. */
+static int unknown_doublet(const dt_atomic *atomic, const char *list, char *buf, size_t n) {
+  for (const char *p = list; p; p = strchr(p, ',') ? strchr(p, ',') + 1 : NULL) {
+    snprintf(buf, n, "%.*s", (int)strcspn(p, ","), p);
+    if (!dt_atomic_find(atomic, buf)) return 1;
+  }
+  return 0;
+}
+
 static int build_queue(dt_queue *q, const inspect_args *a, const dt_atomic *atomic,
                        const dt_inspect_opts *o) {
   dt_err e;
@@ -387,8 +397,8 @@ static int build_queue(dt_queue *q, const inspect_args *a, const dt_atomic *atom
     return 2;
   }
   for (size_t i = 0; i < q->n; i++) {
-    const char *d = q->e[i].doublet;
-    if (d[0] && !dt_atomic_find(atomic, d)) {
+    char d[64];
+    if (q->e[i].doublet[0] && unknown_doublet(atomic, q->e[i].doublet, d, sizeof d)) {
       dt_err_set(&e, DT_EFORMAT, NULL, "line %ld: unknown doublet '%s'", q->e[i].line, d);
       cli_report(dt_queue_path(q, i), &e);
       return 2;
@@ -517,8 +527,9 @@ int cmd_inspect(int argc, char **argv) {
     rc = 1;
     goto out;
   }
-  if (o.doublet && !dt_atomic_find(atomic, o.doublet)) {
-    cli_errorf("inspect: --doublet: unknown doublet '%s'", o.doublet);
+  char unk[64];
+  if (o.doublet && unknown_doublet(atomic, o.doublet, unk, sizeof unk)) {
+    cli_errorf("inspect: --doublet: unknown doublet '%s'", unk);
     rc = 2;
     goto out;
   }

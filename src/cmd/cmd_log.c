@@ -30,6 +30,7 @@
 #include "doubletty/atomic.h"
 #include "doubletty/digest.h"
 #include "doubletty/journal.h"
+#include "doubletty/session.h"
 #include "doubletty/spectrum.h"
 #include "doubletty/utf8.h"
 #include "session_util.h"
@@ -56,7 +57,8 @@ static void usage(FILE *f) {
           "  --resolution-table FILE  with --verify: the R(lambda) table the fits used\n"
           "  -h, --help        this text\n\n"
           "actions: window-add window-remove comp-add comp-remove comp-set freeze tie-b\n"
-          "         cont-order doublet resolution vsys vwindow fit verdict note restore autofit\n");
+          "         cont-order doublet resolution vsys vwindow fit verdict note restore autofit\n"
+          "         link b-tie joint-fit\n");
 }
 
 static void comp_text(char *buf, size_t n, const dt_component *c, const dt_component *err) {
@@ -77,6 +79,36 @@ static void printable(char *s) {
     size_t u = dt_utf8_decode(s + p, len - p, &cp);
     if (dt_utf8_is_control(cp)) memset(s + p, '?', u);
     p += u;
+  }
+}
+
+/* A joint fit: the main doublet's components, then each linked species'
+ * log N and b per component (the velocities are shared), then T and b_turb
+ * under the rule "thermal". */
+static void describe_joint(const dt_journal_record *r, char *buf, size_t n) {
+  const dt_judgement *s = &r->after;
+  const dt_fit_result *f = &s->fit;
+  char c[160];
+  size_t k = f->status == DT_OK
+                 ? (size_t)snprintf(buf, n, "fitted jointly (b %s) in %d iterations", dt_btie_name(s->btie), f->niter)
+                 : (size_t)snprintf(buf, n, "joint fit failed (%s)", dt_status_str(f->status));
+  k += (size_t)snprintf(buf + k, k < n ? n - k : 0, " | %s", s->doublet);
+  for (size_t i = 0; i < f->ncomp && k < n; i++) {
+    comp_text(c, sizeof c, &f->comp[i], &f->err[i]);
+    k += (size_t)snprintf(buf + k, n - k, "%s %s", i ? ";" : ":", c);
+  }
+  for (size_t sp = 0; sp < s->joint.nspecies && sp < DT_JUDGE_MAX_LINKED && k < n; sp++) {
+    const dt_linked_species *js = &s->joint.sp[sp];
+    k += (size_t)snprintf(buf + k, n - k, " | %s", js->doublet);
+    for (size_t i = 0; i < s->ncomp && k < n; i++)
+      k += (size_t)snprintf(buf + k, n - k, "%s logN %.2f+-%.2f b %.1f+-%.1f", i ? ";" : ":", js->logN[i],
+                            js->logN_err[i], js->b[i], js->b_err[i]);
+  }
+  if (s->btie == DT_BTIE_THERMAL && k < n) {
+    k += (size_t)snprintf(buf + k, n - k, " | thermal");
+    for (size_t i = 0; i < s->ncomp && k < n; i++)
+      k += (size_t)snprintf(buf + k, n - k, "%s T %.0f+-%.0f K b_turb %.1f+-%.1f", i ? ";" : ":", s->joint.T[i],
+                            s->joint.T_err[i], s->joint.bturb[i], s->joint.bturb_err[i]);
   }
 }
 
@@ -160,6 +192,9 @@ static void describe(const dt_journal_record *r, char *buf, size_t n) {
     buf[k] = '\0';
     break;
   }
+  case DT_ACT_LINK: snprintf(buf, n, "%s %s", a->ival ? "linked" : "unlinked", a->text); break;
+  case DT_ACT_BTIE: snprintf(buf, n, "b of linked species: %s", dt_btie_name((dt_btie)a->ival)); break;
+  case DT_ACT_JOINT_FIT: describe_joint(r, buf, n); break;
   case DT_ACT_RESTORE: snprintf(buf, n, "state restored (undo/redo)"); break;
   case DT_ACT_AUTOFIT: snprintf(buf, n, "automatic first pass"); break;
   default: snprintf(buf, n, "?"); break;
@@ -180,6 +215,10 @@ static void result(const dt_journal_record *r, char *buf, size_t n) {
   for (size_t i = 0; i < s->nsysv && i < DT_JUDGE_MAX_SYS && k < n; i++)
     k += (size_t)snprintf(buf + k, n - k, "%s%s: %s", i ? ", " : "; ", s->sysv[i].name,
                           dt_verdict_name(s->sysv[i].verdict));
+  if (s->nlinked && k < n) {
+    char lt[600];
+    k += (size_t)snprintf(buf + k, n - k, "; %s", su_linked_text(s, lt, sizeof lt));
+  }
   if ((r->flags & DT_JFLAG_FILE_CHANGED) && k < n)
     snprintf(buf + k, n - k, " [input file changed since its last record]");
 }
@@ -326,11 +365,15 @@ static int verify(const char *session, const char *pattern, const char *atomic_f
     o.hyperfine = ht;
     dt_analysis_set_opts(an, &o);
     int agrees = 0;
-    if (dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e) != DT_OK) {
+    int vrc = en->state.has_joint /* refitted jointly, every species compared */
+                  ? dt_linked_verify(sp, at, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e)
+                  : dt_analysis_verify_fit(an, &en->state, DT_REFIT_TOL_SIGMA, &agrees, why, sizeof why, &e);
+    if (vrc != DT_OK) {
       printf("cannot refit  %s: %s\n", name, e.what);
       nfail++;
     } else if (agrees) {
-      printf("reproduced    %s  (chi2_red %.3f)\n", name, en->state.fit.chi2_red);
+      printf("reproduced    %s  (chi2_red %.3f%s)\n", name, en->state.fit.chi2_red,
+             en->state.has_joint ? ", joint fit" : "");
       nok++;
     } else {
       printf("MISMATCH      %s: %s\n", name, why);
@@ -426,7 +469,7 @@ int cmd_log(int argc, char **argv) {
   }
   int rc, status = 0;
   long shown = 0, damaged = 0;
-  char name[4200], what[2400], res[256], when[40];
+  char name[4200], what[2400], res[1024], when[40];
   while ((rc = dt_journal_reader_next(rd, rec, &e)) != DT_ENOTFOUND) {
     if (rc == DT_EFORMAT) {
       fflush(stdout);

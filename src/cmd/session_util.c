@@ -58,3 +58,25 @@ const char *su_when(const char *iso, char *buf, size_t n) {
   else snprintf(buf, n, "%s", iso);
   return buf;
 }
+
+const char *su_linked_text(const dt_judgement *s, char *buf, size_t n) {
+  size_t k = 0;
+  buf[0] = '\0';
+  if (s->nlinked == 0) return buf;
+#define PUT(...) (k += (size_t)snprintf(buf + k, k < n ? n - k : 0, __VA_ARGS__))
+  for (size_t i = 0; i < s->nlinked && i < DT_JUDGE_MAX_LINKED; i++) PUT("%s%s", i ? "," : "linked ", s->linked[i]);
+  PUT(" (b %s)", dt_btie_name(s->btie));
+  if (!s->has_joint) {
+    PUT(": no joint fit yet");
+    return buf;
+  }
+  PUT(": %s logN", s->doublet);
+  for (size_t c = 0; c < s->ncomp && c < DT_MAX_COMP; c++) PUT(" %.2f", s->comp[c].logN);
+  for (size_t i = 0; i < s->joint.nspecies && i < DT_JUDGE_MAX_LINKED; i++) {
+    PUT(" | %s logN", s->joint.sp[i].doublet);
+    for (size_t c = 0; c < s->ncomp && c < DT_MAX_COMP; c++) PUT(" %.2f", s->joint.sp[i].logN[c]);
+  }
+#undef PUT
+  if (k >= n && n > 4) memcpy(buf + n - 4, "...", 4);
+  return buf;
+}

@@ -22,4 +22,10 @@ const char *su_num(char *buf, size_t n, double x);
 /* "2025-06-01T10:00:00.123Z" -> "2025-06-01 10:00:00Z" (seconds). */
 const char *su_when(const char *iso, char *buf, size_t n);
 
+/* The linked species of state s and their values, one line:
+ * "linked CaII (b same): NaI logN 11.90 11.50 | CaII logN 12.20 11.90"
+ * (log N per component; no values before a joint fit).  "" when nothing
+ * is linked. */
+const char *su_linked_text(const dt_judgement *s, char *buf, size_t n);
+
 #endif

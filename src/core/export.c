@@ -54,6 +54,11 @@ static const column COLS[] = {
     {"saturated", C_BOOL, ""},    {"suggested", C_STR, ""},
     {"ra_deg", C_DBL, "deg"},     {"dec_deg", C_DBL, "deg"},
     {"frame", C_STR, ""},
+    /* linked species (a joint fit across doublets): every species of the
+       fit, the b rule, and T and b_turb of the rule "thermal" */
+    {"joint_species", C_STR, ""}, {"b_tie", C_STR, ""},
+    {"T_K", C_DBL, "K"},          {"T_err_K", C_DBL, "K"},
+    {"b_turb_kms", C_DBL, "km s-1"}, {"b_turb_err_kms", C_DBL, "km s-1"},
 };
 #define NCOL (sizeof COLS / sizeof COLS[0])
 
@@ -92,11 +97,12 @@ const char *dt_export_stem(const char *file, char *buf, size_t n) {
  * (component 0) when it has none -- or when that system's verdict is "not
  * detected": such a system is a limit, and its first-pass components are no
  * result. */
-#define MAX_ROWS (DT_MAX_COMP + DT_MAX_SYSTEMS)
+#define MAX_ROWS ((DT_MAX_COMP + DT_MAX_SYSTEMS) * (1 + DT_JUDGE_MAX_LINKED))
 typedef struct spec_rows {
   dt_system_set set;
   size_t n;                          /* rows */
   size_t sys[MAX_ROWS], comp[MAX_ROWS]; /* system; component (1-based, 0 none) */
+  size_t species[MAX_ROWS];          /* 0: the main doublet; s: linked species s-1 */
   size_t ncomp[DT_MAX_SYSTEMS];      /* component rows of each system */
 } spec_rows;
 
@@ -119,12 +125,17 @@ static void spectrum_rows(const dt_journal_entry *en, spec_rows *r) {
     int limit = system_verdict(s, &r->set, k) == DT_VERDICT_NOT_DETECTED;
     for (size_t c = 0; !limit && c < s->ncomp && c < DT_MAX_COMP; c++)
       if (dt_systems_of(&r->set, s->comp[c].v) == k) {
-        r->sys[r->n] = k;
-        r->comp[r->n++] = c + 1;
+        /* the component of the main doublet, then of each linked species */
+        for (size_t sp = 0; sp <= (s->has_joint ? s->nlinked : 0); sp++) {
+          r->sys[r->n] = k;
+          r->species[r->n] = sp;
+          r->comp[r->n++] = c + 1;
+        }
         r->ncomp[k]++;
       }
     if (r->ncomp[k] == 0) {
       r->sys[r->n] = k;
+      r->species[r->n] = 0;
       r->comp[r->n++] = 0;
     }
   }
@@ -133,20 +144,37 @@ static void spectrum_rows(const dt_journal_entry *en, spec_rows *r) {
 /* The cells of one row: spectrum en, component k (0 = none). */
 /* The text a row's cells point to (one per writer, reused row after row). */
 typedef struct row_text {
-  char flags[64], frozen[4], status[32];
+  char flags[64], frozen[4], status[32], species[80];
   char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
 } row_text;
+
+/* The cells of the linked species' columns (joint_species .. b_turb_err)
+ * of component k (0: none) of state s. */
+static void fill_joint(const dt_judgement *s, size_t k, row_text *rt, cell *c) {
+  size_t n = 0;
+  rt->species[0] = '\0';
+  for (size_t i = 0; s->nlinked && i <= s->nlinked && i <= DT_JUDGE_MAX_LINKED; i++)
+    n += (size_t)snprintf(rt->species + n, n < sizeof rt->species ? sizeof rt->species - n : 0, "%s%s",
+                          i ? ";" : "", i ? s->linked[i - 1] : s->doublet);
+  int th = s->has_joint && s->btie == DT_BTIE_THERMAL && k > 0;
+  c[0].s = rt->species;
+  c[1].s = s->nlinked ? dt_btie_name(s->btie) : "";
+  c[2].d = th ? s->joint.T[k - 1] : NAN;
+  c[3].d = th ? s->joint.T_err[k - 1] : NAN;
+  c[4].d = th ? s->joint.bturb[k - 1] : NAN;
+  c[5].d = th ? s->joint.bturb_err[k - 1] : NAN;
+}
 
 /* The cells of row q of spectrum en.  The recorded measurements (taken
  * around all its components) and the suggested verdict are the spectrum's
  * and go to the target's rows only. */
 static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, cell *c, row_text *rt) {
-  size_t k = r->comp[q], sk = r->sys[q];
+  size_t k = r->comp[q], sk = r->sys[q], sp = r->species[q];
   char *flags = rt->flags, *frozen = rt->frozen, *status = rt->status;
   const dt_judgement *s = &en->state;
   const dt_meas_summary *m = &en->meas;
   dt_meas_summary none;
-  if (!en->has_meas || sk > 0) {
+  if (!en->has_meas || sk > 0 || sp > 0) { /* measurements are the main doublet's */
     dt_meas_summary_clear(&none);
     m = &none;
   }
@@ -182,14 +210,15 @@ static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, c
   c[i++].i = en->nchanges;
   c[i++].s = flags;
   c[i++].s = en->target.sha256;
-  c[i++].s = s->doublet;
+  const dt_linked_species *js = sp ? &s->joint.sp[sp - 1] : NULL;
+  c[i++].s = js ? js->doublet : s->doublet;
   c[i++].d = s->vsys;
   c[i++].i = (long long)r->ncomp[sk];
   c[i++].i = (long long)k;
-  c[i++].d = comp ? comp->logN : NAN;
-  c[i++].d = err ? err->logN : NAN;
-  c[i++].d = comp ? comp->b : NAN;
-  c[i++].d = err ? err->b : NAN;
+  c[i++].d = js && comp ? js->logN[k - 1] : comp ? comp->logN : NAN;
+  c[i++].d = js && comp ? js->logN_err[k - 1] : err ? err->logN : NAN;
+  c[i++].d = js && comp ? js->b[k - 1] : comp ? comp->b : NAN;
+  c[i++].d = js && comp ? js->b_err[k - 1] : err ? err->b : NAN;
   c[i++].d = comp ? comp->v : NAN;
   c[i++].d = err ? err->v : NAN;
   c[i++].s = frozen;
@@ -222,6 +251,7 @@ static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, c
   c[i++].d = ra;
   c[i++].d = dec;
   c[i++].s = en->target.frame;
+  fill_joint(s, k, rt, c + i);
 }
 
 /* ---- CSV ---- */

@@ -177,6 +177,25 @@ static void add_warning(dt_journal *j, const dt_err *e) {
   j->nwarn++;
 }
 
+/* The linked species, the b rule and the joint fit (every record states
+ * them too). */
+static int same_linked(const dt_judgement *a, const dt_judgement *b) {
+  if (a->nlinked != b->nlinked || a->btie != b->btie || a->has_joint != b->has_joint ||
+      a->nlinked > DT_JUDGE_MAX_LINKED)
+    return 0;
+  for (size_t i = 0; i < a->nlinked; i++)
+    if (strcmp(a->linked[i], b->linked[i])) return 0;
+  return !a->has_joint || dt_linked_fit_same(&a->joint, &b->joint, a->ncomp);
+}
+
+static void adopt_linked(dt_judgement *s, const dt_judgement *rec) {
+  s->nlinked = rec->nlinked;
+  memcpy(s->linked, rec->linked, sizeof s->linked);
+  s->btie = rec->btie;
+  s->has_joint = rec->has_joint;
+  s->joint = rec->joint;
+}
+
 /* Components, freezes, tie, verdict and fit: what every record states. */
 static int same_summary(const dt_judgement *a, const dt_judgement *b) {
   if (a->ncomp != b->ncomp || a->tie_b != b->tie_b || a->verdict != b->verdict ||
@@ -188,10 +207,12 @@ static int same_summary(const dt_judgement *a, const dt_judgement *b) {
   for (size_t i = 0; i < a->nsysv; i++)
     if (strcmp(a->sysv[i].name, b->sysv[i].name) || a->sysv[i].verdict != b->sysv[i].verdict)
       return 0;
+  if (!same_linked(a, b)) return 0;
   return !a->has_fit || dt_fit_result_same(&a->fit, &b->fit);
 }
 
 static void adopt_summary(dt_judgement *s, const dt_judgement *rec) {
+  adopt_linked(s, rec);
   s->ncomp = rec->ncomp;
   memcpy(s->comp, rec->comp, sizeof s->comp);
   memcpy(s->frozen, rec->frozen, sizeof s->frozen);
@@ -602,7 +623,8 @@ static int append_record(dt_journal *j, long idx, const dt_target *t,
   if (en && a->kind != DT_ACT_RESTORE && a->kind != DT_ACT_AUTOFIT) {
     dt_judgement s = en->state;
     dt_action b = *a;
-    if (b.kind == DT_ACT_FIT) b.fit = after->fit; /* what a replay will do */
+    if (b.kind == DT_ACT_FIT || b.kind == DT_ACT_JOINT_FIT) b.fit = after->fit; /* as replayed */
+    if (b.kind == DT_ACT_JOINT_FIT) b.joint = after->joint;
     full = !(dt_judgement_apply(&s, &b) == DT_OK && dt_judgement_same(&s, after));
   }
   const char *was = NULL;
@@ -674,6 +696,18 @@ static int append_record(dt_journal *j, long idx, const dt_target *t,
   return DT_OK;
 }
 
+/* A file of format version < 4 cannot hold linked species or a b rule. */
+static int refuse_linked(const dt_journal *j, const dt_action *a, const dt_judgement *after,
+                         dt_err *e) {
+  if (after->nlinked == 0 && after->btie == DT_BTIE_SAME && !after->has_joint &&
+      a->kind != DT_ACT_LINK && a->kind != DT_ACT_BTIE && a->kind != DT_ACT_JOINT_FIT)
+    return DT_OK;
+  return dt_err_set(e, DT_EVERSION, NULL,
+                    "this session file is in format version %d, which cannot hold linked "
+                    "species: link species in a new session file",
+                    j->version);
+}
+
 int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
                       const dt_judgement *after, const dt_meas_summary *meas, dt_err *e) {
   if (!t || !t->path || !*t->path) return dt_err_set(e, DT_EINVAL, NULL, "no target file name");
@@ -715,7 +749,8 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
       state = old;
     }
   }
-  int rc = append_record(j, find_index(j, t, 1), &rt, a, state, meas, e);
+  int rc = j->version < 4 ? refuse_linked(j, a, after, e) : DT_OK;
+  if (rc == DT_OK) rc = append_record(j, find_index(j, t, 1), &rt, a, state, meas, e);
   free(old);
   free(hint);
   return rc;

@@ -1,9 +1,9 @@
 /* The session file format and its writer: one line per change.
  *
- * FORMAT (version 3).  UTF-8/ASCII text, one record per line, fields
+ * FORMAT (version 4).  UTF-8/ASCII text, one record per line, fields
  * separated by one TAB.  The first line is the header:
  *
- *   doubletty-session 3<TAB>created=2025-06-01T10:00:00.000Z<TAB>program=doubletty 0.1.0
+ *   doubletty-session 4<TAB>created=2025-06-01T10:00:00.000Z<TAB>program=doubletty 0.1.0
  *
  * A program that finds a larger version number refuses the file (it neither
  * reads nor appends).  Every other line is one change to one spectrum:
@@ -25,6 +25,13 @@
  * file changed since the last record of the same spectrum (a record whose
  * digest is new is matched to the spectrum by its path).
  *
+ * Version 4 adds linked species (fields marked JF_V4, written and read in
+ * journal_joint.c, which describes them): the actions link, b-tie and
+ * joint-fit, the state's linked= and b-rule=, and a joint fit's joint=,
+ * sp1..sp3= and thermal=.  Files of versions 1 to 3 are read unchanged and
+ * appended in their own version; a change that links species cannot be
+ * written to them.
+ *
  * Version 3 adds the absorber systems: system= of a verdict, verdicts= and
  * systems= (the fields marked JF_V3).  A version-2 file is read (its
  * verdicts are the target's) and appended in version 2 without systems=; a
@@ -45,6 +52,8 @@
  *   vsys vsys= [km/s]                vwindow vlo= vhi= [km/s]
  *   verdict verdict=none|detected|not-detected|unsure|unusable [system=NAME]
  *   note note=TEXT                   fit, restore, autofit (no fields: see the state)
+ *   link doublet=NAME link=1|0       b-tie rule=same|thermal|free
+ *   joint-fit (no fields: see the state)
  * The field "=>" separates the action from the state after it, which always
  * gives: verdict= (the target system's); verdicts=NAME:VERDICT,... (the
  * other absorber systems' verdicts, left out when there are none); ncomp=N; c1= .. cN= as "logN=X,b=X,v=X[,frozen=LETTERS]"
@@ -248,7 +257,7 @@ const dt_jn_field dt_jn_fields[] = {
     {"frozen", JP_ACT, JT_FREEZE, 0, ACT(ival), 0, 0, 0, A(FREEZE)},
     {"tie", JP_ACT, JT_INT, 0, ACT(ival), 0, 0, 1, A(TIE_B)},
     {"order", JP_ACT, JT_INT, 0, ACT(ival), 0, -1, DT_MAX_CONT - 1, A(CONT_ORDER)},
-    {"doublet", JP_ACT, JT_TEXT, 0, ACT(text), 0, 0, TXT(dt_action, text), A(DOUBLET)},
+    {"doublet", JP_ACT, JT_TEXT, 0, ACT(text), 0, 0, TXT(dt_action, text), A(DOUBLET) | A(LINK)},
     {"R", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(RESOLUTION)},
     {"fwhm", JP_ACT, JT_NUM, 0, ACT(x[1]), 0, 0, 0, A(RESOLUTION)},
     {"vsys", JP_ACT, JT_NUM, 0, ACT(x[0]), 0, 0, 0, A(VSYS)},
@@ -257,12 +266,21 @@ const dt_jn_field dt_jn_fields[] = {
     {"verdict", JP_ACT, JT_VERDICT_INT, 0, ACT(ival), 0, 0, 0, A(VERDICT)},
     {"system", JP_ACT, JT_TEXT, JF_OMIT | JF_V3, ACT(text), 0, 0, DT_JUDGE_SYS_NAME, A(VERDICT)},
     {"note", JP_ACT, JT_TEXT, 0, ACT(text), 0, 0, TXT(dt_action, text), A(NOTE)},
+    /* linked species (journal_joint.c) */
+    {"link", JP_ACT, JT_INT, JF_V4, ACT(ival), 0, 0, 1, A(LINK)},
+    {"rule", JP_ACT, JT_BTIE_INT, JF_V4, ACT(ival), 0, 0, 0, A(BTIE)},
     /* the state after (after "=>"): what every record states */
     {"verdict", JP_STATE, JT_VERDICT, JF_REQ, JDG(verdict), 0, 0, 0, 0},
     {"verdicts", JP_STATE, JT_SYSV, JF_OMIT | JF_V3, 0, 0, 0, DT_JUDGE_MAX_SYS, 0},
     {"ncomp", JP_STATE, JT_SIZE, JF_REQ, JDG(ncomp), 0, 0, DT_MAX_COMP, 0},
     {"c", JP_STATE, JT_COMP, JF_NUMBERED, 0, 0, 0, DT_MAX_COMP, 0},
     {"tie-b", JP_STATE, JT_INT, JF_OMIT, JDG(tie_b), 0, 0, 1, 0},
+    {"linked", JP_STATE, JT_LINKED, JF_OMIT | JF_V4, 0, 0, 0, DT_JUDGE_MAX_LINKED, 0},
+    {"b-rule", JP_STATE, JT_BTIE, JF_OMIT | JF_V4, 0, 0, 0, 0, 0},
+    /* the joint fit of the linked species */
+    {"joint", JP_JOINT, JT_SIZE, JF_REQ | JF_V4, JDG(joint.nspecies), 0, 1, DT_JUDGE_MAX_LINKED, 0},
+    {"sp", JP_JOINT, JT_SPECIES, JF_NUMBERED | JF_OMIT | JF_V4, 0, 0, 0, DT_JUDGE_MAX_LINKED, 0},
+    {"thermal", JP_JOINT, JT_THERMAL, JF_OMIT | JF_V4, 0, 0, 0, DT_MAX_COMP, 0},
     /* the fit of the state */
     {"fit", JP_FIT, JT_STATUS, JF_REQ, FIT(status), 0, 0, 0, 0},
     {"niter", JP_FIT, JT_INT, 0, FIT(niter), 0, -1, 1L << 30, 0},
@@ -318,6 +336,7 @@ static const void *wbase(const wsrc *w, int part, int num) {
   case JP_FIT: return &w->s->fit;
   case JP_MEAS: return &w->m->line[num];
   case JP_MEASX: return w->m;
+  case JP_JOINT: return w->s;
   default: return w->s;
   }
 }
@@ -343,6 +362,16 @@ static void write_comps(sbuf *b, const dt_jn_field *f, const wsrc *w) {
       sb_comp(b, &s->fit.comp[i], &s->fit.err[i]);
     }
   }
+}
+
+static void sb_put_cb(void *ctx, const char *s) { sb_str(ctx, s); }
+
+/* A field of linked species (journal_joint.c) with its key, unless left out. */
+static void write_joint_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
+  sbuf probe = {NULL, 0, 0};
+  if (dt_jn_write_joint(f, w->s, w->act, num, sb_put_cb, &probe) < 0) return;
+  sb_key(b, f, num);
+  dt_jn_write_joint(f, w->s, w->act, num, sb_put_cb, b);
 }
 
 /* One field; fields marked JF_OMIT are left out when they hold nothing. */
@@ -445,6 +474,11 @@ static void write_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
     }
     return;
   }
+  case JT_LINKED:
+  case JT_BTIE:
+  case JT_BTIE_INT:
+  case JT_SPECIES:
+  case JT_THERMAL: write_joint_field(b, f, w, num); return;
   default: return;
   }
 }
@@ -456,6 +490,16 @@ static void write_part(sbuf *b, const wsrc *w, int part, int num) {
     if (f->part != part) continue;
     if (part == JP_ACT && !(f->acts & (1u << w->act->kind))) continue;
     write_field(b, f, w, num);
+  }
+}
+
+/* The joint fit: joint=, then sp1.. of each linked species, then thermal=. */
+static void write_joint_part(sbuf *b, const wsrc *w) {
+  for (size_t i = 0; i < dt_jn_nfields; i++) {
+    const dt_jn_field *f = &dt_jn_fields[i];
+    if (f->part != JP_JOINT) continue;
+    int n = f->flags & JF_NUMBERED ? (int)w->s->joint.nspecies : 1;
+    for (int k = 0; k < n && k < DT_JUDGE_MAX_LINKED; k++) write_field(b, f, w, k);
   }
 }
 
@@ -481,6 +525,7 @@ size_t dt_journal_format(char *buf, size_t size, const char *time, const char *u
   sb_str(&b, "\t=>");
   write_part(&b, &w, JP_STATE, 0);
   if (after->has_fit) write_part(&b, &w, JP_FIT, 0);
+  if (after->has_fit && after->has_joint) write_joint_part(&b, &w);
   if (meas) { /* values that are NaN (not measured) are left out */
     write_part(&b, &w, JP_MEAS, 0);
     write_part(&b, &w, JP_MEAS, 1);

@@ -52,7 +52,8 @@ char *dt_jn_path_hint(const char *dir, const char *rdir, const char *path);
 /* ---- the field table (journal_format.c): one description of every field,
  * walked by the writer and by the parser ---- */
 
-enum { JP_ID, JP_ACT, JP_STATE, JP_FIT, JP_MEAS, JP_MEASX, JP_FULL }; /* parts of a record */
+enum { JP_ID, JP_ACT, JP_STATE, JP_FIT, JP_MEAS, JP_MEASX, JP_FULL,
+       JP_JOINT }; /* parts of a record */
 enum {
   JT_TEXT,        /* escaped text into a char array of hi bytes */
   JT_PTR,         /* escaped text, a const char * into the line */
@@ -73,14 +74,20 @@ enum {
   JT_WINDOWS,     /* continuum windows LO:HI,... */
   JT_FULL,        /* full=1: the settings follow */
   JT_SYSV,        /* verdicts of systems: NAME:VERDICT,... */
-  JT_SYSTEMS      /* system ranges: NAME:VLO:VHI,... */
+  JT_SYSTEMS,     /* system ranges: NAME:VLO:VHI,... */
+  JT_LINKED,      /* linked species: NAME,... */
+  JT_BTIE,        /* b rule (dt_btie): same, thermal, free */
+  JT_BTIE_INT,    /* a b rule kept in an int (the action's ival) */
+  JT_SPECIES,     /* a linked species' fit spN: NAME:logN+-E/b+-E,... per component */
+  JT_THERMAL      /* T and b_turb per component: T+-E/b+-E,... */
 };
 enum {
   JF_REQ = 1,      /* required (for JP_FULL: when full=1; JP_FIT: when the fit is there) */
   JF_NONEMPTY = 2, /* text that may not be empty */
   JF_OMIT = 4,     /* left out when empty, zero or NaN */
   JF_NUMBERED = 8, /* KEY1 .. KEYn, n = hi */
-  JF_V3 = 16       /* new in format version 3 (absorber systems) */
+  JF_V3 = 16,      /* new in format version 3 (absorber systems) */
+  JF_V4 = 32       /* new in format version 4 (linked species) */
 };
 typedef struct dt_jn_field {
   const char *key;
@@ -91,5 +98,24 @@ typedef struct dt_jn_field {
 } dt_jn_field;
 extern const dt_jn_field dt_jn_fields[];
 extern const size_t dt_jn_nfields;
+
+/* ---- linked species (journal_joint.c) ---- */
+
+/* Write the value of a JT_LINKED, JT_BTIE, JT_BTIE_INT, JT_SPECIES or
+ * JT_THERMAL field of state s (action a) into buf like snprintf; returns
+ * -1 when the field is left out.  put: the writer's "KEY=" and text. */
+typedef void (*dt_jn_put_fn)(void *ctx, const char *s);
+int dt_jn_write_joint(const dt_jn_field *f, const dt_judgement *s, const dt_action *a, int num,
+                      dt_jn_put_fn put, void *ctx);
+/* Read such a field's value v (modified) into rec; -1 if bad.  ncomp[s]
+ * receives the number of components read for species s (JT_SPECIES) and
+ * nthermal those of JT_THERMAL. */
+int dt_jn_read_joint(const dt_jn_field *f, char *v, int num, dt_journal_record *rec,
+                     size_t *ncomp_sp, size_t *nthermal);
+/* Checks of a record's linked part once the line is read: the joint fit
+ * names every linked species with every component.  NULL when fine, else
+ * why not. */
+const char *dt_jn_check_joint(dt_journal_record *rec, int has_joint, const size_t *ncomp_sp,
+                              size_t nthermal);
 
 #endif

@@ -162,6 +162,8 @@ typedef struct pstate {
   unsigned seen[MAX_FIELDS];        /* per table field: a bit per number (bit 0 if plain) */
   int comp_err[DT_MAX_COMP];        /* component i carried errors */
   dt_component cerr[DT_MAX_COMP];   /* ... these */
+  size_t ncomp_sp[DT_JUDGE_MAX_LINKED]; /* components of each linked species read */
+  size_t nthermal;                  /* components of thermal= read */
 } pstate;
 
 /* The table's field for key k in a part of the line (JP_ID before act=,
@@ -191,6 +193,7 @@ static void *part_base(dt_journal_record *rec, int part, int num) {
   case JP_FIT: return &rec->after.fit;
   case JP_MEAS: return &rec->meas.line[num];
   case JP_MEASX: return &rec->meas;
+  case JP_JOINT: return &rec->after;
   default: return &rec->after;
   }
 }
@@ -337,6 +340,11 @@ static int read_value(const dt_jn_field *f, char *v, int num, dt_journal_record 
     if (parse_long(v, 1, 1, &lv)) return -1;
     rec->has |= DT_REC_FULL;
     return 0;
+  case JT_LINKED:
+  case JT_BTIE:
+  case JT_BTIE_INT:
+  case JT_SPECIES:
+  case JT_THERMAL: return dt_jn_read_joint(f, v, num, rec, ps->ncomp_sp, &ps->nthermal);
   default: return -1;
   }
 }
@@ -387,6 +395,9 @@ static int check_record(dt_journal_record *rec, const pstate *ps, dt_err *e) {
   } else if (part_seen(ps, JP_FIT, 0, 0)) {
     return fail(e, "%s", "fit values without fit=");
   }
+  const char *jwhy = dt_jn_check_joint(rec, seen_of(ps, "joint", JP_JOINT) != 0, ps->ncomp_sp,
+                                      ps->nthermal);
+  if (jwhy) return fail(e, "%s", jwhy);
   if (rec->has & DT_REC_FULL) {
     if (!part_seen(ps, JP_FULL, 1, 1)) return fail(e, "%s", "a full state lacks some of its fields");
   } else if (part_seen(ps, JP_FULL, 0, 0)) {

@@ -40,7 +40,26 @@ static const char *const action_names[DT_ACT__COUNT] = {
     [DT_ACT_VSYS] = "vsys",               [DT_ACT_VWINDOW] = "vwindow",
     [DT_ACT_FIT] = "fit",                 [DT_ACT_VERDICT] = "verdict",
     [DT_ACT_NOTE] = "note",               [DT_ACT_RESTORE] = "restore", [DT_ACT_AUTOFIT] = "autofit",
+    [DT_ACT_LINK] = "link",               [DT_ACT_BTIE] = "b-tie",
+    [DT_ACT_JOINT_FIT] = "joint-fit",
 };
+
+static const char *const btie_names[DT_BTIE__COUNT] = {"same", "thermal", "free"};
+
+const char *dt_btie_name(dt_btie m) {
+  if ((int)m < 0 || m >= DT_BTIE__COUNT) return "?";
+  return btie_names[m];
+}
+
+int dt_btie_parse(const char *s, dt_btie *m) {
+  if (!s) return DT_EINVAL;
+  for (int i = 0; i < DT_BTIE__COUNT; i++)
+    if (!strcmp(s, btie_names[i])) {
+      *m = (dt_btie)i;
+      return DT_OK;
+    }
+  return DT_EINVAL;
+}
 
 const char *dt_action_name(dt_action_kind k) {
   if ((int)k < 0 || k >= DT_ACT__COUNT) return "?";
@@ -73,6 +92,7 @@ void dt_judgement_init(dt_judgement *j) {
   j->vhi = 600.0;
   j->cont_order = 2;
   j->verdict = DT_VERDICT_NONE;
+  dt_linked_fit_clear(&j->joint);
 }
 
 const char *dt_freeze_str(unsigned bits, char buf[4]) {
@@ -145,8 +165,87 @@ dt_verdict dt_judgement_system_verdict(const dt_judgement *j, const char *name) 
   return DT_VERDICT_NONE;
 }
 
+/* A doublet name: 1..15 of letters, digits, '-', '_', '.'. */
+static int doublet_name_ok(const char *name, size_t size) {
+  size_t n = strnlen(name, size);
+  if (n == 0 || n >= DT_JUDGE_DOUBLET) return 0;
+  for (size_t i = 0; i < n; i++) {
+    char c = name[i];
+    if (!((c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
+          c == '-' || c == '_' || c == '.'))
+      return 0;
+  }
+  return 1;
+}
+
+int dt_judgement_linked_index(const dt_judgement *j, const char *name) {
+  for (size_t i = 0; i < j->nlinked && i < DT_JUDGE_MAX_LINKED; i++)
+    if (!strcmp(j->linked[i], name)) return (int)i;
+  return -1;
+}
+
+void dt_linked_fit_clear(dt_linked_fit *jf) {
+  memset(jf, 0, sizeof *jf);
+  for (size_t k = 0; k < DT_MAX_COMP; k++) {
+    jf->T[k] = jf->T_err[k] = jf->bturb[k] = jf->bturb_err[k] = NAN;
+    for (size_t s = 0; s < DT_JUDGE_MAX_LINKED; s++)
+      jf->sp[s].logN[k] = jf->sp[s].logN_err[k] = jf->sp[s].b[k] = jf->sp[s].b_err[k] = NAN;
+  }
+}
+
+/* The linked species and the b rule (state_ok): names valid, none the main
+ * doublet, none twice; a joint fit names exactly the linked species. */
+static int linked_ok(const dt_judgement *s) {
+  if (s->nlinked > DT_JUDGE_MAX_LINKED || (int)s->btie < 0 || s->btie >= DT_BTIE__COUNT) return 0;
+  for (size_t i = 0; i < s->nlinked; i++) {
+    if (!doublet_name_ok(s->linked[i], sizeof s->linked[i]) || !strcmp(s->linked[i], s->doublet))
+      return 0;
+    for (size_t k = 0; k < i; k++)
+      if (!strcmp(s->linked[k], s->linked[i])) return 0;
+  }
+  if (!s->has_joint) return 1;
+  if (!s->has_fit || s->nlinked == 0 || s->ncomp == 0 || s->joint.nspecies != s->nlinked)
+    return 0;
+  for (size_t i = 0; i < s->nlinked; i++)
+    if (strncmp(s->joint.sp[i].doublet, s->linked[i], DT_JUDGE_DOUBLET)) return 0;
+  return 1;
+}
+
+/* Link (on) or unlink species name; -1 when it does not fit the state. */
+static int set_link(dt_judgement *j, const char *name, int on) {
+  if (!doublet_name_ok(name, DT_NOTE_MAX)) return -1;
+  int k = dt_judgement_linked_index(j, name);
+  if (on) {
+    if (k >= 0 || !strcmp(name, j->doublet) || j->nlinked >= DT_JUDGE_MAX_LINKED) return -1;
+    memcpy(j->linked[j->nlinked++], name, strlen(name) + 1);
+    return 0;
+  }
+  if (k < 0) return -1;
+  memmove(&j->linked[k], &j->linked[k + 1], (j->nlinked - (size_t)k - 1) * sizeof j->linked[0]);
+  j->nlinked--;
+  memset(j->linked[j->nlinked], 0, sizeof j->linked[0]);
+  return 0;
+}
+
+/* A fit result's components as components (DT_ACT_FIT, DT_ACT_JOINT_FIT). */
+static int take_fit(dt_judgement *j, const dt_fit_result *fit) {
+  if (fit->ncomp != j->ncomp || fit->ncont > DT_MAX_CONT) return -1;
+  if (fit->status == DT_OK) {
+    for (size_t i = 0; i < j->ncomp; i++) {
+      const dt_component *c = &fit->comp[i];
+      double x[3] = {c->logN, c->b, c->v};
+      if (!comp_ok(x)) return -1;
+    }
+    memcpy(j->comp, fit->comp, j->ncomp * sizeof j->comp[0]);
+  }
+  j->fit = *fit;
+  j->has_fit = 1;
+  return 0;
+}
+
 /* The state a judgement may be in (used to check restored states). */
 static int state_ok(const dt_judgement *s) {
+  if (!linked_ok(s)) return 0;
   if (s->ncomp > DT_MAX_COMP || s->nwin > DT_MAX_WINDOWS) return 0;
   if (memchr(s->doublet, '\0', sizeof s->doublet) == NULL || s->doublet[0] == '\0') return 0;
   if (memchr(s->note, '\0', sizeof s->note) == NULL) return 0;
@@ -221,7 +320,26 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     size_t n = strnlen(a->text, sizeof a->text);
     if (n == 0 || n >= sizeof j->doublet) return DT_EINVAL;
     memcpy(j->doublet, a->text, n + 1);
+    if (dt_judgement_linked_index(j, j->doublet) >= 0) set_link(j, j->doublet, 0);
     break;
+  }
+  case DT_ACT_LINK:
+    if ((a->ival != 0 && a->ival != 1) || set_link(j, a->text, a->ival)) return DT_EINVAL;
+    break;
+  case DT_ACT_BTIE:
+    if (a->ival < 0 || a->ival >= DT_BTIE__COUNT) return DT_EINVAL;
+    j->btie = (dt_btie)a->ival;
+    break;
+  case DT_ACT_JOINT_FIT: {
+    dt_judgement t = *j;
+    t.has_joint = 1;
+    t.joint = a->joint;
+    if (t.btie != DT_BTIE_THERMAL) /* T and b_turb belong to the thermal rule alone */
+      for (size_t k = 0; k < DT_MAX_COMP; k++)
+        t.joint.T[k] = t.joint.T_err[k] = t.joint.bturb[k] = t.joint.bturb_err[k] = NAN;
+    if (take_fit(&t, &a->fit) || !linked_ok(&t)) return DT_EINVAL;
+    *j = t;
+    return DT_OK;
   }
   case DT_ACT_RESOLUTION:
     if (!isfinite(a->x[0]) || !isfinite(a->x[1]) || a->x[0] < 0.0 || a->x[1] < 0.0)
@@ -239,17 +357,8 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     j->vhi = a->x[1];
     break;
   case DT_ACT_FIT:
-    if (a->fit.ncomp != j->ncomp || a->fit.ncont > DT_MAX_CONT) return DT_EINVAL;
-    if (a->fit.status == DT_OK) {
-      for (size_t i = 0; i < j->ncomp; i++) {
-        const dt_component *c = &a->fit.comp[i];
-        double x[3] = {c->logN, c->b, c->v};
-        if (!comp_ok(x)) return DT_EINVAL;
-      }
-      memcpy(j->comp, a->fit.comp, j->ncomp * sizeof j->comp[0]);
-    }
-    j->fit = a->fit;
-    j->has_fit = 1;
+    if (take_fit(j, &a->fit)) return DT_EINVAL;
+    j->has_joint = 0;
     return DT_OK;
   case DT_ACT_VERDICT:
     if (a->ival < DT_VERDICT_NONE || a->ival > DT_VERDICT_UNUSABLE) return DT_EINVAL;
@@ -272,7 +381,7 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
   default:
     return DT_EINVAL;
   }
-  if (model_change) j->has_fit = 0;
+  if (model_change) j->has_fit = j->has_joint = 0;
   assert(j->ncomp <= DT_MAX_COMP && j->nwin <= DT_MAX_WINDOWS);
   return DT_OK;
 }
@@ -312,7 +421,31 @@ int dt_judgement_same(const dt_judgement *a, const dt_judgement *b) {
     if (!same_comp(&a->comp[i], &b->comp[i]) || a->frozen[i] != b->frozen[i]) return 0;
   if (strncmp(a->note, b->note, sizeof a->note) != 0) return 0;
   if (a->has_fit && !dt_fit_result_same(&a->fit, &b->fit)) return 0;
+  if (a->nlinked != b->nlinked || a->btie != b->btie || a->has_joint != b->has_joint ||
+      a->nlinked > DT_JUDGE_MAX_LINKED)
+    return 0;
+  for (size_t i = 0; i < a->nlinked; i++)
+    if (strncmp(a->linked[i], b->linked[i], DT_JUDGE_DOUBLET)) return 0;
+  if (a->has_joint && !dt_linked_fit_same(&a->joint, &b->joint, a->ncomp)) return 0;
   return dt_judgement_same_systems(a, b);
+}
+
+int dt_linked_fit_same(const dt_linked_fit *a, const dt_linked_fit *b, size_t ncomp) {
+  if (a->nspecies != b->nspecies || a->nspecies > DT_JUDGE_MAX_LINKED || ncomp > DT_MAX_COMP)
+    return 0;
+  for (size_t k = 0; k < ncomp; k++)
+    if (!same_d(a->T[k], b->T[k]) || !same_d(a->T_err[k], b->T_err[k]) ||
+        !same_d(a->bturb[k], b->bturb[k]) || !same_d(a->bturb_err[k], b->bturb_err[k]))
+      return 0;
+  for (size_t s = 0; s < a->nspecies; s++) {
+    const dt_linked_species *p = &a->sp[s], *q = &b->sp[s];
+    if (strncmp(p->doublet, q->doublet, DT_JUDGE_DOUBLET)) return 0;
+    for (size_t k = 0; k < ncomp; k++)
+      if (!same_d(p->logN[k], q->logN[k]) || !same_d(p->logN_err[k], q->logN_err[k]) ||
+          !same_d(p->b[k], q->b[k]) || !same_d(p->b_err[k], q->b_err[k]))
+        return 0;
+  }
+  return 1;
 }
 
 int dt_judgement_same_systems(const dt_judgement *a, const dt_judgement *b) {

@@ -55,6 +55,7 @@ dt_session *dt_session_alloc(const dt_atomic *atomic, dt_journal *jn) {
 void dt_session_free(dt_session *ss) {
   if (!ss) return;
   dt_session_unload(ss);
+  dt_session_linked_free(ss);
   free(ss->undo);
   free(ss->redo);
   free(ss);
@@ -144,7 +145,14 @@ void dt_session_finish_intervals(dt_session *ss) {
   dt_analysis_run_intervals(ss->an, &ss->j, &ss->out);
 }
 
+static void analyse_main(dt_session *ss, const dt_judgement *j, int fit);
+
 void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
+  analyse_main(ss, j, fit);
+  if (!fit || j->nlinked == 0 || j->ncomp == 0) dt_session_linked_eval(ss, j); /* a joint refit shows them after */
+}
+
+static void analyse_main(dt_session *ss, const dt_judgement *j, int fit) {
   ss->an_ok = 0;
   ss->intervals_tried = 0;
   ss->an_fallback = 0;
@@ -193,6 +201,7 @@ void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit) {
 /* Refit state *j in place: its components take the fit's values through a
  * DT_ACT_FIT action.  0 when there is a fit to keep. */
 static int fit_into(dt_session *ss, dt_judgement *j) {
+  if (j->nlinked > 0 && j->ncomp > 0 && ss->loaded) return dt_session_joint_into(ss, j);
   dt_session_analyse_state(ss, j, 1);
   if (!ss->an_ok || ss->an_fallback || ss->out.fit.ncomp != j->ncomp) return -1;
   dt_action a;
@@ -459,8 +468,9 @@ int dt_session_refit(dt_session *ss) {
     return DT_EINVAL;
   }
   dt_action a;
-  dt_action_init(&a, DT_ACT_FIT);
+  dt_action_init(&a, next.has_joint ? DT_ACT_JOINT_FIT : DT_ACT_FIT);
   a.fit = next.fit;
+  a.joint = next.joint;
   int rc = record(ss, &a, &next, 1);
   if (rc != DT_OK) {
     dt_session_analyse_state(ss, &ss->j, 0);
@@ -469,7 +479,7 @@ int dt_session_refit(dt_session *ss) {
   ss->j = next;
   ss->pending = 0;
   if (ss->an_msg[0]) dt_session_say(ss, DT_TONE_WARN, "%s", ss->an_msg);
-  else dt_session_say(ss, DT_TONE_GOOD, "refitted");
+  else dt_session_say(ss, DT_TONE_GOOD, "refitted%s", next.has_joint ? " jointly" : "");
   return DT_OK;
 }
 
@@ -502,6 +512,7 @@ int dt_session_autofit_to(dt_session *ss, const dt_judgement *base, const dt_act
   }
   ss->out = af.an; /* the measurements recorded are the new state's */
   ss->an_ok = 1;
+  if (trial.nlinked > 0 && ss->auto_refit) dt_session_joint_into(ss, &trial); /* linked: jointly */
   int keep = ss->has_suggest;
   dt_verdict ks = ss->suggested;
   char kr[sizeof ss->reason];

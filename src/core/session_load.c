@@ -55,6 +55,7 @@ static void systems_of_state(dt_session *ss, const dt_session_target *t, int rec
 }
 
 void dt_session_unload(dt_session *ss) {
+  dt_session_linked_free(ss);
   dt_analysis_free(ss->an);
   dt_spectrum_free(ss->spec);
   ss->an = NULL;
@@ -207,7 +208,12 @@ static void resume(dt_session *ss, const dt_journal_entry *en, const dt_session_
     if (keep) ss->suggested = ks; /* the recorded suggestion for the target stands */
   }
   char why[160] = "";
-  if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
+  if (ss->j.has_joint && ss->j.fit.status == DT_OK) {
+    if (!dt_session_joint_verify(ss, &ss->j, why, sizeof why)) {
+      dt_journal_set_flag(ss->jn, ss->key, 0, ss->row, DT_JFLAG_REFIT_MISMATCH, 1);
+      dt_session_say(ss, DT_TONE_WARN, "a joint refit differs from the recorded fit: %s", why);
+    }
+  } else if (ss->j.has_fit && ss->j.fit.status == DT_OK && ss->j.ncomp > 0) {
     dt_session_analyse_state(ss, &ss->j, 1);
     if (ss->an_ok && !dt_fit_check_refit(&ss->j.fit, &ss->out.fit, DT_REFIT_TOL_SIGMA, why, sizeof why)) {
       dt_journal_set_flag(ss->jn, ss->key, 0, ss->row, DT_JFLAG_REFIT_MISMATCH, 1);
@@ -234,6 +240,9 @@ void dt_session_target_init(dt_session_target *t, const char *path, const char *
 
 int dt_session_load(dt_session *ss, const dt_session_target *t) {
   reset(ss, t);
+  ss->hyperfine = t->hyperfine;
+  ss->lsf_constant = t->lsf_constant;
+  ss->cog = t->cog;
   const dt_journal_entry *en = ss->jn ? dt_journal_lookup(ss->jn, ss->key, 0, ss->row) : NULL;
   int rc = read_spectrum(ss, t);
   if (rc != DT_OK) {
@@ -273,6 +282,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     if (arc == DT_OK || arc == DT_ENOCONV) {
       ss->j = trial;
       dt_session_suggest(ss, &af);
+      if (ss->j.nlinked > 0) dt_session_joint_into(ss, &ss->j); /* linked in the list: jointly */
     }
     ss->pending = 1;
     dt_session_analyse_state(ss, &ss->j, 0);

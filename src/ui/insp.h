@@ -62,6 +62,10 @@ typedef struct dt_insp {
   char edit[DT_NOTE_MAX];
   size_t edit_len, edit_pos;     /* bytes */
 
+  /* the chooser of species to link (insp_link.c) */
+  int choosing;                  /* open */
+  size_t choice_sel;             /* the highlighted doublet */
+
   /* the 21-cm spectrum at the current sightline (o->hi given) */
   int has_hi;                    /* hs holds a sample (any status) */
   dt_hi_sample hs;
@@ -99,5 +103,14 @@ void dt_insp_load(dt_insp *s, size_t idx);
 int dt_insp_verdict_of(dt_insp *s, size_t i);
 /* Carry out key (a command, or a key of the line editor). */
 int dt_insp_handle(dt_insp *s, int key);
+
+/* Linked species (insp_link.c): open the chooser; a key while it is open
+ * (digits pick, Up/Down and Enter/Space pick, Esc or the link key close);
+ * the doublets it lists (those the spectrum covers, the main one left
+ * out) into out[0..max), their count. */
+#define DT_INSP_CHOICES 9
+void dt_insp_link_open(dt_insp *s);
+int dt_insp_link_key(dt_insp *s, int key);
+size_t dt_insp_link_choices(const dt_insp *s, const dt_doublet **out);
 
 #endif

@@ -365,6 +365,8 @@ static void judgement_cmd(dt_insp *s, dt_cmd c) {
     break;
   }
   case DT_CMD_NEXT_SYSTEM: dt_session_select_system(s->ss, 1); break;
+  case DT_CMD_LINK_SPECIES: dt_insp_link_open(s); break;
+  case DT_CMD_B_RULE: dt_session_btie_next(ss); break;
   case DT_CMD_VERDICT_DETECTED: cmd_verdict(s, DT_VERDICT_DETECTED); break;
   case DT_CMD_VERDICT_NOT_DETECTED: cmd_verdict(s, DT_VERDICT_NOT_DETECTED); break;
   case DT_CMD_VERDICT_UNSURE: cmd_verdict(s, DT_VERDICT_UNSURE); break;
@@ -386,6 +388,7 @@ static int finished_cmd(dt_cmd c) {
 int dt_insp_handle(dt_insp *s, int key) {
   if (key == DT_KEY_RESIZE) return EV_REDRAW;
   if (s->editing) return edit_key(s, key);
+  if (s->choosing) return dt_insp_link_key(s, key);
   if (s->help_page) {
     /* in the help: the help key pages on, anything else closes it */
     if (dt_keymap_lookup(key) == DT_CMD_HELP && s->help_page < s->help_pages) s->help_page++;

@@ -49,12 +49,30 @@ const char *dt_insp_keyname(int c, char *buf, size_t n) {
 
 /* ---------------------------------------------------------------- loading */
 
+/* The doublets of queue entry i: the list's (or the command line's)
+ * "NAME[,NAME...]"; the first is vetted, the others are linked species. */
+static const char *entry_doublets(const dt_insp *s, size_t i) {
+  const dt_qentry *e = &s->q->e[i];
+  return e->doublet[0] ? e->doublet : s->o->doublet ? s->o->doublet : "NaI";
+}
+
+/* The k-th name of a doublet list into buf ("" past the end). */
+static const char *doublet_at(const char *list, size_t k, char *buf, size_t n) {
+  for (; k > 0 && list; k--) {
+    list = strchr(list, ',');
+    if (list) list++;
+  }
+  size_t len = list ? strcspn(list, ",") : 0;
+  snprintf(buf, n, "%.*s", (int)len, list ? list : "");
+  return buf;
+}
+
 /* The name a queue entry has in the session: its file (absolute, tidied),
  * then '#' and the doublet it is vetted for -- the same file may be queued
  * once per doublet (e.g. Na I and Ca II of one wide spectrum). */
 static const char *entry_key(const dt_insp *s, size_t i, char *buf, size_t n) {
-  const dt_qentry *e = &s->q->e[i];
-  const char *d = e->doublet[0] ? e->doublet : s->o->doublet ? s->o->doublet : "NaI";
+  char d[DT_JUDGE_DOUBLET * 4];
+  doublet_at(entry_doublets(s, i), 0, d, sizeof d);
   const dt_doublet *dd = dt_atomic_find(s->atomic, d);
   snprintf(buf, n, "%s#%s", dt_queue_key(s->q, i), dd ? dd->name : d);
   return buf;
@@ -99,9 +117,19 @@ static int initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
   const dt_qentry *q = &s->q->e[idx];
   const dt_inspect_opts *o = s->o;
   dt_judgement_init(j);
-  const char *d = q->doublet[0] ? q->doublet : o->doublet ? o->doublet : "NaI";
+  char d[DT_JUDGE_DOUBLET * 4];
+  doublet_at(entry_doublets(s, idx), 0, d, sizeof d);
   const dt_doublet *dd = dt_atomic_find(s->atomic, d);
-  snprintf(j->doublet, sizeof j->doublet, "%s", dd ? dd->name : d);
+  snprintf(j->doublet, sizeof j->doublet, "%.15s", dd ? dd->name : d);
+  /* the other doublets of the list are linked (those the table knows) */
+  for (size_t k = 1; doublet_at(entry_doublets(s, idx), k, d, sizeof d)[0]; k++) {
+    const dt_doublet *ld = dt_atomic_find(s->atomic, d);
+    dt_action a;
+    dt_action_init(&a, DT_ACT_LINK);
+    a.ival = 1;
+    snprintf(a.text, sizeof a.text, "%s", ld ? ld->name : d);
+    if (ld) dt_judgement_apply(j, &a); /* refused: the main one, twice, a fourth */
+  }
   j->vsys = q->has_vsys ? q->vsys : o->has_vsys ? o->vsys : 0.0;
   if (q->has_window) {
     j->vlo = q->vlo;
@@ -207,6 +235,7 @@ void dt_insp_load(dt_insp *s, size_t idx) {
   s->cur = idx;
   s->anchor = 0;
   s->editing = DT_EDIT_NONE;
+  s->choosing = 0;
   s->finished = 0;
   char key[DT_KEY_MAX];
   dt_session_target t;

@@ -91,6 +91,8 @@ typedef enum dt_cmd {
   DT_CMD_PREV_UNJUDGED,
   DT_CMD_GOTO_SPECTRUM,
   DT_CMD_NEXT_SYSTEM,
+  DT_CMD_LINK_SPECIES,
+  DT_CMD_B_RULE,
   DT_CMD__COUNT
 } dt_cmd;
 

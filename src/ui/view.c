@@ -31,38 +31,9 @@
 #include "doubletty/utf8.h"
 #include "insp.h"
 #include "keymap.h"
+#include "view_int.h"
 
 #define DEPARTS 0.002 /* a model "departs" from the continuum by this fraction */
-
-typedef struct layout {
-  int w, h;
-  int ov_y, ov_h, ovaxis_y;
-  int pan_y[2], pan_h;
-  int hi_y, hi_h;            /* the 21-cm panel (0 rows: none) */
-  int vaxis_y;
-  int sys_y;                /* the systems' bands (-1: none, one system) */
-  int gutter, plot_x, plot_w;
-  int tab_x, tab_y, tab_w, tab_h;
-  int status_y, status_h;   /* a long message takes two rows */
-} layout;
-
-#define FOOTER_MIN 16 /* " ? help  q quit " */
-
-/* Cells of UTF-8 text (one per code point, as dt_grid_text draws it; the
- * screen has no wide glyphs). */
-static int cells(const char *t) { return (int)dt_utf8_count(t); }
-
-/* Symbols with ASCII stand-ins. */
-typedef struct syms {
-  const char *pm, *sig, *chi, *mA, *ang, *vbar, *hbar, *arrow, *ell;
-} syms;
-
-static syms symbols(const dt_insp *s) {
-  if (s->utf8)
-    return (syms){"\xc2\xb1", "\xcf\x83", "\xcf\x87\xc2\xb2\xce\xbd", "m\xc3\x85", "\xc3\x85", "\xe2\x94\x82",
-                  "\xe2\x94\x80", "\xe2\x96\xb6", "\xe2\x80\xa6"};
-  return (syms){"+-", "sig", "chi2r", "mA", "A", "|", "-", ">", "..."};
-}
 
 const char *dt_view_pm(const dt_insp *s, char *buf, size_t size, double v, double err, int dec) {
   syms y = symbols(s);
@@ -73,10 +44,6 @@ const char *dt_view_pm(const dt_insp *s, char *buf, size_t size, double v, doubl
   return buf;
 }
 
-static const char *keyname_of_cmd(dt_cmd c, char *buf, size_t n) {
-  const dt_keybind *b = dt_keymap_of(c);
-  return b ? dt_keymap_keyname(b->key, buf, n) : "?";
-}
 
 /* The status line's message: the session's last one, and while the
  * analysis of the current state fails, why -- so the reason stays in view
@@ -112,7 +79,8 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
     L->tab_x = 0;
     /* rule, heading, components, fit, two lines, verdict: as many rows as
        the components need, within a share of the screen */
-    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28) + (s->o && s->o->hi ? 1 : 0);
+    int need = 6 + (int)(s->ss->j.ncomp > 1 ? s->ss->j.ncomp : 1) - (h < 28) + (s->o && s->o->hi ? 1 : 0) +
+               dt_view_linked_rows(s);
     int cap = h < 28 ? 7 : h < 36 ? 9 : 13;
     L->tab_h = need < 7 ? 7 : need > cap ? cap : need;
     L->tab_y = L->status_y - L->tab_h;
@@ -128,13 +96,15 @@ static void compute_layout(const dt_insp *s, int w, int h, layout *L) {
   L->sys_y = -1;
   int sysrow = s->ss->systems.n > 1 && rest >= 7; /* a row for the systems' bands */
   rest -= sysrow;
-  L->pan_h = rest / 2;
-  if (L->ov_h) L->ov_h += rest % 2; /* an odd row goes to the overview */
+  L->nlink = s->ss->loaded ? (int)s->ss->j.nlinked : 0; /* a panel per linked species */
+  L->pan_h = rest / (2 + L->nlink);
+  if (L->ov_h) L->ov_h += rest - L->pan_h * (2 + L->nlink); /* odd rows go to the overview */
   L->ov_y = 1;
   L->ovaxis_y = L->ov_y + L->ov_h;
   L->pan_y[0] = L->ov_h ? L->ovaxis_y + 1 : L->ov_y;
   L->pan_y[1] = L->pan_y[0] + L->pan_h;
-  L->hi_y = L->pan_y[1] + L->pan_h;
+  for (int k = 0; k < L->nlink; k++) L->link_y[k] = L->pan_y[1] + L->pan_h * (k + 1);
+  L->hi_y = L->pan_y[1] + L->pan_h * (1 + L->nlink);
   L->vaxis_y = L->hi_y + L->hi_h;
   if (sysrow) L->sys_y = L->vaxis_y++;
   L->plot_x = L->gutter;
@@ -323,6 +293,17 @@ static void draw_residuals(dt_insp *s, const layout *L, const dt_plot *p, int gy
 /* What a line panel draws: the analysis' arrays, or -- when the analysis
  * of the current state failed -- the spectrum's own pixels in the view
  * (no continuum, no model), so the data are never hidden by a failure. */
+/* Whose lines a panel shows: the main doublet's (the session's analysis) or
+ * a linked species' (its own analysis of the spectrum). */
+typedef struct panel_src {
+  dt_analysis *an;
+  int an_ok;
+  size_t n;                         /* pixels of the analysis */
+  const dt_doublet *d;
+  const char *species;              /* NULL: the main doublet */
+  const char *msg;                  /* why there is no analysis */
+} panel_src;
+
 typedef struct panel_data {
   size_t n;
   const double *vel, *flux, *sig;
@@ -331,17 +312,18 @@ typedef struct panel_data {
   int from_analysis;
 } panel_data;
 
-static int panel_data_get(dt_insp *s, const dt_doublet *d, int l, panel_data *pd) {
+static int panel_data_get(dt_insp *s, const panel_src *src, int l, panel_data *pd) {
+  const dt_doublet *d = src->d;
   memset(pd, 0, sizeof *pd);
   if (!s->ss->loaded) return -1;
-  if (s->ss->an_ok) {
-    pd->n = s->ss->out.n;
-    pd->vel = dt_analysis_velocity(s->ss->an, l);
-    pd->flux = dt_analysis_flux(s->ss->an);
-    pd->sig = dt_analysis_sigma(s->ss->an);
-    pd->cont = dt_analysis_continuum(s->ss->an);
-    pd->model = dt_analysis_model(s->ss->an);
-    pd->mask = dt_analysis_mask(s->ss->an);
+  if (src->an_ok) {
+    pd->n = src->n;
+    pd->vel = dt_analysis_velocity(src->an, l);
+    pd->flux = dt_analysis_flux(src->an);
+    pd->sig = dt_analysis_sigma(src->an);
+    pd->cont = dt_analysis_continuum(src->an);
+    pd->model = dt_analysis_model(src->an);
+    pd->mask = dt_analysis_mask(src->an);
     pd->from_analysis = 1;
     return pd->vel && pd->flux && pd->sig && pd->cont && pd->mask ? 0 : -1;
   }
@@ -495,24 +477,25 @@ static void draw_systems(dt_insp *s, const layout *L, const dt_plot *p) {
   }
 }
 
-static void draw_panel(dt_insp *s, const layout *L, int l) {
+/* Line l of src in the panel at row gy; the last panel draws the velocity
+ * axis (and the systems) under it. */
+static void draw_panel_of(dt_insp *s, const layout *L, int gy, int l, const panel_src *src, int last) {
   dt_grid *g = &s->g;
   syms y = symbols(s);
-  int gy = L->pan_y[l];
-  const dt_doublet *d = dt_atomic_find(s->atomic, s->ss->j.doublet);
-  /* the gutter: which line, is the cursor here */
+  const dt_doublet *d = src->d;
+  /* the gutter: which line (and species), is the cursor here */
   if (d) {
     char lab[16];
     snprintf(lab, sizeof lab, "%.0f", floor(d->line[l].lambda0)); /* lines go by their integer part */
-    if (s->panel == l) dt_grid_text(g, 0, gy, y.arrow, DT_R_LABEL, DT_A_BOLD, 1);
+    if (!src->species && s->panel == l) dt_grid_text(g, 0, gy, y.arrow, DT_R_LABEL, DT_A_BOLD, 1);
     dt_grid_text(g, 1, gy, lab, DT_R_LABEL, DT_A_BOLD, 5);
   }
   for (int r = 0; r < L->pan_h; r++) dt_grid_text(g, L->gutter - 1, gy + r, y.vbar, DT_R_AXIS, 0, 1);
   panel_data pd;
-  if (panel_data_get(s, d, l, &pd)) {
+  if (panel_data_get(s, src, l, &pd)) {
     if (l == 0)
       dt_grid_printf(g, L->plot_x + 1, gy + L->pan_h / 2, DT_R_BAD, 0, L->plot_w - 2, "%s",
-                     !s->ss->loaded ? "no data" : s->ss->an_msg[0] ? s->ss->an_msg : "no analysis");
+                     !s->ss->loaded ? "no data" : src->msg[0] ? src->msg : "no analysis");
     return;
   }
   size_t n = pd.n;
@@ -547,7 +530,7 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
   if (pd.cont) dt_plot_line(p, pd.vel, yc, NULL, n, DT_R_CONT, 0);
   if (pd.from_analysis && s->ss->j.ncomp > 1) /* one component's model is the total model */
     for (size_t k = 0; k < s->ss->j.ncomp; k++) {
-      const double *cm = dt_analysis_component_model(s->ss->an, k);
+      const double *cm = dt_analysis_component_model(src->an, k);
       if (!cm) continue;
       for (size_t i = 0; i < n; i++)
         yk[i] = fabs(cm[i] / pd.cont[i] - 1) > DEPARTS ? cm[i] / (norm ? pd.cont[i] : 1.0) : NAN;
@@ -575,11 +558,34 @@ static void draw_panel(dt_insp *s, const layout *L, int l) {
   ytick(g, p, 1, gy, norm ? 1.0 : level, norm ? "1" : pd.cont ? "C" : "F");
   ytick(g, p, 1, gy, 0, "0");
   /* without an analysis the panel says so in its top row: data only */
-  if (!pd.from_analysis && l == 0)
-    dt_grid_text(g, L->plot_x + 1, gy, " data only: no analysis of this state ", DT_R_WARN, DT_A_REVERSE, p->w - 2);
-  if (l == 1 && !L->hi_h) {
-    draw_vaxis(s, L, p, d);
+  if (!pd.from_analysis && l == 0) {
+    char why[260];
+    snprintf(why, sizeof why, " data only: %.200s ", src->species && src->msg[0] ? src->msg : "no analysis of this state");
+    dt_grid_text(g, L->plot_x + 1, gy, why, DT_R_WARN, DT_A_REVERSE, p->w - 2);
+  }
+  if (src->species) { /* the species, at the right of its panel's top row */
+    char lab[40];
+    snprintf(lab, sizeof lab, " %s %.0f ", src->species, d ? floor(d->line[l].lambda0) : 0.0);
+    int len = cells(lab);
+    if (len < p->w / 2) dt_grid_text(g, L->plot_x + p->w - len, gy, lab, DT_R_GOOD, DT_A_BOLD | DT_A_REVERSE, len);
+  }
+  if (last && !L->hi_h) {
+    draw_vaxis(s, L, p, dt_atomic_find(s->atomic, s->ss->j.doublet));
     draw_systems(s, L, p);
+  }
+}
+
+/* Line l of the main doublet; after the two, the stronger line of each
+ * linked species on the same velocity axis (components in the same place). */
+static void draw_panel(dt_insp *s, const layout *L, int l) {
+  dt_session *ss = s->ss;
+  panel_src src = {ss->an, ss->an_ok, ss->out.n, dt_atomic_find(s->atomic, ss->j.doublet), NULL, ss->an_msg};
+  draw_panel_of(s, L, L->pan_y[l], l, &src, l == 1 && L->nlink == 0);
+  for (int k = 0; l == 1 && k < L->nlink; k++) {
+    dt_session_species *sp = &ss->lsp[k];
+    panel_src ls = {sp->an, sp->ok, sp->out.n, dt_atomic_find(s->atomic, ss->j.linked[k]), ss->j.linked[k],
+                    sp->msg};
+    draw_panel_of(s, L, L->link_y[k], 0, &ls, k == L->nlink - 1);
   }
 }
 
@@ -840,6 +846,10 @@ static void draw_table(dt_insp *s, const layout *L) {
   row = table_components(s, &y, x, row, maxw, end);
   int hirow = s->o && s->o->hi ? 1 : 0;
   if (row > end - 4 - hirow) row = end - 4 - hirow;
+  int lrows = dt_view_linked_rows(s);
+  if (lrows && row > end - 4 - hirow - lrows) row = end - 4 - hirow - lrows;
+  if (row < L->tab_y) row = L->tab_y;
+  row = dt_view_table_linked(s, x, row, maxw, end - 4 - hirow);
   table_fit(s, &y, x, row++, maxw);
   for (int l = 0; l < 2; l++) table_line(s, &y, x, row++, maxw, l);
   if (hirow) table_hi(s, &y, x, row++, maxw);
@@ -925,105 +935,6 @@ static void draw_status(dt_insp *s, const layout *L) {
   dt_grid_text(g, L->w - rw, y, right, DT_R_AXIS, DT_A_DIM, -1);
 }
 
-/* ------------------------------------------------------------------ end */
-
-/* The end of the queue: how many of each verdict, how many are left, and
- * the keys that go on from here. */
-static void draw_finished(dt_insp *s, const layout *L) {
-  dt_grid *g = &s->g;
-  size_t count[5] = {0};
-  for (size_t i = 0; i < s->q->n; i++) {
-    int v = dt_insp_verdict_of(s, i);
-    if (v >= 0 && v < 5) count[v]++;
-  }
-  int bw = L->w < 64 ? L->w - 4 : 60, bh = 12, bx = (L->w - bw) / 2, by = (L->h - bh) / 2;
-  syms y = symbols(s);
-  dt_grid_fill(g, bx, by, bw, bh, " ", DT_R_TEXT, DT_R_NONE, 0);
-  dt_grid_fill(g, bx, by, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
-  dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
-  int row = by + 1, x = bx + 2, m = bw - 4;
-  dt_grid_printf(g, x, row++, DT_R_GOOD, DT_A_BOLD, m, "queue finished: %zu of %zu spectra judged",
-                 s->q->n - count[DT_VERDICT_NONE], s->q->n);
-  row++;
-  static const dt_verdict order[] = {DT_VERDICT_DETECTED, DT_VERDICT_NOT_DETECTED, DT_VERDICT_UNSURE,
-                                     DT_VERDICT_UNUSABLE, DT_VERDICT_NONE};
-  for (size_t i = 0; i < sizeof order / sizeof order[0]; i++)
-    dt_grid_printf(g, x + 2, row++, order[i] == DT_VERDICT_NONE && count[0] ? DT_R_WARN : DT_R_TEXT, 0, m - 2,
-                   "%-14s %6zu", order[i] == DT_VERDICT_NONE ? "unjudged" : dt_verdict_name(order[i]),
-                   count[order[i]]);
-  row++;
-  char k1[16], k2[16], k3[16];
-  keyname_of_cmd(DT_CMD_NEXT_UNJUDGED, k1, sizeof k1);
-  keyname_of_cmd(DT_CMD_PREV_SPECTRUM, k2, sizeof k2);
-  keyname_of_cmd(DT_CMD_QUIT, k3, sizeof k3);
-  if (count[DT_VERDICT_NONE])
-    dt_grid_printf(g, x, row++, DT_R_LABEL, 0, m, "%s: to the unjudged   %s: back   %s: leave", k1, k2, k3);
-  else
-    dt_grid_printf(g, x, row++, DT_R_LABEL, 0, m, "%s: back to the last spectrum   %s: leave", k2, k3);
-}
-
-/* ------------------------------------------------------------------ help */
-
-static void draw_help(dt_insp *s, const layout *L) {
-  dt_grid *g = &s->g;
-  size_t n;
-  const dt_keybind *t = dt_keymap_table(&n);
-  int bw = L->w - 4, bh = L->h - 4, bx = 2, by = 2;
-  /* as many columns as fit the longest line whole (key, help, margin) */
-  int need = 0;
-  for (size_t i = 0; i < n; i++) {
-    int wl = 8 + cells(t[i].help) + 2;
-    if (wl > need) need = wl;
-  }
-  int ncol = (bw - 2) / (need > 0 ? need : 1);
-  if (ncol < 1) ncol = 1;
-  if (ncol > 3) ncol = 3;
-  int colw = (bw - 2) / ncol;
-  int lines = bh - 3; /* frame top, title, frame bottom */
-  /* lay the table out: group headings, then "key  help (action)" lines */
-  int per_page = lines * ncol;
-  int total = 0;
-  const char *group = NULL;
-  for (size_t i = 0; i < n; i++) {
-    if (!group || strcmp(group, t[i].group)) {
-      total++;
-      group = t[i].group;
-    }
-    total++;
-  }
-  s->help_pages = (total + per_page - 1) / per_page;
-  if (s->help_page > s->help_pages) s->help_page = s->help_pages;
-  int page = s->help_page - 1;
-  dt_grid_fill(g, bx, by, bw, bh, " ", DT_R_TEXT, DT_R_NONE, 0);
-  syms y = symbols(s);
-  dt_grid_fill(g, bx, by, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
-  dt_grid_fill(g, bx, by + bh - 1, bw, 1, y.hbar, DT_R_AXIS, DT_R_NONE, 0);
-  char k1[16];
-  dt_grid_printf(g, bx + 2, by + 1, DT_R_LABEL, DT_A_BOLD, bw - 4,
-                 "keys of the inspector - page %d of %d (%s: next, other keys: close)", page + 1,
-                 s->help_pages, keyname_of_cmd(DT_CMD_HELP, k1, sizeof k1));
-  int idx = 0;
-  group = NULL;
-  for (size_t i = 0; i < n; i++) {
-    int heading = !group || strcmp(group, t[i].group);
-    for (int h = heading ? 0 : 1; h < 2; h++) {
-      int slot = idx - page * per_page;
-      idx++;
-      if (slot < 0 || slot >= per_page) continue;
-      int cx = bx + 1 + (slot / lines) * colw, cy = by + 2 + slot % lines;
-      if (h == 0) {
-        dt_grid_printf(g, cx, cy, DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, colw - 1, "%s", t[i].group);
-      } else {
-        char kn[16];
-        dt_keymap_keyname(t[i].key, kn, sizeof kn);
-        int w = dt_grid_printf(g, cx, cy, DT_R_GOOD, DT_A_BOLD, colw - 1, " %-6s", kn);
-        dt_grid_printf(g, cx + w, cy, DT_R_TEXT, 0, colw - 1 - w, "%s", t[i].help);
-      }
-    }
-    group = t[i].group;
-  }
-}
-
 /* ------------------------------------------------------------------ all */
 
 void dt_view_draw(dt_insp *s, int w, int h) {
@@ -1049,6 +960,7 @@ void dt_view_draw(dt_insp *s, int w, int h) {
   if (L.hi_h) draw_hi(s, &L);
   draw_table(s, &L);
   draw_status(s, &L);
-  if (s->finished) draw_finished(s, &L);
-  if (s->help_page) draw_help(s, &L);
+  if (s->choosing) dt_view_draw_chooser(s, &L);
+  if (s->finished) dt_view_draw_finished(s, &L);
+  if (s->help_page) dt_view_draw_help(s, &L);
 }

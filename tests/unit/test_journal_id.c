@@ -139,8 +139,8 @@ static void test_moved_session_resumes(void) {
   size_t tn;
   unsigned char *txt = slurp(tpath("obs/night.session"), &tn);
   CHECK(ok && txt && strstr((char *)txt, "\tfile=data/x.fits#NaI\t") &&
-            !strncmp((char *)txt, "doubletty-session 3\t", 20),
-        "version 3; the path is recorded relative to the session's directory");
+            !strncmp((char *)txt, "doubletty-session 4\t", 20),
+        "version 4; the path is recorded relative to the session's directory");
   free(txt);
 
   ok = rename(tpath("obs"), tpath("moved")) == 0;

@@ -123,7 +123,7 @@ int main(void) {
   dt_journal_close(j);
   size_t n;
   char *txt = (char *)slurp(tpath("a.session"), &n);
-  CHECK(txt && !strncmp(txt, "doubletty-session 3\t", 20), "header version 3");
+  CHECK(txt && !strncmp(txt, "doubletty-session 4\t", 20), "header version 4");
   char *l2 = txt ? strchr(txt, '\n') : NULL;
   l2 = l2 ? strchr(l2 + 1, '\n') : NULL; /* the second record */
   CHECK(l2 && strstr(l2, "\tact=verdict\tverdict=detected\tsystem=milky-way\t=>\tverdict=not-detected\t"
@@ -169,7 +169,7 @@ int main(void) {
   /* the same lines as version 2 writes them: no systems=, a version-2 header */
   CHECK(rewrite(tpath("b.session"),
                 "\tsystems=target:-300:300,milky-way:-660.8713321065768:-361.3828130250291", "") &&
-            rewrite(tpath("b.session"), "doubletty-session 3", "doubletty-session 2"),
+            rewrite(tpath("b.session"), "doubletty-session 4", "doubletty-session 2"),
         "made a version-2 file");
   CHECK(dt_journal_open(tpath("b.session"), DT_JOURNAL_RW, "bo", &j, &e) == DT_OK &&
             dt_journal_warning_count(j) == 0, "a version-2 file opens");
