@@ -3,7 +3,7 @@
  *   # comment
  *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
  *             [window=VLO:VHI] [target-window=VLO:VHI] [system=NAME:VLO:VHI]...
- *             [air] [ra=RA dec=DEC] [frame=NAME]
+ *             [air] [ra=RA dec=DEC] [frame=NAME] [cover=0|1]
  *
  * Fields are separated by blanks; '#' starts a comment anywhere on a line
  * (outside quotes); blank lines are ignored.  A relative path is taken
@@ -14,7 +14,9 @@
  * fit and the measurements.  ra= and dec= (given together) give the sky
  * position, ICRS, in degrees or sexagesimal (hours for ra), over the
  * file's; frame= the velocity frame of the file's wavelengths
- * (frames.h), over what the file says.
+ * (frames.h), over what the file says; cover=1 fits a covering factor per
+ * component (partial covering, cover.h), cover=0 (the default) does not
+ * (a command's option may turn it on for every line).
  *
  * Quoting: a path or value holding blanks, '#', '"' or '\' is written
  * between double quotes, inside which \" stands for '"' and \\ for '\'
@@ -62,6 +64,8 @@ typedef struct dt_target_spec {
   double ra, dec;                 /*   ICRS [deg], for dt_read_opts.ra/dec */
   dt_frame frame;                 /* frame= (UNSET: not given), for
                                      dt_read_opts.in_frame */
+  int has_covering;               /* cover= given: */
+  int covering;                   /*   1 partial covering on, 0 off */
 } dt_target_spec;
 
 /* A target with nothing but a path (as given, not resolved). */

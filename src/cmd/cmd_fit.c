@@ -37,6 +37,7 @@
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
 #include "doubletty/cog.h"
+#include "doubletty/cover.h"
 #include "doubletty/csv.h"
 #include "doubletty/export.h"
 #include "doubletty/autofit.h"
@@ -54,9 +55,12 @@ static const char *const COLUMNS[] = {
     "logN_err_lo", "logN_err_hi", "logN_flag",
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
-    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame"};
-/* the last columns: position and velocity frame (pos_cells) */
+    "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame",
+    "cf", "cf_err", "cf_flag"};
+/* after the reason: position and velocity frame (pos_cells), then the
+ * covering factor (cover_cells) */
 #define NPOSCOLUMNS 3
+#define NCOVERCOLUMNS 3
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
 /* Below this resolving power the line-spread function (c/R > 3000 km/s) is
@@ -96,6 +100,7 @@ typedef struct {
   dt_system_opts systems;       /* --target-window, --system, --milky-way */
   int cov_only;                 /* --intervals covariance */
   int have_mw;                  /* --milky-way given */
+  int covering;                 /* --covering: a covering factor per component */
 } config;
 
 typedef struct {
@@ -138,6 +143,8 @@ static void usage(FILE *f) {
           "  --continuum-order K     Legendre order of the continuum; -1 = fixed at 1\n"
           "  --joint-continuum K     also fit K multiplicative Legendre coefficients\n"
           "                          of the continuum together with the components\n"
+          "  --covering              fit a covering factor C_f per component (partial\n"
+          "                          covering; a list line may say cover=1)\n"
           "  --limit-sigma S         significance of upper limits (default 3)\n"
           "  --limit-b KMS           Doppler parameter of column-density limits\n"
           "                          (full curve of growth; default 2)\n"
@@ -248,6 +255,18 @@ static void pos_cells(dt_csv *w, const dt_spectrum *s) {
   dt_csv_text(w, s ? dt_frame_name(s->frame) : "");
 }
 
+/* cf, cf_err, cf_flag of component k of a covered fit; empty without
+ * covering (fr NULL or not covering) or without a component. */
+static void cover_cells(dt_csv *w, const dt_doublet *d, const dt_fit_result *fr, size_t k) {
+  if (!fr || !fr->covering || k >= fr->ncomp) {
+    for (int i = 0; i < NCOVERCOLUMNS; i++) dt_csv_empty(w);
+    return;
+  }
+  dt_csv_fixed(w, fr->cf[k], 4);
+  dt_csv_fixed(w, fr->cf_err[k], 4);
+  dt_csv_text(w, dt_cover_flag_name(dt_cover_flag(d, &fr->comp[k], fr->cf[k], fr->cf_err[k])));
+}
+
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const char *doublet, double vsys, const dt_err *e) {
   char msg[sizeof e->where + sizeof e->what + 4];
@@ -255,9 +274,10 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, "", vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NCOVERCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
+  cover_cells(&r->csv, NULL, NULL, 0);
   dt_csv_end(&r->csv);
 }
 
@@ -356,6 +376,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     honest_reason(r, j, o, sr->reason, sk == 0 ? set->note : NULL, reason, sizeof reason);
     dt_csv_text(w, reason);
     pos_cells(w, s);
+    cover_cells(w, an->doublet, fr, k);
     dt_csv_end(w);
   }
 }
@@ -427,6 +448,25 @@ static int setup_systems(const config *c, const dt_target_spec *t, const dt_spec
                           &j->vhi, set, e);
 }
 
+/* Partial covering: the first pass's components fitted again with a
+ * covering factor each (the search itself runs without: its thin trial
+ * components would leave C_f and N degenerate), their intervals, and the
+ * fit kept in j.  DT_OK, DT_ENOCONV (the best reached is kept), or the
+ * analysis' error. */
+static int cover_refit(dt_analysis *an, dt_judgement *j, dt_autofit_out *o, dt_err *e) {
+  dt_action a;
+  dt_action_init(&a, DT_ACT_COVERING);
+  a.ival = 1;
+  if (dt_judgement_apply(j, &a) != DT_OK || j->ncomp == 0) return DT_OK;
+  int st = dt_analysis_run(an, j, &o->an, e);
+  if (st != DT_OK && st != DT_ENOCONV) return st;
+  if (st == DT_OK) dt_analysis_intervals(an, j, &o->an, 1.0);
+  dt_action_init(&a, DT_ACT_FIT);
+  a.fit = o->an.fit;
+  dt_judgement_apply(j, &a);
+  return st;
+}
+
 /* Fit one spectrum (one row of a table, or the only one). */
 static void fit_one(run *r, const dt_target_spec *t, long row) {
   const config *c = r->cfg;
@@ -488,6 +528,11 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     fo.nseed = c->nseed;
     for (size_t k = 0; k < c->nseed; k++) fo.seed_v[k] = c->seed_v[k];
     st = dt_autofit_run(an, &j, &fo, &o, &e);
+    if ((st == DT_OK || st == DT_ENOCONV) &&
+        (c->covering || (t->has_covering && t->covering))) {
+      int cs = cover_refit(an, &j, &o, &e);
+      if (cs != DT_OK) st = cs;
+    }
   }
   long shown_row = s ? s->row : row;
   if (st == DT_OK || st == DT_ENOCONV) {
@@ -779,6 +824,7 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_num_format(buf, sizeof buf, c->limit_b);
   dt_csv_comment(w, "limit-b", buf);
   dt_csv_comment(w, "intervals", c->cov_only ? "covariance" : "profile");
+  dt_csv_comment(w, "covering", c->covering ? "yes" : "");
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
   snprintf(buf, sizeof buf, "%ld", c->row);
   dt_csv_comment(w, "row", c->row ? buf : "");
@@ -815,7 +861,8 @@ static void write_settings(dt_csv *w, const config *c) {
 enum {
   O_DOUBLET = 256, O_RES, O_FWHM, O_VSYS, O_WINDOW, O_NCOMP, O_SEEDV, O_CORDER, O_JOINT,
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
-  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS
+  O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS,
+  O_COVER
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -850,6 +897,7 @@ static const struct option LONGOPTS[] = {
     {"milky-way", required_argument, NULL, O_MW},
     {"jobs", required_argument, NULL, O_JOBS},
     {"intervals", required_argument, NULL, O_INTERVALS},
+    {"covering", no_argument, NULL, O_COVER},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -918,6 +966,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     if (ranged("--joint-continuum", v, 0, DT_MAX_CONT, &l)) return 1;
     c->joint_cont = (int)l;
     return 0;
+  case O_COVER: c->covering = 1; return 0;
   case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
   case O_LIMB: return positive("--limit-b", v, "the Doppler parameter", &c->limit_b);
   case O_ATOMIC: c->atomic_file = v; return 0;
