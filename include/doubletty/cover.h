@@ -45,13 +45,13 @@
 enum {
   DT_CF_NONE = 0,        /* covering off, or C_f consistent with 1 */
   DT_CF_PARTIAL,         /* 1 - C_f > DT_CF_NSIGMA sigma: partial covering */
-  DT_CF_UNCONSTRAINED    /* error > DT_CF_ERR_MAX, or the weaker line is
-                            thin (tau0 < DT_CF_TAU_THIN): C_f and N are
-                            degenerate */
+  DT_CF_UNCONSTRAINED    /* the data do not measure C_f: see dt_cover_flag */
 };
 #define DT_CF_NSIGMA 3.0
-#define DT_CF_ERR_MAX 0.3
-#define DT_CF_TAU_THIN 0.5
+#define DT_CF_ERR_MAX 0.3      /* absolute error of C_f */
+#define DT_CF_REL_MAX 0.5      /* error relative to C_f */
+#define DT_CF_TAU_THIN 0.5     /* central optical depth of the weaker line */
+#define DT_CF_LOGN_ERR_MAX 1.0 /* error of log N [dex] */
 /* C_f a covered fit starts from when none is given. */
 #define DT_CF_START 0.9
 
@@ -81,14 +81,20 @@ int dt_cover_eval(dt_cover_work *w, dt_model *mu, dt_model *mc, const dt_compone
 
 /* The flag of a component's C_f (DT_CF_*).
  *
- * Given: the doublet; the component (logN, b); its cf and 1-sigma error.
- * Returned: DT_CF_UNCONSTRAINED when err is not finite or > DT_CF_ERR_MAX,
- *   or the weaker line's central optical depth (dt_cog_tau0, no LSF) is
- *   below DT_CF_TAU_THIN; else DT_CF_PARTIAL when 1 - cf > DT_CF_NSIGMA err;
- *   else DT_CF_NONE.
+ * Given: the doublet (NULL: no thin-line test); the component (logN, b)
+ *   and the 1-sigma error of its log N (NaN: not tested); its cf and
+ *   1-sigma error.
+ * Returned: DT_CF_UNCONSTRAINED when the data do not measure C_f: err not
+ *   finite, > DT_CF_ERR_MAX or > DT_CF_REL_MAX cf; the weaker line's
+ *   central optical depth (dt_cog_tau0, no LSF) below DT_CF_TAU_THIN (thin:
+ *   I ~ 1 - C tau, C and N degenerate); or a log N error above
+ *   DT_CF_LOGN_ERR_MAX (the same degeneracy seen from N: a narrow black
+ *   line covering little looks like a weak one).  Else DT_CF_PARTIAL when
+ *   1 - cf > DT_CF_NSIGMA err; else DT_CF_NONE.
  * Notes: the thresholds are common practice (a 3-sigma detection; a doublet
  *   ratio within ~10% of its thin value cannot separate C from N). */
-int dt_cover_flag(const dt_doublet *d, const dt_component *c, double cf, double err);
+int dt_cover_flag(const dt_doublet *d, const dt_component *c, double logN_err, double cf,
+                  double err);
 
 /* "", "partial", "unconstrained" */
 const char *dt_cover_flag_name(int flag);

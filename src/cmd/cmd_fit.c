@@ -264,7 +264,7 @@ static void cover_cells(dt_csv *w, const dt_doublet *d, const dt_fit_result *fr,
   }
   dt_csv_fixed(w, fr->cf[k], 4);
   dt_csv_fixed(w, fr->cf_err[k], 4);
-  dt_csv_text(w, dt_cover_flag_name(dt_cover_flag(d, &fr->comp[k], fr->cf[k], fr->cf_err[k])));
+  dt_csv_text(w, dt_cover_flag_name(dt_cover_flag(d, &fr->comp[k], fr->err[k].logN, fr->cf[k], fr->cf_err[k])));
 }
 
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
@@ -448,25 +448,6 @@ static int setup_systems(const config *c, const dt_target_spec *t, const dt_spec
                           &j->vhi, set, e);
 }
 
-/* Partial covering: the first pass's components fitted again with a
- * covering factor each (the search itself runs without: its thin trial
- * components would leave C_f and N degenerate), their intervals, and the
- * fit kept in j.  DT_OK, DT_ENOCONV (the best reached is kept), or the
- * analysis' error. */
-static int cover_refit(dt_analysis *an, dt_judgement *j, dt_autofit_out *o, dt_err *e) {
-  dt_action a;
-  dt_action_init(&a, DT_ACT_COVERING);
-  a.ival = 1;
-  if (dt_judgement_apply(j, &a) != DT_OK || j->ncomp == 0) return DT_OK;
-  int st = dt_analysis_run(an, j, &o->an, e);
-  if (st != DT_OK && st != DT_ENOCONV) return st;
-  if (st == DT_OK) dt_analysis_intervals(an, j, &o->an, 1.0);
-  dt_action_init(&a, DT_ACT_FIT);
-  a.fit = o->an.fit;
-  dt_judgement_apply(j, &a);
-  return st;
-}
-
 /* Fit one spectrum (one row of a table, or the only one). */
 static void fit_one(run *r, const dt_target_spec *t, long row) {
   const config *c = r->cfg;
@@ -530,7 +511,8 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     st = dt_autofit_run(an, &j, &fo, &o, &e);
     if ((st == DT_OK || st == DT_ENOCONV) &&
         (c->covering || (t->has_covering && t->covering))) {
-      int cs = cover_refit(an, &j, &o, &e);
+      /* partial covering: the first pass's components fitted again */
+      int cs = dt_analysis_cover_refit(an, &j, &o.an, &e);
       if (cs != DT_OK) st = cs;
     }
   }

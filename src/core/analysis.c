@@ -1140,6 +1140,27 @@ const double *dt_analysis_component_model(dt_analysis *a, size_t k) {
   return out;
 }
 
+/* ---------- partial covering after a first pass ---------- */
+
+int dt_analysis_cover_refit(dt_analysis *a, dt_judgement *j, dt_analysis_out *out, dt_err *e) {
+  dt_action *act = malloc(sizeof *act);
+  if (!act) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  dt_action_init(act, DT_ACT_COVERING);
+  act->ival = 1;
+  int st = dt_judgement_apply(j, act);
+  if (st == DT_OK && j->ncomp > 0) {
+    st = dt_analysis_run(a, j, out, e);
+    if (st == DT_OK) dt_analysis_intervals(a, j, out, 1.0);
+    if (st == DT_OK || st == DT_ENOCONV) {
+      dt_action_init(act, DT_ACT_FIT);
+      act->fit = out->fit;
+      dt_judgement_apply(j, act);
+    }
+  }
+  free(act);
+  return st;
+}
+
 /* ---------- does a refit reproduce a recorded fit ---------- */
 
 int dt_analysis_verify_fit(dt_analysis *a, const dt_judgement *recorded, double tol_sigma,

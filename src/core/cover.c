@@ -118,8 +118,11 @@ int dt_cover_eval(dt_cover_work *w, dt_model *mu, dt_model *mc, const dt_compone
   return DT_OK;
 }
 
-int dt_cover_flag(const dt_doublet *d, const dt_component *c, double cf, double err) {
-  if (!(isfinite(err) && err <= DT_CF_ERR_MAX) || !isfinite(cf)) return DT_CF_UNCONSTRAINED;
+int dt_cover_flag(const dt_doublet *d, const dt_component *c, double logN_err, double cf,
+                  double err) {
+  if (!(isfinite(err) && err <= DT_CF_ERR_MAX && err <= DT_CF_REL_MAX * cf) || !isfinite(cf))
+    return DT_CF_UNCONSTRAINED;
+  if (logN_err > DT_CF_LOGN_ERR_MAX) return DT_CF_UNCONSTRAINED;
   if (d && c) {
     double t0 = dt_cog_tau0(&d->line[0], c->logN, c->b);
     double t1 = dt_cog_tau0(&d->line[1], c->logN, c->b);

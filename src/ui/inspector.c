@@ -113,6 +113,7 @@ static void initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
     j->resolution = 0;
     j->fwhm_kms = 0;
   }
+  j->covering = q->covering >= 0 ? q->covering : o->covering;
 }
 
 /* The 21-cm spectrum at the sightline, in the spectrum's frame. */

@@ -21,6 +21,8 @@ typedef struct dt_inspect_opts {
   int has_vsys;
   double vsys;             /* [km/s] */
   dt_system_opts systems;  /* target range, Milky-Way width, more systems */
+  int covering;            /* 1: partial covering (a covering factor per
+                              component) on a first look */
   /* screen */
   int colour;              /* -1 auto, 0 never */
   int ascii;               /* 1: no Unicode even in a UTF-8 locale */

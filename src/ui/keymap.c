@@ -69,6 +69,7 @@ static const dt_keybind table[] = {
     {DT_CMD_UNDO, "undo", 'u', "fit", "undo the last change", 0, NULL},
     {DT_CMD_REDO, "redo", 'U', "fit", "redo what was undone", 0, NULL},
     {DT_CMD_SWITCH_DOUBLET, "switch-doublet", 'D', "fit", "next doublet covered by the spectrum", 0, NULL},
+    {DT_CMD_COVERING, "covering", 'P', "fit", "partial covering: a covering factor per component, or none", 0, NULL},
     /* verdict */
     {DT_CMD_VERDICT_DETECTED, "verdict-detected", 'y', "verdict", "detected, then the next spectrum", 0, NULL},
     {DT_CMD_VERDICT_NOT_DETECTED, "verdict-not-detected", 'n', "verdict", "not detected, then the next spectrum", 0, NULL},

@@ -91,6 +91,7 @@ typedef enum dt_cmd {
   DT_CMD_PREV_UNJUDGED,
   DT_CMD_GOTO_SPECTRUM,
   DT_CMD_NEXT_SYSTEM,
+  DT_CMD_COVERING,
   DT_CMD__COUNT
 } dt_cmd;
 

@@ -30,6 +30,7 @@ typedef struct dt_qentry {
   unsigned char has_pos; /* ra=/dec= of the list: */
   double ra, dec;        /*   ICRS [deg] */
   signed char frame;     /* frame= of the list (dt_frame; UNSET = not given) */
+  signed char covering;  /* cover= of the list: 1 on, 0 off, -1 not given */
   size_t systems;        /* pool offset: the list line's target-window= and
                             system= as "target:VLO:VHI;NAME:VLO:VHI;..."
                             ("target" only when given; "" none) */

@@ -232,6 +232,18 @@ static void test_closed_form(void) {
   CHECK_CLOSE(dt_cover_closed_form(1 - C + C * x * x, 1 - C + C * x), C, 1e-12,
               "Hamann et al. 1997 eq. 3 on exact intensities");
   CHECK(isnan(dt_cover_closed_form(0.5, 0.8)), "ratio outside the physical range: NaN");
+  /* the flag's rules (cover.h; thresholds common practice) */
+  dt_doublet d = nai();
+  dt_component sat = {logN_for_tau(&d, 3.0, 10.0), 10.0, 0.0};
+  dt_component thin = {logN_for_tau(&d, 0.2, 10.0), 10.0, 0.0};
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05) == DT_CF_PARTIAL, "flag: 0.6+-0.05 partial");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.9, 0.05) == DT_CF_NONE, "flag: 0.9+-0.05 consistent with 1");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.31) == DT_CF_UNCONSTRAINED, "flag: error > 0.3");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.1, 0.06) == DT_CF_UNCONSTRAINED, "flag: error > half C_f");
+  CHECK(dt_cover_flag(&d, &sat, 1.5, 0.6, 0.05) == DT_CF_UNCONSTRAINED, "flag: log N error > 1 dex");
+  CHECK(dt_cover_flag(&d, &thin, 0.02, 0.6, 0.05) == DT_CF_UNCONSTRAINED, "flag: thin weaker line");
+  CHECK(dt_cover_flag(NULL, &thin, NAN, 0.6, 0.05) == DT_CF_PARTIAL, "flag: no doublet, no thin test");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, INFINITY) == DT_CF_UNCONSTRAINED, "flag: infinite error");
   CHECK(strcmp(dt_cover_flag_name(DT_CF_PARTIAL), "partial") == 0 &&
             strcmp(dt_cover_flag_name(DT_CF_UNCONSTRAINED), "unconstrained") == 0,
         "flag names");
@@ -286,7 +298,7 @@ static fitcase fit_one(const dt_doublet *d, pix *p, dt_fit_workspace *fw, dt_cov
   out.cf_fit = res.cf[0];
   out.cf_err = res.cf_err[0];
   out.logN = res.comp[0].logN;
-  out.flag = dt_cover_flag(d, &res.comp[0], res.cf[0], res.cf_err[0]);
+  out.flag = dt_cover_flag(d, &res.comp[0], res.err[0].logN, res.cf[0], res.cf_err[0]);
   free(truth); free(y); free(sg);
   return out;
 }
