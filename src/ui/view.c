@@ -626,7 +626,7 @@ static void draw_hi(dt_insp *s, const layout *L) {
 /* Column positions of the component table (relative to its left edge);
  * with partial covering the covering factor takes TC_FIX and the held
  * parameters move TC_CFW to the right. */
-enum { TC_NUM = 1, TC_V = 5, TC_B = 24, TC_N = 40, TC_FIX = 57, TC_CFW = 24 };
+enum { TC_NUM = 1, TC_V = 5, TC_B = 24, TC_N = 40, TC_FIX = 57, TC_CFW = 26 };
 
 /* Component k's covering factor: "0.62±0.05 partial" (the flag of
  * cover.h: partial, or unconstrained), "1.00±0.02", "-" before a fit
