@@ -112,8 +112,8 @@ typedef struct dt_fit_problem {
                                     < 0: none (the iteration limit still holds) */
   /* Partial covering (cover.h).  covering = 1: every component has its own
    * covering factor C_f, fitted on (0, 1) through a logistic map, starting
-   * from cf[k] (NULL, or a value outside (0, 1]: DT_CF_START; held there
-   * with the DT_FREEZE_CF bit).  cover_model: a second model on the same pixels
+   * from cf[k] (NULL, or a value outside (0, 1): DT_CF_START); held at
+   * cf[k] with the DT_FREEZE_CF bit (NULL or outside (0, 1]: 1).  cover_model: a second model on the same pixels
    * (and with the same settings) as model, with room for one component;
    * required with covering. */
   int covering;

@@ -424,12 +424,16 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
     w->init[k] = c;
     w->cfinit[k] = 1.0;
     if (w->covering) {
+      /* fitted: from the given value inside (0, 1), else DT_CF_START;
+       * held: the given value, or 1 (full covering) when there is none */
       double cf = p->cf ? p->cf[k] : NAN;
-      if (!(cf > 0.0 && cf <= 1.0)) cf = DT_CF_START;
       if (!(fr & DT_FREEZE_CF)) {
+        if (!(cf > 0.0 && cf < 1.0)) cf = DT_CF_START;
         w->ptype[q] = P_F; w->pcomp[q] = (int)k;
         w->plo[q] = 0.0; w->phi[q] = 1.0; q++;
         cf = clamp_inside(cf, 0.0, 1.0);
+      } else if (!(cf > 0.0 && cf <= 1.0)) {
+        cf = 1.0;
       }
       w->cfinit[k] = cf;
     }
