@@ -52,6 +52,7 @@ enum {
 #define DT_CF_REL_MAX 0.5      /* error relative to C_f */
 #define DT_CF_TAU_THIN 0.5     /* central optical depth of the weaker line */
 #define DT_CF_LOGN_ERR_MAX 1.0 /* error of log N [dex] */
+#define DT_CF_RESOLVED 0.5     /* Doppler FWHM / LSF FWHM of a resolved line */
 /* C_f a covered fit starts from when none is given. */
 #define DT_CF_START 0.9
 
@@ -83,7 +84,8 @@ int dt_cover_eval(dt_cover_work *w, dt_model *mu, dt_model *mc, const dt_compone
  *
  * Given: the doublet (NULL: no thin-line test); the component (logN, b)
  *   and the 1-sigma error of its log N (NaN: not tested); its cf and
- *   1-sigma error.
+ *   1-sigma error; the FWHM of the line-spread function [km/s] (0: not
+ *   known, no resolution test; dt_cover_lsf_fwhm).
  * Returned: DT_CF_UNCONSTRAINED when the data do not measure C_f: err not
  *   finite, > DT_CF_ERR_MAX or > DT_CF_REL_MAX cf; the weaker line's
  *   central optical depth (dt_cog_tau0, no LSF) below DT_CF_TAU_THIN (thin:
@@ -91,10 +93,18 @@ int dt_cover_eval(dt_cover_work *w, dt_model *mu, dt_model *mc, const dt_compone
  *   DT_CF_LOGN_ERR_MAX (the same degeneracy seen from N: a narrow black
  *   line covering little looks like a weak one).  Else DT_CF_PARTIAL when
  *   1 - cf > DT_CF_NSIGMA err; else DT_CF_NONE.
+ *   An unresolved line -- Doppler FWHM 2 sqrt(ln 2) b below DT_CF_RESOLVED
+ *   times the LSF's -- is unconstrained too: only the two equivalent
+ *   widths are measured then, and W = C W(N, b) leaves C, N and b
+ *   degenerate (Hamann et al. 1997 ask for resolved lines).
  * Notes: the thresholds are common practice (a 3-sigma detection; a doublet
  *   ratio within ~10% of its thin value cannot separate C from N). */
 int dt_cover_flag(const dt_doublet *d, const dt_component *c, double logN_err, double cf,
-                  double err);
+                  double err, double lsf_fwhm_kms);
+
+/* The LSF FWHM [km/s] of a resolving power R (c/R) or, with R <= 0, the
+ * given FWHM; 0 when neither is positive. */
+double dt_cover_lsf_fwhm(double resolution, double fwhm_kms);
 
 /* "", "partial", "unconstrained" */
 const char *dt_cover_flag_name(int flag);

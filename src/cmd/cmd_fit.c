@@ -257,14 +257,16 @@ static void pos_cells(dt_csv *w, const dt_spectrum *s) {
 
 /* cf, cf_err, cf_flag of component k of a covered fit; empty without
  * covering (fr NULL or not covering) or without a component. */
-static void cover_cells(dt_csv *w, const dt_doublet *d, const dt_fit_result *fr, size_t k) {
+static void cover_cells(dt_csv *w, const dt_doublet *d, const dt_judgement *j,
+                        const dt_fit_result *fr, size_t k) {
   if (!fr || !fr->covering || k >= fr->ncomp) {
     for (int i = 0; i < NCOVERCOLUMNS; i++) dt_csv_empty(w);
     return;
   }
   dt_csv_fixed(w, fr->cf[k], 4);
   dt_csv_fixed(w, fr->cf_err[k], 4);
-  dt_csv_text(w, dt_cover_flag_name(dt_cover_flag(d, &fr->comp[k], fr->err[k].logN, fr->cf[k], fr->cf_err[k])));
+  dt_csv_text(w, dt_cover_flag_name(dt_cover_flag(d, &fr->comp[k], fr->err[k].logN, fr->cf[k], fr->cf_err[k],
+                                               dt_cover_lsf_fwhm(j->resolution, j->fwhm_kms))));
 }
 
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
@@ -277,7 +279,7 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   for (size_t k = 10; k + 1 + NPOSCOLUMNS + NCOVERCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
-  cover_cells(&r->csv, NULL, NULL, 0);
+  cover_cells(&r->csv, NULL, NULL, NULL, 0);
   dt_csv_end(&r->csv);
 }
 
@@ -376,7 +378,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     honest_reason(r, j, o, sr->reason, sk == 0 ? set->note : NULL, reason, sizeof reason);
     dt_csv_text(w, reason);
     pos_cells(w, s);
-    cover_cells(w, an->doublet, fr, k);
+    cover_cells(w, an->doublet, j, fr, k);
     dt_csv_end(w);
   }
 }

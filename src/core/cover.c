@@ -118,11 +118,19 @@ int dt_cover_eval(dt_cover_work *w, dt_model *mu, dt_model *mc, const dt_compone
   return DT_OK;
 }
 
+double dt_cover_lsf_fwhm(double resolution, double fwhm_kms) {
+  if (resolution > 0) return DT_C_KMS / resolution;
+  return fwhm_kms > 0 ? fwhm_kms : 0.0;
+}
+
 int dt_cover_flag(const dt_doublet *d, const dt_component *c, double logN_err, double cf,
-                  double err) {
+                  double err, double lsf_fwhm_kms) {
   if (!(isfinite(err) && err <= DT_CF_ERR_MAX && err <= DT_CF_REL_MAX * cf) || !isfinite(cf))
     return DT_CF_UNCONSTRAINED;
   if (logN_err > DT_CF_LOGN_ERR_MAX) return DT_CF_UNCONSTRAINED;
+  /* Doppler FWHM = 2 sqrt(ln 2) b */
+  if (c && lsf_fwhm_kms > 0 && !(2.0 * sqrt(log(2.0)) * c->b >= DT_CF_RESOLVED * lsf_fwhm_kms))
+    return DT_CF_UNCONSTRAINED;
   if (d && c) {
     double t0 = dt_cog_tau0(&d->line[0], c->logN, c->b);
     double t1 = dt_cog_tau0(&d->line[1], c->logN, c->b);

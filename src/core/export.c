@@ -148,7 +148,8 @@ static void cover_cells(const dt_judgement *s, size_t k, int fitted, cell *c,
   if (!fitted || !s->fit.covering) return;
   c[1].d = s->fit.cf_err[k - 1];
   const dt_doublet *d = atomic ? dt_atomic_find(atomic, s->doublet) : NULL;
-  c[2].s = dt_cover_flag_name(dt_cover_flag(d, &s->comp[k - 1], s->fit.err[k - 1].logN, cf, c[1].d));
+  c[2].s = dt_cover_flag_name(dt_cover_flag(d, &s->comp[k - 1], s->fit.err[k - 1].logN, cf, c[1].d,
+                                                 dt_cover_lsf_fwhm(s->resolution, s->fwhm_kms)));
 }
 
 /* The cells of one row: spectrum en, component k (0 = none). */

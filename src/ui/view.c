@@ -638,7 +638,8 @@ static const char *cover_text(const dt_insp *s, size_t k, int errs, char *buf, s
   char pm[48];
   dt_view_pm(s, pm, sizeof pm, j->cf[k], j->fit.cf_err[k], 2);
   const dt_doublet *d = s->ss->an_ok ? s->ss->out.doublet : NULL;
-  int flag = dt_cover_flag(d, &j->comp[k], j->fit.err[k].logN, j->cf[k], j->fit.cf_err[k]);
+  int flag = dt_cover_flag(d, &j->comp[k], j->fit.err[k].logN, j->cf[k], j->fit.cf_err[k],
+                           dt_cover_lsf_fwhm(j->resolution, j->fwhm_kms));
   snprintf(buf, size, "%s%s%s", pm, flag ? " " : "", dt_cover_flag_name(flag));
   return buf;
 }

@@ -236,14 +236,20 @@ static void test_closed_form(void) {
   dt_doublet d = nai();
   dt_component sat = {logN_for_tau(&d, 3.0, 10.0), 10.0, 0.0};
   dt_component thin = {logN_for_tau(&d, 0.2, 10.0), 10.0, 0.0};
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05) == DT_CF_PARTIAL, "flag: 0.6+-0.05 partial");
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.9, 0.05) == DT_CF_NONE, "flag: 0.9+-0.05 consistent with 1");
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.31) == DT_CF_UNCONSTRAINED, "flag: error > 0.3");
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.1, 0.06) == DT_CF_UNCONSTRAINED, "flag: error > half C_f");
-  CHECK(dt_cover_flag(&d, &sat, 1.5, 0.6, 0.05) == DT_CF_UNCONSTRAINED, "flag: log N error > 1 dex");
-  CHECK(dt_cover_flag(&d, &thin, 0.02, 0.6, 0.05) == DT_CF_UNCONSTRAINED, "flag: thin weaker line");
-  CHECK(dt_cover_flag(NULL, &thin, NAN, 0.6, 0.05) == DT_CF_PARTIAL, "flag: no doublet, no thin test");
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, INFINITY) == DT_CF_UNCONSTRAINED, "flag: infinite error");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 5.0) == DT_CF_PARTIAL, "flag: 0.6+-0.05 partial");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.9, 0.05, 5.0) == DT_CF_NONE, "flag: 0.9+-0.05 consistent with 1");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.31, 5.0) == DT_CF_UNCONSTRAINED, "flag: error > 0.3");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.1, 0.06, 5.0) == DT_CF_UNCONSTRAINED, "flag: error > half C_f");
+  CHECK(dt_cover_flag(&d, &sat, 1.5, 0.6, 0.05, 5.0) == DT_CF_UNCONSTRAINED, "flag: log N error > 1 dex");
+  CHECK(dt_cover_flag(&d, &thin, 0.02, 0.6, 0.05, 5.0) == DT_CF_UNCONSTRAINED, "flag: thin weaker line");
+  CHECK(dt_cover_flag(NULL, &thin, NAN, 0.6, 0.05, 5.0) == DT_CF_PARTIAL, "flag: no doublet, no thin test");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, INFINITY, 5.0) == DT_CF_UNCONSTRAINED, "flag: infinite error");
+  /* b = 10 km/s: Doppler FWHM 16.7 km/s, resolved by an LSF of 30 km/s, not by 40 */
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 30.0) == DT_CF_PARTIAL, "flag: resolved (FWHM 30)");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 40.0) == DT_CF_UNCONSTRAINED, "flag: unresolved (FWHM 40)");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 0.0) == DT_CF_PARTIAL, "flag: no LSF known, no test");
+  CHECK_CLOSE(dt_cover_lsf_fwhm(3000, 0), 99.930819, 1e-5, "LSF FWHM c/R");
+  CHECK_CLOSE(dt_cover_lsf_fwhm(0, 7.5), 7.5, 0, "LSF FWHM given");
   CHECK(strcmp(dt_cover_flag_name(DT_CF_PARTIAL), "partial") == 0 &&
             strcmp(dt_cover_flag_name(DT_CF_UNCONSTRAINED), "unconstrained") == 0,
         "flag names");
@@ -298,7 +304,8 @@ static fitcase fit_one(const dt_doublet *d, pix *p, dt_fit_workspace *fw, dt_cov
   out.cf_fit = res.cf[0];
   out.cf_err = res.cf_err[0];
   out.logN = res.comp[0].logN;
-  out.flag = dt_cover_flag(d, &res.comp[0], res.err[0].logN, res.cf[0], res.cf_err[0]);
+  out.flag = dt_cover_flag(d, &res.comp[0], res.err[0].logN, res.cf[0], res.cf_err[0],
+                           dt_cover_lsf_fwhm(60000, 0));
   free(truth); free(y); free(sg);
   return out;
 }
