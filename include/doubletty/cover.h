@@ -52,7 +52,7 @@ enum {
 #define DT_CF_REL_MAX 0.5      /* error relative to C_f */
 #define DT_CF_TAU_THIN 0.5     /* central optical depth of the weaker line */
 #define DT_CF_LOGN_ERR_MAX 1.0 /* error of log N [dex] */
-#define DT_CF_RESOLVED 0.5     /* Doppler FWHM / LSF FWHM of a resolved line */
+#define DT_CF_RESOLVED 1.0     /* Doppler FWHM / LSF FWHM of a resolved line */
 /* C_f a covered fit starts from when none is given. */
 #define DT_CF_START 0.9
 
@@ -94,7 +94,7 @@ int dt_cover_eval(dt_cover_work *w, dt_model *mu, dt_model *mc, const dt_compone
  *   line covering little looks like a weak one).  Else DT_CF_PARTIAL when
  *   1 - cf > DT_CF_NSIGMA err; else DT_CF_NONE.
  *   An unresolved line -- Doppler FWHM 2 sqrt(ln 2) b below DT_CF_RESOLVED
- *   times the LSF's -- is unconstrained too: only the two equivalent
+ *   times the LSF's (narrower than the LSF) -- is unconstrained too: only the two equivalent
  *   widths are measured then, and W = C W(N, b) leaves C, N and b
  *   degenerate (Hamann et al. 1997 ask for resolved lines).
  * Notes: the thresholds are common practice (a 3-sigma detection; a doublet

@@ -244,9 +244,9 @@ static void test_closed_form(void) {
   CHECK(dt_cover_flag(&d, &thin, 0.02, 0.6, 0.05, 5.0) == DT_CF_UNCONSTRAINED, "flag: thin weaker line");
   CHECK(dt_cover_flag(NULL, &thin, NAN, 0.6, 0.05, 5.0) == DT_CF_PARTIAL, "flag: no doublet, no thin test");
   CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, INFINITY, 5.0) == DT_CF_UNCONSTRAINED, "flag: infinite error");
-  /* b = 10 km/s: Doppler FWHM 16.7 km/s, resolved by an LSF of 30 km/s, not by 40 */
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 30.0) == DT_CF_PARTIAL, "flag: resolved (FWHM 30)");
-  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 40.0) == DT_CF_UNCONSTRAINED, "flag: unresolved (FWHM 40)");
+  /* b = 10 km/s: Doppler FWHM 16.7 km/s, resolved by an LSF of 15 km/s, not by 20 */
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 15.0) == DT_CF_PARTIAL, "flag: resolved (FWHM 15)");
+  CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 20.0) == DT_CF_UNCONSTRAINED, "flag: unresolved (FWHM 20)");
   CHECK(dt_cover_flag(&d, &sat, 0.02, 0.6, 0.05, 0.0) == DT_CF_PARTIAL, "flag: no LSF known, no test");
   CHECK_CLOSE(dt_cover_lsf_fwhm(3000, 0), 99.930819, 1e-5, "LSF FWHM c/R");
   CHECK_CLOSE(dt_cover_lsf_fwhm(0, 7.5), 7.5, 0, "LSF FWHM given");
