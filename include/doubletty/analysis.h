@@ -267,6 +267,16 @@ const double *dt_analysis_residual(const dt_analysis *a);
 const double *dt_analysis_na_profile(const dt_analysis *a, int line);
 const double *dt_analysis_na_profile_err(const dt_analysis *a, int line);
 
+/* Partial covering after a first pass (cover.h): j's components fitted
+ * again with a covering factor each -- j->covering is set (a
+ * DT_ACT_COVERING), the fit run from j's components, its log N intervals
+ * computed (dchi2 = 1) and the fit applied to j (a DT_ACT_FIT).  The first
+ * pass itself is best run without covering: its thin trial components
+ * would leave C_f and N degenerate.  DT_OK (also with no components: then
+ * only covering is set), DT_ENOCONV (the best fit reached is applied), or
+ * the analysis' error (j then has covering set and no fit).  e may be NULL. */
+int dt_analysis_cover_refit(dt_analysis *a, dt_judgement *j, dt_analysis_out *out, dt_err *e);
+
 /* Refit a recorded state with an analysis of its spectrum (analysis.h; its
  * options must be those the fit was made with -- e.g. joint_cont = the
  * recorded fit's ncont) and compare with dt_fit_check_refit (fit.h).  *agrees

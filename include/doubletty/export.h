@@ -7,7 +7,10 @@
  * the 1-sigma errors of the fit that gave them (empty when they were
  * changed by hand after the fit), the fit's chi2, and the measurements last
  * recorded (equivalent widths in mA as W_mA, apparent column densities,
- * upper limits).  A spectrum judged "not detected" is exported as its
+ * upper limits), and with partial covering (cover.h) each component's
+ * covering factor cf, its error cf_err and flag cf_flag (empty without; the
+ * flag's test for thin lines takes the lines from the built-in atomic
+ * table, and is left out for a doublet not in it).  A spectrum judged "not detected" is exported as its
  * limits, with no component rows.  The FITS table (cfitsio) carries TUNITn
  * for every physical column astropy parses strictly, TCOMMn for the log
  * column densities, and header keywords (ASCII only) for the program

@@ -25,6 +25,10 @@
  * info flags such parameters (at_bound).  A parameter the data do not
  * constrain at all (a singular covariance) gets an error of +infinity.
  *
+ * Partial covering (problem.covering, cover.h) adds one covering factor
+ * per component, 0 < C_f < 1 by the logistic map, its error from the
+ * covariance in C_f itself.
+ *
  * BIC = chi2 + k ln n (Schwarz 1978, Ann. Stat. 6, 461) with k the number of
  * fitted parameters (components and joint continuum) and n the number of
  * pixels used.
@@ -42,7 +46,8 @@
 
 /* Parameters held at their initial values, per component (a judgement's
  * frozen[] and a problem's frozen use these bits). */
-enum { DT_FREEZE_N = 1, DT_FREEZE_B = 2, DT_FREEZE_V = 4 };
+enum { DT_FREEZE_N = 1, DT_FREEZE_B = 2, DT_FREEZE_V = 4,
+       DT_FREEZE_CF = 8 /* the covering factor (fit problems only) */ };
 
 typedef struct dt_fit_result {
   int status;                      /* DT_OK, DT_ENOCONV, DT_EMASKED, ... */
@@ -58,6 +63,13 @@ typedef struct dt_fit_result {
   double chi2_red;
   double bic;                      /* chi2 + k ln n */
   size_t npix;                     /* pixels used */
+  /* Partial covering (cover.h): covering = 1 when each component's
+   * covering factor was fitted; cf[k] in (0, 1] (1 without covering) and
+   * its 1-sigma error, taken from the covariance in C_f itself (0 without
+   * covering, +infinity when the data do not constrain it). */
+  int covering;
+  double cf[DT_MAX_COMP];
+  double cf_err[DT_MAX_COMP];
 } dt_fit_result;
 
 /* Physical ranges of the bounding transforms. */
@@ -98,6 +110,15 @@ typedef struct dt_fit_problem {
                                     next to an optimum on purpose */
   double time_limit;             /* seconds (monotonic clock); 0: DT_FIT_TIME_LIMIT;
                                     < 0: none (the iteration limit still holds) */
+  /* Partial covering (cover.h).  covering = 1: every component has its own
+   * covering factor C_f, fitted on (0, 1) through a logistic map, starting
+   * from cf[k] (NULL, or a value outside (0, 1): DT_CF_START); held at
+   * cf[k] with the DT_FREEZE_CF bit (NULL or outside (0, 1]: 1).  cover_model: a second model on the same pixels
+   * (and with the same settings) as model, with room for one component;
+   * required with covering. */
+  int covering;
+  const double *cf;
+  dt_model *cover_model;
 } dt_fit_problem;
 
 /* Extra diagnostics of the last run (optional, dt_fit_last_info). */

@@ -89,6 +89,10 @@ typedef struct dt_judgement {
   dt_component comp[DT_MAX_COMP];
   unsigned char frozen[DT_MAX_COMP];   /* DT_FREEZE_* bits */
   int tie_b;                  /* 1: all components share one b */
+  int covering;               /* 1: each component has a covering factor C_f
+                                 (cover.h), fitted */
+  double cf[DT_MAX_COMP];     /* C_f per component in (0, 1]; 0: none yet
+                                 (a fit starts from DT_CF_START) */
   dt_verdict verdict;         /* the target system's verdict */
   size_t nsys;                /* the systems, [0] the target; 0: the defaults
                                  for vsys (systems.h) */
@@ -129,6 +133,7 @@ typedef enum dt_action_kind {
   DT_ACT_BTIE,           /* ival: dt_btie */
   DT_ACT_JOINT_FIT,      /* fit and joint: a joint fit of the main and the
                             linked species; components take fit's values */
+  DT_ACT_COVERING,       /* ival: 0/1, partial covering off/on */
   DT_ACT__COUNT
 } dt_action_kind;
 

@@ -204,6 +204,9 @@ int dt_session_select(dt_session *ss, int step);       /* +1 next, -1 previous *
 int dt_session_nudge(dt_session *ss, dt_session_param p, double d);
 int dt_session_hold(dt_session *ss, dt_session_param p);  /* hold or release */
 int dt_session_tie(dt_session *ss);
+/* Partial covering (cover.h) on or off: a covering factor per component,
+ * fitted (with auto_refit) from then on. */
+int dt_session_covering(dt_session *ss);
 int dt_session_order(dt_session *ss, int step);
 int dt_session_window_add(dt_session *ss, double lo, double hi);  /* [Angstrom] */
 int dt_session_window_remove(dt_session *ss, double lambda);      /* the one holding lambda */

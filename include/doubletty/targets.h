@@ -3,7 +3,7 @@
  *   # comment
  *   path[ext] [row=N] [vsys=KMS] [R=R | fwhm=KMS] [doublet=NAME] [name=TEXT]
  *             [window=VLO:VHI] [target-window=VLO:VHI] [system=NAME:VLO:VHI]...
- *             [air] [ra=RA dec=DEC] [frame=NAME] [hfs=0|1]
+ *             [air] [ra=RA dec=DEC] [frame=NAME] [hfs=0|1] [cover=0|1]
  *
  * Fields are separated by blanks; '#' starts a comment anywhere on a line
  * (outside quotes); blank lines are ignored.  A relative path is taken
@@ -15,7 +15,9 @@
  * position, ICRS, in degrees or sexagesimal (hours for ra), over the
  * file's; frame= the velocity frame of the file's wavelengths
  * (frames.h), over what the file says; hfs=1 models the lines with
- * hyperfine structure (hyperfine.h) as their components.
+ * hyperfine structure (hyperfine.h) as their components; cover=1 fits a covering factor per
+ * component (partial covering, cover.h), cover=0 (the default) does not
+ * (a command's option may turn it on for every line).
  *
  * Quoting: a path or value holding blanks, '#', '"' or '\' is written
  * between double quotes, inside which \" stands for '"' and \\ for '\'
@@ -70,6 +72,8 @@ typedef struct dt_target_spec {
                                      dt_read_opts.in_frame */
   int hyperfine;                  /* hfs=1: lines split into their hyperfine
                                      components (analysis.h, opts.hyperfine) */
+  int has_covering;               /* cover= given: */
+  int covering;                   /*   1 partial covering on, 0 off */
 } dt_target_spec;
 
 /* The resolving power R or the FWHM [km/s] the target gives doublet

@@ -38,6 +38,7 @@
 #include "doubletty/analysis.h"
 #include "doubletty/atomic.h"
 #include "doubletty/cog.h"
+#include "doubletty/cover.h"
 #include "doubletty/csv.h"
 #include "doubletty/elements.h"
 #include "doubletty/export.h"
@@ -59,13 +60,15 @@ static const char *const COLUMNS[] = {
     "chi2_red", "dof", "bic", "W_mA", "W_err_mA", "W_sig", "logN_aod", "logN_aod_err",
     "W_weak_mA", "W_weak_err_mA", "logN_aod_weak", "logN_aod_weak_err", "saturated",
     "masked_frac", "W_limit_mA", "logN_limit", "suggested", "reason", "ra_deg", "dec_deg", "frame",
-    "lsf_fwhm_kms", "lsf_source", "T_K", "T_err_K", "b_turb_kms", "b_turb_err_kms"};
+    "lsf_fwhm_kms", "lsf_source", "T_K", "T_err_K", "b_turb_kms", "b_turb_err_kms", "cf",
+    "cf_err", "cf_flag"};
 /* after the reason: position and velocity frame (pos_cells), the
- * line-spread function (lsf_cells), then the columns of joint fits
- * (tail_cells) */
+ * line-spread function (lsf_cells), the columns of joint fits
+ * (tail_cells), then the covering factor (cover_cells) */
 #define NPOSCOLUMNS 3
 #define NLSFCOLUMNS 2
 #define NTAILCOLUMNS 4
+#define NCOVERCOLUMNS 3
 #define NCOLUMNS (sizeof COLUMNS / sizeof COLUMNS[0])
 
 /* Below this resolving power the line-spread function (c/R > 3000 km/s) is
@@ -115,6 +118,7 @@ typedef struct {
   int have_mw;                  /* --milky-way given */
   int hyperfine;                /* --hyperfine: every target's lines split */
   const char *hfs_file;         /* --hyperfine-table FILE */
+  int covering;                 /* --covering: a covering factor per component */
 } config;
 
 typedef struct {
@@ -168,6 +172,8 @@ static void usage(FILE *f) {
           "  --continuum-order K     Legendre order of the continuum; -1 = fixed at 1\n"
           "  --joint-continuum K     also fit K multiplicative Legendre coefficients\n"
           "                          of the continuum together with the components\n"
+          "  --covering              fit a covering factor C_f per component (partial\n"
+          "                          covering; a list line may say cover=1)\n"
           "  --limit-sigma S         significance of upper limits (default 3)\n"
           "  --limit-b KMS           Doppler parameter of column-density limits\n"
           "                          (full curve of growth; default 2)\n"
@@ -306,6 +312,20 @@ static void lsf_cells(dt_csv *w, const run *r, int ok) {
   dt_csv_text(w, ok && r->lsf_label ? r->lsf_label : "");
 }
 
+/* cf, cf_err, cf_flag of component k of a covered fit; empty without
+ * covering (fr NULL or not covering) or without a component. */
+static void cover_cells(dt_csv *w, const dt_doublet *d, const dt_judgement *j,
+                        const dt_fit_result *fr, size_t k) {
+  if (!fr || !fr->covering || k >= fr->ncomp) {
+    for (int i = 0; i < NCOVERCOLUMNS; i++) dt_csv_empty(w);
+    return;
+  }
+  dt_csv_fixed(w, fr->cf[k], 4);
+  dt_csv_fixed(w, fr->cf_err[k], 4);
+  dt_csv_text(w, dt_cover_flag_name(dt_cover_flag(d, &fr->comp[k], fr->err[k].logN, fr->cf[k], fr->cf_err[k],
+                                               dt_cover_lsf_fwhm(j->resolution, j->fwhm_kms))));
+}
+
 static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
                          const char *doublet, double vsys, const dt_err *e) {
   char msg[sizeof e->where + sizeof e->what + 4];
@@ -313,11 +333,14 @@ static void write_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, 
   else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
   row_head(r, t, s, row, doublet, "", vsys, "failed");
   /* ncomp .. suggested: empty */
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS + NCOVERCOLUMNS < NCOLUMNS;
+       k++)
+    dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
   lsf_cells(&r->csv, r, 0);
   tail_cells(&r->csv, NULL, 0);
+  cover_cells(&r->csv, NULL, NULL, NULL, 0);
   dt_csv_end(&r->csv);
 }
 
@@ -418,6 +441,7 @@ static void write_result(run *r, const dt_target_spec *t, const dt_spectrum *s, 
     pos_cells(w, s);
     lsf_cells(w, r, 1);
     tail_cells(w, NULL, 0);
+    cover_cells(w, an->doublet, j, fr, k);
     dt_csv_end(w);
   }
 }
@@ -575,6 +599,12 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     fo.nseed = c->nseed;
     for (size_t k = 0; k < c->nseed; k++) fo.seed_v[k] = c->seed_v[k];
     st = dt_autofit_run(an, &j, &fo, &o, &e);
+    if ((st == DT_OK || st == DT_ENOCONV) &&
+        (c->covering || (t->has_covering && t->covering))) {
+      /* partial covering: the first pass's components fitted again */
+      int cs = dt_analysis_cover_refit(an, &j, &o.an, &e);
+      if (cs != DT_OK) st = cs;
+    }
   }
   long shown_row = s ? s->row : row;
   if (an) r->lsf_fwhm = dt_analysis_lsf_fwhm(an);
@@ -698,6 +728,7 @@ static void write_joint_species(run *r, const dt_target_spec *t, const dt_spectr
     pos_cells(w, s);
     lsf_cells(w, r, 1);
     tail_cells(w, has ? fr : NULL, k);
+    cover_cells(w, NULL, NULL, NULL, 0);
     dt_csv_end(w);
   }
 }
@@ -710,11 +741,14 @@ static void write_joint_missing(run *r, const dt_target_spec *t, const dt_spectr
   else snprintf(msg, sizeof msg, "left out of the joint fit: %s", why->what);
   row_head(r, t, s, row, name, "", vsys,
            why->code == DT_ERANGE || why->code == DT_EMASKED ? "not-covered" : "failed");
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS < NCOLUMNS; k++) dt_csv_empty(&r->csv);
+  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS + NCOVERCOLUMNS < NCOLUMNS;
+       k++)
+    dt_csv_empty(&r->csv);
   dt_csv_text(&r->csv, msg);
   pos_cells(&r->csv, s);
   lsf_cells(&r->csv, r, 0);
   tail_cells(&r->csv, NULL, 0);
+  cover_cells(&r->csv, NULL, NULL, NULL, 0);
   dt_csv_end(&r->csv);
 }
 
@@ -1185,6 +1219,7 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_num_format(buf, sizeof buf, c->limit_b);
   dt_csv_comment(w, "limit-b", buf);
   dt_csv_comment(w, "intervals", c->cov_only ? "covariance" : "profile");
+  dt_csv_comment(w, "covering", c->covering ? "yes" : "");
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
   if (c->hyperfine) /* only when asked for: without it the header is as before */
     dt_csv_comment(w, "hyperfine", c->hfs_file ? c->hfs_file : "yes");
@@ -1227,7 +1262,8 @@ enum {
   O_LIMSIG, O_ATOMIC, O_ROW, O_WCOL, O_FCOL, O_ECOL, O_MCOL, O_LIST, O_FROM, O_SHARD,
   O_FORCE, O_AIR, O_FRAME, O_INFRAME, O_SITE, O_TWIN, O_SYSTEM, O_MW, O_LIMB, O_JOBS, O_INTERVALS,
   O_HFS, O_HFSTAB,
-  O_JOINTFIT, O_BTIE
+  O_JOINTFIT, O_BTIE,
+  O_COVER
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -1267,6 +1303,7 @@ static const struct option LONGOPTS[] = {
     {"hyperfine-table", required_argument, NULL, O_HFSTAB},
     {"joint", no_argument, NULL, O_JOINTFIT},
     {"b-tie", required_argument, NULL, O_BTIE},
+    {"covering", no_argument, NULL, O_COVER},
     {NULL, 0, NULL, 0}};
 
 /* A positive finite option number into *out; 1 after a message otherwise. */
@@ -1348,6 +1385,7 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     if (ranged("--joint-continuum", v, 0, DT_MAX_CONT, &l)) return 1;
     c->joint_cont = (int)l;
     return 0;
+  case O_COVER: c->covering = 1; return 0;
   case O_LIMSIG: return positive("--limit-sigma", v, "the significance", &c->limit_nsigma);
   case O_LIMB: return positive("--limit-b", v, "the Doppler parameter", &c->limit_b);
   case O_ATOMIC: c->atomic_file = v; return 0;

@@ -55,6 +55,8 @@ static void usage(FILE *f) {
           "  --hyperfine          model Na I and K I lines as their hyperfine components\n"
           "                       (a list line may say hfs=1)\n"
           "  --hyperfine-table FILE  extra hyperfine table (adds or replaces lines)\n"
+          "  --covering           partial covering on a first look: a covering factor\n"
+          "                       per component (a list line's cover=0|1 says otherwise)\n"
           CLI_FRAME_HELP
           "  --hi CUBE            show a 21-cm cube's spectrum at each sightline (a panel\n"
           "                       on the velocity axis) and N(HI) in the table\n"
@@ -73,7 +75,8 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_RESTAB, O_VSYS,
   O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
-  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD, O_HFS, O_HFSTAB
+  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD, O_HFS, O_HFSTAB,
+  O_COVER
 };
 static const struct option LONGOPTS[] = {
     {"help", no_argument, NULL, 'h'},
@@ -107,6 +110,7 @@ static const struct option LONGOPTS[] = {
     {"size", required_argument, NULL, O_SIZE},
     {"bench", no_argument, NULL, O_BENCH},
     {"no-look-ahead", no_argument, NULL, O_NOAHEAD},
+    {"covering", no_argument, NULL, O_COVER},
     {NULL, 0, NULL, 0}};
 
 /* What the command line asks for, besides the inspector's own options. */
@@ -211,6 +215,7 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
   case O_SIZE: return parse_size(v, o);
   case O_BENCH: o->bench = 1; return 0;
   case O_NOAHEAD: o->no_look_ahead = 1; return 0;
+  case O_COVER: o->covering = 1; return 0;
   }
   return 1;
 }

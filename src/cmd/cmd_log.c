@@ -132,6 +132,9 @@ static void describe(const dt_journal_record *r, char *buf, size_t n) {
     else snprintf(buf, n, "component %d: all free", a->index + 1);
     break;
   case DT_ACT_TIE_B: snprintf(buf, n, "%s", a->ival ? "b tied across components" : "b untied"); break;
+  case DT_ACT_COVERING:
+    snprintf(buf, n, "%s", a->ival ? "partial covering on" : "partial covering off");
+    break;
   case DT_ACT_CONT_ORDER:
     if (a->ival < 0) snprintf(buf, n, "continuum fixed at 1");
     else snprintf(buf, n, "continuum order %d", a->ival);

@@ -25,6 +25,7 @@
 #include <string.h>
 
 #include "doubletty/cog.h"
+#include "doubletty/cover.h"
 #include "doubletty/continuum.h"
 #include "doubletty/legendre.h"
 #include "doubletty/lsf.h"
@@ -70,6 +71,14 @@ struct dt_analysis {
   int cont_status, cont_order_used;
   dt_err cont_e;
   dt_model *m;
+  /* partial covering (cover.h): a second model on the same pixels for one
+   * component at a time, made when a covered judgement first needs it;
+   * the covering factors of the last run */
+  dt_model *mc;
+  dt_cover_work *cvw;
+  size_t cvw_cap;
+  int covering;
+  double cf[DT_MAX_COMP];
   dt_fit_workspace *fw;
   size_t fw_cap;
   dt_cont_work *cw;
@@ -150,6 +159,8 @@ void dt_analysis_free(dt_analysis *a) {
   free(a->rcont);
   free(a->rerr);
   dt_model_free(a->m);
+  dt_model_free(a->mc);
+  dt_cover_free(a->cvw);
   dt_model_free(a->sm[0]);
   dt_model_free(a->sm[1]);
   dt_fit_free(a->fw);
@@ -288,6 +299,35 @@ static int select_pixels(dt_analysis *a, const dt_judgement *j, const dt_doublet
   return DT_OK;
 }
 
+/* The second model of partial covering (and the buffers to combine the
+ * components), on the pixels and settings of a->m; kept with it. */
+static int ensure_cover_model(dt_analysis *a, const dt_doublet *d, dt_err *e) {
+  if (!a->cvw || a->cvw_cap < a->n) {
+    dt_cover_free(a->cvw);
+    a->cvw = dt_cover_alloc(a->n, DT_MAX_COMP);
+    a->cvw_cap = a->n;
+    if (!a->cvw) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  }
+  if (a->mc) return DT_OK;
+  dt_model_config cfg;
+  memset(&cfg, 0, sizeof cfg);
+  cfg.doublet = d;
+  cfg.vsys = a->mkey.vsys;
+  cfg.resolution = a->mkey.resolution;
+  cfg.fwhm_kms = a->mkey.fwhm;
+  cfg.oversample = a->opts.oversample;
+  cfg.tau_cut = a->opts.tau_cut;
+  dt_err me;
+  dt_err_clear(&me);
+  a->mc = dt_model_alloc(a->s->wave + a->i0, a->n, &cfg, 1, &me);
+  if (!a->mc) {
+    if (me.code == DT_OK) dt_err_set(&me, DT_ENOMEM, NULL, "out of memory");
+    if (e) *e = me;
+    return me.code;
+  }
+  return DT_OK;
+}
+
 /* prepare, stage 3: the model (and the fit workspace), rebuilt only when
  * its settings change. */
 static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet *d, dt_err *e) {
@@ -312,8 +352,11 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
     if (ic > i0 + n - 1) ic = i0 + n - 1;
     a->fwhm_kms = a->s->lsf_fwhm_kms[ic];
   }
-  if (a->have_model && memcmp(&mk, &a->mkey, sizeof mk) == 0) return DT_OK;
+  if (a->have_model && memcmp(&mk, &a->mkey, sizeof mk) == 0)
+    return j->covering ? ensure_cover_model(a, d, e) : DT_OK;
   dt_model_free(a->m);
+  dt_model_free(a->mc);
+  a->mc = NULL;
   a->have_model = 0;
   dt_model_config cfg;
   memset(&cfg, 0, sizeof cfg);
@@ -341,7 +384,7 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   }
   a->mkey = mk;
   a->have_model = 1;
-  return DT_OK;
+  return j->covering ? ensure_cover_model(a, d, e) : DT_OK;
 }
 
 /* The continuum's region r0..r1-1: the selection i0..i1-1, widened to take
@@ -492,6 +535,17 @@ static void fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *
   p->vhi = j->vhi;
   p->max_iter = a->opts.max_iter;
   p->time_limit = a->opts.time_limit;
+  p->covering = j->covering;
+  p->cf = j->cf;
+  p->cover_model = j->covering ? a->mc : NULL;
+}
+
+/* The covering factors the measurements and the component models of the
+ * next finish() use: the fit's, or the judgement's (0: none yet, 1). */
+static void keep_cover(dt_analysis *a, int covering, const double *cf, size_t ncomp) {
+  a->covering = covering;
+  for (size_t k = 0; k < ncomp; k++)
+    a->cf[k] = covering && cf[k] > 0.0 && cf[k] <= 1.0 ? cf[k] : 1.0;
 }
 
 /* The joint polynomial per pixel (1 without), continuum = fixed * poly. */
@@ -599,9 +653,14 @@ static int single_line_models(dt_analysis *a, double lo, double hi) {
     a->sm_cap = a->ncomp;
     a->have_sm = 1;
   }
-  for (int l = 0; l < 2; l++)
-    if (dt_model_eval(a->sm[l], a->comp, a->ncomp, a->ltr[l], NULL, 0) != DT_OK)
-      return DT_EINVAL;
+  for (int l = 0; l < 2; l++) {
+    /* covered components one by one through the same model (cover.h) */
+    int st = a->covering && a->cvw
+                 ? dt_cover_eval(a->cvw, NULL, a->sm[l], a->comp, a->cf, NULL, a->ncomp,
+                                 a->ltr[l], NULL, 0, NULL)
+                 : dt_model_eval(a->sm[l], a->comp, a->ncomp, a->ltr[l], NULL, 0);
+    if (st != DT_OK) return DT_EINVAL;
+  }
   a->have_ltr = 1;
   a->ltr_exact = 1;
   return DT_OK;
@@ -897,6 +956,7 @@ static size_t count_free(const dt_judgement *j, size_t joint) {
     unsigned fr = j->frozen[c];
     k += !(fr & DT_FREEZE_N) + !(fr & DT_FREEZE_V);
     if (j->tie_b ? c == 0 && !(j->frozen[0] & DT_FREEZE_B) : !(fr & DT_FREEZE_B)) k++;
+    k += j->covering != 0;
   }
   return k;
 }
@@ -921,8 +981,10 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   double chi2;
   dt_fit_problem q = p;
   q.frozen = NULL;
+  if (out->fit.covering) q.cf = out->fit.cf;
   dt_fit_chi2(a->fw, &q, out->fit.comp, out->fit.cont_coef, a->model, &chi2, &npix);
   set_continuum(a, out->fit.cont_coef, out->fit.ncont);
+  keep_cover(a, out->fit.covering, out->fit.cf, out->fit.ncomp);
   finish(a, j, out->fit.comp, out->fit.ncomp, out);
   /* a run (a keystroke of the inspector) spends little on them; the
    * first pass and explicit calls what they need */
@@ -1036,9 +1098,16 @@ int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
   r->dof = (long)npix - (long)k;
   r->chi2_red = r->dof > 0 ? chi2 / (double)r->dof : NAN;
   r->bic = chi2 + (double)k * log((double)npix);
+  r->covering = j->covering;
+  for (size_t c = 0; c < j->ncomp; c++) {
+    r->cf[c] = j->covering && j->cf[c] > 0.0 ? j->cf[c] : 1.0;
+    if (j->covering && j->has_fit && j->fit.covering && j->fit.ncomp == j->ncomp)
+      r->cf_err[c] = j->fit.cf_err[c];
+  }
   out->fit_status = DT_OK;
   out->fitted = 0;
   set_continuum(a, r->cont_coef, p.ncont);
+  keep_cover(a, j->covering, r->cf, j->ncomp);
   finish(a, j, j->comp, j->ncomp, out);
   return DT_OK;
 }
@@ -1091,10 +1160,33 @@ const double *dt_analysis_component_model(dt_analysis *a, size_t k) {
   double *out = a->compmod + k * a->cap;
   if (!a->compmod_ok[k]) {
     if (dt_model_eval(a->m, &a->comp[k], 1, a->tmp, NULL, 0) != DT_OK) return NULL;
-    for (size_t i = 0; i < a->n; i++) out[i] = a->cont[i] * a->tmp[i];
+    /* a covering factor C: 1 - C + C F (exact for one component, cover.h) */
+    double C = a->covering ? a->cf[k] : 1.0;
+    for (size_t i = 0; i < a->n; i++) out[i] = a->cont[i] * (1.0 - C + C * a->tmp[i]);
     a->compmod_ok[k] = 1;
   }
   return out;
+}
+
+/* ---------- partial covering after a first pass ---------- */
+
+int dt_analysis_cover_refit(dt_analysis *a, dt_judgement *j, dt_analysis_out *out, dt_err *e) {
+  dt_action *act = malloc(sizeof *act);
+  if (!act) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  dt_action_init(act, DT_ACT_COVERING);
+  act->ival = 1;
+  int st = dt_judgement_apply(j, act);
+  if (st == DT_OK && j->ncomp > 0) {
+    st = dt_analysis_run(a, j, out, e);
+    if (st == DT_OK) dt_analysis_intervals(a, j, out, 1.0);
+    if (st == DT_OK || st == DT_ENOCONV) {
+      dt_action_init(act, DT_ACT_FIT);
+      act->fit = out->fit;
+      dt_judgement_apply(j, act);
+    }
+  }
+  free(act);
+  return st;
 }
 
 /* ---------- does a refit reproduce a recorded fit ---------- */

@@ -7,6 +7,8 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "doubletty/atomic.h"
+#include "doubletty/cover.h"
 #include "doubletty/csv.h"
 #include "doubletty/hicube.h"
 #include "doubletty/num.h"
@@ -59,6 +61,9 @@ static const column COLS[] = {
     {"joint_species", C_STR, ""}, {"b_tie", C_STR, ""},
     {"T_K", C_DBL, "K"},          {"T_err_K", C_DBL, "K"},
     {"b_turb_kms", C_DBL, "km s-1"}, {"b_turb_err_kms", C_DBL, "km s-1"},
+    /* partial covering (cover.h): empty without */
+    {"cf", C_DBL, ""},            {"cf_err", C_DBL, ""},
+    {"cf_flag", C_STR, ""},
 };
 #define NCOL (sizeof COLS / sizeof COLS[0])
 
@@ -141,9 +146,28 @@ static void spectrum_rows(const dt_journal_entry *en, spec_rows *r) {
   }
 }
 
+/* cf, cf_err, cf_flag of component k (1-based; 0 none) of a covered
+ * state; the error and flag only while the components are the fit's
+ * (fitted).  Empty (NaN, "") without covering. */
+static void cover_cells(const dt_judgement *s, size_t k, int fitted, cell *c,
+                        const dt_atomic *atomic) {
+  c[0].d = c[1].d = NAN;
+  c[2].s = "";
+  if (!s->covering || k == 0 || k > s->ncomp) return;
+  double cf = s->cf[k - 1] > 0.0 ? s->cf[k - 1] : 1.0;
+  c[0].d = cf;
+  if (!fitted || !s->fit.covering) return;
+  c[1].d = s->fit.cf_err[k - 1];
+  const dt_doublet *d = atomic ? dt_atomic_find(atomic, s->doublet) : NULL;
+  c[2].s = dt_cover_flag_name(dt_cover_flag(d, &s->comp[k - 1], s->fit.err[k - 1].logN, cf, c[1].d,
+                                                 dt_cover_lsf_fwhm(s->resolution, s->fwhm_kms)));
+}
+
 /* The cells of one row: spectrum en, component k (0 = none). */
 /* The text a row's cells point to (one per writer, reused row after row). */
 typedef struct row_text {
+  const dt_atomic *atomic;      /* the built-in table: the doublet's lines
+                                   for the covering flag (NULL: not thin-tested) */
   char flags[64], frozen[4], status[32], species[80];
   char file[DT_TARGET_PATH_MAX], stem[DT_TARGET_PATH_MAX];
 } row_text;
@@ -252,6 +276,13 @@ static void fill_row(const dt_journal_entry *en, const spec_rows *r, size_t q, c
   c[i++].d = dec;
   c[i++].s = en->target.frame;
   fill_joint(s, k, rt, c + i);
+  i += 6;
+  if (sp == 0) { /* covering is the main doublet's */
+    cover_cells(s, k, err != NULL, c + i, rt->atomic);
+  } else {
+    c[i].d = c[i + 1].d = NAN;
+    c[i + 2].s = "";
+  }
 }
 
 /* ---- CSV ---- */
@@ -298,7 +329,18 @@ int dt_export_csv_hi(FILE *f, const dt_journal *j, const dt_hicube *cube) {
   return write_csv(f, j, cube);
 }
 
+static int write_csv_rows(FILE *f, const dt_journal *j, const dt_hicube *cube,
+                          const dt_atomic *atomic);
 static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube) {
+  dt_atomic *at = NULL;
+  dt_atomic_load_builtin(&at, NULL);
+  int st = write_csv_rows(f, j, cube, at);
+  dt_atomic_free(at);
+  return st;
+}
+
+static int write_csv_rows(FILE *f, const dt_journal *j, const dt_hicube *cube,
+                          const dt_atomic *atomic) {
   dt_csv w;
   dt_csv_init(&w, f);
   for (size_t c = 0; c < NCOL; c++) dt_csv_text(&w, COLS[c].name);
@@ -306,6 +348,7 @@ static int write_csv(FILE *f, const dt_journal *j, const dt_hicube *cube) {
   dt_csv_end(&w);
   cell cells[NCOL];
   row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
+  rt->atomic = atomic;
   spec_rows rows;
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);
@@ -370,13 +413,27 @@ int dt_export_fits_hi(const char *path, const dt_journal *j, const char *session
 
 #define NHI (sizeof HI_COLS / sizeof HI_COLS[0])
 
+static int write_fits_rows(const char *path, const dt_journal *j, const char *session,
+                           const char *session_sha, const char *version, const dt_hicube *cube,
+                           const dt_atomic *atomic, dt_err *e);
 static int write_fits(const char *path, const dt_journal *j, const char *session,
                       const char *session_sha, const char *version, const dt_hicube *cube, dt_err *e) {
+  dt_atomic *at = NULL;
+  dt_atomic_load_builtin(&at, NULL);
+  int st = write_fits_rows(path, j, session, session_sha, version, cube, at, e);
+  dt_atomic_free(at);
+  return st;
+}
+
+static int write_fits_rows(const char *path, const dt_journal *j, const char *session,
+                           const char *session_sha, const char *version, const dt_hicube *cube,
+                           const dt_atomic *atomic, dt_err *e) {
   /* string widths: the longest value of each string column */
   long width[NCOL];
   for (size_t c = 0; c < NCOL; c++) width[c] = 1;
   cell cells[NCOL];
   row_text rt_buf, *rt = &rt_buf; /* about 8 kB, on the stack */
+  rt->atomic = atomic;
   spec_rows rows;
   for (size_t i = 0; i < dt_journal_count(j); i++) {
     const dt_journal_entry *en = dt_journal_entry_at(j, i);

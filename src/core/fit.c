@@ -31,8 +31,17 @@
  * Memory: the workspace holds every per-pixel buffer at its maximum size.
  * GSL's own solver workspace depends on the exact (pixels, parameters)
  * pair, so a few of those are cached by size and created only when a new
- * size is seen -- never inside the iteration. */
+ * size is seen -- never inside the iteration.
+ *
+ * Partial covering (cover.h): the model flux comes from dt_cover_eval,
+ * which also gives dF/dC_k; each C_k is one more parameter (P_F) behind a
+ * logistic map onto (0, 1).  Its error is read from the covariance with
+ * the C_f columns of the Jacobian in C itself (the map's slope divided
+ * out), so that a C_f at 1 keeps the curvature of chi2 in C as its error
+ * rather than the vanishing slope of the map.  A C_f near 1 is the usual
+ * case, not a suspicious one: it triggers no second run and no bound flag. */
 #include "doubletty/fit.h"
+#include "doubletty/cover.h"
 #include "doubletty/legendre.h"
 
 #include <gsl/gsl_blas.h>
@@ -48,7 +57,7 @@
 #include "gsl_quiet.h"
 
 #define NCACHE 6
-#define MAXPAR (3 * DT_MAX_COMP + DT_MAX_CONT)
+#define MAXPAR (4 * DT_MAX_COMP + DT_MAX_CONT)
 #define BAD_RESIDUAL 1e100   /* stands in for a non-finite residual: the
                                 trial step is then rejected by the solver */
 #define XTOL 1e-8            /* relative step size test */
@@ -69,7 +78,7 @@
 #define SUSPECT_CHI2 2.0     /* or with a chi2 this many sigma too high, is
                                 checked by a second, accelerated run */
 
-enum { P_N, P_B, P_V, P_C };
+enum { P_N, P_B, P_V, P_C, P_F };
 
 typedef struct solver_slot {
   size_t n, p;
@@ -99,6 +108,11 @@ struct dt_fit_workspace {
   dt_component init[DT_MAX_COMP];
   dt_component cur[DT_MAX_COMP];
   double ccur[DT_MAX_CONT];
+  /* partial covering: allocated at the first covered problem */
+  int covering;
+  double cfinit[DT_MAX_COMP], cfcur[DT_MAX_COMP];
+  double *cjac;                /* dF/dC_k over all model pixels */
+  dt_cover_work *cw;
   solver_slot slot[NCACHE];
   unsigned long tick;
   dt_fit_info info;
@@ -146,6 +160,8 @@ void dt_fit_free(dt_fit_workspace *w) {
   free(w->leg);
   free(w->mflux);
   free(w->mjac);
+  free(w->cjac);
+  dt_cover_free(w->cw);
   free(w);
 }
 
@@ -185,12 +201,17 @@ static void set_params(dt_fit_workspace *w, const double *x) {
     for (size_t k = 1; k < w->ncomp; k++) w->cur[k].b = w->init[0].b;
   for (size_t j = 0; j < w->ncont; j++)
     w->ccur[j] = w->cinit[j];
+  memcpy(w->cfcur, w->cfinit, w->ncomp * sizeof w->cfcur[0]);
   if (!x) return;
   for (size_t i = 0; i < w->npar; i++) {
     int k = w->pcomp[i];
     if (w->ptype[i] == P_C) {
       w->ccur[k] = x[i];
       w->dvdu[i] = 1.0;
+      continue;
+    }
+    if (w->ptype[i] == P_F) {
+      w->cfcur[k] = to_external(x[i], w->plo[i], w->phi[i], &w->dvdu[i]);
       continue;
     }
     double val = to_external(x[i], w->plo[i], w->phi[i], &w->dvdu[i]);
@@ -220,6 +241,10 @@ static int eval_model(dt_fit_workspace *w, int with_jac) {
     for (size_t i = 0; i < n; i++) w->mflux[i] = 1.0;
     return DT_OK;
   }
+  if (w->covering)
+    return dt_cover_eval(w->cw, NULL, w->prob->cover_model, w->cur, w->cfcur, NULL, w->ncomp,
+                         w->mflux, with_jac ? w->mjac : NULL, 3 * w->ncomp,
+                         with_jac ? w->cjac : NULL);
   return dt_model_eval(w->prob->model, w->cur, w->ncomp, w->mflux,
                        with_jac ? w->mjac : NULL, 3 * w->ncomp);
 }
@@ -277,6 +302,9 @@ static int resid_df(const gsl_vector *x, void *params, gsl_matrix *J) {
         break;
       case P_V:
         d = scale * poly * jr[3 * k + 2] * w->dvdu[q];
+        break;
+      case P_F:
+        d = scale * poly * w->cjac[i * w->ncomp + (size_t)k] * w->dvdu[q];
         break;
       default: /* P_B */
         if (k >= 0) {
@@ -350,9 +378,17 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
     return dt_err_set(e, DT_EINVAL, "fit", "joint continuum needs the wavelengths");
   if (!(isfinite(p->vlo) && isfinite(p->vhi) && p->vlo < p->vhi))
     return dt_err_set(e, DT_EINVAL, "fit", "empty velocity window [%g, %g]", p->vlo, p->vhi);
+  if (p->covering) {
+    if (!p->cover_model || dt_model_npix(p->cover_model) != n)
+      return dt_err_set(e, DT_EINVAL, "fit", "partial covering needs a second model");
+    if (!w->cw) w->cw = dt_cover_alloc(w->max_pix, w->max_comp ? w->max_comp : 1);
+    if (!w->cjac) w->cjac = malloc(w->max_pix * (w->max_comp ? w->max_comp : 1) * sizeof *w->cjac);
+    if (!w->cw || !w->cjac) return dt_err_set(e, DT_ENOMEM, "fit", "out of memory");
+  }
   w->prob = p;
   w->ncomp = p->ncomp;
   w->ncont = p->ncont;
+  w->covering = p->covering != 0;
   for (size_t j = 0; j < p->ncont; j++)
     w->cinit[j] = p->cont_init ? p->cont_init[j] : (j == 0 ? 1.0 : 0.0);
   w->jac_valid = 0;
@@ -386,6 +422,21 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
       w->plo[q] = p->vlo; w->phi[q] = p->vhi; q++;
     }
     w->init[k] = c;
+    w->cfinit[k] = 1.0;
+    if (w->covering) {
+      /* fitted: from the given value inside (0, 1), else DT_CF_START;
+       * held: the given value, or 1 (full covering) when there is none */
+      double cf = p->cf ? p->cf[k] : NAN;
+      if (!(fr & DT_FREEZE_CF)) {
+        if (!(cf > 0.0 && cf < 1.0)) cf = DT_CF_START;
+        w->ptype[q] = P_F; w->pcomp[q] = (int)k;
+        w->plo[q] = 0.0; w->phi[q] = 1.0; q++;
+        cf = clamp_inside(cf, 0.0, 1.0);
+      } else if (!(cf > 0.0 && cf <= 1.0)) {
+        cf = 1.0;
+      }
+      w->cfinit[k] = cf;
+    }
   }
   for (size_t j = 0; j < p->ncont; j++) {
     w->ptype[q] = P_C; w->pcomp[q] = (int)j; q++;
@@ -443,6 +494,8 @@ static void fill_result(dt_fit_workspace *w, dt_fit_result *r, double chi2) {
   memcpy(r->cont_coef, w->ccur, w->ncont * sizeof r->cont_coef[0]);
   r->chi2 = chi2;
   r->npix = w->nused;
+  r->covering = w->covering;
+  for (size_t k = 0; k < w->ncomp; k++) r->cf[k] = w->covering ? w->cfcur[k] : 1.0;
   r->dof = (long)w->nused - (long)w->npar;
   r->chi2_red = r->dof > 0 ? chi2 / (double)r->dof : NAN;
   r->bic = chi2 + (double)w->npar * log((double)w->nused);
@@ -499,7 +552,7 @@ int dt_fit_chi2(dt_fit_workspace *w, const dt_fit_problem *p, const dt_component
    * given coefficients. */
   if (p->ncont > w->max_cont || (p->ncont && !p->wave)) return DT_EINVAL;
   unsigned char all[DT_MAX_COMP];
-  memset(all, DT_FREEZE_N | DT_FREEZE_B | DT_FREEZE_V, sizeof all);
+  memset(all, DT_FREEZE_N | DT_FREEZE_B | DT_FREEZE_V | DT_FREEZE_CF, sizeof all);
   dt_fit_problem q = *p;
   q.comp = comp ? comp : p->comp;
   q.cont_init = cont_coef ? cont_coef : p->cont_init;
@@ -610,6 +663,20 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
   return 3;
 }
 
+/* The C_f columns of the final Jacobian in C itself: divided by the
+ * logistic's slope (the solver is done with J).  cf_ext[q] = 1 for the
+ * columns so changed; a slope that underflowed leaves the column (its
+ * error then comes out infinite, as it should for a C_f the map has
+ * frozen). */
+static void cover_columns(dt_fit_workspace *w, gsl_matrix *J, int *cf_ext) {
+  for (size_t q = 0; q < w->npar; q++) {
+    if (w->ptype[q] != P_F || !(w->dvdu[q] > 1e-300)) continue;
+    gsl_vector_view col = gsl_matrix_column(J, q);
+    gsl_vector_scale(&col.vector, 1.0 / w->dvdu[q]);
+    cf_ext[q] = 1;
+  }
+}
+
 /* One run of the solver from x0 (internal parameters), at most max_iter
  * iterations.  accel: geodesic acceleration from the start; otherwise plain
  * LM, switching to it after ACCEL_AFTER iterations.  rs->slot receives the
@@ -707,7 +774,7 @@ static int suspicious(const dt_fit_workspace *w, const run_state *rs) {
   if (dof > 0 && rs->chi2 > dof + SUSPECT_CHI2 * sqrt(2.0 * dof)) return 1;
   const double *x = gsl_multifit_nlinear_position(rs->slot->w)->data;
   for (size_t q = 0; q < w->npar; q++) {
-    if (w->ptype[q] == P_C) continue;
+    if (w->ptype[q] == P_C || w->ptype[q] == P_F) continue;
     double s = to_external(x[q], 0.0, 1.0, NULL);
     if (s < SUSPECT_EDGE || s > 1.0 - SUSPECT_EDGE) return 1;
   }
@@ -750,6 +817,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
     case P_N: x0[q] = to_internal(w->init[k].logN, w->plo[q], w->phi[q]); break;
     case P_B: x0[q] = to_internal(log(w->init[k < 0 ? 0 : k].b), w->plo[q], w->phi[q]); break;
     case P_V: x0[q] = to_internal(w->init[k].v, w->plo[q], w->phi[q]); break;
+    case P_F: x0[q] = to_internal(w->cfinit[k], w->plo[q], w->phi[q]); break;
     default: x0[q] = w->ccur[k];
     }
   }
@@ -799,18 +867,22 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   /* 1-sigma errors: (J^T J)^-1 of the weighted residuals, not scaled by
    * chi2_red; mapped through the transforms. */
   gsl_matrix *J = gsl_multifit_nlinear_jac(slot->w);
+  int cf_ext[MAXPAR] = {0};
+  if (w->covering) cover_columns(w, J, cf_ext);
   gsl_multifit_nlinear_covar(J, 1e-11, slot->cov);
   for (size_t q = 0; q < w->npar; q++) {
     double var = gsl_matrix_get(slot->cov, q, q);
-    double err = (var > 0 && isfinite(var)) ? sqrt(var) * fabs(w->dvdu[q]) : INFINITY;
+    double slope = cf_ext[q] ? 1.0 : fabs(w->dvdu[q]);
+    double err = (var > 0 && isfinite(var)) ? sqrt(var) * slope : INFINITY;
     int k = w->pcomp[q];
     switch (w->ptype[q]) {
     case P_N: r->err[k].logN = err; break;
     case P_V: r->err[k].v = err; break;
     case P_B: r->err[k < 0 ? 0 : k].b = err; break;
+    case P_F: r->cf_err[k] = err; break;
     default: r->cont_err[k] = err;
     }
-    if (w->ptype[q] != P_C) {
+    if (w->ptype[q] != P_C && w->ptype[q] != P_F) {
       double s = (to_external(xs->data[q], 0.0, 1.0, NULL));
       if (s < BOUND_FLAG || s > 1 - BOUND_FLAG) {
         int bit = w->ptype[q] == P_N ? DT_FREEZE_N : w->ptype[q] == P_B ? DT_FREEZE_B
@@ -872,6 +944,17 @@ int dt_fit_check_refit(const dt_fit_result *recorded, const dt_fit_result *refit
         return 0;
       }
   }
+  if (recorded->covering != refit->covering) {
+    snprintf(why, nwhy, "partial covering %s in the refit", refit->covering ? "on" : "off");
+    return 0;
+  }
+  for (size_t i = 0; recorded->covering && i < recorded->ncomp && i < DT_MAX_COMP; i++)
+    if (!param_agrees(recorded->cf[i], refit->cf[i], recorded->cf_err[i], refit->cf_err[i],
+                      tol_sigma)) {
+      snprintf(why, nwhy, "component %zu C_f: recorded %.6g, refit %.6g", i + 1,
+               recorded->cf[i], refit->cf[i]);
+      return 0;
+    }
   double sd = tol_sigma * sqrt(2.0 * (double)(recorded->dof > 0 ? recorded->dof : 1));
   if (!(fabs(recorded->chi2 - refit->chi2) <= sd)) {
     snprintf(why, nwhy, "chi2: recorded %.6g, refit %.6g", recorded->chi2, refit->chi2);

@@ -196,6 +196,15 @@ static void adopt_linked(dt_judgement *s, const dt_judgement *rec) {
   s->joint = rec->joint;
 }
 
+/* Partial covering and the components' covering factors (cf= is written
+ * only with covering on). */
+static int same_cover(const dt_judgement *a, const dt_judgement *b) {
+  if (a->covering != b->covering) return 0;
+  for (size_t i = 0; a->covering && i < a->ncomp && i < DT_MAX_COMP; i++)
+    if (!(a->cf[i] == b->cf[i])) return 0;
+  return 1;
+}
+
 /* Components, freezes, tie, verdict and fit: what every record states. */
 static int same_summary(const dt_judgement *a, const dt_judgement *b) {
   if (a->ncomp != b->ncomp || a->tie_b != b->tie_b || a->verdict != b->verdict ||
@@ -208,6 +217,7 @@ static int same_summary(const dt_judgement *a, const dt_judgement *b) {
     if (strcmp(a->sysv[i].name, b->sysv[i].name) || a->sysv[i].verdict != b->sysv[i].verdict)
       return 0;
   if (!same_linked(a, b)) return 0;
+  if (!same_cover(a, b)) return 0;
   return !a->has_fit || dt_fit_result_same(&a->fit, &b->fit);
 }
 
@@ -222,6 +232,8 @@ static void adopt_summary(dt_judgement *s, const dt_judgement *rec) {
   memcpy(s->sysv, rec->sysv, sizeof s->sysv);
   s->has_fit = rec->has_fit;
   s->fit = rec->fit;
+  s->covering = rec->covering;
+  memcpy(s->cf, rec->cf, sizeof s->cf);
 }
 
 static void note_verdict(dt_journal_entry *en, dt_verdict before, dt_action_kind kind,
@@ -725,6 +737,12 @@ int dt_journal_append(dt_journal *j, const dt_target *t, const dt_action *a,
     plain = *a;
     plain.text[0] = '\0';
     a = &plain;
+  }
+  if (j->version < DT_JN_COVER_VERSION && (after->covering || a->kind == DT_ACT_COVERING)) {
+    free(hint);
+    return dt_err_set(e, DT_EVERSION, NULL,
+                      "this session file is in format version %d, which cannot hold partial "
+                      "covering: fit covering factors in a new session file", j->version);
   }
   const dt_judgement *state = after;
   dt_judgement *old = NULL;

@@ -37,6 +37,13 @@
  * verdicts are the target's) and appended in version 2 without systems=; a
  * verdict of another system cannot be written to it.
  *
+ * Partial covering (cover.h) adds act=covering cover=0|1, and in the state,
+ * written only when covering is on: covering=1 and cf=C[+-E],... (each
+ * component's covering factor, with the fit's error while the components
+ * are the fit's), and fcf=C+-E,... for a fit whose components differ from
+ * them (a failed fit).  Files without covering are unchanged; a file of an
+ * older version than DT_JN_COVER_VERSION is not given them.
+ *
  * Version 1 differs only there: no name=, and PATH (always as given) with
  * HDU and ROW is the identity.  Version-1 files are read (records with a
  * digest are matched by it), and appends to them stay in version 1.
@@ -269,6 +276,7 @@ const dt_jn_field dt_jn_fields[] = {
     /* linked species (journal_joint.c) */
     {"link", JP_ACT, JT_INT, JF_V4, ACT(ival), 0, 0, 1, A(LINK)},
     {"rule", JP_ACT, JT_BTIE_INT, JF_V4, ACT(ival), 0, 0, 0, A(BTIE)},
+    {"cover", JP_ACT, JT_INT, 0, ACT(ival), 0, 0, 1, A(COVERING)},
     /* the state after (after "=>"): what every record states */
     {"verdict", JP_STATE, JT_VERDICT, JF_REQ, JDG(verdict), 0, 0, 0, 0},
     {"verdicts", JP_STATE, JT_SYSV, JF_OMIT | JF_V3, 0, 0, 0, DT_JUDGE_MAX_SYS, 0},
@@ -281,6 +289,8 @@ const dt_jn_field dt_jn_fields[] = {
     {"joint", JP_JOINT, JT_SIZE, JF_REQ | JF_V4, JDG(joint.nspecies), 0, 1, DT_JUDGE_MAX_LINKED, 0},
     {"sp", JP_JOINT, JT_SPECIES, JF_NUMBERED | JF_OMIT | JF_V4, 0, 0, 0, DT_JUDGE_MAX_LINKED, 0},
     {"thermal", JP_JOINT, JT_THERMAL, JF_OMIT | JF_V4, 0, 0, 0, DT_MAX_COMP, 0},
+    {"covering", JP_STATE, JT_INT, JF_OMIT, JDG(covering), 0, 0, 1, 0},
+    {"cf", JP_STATE, JT_CF, JF_OMIT, 0, 0, 0, DT_MAX_COMP, 0},
     /* the fit of the state */
     {"fit", JP_FIT, JT_STATUS, JF_REQ, FIT(status), 0, 0, 0, 0},
     {"niter", JP_FIT, JT_INT, 0, FIT(niter), 0, -1, 1L << 30, 0},
@@ -291,6 +301,7 @@ const dt_jn_field dt_jn_fields[] = {
     {"npix", JP_FIT, JT_SIZE, 0, FIT(npix), 0, 0, 1L << 40, 0},
     {"cont", JP_FIT, JT_CONT, JF_OMIT, 0, 0, 0, DT_MAX_CONT, 0},
     {"f", JP_FIT, JT_FCOMP, JF_NUMBERED | JF_OMIT, 0, 0, 0, DT_MAX_COMP, 0},
+    {"fcf", JP_FIT, JT_FCF, JF_OMIT, 0, 0, 0, DT_MAX_COMP, 0},
     /* measurements, per line of the doublet (W1 .. logNlim2) */
     {"W", JP_MEAS, JT_PM, JF_NUMBERED | JF_OMIT, ML(w), ML(w_err), 0, 2, 0},
     {"Wlim", JP_MEAS, JT_NUM, JF_NUMBERED | JF_OMIT, ML(w_lim), 0, 0, 2, 0},
@@ -374,6 +385,26 @@ static void write_joint_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int 
   dt_jn_write_joint(f, w->s, w->act, num, sb_put_cb, b);
 }
 
+/* Covering factors: cf= of the state (with the fit's errors while the
+ * components are the fit's), fcf= of a fit that differs from them; only
+ * when covering is on. */
+static void write_cf(sbuf *b, const dt_jn_field *f, const wsrc *w) {
+  const dt_judgement *s = w->s;
+  if (!s->covering || s->ncomp == 0) return;
+  int errs = s->has_fit && s->fit.covering && s->fit.ncomp == s->ncomp;
+  int same = w->fit_matches;
+  for (size_t i = 0; same && errs && i < s->ncomp && i < DT_MAX_COMP; i++)
+    same = s->cf[i] == s->fit.cf[i];
+  if (f->type == JT_FCF && (same || !errs)) return;
+  sb_key(b, f, 0);
+  for (size_t i = 0; i < s->ncomp && i < DT_MAX_COMP; i++) {
+    if (i) sb_str(b, ",");
+    double cf = f->type == JT_FCF ? s->fit.cf[i] : s->cf[i];
+    if (f->type == JT_FCF || (same && errs)) sb_pm(b, cf, s->fit.cf_err[i]);
+    else sb_num(b, cf);
+  }
+}
+
 /* One field; fields marked JF_OMIT are left out when they hold nothing. */
 static void write_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
   const void *p = wbase(w, f->part, num);
@@ -454,6 +485,8 @@ static void write_field(sbuf *b, const dt_jn_field *f, const wsrc *w, int num) {
     return;
   }
   case JT_FULL: sb_str(b, "\tfull=1"); return;
+  case JT_CF:
+  case JT_FCF: write_cf(b, f, w); return;
   case JT_SYSV: {
     const dt_judgement *s = p;
     if (s->nsysv == 0) return;

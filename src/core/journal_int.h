@@ -79,8 +79,17 @@ enum {
   JT_BTIE,        /* b rule (dt_btie): same, thermal, free */
   JT_BTIE_INT,    /* a b rule kept in an int (the action's ival) */
   JT_SPECIES,     /* a linked species' fit spN: NAME:logN+-E/b+-E,... per component */
-  JT_THERMAL      /* T and b_turb per component: T+-E/b+-E,... */
+  JT_THERMAL      /* T and b_turb per component: T+-E/b+-E,... */,
+  JT_CF,          /* covering factors of the components: C[+-E],... */
+  JT_FCF          /* covering factors of a fit that differs from them: C+-E,... */
 };
+/* The format version that brought partial covering (act=covering,
+ * covering=, cf=, fcf=): 4.  Older files are appended to without it. */
+#if DT_JOURNAL_VERSION >= 4
+#define DT_JN_COVER_VERSION 4
+#else
+#define DT_JN_COVER_VERSION DT_JOURNAL_VERSION
+#endif
 enum {
   JF_REQ = 1,      /* required (for JP_FULL: when full=1; JP_FIT: when the fit is there) */
   JF_NONEMPTY = 2, /* text that may not be empty */

@@ -164,6 +164,10 @@ typedef struct pstate {
   dt_component cerr[DT_MAX_COMP];   /* ... these */
   size_t ncomp_sp[DT_JUDGE_MAX_LINKED]; /* components of each linked species read */
   size_t nthermal;                  /* components of thermal= read */
+  size_t ncf, nfcf;                 /* covering factors read (cf=, fcf=) */
+  int cf_err;                       /* cf= carried errors */
+  double cfe[DT_MAX_COMP];          /* ... these */
+  double fcf[DT_MAX_COMP], fcfe[DT_MAX_COMP];
 } pstate;
 
 /* The table's field for key k in a part of the line (JP_ID before act=,
@@ -274,6 +278,71 @@ static int read_systems(const dt_jn_field *f, char *v, dt_judgement *s) {
   return 0;
 }
 
+/* "C[+-E],..." of cf= into the state's covering factors (errors into ps),
+ * "C+-E,..." of fcf= into ps; each C in (0, 1] (0 in cf=: none yet).
+ * -1 if bad. */
+static int read_cf(const dt_jn_field *f, char *v, dt_journal_record *rec, pstate *ps) {
+  size_t n = 0;
+  int nerr = 0;
+  for (char *tok = v; tok; n++) {
+    char *comma = strchr(tok, ',');
+    if (comma) *comma = '\0';
+    if (n >= DT_MAX_COMP) return -1;
+    double x, err = NAN;
+    int he = 0;
+    /* 0 in cf=: a component without a covering factor yet */
+    if (parse_pm(tok, &x, &err, &he) || !(x >= 0.0 && x <= 1.0) ||
+        (x == 0.0 && (he || f->type == JT_FCF)))
+      return -1;
+    if (f->type == JT_FCF) {
+      if (!he) return -1;
+      ps->fcf[n] = x;
+      ps->fcfe[n] = err;
+    } else {
+      rec->after.cf[n] = x;
+      ps->cfe[n] = err;
+    }
+    nerr += he;
+    tok = comma ? comma + 1 : NULL;
+  }
+  if (nerr != 0 && nerr != (int)n) return -1;
+  if (f->type == JT_FCF) ps->nfcf = n;
+  else ps->ncf = n, ps->cf_err = nerr > 0;
+  return 0;
+}
+
+/* The covering fields between themselves and with the components and the
+ * fit (fit: the fit is in the record). */
+static int check_cover(dt_journal_record *rec, const pstate *ps, int fit, dt_err *e) {
+  dt_judgement *s = &rec->after;
+  if (!s->covering) {
+    if (ps->ncf || ps->nfcf) return fail(e, "%s", "covering factors without covering=1");
+    return DT_OK;
+  }
+  if (ps->ncf != s->ncomp) return fail(e, "%s", "covering factors cf= do not match ncomp");
+  if (!fit) {
+    if (ps->cf_err || ps->nfcf) return fail(e, "%s", "covering factor errors without a fit");
+    return DT_OK;
+  }
+  /* a fit of a covered state is a covered fit (switching covering
+   * clears the fit) */
+  dt_fit_result *r = &s->fit;
+  r->covering = 1;
+  for (size_t i = 0; i < DT_MAX_COMP; i++) r->cf[i] = 1.0;
+  if (s->ncomp && !ps->nfcf && !ps->cf_err)
+    return fail(e, "%s", "a covered fit without the errors of its covering factors");
+  if (ps->nfcf) {
+    if (ps->nfcf != s->ncomp || ps->cf_err)
+      return fail(e, "%s", "covering factors fcf= do not match the fit");
+    memcpy(r->cf, ps->fcf, s->ncomp * sizeof r->cf[0]);
+    memcpy(r->cf_err, ps->fcfe, s->ncomp * sizeof r->cf_err[0]);
+  } else {
+    memcpy(r->cf, s->cf, s->ncomp * sizeof r->cf[0]);
+    memcpy(r->cf_err, ps->cfe, s->ncomp * sizeof r->cf_err[0]);
+  }
+  return DT_OK;
+}
+
 /* Read value v of field f (number num) into the record; -1 if bad. */
 static int read_value(const dt_jn_field *f, char *v, int num, dt_journal_record *rec, pstate *ps) {
   void *p = part_base(rec, f->part, num);
@@ -336,6 +405,8 @@ static int read_value(const dt_jn_field *f, char *v, int num, dt_journal_record 
   case JT_SYSV:
   case JT_SYSTEMS:
     return read_systems(f, v, p);
+  case JT_CF:
+  case JT_FCF: return read_cf(f, v, rec, ps);
   case JT_FULL:
     if (parse_long(v, 1, 1, &lv)) return -1;
     rec->has |= DT_REC_FULL;
@@ -398,6 +469,8 @@ static int check_record(dt_journal_record *rec, const pstate *ps, dt_err *e) {
   const char *jwhy = dt_jn_check_joint(rec, seen_of(ps, "joint", JP_JOINT) != 0, ps->ncomp_sp,
                                       ps->nthermal);
   if (jwhy) return fail(e, "%s", jwhy);
+  int cst = check_cover(rec, ps, seen_of(ps, "fit", JP_FIT) != 0, e);
+  if (cst != DT_OK) return cst;
   if (rec->has & DT_REC_FULL) {
     if (!part_seen(ps, JP_FULL, 1, 1)) return fail(e, "%s", "a full state lacks some of its fields");
   } else if (part_seen(ps, JP_FULL, 0, 0)) {

@@ -42,6 +42,7 @@ static const char *const action_names[DT_ACT__COUNT] = {
     [DT_ACT_NOTE] = "note",               [DT_ACT_RESTORE] = "restore", [DT_ACT_AUTOFIT] = "autofit",
     [DT_ACT_LINK] = "link",               [DT_ACT_BTIE] = "b-tie",
     [DT_ACT_JOINT_FIT] = "joint-fit",
+    [DT_ACT_COVERING] = "covering",
 };
 
 static const char *const btie_names[DT_BTIE__COUNT] = {"same", "thermal", "free"};
@@ -237,6 +238,11 @@ static int take_fit(dt_judgement *j, const dt_fit_result *fit) {
       if (!comp_ok(x)) return -1;
     }
     memcpy(j->comp, fit->comp, j->ncomp * sizeof j->comp[0]);
+    if (fit->covering) {
+      for (size_t i = 0; i < j->ncomp; i++)
+        if (!(fit->cf[i] > 0.0 && fit->cf[i] <= 1.0)) return -1;
+      memcpy(j->cf, fit->cf, j->ncomp * sizeof j->cf[0]);
+    }
   }
   j->fit = *fit;
   j->has_fit = 1;
@@ -253,7 +259,10 @@ static int state_ok(const dt_judgement *s) {
   if (s->cont_order < -1 || s->cont_order >= DT_MAX_CONT) return 0;
   if (!(s->vlo < s->vhi)) return 0;
   for (size_t i = 0; i < s->ncomp; i++)
-    if (s->frozen[i] > (DT_FREEZE_N | DT_FREEZE_B | DT_FREEZE_V)) return 0;
+    if (s->frozen[i] > (DT_FREEZE_N | DT_FREEZE_B | DT_FREEZE_V) || !(s->cf[i] >= 0.0) ||
+        s->cf[i] > 1.0)
+      return 0;
+  if (s->covering != 0 && s->covering != 1) return 0;
   if (s->has_fit && s->fit.ncomp != s->ncomp) return 0;
   if (s->nsys > DT_JUDGE_MAX_SYS || s->nsysv > DT_JUDGE_MAX_SYS) return 0;
   for (size_t i = 0; i < s->nsys; i++)
@@ -287,6 +296,7 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     if (j->ncomp >= DT_MAX_COMP || !comp_ok(a->x)) return DT_EINVAL;
     j->comp[j->ncomp] = (dt_component){.logN = a->x[0], .b = a->x[1], .v = a->x[2]};
     j->frozen[j->ncomp] = 0;
+    j->cf[j->ncomp] = 0.0;
     j->ncomp++;
     break;
   case DT_ACT_COMP_REMOVE: {
@@ -294,8 +304,10 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     size_t i = (size_t)a->index, rest = j->ncomp - i - 1;
     memmove(&j->comp[i], &j->comp[i + 1], rest * sizeof j->comp[0]);
     memmove(&j->frozen[i], &j->frozen[i + 1], rest * sizeof j->frozen[0]);
+    memmove(&j->cf[i], &j->cf[i + 1], rest * sizeof j->cf[0]);
     j->ncomp--;
     j->frozen[j->ncomp] = 0;
+    j->cf[j->ncomp] = 0.0;
     break;
   }
   case DT_ACT_COMP_SET:
@@ -373,6 +385,10 @@ int dt_judgement_apply(dt_judgement *j, const dt_action *a) {
     model_change = 0;
     break;
   }
+  case DT_ACT_COVERING:
+    if (a->ival != 0 && a->ival != 1) return DT_EINVAL;
+    j->covering = a->ival;
+    break;
   case DT_ACT_RESTORE:
   case DT_ACT_AUTOFIT:
     if (!a->state || !state_ok(a->state)) return DT_EINVAL;
@@ -403,6 +419,9 @@ int dt_fit_result_same(const dt_fit_result *a, const dt_fit_result *b) {
   for (size_t i = 0; i < a->ncont; i++)
     if (!same_d(a->cont_coef[i], b->cont_coef[i]) || !same_d(a->cont_err[i], b->cont_err[i]))
       return 0;
+  if (a->covering != b->covering) return 0;
+  for (size_t i = 0; a->covering && i < a->ncomp; i++)
+    if (!same_d(a->cf[i], b->cf[i]) || !same_d(a->cf_err[i], b->cf_err[i])) return 0;
   return same_d(a->chi2, b->chi2) && same_d(a->chi2_red, b->chi2_red) && same_d(a->bic, b->bic);
 }
 
@@ -419,6 +438,9 @@ int dt_judgement_same(const dt_judgement *a, const dt_judgement *b) {
     if (!same_d(a->win[i].lo, b->win[i].lo) || !same_d(a->win[i].hi, b->win[i].hi)) return 0;
   for (size_t i = 0; i < a->ncomp; i++)
     if (!same_comp(&a->comp[i], &b->comp[i]) || a->frozen[i] != b->frozen[i]) return 0;
+  if (a->covering != b->covering) return 0;
+  for (size_t i = 0; a->covering && i < a->ncomp; i++)
+    if (!same_d(a->cf[i], b->cf[i])) return 0;
   if (strncmp(a->note, b->note, sizeof a->note) != 0) return 0;
   if (a->has_fit && !dt_fit_result_same(&a->fit, &b->fit)) return 0;
   if (a->nlinked != b->nlinked || a->btie != b->btie || a->has_joint != b->has_joint ||

@@ -141,6 +141,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.frozen[k] |= DT_FREEZE_N;
   P.q.frozen = P.frozen;
   if (r->ncont) P.q.cont_init = r->cont_coef;
+  if (r->covering) P.q.cf = r->cf;
   /* refits start next to an optimum: a short leash */
   P.q.max_iter = PROFILE_MAX_ITER;
   P.q.time_limit = PROFILE_TIME;

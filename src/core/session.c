@@ -413,6 +413,17 @@ int dt_session_tie(dt_session *ss) {
   return rc;
 }
 
+int dt_session_covering(dt_session *ss) {
+  dt_action a;
+  dt_action_init(&a, DT_ACT_COVERING);
+  a.ival = !ss->j.covering;
+  int rc = dt_session_apply(ss, &a);
+  if (rc == DT_OK)
+    dt_session_say(ss, DT_TONE_TEXT, a.ival ? "partial covering: a covering factor per component"
+                                            : "partial covering off: every component covers the source");
+  return rc;
+}
+
 int dt_session_order(dt_session *ss, int step) {
   int o = ss->j.cont_order + step;
   if (o < -1 || o > DT_MAX_CONT - 1) {

@@ -165,6 +165,21 @@ static dt_judgement first_look(const dt_atomic *atomic, const dt_session_target 
   return j;
 }
 
+/* The automatic first pass of a first look; with partial covering asked
+ * for, the search runs without it and its components are fitted again
+ * with a covering factor each (dt_analysis_cover_refit). */
+static int first_pass(dt_analysis *an, dt_judgement *j, dt_autofit_out *af, dt_err *e) {
+  int cover = j->covering;
+  j->covering = 0;
+  int rc = dt_autofit_run(an, j, NULL, af, e);
+  if (cover && (rc == DT_OK || rc == DT_ENOCONV)) {
+    int cs = dt_analysis_cover_refit(an, j, &af->an, e);
+    if (cs != DT_OK) rc = cs;
+  }
+  j->covering = cover;
+  return rc;
+}
+
 dt_session_ahead *dt_session_ahead_make(const dt_atomic *atomic, const dt_session_target *t,
                                         int first) {
   dt_session_ahead *a = calloc(1, sizeof *a);
@@ -176,7 +191,7 @@ dt_session_ahead *dt_session_ahead_make(const dt_atomic *atomic, const dt_sessio
   if (first) {
     a->first = first_look(atomic, t, a->spec);
     dt_err_clear(&e);
-    a->first_rc = dt_autofit_run(a->an, &a->first, NULL, &a->af, &e);
+    a->first_rc = first_pass(a->an, &a->first, &a->af, &e);
     a->has_first = 1;
   }
   return a;
@@ -202,6 +217,7 @@ static void resume(dt_session *ss, const dt_journal_entry *en, const dt_session_
     int keep = ss->has_suggest;
     dt_verdict ks = ss->suggested;
     dt_judgement scratch = ss->j;
+    scratch.covering = 0; /* the first pass searches without partial covering */
     dt_autofit_out af;
     if (dt_autofit_run(ss->an, &scratch, NULL, &af, NULL) == DT_OK || af.suggested != DT_VERDICT_NONE)
       dt_session_suggest(ss, &af);
@@ -277,7 +293,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
       arc = t->ahead->first_rc;
     } else {
       dt_err_clear(&e);
-      arc = dt_autofit_run(ss->an, &trial, NULL, &af, &e);
+      arc = first_pass(ss->an, &trial, &af, &e);
     }
     if (arc == DT_OK || arc == DT_ENOCONV) {
       ss->j = trial;

@@ -92,18 +92,36 @@ static int parse_sky_field(dt_target_spec *t, const char *key, const char *val, 
   return DT_OK;
 }
 
+/* The field cover=0|1 (partial covering): DT_OK or an error when the key
+ * is cover, -1 when it is not.  Its bit in *seen sits above the position's. */
+static int parse_cover_field(dt_target_spec *t, const char *key, const char *val, long lineno,
+                             unsigned *seen, dt_err *e) {
+  if (strcmp(key, "cover")) return -1;
+  unsigned bit = 1u << (SKY_SEEN_SHIFT + 3);
+  if (*seen & bit) return bad(e, lineno, "key '%s' given twice", key);
+  *seen |= bit;
+  if (!val || (strcmp(val, "0") && strcmp(val, "1")))
+    return bad(e, lineno, "cover must be 0 or 1 (partial covering off or on), not '%s'",
+               val ? val : "");
+  t->has_covering = 1;
+  t->covering = val[0] == '1';
+  return DT_OK;
+}
+
 /* One key=value field (or the flag "air": val == NULL). */
 static int parse_field(dt_target_spec *t, const char *key, const char *val, long lineno,
                        unsigned *seen, dt_err *e) {
   int sky = parse_sky_field(t, key, val, lineno, seen, e);
   if (sky >= 0) return sky;
+  int cov = parse_cover_field(t, key, val, lineno, seen, e);
+  if (cov >= 0) return cov;
   static const char *const keys[NKEYS] = {"row", "vsys", "R", "fwhm", "doublet", "name", "window", "air",
                                              "target-window", "system", "hfs"};
   int k = -1;
   for (int i = 0; i < NKEYS; i++)
     if (!strcmp(key, keys[i])) k = i;
   if (k < 0 && !val) return bad(e, lineno, "field '%s' is neither key=value nor the flag air", key);
-  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window target-window system hfs ra dec frame, flag air)", key);
+  if (k < 0) return bad(e, lineno, "unknown key '%s' (known: row vsys R fwhm doublet name window target-window system hfs ra dec frame cover, flag air)", key);
   if (k != K_SYSTEM && (*seen & (1u << k))) return bad(e, lineno, "key '%s' given twice", key);
   *seen |= 1u << k;
   if (k == K_AIR) {

@@ -350,6 +350,7 @@ static void judgement_cmd(dt_insp *s, dt_cmd c) {
     if (need_comp(s)) dt_session_hold(ss, DT_PARAM_LOGN);
     break;
   case DT_CMD_TIE_B: dt_session_tie(ss); break;
+  case DT_CMD_COVERING: dt_session_covering(ss); break;
   case DT_CMD_REFIT: dt_session_refit(ss); break;
   case DT_CMD_AUTO_REFIT:
     ss->auto_refit = !ss->auto_refit;

@@ -142,6 +142,7 @@ static int initial_state(const dt_insp *s, size_t idx, dt_judgement *j) {
     oR = o->res_per_fwhm ? 0 : v;
     oF = o->res_per_fwhm ? v : 0;
   }
+  j->covering = q->covering >= 0 ? q->covering : o->covering;
   j->resolution = 0;
   j->fwhm_kms = 0;
   if (s->q->read.lsf_table) return 0;

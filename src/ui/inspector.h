@@ -28,6 +28,8 @@ typedef struct dt_inspect_opts {
   int hyperfine_all;       /* 1: every target's lines with hyperfine structure */
   const dt_hyperfine *hyperfine; /* the table, for hyperfine_all and list lines
                               saying hfs=1 (NULL: none read) */
+  int covering;            /* 1: partial covering (a covering factor per
+                              component) on a first look */
   /* screen */
   int colour;              /* -1 auto, 0 never */
   int ascii;               /* 1: no Unicode even in a UTF-8 locale */

@@ -71,6 +71,7 @@ static const dt_keybind table[] = {
     {DT_CMD_SWITCH_DOUBLET, "switch-doublet", 'D', "fit", "next doublet covered by the spectrum", 0, NULL},
     {DT_CMD_LINK_SPECIES, "link-species", 'S', "fit", "link or unlink a species fitted jointly (a chooser)", 0, NULL},
     {DT_CMD_B_RULE, "b-rule", 'T', "fit", "how linked species share b: same, thermal, free", 0, NULL},
+    {DT_CMD_COVERING, "covering", 'P', "fit", "partial covering: a covering factor per component, or none", 0, NULL},
     /* verdict */
     {DT_CMD_VERDICT_DETECTED, "verdict-detected", 'y', "verdict", "detected, then the next spectrum", 0, NULL},
     {DT_CMD_VERDICT_NOT_DETECTED, "verdict-not-detected", 'n', "verdict", "not detected, then the next spectrum", 0, NULL},

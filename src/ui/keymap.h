@@ -93,6 +93,7 @@ typedef enum dt_cmd {
   DT_CMD_NEXT_SYSTEM,
   DT_CMD_LINK_SPECIES,
   DT_CMD_B_RULE,
+  DT_CMD_COVERING,
   DT_CMD__COUNT
 } dt_cmd;
 

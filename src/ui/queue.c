@@ -109,6 +109,7 @@ int dt_queue_add(dt_queue *q, const dt_target_spec *t, dt_err *e) {
   x->has_vsys = (unsigned char)t->has_vsys;
   x->air = (unsigned char)(t->air || q->air);
   x->has_window = (unsigned char)t->has_window;
+  x->covering = (signed char)(t->has_covering ? t->covering : -1);
   x->has_pos = (unsigned char)t->has_pos;
   x->ra = t->ra;
   x->dec = t->dec;

@@ -31,6 +31,7 @@ typedef struct dt_qentry {
   double ra, dec;        /*   ICRS [deg] */
   signed char frame;     /* frame= of the list (dt_frame; UNSET = not given) */
   unsigned char hyperfine; /* hfs=1 of the list: lines split into hyperfine components */
+  signed char covering;  /* cover= of the list: 1 on, 0 off, -1 not given */
   size_t systems;        /* pool offset: the list line's target-window= and
                             system= as "target:VLO:VHI;NAME:VLO:VHI;..."
                             ("target" only when given; "" none) */

@@ -26,6 +26,7 @@
 #include <string.h>
 
 #include "doubletty/airvac.h"
+#include "doubletty/cover.h"
 #include "doubletty/frames.h"
 #include "doubletty/model.h"
 #include "doubletty/utf8.h"
@@ -631,8 +632,26 @@ static void draw_hi(dt_insp *s, const layout *L) {
 
 /* ------------------------------------------------------------------ table */
 
-/* Column positions of the component table (relative to its left edge). */
-enum { TC_NUM = 1, TC_V = 5, TC_B = 24, TC_N = 40, TC_FIX = 57 };
+/* Column positions of the component table (relative to its left edge);
+ * with partial covering the covering factor takes TC_FIX and the held
+ * parameters move TC_CFW to the right. */
+enum { TC_NUM = 1, TC_V = 5, TC_B = 24, TC_N = 40, TC_FIX = 57, TC_CFW = 26 };
+
+/* Component k's covering factor: "0.62±0.05 partial" (the flag of
+ * cover.h: partial, or unconstrained), "1.00±0.02", "-" before a fit
+ * gave one; the error only while the components are the fit's. */
+static const char *cover_text(const dt_insp *s, size_t k, int errs, char *buf, size_t size) {
+  const dt_judgement *j = &s->ss->j;
+  if (!(j->cf[k] > 0)) return snprintf(buf, size, "-"), buf;
+  if (!errs || !j->fit.covering) return snprintf(buf, size, "%.2f", j->cf[k]), buf;
+  char pm[48];
+  dt_view_pm(s, pm, sizeof pm, j->cf[k], j->fit.cf_err[k], 2);
+  const dt_doublet *d = s->ss->an_ok ? s->ss->out.doublet : NULL;
+  int flag = dt_cover_flag(d, &j->comp[k], j->fit.err[k].logN, j->cf[k], j->fit.cf_err[k],
+                           dt_cover_lsf_fwhm(j->resolution, j->fwhm_kms));
+  snprintf(buf, size, "%s%s%s", pm, flag ? " " : "", dt_cover_flag_name(flag));
+  return buf;
+}
 
 /* A fitted parameter: "value±error"; "value at limit" when the fit left it
  * on a bound of its range (its error means nothing then); "value held"
@@ -685,9 +704,11 @@ static int table_components(dt_insp *s, const syms *y, int x, int row, int maxw,
   dt_grid_text(g, x + TC_V, row, "v [km/s]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
   dt_grid_text(g, x + TC_B, row, "b [km/s]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
   dt_grid_text(g, x + TC_N, row, "log N [cm-2]", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, -1);
-  int hx = dt_grid_text(g, x + TC_FIX, row, "held", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, maxw - TC_FIX);
-  if (j->ncomp > shown)
-    dt_grid_printf(g, x + TC_FIX + hx + 1, row, DT_R_LABEL, DT_A_UNDERLINE, maxw - TC_FIX - hx - 1, "%zu-%zu of %zu",
+  int fix = TC_FIX + (j->covering ? TC_CFW : 0);
+  if (j->covering) dt_grid_text(g, x + TC_FIX, row, "C_f", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, maxw - TC_FIX);
+  int hx = fix < maxw ? dt_grid_text(g, x + fix, row, "held", DT_R_LABEL, DT_A_BOLD | DT_A_UNDERLINE, maxw - fix) : 0;
+  if (j->ncomp > shown && fix + hx + 1 < maxw)
+    dt_grid_printf(g, x + fix + hx + 1, row, DT_R_LABEL, DT_A_UNDERLINE, maxw - fix - hx - 1, "%zu-%zu of %zu",
                    first + 1, first + shown, j->ncomp);
   row++;
   if (j->ncomp == 0) {
@@ -706,10 +727,12 @@ static int table_components(dt_insp *s, const syms *y, int x, int row, int maxw,
                  TC_N - TC_B - 1);
     dt_grid_text(g, x + TC_N, row, logn_text(s, k, b1, sizeof b1, c->logN, e ? e->logN : NAN), role, attr,
                  TC_FIX - TC_N - 1);
+    if (j->covering)
+      dt_grid_text(g, x + TC_FIX, row, cover_text(s, k, errs, b1, sizeof b1), role, attr, TC_CFW - 1);
     char fz[4];
     dt_freeze_str(j->frozen[k], fz);
     snprintf(b1, sizeof b1, "%s%s%s", fz, j->tie_b && fz[0] ? " " : "", j->tie_b ? "tied-b" : "");
-    dt_grid_text(g, x + TC_FIX, row, b1, DT_R_WARN, 0, maxw - TC_FIX);
+    if (fix < maxw) dt_grid_text(g, x + fix, row, b1, DT_R_WARN, 0, maxw - fix);
     row++;
   }
   return row;
@@ -738,8 +761,9 @@ static void table_fit(dt_insp *s, const syms *y, int x, int row, int maxw) {
     snprintf(cont, sizeof cont, "continuum order %d, %zu window%s", j->cont_order, j->nwin, j->nwin == 1 ? "" : "s");
   else snprintf(cont, sizeof cont, "continuum order %d, auto", j->cont_order);
   int cx = dt_grid_printf(g, x, row, DT_R_LABEL, 0, maxw, "fit ");
-  cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s", y->chi, chi2r, dof,
-                       bic, cont, s->ss->auto_refit ? "" : "  refit: manual");
+  cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s%s", y->chi, chi2r,
+                       dof, bic, cont, j->covering ? "  partial covering" : "",
+                       s->ss->auto_refit ? "" : "  refit: manual");
   if (status != 0 && cx < maxw)
     dt_grid_printf(g, x + cx, row, DT_R_BAD, DT_A_BOLD, maxw - cx, "  %s",
                    status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");

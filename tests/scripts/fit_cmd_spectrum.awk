@@ -2,7 +2,7 @@
 # fit-command and shard tests, independent of doubletty's own model.
 #
 #   awk -v lo=5850 -v hi=5940 -v step=0.1 -v snr=30 -v seed=1 \
-#       -v comps="v:tau0:b;..." [-v vsys=KMS] [-v nanlo=A -v nanhi=A] \
+#       -v comps="v:tau0:b;..." [-v vsys=KMS] [-v nanlo=A -v nanhi=A] [-v cf=C] \
 #       -f fit_cmd_spectrum.awk
 #
 # Each component is a pure Doppler (Gaussian) optical depth profile with
@@ -14,6 +14,8 @@
 # from memory).  The continuum slopes gently; Gaussian noise with sigma =
 # continuum/snr comes from awk's rand() seeded by `seed` (Box-Muller).
 # Pixels with nanlo <= wave <= nanhi get flux "nan" (masked by the reader).
+# cf: the absorber covers this fraction of the source, I = 1 - cf + cf e^-tau
+# (Hamann et al. 1997, ApJ 478, 80, eq. 1; default 1).
 function gauss(   u, v) {
   u = rand(); v = rand();
   if (u < 1e-300) u = 1e-300;
@@ -22,6 +24,7 @@ function gauss(   u, v) {
 BEGIN {
   c = 299792.458; l1 = 5891.5833; l2 = 5897.5581;
   if (vsys == "") vsys = 0;
+  if (cf == "") cf = 1;
   srand(seed);
   nc = (comps == "") ? 0 : split(comps, cl, ";");
   for (k = 1; k <= nc; k++) { split(cl[k], p, ":"); cv[k] = p[1]; ct[k] = p[2]; cb[k] = p[3]; }
@@ -37,7 +40,7 @@ BEGIN {
       tau += ct[k] * (exp(-(v1 / cb[k]) ^ 2) + 0.5 * exp(-(v2 / cb[k]) ^ 2));
     }
     sig = cont / snr;
-    f = cont * exp(-tau) + sig * gauss();
+    f = cont * (1 - cf + cf * exp(-tau)) + sig * gauss();
     if (nanlo != "" && w >= nanlo && w <= nanhi) printf "%.4f nan %.6e\n", w, sig;
     else printf "%.4f %.6e %.6e\n", w, f, sig;
   }
