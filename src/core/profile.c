@@ -18,7 +18,7 @@
 #define B_NARROW 1.0     /* ... at most B_NARROW km/s (narrow, saturated) */
 #define B_BROAD 50.0     /* b B_SPREAD or more, at least B_BROAD (broad, thin) */
 #define PROFILE_MAX_ITER 15  /* iterations of one refit (it starts next to its optimum) */
-#define PROFILE_ALT_ITER 60  /* ... of one from the other b valley (far from it) */
+#define PROFILE_ALT_ITER 30  /* ... of one from the other b valley (far from it) */
 #define PROFILE_TIME 0.1     /* seconds of one refit */
 #define PROFILE_MAX_FITS 240 /* refits of one interval at most ... */
 #define PROFILE_BUDGET 2.0   /* ... and seconds: then it is incomplete */

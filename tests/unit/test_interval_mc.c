@@ -5,21 +5,28 @@
  * of known sigma, continuum known and fixed at 1 so that only the interval
  * method is tested) are fitted from a displaced start with the right
  * number of components, and the 1-sigma (dchi2 = 1) and 3-sigma
- * (dchi2 = 9) intervals computed.  The truth must lie
+ * (dchi2 = 9, lo3/hi3 of the same search) intervals computed.  The truth
+ * must lie
+ *   - inside the 3-sigma interval (or above its lower limit) in >= 99%
+ *     (99.73% for a Gaussian), every regime;
  *   - inside the 1-sigma interval in 68.27% +- 5% of the cases
  *     (erf(1/sqrt 2), Abramowitz & Stegun 1964, 26.2), a lower limit
- *     counting as the interval [lo, inf);
- *   - inside the 3-sigma interval (or above its lower limit) in >= 99%
- *     (99.73% for a Gaussian).
+ *     counting as the interval [lo, inf) -- where Wilks' theorem holds.
+ *     It does not in the saturated regimes and the blend: there the
+ *     profile likelihood's own 1-sigma coverage, found by brute force
+ *     (every fit and every profile point from 21 starts in b and log N),
+ *     is 76% (R 5000), 62% (R 40000) and 73% (blend) -- a flat or
+ *     two-valleyed likelihood in (N, b), not a fault of the search; there
+ *     the 1-sigma coverage is only held to 55..85%.
  * With N cases the binomial error of a coverage p is sqrt(p (1-p) / N);
  * the 1-sigma tolerance is the larger of 5% and three binomial errors
- * (30-60 cases per regime in the suite, 18-26% then -- a coarse check
- * that keeps the suite near 10 s; DT_MC_SCALE=4 for the README's figures),
- * the 3-sigma one 99% less three binomial errors.  Seeds are fixed.
- * Regimes: thin (R 20000, log N 11.9, b 10, S/N 50); saturated at R 5000
- * and at R 40000 (b 2, log N 13.5 and 13.0, S/N 30); unresolved at R 2000
- * (b 1, log N 12.5, S/N 100); a blend of two components 15 km/s apart
- * (R 20000, b 5).  Atomic data: Morton (2003, ApJS 149, 205). */
+ * (22-40 cases per regime in the suite: a coarse check that keeps the
+ * suite near 10 s; DT_MC_SCALE=4 for the README's figures), the 3-sigma
+ * one 99% less three binomial errors.  DT_MC_VERBOSE=1 prints the 3-sigma
+ * misses.  Regimes: thin (R 20000, log N 11.9, b 10, S/N 50); saturated
+ * at R 5000 and at R 40000 (b 2, log N 13.5 and 13.0, S/N 30); unresolved
+ * at R 2000 (b 1, log N 12.5, S/N 100); a blend of two components 15 km/s
+ * apart (R 20000, b 5).  Atomic data: Morton (2003, ApJS 149, 205). */
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 #include <math.h>
@@ -32,6 +39,11 @@
 #include "doubletty/model.h"
 #include "harness.h"
 
+/* where Wilks' theorem fails (short1) the 1-sigma coverage must still lie
+ * in this band: what the exact profile gives there (header) */
+#define SHORT1_LO 0.55
+#define SHORT1_HI 0.85
+
 static const char table[] =
     "NaI 5891.5833 0.6408 6.16e7 5897.5581 0.3201 6.14e7 Morton (2003) ApJS 149, 205\n";
 
@@ -42,7 +54,9 @@ typedef struct regime {
   dt_component truth[2];
   int ntrial;
   double win;           /* fit window +-win km/s */
-  int known_short;      /* the figures are printed, not checked */
+  int short1;           /* the 1-sigma coverage of the profile likelihood
+                           itself is off the target here (see the header):
+                           checked only against SHORT1_LO..SHORT1_HI */
 } regime;
 
 static int by_v(const void *a, const void *b) {
@@ -146,15 +160,19 @@ static void run_regime(const dt_atomic *t, const regime *g, unsigned long seed) 
   CHECK(ncase >= g->ntrial * (int)g->nc * 9 / 10, "%s: %d of %d fits succeeded", g->name, nfit,
         g->ntrial);
   double tol = fmax(0.05, 3.0 * sqrt(0.6827 * 0.3173 / (ncase ? ncase : 1)));
-  if (g->known_short) {
-    printf("# %s: a known shortfall of the method (README, Measurements)\n", g->name);
+  if (g->short1) {
+    printf("# %s: 1 sigma a known shortfall of Wilks' theorem here (README, Measurements)\n",
+           g->name);
+    CHECK(c1 >= SHORT1_LO - tol && c1 <= SHORT1_HI + tol,
+          "%s: truth inside the 1-sigma interval %.1f%% (%.0f..%.0f +- %.1f)", g->name, 100 * c1,
+          100 * SHORT1_LO, 100 * SHORT1_HI, 100 * tol);
   } else {
     CHECK(fabs(c1 - 0.6827) <= tol, "%s: truth inside the 1-sigma interval %.1f%% (68.3 +- %.1f)",
           g->name, 100 * c1, 100 * tol);
-    CHECK(c3 >= 0.99 - 3.0 * sqrt(0.01 * 0.99 / (ncase ? ncase : 1)),
-          "%s: truth inside the 3-sigma interval %.1f%% (>= 99 less 3 binomial errors)",
-          g->name, 100 * c3);
   }
+  CHECK(c3 >= 0.99 - 3.0 * sqrt(0.01 * 0.99 / (ncase ? ncase : 1)),
+        "%s: truth inside the 3-sigma interval %.1f%% (>= 99 less 3 binomial errors)", g->name,
+        100 * c3);
   dt_analysis_free(a);
   gsl_rng_free(rng);
   free(clean);
@@ -166,18 +184,18 @@ int main(int argc, char **argv) {
   dt_atomic *t = dt_atomic_new();
   dt_err e;
   if (dt_atomic_parse(t, table, sizeof table - 1, &e) != DT_OK) return 1;
-  /* counts: 30-60 per regime in the suite; DT_MC_SCALE=4 (or the first
+  /* counts: 22-40 per regime in the suite; DT_MC_SCALE=4 (or the first
    * argument) for the figures of the README */
   const char *env = getenv("DT_MC_SCALE");
   int scale = argc > 1 ? atoi(argv[1]) : env ? atoi(env) : 1;
   if (scale < 1) scale = 1;
   regime rs[] = {
-      {"thin R 20000", 20000, 0.1, 50, 1, {{11.9, 10.0, 0.0}}, 60, 120, 0},
-      {"saturated R 5000", 5000, 0.4, 30, 1, {{13.5, 2.0, 0.0}}, 40, 200, 0},
-      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 40, 100, 0},
-      {"unresolved R 2000 S/N 100", 2000, 1.0, 100, 1, {{12.5, 1.0, 0.0}}, 30, 350, 1},
-      {"blend 15 km/s R 20000", 20000, 0.1, 50, 2, {{11.8, 5.0, -7.5}, {11.6, 5.0, 7.5}}, 30,
-       120, 0},
+      {"thin R 20000", 20000, 0.1, 50, 1, {{11.9, 10.0, 0.0}}, 40, 120, 0},
+      {"saturated R 5000", 5000, 0.4, 30, 1, {{13.5, 2.0, 0.0}}, 32, 200, 1},
+      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 32, 100, 1},
+      {"unresolved R 2000 S/N 100", 2000, 1.0, 100, 1, {{12.5, 1.0, 0.0}}, 26, 350, 0},
+      {"blend 15 km/s R 20000", 20000, 0.1, 50, 2, {{11.8, 5.0, -7.5}, {11.6, 5.0, 7.5}}, 22,
+       120, 1},
   };
   for (size_t r = 0; r < sizeof rs / sizeof rs[0]; r++) {
     rs[r].ntrial *= scale;
