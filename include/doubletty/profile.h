@@ -15,13 +15,19 @@
  * them apart by little).  A refit that starts in the wrong valley gives a
  * chi2 too high: at chi2_0 the interval comes out too wide, at chi2_p too
  * narrow.  So:
- *   - before the scan the whole problem is refitted from component k's b
- *     in the other valleys: narrow, min(b / 5, 1 km/s), and broad,
- *     max(5 b, 50 km/s); a lower chi2 there is a better fit;
+ *   - with DT_PROFILE_DEEP, before the scan the whole problem is refitted
+ *     from component k's b in the other valleys: narrow, min(b / 5,
+ *     1 km/s), and broad, max(5 b, 50 km/s), and in a blend from the
+ *     column shared equally with the nearest component and from the two
+ *     split -+ b/2 and -+ b about their centre; a lower chi2 there is a
+ *     better fit, other minima within 9 dchi2 widen the 3-sigma interval
+ *     over them;
  *   - each refit of the scan starts from the last solution on its side
- *     (continuation); a point that would end the interval (its dchi2 at
- *     least 0.9 of the target) is refitted again from the narrow and the
- *     broad b and keeps the lowest chi2;
+ *     (continuation); the first point that would end the interval (its
+ *     dchi2 at least 0.9 of the target, before the regula falsi) is
+ *     refitted again from the narrow and the broad b and, in a blend,
+ *     with the column handed to the nearest component, and keeps the
+ *     lowest chi2;
  *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere means the fit
  *     was not the minimum: the reference moves there (a full refit from
  *     that point) and the search starts again (three times at most); the
@@ -36,8 +42,9 @@
  * search reaches DT_PROFILE_REACH dex or the fit's bounds: no end, a
  * limit), then regula falsi on sqrt(dchi2_p) (linear in x for a parabola)
  * to 0.02 dex or a tenth of the error (or sqrt(dchi2_p) within 0.05 of
- * sqrt(dchi2)).  The same search then runs to 9 dchi2 (the 3-sigma
- * interval for dchi2 = 1: lo3, hi3, flag3). */
+ * sqrt(dchi2)).  With DT_PROFILE_OUTER the same search then runs to
+ * 9 dchi2 (the 3-sigma interval for dchi2 = 1: lo3, hi3, flag3), its
+ * first probes where a parabola through the dchi2 ends puts them. */
 #ifndef DOUBLETTY_PROFILE_H
 #define DOUBLETTY_PROFILE_H
 #include <stddef.h>
@@ -77,6 +84,14 @@ typedef struct dt_profile_interval {
  * "upper-limit", "unconstrained". */
 const char *dt_profile_flag_name(int flag);
 
+/* flags of dt_profile_logN */
+enum {
+  DT_PROFILE_DEEP = 1,   /* refit the whole problem from the other valleys
+                            first (a better fit, minima beyond a barrier) */
+  DT_PROFILE_OUTER = 2   /* also the ends at 9 dchi2 (lo3, hi3; else NaN,
+                            incomplete3) */
+};
+
 /* The interval of component k for the problem p (as fitted) and its best
  * fit r (status DT_OK), in at most budget seconds (0, or more than the
  * 2 s cap: the cap; beyond it the interval is incomplete).  A component
@@ -87,8 +102,8 @@ const char *dt_profile_flag_name(int flag);
  * refits (its last-run diagnostics change).  DT_OK; DT_EINVAL bad
  * arguments. */
 int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_result *r,
-                    size_t k, double dchi2, double budget, dt_profile_interval *out,
-                    dt_fit_result *lower);
+                    size_t k, double dchi2, double budget, unsigned flags,
+                    dt_profile_interval *out, dt_fit_result *lower);
 
 /* Is there a second valley in b within reach of a parabolic profile?
  * Component k of fit r (problem p) with covariance half-width h3 [dex] at

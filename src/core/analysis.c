@@ -959,6 +959,24 @@ static int move_fit(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   return moved;
 }
 
+/* Component k may sit in the wrong valley of chi2 (profile.h): saturated
+ * at its fitted b (tau0 > 1), unresolved (b below the LSF's FWHM), or
+ * blended (another component within FWHM + 2 (b_k + b_j)).  With
+ * opts.outer_intervals its profile then starts with refits from the other
+ * valleys (DT_PROFILE_DEEP), and in the linear regime two refits check
+ * for a second valley (dt_profile_other_valley).  Without, the search
+ * relies on the refits of the points that would end the interval: about
+ * a third of the refits, for the first pass over a survey. */
+static int at_risk(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  if (out->saturated || dt_cog_tau0(&a->d->line[0], c->logN, c->b) > 1.0 || c->b < a->fwhm_kms)
+    return 1;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 1;
+  return 0;
+}
+
 /* A refit that turned up a better minimum restarts the intervals from it,
  * at most MAX_MOVES times (each move lowers chi2 by DT_PROFILE_MOVE or
  * more, so this ends anyway) -- with no time budget only (explicit calls,
@@ -984,7 +1002,9 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
       double h = r->err[k].logN * sqrt(dchi2);
       double h3 = dchi2 < 9.0 ? 3.0 * h : h;
       if (a->opts.covariance_only ||
-          (linear_regime(a, out, k) && !dt_profile_other_valley(a->fw, &p, r, k, h3, dchi2 < 9.0 ? 9.0 * dchi2 : dchi2))) {
+          (linear_regime(a, out, k) &&
+           !(a->opts.outer_intervals && at_risk(a, out, k) &&
+             dt_profile_other_valley(a->fw, &p, r, k, h3, dchi2 < 9.0 ? 9.0 * dchi2 : dchi2)))) {
         /* the covariance interval is the profile's here (see above), or
          * was asked for */
         memset(pi, 0, sizeof *pi);
@@ -993,11 +1013,15 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
         pi->hi = pi->best + h;
         pi->lo3 = pi->best - h3;
         pi->hi3 = pi->best + h3;
+        pi->incomplete3 = !a->opts.outer_intervals;
         continue;
       }
       dt_fit_result lower;
       lower.status = DT_EINVAL;
-      dt_profile_logN(a->fw, &p, r, k, dchi2, budget, pi, &lower);
+      unsigned fl = a->opts.outer_intervals
+                        ? DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0)
+                        : 0;
+      dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);
       if (budget == 0 && pi->moved && moves < MAX_MOVES && lower.status == DT_OK) {
         dt_profile_interval found = *pi;
         if (move_fit(a, j, out, &lower)) {

@@ -18,7 +18,10 @@
 #define B_NARROW 1.0     /* ... at most B_NARROW km/s (narrow, saturated) */
 #define B_BROAD 50.0     /* b B_SPREAD or more, at least B_BROAD (broad, thin) */
 #define PROFILE_MAX_ITER 15  /* iterations of one refit (it starts next to its optimum) */
-#define PROFILE_ALT_ITER 30  /* ... of one from the other b valley (far from it) */
+#define PROFILE_ALT_ITER 30  /* ... of one from the other b valley (far from it), */
+#define PROFILE_PEEK_ITER 6  /* of which the first few: it goes on only when
+                                its chi2 is then within PEEK_DCHI2 */
+#define PEEK_DCHI2 25.0
 #define PROFILE_TIME 0.1     /* seconds of one refit */
 #define PROFILE_MAX_FITS 240 /* refits of one interval at most ... */
 #define PROFILE_BUDGET 2.0   /* ... and seconds: then it is incomplete */
@@ -40,6 +43,8 @@ typedef struct prof {
   double t0;          /* start [s] */
   double budget;      /* seconds it may take */
   int incomplete;     /* ran out of refits or time */
+  int dir;            /* side being searched (+1, -1) */
+  int deep;           /* DT_PROFILE_DEEP */
   int moved;          /* a chi2 below chi0 - DT_PROFILE_MOVE was found ... */
   dt_component mcomp[DT_MAX_COMP];  /* ... with these components */
   double mcont[DT_MAX_CONT];        /* and joint continuum */
@@ -78,6 +83,26 @@ static double refit(prof *P, const dt_component *comp, const double *cont, int i
   memcpy(sol, fr.comp, P->r->ncomp * sizeof sol[0]);
   if (P->r->ncont) memcpy(csol, fr.cont_coef, P->r->ncont * sizeof csol[0]);
   return fr.chi2;
+}
+
+/* A refit from a start far from its optimum (another valley): a few
+ * iterations first, the rest only when chi2 is then below chi0 + reach
+ * + PEEK_DCHI2 (most such starts end far above: cheap to drop). */
+static double far_refit(prof *P, const dt_component *comp, const double *cont, double reach,
+                        dt_component *sol, double *csol) {
+  double c = refit(P, comp, cont, PROFILE_PEEK_ITER, sol, csol);
+  if (!(c < P->chi0 + reach + PEEK_DCHI2)) return c;
+  dt_component s2[DT_MAX_COMP];
+  double c2[DT_MAX_CONT];
+  memcpy(s2, sol, P->r->ncomp * sizeof s2[0]);
+  if (P->r->ncont) memcpy(c2, csol, P->r->ncont * sizeof c2[0]);
+  double d = refit(P, s2, c2, PROFILE_ALT_ITER - PROFILE_PEEK_ITER, sol, csol);
+  if (!isfinite(d)) {   /* keep the first stage */
+    memcpy(sol, s2, P->r->ncomp * sizeof s2[0]);
+    if (P->r->ncont) memcpy(csol, c2, P->r->ncont * sizeof c2[0]);
+    return c;
+  }
+  return d;
 }
 
 /* Remember a solution below the reference (a better fit). */
@@ -143,6 +168,9 @@ static double chi2_at(prof *P, double x, double target) {
   double c = refit(P, start, P->cfrom, PROFILE_MAX_ITER, best, cbest);
   if (c - P->chi0 >= VERIFY * target) {
     for (int i = 0; i < 3; i++) {
+      /* without DEEP only the valley on this side: higher columns go
+       * with narrower lines, lower with broader ones */
+      if (i < 2 && !P->deep && (i == 0) != (P->dir > 0)) continue;
       if (out_of_budget(P)) return NAN;
       dt_component alt[DT_MAX_COMP];
       memcpy(alt, P->from, P->r->ncomp * sizeof alt[0]);
@@ -152,7 +180,7 @@ static double chi2_at(prof *P, double x, double target) {
       } else if (!exchange(P, alt, x)) {
         break;
       }
-      double ca = refit(P, alt, P->cfrom, PROFILE_ALT_ITER, sol, csol);
+      double ca = far_refit(P, alt, P->cfrom, target, sol, csol);
       if (ca < c) {
         c = ca;
         memcpy(best, sol, P->r->ncomp * sizeof best[0]);
@@ -175,6 +203,7 @@ static double side_from(prof *P, double x0, const dt_component *comp, const doub
                         double d0, double s, double dchi2, int dir) {
   memcpy(P->from, comp, P->r->ncomp * sizeof P->from[0]);
   if (P->r->ncont) memcpy(P->cfrom, cont, P->r->ncont * sizeof P->cfrom[0]);
+  P->dir = dir;
   double lim = dir > 0 ? fmin(x0 + DT_PROFILE_REACH, DT_FIT_LOGN_MAX - 0.01)
                        : fmax(x0 - DT_PROFILE_REACH, DT_FIT_LOGN_MIN + 0.01);
   double t = sqrt(dchi2);
@@ -206,7 +235,7 @@ static double side_from(prof *P, double x0, const dt_component *comp, const doub
   double xtol = fmin(XTOL, 0.1 * s);   /* a tenth of the error at least */
   for (int i = 0; i < MAX_ROOT && fabs(xb - xa) > xtol; i++) {
     double x = xb - hb * (xb - xa) / (hb - ha);
-    double h = sqrt(fmax(chi2_at(P, x, dchi2) - P->chi0, 0.0)) - t;
+    double h = sqrt(fmax(chi2_at(P, x, INFINITY) - P->chi0, 0.0)) - t;   /* continuation only */
     if (P->incomplete || P->moved) return NAN;
     if (fabs(h) < 0.05) return x;
     if (h >= 0) {
@@ -286,7 +315,7 @@ static void other_valleys(prof *P, const dt_fit_problem *p) {
         }
       }
     }
-    double c = refit(P, alt, P->r->cont_coef, PROFILE_ALT_ITER, sol, csol);
+    double c = far_refit(P, alt, P->r->cont_coef, 9.0, sol, csol);
     note_lower(P, c, sol, csol);
     if (isfinite(c) && fabs(sol[k].logN - P->r->comp[k].logN) > XTOL && P->nalt < MAX_ALT) {
       int n = P->nalt++;
@@ -300,8 +329,8 @@ static void other_valleys(prof *P, const dt_fit_problem *p) {
 }
 
 int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_result *r,
-                    size_t k, double dchi2, double budget, dt_profile_interval *out,
-                    dt_fit_result *lower) {
+                    size_t k, double dchi2, double budget, unsigned flags,
+                    dt_profile_interval *out, dt_fit_result *lower) {
   if (!w || !p || !r || !out || k >= r->ncomp || r->ncomp != p->ncomp || !(dchi2 > 0))
     return DT_EINVAL;
   memset(out, 0, sizeof *out);
@@ -322,6 +351,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   /* refits start next to an optimum: a short leash */
   P.q.time_limit = PROFILE_TIME;
   P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
+  P.deep = (flags & DT_PROFILE_DEEP) != 0;
   P.t0 = now_s();
   P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : PROFILE_BUDGET;
   double s = r->err[k].logN;
@@ -336,12 +366,12 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
     P.chi0 = ref.chi2;
     P.moved = 0;
     x0 = ref.comp[k].logN;
-    other_valleys(&P, p);
+    if (flags & DT_PROFILE_DEEP) other_valleys(&P, p);
     lo = hi = lo3 = hi3 = NAN;
     if (!P.moved && !P.incomplete) hi = side(&P, x0, s, dchi2, +1);
     if (!P.moved && !P.incomplete) lo = side(&P, x0, s, dchi2, -1);
     inc1 = P.incomplete;
-    if (!P.moved && !P.incomplete && dchi2 < 9.0) {
+    if (!P.moved && !P.incomplete && dchi2 < 9.0 && (flags & DT_PROFILE_OUTER)) {
       /* first probes where a parabola through the 1-sigma ends puts the
        * 3-sigma ones */
       double sh = isfinite(hi) ? fmax((hi - x0) / sqrt(dchi2), 0.5 * s) : s;
@@ -386,7 +416,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
     out->lo3 = lo;
     out->hi3 = hi;
     out->flag3 = out->flag;
-  } else if (P.incomplete) {
+  } else if (P.incomplete || !(flags & DT_PROFILE_OUTER)) {
     out->lo3 = out->hi3 = NAN;
     out->incomplete3 = 1;
   } else {
@@ -420,7 +450,8 @@ int dt_profile_other_valley(dt_fit_workspace *w, const dt_fit_problem *p, const 
     memcpy(alt, r->comp, r->ncomp * sizeof alt[0]);
     alt[k].logN = r->comp[k].logN + (i == 0 ? h3 : -h3);
     other_b(&P, alt, i);
-    double c = refit(&P, alt, r->cont_coef, PROFILE_ALT_ITER, sol, csol);
+    P.chi0 = r->chi2;
+    double c = far_refit(&P, alt, r->cont_coef, d3, sol, csol);
     if (c - r->chi2 < VERIFY * d3) return 1;
   }
   return 0;
