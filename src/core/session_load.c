@@ -274,6 +274,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     }
     ss->pending = 1;
     dt_session_analyse_state(ss, &ss->j, 0);
+    if (arc == DT_OK) dt_session_keep_intervals(ss, &af.an);
     if (!ss->j.resolution && !ss->j.fwhm_kms)
       dt_session_say(ss, DT_TONE_WARN, "no resolution known (file header, list R=/fwhm= or --resolution): "
                                        "fitting without instrumental broadening");
