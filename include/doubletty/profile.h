@@ -25,9 +25,11 @@
  *   - each refit of the scan starts from the last solution on its side
  *     (continuation); the first point that would end the interval (its
  *     dchi2 at least 0.9 of the target, before the regula falsi) is
- *     refitted again from the narrow and the broad b and, in a blend,
- *     with the column handed to the nearest component, and keeps the
- *     lowest chi2;
+ *     refitted again from the valley on its side (narrow b above the
+ *     fit's column, broad b below; both with DT_PROFILE_DEEP) and, in a
+ *     blend, with the column handed to the nearest component, and keeps
+ *     the lowest chi2 (such far starts run 6 iterations first and go on
+ *     only when chi2 is then within reach);
  *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere means the fit
  *     was not the minimum: the reference moves there (a full refit from
  *     that point) and the search starts again (three times at most); the
