@@ -30,8 +30,9 @@
  *     blend, with the column handed to the nearest component, and keeps
  *     the lowest chi2 (such far starts run 6 iterations first and go on
  *     only when chi2 is then within reach);
- *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere means the fit
- *     was not the minimum: the reference moves there (a full refit from
+ *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere (no b at the
+ *     edge of its range) means the fit was not the minimum: the reference
+ *     moves there (a full refit from
  *     that point) and the search starts again (three times at most); the
  *     interval is then around the new minimum (moved = 1, *lower), which
  *     the caller should take as its fit.
@@ -53,7 +54,7 @@
 #include "doubletty/fit.h"
 
 #define DT_PROFILE_REACH 5.0   /* dex searched beyond the best fit each side */
-#define DT_PROFILE_MOVE 0.05   /* chi2 this far below the fit's: a better fit */
+#define DT_PROFILE_MOVE 0.5    /* chi2 this far below the fit's: a better fit */
 
 enum {
   DT_PROFILE_BOUNDED = 0,      /* both ends found */

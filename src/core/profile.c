@@ -105,9 +105,14 @@ static double far_refit(prof *P, const dt_component *comp, const double *cont, d
   return d;
 }
 
-/* Remember a solution below the reference (a better fit). */
+/* Remember a solution below the reference (a better fit), unless a b sits
+ * at the edge of its range. */
 static void note_lower(prof *P, double c, const dt_component *comp, const double *cont) {
   if (!(c < P->chi0 - DT_PROFILE_MOVE) || (P->moved && c >= P->mchi2)) return;
+  /* not to a b at the edge of its range: a degenerate narrow solution the
+   * fit's bounds hold, which the interval covers instead */
+  for (size_t q = 0; q < P->r->ncomp; q++)
+    if (comp[q].b < 1.1 * DT_FIT_B_MIN || comp[q].b > DT_FIT_B_MAX / 1.1) return;
   P->moved = 1;
   P->mchi2 = c;
   memcpy(P->mcomp, comp, P->r->ncomp * sizeof P->mcomp[0]);
