@@ -79,6 +79,12 @@ typedef struct dt_analysis_opts {
   int covariance_only;  /* 1: the intervals of log N are the covariance
                            matrix's (symmetric, no refits) for every
                            component, not only in the linear regime */
+  int outer_intervals;  /* 1: the intervals of log N also get their 3-sigma
+                           ends (lo3, hi3 at 9 dchi2; profile.h), and
+                           components in a saturated, unresolved or blended
+                           line are first refitted from the other valleys
+                           of chi2 (DT_PROFILE_DEEP): a thorough search at
+                           several times the refits */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
   const dt_hyperfine *hyperfine; /* hyperfine components (hyperfine.h):
@@ -192,7 +198,12 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
  * parabola); none in the linear regime (optically thin at the fitted b,
  * tau0 < 0.3; covariance error < 0.1 dex; no saturation flag, bound or
  * neighbour within FWHM + 2 (b_k + b_j)), where the covariance error is
- * the interval.  DT_OK; DT_EINVAL no successful fit to take it from. */
+ * the interval.  With opts.outer_intervals each interval also holds its
+ * ends at 9 dchi2 (lo3, hi3: 3 sigma).  When a refit of the search finds a chi2 below the fit's (the
+ * fit sat in a local minimum: profile.h), this call -- not the runs' own
+ * intervals -- moves the fit there: out is then the run from the better
+ * components (out->fit differs from j->comp; take it) and the intervals
+ * are the new fit's.  DT_OK; DT_EINVAL no successful fit to take it from. */
 int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
                           double dchi2);
 #define DT_ANALYSIS_RUN_INTERVAL_S 0.01

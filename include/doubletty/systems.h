@@ -165,9 +165,13 @@ typedef struct dt_system_result {
 int dt_systems_measure(dt_analysis *a, const dt_system_set *set, const dt_judgement *j, size_t k,
                        dt_analysis_line out[2], double *mvlo, double *mvhi, size_t *ncomp);
 
-/* Saturation of a system's measurement: the weaker line's apparent column
- * above the stronger's by more than 2 combined sigma (the rule of measure.h,
- * on the columns from their logarithms).  1 or 0. */
+/* Saturation of a system's measurement from both lines (l[0] the
+ * stronger): the weaker line's apparent column above the stronger's by
+ * more than 2 combined sigma (Savage & Sembach 1991), or the equivalent
+ * width ratio W_s / W_w below its optically thin value f_s lambda_s^2 /
+ * (f_w lambda_w^2) by more than 2 combined sigma (the stronger line
+ * detected at 3 sigma), or a black (floored) pixel in either window -- the
+ * rule of dt_measure_saturated (measure.h).  1 or 0. */
 int dt_systems_saturated(const dt_analysis_line l[2]);
 
 /* Per system k of set: components, suggested verdict (dt_systems_suggest)

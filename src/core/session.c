@@ -540,9 +540,18 @@ int dt_session_autofit_to(dt_session *ss, const dt_judgement *base, const dt_act
   adopt(ss, &trial);
   ss->sel = 0;
   dt_session_analyse_state(ss, &ss->j, 0);
+  dt_session_keep_intervals(ss, &af.an);
   dt_session_say(ss, DT_TONE_GOOD, "%s%zu component%s, suggested %s (%s)", why, ss->j.ncomp,
                  ss->j.ncomp == 1 ? "" : "s", dt_verdict_name(ss->suggested), ss->reason);
   return DT_OK;
+}
+
+void dt_session_keep_intervals(dt_session *ss, const dt_analysis_out *first) {
+  if (!ss->an_ok || !first->have_intervals || ss->out.fit.ncomp != first->fit.ncomp ||
+      memcmp(ss->out.fit.comp, first->fit.comp, first->fit.ncomp * sizeof first->fit.comp[0]))
+    return;
+  memcpy(ss->out.logN_int, first->logN_int, sizeof ss->out.logN_int);
+  ss->out.have_intervals = 1;
 }
 
 int dt_session_autofit(dt_session *ss) { return dt_session_autofit_to(ss, &ss->j, NULL, "first pass: "); }

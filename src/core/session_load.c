@@ -302,6 +302,7 @@ int dt_session_load(dt_session *ss, const dt_session_target *t) {
     }
     ss->pending = 1;
     dt_session_analyse_state(ss, &ss->j, 0);
+    if (arc == DT_OK) dt_session_keep_intervals(ss, &af.an);
     if (ss->an_ok && dt_analysis_lsf_source(ss->an))
       dt_session_say(ss, DT_TONE_TEXT, "line-spread width per pixel from %s (FWHM %.1f km/s at the line)",
                      dt_analysis_lsf_source(ss->an), dt_analysis_lsf_fwhm(ss->an));

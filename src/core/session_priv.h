@@ -9,6 +9,9 @@
 void dt_session_analyse_state(dt_session *ss, const dt_judgement *j, int fit);
 /* Take the first pass' suggestion. */
 void dt_session_suggest(dt_session *ss, const dt_autofit_out *af);
+/* Keep the first pass's log N intervals (made without a time limit) in
+ * ss->out when it holds the same fit. */
+void dt_session_keep_intervals(dt_session *ss, const dt_analysis_out *first);
 /* Free the spectrum and its analysis. */
 void dt_session_unload(dt_session *ss);
 /* The one place a target of the journal is built (key, row, digest, name). */

@@ -385,10 +385,33 @@ void dt_systems_to_judgement(const dt_system_set *set, dt_judgement *j) {
   }
 }
 
+/* Saturation from the two lines' measurements, both relations with their
+ * errors (l[0] the stronger line s, l[1] the weaker w):
+ *  - apparent columns: in unresolved saturated structure N_a(s) falls
+ *    below N_a(w) (Savage & Sembach 1991, ApJ 379, 245); flagged when
+ *    N_a(w) - N_a(s) > SAT_NSIGMA sqrt(sigma_s^2 + sigma_w^2), the columns
+ *    and their errors from log N_a +- sigma_log: sigma_N = N sigma_log / log10(e);
+ *  - equivalent widths: W_s / W_w is f_s lambda_s^2 / (f_w lambda_w^2)
+ *    (= rho, ~2 for Na I) on the linear curve of growth and falls towards
+ *    1 on the flat part (Spitzer 1978, Physical Processes in the
+ *    Interstellar Medium, sec. 3.4, from memory); flagged when the
+ *    stronger line is significant (W_s >= 3 sigma) and
+ *    rho W_w - W_s > SAT_NSIGMA sqrt((rho sigma_Ww)^2 + sigma_Ws^2);
+ *  - and any floored (black) pixel in either line's window.
+ * The rule of dt_measure_saturated (measure.h) on a system's window. */
+#define SAT_NSIGMA 2.0
 int dt_systems_saturated(const dt_analysis_line l[2]) {
-  if (!isfinite(l[0].logN_aod) || !isfinite(l[1].logN_aod)) return 0;
-  double ns = pow(10.0, l[0].logN_aod), nw = pow(10.0, l[1].logN_aod);
-  double es = ns * l[0].logN_aod_err / M_LOG10E, ew = nw * l[1].logN_aod_err / M_LOG10E;
-  double den = hypot(es, ew);
-  return den > 0 && (nw - ns) / den > 2.0;
+  if (l[0].nsat > 0 || l[1].nsat > 0) return 1;
+  if (isfinite(l[0].logN_aod) && isfinite(l[1].logN_aod)) {
+    double ns = pow(10.0, l[0].logN_aod), nw = pow(10.0, l[1].logN_aod);
+    double es = ns * l[0].logN_aod_err / M_LOG10E, ew = nw * l[1].logN_aod_err / M_LOG10E;
+    double den = hypot(es, ew);
+    if (den > 0 && (nw - ns) / den > SAT_NSIGMA) return 1;
+  }
+  const dt_line *ls = l[0].line, *lw = l[1].line;
+  double Ws = l[0].W, Ww = l[1].W, sWs = l[0].W_err, sWw = l[1].W_err;
+  if (!ls || !lw || !isfinite(Ws) || !isfinite(Ww) || !(sWs > 0) || !(sWw > 0)) return 0;
+  double rho = ls->f * ls->lambda0 * ls->lambda0 / (lw->f * lw->lambda0 * lw->lambda0);
+  double den = hypot(rho * sWw, sWs);
+  return Ws >= 3.0 * sWs && (rho * Ww - Ws) / den > SAT_NSIGMA;
 }
