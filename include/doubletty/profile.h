@@ -96,8 +96,9 @@ enum {
 };
 
 /* The interval of component k for the problem p (as fitted) and its best
- * fit r (status DT_OK), in at most budget seconds (0, or more than the
- * 2 s cap: the cap; beyond it the interval is incomplete).  A component
+ * fit r (status DT_OK), in at most budget seconds (more than the 2 s cap:
+ * the cap; beyond it the interval is incomplete); budget 0: no clock, only
+ * the count of refits bounds the work (the same result under any load).  A component
  * whose log N is frozen gets lo = hi = lo3 = hi3 = its value.  When a chi2
  * below r->chi2 - DT_PROFILE_MOVE turns up, out->moved = 1 and *lower
  * (may be NULL) receives the minimum the interval is around (status DT_OK,

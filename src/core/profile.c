@@ -24,7 +24,7 @@
 #define PEEK_DCHI2 25.0
 #define PROFILE_TIME 0.1     /* seconds of one refit */
 #define PROFILE_MAX_FITS 240 /* refits of one interval at most ... */
-#define PROFILE_BUDGET 2.0   /* ... and seconds: then it is incomplete */
+#define PROFILE_BUDGET 2.0   /* ... and seconds when timed: then it is incomplete */
 #define PROFILE_MOVES 3      /* restarts from a lower chi2 at most */
 #define MAX_ALT 5            /* other minima kept */
 
@@ -355,11 +355,15 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.frozen[k] |= DT_FREEZE_N;
   P.q.frozen = P.frozen;
   /* refits start next to an optimum: a short leash */
-  P.q.time_limit = PROFILE_TIME;
+  /* With a time budget (the inspector's keystrokes) every refit has a
+   * short clock too; without one (batch fits) only the counts bound the
+   * work, so the result does not depend on the machine's load (fit --jobs
+   * N writes the same bytes as --jobs 1). */
+  P.q.time_limit = budget > 0 ? PROFILE_TIME : -1;
   P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
   P.deep = (flags & DT_PROFILE_DEEP) != 0;
   P.t0 = now_s();
-  P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : PROFILE_BUDGET;
+  P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : INFINITY;
   double s = r->err[k].logN;
   if (!(s > 0) || !isfinite(s)) s = 0.3;
   s = fmin(fmax(s, 0.001), 0.5);
@@ -448,7 +452,8 @@ int dt_profile_other_valley(dt_fit_workspace *w, const dt_fit_problem *p, const 
   if (p->frozen) memcpy(P.frozen, p->frozen, p->ncomp);
   P.frozen[k] |= DT_FREEZE_N;
   P.q.frozen = P.frozen;
-  P.q.time_limit = PROFILE_TIME;
+  P.q.time_limit = -1; /* two refits bounded by their iterations: the same
+                          answer whatever the machine's load */
   P.q.single_run = 1;
   for (int i = 0; i < 2; i++) {
     dt_component alt[DT_MAX_COMP], sol[DT_MAX_COMP];
