@@ -89,6 +89,9 @@ typedef struct dt_judgement {
   dt_component comp[DT_MAX_COMP];
   unsigned char frozen[DT_MAX_COMP];   /* DT_FREEZE_* bits */
   int tie_b;                  /* 1: all components share one b */
+  int hyperfine;              /* 1: lines with hyperfine components in the
+                                 analysis's table (hyperfine.h) are modelled
+                                 as those components; 0: every line single */
   int covering;               /* 1: each component has a covering factor C_f
                                  (cover.h), fitted */
   double cf[DT_MAX_COMP];     /* C_f per component in (0, 1]; 0: none yet

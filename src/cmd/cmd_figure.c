@@ -240,8 +240,8 @@ static void draw_session(fig_job *job, dt_session *ss, dt_journal *jn, cli_progr
     dt_session_target t;
     dt_session_target_init(&t, path, en->target.path, en->target.row);
     t.name = en->target.name ? en->target.name : "";
-    t.initial = en->state;
-    if (job->hfs_all) t.hyperfine = job->hfs;
+    t.initial = en->state; /* its hfs= says whether lines are split */
+    t.hyperfine = job->hfs;
     t.read.lsf_table = job->rtable;
     dt_session_load(ss, &t);
     const char *name = t.name[0] ? t.name : dt_export_stem(path, stem, sizeof stem);
@@ -294,7 +294,8 @@ static int draw_queue(fig_job *job, dt_session *ss, const dt_atomic *atomic, con
     }
     t.initial.resolution = qe->resolution;
     t.initial.fwhm_kms = qe->resolution > 0 ? 0 : qe->fwhm_kms;
-    if (job->hfs_all || qe->hyperfine) t.hyperfine = job->hfs;
+    t.hyperfine = job->hfs;
+    t.initial.hyperfine = job->hfs_all || qe->hyperfine;
     /* resolution (lsf.h): the table, else the list's for the doublet, else
      * the file's widths per pixel or header */
     double qR = 0, qF = 0;
@@ -373,16 +374,14 @@ int cmd_figure(int argc, char **argv) {
     dt_atomic_free(atomic);
     return 2;
   }
-  /* the hyperfine table: for --hyperfine, or list lines saying hfs=1 */
-  dt_hyperfine *hfs = NULL;
-  if (job.hfs_all || list) {
-    hfs = cli_load_hyperfine(NULL);
-    if (!hfs) {
-      dt_atomic_free(atomic);
-      return 1;
-    }
-    job.hfs = hfs;
+  /* the hyperfine table, always: sessions' states say hfs=1 where their
+   * lines were split; --hyperfine or a list's hfs=1 for a queue */
+  dt_hyperfine *hfs = cli_load_hyperfine(NULL);
+  if (!hfs) {
+    dt_atomic_free(atomic);
+    return 1;
   }
+  job.hfs = hfs;
   int rc = 0;
   /* a session file: its first line says so */
   dt_journal *jn = NULL;

@@ -591,6 +591,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     ao.covariance_only = c->cov_only;
     ao.joint_cont = (size_t)c->joint_cont;
     if (c->hyperfine || t->hyperfine) ao.hyperfine = r->hfs;
+    j.hyperfine = c->hyperfine || t->hyperfine;
     ao.lsf_constant = lsf_constant;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
@@ -828,6 +829,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
     jo.an.cog = r->cog;
     jo.an.covariance_only = c->cov_only;
     if (c->hyperfine || t->hyperfine) jo.an.hyperfine = r->hfs;
+    j.hyperfine = c->hyperfine || t->hyperfine;
     jo.an.lsf_constant = lsf_constant;
     dt_joint_analysis_set_opts(ja, &jo);
     dt_autofit_opts fo;

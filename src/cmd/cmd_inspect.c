@@ -543,17 +543,15 @@ int cmd_inspect(int argc, char **argv) {
     if (rc < 0) rc = 0;
     goto out;
   }
-  /* the hyperfine table, when asked for or a list line says hfs=1 */
-  int want_hfs = o.hyperfine_all;
-  for (size_t k = 0; k < q.n && !want_hfs; k++) want_hfs = q.e[k].hyperfine;
-  if (want_hfs) {
-    hfs = cli_load_hyperfine(a.hfs_file);
-    if (!hfs) {
-      rc = 1;
-      goto out;
-    }
-    o.hyperfine = hfs;
+  /* the hyperfine table, always: a state recorded with hfs=1 is shown as
+   * it was fitted, and --hyperfine or a list's hfs=1 turn it on for a
+   * first look */
+  hfs = cli_load_hyperfine(a.hfs_file);
+  if (!hfs) {
+    rc = 1;
+    goto out;
   }
+  o.hyperfine = hfs;
   if (a.hi) {
     dt_err e;
     if (dt_hicube_open(a.hi, &cube, &e) != DT_OK) {

@@ -52,8 +52,6 @@ static void usage(FILE *f) {
           "                    state has a fit and report whether the refit reproduces\n"
           "                    it (within 0.1 sigma) and whether the file is unchanged\n"
           "  --atomic FILE     with --verify: add (or replace) doublets from FILE\n"
-          "  --hyperfine       with --verify: refit with hyperfine structure (for a\n"
-          "                    session made with inspect --hyperfine)\n"
           "  --resolution-table FILE  with --verify: the R(lambda) table the fits used\n"
           "  -h, --help        this text\n\n"
           "actions: window-add window-remove comp-add comp-remove comp-set freeze tie-b\n"
@@ -302,13 +300,14 @@ static const char *locate(const char *path, const char *session, char *buf, size
   return path;
 }
 
-static int verify(const char *session, const char *pattern, const char *atomic_file, int hfs,
+static int verify(const char *session, const char *pattern, const char *atomic_file,
                   const dt_lsf_table *rtable) {
   dt_journal *j = su_open(session);
   if (!j) return 1;
   dt_atomic *at = cli_load_atomic(atomic_file);
-  dt_hyperfine *ht = hfs && at ? cli_load_hyperfine(NULL) : NULL;
-  if (!at || (hfs && !ht)) {
+  /* the hyperfine table: states recorded with hfs=1 are refitted split */
+  dt_hyperfine *ht = at ? cli_load_hyperfine(NULL) : NULL;
+  if (!at || !ht) {
     dt_atomic_free(at);
     dt_journal_close(j);
     return 1;
@@ -400,7 +399,6 @@ static const struct option LONGOPTS[] = {{"help", no_argument, NULL, 'h'},
                                          {"action", required_argument, NULL, 'a'},
                                          {"atomic", required_argument, NULL, 'A'},
                                          {"verify", no_argument, NULL, 'v'},
-                                         {"hyperfine", no_argument, NULL, 'H'},
                                          {"system", required_argument, NULL, 's'},
                                          {"resolution-table", required_argument, NULL, 'T'},
                                          {NULL, 0, NULL, 0}};
@@ -408,7 +406,7 @@ static const struct option LONGOPTS[] = {{"help", no_argument, NULL, 'h'},
 int cmd_log(int argc, char **argv) {
   const char *session = NULL, *pattern = NULL, *user = NULL, *actions = NULL, *atomic = NULL;
   const char *system = NULL;
-  int do_verify = 0, hfs = 0, opt;
+  int do_verify = 0, opt;
   dt_lsf_table *rtable = NULL;
   cli_getopt_reset();
   while ((opt = getopt_long(argc, argv, ":h", LONGOPTS, NULL)) != -1) {
@@ -419,7 +417,6 @@ int cmd_log(int argc, char **argv) {
     case 'a': actions = optarg; break;
     case 'A': atomic = optarg; break;
     case 'v': do_verify = 1; break;
-    case 'H': hfs = 1; break;
     case 's': system = optarg; break;
     case 'T':
       if (cli_opt_resolution_table("log", optarg, &rtable, &(dt_read_opts){0})) return 2;
@@ -436,11 +433,6 @@ int cmd_log(int argc, char **argv) {
     usage(stderr);
     return 2;
   }
-  if (hfs && !do_verify) {
-    dt_lsf_table_free(rtable);
-    cli_errorf("log: --hyperfine applies to refits, with --verify");
-    return 2;
-  }
   long actset = -1;
   if (actions && (actset = parse_actions(actions)) < 0) return 2;
   if (do_verify) {
@@ -448,7 +440,7 @@ int cmd_log(int argc, char **argv) {
       cli_errorf("log: --verify checks final states; --user, --action and --system do not apply");
       return 2;
     }
-    int vrc = verify(session, pattern, atomic, hfs, rtable);
+    int vrc = verify(session, pattern, atomic, rtable);
     dt_lsf_table_free(rtable);
     return vrc;
   }

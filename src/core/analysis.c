@@ -315,6 +315,8 @@ static int ensure_cover_model(dt_analysis *a, const dt_doublet *d, dt_err *e) {
   cfg.vsys = a->mkey.vsys;
   cfg.resolution = a->mkey.resolution;
   cfg.fwhm_kms = a->mkey.fwhm;
+  cfg.lsf_fwhm_kms = a->mkey.lsf;
+  for (int l = 0; l < 2; l++) cfg.hfs[l] = dt_hyperfine_find(a->mkey.hfs, d, l);
   cfg.oversample = a->opts.oversample;
   cfg.tau_cut = a->opts.tau_cut;
   dt_err me;
@@ -336,7 +338,8 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   memset(&mk, 0, sizeof mk);
   mk.doublet = d; mk.vsys = j->vsys; mk.resolution = j->resolution; mk.fwhm = j->fwhm_kms;
   mk.vlo = j->vlo; mk.vhi = j->vhi; mk.tau_cut = a->opts.tau_cut;
-  mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n; mk.hfs = a->opts.hyperfine;
+  mk.oversample = a->opts.oversample; mk.i0 = i0; mk.n = n;
+  mk.hfs = j->hyperfine ? a->opts.hyperfine : NULL; /* split lines: the judgement says */
   if (!a->opts.lsf_constant && a->s->lsf_fwhm_kms) {
     /* widths per pixel: every pixel of the window needs one */
     size_t bad = dt_lsf_first_bad(a->s, i0, n);
@@ -367,7 +370,7 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
   cfg.lsf_fwhm_kms = mk.lsf;
   cfg.oversample = a->opts.oversample;
   cfg.tau_cut = a->opts.tau_cut;
-  for (int l = 0; l < 2; l++) cfg.hfs[l] = dt_hyperfine_find(a->opts.hyperfine, d, l);
+  for (int l = 0; l < 2; l++) cfg.hfs[l] = dt_hyperfine_find(mk.hfs, d, l);
   dt_err me;
   dt_err_clear(&me);
   a->m = dt_model_alloc(a->s->wave + i0, n, &cfg, DT_MAX_COMP, &me);

@@ -201,7 +201,7 @@ static int ensure_model(dt_joint_analysis *ja, size_t s, const dt_judgement *j,
   k.oversample = ja->opts.an.oversample;
   k.wave = wave;
   k.n = n;
-  k.hfs = ja->opts.an.hyperfine;
+  k.hfs = j->hyperfine ? ja->opts.an.hyperfine : NULL;
   const dt_spectrum *sp = ja->s;
   if (!ja->opts.an.lsf_constant && sp->lsf_fwhm_kms && wave >= sp->wave &&
       wave < sp->wave + sp->n) {

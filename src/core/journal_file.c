@@ -711,6 +711,11 @@ static int append_record(dt_journal *j, long idx, const dt_target *t,
 /* A file of format version < 4 cannot hold linked species or a b rule. */
 static int refuse_linked(const dt_journal *j, const dt_action *a, const dt_judgement *after,
                          dt_err *e) {
+  if (after->hyperfine)
+    return dt_err_set(e, DT_EVERSION, NULL,
+                      "this session file is in format version %d, which cannot record "
+                      "hyperfine structure: use a new session file",
+                      j->version);
   if (after->nlinked == 0 && after->btie == DT_BTIE_SAME && !after->has_joint &&
       a->kind != DT_ACT_LINK && a->kind != DT_ACT_BTIE && a->kind != DT_ACT_JOINT_FIT)
     return DT_OK;

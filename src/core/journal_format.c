@@ -28,9 +28,11 @@
  * Version 4 adds linked species (fields marked JF_V4, written and read in
  * journal_joint.c, which describes them): the actions link, b-tie and
  * joint-fit, the state's linked= and b-rule=, and a joint fit's joint=,
- * sp1..sp3= and thermal=.  Files of versions 1 to 3 are read unchanged and
- * appended in their own version; a change that links species cannot be
- * written to them.
+ * sp1..sp3= and thermal=; and hfs=1 among the full state's fields when
+ * the lines are modelled with their hyperfine components.  Files of
+ * versions 1 to 3 are read unchanged and appended in their own version; a
+ * change that links species, or a state with hyperfine structure, cannot
+ * be written to them.
  *
  * Version 3 adds the absorber systems: system= of a verdict, verdicts= and
  * systems= (the fields marked JF_V3).  A version-2 file is read (its
@@ -323,6 +325,7 @@ const dt_jn_field dt_jn_fields[] = {
     {"windows", JP_FULL, JT_WINDOWS, JF_REQ, 0, 0, 0, DT_MAX_WINDOWS, 0},
     {"note", JP_FULL, JT_TEXT, JF_REQ, JDG(note), 0, 0, TXT(dt_judgement, note), 0},
     {"systems", JP_FULL, JT_SYSTEMS, JF_OMIT | JF_V3, 0, 0, 0, DT_JUDGE_MAX_SYS, 0},
+    {"hfs", JP_FULL, JT_INT, JF_OMIT | JF_V4, JDG(hyperfine), 0, 0, 1, 0},
 };
 const size_t dt_jn_nfields = sizeof dt_jn_fields / sizeof dt_jn_fields[0];
 

@@ -263,6 +263,7 @@ static int state_ok(const dt_judgement *s) {
         s->cf[i] > 1.0)
       return 0;
   if (s->covering != 0 && s->covering != 1) return 0;
+  if (s->hyperfine != 0 && s->hyperfine != 1) return 0;
   if (s->has_fit && s->fit.ncomp != s->ncomp) return 0;
   if (s->nsys > DT_JUDGE_MAX_SYS || s->nsysv > DT_JUDGE_MAX_SYS) return 0;
   for (size_t i = 0; i < s->nsys; i++)
@@ -438,7 +439,7 @@ int dt_judgement_same(const dt_judgement *a, const dt_judgement *b) {
     if (!same_d(a->win[i].lo, b->win[i].lo) || !same_d(a->win[i].hi, b->win[i].hi)) return 0;
   for (size_t i = 0; i < a->ncomp; i++)
     if (!same_comp(&a->comp[i], &b->comp[i]) || a->frozen[i] != b->frozen[i]) return 0;
-  if (a->covering != b->covering) return 0;
+  if (a->covering != b->covering || a->hyperfine != b->hyperfine) return 0;
   for (size_t i = 0; a->covering && i < a->ncomp; i++)
     if (!same_d(a->cf[i], b->cf[i])) return 0;
   if (strncmp(a->note, b->note, sizeof a->note) != 0) return 0;

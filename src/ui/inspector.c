@@ -195,7 +195,10 @@ static void target_of(const dt_insp *s, size_t idx, dt_session_target *t, char *
   if (s->q->e[idx].frame != DT_FRAME_UNSET) t->read.in_frame = (dt_frame)s->q->e[idx].frame;
   t->lsf_constant = initial_state(s, idx, &t->initial);
   t->cog = s->cog;
-  if (s->o->hyperfine_all || s->q->e[idx].hyperfine) t->hyperfine = s->o->hyperfine;
+  /* the table for every target (a resumed state may say hfs=1); a first
+   * look splits the lines when the option or the list asks for it */
+  t->hyperfine = s->o->hyperfine;
+  t->initial.hyperfine = s->o->hyperfine && (s->o->hyperfine_all || s->q->e[idx].hyperfine);
   t->defer_intervals = 1; /* drawn a frame later (the event loop) */
   t->has_window = s->q->e[idx].has_window;
   t->systems = s->o->systems;

@@ -52,7 +52,8 @@ if need_py "split lines against scipy.special.wofz"; then
   check "list hfs=0: the same b as single lines ($l2)" [ -n "$l2" -a "$l2" = "$(field b_kms "$TMP/single.csv" 1)" ]
 
   # the inspector (headless) with hfs=1 fits what fit --hyperfine fits; the
-  # session does not record the option, so log --verify needs --hyperfine
+  # session records hfs=1 with the state, so log --verify and figure refit
+  # and draw it split with no option
   mkdir -p "$TMP/ins"
   cp "$TMP/split7.txt" "$TMP/ins/"
   printf 'split7.txt R=100000 window=-100:100 hfs=1\n' >"$TMP/ins/t.list"
@@ -62,14 +63,19 @@ if need_py "split lines against scipy.special.wofz"; then
   bh=$(field b_kms "$TMP/hfs.csv" 1)
   check "inspect with hfs=1 records b = $bi, as fit --hyperfine ($bh)" \
     awk -v x="$bi" -v y="$bh" 'BEGIN { d = x - y; exit !(x != "" && d * d < 1e-6) }'
-  $DT log --verify "$TMP/ins/s.session" >"$TMP/v1.out" 2>&1
-  check "log --verify without --hyperfine: the refit differs" grep -q '^MISMATCH' "$TMP/v1.out"
-  $DT log --verify --hyperfine "$TMP/ins/s.session" >"$TMP/v2.out" 2>&1
-  check "log --verify --hyperfine reproduces the fit" grep -q '^reproduced    split7.txt#NaI' "$TMP/v2.out"
-  (cd "$TMP/ins" && $DT figure --hyperfine s.session -o "$TMP/fig" --format svg >/dev/null 2>&1)
-  check "figure --hyperfine draws the session's spectrum" test -s "$TMP/fig/split7_NaI.svg"
+  check "the session records hfs=1 with the state" grep -q '	hfs=1' "$TMP/ins/s.session"
+  $DT log --verify "$TMP/ins/s.session" >"$TMP/v2.out" 2>&1
+  check "log --verify reproduces the split fit with no option" grep -q '^reproduced    split7.txt#NaI' "$TMP/v2.out"
+  # a second look without hfs= in the list keeps the recorded state's lines split
+  printf 'split7.txt R=100000 window=-100:100\n' >"$TMP/ins/t2.list"
+  printf 'refit\nquit\n' >"$TMP/ins/keys2"
+  $DT inspect --replay-keys "$TMP/ins/keys2" --session "$TMP/ins/s.session" --list "$TMP/ins/t2.list" --user t >/dev/null 2>&1
+  bj=$(grep -o 'c1=logN=[^	]*' "$TMP/ins/s.session" | tail -n 1 | sed 's/.*,b=\([0-9.]*\).*/\1/')
+  check "resumed without hfs=: the refit stays split (b = $bj)" \
+    awk -v x="$bj" -v y="$bh" 'BEGIN { d = x - y; exit !(x != "" && d * d < 1e-4) }'
+  (cd "$TMP/ins" && $DT figure s.session -o "$TMP/fig" --format svg >/dev/null 2>&1)
+  check "figure draws the session's spectrum" test -s "$TMP/fig/split7_NaI.svg"
 fi
-expect_fail "log --hyperfine without --verify" "applies to refits" $DT log --hyperfine "$TMP/none.session"
 
 # ---- bad input ------------------------------------------------------------
 printf 'x.txt hfs=2\n' >"$TMP/bad.list"

@@ -250,6 +250,16 @@ static void test_version3(void) {
   int rc = dt_journal_append(j, &t, &a, &after, NULL, &e);
   CHECK(rc == DT_EVERSION && strstr(e.what, "version 3"), "a link is refused in version 3: %s",
         rc ? e.what : "accepted");
+  /* a state whose lines are split into hyperfine components (hfs=1, new
+     in version 4) is refused too */
+  dt_action_init(&a, DT_ACT_NOTE);
+  snprintf(a.text, sizeof a.text, "split");
+  after = s;
+  dt_judgement_apply(&after, &a);
+  after.hyperfine = 1;
+  rc = dt_journal_append(j, &t, &a, &after, NULL, &e);
+  CHECK(rc == DT_EVERSION && strstr(e.what, "hyperfine"), "hyperfine structure is refused in version 3: %s",
+        rc ? e.what : "accepted");
   dt_action_init(&a, DT_ACT_NOTE);
   snprintf(a.text, sizeof a.text, "still version 3");
   after = s;
@@ -259,7 +269,7 @@ static void test_version3(void) {
   size_t n;
   char *txt = (char *)slurp(tpath("v3.session"), &n);
   CHECK(txt && !strncmp(txt, text, strlen(text)) && txt[18] == '3' && !strstr(txt, "linked=") &&
-            !strstr(txt, "act=link") && strstr(txt, "note=still version 3"),
+            !strstr(txt, "act=link") && !strstr(txt, "hfs=") && strstr(txt, "note=still version 3"),
         "the file stays version 3, its lines as they were, no link written");
   free(txt);
 }
