@@ -231,7 +231,7 @@ int dt_lsf_per_parse(const char *text, const char *what, dt_lsf_per *p, dt_err *
       num = colon + 1;
       if (!*part || strlen(part) >= sizeof name)
         return dt_err_set(e, DT_EINVAL, NULL, "%s: '%.60s' names no doublet before ':'", what, part);
-      snprintf(name, sizeof name, "%s", part);
+      snprintf(name, sizeof name, "%.15s", part);
     }
     double v;
     if (dt_num_parse(num, &v) != DT_OK || !isfinite(v) || !(v > 0))

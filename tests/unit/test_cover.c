@@ -82,7 +82,7 @@ static void reference(const dt_doublet *d, const pix *p, const dt_component *c,
   double step = 0.002;
   double lo = p->wave[0] - 1.0, hi = p->wave[p->n - 1] + 1.0;
   size_t nf = (size_t)((hi - lo) / step);
-  double *fw = malloc(nf * sizeof(double)), *prod = malloc(nf * sizeof(double));
+  double *fw = calloc(nf, sizeof(double)), *prod = malloc(nf * sizeof(double));
   double *one = malloc(nf * sizeof(double)), *conv = malloc(nf * sizeof(double));
   for (size_t i = 0; i < nf; i++) {
     fw[i] = lo + step * (double)i;
