@@ -167,6 +167,15 @@ typedef struct dt_joint_opts {
   double detect_sigma;             /* N / sigma_N of a detection (0: 3) */
   int max_iter;                    /* 0: DT_FIT_MAX_ITER */
   double time_limit;               /* seconds; 0: the low level's default */
+  /* A resolution of a species' own (resolving power R, or when that is
+   * <= 0 an LSF FWHM [km/s]), by doublet name as the atomic table spells
+   * it; a species not named takes the main judgement's.  Widths per pixel
+   * of the spectrum (an.lsf_constant 0) come before both. */
+  size_t nres;
+  struct {
+    char doublet[16];
+    double resolution, fwhm_kms;
+  } res[DT_JOINT_MAX_SPECIES];
 } dt_joint_opts;
 
 void dt_joint_opts_init(dt_joint_opts *o);

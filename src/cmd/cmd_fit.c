@@ -831,6 +831,25 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
     if (c->hyperfine || t->hyperfine) jo.an.hyperfine = r->hfs;
     j.hyperfine = c->hyperfine || t->hyperfine;
     jo.an.lsf_constant = lsf_constant;
+    /* each doublet's own resolution (--resolution NaI:4800,CaII:3600, the
+     * list's R=, the file's widths at its lines) */
+    for (size_t q = 0; q < n && jo.nres < DT_JOINT_MAX_SPECIES; q++) {
+      const dt_doublet *dq = dt_atomic_find(r->atomic, names[q]);
+      dt_judgement *rj = malloc(sizeof *rj);
+      int cq;
+      const char *lq;
+      dt_err eq;
+      if (dq && rj) {
+        *rj = j;
+        if (pick_resolution(c, t, s, dq, rj, &cq, &lq, &eq) == DT_OK) {
+          snprintf(jo.res[jo.nres].doublet, sizeof jo.res[0].doublet, "%s", dq->name);
+          jo.res[jo.nres].resolution = rj->resolution;
+          jo.res[jo.nres].fwhm_kms = rj->fwhm_kms;
+          jo.nres++;
+        }
+      }
+      free(rj);
+    }
     dt_joint_analysis_set_opts(ja, &jo);
     dt_autofit_opts fo;
     dt_autofit_opts_init(&fo);

@@ -135,12 +135,27 @@ static int list_species(const dt_judgement *j, const char *const *linked, size_t
   return DT_OK;
 }
 
-/* The judgement as species s sees it: its doublet, no components, the
- * continuum windows that lie in its continuum region. */
+/* The resolution of doublet d: its own from the options, else j's. */
+static void species_resolution(const dt_joint_analysis *ja, const dt_judgement *j,
+                               const dt_doublet *d, double *R, double *fwhm) {
+  *R = j->resolution;
+  *fwhm = j->fwhm_kms;
+  for (size_t i = 0; i < ja->opts.nres && i < DT_JOINT_MAX_SPECIES; i++)
+    if (!strcmp(ja->opts.res[i].doublet, d->name) &&
+        (ja->opts.res[i].resolution > 0 || ja->opts.res[i].fwhm_kms > 0)) {
+      *R = ja->opts.res[i].resolution > 0 ? ja->opts.res[i].resolution : 0;
+      *fwhm = *R > 0 ? 0 : ja->opts.res[i].fwhm_kms;
+      return;
+    }
+}
+
+/* The judgement as species s sees it: its doublet and resolution, no
+ * components, the continuum windows that lie in its continuum region. */
 static void species_judgement(const dt_joint_analysis *ja, const dt_judgement *j,
                               const dt_doublet *d, int own, dt_judgement *sj) {
   *sj = *j;
   snprintf(sj->doublet, sizeof sj->doublet, "%s", d->name);
+  species_resolution(ja, j, d, &sj->resolution, &sj->fwhm_kms);
   sj->ncomp = 0;
   sj->has_fit = 0;
   memset(sj->frozen, 0, sizeof sj->frozen);
@@ -195,8 +210,7 @@ static int ensure_model(dt_joint_analysis *ja, size_t s, const dt_judgement *j,
   memset(&k, 0, sizeof k);
   k.d = d;
   k.vsys = j->vsys;
-  k.resolution = j->resolution;
-  k.fwhm = j->fwhm_kms;
+  species_resolution(ja, j, d, &k.resolution, &k.fwhm);
   k.tau_cut = ja->opts.an.tau_cut;
   k.oversample = ja->opts.an.oversample;
   k.wave = wave;

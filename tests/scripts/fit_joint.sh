@@ -123,4 +123,20 @@ expect_fail "thermal with an element of unknown mass" "no atomic mass for 'XqI' 
   $DT fit --atomic "$TMP/xq.dat" --doublet NaI,XqI --joint --b-tie thermal "$TMP/two.txt"
 expect_fail "--joint with --joint-continuum" "not available" \
   $DT fit --doublet NaI,CaII --joint --joint-continuum 2 "$TMP/two.txt"
+# ---- a resolution per doublet reaches the linked one -----------------------
+# The spectrum has no instrumental broadening; told that Ca II is seen
+# through a 20 km/s line-spread function (and Na I through 1 km/s), a free
+# b for Ca II must come out narrower than with 1 km/s for both, Na I's b
+# unchanged (the LSF takes the width in quadrature, common practice).
+$DT fit --doublet NaI,CaII --joint --b-tie free --fwhm 1 "$TMP/two.txt" >"$TMP/r1.csv" 2>/dev/null
+$DT fit --doublet NaI,CaII --joint --b-tie free --fwhm NaI:1,CaII:20 "$TMP/two.txt" >"$TMP/r2.csv" 2>/dev/null
+bcol() { awk -F, -v d="$2" '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[$i] = i; next }
+  $c["doublet"] == d && $c["component"] == 1 { print $c["b_kms"] }' "$1"; }
+b1=$(bcol "$TMP/r1.csv" CaII); b2=$(bcol "$TMP/r2.csv" CaII)
+n1=$(bcol "$TMP/r1.csv" NaI); n2=$(bcol "$TMP/r2.csv" NaI)
+check "per-doublet --fwhm: Ca II b narrower through its own LSF ($b1 -> $b2)" \
+  awk -v x="$b1" -v y="$b2" 'BEGIN { exit !(x != "" && y != "" && y < x - 1) }'
+check "per-doublet --fwhm: Na I b unchanged ($n1, $n2)" \
+  awk -v x="$n1" -v y="$n2" 'BEGIN { d = x - y; exit !(x != "" && d * d < 0.25) }'
+
 finish
