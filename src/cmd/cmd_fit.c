@@ -1506,6 +1506,11 @@ int cmd_fit(int argc, char **argv) {
     cli_errorf("fit: --joint fits with fixed continua: --joint-continuum is not available with it");
     goto done;
   }
+  if (c.joint && c.covering) {
+    cli_errorf("fit: partial covering is fitted for one doublet at a time: --covering is not "
+               "available with --joint");
+    goto done;
+  }
   if (c.have_R && c.have_fwhm) {
     cli_errorf("fit: give --resolution or --fwhm, not both");
     goto done;

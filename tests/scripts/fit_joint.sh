@@ -139,4 +139,6 @@ check "per-doublet --fwhm: Ca II b narrower through its own LSF ($b1 -> $b2)" \
 check "per-doublet --fwhm: Na I b unchanged ($n1, $n2)" \
   awk -v x="$n1" -v y="$n2" 'BEGIN { d = x - y; exit !(x != "" && d * d < 0.25) }'
 
+expect_fail "--joint with --covering" "not available with --joint" \
+  $DT fit --doublet NaI,CaII --joint --covering "$TMP/two.txt"
 finish
