@@ -55,8 +55,8 @@
 #include <time.h>
 
 #include "gsl_quiet.h"
+#include "lsq.h"
 
-#define NCACHE 6
 #define MAXPAR (4 * DT_MAX_COMP + DT_MAX_CONT)
 #define BAD_RESIDUAL 1e100   /* stands in for a non-finite residual: the
                                 trial step is then rejected by the solver */
@@ -79,14 +79,6 @@
                                 checked by a second, accelerated run */
 
 enum { P_N, P_B, P_V, P_C, P_F };
-
-typedef struct solver_slot {
-  size_t n, p;
-  int accel;
-  gsl_multifit_nlinear_workspace *w;
-  gsl_matrix *cov;
-  unsigned long used;
-} solver_slot;
 
 struct dt_fit_workspace {
   size_t max_pix, max_comp, max_cont;
@@ -113,8 +105,7 @@ struct dt_fit_workspace {
   double cfinit[DT_MAX_COMP], cfcur[DT_MAX_COMP];
   double *cjac;                /* dF/dC_k over all model pixels */
   dt_cover_work *cw;
-  solver_slot slot[NCACHE];
-  unsigned long tick;
+  dt_lsq_cache cache;
   dt_fit_info info;
 };
 
@@ -149,10 +140,7 @@ dt_fit_workspace *dt_fit_alloc(size_t max_pix, size_t max_comp, size_t max_cont)
 
 void dt_fit_free(dt_fit_workspace *w) {
   if (!w) return;
-  for (int i = 0; i < NCACHE; i++) {
-    if (w->slot[i].w) gsl_multifit_nlinear_free(w->slot[i].w);
-    if (w->slot[i].cov) gsl_matrix_free(w->slot[i].cov);
-  }
+  dt_lsq_cache_free(&w->cache);
   free(w->idx);
   free(w->y);
   free(w->isig);
@@ -166,32 +154,6 @@ void dt_fit_free(dt_fit_workspace *w) {
 }
 
 const dt_fit_info *dt_fit_last_info(const dt_fit_workspace *w) { return &w->info; }
-
-/* Logistic map of an internal parameter u onto (lo, hi) and back. */
-static double to_external(double u, double lo, double hi, double *deriv) {
-  double s;
-  if (u >= 0) {
-    double e = exp(-u);
-    s = 1.0 / (1.0 + e);
-  } else {
-    double e = exp(u);
-    s = e / (1.0 + e);
-  }
-  if (deriv) *deriv = (hi - lo) * s * (1.0 - s);
-  return lo + (hi - lo) * s;
-}
-
-static double clamp_inside(double v, double lo, double hi) {
-  double m = BOUND_MARGIN * (hi - lo);
-  if (v < lo + m) v = lo + m;
-  if (v > hi - m) v = hi - m;
-  return v;
-}
-
-static double to_internal(double v, double lo, double hi) {
-  v = clamp_inside(v, lo, hi);
-  return log((v - lo) / (hi - v));
-}
 
 /* Set cur[] and ccur[] from the internal vector x (x may be NULL for the
  * initial values), and dvdu[] for the Jacobian. */
@@ -211,10 +173,10 @@ static void set_params(dt_fit_workspace *w, const double *x) {
       continue;
     }
     if (w->ptype[i] == P_F) {
-      w->cfcur[k] = to_external(x[i], w->plo[i], w->phi[i], &w->dvdu[i]);
+      w->cfcur[k] = dt_lsq_to_external(x[i], w->plo[i], w->phi[i], &w->dvdu[i]);
       continue;
     }
-    double val = to_external(x[i], w->plo[i], w->phi[i], &w->dvdu[i]);
+    double val = dt_lsq_to_external(x[i], w->plo[i], w->phi[i], &w->dvdu[i]);
     if (w->ptype[i] == P_B) { /* the logistic acts on ln b */
       val = exp(val);
       w->dvdu[i] *= val;
@@ -321,42 +283,6 @@ static int resid_df(const gsl_vector *x, void *params, gsl_matrix *J) {
   return GSL_SUCCESS;
 }
 
-static solver_slot *get_solver(dt_fit_workspace *w, size_t n, size_t p, int accel) {
-  solver_slot *best = &w->slot[0];
-  w->tick++;
-  for (int i = 0; i < NCACHE; i++) {
-    solver_slot *s = &w->slot[i];
-    if (s->w && s->n == n && s->p == p && s->accel == accel) {
-      s->used = w->tick;
-      return s;
-    }
-    if (!s->w || s->used < best->used) best = s;
-    if (!s->w) break;
-  }
-  if (best->w) gsl_multifit_nlinear_free(best->w);
-  if (best->cov) gsl_matrix_free(best->cov);
-  best->w = NULL;
-  best->cov = NULL;
-  gsl_multifit_nlinear_parameters par = gsl_multifit_nlinear_default_parameters();
-  par.trs = accel ? gsl_multifit_nlinear_trs_lmaccel : gsl_multifit_nlinear_trs_lm;
-  par.scale = gsl_multifit_nlinear_scale_more;
-  par.solver = gsl_multifit_nlinear_solver_mcholesky;
-  best->w = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &par, n, p);
-  best->cov = gsl_matrix_alloc(p, p);
-  if (!best->w || !best->cov) {
-    if (best->w) gsl_multifit_nlinear_free(best->w);
-    if (best->cov) gsl_matrix_free(best->cov);
-    best->w = NULL;
-    best->cov = NULL;
-    return NULL;
-  }
-  best->n = n;
-  best->p = p;
-  best->accel = accel;
-  best->used = w->tick;
-  return best;
-}
-
 /* Validate the problem and lay out the packed pixel arrays and the
  * parameter map.  Returns a dt_status. */
 static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
@@ -401,7 +327,7 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
     if (!isfinite(c.logN) || !isfinite(c.b) || !isfinite(c.v))
       return dt_err_set(e, DT_EINVAL, "fit", "component %zu has a non-finite value", k + 1);
     if (!(fr & DT_FREEZE_N)) {
-      c.logN = clamp_inside(c.logN, DT_FIT_LOGN_MIN, DT_FIT_LOGN_MAX);
+      c.logN = dt_lsq_clamp_inside(c.logN, DT_FIT_LOGN_MIN, DT_FIT_LOGN_MAX, BOUND_MARGIN);
       w->ptype[q] = P_N; w->pcomp[q] = (int)k;
       w->plo[q] = DT_FIT_LOGN_MIN; w->phi[q] = DT_FIT_LOGN_MAX; q++;
     }
@@ -410,14 +336,15 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
     if (b_free) {
       w->plo[q] = log(DT_FIT_B_MIN);
       w->phi[q] = log(DT_FIT_B_MAX);
-      c.b = exp(clamp_inside(log(c.b > DT_FIT_B_MIN ? c.b : DT_FIT_B_MIN), w->plo[q], w->phi[q]));
+      c.b = exp(dt_lsq_clamp_inside(log(c.b > DT_FIT_B_MIN ? c.b : DT_FIT_B_MIN), w->plo[q], w->phi[q],
+                                    BOUND_MARGIN));
       w->ptype[q] = P_B; w->pcomp[q] = p->tie_b ? -1 : (int)k;
       q++;
     } else if (c.b <= 0 && (!p->tie_b || k == 0)) {
       return dt_err_set(e, DT_EINVAL, "fit", "component %zu has b <= 0", k + 1);
     }
     if (!(fr & DT_FREEZE_V)) {
-      c.v = clamp_inside(c.v, p->vlo, p->vhi);
+      c.v = dt_lsq_clamp_inside(c.v, p->vlo, p->vhi, BOUND_MARGIN);
       w->ptype[q] = P_V; w->pcomp[q] = (int)k;
       w->plo[q] = p->vlo; w->phi[q] = p->vhi; q++;
     }
@@ -431,7 +358,7 @@ static int setup(dt_fit_workspace *w, const dt_fit_problem *p, dt_err *e) {
         if (!(cf > 0.0 && cf < 1.0)) cf = DT_CF_START;
         w->ptype[q] = P_F; w->pcomp[q] = (int)k;
         w->plo[q] = 0.0; w->phi[q] = 1.0; q++;
-        cf = clamp_inside(cf, 0.0, 1.0);
+        cf = dt_lsq_clamp_inside(cf, 0.0, 1.0, BOUND_MARGIN);
       } else if (!(cf > 0.0 && cf <= 1.0)) {
         cf = 1.0;
       }
@@ -640,7 +567,7 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
   for (size_t q = 0; q < w->npar; q++) {
     at[q] = 0;
     if (w->ptype[q] != P_C) {
-      double sg = to_external(x[q], 0.0, 1.0, NULL);
+      double sg = dt_lsq_to_external(x[q], 0.0, 1.0, NULL);
       at[q] = sg < BOUND_FLAG || sg > 1.0 - BOUND_FLAG;
     }
     nbound += at[q];
@@ -683,7 +610,7 @@ static void cover_columns(dt_fit_workspace *w, gsl_matrix *J, int *cf_ext) {
  * solver holding the final state, rs->why NULL when converged or the
  * reason; *iter is increased by the iterations done. */
 typedef struct run_state {
-  solver_slot *slot;
+  dt_lsq_slot *slot;
   int info;
   double chi2;
   const char *why;
@@ -699,12 +626,12 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
   rs->why = NULL;
   rs->info = 0;
   rs->chi2 = INFINITY;
-  rs->slot = get_solver(w, w->nused, w->npar, accel);
+  rs->slot = dt_lsq_get(&w->cache, w->nused, w->npar, accel);
   if (!rs->slot) {
     rs->why = "out of memory";
     return;
   }
-  solver_slot *slot = rs->slot;
+  dt_lsq_slot *slot = rs->slot;
   int stalls = 0, done = 0, n = 0;
   double chi2 = INFINITY;
   if (gsl_multifit_nlinear_init(&xv.vector, fdf, slot->w) != GSL_SUCCESS)
@@ -734,7 +661,7 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
        * blended lines, or a parameter against a bound).  Continue with
        * geodesic acceleration (Transtrum & Sethna 2012, arXiv:1201.5885),
        * GSL's lmaccel, from the current point. */
-      solver_slot *acc = get_solver(w, w->nused, w->npar, 1);
+      dt_lsq_slot *acc = dt_lsq_get(&w->cache, w->nused, w->npar, 1);
       if (acc) {
         gsl_vector_memcpy(&xv.vector, gsl_multifit_nlinear_position(slot->w));
         if (gsl_multifit_nlinear_init(&xv.vector, fdf, acc->w) == GSL_SUCCESS) {
@@ -775,7 +702,7 @@ static int suspicious(const dt_fit_workspace *w, const run_state *rs) {
   const double *x = gsl_multifit_nlinear_position(rs->slot->w)->data;
   for (size_t q = 0; q < w->npar; q++) {
     if (w->ptype[q] == P_C || w->ptype[q] == P_F) continue;
-    double s = to_external(x[q], 0.0, 1.0, NULL);
+    double s = dt_lsq_to_external(x[q], 0.0, 1.0, NULL);
     if (s < SUSPECT_EDGE || s > 1.0 - SUSPECT_EDGE) return 1;
   }
   return 0;
@@ -814,10 +741,10 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   for (size_t q = 0; q < w->npar; q++) {
     int k = w->pcomp[q];
     switch (w->ptype[q]) {
-    case P_N: x0[q] = to_internal(w->init[k].logN, w->plo[q], w->phi[q]); break;
-    case P_B: x0[q] = to_internal(log(w->init[k < 0 ? 0 : k].b), w->plo[q], w->phi[q]); break;
-    case P_V: x0[q] = to_internal(w->init[k].v, w->plo[q], w->phi[q]); break;
-    case P_F: x0[q] = to_internal(w->cfinit[k], w->plo[q], w->phi[q]); break;
+    case P_N: x0[q] = dt_lsq_to_internal(w->init[k].logN, w->plo[q], w->phi[q], BOUND_MARGIN); break;
+    case P_B: x0[q] = dt_lsq_to_internal(log(w->init[k < 0 ? 0 : k].b), w->plo[q], w->phi[q], BOUND_MARGIN); break;
+    case P_V: x0[q] = dt_lsq_to_internal(w->init[k].v, w->plo[q], w->phi[q], BOUND_MARGIN); break;
+    case P_F: x0[q] = dt_lsq_to_internal(w->cfinit[k], w->plo[q], w->phi[q], BOUND_MARGIN); break;
     default: x0[q] = w->ccur[k];
     }
   }
@@ -848,7 +775,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
     r->status = DT_ENOMEM;
     return dt_err_set(e, DT_ENOMEM, "fit", "out of memory");
   }
-  solver_slot *slot = rs.slot;
+  dt_lsq_slot *slot = rs.slot;
   const char *why = rs.why;
   /* Both runs may have ended in the same solver (the plain run switches to
    * the accelerated one): put the chosen state back if it was overwritten. */
@@ -883,7 +810,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
     default: r->cont_err[k] = err;
     }
     if (w->ptype[q] != P_C && w->ptype[q] != P_F) {
-      double s = (to_external(xs->data[q], 0.0, 1.0, NULL));
+      double s = (dt_lsq_to_external(xs->data[q], 0.0, 1.0, NULL));
       if (s < BOUND_FLAG || s > 1 - BOUND_FLAG) {
         int bit = w->ptype[q] == P_N ? DT_FREEZE_N : w->ptype[q] == P_B ? DT_FREEZE_B
                                                                           : DT_FREEZE_V;

@@ -39,8 +39,8 @@
 #include <time.h>
 
 #include "gsl_quiet.h"
+#include "lsq.h"
 
-#define NCACHE 4
 #define MAXPAR (DT_MAX_COMP * (2 + 2 * DT_JOINT_MAX_SPECIES))
 #define BAD_RESIDUAL 1e100
 #define XTOL 1e-8
@@ -89,14 +89,6 @@ double dt_joint_b_thermal(double T, double b_turb, double mass_u) {
   return sqrt(b_turb * b_turb + THERMAL_C * T / mass_u);
 }
 
-typedef struct solver_slot {
-  size_t n, p;
-  int accel;
-  gsl_multifit_nlinear_workspace *w;
-  gsl_matrix *cov;
-  unsigned long used;
-} solver_slot;
-
 struct dt_joint_workspace {
   size_t max_spec, max_pix, max_comp;
   /* packed over the usable pixels of all species */
@@ -118,8 +110,7 @@ struct dt_joint_workspace {
   double v[DT_MAX_COMP], T[DT_MAX_COMP], bt[DT_MAX_COMP];
   dt_component cur[DT_JOINT_MAX_SPECIES][DT_MAX_COMP];
   double dbdT[DT_JOINT_MAX_SPECIES][DT_MAX_COMP], dbdbt[DT_JOINT_MAX_SPECIES][DT_MAX_COMP];
-  solver_slot slot[NCACHE];
-  unsigned long tick;
+  dt_lsq_cache cache;
 };
 
 static double now_seconds(void) {
@@ -154,10 +145,7 @@ dt_joint_workspace *dt_joint_alloc(size_t max_spec, size_t max_pix, size_t max_c
 
 void dt_joint_free(dt_joint_workspace *w) {
   if (!w) return;
-  for (int i = 0; i < NCACHE; i++) {
-    if (w->slot[i].w) gsl_multifit_nlinear_free(w->slot[i].w);
-    if (w->slot[i].cov) gsl_matrix_free(w->slot[i].cov);
-  }
+  dt_lsq_cache_free(&w->cache);
   free(w->idx);
   free(w->spx);
   free(w->y);
@@ -168,32 +156,6 @@ void dt_joint_free(dt_joint_workspace *w) {
   free(w);
 }
 
-/* Logistic map of u onto (lo, hi), its derivative, and back (as fit.c). */
-static double to_external(double u, double lo, double hi, double *deriv) {
-  double s;
-  if (u >= 0) {
-    double e = exp(-u);
-    s = 1.0 / (1.0 + e);
-  } else {
-    double e = exp(u);
-    s = e / (1.0 + e);
-  }
-  if (deriv) *deriv = (hi - lo) * s * (1.0 - s);
-  return lo + (hi - lo) * s;
-}
-
-static double clamp_inside(double v, double lo, double hi) {
-  double m = BOUND_MARGIN * (hi - lo);
-  if (v < lo + m) v = lo + m;
-  if (v > hi - m) v = hi - m;
-  return v;
-}
-
-static double to_internal(double v, double lo, double hi) {
-  v = clamp_inside(v, lo, hi);
-  return log((v - lo) / (hi - v));
-}
-
 static void add_param(dt_joint_workspace *w, int type, size_t k, int s, double lo, double hi,
                       double start) {
   size_t q = w->npar++;
@@ -202,7 +164,7 @@ static void add_param(dt_joint_workspace *w, int type, size_t k, int s, double l
   w->pspec[q] = s;
   w->plo[q] = lo;
   w->phi[q] = hi;
-  w->x0[q] = to_internal(start, lo, hi);
+  w->x0[q] = dt_lsq_to_internal(start, lo, hi, BOUND_MARGIN);
 }
 
 /* The physical values from the internal vector x, the derivatives of the
@@ -210,7 +172,7 @@ static void add_param(dt_joint_workspace *w, int type, size_t k, int s, double l
 static void set_params(dt_joint_workspace *w, const double *x) {
   const dt_joint_problem *p = w->prob;
   for (size_t q = 0; q < w->npar; q++) {
-    double val = to_external(x[q], w->plo[q], w->phi[q], &w->dvdu[q]);
+    double val = dt_lsq_to_external(x[q], w->plo[q], w->phi[q], &w->dvdu[q]);
     int k = w->pcomp[q], s = w->pspec[q];
     switch (w->ptype[q]) {
     case P_V: w->v[k] = val; break;
@@ -315,42 +277,6 @@ static int resid_df(const gsl_vector *x, void *params, gsl_matrix *J) {
     }
   }
   return GSL_SUCCESS;
-}
-
-static solver_slot *get_solver(dt_joint_workspace *w, size_t n, size_t p, int accel) {
-  solver_slot *best = &w->slot[0];
-  w->tick++;
-  for (int i = 0; i < NCACHE; i++) {
-    solver_slot *s = &w->slot[i];
-    if (s->w && s->n == n && s->p == p && s->accel == accel) {
-      s->used = w->tick;
-      return s;
-    }
-    if (!s->w || s->used < best->used) best = s;
-    if (!s->w) break;
-  }
-  if (best->w) gsl_multifit_nlinear_free(best->w);
-  if (best->cov) gsl_matrix_free(best->cov);
-  best->w = NULL;
-  best->cov = NULL;
-  gsl_multifit_nlinear_parameters par = gsl_multifit_nlinear_default_parameters();
-  par.trs = accel ? gsl_multifit_nlinear_trs_lmaccel : gsl_multifit_nlinear_trs_lm;
-  par.scale = gsl_multifit_nlinear_scale_more;
-  par.solver = gsl_multifit_nlinear_solver_mcholesky;
-  best->w = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &par, n, p);
-  best->cov = gsl_matrix_alloc(p, p);
-  if (!best->w || !best->cov) {
-    if (best->w) gsl_multifit_nlinear_free(best->w);
-    if (best->cov) gsl_matrix_free(best->cov);
-    best->w = NULL;
-    best->cov = NULL;
-    return NULL;
-  }
-  best->n = n;
-  best->p = p;
-  best->accel = accel;
-  best->used = w->tick;
-  return best;
 }
 
 /* Validate, lay out the parameters (per component: v, the b parameters of
@@ -494,7 +420,7 @@ static double newton_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *co
 }
 
 typedef struct run_state {
-  solver_slot *slot;
+  dt_lsq_slot *slot;
   double chi2;
   const char *why;
   double x[MAXPAR];
@@ -511,12 +437,12 @@ static void solve(dt_joint_workspace *w, gsl_multifit_nlinear_fdf *fdf, int acce
   gsl_vector_view xv = gsl_vector_view_array(xbuf, w->npar);
   rs->why = NULL;
   rs->chi2 = INFINITY;
-  rs->slot = get_solver(w, w->nused, w->npar, accel);
+  rs->slot = dt_lsq_get(&w->cache, w->nused, w->npar, accel);
   if (!rs->slot) {
     rs->why = "out of memory";
     return;
   }
-  solver_slot *slot = rs->slot;
+  dt_lsq_slot *slot = rs->slot;
   int stalls = 0, done = 0, n = 0;
   double chi2 = INFINITY;
   if (gsl_multifit_nlinear_init(&xv.vector, fdf, slot->w) != GSL_SUCCESS)
@@ -548,7 +474,7 @@ static void solve(dt_joint_workspace *w, gsl_multifit_nlinear_fdf *fdf, int acce
     }
     stalls = 0;
     if (!accel && n == ACCEL_AFTER) {
-      solver_slot *acc = get_solver(w, w->nused, w->npar, 1);
+      dt_lsq_slot *acc = dt_lsq_get(&w->cache, w->nused, w->npar, 1);
       if (acc) {
         gsl_vector_memcpy(&xv.vector, gsl_multifit_nlinear_position(slot->w));
         if (gsl_multifit_nlinear_init(&xv.vector, fdf, acc->w) == GSL_SUCCESS) {
@@ -580,7 +506,7 @@ static int suspicious(const dt_joint_workspace *w, const run_state *rs) {
   double dof = (double)w->nused - (double)w->npar;
   if (dof > 0 && rs->chi2 > dof + SUSPECT_CHI2 * sqrt(2.0 * dof)) return 1;
   for (size_t q = 0; q < w->npar; q++) {
-    double s = to_external(rs->x[q], 0.0, 1.0, NULL);
+    double s = dt_lsq_to_external(rs->x[q], 0.0, 1.0, NULL);
     if (s < SUSPECT_EDGE || s > 1.0 - SUSPECT_EDGE) return 1;
   }
   return 0;
@@ -613,7 +539,7 @@ static void fill_values(dt_joint_workspace *w, dt_joint_result *r, double chi2) 
 
 /* 1-sigma errors from (J^T J)^-1, mapped through the transforms; the b of
  * each species under `thermal` from the covariance of (T, b_turb). */
-static void fill_errors(dt_joint_workspace *w, solver_slot *slot, dt_joint_result *r) {
+static void fill_errors(dt_joint_workspace *w, dt_lsq_slot *slot, dt_joint_result *r) {
   gsl_matrix *J = gsl_multifit_nlinear_jac(slot->w);
   gsl_multifit_nlinear_covar(J, 1e-11, slot->cov);
   const gsl_matrix *C = slot->cov;
@@ -703,7 +629,7 @@ int dt_joint_run(dt_joint_workspace *w, const dt_joint_problem *p, dt_joint_resu
     w->prob = NULL;
     return dt_err_set(e, DT_ENOMEM, "joint fit", "out of memory");
   }
-  solver_slot *slot = rs.slot;
+  dt_lsq_slot *slot = rs.slot;
   if (memcmp(gsl_multifit_nlinear_position(slot->w)->data, rs.x, w->npar * sizeof rs.x[0])) {
     gsl_vector_view xv = gsl_vector_view_array(rs.x, w->npar);
     gsl_multifit_nlinear_init(&xv.vector, &fdf, slot->w);
