@@ -483,6 +483,24 @@ static int pick_resolution(const config *c, const dt_target_spec *t, const dt_sp
   return DT_OK;
 }
 
+/* The judgement of a first pass of doublet d at vsys: the window (option,
+ * else the list's), the continuum order, the resolution (pick_resolution). */
+static int setup_judgement(const config *c, const dt_target_spec *t, const dt_spectrum *s,
+                           const dt_doublet *d, double vsys, dt_judgement *j, int *constant,
+                           const char **label, dt_err *e) {
+  snprintf(j->doublet, sizeof j->doublet, "%s", d->name);
+  j->vsys = vsys;
+  if (c->have_window) {
+    j->vlo = c->vlo;
+    j->vhi = c->vhi;
+  } else if (t->has_window) {
+    j->vlo = t->vlo;
+    j->vhi = t->vhi;
+  }
+  if (c->have_order) j->cont_order = c->cont_order;
+  return pick_resolution(c, t, s, d, j, constant, label, e);
+}
+
 /* Both lines of the doublet at vsys must fall inside the data. */
 static int check_coverage(const dt_spectrum *s, const dt_doublet *d, double vsys,
                           dt_err *e) {
@@ -559,17 +577,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
   r->lsf_label = NULL;
   r->lsf_fwhm = 0;
   if (st == DT_OK) {
-    snprintf(j.doublet, sizeof j.doublet, "%s", d->name);
-    j.vsys = vsys;
-    if (c->have_window) {
-      j.vlo = c->vlo;
-      j.vhi = c->vhi;
-    } else if (t->has_window) {
-      j.vlo = t->vlo;
-      j.vhi = t->vhi;
-    }
-    if (c->have_order) j.cont_order = c->cont_order;
-    st = pick_resolution(c, t, s, d, &j, &lsf_constant, &r->lsf_label, &e);
+    st = setup_judgement(c, t, s, d, vsys, &j, &lsf_constant, &r->lsf_label, &e);
   }
   if (st == DT_OK) st = check_coverage(s, d, vsys, &e);
   if (st == DT_OK) st = check_window(c, t, &j, s, &e);
@@ -791,17 +799,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
   dt_judgement j;
   dt_judgement_init(&j);
   if (st == DT_OK) {
-    snprintf(j.doublet, sizeof j.doublet, "%s", d->name);
-    j.vsys = vsys;
-    if (c->have_window) {
-      j.vlo = c->vlo;
-      j.vhi = c->vhi;
-    } else if (t->has_window) {
-      j.vlo = t->vlo;
-      j.vhi = t->vhi;
-    }
-    if (c->have_order) j.cont_order = c->cont_order;
-    st = pick_resolution(c, t, s, d, &j, &lsf_constant, &r->lsf_label, &e);
+    st = setup_judgement(c, t, s, d, vsys, &j, &lsf_constant, &r->lsf_label, &e);
     /* the lead doublet's width at its stronger line (lsf_fwhm_kms) */
     r->lsf_fwhm = j.resolution > 0 ? DT_C_KMS / j.resolution : j.fwhm_kms;
   }
