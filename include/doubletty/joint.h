@@ -100,6 +100,11 @@ typedef struct dt_joint_problem {
   double T[DT_MAX_COMP];           /* starting T [K] (`thermal`; <= 0: from b) */
   double b_turb[DT_MAX_COMP];      /* starting b_turb [km/s] (`thermal`; < 0: from b) */
   dt_joint_btie btie;
+  const unsigned char *frozen;     /* DT_FREEZE_* bits per component (NULL:
+                                      none), held at their starting values:
+                                      v; b (under `thermal` T and b_turb);
+                                      N of species 0 only (the main doublet's
+                                      column; the others' are always fitted) */
   double vlo, vhi;                 /* velocity bounds [km/s], vlo < vhi */
   int max_iter;                    /* 0: DT_FIT_MAX_ITER */
   double time_limit;               /* seconds; 0: 4 x DT_FIT_TIME_LIMIT; < 0 none */

@@ -322,13 +322,18 @@ static int setup(dt_joint_workspace *w, const dt_joint_problem *p, dt_err *e) {
   for (size_t k = 0; k < p->ncomp; k++) {
     if (!isfinite(p->v[k]))
       return dt_err_set(e, DT_EINVAL, "joint fit", "component %zu: non-finite velocity", k + 1);
-    add_param(w, P_V, k, -1, p->vlo, p->vhi, p->v[k]);
+    /* held values stay at their starts (set here; set_params changes
+       * only the fitted ones) */
+    unsigned fz = p->frozen ? p->frozen[k] : 0;
+    w->v[k] = p->v[k];
+    if (!(fz & DT_FREEZE_V)) add_param(w, P_V, k, -1, p->vlo, p->vhi, p->v[k]);
     double b0 = p->b[k];
     switch (p->btie) {
     case DT_JOINT_B_SAME:
       if (!(b0 > 0 && isfinite(b0)))
         return dt_err_set(e, DT_EINVAL, "joint fit", "component %zu: b must be > 0", k + 1);
-      add_param(w, P_B, k, -1, lbmin, lbmax, log(fmax(b0, DT_FIT_B_MIN)));
+      for (size_t s = 0; s < p->nspec; s++) w->cur[s][k].b = b0;
+      if (!(fz & DT_FREEZE_B)) add_param(w, P_B, k, -1, lbmin, lbmax, log(fmax(b0, DT_FIT_B_MIN)));
       break;
     case DT_JOINT_B_FREE:
       for (size_t s = 0; s < p->nspec; s++) {
@@ -336,7 +341,8 @@ static int setup(dt_joint_workspace *w, const dt_joint_problem *p, dt_err *e) {
         if (!(bs > 0 && isfinite(bs)))
           return dt_err_set(e, DT_EINVAL, "joint fit", "species %zu, component %zu: b must be > 0",
                             s + 1, k + 1);
-        add_param(w, P_BS, k, (int)s, lbmin, lbmax, log(fmax(bs, DT_FIT_B_MIN)));
+        w->cur[s][k].b = bs;
+        if (!(fz & DT_FREEZE_B)) add_param(w, P_BS, k, (int)s, lbmin, lbmax, log(fmax(bs, DT_FIT_B_MIN)));
       }
       break;
     default: { /* thermal: T and b_turb, from b when not given */
@@ -352,8 +358,12 @@ static int setup(dt_joint_workspace *w, const dt_joint_problem *p, dt_err *e) {
       if (!isfinite(T0) || !isfinite(bt0))
         return dt_err_set(e, DT_EINVAL, "joint fit", "component %zu: non-finite T or b_turb",
                           k + 1);
-      add_param(w, P_T, k, -1, ltmin, ltmax, log(fmin(fmax(T0, DT_JOINT_T_MIN), DT_JOINT_T_MAX)));
-      add_param(w, P_BT, k, -1, Q_MIN, Q_MAX, bt0 * bt0);
+      w->T[k] = fmin(fmax(T0, DT_JOINT_T_MIN), DT_JOINT_T_MAX);
+      w->bt[k] = bt0 * bt0;
+      if (!(fz & DT_FREEZE_B)) {
+        add_param(w, P_T, k, -1, ltmin, ltmax, log(w->T[k]));
+        add_param(w, P_BT, k, -1, Q_MIN, Q_MAX, bt0 * bt0);
+      }
     }
     }
     for (size_t s = 0; s < p->nspec; s++) {
@@ -361,7 +371,8 @@ static int setup(dt_joint_workspace *w, const dt_joint_problem *p, dt_err *e) {
       if (!isfinite(l))
         return dt_err_set(e, DT_EINVAL, "joint fit", "species %zu, component %zu: non-finite log N",
                           s + 1, k + 1);
-      add_param(w, P_N, k, (int)s, DT_FIT_LOGN_MIN, DT_FIT_LOGN_MAX, l);
+      w->cur[s][k].logN = l;
+      if (!(s == 0 && (fz & DT_FREEZE_N))) add_param(w, P_N, k, (int)s, DT_FIT_LOGN_MIN, DT_FIT_LOGN_MAX, l);
     }
   }
 
@@ -523,6 +534,7 @@ static void fill_values(dt_joint_workspace *w, dt_joint_result *r, double chi2) 
     r->b_turb2[k] = r->b_turb2_err[k] = NAN;
     if (p->btie == DT_JOINT_B_THERMAL) {
       r->T[k] = w->T[k];
+      r->T_err[k] = r->b_turb_err[k] = r->b_turb2_err[k] = 0; /* held; else the fit's */
       r->b_turb2[k] = w->bt[k];
       r->b_turb[k] = sqrt(fmax(w->bt[k], 0.0));
     }
@@ -543,7 +555,8 @@ static void fill_errors(dt_joint_workspace *w, dt_lsq_slot *slot, dt_joint_resul
   gsl_matrix *J = gsl_multifit_nlinear_jac(slot->w);
   gsl_multifit_nlinear_covar(J, 1e-11, slot->cov);
   const gsl_matrix *C = slot->cov;
-  int qT[DT_MAX_COMP] = {0}, qB[DT_MAX_COMP] = {0};
+  int qT[DT_MAX_COMP], qB[DT_MAX_COMP];
+  for (size_t k = 0; k < DT_MAX_COMP; k++) qT[k] = qB[k] = -1; /* -1: held */
   for (size_t q = 0; q < w->npar; q++) {
     double var = gsl_matrix_get(C, q, q);
     double err = (var > 0 && isfinite(var)) ? sqrt(var) * fabs(w->dvdu[q]) : INFINITY;
@@ -571,6 +584,7 @@ static void fill_errors(dt_joint_workspace *w, dt_lsq_slot *slot, dt_joint_resul
   }
   if (w->prob->btie != DT_JOINT_B_THERMAL) return;
   for (size_t k = 0; k < w->ncomp; k++) {
+    if (qT[k] < 0 || qB[k] < 0) continue; /* b held: no error */
     size_t a = (size_t)qT[k], b = (size_t)qB[k];
     double vT = gsl_matrix_get(C, a, a) * w->dvdu[a] * w->dvdu[a];
     double vB = gsl_matrix_get(C, b, b) * w->dvdu[b] * w->dvdu[b];

@@ -434,6 +434,7 @@ static int run_joint(dt_joint_analysis *ja, const dt_judgement *j, const char *c
   dt_joint_problem *p = &ja->prob;
   memset(p, 0, sizeof *p);
   p->btie = btie;
+  p->frozen = j->frozen; /* held values stay (the main doublet's N, v, b) */
   p->ncomp = j->ncomp;
   p->vlo = j->vlo;
   p->vhi = j->vhi;

@@ -365,6 +365,62 @@ static void mc_thermal(const dt_atomic *t) {
   for (int s = 0; s < 2; s++) synth_free(&y[s]);
 }
 
+/* Held parameters (DT_FREEZE_* bits, as a person holds them in the
+ * inspector): a held value comes back exactly as given with error 0, the
+ * other species' columns are still fitted, and the degrees of freedom grow
+ * by the number held (common practice: held parameters are not counted). */
+static void check_held(const dt_atomic *t) {
+  synth y[2];
+  CHECK(synth_make(&y[0], dt_atomic_find(t, "NaI"), 30000, 3.0, 60) &&
+            synth_make(&y[1], dt_atomic_find(t, "CaII"), 30000, 3.0, 60),
+        "held: synthetic Na I and Ca II");
+  dt_component tr[2][1] = {{{11.4, 5.0, -18.0}}, {{11.7, 5.0, -18.0}}};
+  for (int s = 0; s < 2; s++) synth_truth(&y[s], tr[s], 1);
+  gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(rng, 7);
+  for (int s = 0; s < 2; s++) synth_noise(&y[s], rng);
+  dt_joint_workspace *w = dt_joint_alloc(2, y[0].n + y[1].n, 1);
+  for (int rule = 0; rule < 3; rule++) {
+    dt_joint_species sp[2];
+    dt_joint_problem p;
+    memset(&p, 0, sizeof p);
+    for (int s = 0; s < 2; s++) {
+      species_from(&sp[s], &y[s], s ? 40.078 : 22.98976928);
+      sp[s].logN[0] = 11.2;
+      sp[s].b[0] = 6;
+    }
+    p.nspec = 2;
+    p.sp = sp;
+    p.ncomp = 1;
+    p.v[0] = -15;
+    p.b[0] = 6;
+    p.btie = rule == 0 ? DT_JOINT_B_SAME : rule == 1 ? DT_JOINT_B_FREE : DT_JOINT_B_THERMAL;
+    p.vlo = -150;
+    p.vhi = 150;
+    dt_joint_result all, held;
+    int st = dt_joint_run(w, &p, &all, NULL);
+    unsigned char fz[1] = {DT_FREEZE_V | DT_FREEZE_N | DT_FREEZE_B};
+    p.frozen = fz;
+    int st2 = dt_joint_run(w, &p, &held, NULL);
+    size_t nb = rule == 0 ? 1 : 2; /* b parameters of the rule */
+    CHECK(st == DT_OK && st2 == DT_OK && held.v[0] == -15 && held.v_err[0] == 0 &&
+              held.comp[0][0].logN == 11.2 && held.err[0][0].logN == 0 &&
+              held.comp[0][0].b == held.comp[0][0].b && held.err[0][0].b == 0,
+          "rule %d: v, N (main) and b held at their starts with error 0 (v %g, N %g, b %g)", rule,
+          held.v[0], held.comp[0][0].logN, held.comp[0][0].b);
+    CHECK(held.comp[1][0].logN != 11.2 && held.err[1][0].logN > 0 &&
+              isfinite(held.err[1][0].logN),
+          "rule %d: the linked species' N is still fitted (%g +- %g)", rule,
+          held.comp[1][0].logN, held.err[1][0].logN);
+    CHECK(held.nparam + 2 + nb == all.nparam && held.dof == all.dof + (long)(2 + nb),
+          "rule %d: %zu parameters held, dof %ld -> %ld", rule, 2 + nb, all.dof, held.dof);
+  }
+  dt_joint_free(w);
+  gsl_rng_free(rng);
+  for (int s = 0; s < 2; s++) synth_free(&y[s]);
+}
+
+
 /* A spectrum 3900-6000 A holding Na I and Ca II absorption at the same
  * velocities (not reaching K I at 7667 A). */
 static dt_spectrum *two_species_spectrum(const dt_atomic *t, const dt_component *na,
@@ -646,6 +702,7 @@ int main(int argc, char **argv) {
   dt_atomic_load_builtin(&t, NULL);
   check_basics();
   check_bad(t);
+  check_held(t);
   double t0 = now();
   mc_shared(t);
   mc_thermal(t);
