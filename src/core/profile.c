@@ -23,7 +23,17 @@
                                 its chi2 is then within PEEK_DCHI2 */
 #define PEEK_DCHI2 25.0
 #define PROFILE_TIME 0.1     /* seconds of one refit */
-#define PROFILE_MAX_FITS 240 /* refits of one interval at most ... */
+#define PROFILE_MAX_FITS 240 /* refits of one interval at most, for windows of up
+                                to PROFILE_PIX pixels (larger ones: in
+                                proportion fewer, at least PROFILE_MIN_FITS, so
+                                the work is bounded without a clock) ... */
+#define PROFILE_PIX 4000
+#define PROFILE_MIN_FITS 16
+#define PROFILE_WORK 8e6     /* ... and iterations x pixels of all its refits
+                                (a deterministic stand-in for time: about
+                                240 refits of 8 iterations on 4000 pixels;
+                                beyond PROFILE_PIX pixels it shrinks as
+                                sqrt(PROFILE_PIX / pixels)) */
 #define PROFILE_BUDGET 2.0   /* ... and seconds when timed: then it is incomplete */
 #define PROFILE_MOVES 3      /* restarts from a lower chi2 at most */
 #define MAX_ALT 5            /* other minima kept */
@@ -40,6 +50,10 @@ typedef struct prof {
   double cfrom[DT_MAX_CONT];
   double chi0;
   int nfits;
+  int maxfits;        /* refits allowed (PROFILE_MAX_FITS scaled by the window) */
+  double work;        /* iterations x pixels of the refits so far */
+  double maxwork;     /* ... allowed */
+  double npix;        /* pixels of the window */
   double t0;          /* start [s] */
   double budget;      /* seconds it may take */
   int incomplete;     /* ran out of refits or time */
@@ -63,8 +77,19 @@ static double now_s(void) {
   return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
+/* The refits one interval may take: PROFILE_MAX_FITS, fewer in proportion
+ * for a window of more than PROFILE_PIX pixels (a refit's cost grows with
+ * them), never below PROFILE_MIN_FITS. */
+static int max_fits(const dt_fit_problem *p) {
+  size_t n = dt_model_npix(p->model);
+  if (n <= PROFILE_PIX) return PROFILE_MAX_FITS;
+  double m = (double)PROFILE_MAX_FITS * PROFILE_PIX / (double)n;
+  return m < PROFILE_MIN_FITS ? PROFILE_MIN_FITS : (int)m;
+}
+
 static int out_of_budget(prof *P) {
-  if (P->nfits >= PROFILE_MAX_FITS || now_s() - P->t0 > P->budget) P->incomplete = 1;
+  if (P->nfits >= P->maxfits || P->work > P->maxwork || now_s() - P->t0 > P->budget)
+    P->incomplete = 1;
   return P->incomplete;
 }
 
@@ -80,6 +105,7 @@ static double refit(prof *P, const dt_component *comp, const double *cont, int i
   dt_fit_result fr;
   dt_fit_run(P->w, &P->q, &fr, NULL);
   P->nfits++;
+  P->work += (double)(fr.niter > 0 ? fr.niter : 1) * P->npix;
   if (!isfinite(fr.chi2) || (fr.status != DT_OK && fr.status != DT_ENOCONV)) return INFINITY;
   memcpy(sol, fr.comp, P->r->ncomp * sizeof sol[0]);
   if (P->r->ncont) memcpy(csol, fr.cont_coef, P->r->ncont * sizeof csol[0]);
@@ -364,6 +390,9 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.deep = (flags & DT_PROFILE_DEEP) != 0;
   P.t0 = now_s();
   P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : INFINITY;
+  P.maxfits = max_fits(p);
+  P.npix = (double)dt_model_npix(p->model);
+  P.maxwork = P.npix > PROFILE_PIX ? PROFILE_WORK * sqrt(PROFILE_PIX / P.npix) : PROFILE_WORK;
   double s = r->err[k].logN;
   if (!(s > 0) || !isfinite(s)) s = 0.3;
   s = fmin(fmax(s, 0.001), 0.5);

@@ -74,7 +74,8 @@ printf 'verdict-unsure\nquit\n' >"$W/verdict.keys"
 L="$NPIX-pixel FITS ($(mb "$W/long.fits"))"
 measure "$L" "doubletty info" "$DT" info "$W/long.fits"
 measure "$L" "doubletty fit (R from header)" "$DT" fit "$W/long.fits" -o "$W/long.csv"
-status=$(grep -v '^#' "$W/long.csv" | sed -n '2p' | cut -d, -f9)
+status=$(grep -v '^#' "$W/long.csv" | awk -F, 'NR == 1 { for (i = 1; i <= NF; i++) if ($i == "status") k = i; next }
+  NR == 2 { print (k ? $k : "no status column") }')
 measure "$L" "inspect: open, first pass, quit" "$DT" inspect "$W/long.fits" --session "$W/long.session" \
   --replay-keys "$W/quit.keys"
 rm -f "$W/long.fits" "$W/long.session"
