@@ -49,6 +49,9 @@ void dt_atomic_free(dt_atomic *t);
 
 size_t dt_atomic_count(const dt_atomic *t);
 const dt_doublet *dt_atomic_get(const dt_atomic *t, size_t i);
+/* Two doublet names are the same ignoring case and white space ("Na I" =
+ * "nai"): 1, else 0. */
+int dt_atomic_name_eq(const char *a, const char *b);
 /* By name: "NaI", "Na I", "nai" all match; NULL if unknown. */
 const dt_doublet *dt_atomic_find(const dt_atomic *t, const char *name);
 

@@ -39,8 +39,7 @@ const dt_doublet *dt_atomic_get(const dt_atomic *t, size_t i) {
   return (t && i < t->n) ? &t->d[i] : NULL;
 }
 
-/* Compare two names ignoring case and white space. */
-static int name_eq(const char *a, const char *b) {
+int dt_atomic_name_eq(const char *a, const char *b) {
   for (;;) {
     while (*a && isspace((unsigned char)*a)) a++;
     while (*b && isspace((unsigned char)*b)) b++;
@@ -53,7 +52,7 @@ static int name_eq(const char *a, const char *b) {
 
 static long find_index(const dt_atomic *t, const char *name) {
   for (size_t i = 0; i < t->n; i++)
-    if (name_eq(t->d[i].name, name)) return (long)i;
+    if (dt_atomic_name_eq(t->d[i].name, name)) return (long)i;
   return -1;
 }
 

@@ -38,21 +38,9 @@ const dt_hfs_entry *dt_hyperfine_get(const dt_hyperfine *t, size_t i) {
   return (t && i < t->n) ? &t->r[i] : NULL;
 }
 
-/* Names compared ignoring case and white space (as the atomic table). */
-static int name_eq(const char *a, const char *b) {
-  for (;;) {
-    while (*a && isspace((unsigned char)*a)) a++;
-    while (*b && isspace((unsigned char)*b)) b++;
-    if (!*a || !*b) return !*a && !*b;
-    if (tolower((unsigned char)*a) != tolower((unsigned char)*b)) return 0;
-    a++;
-    b++;
-  }
-}
-
 static long find_row(const dt_hyperfine *t, const char *name, double lambda0) {
   for (size_t i = 0; i < t->n; i++)
-    if (name_eq(t->r[i].doublet, name) && fabs(t->r[i].lambda0 - lambda0) <= DT_HFS_MATCH_A)
+    if (dt_atomic_name_eq(t->r[i].doublet, name) && fabs(t->r[i].lambda0 - lambda0) <= DT_HFS_MATCH_A)
       return (long)i;
   return -1;
 }

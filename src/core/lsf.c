@@ -197,18 +197,6 @@ size_t dt_lsf_first_bad(const dt_spectrum *s, size_t i0, size_t n) {
   return n;
 }
 
-/* Doublet names match ignoring case and spaces ("Na I" = "NaI"). */
-static int name_match(const char *a, const char *b) {
-  for (;;) {
-    while (*a == ' ') a++;
-    while (*b == ' ') b++;
-    if (!*a || !*b) return !*a && !*b;
-    if (tolower((unsigned char)*a) != tolower((unsigned char)*b)) return 0;
-    a++;
-    b++;
-  }
-}
-
 int dt_lsf_per_parse(const char *text, const char *what, dt_lsf_per *p, dt_err *e) {
   dt_err_clear(e);
   memset(p, 0, sizeof *p);
@@ -237,7 +225,7 @@ int dt_lsf_per_parse(const char *text, const char *what, dt_lsf_per *p, dt_err *
     if (dt_num_parse(num, &v) != DT_OK || !isfinite(v) || !(v > 0))
       return dt_err_set(e, DT_EINVAL, NULL, "%s must be positive (got %.40s)", what, num);
     for (int k = 0; k < p->n; k++)
-      if (name_match(p->e[k].doublet, name))
+      if (dt_atomic_name_eq(p->e[k].doublet, name))
         return dt_err_set(e, DT_EINVAL, NULL, "%s given twice for %s", what,
                           *name ? name : "every doublet");
     snprintf(p->e[p->n].doublet, sizeof p->e[p->n].doublet, "%s", name);
@@ -252,7 +240,7 @@ int dt_lsf_per_parse(const char *text, const char *what, dt_lsf_per *p, dt_err *
 double dt_lsf_per_get(const dt_lsf_per *p, const char *doublet) {
   if (!p) return 0;
   for (int k = 0; k < p->n; k++)
-    if (p->e[k].doublet[0] && doublet && name_match(p->e[k].doublet, doublet)) return p->e[k].value;
+    if (p->e[k].doublet[0] && doublet && dt_atomic_name_eq(p->e[k].doublet, doublet)) return p->e[k].value;
   for (int k = 0; k < p->n; k++)
     if (!p->e[k].doublet[0]) return p->e[k].value;
   return 0;
