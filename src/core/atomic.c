@@ -11,6 +11,8 @@
  * share/doubletty/atomic.dat into a C array), for a program that finds no
  * table file. */
 #include "doubletty/atomic.h"
+
+#include "textfile.h"
 #include "doubletty/num.h"
 
 #include <ctype.h>
@@ -150,112 +152,56 @@ static int parse_line(char *s, const char *where, dt_doublet *d, dt_err *e) {
   return DT_OK;
 }
 
+/* The doublets of one text, with the line each was given on. */
+typedef struct parse_ctx {
+  dt_atomic tmp;
+  long *first_line;
+  size_t first_cap;
+} parse_ctx;
+
+static int parse_one(void *ctx, char *line, long lineno, const char *where, dt_err *e) {
+  parse_ctx *c = ctx;
+  dt_doublet d;
+  int rc = parse_line(line, where, &d, e);
+  if (rc != DT_OK) return rc;
+  long prev = find_index(&c->tmp, d.name);
+  if (prev >= 0)
+    return dt_err_set(e, DT_EFORMAT, where, "doublet %s is already defined on line %ld", d.name,
+                      c->first_line[prev]);
+  if (c->tmp.n == c->first_cap) {
+    size_t cap = c->first_cap ? 2 * c->first_cap : 16;
+    long *nf = realloc(c->first_line, cap * sizeof *nf);
+    if (!nf) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
+    c->first_line = nf;
+    c->first_cap = cap;
+  }
+  c->first_line[c->tmp.n] = lineno;
+  if (push(&c->tmp, &d) != DT_OK) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
+  return DT_OK;
+}
+
 int dt_atomic_parse(dt_atomic *t, const char *text, size_t len, dt_err *e) {
   dt_err_clear(e);
   if (!t || (!text && len))
     return dt_err_set(e, DT_EINVAL, NULL, "no table or no text to parse");
   char *buf = malloc(len + 1);
-  dt_atomic tmp = {0};
-  int rc = DT_OK;
   if (!buf) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
   if (len) memcpy(buf, text, len);
   buf[len] = '\0';
-  size_t lineno = 0;
-  int *first_line = NULL; /* line number of each doublet in tmp */
-  size_t first_cap = 0;
-  char *p = buf, *stop = buf + len;
-  while (p < stop && rc == DT_OK) {
-    lineno++;
-    char *eol = memchr(p, '\n', (size_t)(stop - p));
-    if (!eol) eol = stop;
-    *eol = '\0';
-    char where[32];
-    snprintf(where, sizeof where, "line %zu", lineno);
-    if (strlen(p) != (size_t)(eol - p)) {
-      rc = dt_err_set(e, DT_EFORMAT, where, "contains a NUL byte (not a text file?)");
-      break;
-    }
-    char *hash = strchr(p, '#');
-    if (hash) *hash = '\0';
-    char *q = p;
-    while (*q && isspace((unsigned char)*q)) q++;
-    if (*q) {
-      dt_doublet d;
-      rc = parse_line(q, where, &d, e);
-      if (rc != DT_OK) break;
-      long prev = find_index(&tmp, d.name);
-      if (prev >= 0) {
-        rc = dt_err_set(e, DT_EFORMAT, where, "doublet %s is already defined on line %d",
-                        d.name, first_line[prev]);
-        break;
-      }
-      if (tmp.n == first_cap) {
-        size_t cap = first_cap ? 2 * first_cap : 16;
-        int *nf = realloc(first_line, cap * sizeof *nf);
-        if (!nf) {
-          rc = dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
-          break;
-        }
-        first_line = nf;
-        first_cap = cap;
-      }
-      first_line[tmp.n] = (int)lineno;
-      if (push(&tmp, &d) != DT_OK) {
-        rc = dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
-        break;
-      }
-    }
-    p = eol + 1;
-  }
+  parse_ctx c = {0};
+  int rc = dt_text_lines(buf, len, parse_one, &c, e);
   /* Everything parsed: add or replace by name. */
-  for (size_t i = 0; rc == DT_OK && i < tmp.n; i++) {
-    long j = find_index(t, tmp.d[i].name);
+  for (size_t i = 0; rc == DT_OK && i < c.tmp.n; i++) {
+    long j = find_index(t, c.tmp.d[i].name);
     if (j >= 0)
-      t->d[j] = tmp.d[i];
-    else if (push(t, &tmp.d[i]) != DT_OK)
+      t->d[j] = c.tmp.d[i];
+    else if (push(t, &c.tmp.d[i]) != DT_OK)
       rc = dt_err_set(e, DT_ENOMEM, NULL, "no memory for the atomic table");
   }
-  free(first_line);
-  free(tmp.d);
+  free(c.first_line);
+  free(c.tmp.d);
   free(buf);
   return rc;
-}
-
-/* Read a whole file into memory. */
-static int slurp(const char *path, char **out, size_t *len, dt_err *e) {
-  FILE *fp = fopen(path, "rb");
-  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  size_t cap = 4096, n = 0;
-  char *buf = malloc(cap);
-  if (!buf) {
-    fclose(fp);
-    return dt_err_set(e, DT_ENOMEM, NULL, "no memory to read the file");
-  }
-  for (;;) {
-    if (n == cap) {
-      char *nb = cap < ((size_t)1 << 28) ? realloc(buf, cap * 2) : NULL;
-      if (!nb) {
-        free(buf);
-        fclose(fp);
-        return dt_err_set(e, DT_ENOMEM, NULL, "file too large for an atomic table");
-      }
-      buf = nb;
-      cap *= 2;
-    }
-    size_t got = fread(buf + n, 1, cap - n, fp);
-    n += got;
-    if (got == 0) break;
-  }
-  int bad = ferror(fp);
-  int err = errno;
-  fclose(fp);
-  if (bad) {
-    free(buf);
-    return dt_err_set(e, DT_EIO, NULL, "cannot read: %s", strerror(err));
-  }
-  *out = buf;
-  *len = n;
-  return DT_OK;
 }
 
 int dt_atomic_merge(dt_atomic *t, const char *path, dt_err *e) {
@@ -263,7 +209,7 @@ int dt_atomic_merge(dt_atomic *t, const char *path, dt_err *e) {
   if (!t || !path) return dt_err_set(e, DT_EINVAL, NULL, "no table or no file name");
   char *buf = NULL;
   size_t len = 0;
-  int rc = slurp(path, &buf, &len, e);
+  int rc = dt_text_slurp(path, (size_t)1 << 28, "an atomic table", &buf, &len, e);
   if (rc != DT_OK) return rc;
   rc = dt_atomic_parse(t, buf, len, e);
   free(buf);

@@ -8,11 +8,13 @@
 #include <errno.h>
 #include <fitsio.h>
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "doubletty/num.h"
+#include "textfile.h"
 
 void dt_catalog_init(dt_catalog *c) {
   memset(c, 0, sizeof *c);
@@ -77,43 +79,6 @@ static char *dup_range(const char *a, size_t n) {
 
 /* ---- CSV ---- */
 
-static char *slurp(const char *path, size_t *len, dt_err *e) {
-  FILE *f = fopen(path, "rb");
-  if (!f) {
-    dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-    return NULL;
-  }
-  size_t cap = 1 << 16, n = 0;
-  char *buf = malloc(cap + 1);
-  while (buf) {
-    size_t got = fread(buf + n, 1, cap - n, f);
-    n += got;
-    if (n < cap) break;
-    cap *= 2;
-    char *b = realloc(buf, cap + 1);
-    if (!b) {
-      free(buf);
-      buf = NULL;
-    } else {
-      buf = b;
-    }
-  }
-  int err = ferror(f);
-  fclose(f);
-  if (!buf) {
-    dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
-    return NULL;
-  }
-  if (err) {
-    free(buf);
-    dt_err_set(e, DT_EIO, NULL, "read error");
-    return NULL;
-  }
-  buf[n] = 0;
-  *len = n;
-  return buf;
-}
-
 /* One record from *p (advanced past it) into fields; *line counts lines.
  * DT_OK, or DT_EFORMAT for an unterminated quote or a stray quote. */
 static int csv_record(const char **p, const char *end, strvec *fields, long *line, dt_err *e) {
@@ -172,8 +137,9 @@ static int csv_record(const char **p, const char *end, strvec *fields, long *lin
 
 static int read_csv(dt_catalog_table *t, const char *path, dt_err *e) {
   size_t len;
-  char *buf = slurp(path, &len, e);
-  if (!buf) return e->code;
+  char *buf;
+  int src = dt_text_slurp(path, SIZE_MAX / 4, "a catalogue", &buf, &len, e);
+  if (src != DT_OK) return src;
   const char *p = buf, *end = buf + len;
   long line = 1;
   int rc = DT_OK;

@@ -11,6 +11,7 @@
  * built into the program by the Makefile. */
 #include "doubletty/hyperfine.h"
 #include "doubletty/num.h"
+#include "textfile.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -173,62 +174,45 @@ static int parse_row(char *s, const char *where, dt_hfs_entry *r, dt_err *e) {
   return DT_OK;
 }
 
+/* The rows of one text, with the line each was given on. */
+typedef struct parse_ctx {
+  dt_hyperfine tmp;
+  long *row_line;
+  size_t row_cap;
+} parse_ctx;
+
+static int parse_one(void *ctx, char *line, long lineno, const char *where, dt_err *e) {
+  parse_ctx *c = ctx;
+  dt_hfs_entry r;
+  int rc = parse_row(line, where, &r, e);
+  if (rc != DT_OK) return rc;
+  long prev = find_row(&c->tmp, r.doublet, r.lambda0);
+  if (prev >= 0)
+    return dt_err_set(e, DT_EFORMAT, where, "%s %.4f is already given on line %ld", r.doublet,
+                      r.lambda0, c->row_line[prev]);
+  if (c->tmp.n == c->row_cap) {
+    size_t cap = c->row_cap ? 2 * c->row_cap : 8;
+    long *nl = realloc(c->row_line, cap * sizeof *nl);
+    if (!nl) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the hyperfine table");
+    c->row_line = nl;
+    c->row_cap = cap;
+  }
+  c->row_line[c->tmp.n] = lineno;
+  if (push(&c->tmp, &r) != DT_OK) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the hyperfine table");
+  return DT_OK;
+}
+
 int dt_hyperfine_parse(dt_hyperfine *t, const char *text, size_t len, dt_err *e) {
   dt_err_clear(e);
   if (!t || (!text && len)) return dt_err_set(e, DT_EINVAL, NULL, "no table or no text to parse");
   char *buf = malloc(len + 1);
-  dt_hyperfine tmp = {0};
-  long *row_line = NULL; /* line number of each row of tmp */
-  size_t row_cap = 0;
-  int rc = DT_OK;
   if (!buf) return dt_err_set(e, DT_ENOMEM, NULL, "no memory for the hyperfine table");
   if (len) memcpy(buf, text, len);
   buf[len] = '\0';
-  long lineno = 0;
-  char *p = buf, *stop = buf + len;
-  while (p < stop && rc == DT_OK) {
-    lineno++;
-    char *eol = memchr(p, '\n', (size_t)(stop - p));
-    if (!eol) eol = stop;
-    *eol = '\0';
-    char where[32];
-    snprintf(where, sizeof where, "line %ld", lineno);
-    if (strlen(p) != (size_t)(eol - p)) {
-      rc = dt_err_set(e, DT_EFORMAT, where, "contains a NUL byte (not a text file?)");
-      break;
-    }
-    char *hash = strchr(p, '#');
-    if (hash) *hash = '\0';
-    char *q = p;
-    while (*q && isspace((unsigned char)*q)) q++;
-    if (*q) {
-      dt_hfs_entry r;
-      rc = parse_row(q, where, &r, e);
-      if (rc != DT_OK) break;
-      long prev = find_row(&tmp, r.doublet, r.lambda0);
-      if (prev >= 0) {
-        rc = dt_err_set(e, DT_EFORMAT, where, "%s %.4f is already given on line %ld", r.doublet,
-                        r.lambda0, row_line[prev]);
-        break;
-      }
-      if (tmp.n == row_cap) {
-        size_t cap = row_cap ? 2 * row_cap : 8;
-        long *nl = realloc(row_line, cap * sizeof *nl);
-        if (!nl) {
-          rc = dt_err_set(e, DT_ENOMEM, NULL, "no memory for the hyperfine table");
-          break;
-        }
-        row_line = nl;
-        row_cap = cap;
-      }
-      row_line[tmp.n] = lineno;
-      if (push(&tmp, &r) != DT_OK) {
-        rc = dt_err_set(e, DT_ENOMEM, NULL, "no memory for the hyperfine table");
-        break;
-      }
-    }
-    p = eol + 1;
-  }
+  parse_ctx c = {0};
+  int rc = dt_text_lines(buf, len, parse_one, &c, e);
+  dt_hyperfine tmp = c.tmp;
+  long *row_line = c.row_line;
   /* Everything parsed: add, or replace by doublet and line.  Room for all
    * first, so that t is left unchanged when memory runs out. */
   if (rc == DT_OK && t->n + tmp.n > t->cap) {
@@ -256,28 +240,9 @@ int dt_hyperfine_parse(dt_hyperfine *t, const char *text, size_t len, dt_err *e)
 int dt_hyperfine_merge(dt_hyperfine *t, const char *path, dt_err *e) {
   dt_err_clear(e);
   if (!t || !path) return dt_err_set(e, DT_EINVAL, NULL, "no table or no file name");
-  FILE *fp = fopen(path, "rb");
-  if (!fp) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  size_t cap = 4096, n = 0;
-  char *buf = malloc(cap);
-  int rc = DT_OK;
-  while (buf) {
-    if (n == cap) {
-      char *nb = cap < ((size_t)1 << 24) ? realloc(buf, cap * 2) : NULL;
-      if (!nb) {
-        rc = dt_err_set(e, DT_ENOMEM, NULL, "file too large for a hyperfine table");
-        break;
-      }
-      buf = nb;
-      cap *= 2;
-    }
-    size_t got = fread(buf + n, 1, cap - n, fp);
-    n += got;
-    if (got == 0) break;
-  }
-  if (!buf) rc = dt_err_set(e, DT_ENOMEM, NULL, "no memory to read the file");
-  if (rc == DT_OK && ferror(fp)) rc = dt_err_set(e, DT_EIO, NULL, "cannot read: %s", strerror(errno));
-  fclose(fp);
+  char *buf;
+  size_t n;
+  int rc = dt_text_slurp(path, (size_t)1 << 24, "a hyperfine table", &buf, &n, e);
   if (rc == DT_OK) rc = dt_hyperfine_parse(t, buf, n, e);
   free(buf);
   return rc;

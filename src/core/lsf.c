@@ -18,6 +18,7 @@
 
 #include "doubletty/atomic.h"
 #include "doubletty/num.h"
+#include "textfile.h"
 #include "gsl_quiet.h"
 
 struct dt_lsf_table {
@@ -134,34 +135,9 @@ int dt_lsf_table_read_mem(const char *buf, size_t len, const char *name, dt_lsf_
 int dt_lsf_table_read(const char *path, dt_lsf_table **out, dt_err *e) {
   *out = NULL;
   dt_err_clear(e);
-  FILE *f = fopen(path, "rb");
-  if (!f) return dt_err_set(e, DT_EIO, NULL, "cannot open: %s", strerror(errno));
-  size_t cap = 4096, len = 0;
-  char *buf = malloc(cap);
-  int rc = buf ? DT_OK : DT_ENOMEM;
-  while (rc == DT_OK) {
-    if (len == cap) {
-      if (cap > ((size_t)64 << 20)) {
-        rc = dt_err_set(e, DT_EFORMAT, NULL, "larger than 64 MiB: not a resolution table");
-        break;
-      }
-      char *nb = realloc(buf, 2 * cap);
-      if (!nb) {
-        rc = DT_ENOMEM;
-        break;
-      }
-      buf = nb;
-      cap *= 2;
-    }
-    size_t got = fread(buf + len, 1, cap - len, f);
-    len += got;
-    if (got == 0) {
-      if (ferror(f)) rc = dt_err_set(e, DT_EIO, NULL, "read error");
-      break;
-    }
-  }
-  fclose(f);
-  if (rc == DT_ENOMEM) dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  char *buf;
+  size_t len;
+  int rc = dt_text_slurp(path, (size_t)64 << 20, "a resolution table", &buf, &len, e);
   if (rc == DT_OK) rc = dt_lsf_table_read_mem(buf, len, path, out, e);
   free(buf);
   return rc;
