@@ -62,13 +62,16 @@
 #define DT_JOINT_T_MIN 1.0
 #define DT_JOINT_T_MAX 1e7
 
-typedef enum dt_joint_btie {
-  DT_JOINT_B_SAME = 0,   /* one b per component for all species */
-  DT_JOINT_B_THERMAL,    /* per component T and b_turb */
-  DT_JOINT_B_FREE        /* one b per species and component */
-} dt_joint_btie;
+/* How b is shared: the judgement's rule (judge.h, dt_btie) --
+ * same: one b per component for all species; thermal: per component T and
+ * b_turb; free: one b per species and component. */
+typedef dt_btie dt_joint_btie;
+#define DT_JOINT_B_SAME DT_BTIE_SAME
+#define DT_JOINT_B_THERMAL DT_BTIE_THERMAL
+#define DT_JOINT_B_FREE DT_BTIE_FREE
 
-/* "same", "thermal", "free" and back (DT_OK or DT_EINVAL). */
+/* "same", "thermal", "free" and back (DT_OK or DT_EINVAL): dt_btie_name
+ * and dt_btie_parse. */
 const char *dt_joint_btie_name(dt_joint_btie t);
 int dt_joint_btie_parse(const char *s, dt_joint_btie *t);
 

@@ -66,23 +66,9 @@
 
 enum { P_V, P_B, P_BS, P_T, P_BT, P_N };
 
-const char *dt_joint_btie_name(dt_joint_btie t) {
-  switch (t) {
-  case DT_JOINT_B_SAME: return "same";
-  case DT_JOINT_B_THERMAL: return "thermal";
-  case DT_JOINT_B_FREE: return "free";
-  }
-  return "?";
-}
+const char *dt_joint_btie_name(dt_joint_btie t) { return dt_btie_name(t); }
 
-int dt_joint_btie_parse(const char *s, dt_joint_btie *t) {
-  if (!s) return DT_EINVAL;
-  if (strcmp(s, "same") == 0) *t = DT_JOINT_B_SAME;
-  else if (strcmp(s, "thermal") == 0) *t = DT_JOINT_B_THERMAL;
-  else if (strcmp(s, "free") == 0) *t = DT_JOINT_B_FREE;
-  else return DT_EINVAL;
-  return DT_OK;
-}
+int dt_joint_btie_parse(const char *s, dt_joint_btie *t) { return dt_btie_parse(s, t); }
 
 /* b^2 = b_turb^2 + 2 k_B T / (m u): km/s, K, u.  (Spitzer 1978, ch. 3, from memory.) */
 double dt_joint_b_thermal(double T, double b_turb, double mass_u) {

@@ -155,7 +155,7 @@ static int joint_run(dt_session *ss, const dt_judgement *j, dt_fit_result *fit, 
   dt_err e;
   dt_err_clear(&e);
   /* from the last joint fit of this spectrum: a refit after a nudge is one joint fit */
-  int rc = dt_joint_analysis_run_from(ss->jan, j, names, j->nlinked, (dt_joint_btie)j->btie,
+  int rc = dt_joint_analysis_run_from(ss->jan, j, names, j->nlinked, j->btie,
                                       ss->jout_ok ? out : NULL, out, &e);
   ss->jout_ok = rc == DT_OK || rc == DT_ENOCONV;
   if (rc == DT_OK || rc == DT_ENOCONV) { /* a fit that did not converge is recorded as such */
@@ -230,7 +230,7 @@ int dt_linked_verify(const dt_spectrum *sp, const dt_atomic *at, const dt_judgem
   }
   const char *names[DT_JUDGE_MAX_LINKED];
   for (size_t k = 0; k < recorded->nlinked; k++) names[k] = recorded->linked[k];
-  int rc = dt_joint_analysis_run(ja, recorded, names, recorded->nlinked, (dt_joint_btie)recorded->btie, out, e);
+  int rc = dt_joint_analysis_run(ja, recorded, names, recorded->nlinked, recorded->btie, out, e);
   if (rc == DT_OK || rc == DT_ENOCONV) {
     dt_fit_result fit;
     dt_linked_fit now;
