@@ -76,21 +76,6 @@ static int push(dt_atomic *t, const dt_doublet *d) {
   return DT_OK;
 }
 
-/* Split off the next white-space separated token of *s (modified in place). */
-static char *next_token(char **s) {
-  char *p = *s;
-  while (*p && isspace((unsigned char)*p)) p++;
-  if (!*p) {
-    *s = p;
-    return NULL;
-  }
-  char *tok = p;
-  while (*p && !isspace((unsigned char)*p)) p++;
-  if (*p) *p++ = '\0';
-  *s = p;
-  return tok;
-}
-
 static const char *const field_name[6] = {
     "first wavelength",  "first oscillator strength",  "first damping constant",
     "second wavelength", "second oscillator strength", "second damping constant"};
@@ -98,14 +83,14 @@ static const char *const field_name[6] = {
 /* Parse one non-empty, comment-stripped line into *d. */
 static int parse_line(char *s, const char *where, dt_doublet *d, dt_err *e) {
   memset(d, 0, sizeof *d);
-  char *name = next_token(&s);
+  char *name = dt_text_token(&s);
   if (strlen(name) >= sizeof d->name)
     return dt_err_set(e, DT_EFORMAT, where, "doublet name '%.40s' is longer than %zu characters",
                       name, sizeof d->name - 1);
   strcpy(d->name, name);
   double v[6];
   for (int k = 0; k < 6; k++) {
-    char *tok = next_token(&s);
+    char *tok = dt_text_token(&s);
     if (!tok)
       return dt_err_set(e, DT_EFORMAT, where,
                         "doublet %s: missing the %s (a row needs a name, 6 numbers and a source)",

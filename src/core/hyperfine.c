@@ -64,21 +64,6 @@ static int push(dt_hyperfine *t, const dt_hfs_entry *r) {
   return DT_OK;
 }
 
-/* Split off the next white-space separated token of *s (in place). */
-static char *next_token(char **s) {
-  char *p = *s;
-  while (*p && isspace((unsigned char)*p)) p++;
-  if (!*p) {
-    *s = p;
-    return NULL;
-  }
-  char *tok = p;
-  while (*p && !isspace((unsigned char)*p)) p++;
-  if (*p) *p++ = '\0';
-  *s = p;
-  return tok;
-}
-
 /* A finite number filling the whole of tok. */
 static int number(const char *tok, double *x) {
   char *end;
@@ -118,12 +103,12 @@ static int component(char *tok, double *dv, double *share, char *msg, size_t nms
 /* Parse one non-empty, comment-stripped row into *r. */
 static int parse_row(char *s, const char *where, dt_hfs_entry *r, dt_err *e) {
   memset(r, 0, sizeof *r);
-  char *name = next_token(&s);
+  char *name = dt_text_token(&s);
   if (strlen(name) >= sizeof r->doublet)
     return dt_err_set(e, DT_EFORMAT, where, "doublet name '%.40s' is longer than %zu characters",
                       name, sizeof r->doublet - 1);
   strcpy(r->doublet, name);
-  char *tok = next_token(&s);
+  char *tok = dt_text_token(&s);
   if (!tok)
     return dt_err_set(e, DT_EFORMAT, where,
                       "%s: missing the wavelength (a row needs a doublet, a wavelength, "

@@ -71,3 +71,17 @@ int dt_text_lines(char *text, size_t len, dt_text_line_fn fn, void *ctx, dt_err 
   }
   return DT_OK;
 }
+
+char *dt_text_token(char **s) {
+  char *p = *s;
+  while (*p && isspace((unsigned char)*p)) p++;
+  if (!*p) {
+    *s = p;
+    return NULL;
+  }
+  char *tok = p;
+  while (*p && !isspace((unsigned char)*p)) p++;
+  if (*p) *p++ = '\0';
+  *s = p;
+  return tok;
+}

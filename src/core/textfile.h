@@ -22,4 +22,8 @@ int dt_text_slurp(const char *path, size_t max, const char *what, char **buf, si
 typedef int (*dt_text_line_fn)(void *ctx, char *line, long lineno, const char *where, dt_err *e);
 int dt_text_lines(char *text, size_t len, dt_text_line_fn fn, void *ctx, dt_err *e);
 
+/* Split off the next white-space separated token of *s (in place; *s
+ * moves past it); NULL when only blanks are left. */
+char *dt_text_token(char **s);
+
 #endif
