@@ -26,8 +26,10 @@
  *     (continuation); the first point that would end the interval (its
  *     dchi2 at least 0.9 of the target, before the regula falsi) is
  *     refitted again from the valley on its side (narrow b above the
- *     fit's column, broad b below; both with DT_PROFILE_DEEP) and, in a
- *     blend, with the column handed to the nearest component, and keeps
+ *     fit's column, broad b below; both with DT_PROFILE_DEEP; neither
+ *     with DT_PROFILE_RESOLVED alone) and, in a blend (not with
+ *     DT_PROFILE_ISOLATED), with the column handed to the nearest
+ *     component, and keeps
  *     the lowest chi2 (such far starts run 6 iterations first and go on
  *     only when chi2 is then within reach);
  *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere (no b at the
@@ -91,8 +93,16 @@ const char *dt_profile_flag_name(int flag);
 enum {
   DT_PROFILE_DEEP = 1,   /* refit the whole problem from the other valleys
                             first (a better fit, minima beyond a barrier) */
-  DT_PROFILE_OUTER = 2   /* also the ends at 9 dchi2 (lo3, hi3; else NaN,
+  DT_PROFILE_OUTER = 2,  /* also the ends at 9 dchi2 (lo3, hi3; else NaN,
                             incomplete3) */
+  DT_PROFILE_RESOLVED = 4, /* the caller knows the line resolved, its b well
+                            measured (wider than the line-spread function by
+                            2 sigma): without DEEP the points that would end
+                            the interval are not refitted from the other b
+                            valley (a narrow saturated or broad thin line
+                            would not have the observed width) */
+  DT_PROFILE_ISOLATED = 8  /* no other component overlaps k: ... nor with
+                            the column handed to the nearest one */
 };
 
 /* The interval of component k for the problem p (as fitted) and its best

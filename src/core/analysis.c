@@ -671,6 +671,28 @@ static int at_risk(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
   return 0;
 }
 
+/* The scan's shortcuts for component k (profile.h): DT_PROFILE_ISOLATED
+ * when no other component lies within FWHM + 2 (b_k + b_j) (no blend to
+ * hand the column to), DT_PROFILE_RESOLVED when its b, not at a bound and
+ * not tied, exceeds the line-spread function's b (FWHM / (2 sqrt(ln 2)))
+ * by two errors and is measured to 20% (a narrow saturated line or a
+ * broad thin one would have another width than the observed). */
+#define RESOLVED_BERR 0.2
+static unsigned scan_flags(const dt_analysis *a, const dt_analysis_out *out, size_t k,
+                           int tie_b) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  unsigned fl = DT_PROFILE_ISOLATED;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b))
+      fl = 0;
+  double be = r->err[k].b, binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
+  if (!tie_b && !(out->fit_info.at_bound[k] & DT_FREEZE_B) && be > 0 &&
+      be < RESOLVED_BERR * c->b && c->b - 2.0 * be > binst)
+    fl |= DT_PROFILE_RESOLVED;
+  return fl;
+}
+
 /* A refit that turned up a better minimum restarts the intervals from it,
  * at most MAX_MOVES times (each move lowers chi2 by DT_PROFILE_MOVE or
  * more, so this ends anyway) -- with no time budget only (explicit calls,
@@ -712,9 +734,9 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
       }
       dt_fit_result lower;
       lower.status = DT_EINVAL;
-      unsigned fl = a->opts.outer_intervals
-                        ? DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0)
-                        : 0;
+      unsigned fl = scan_flags(a, out, k, p.tie_b);
+      if (a->opts.outer_intervals)
+        fl |= DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0);
       dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);
       if (budget == 0 && pi->moved && moves < MAX_MOVES && lower.status == DT_OK) {
         dt_profile_interval found = *pi;

@@ -59,6 +59,7 @@ typedef struct prof {
   int incomplete;     /* ran out of refits or time */
   int dir;            /* side being searched (+1, -1) */
   int deep;           /* DT_PROFILE_DEEP */
+  unsigned flags;     /* DT_PROFILE_* */
   int moved;          /* a chi2 below chi0 - DT_PROFILE_MOVE was found ... */
   dt_component mcomp[DT_MAX_COMP];  /* ... with these components */
   double mcont[DT_MAX_CONT];        /* and joint continuum */
@@ -202,7 +203,9 @@ static double chi2_at(prof *P, double x, double target) {
     for (int i = 0; i < 3; i++) {
       /* without DEEP only the valley on this side: higher columns go
        * with narrower lines, lower with broader ones */
-      if (i < 2 && !P->deep && (i == 0) != (P->dir > 0)) continue;
+      if (i < 2 && !P->deep && ((i == 0) != (P->dir > 0) || (P->flags & DT_PROFILE_RESOLVED)))
+        continue;
+      if (i == 2 && (P->flags & DT_PROFILE_ISOLATED)) break;
       if (out_of_budget(P)) return NAN;
       dt_component alt[DT_MAX_COMP];
       memcpy(alt, P->from, P->r->ncomp * sizeof alt[0]);
@@ -388,6 +391,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.q.time_limit = budget > 0 ? PROFILE_TIME : -1;
   P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
   P.deep = (flags & DT_PROFILE_DEEP) != 0;
+  P.flags = flags;
   P.t0 = now_s();
   P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : INFINITY;
   P.maxfits = max_fits(p);
