@@ -221,6 +221,10 @@ int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n);
  * runs many fits measures them once at the end (dt_analysis_remeasure). */
 int dt_analysis_no_intervals(dt_analysis *a, int off);
 
+/* Set the fits' time limit [s] (opts.time_limit: 0 the fit's default, < 0
+ * none) without touching the other options; returns the previous one. */
+double dt_analysis_time_limit(dt_analysis *a, double seconds);
+
 /* The intervals dt_analysis_run computes itself unless opts.defer_intervals,
  * within its time (DT_ANALYSIS_RUN_INTERVAL_S), for out of the last run of
  * j.  DT_OK; DT_EINVAL when out holds no successful fit of j. */

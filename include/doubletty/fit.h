@@ -129,6 +129,7 @@ typedef struct dt_fit_info {
                                     3 converged with parameters at bounds */
   size_t nparam;                 /* fitted parameters */
   double seconds;                /* duration of the fit */
+  int timed_out;                 /* 1: a run stopped at the time limit */
 } dt_fit_info;
 
 typedef struct dt_fit_workspace dt_fit_workspace;

@@ -88,6 +88,9 @@ typedef struct dt_session {
   double nsigma;              /* significance of recorded upper limits */
   int auto_refit;             /* 1: refit after every model change (default) */
   long nfits;                 /* fits run so far */
+  double fit_slice;           /* > 0: seconds a change's refit may take at
+                                 once; a longer one is shown as far as it
+                                 got and finished later (dt_session_finish_fit) */
 
   /* the target */
   char key[DT_SESSION_KEY_MAX];
@@ -133,6 +136,13 @@ typedef struct dt_session {
   struct dt_joint_out *jout;  /* its last result (the next fit starts from it) ... */
   int jout_ok;                /* ... when this is 1 */
   char jmsg[300];             /* why the last joint fit failed ("" when it did not) */
+
+  /* a change whose refit ran out of fit_slice: j shows it as typed, out
+   * the fit as far as it got; nothing of it is recorded or adopted yet */
+  int fit_pending;
+  dt_judgement pend_before;   /* j before the change */
+  int pend_n;                 /* its actions */
+  dt_action pend_a[2];
 
   /* undo / redo: snapshots of j */
   dt_judgement *undo, *redo;
@@ -259,5 +269,16 @@ int dt_session_at_bound(const dt_session *ss, size_t k, dt_session_param p);
  * computes them (within the time of one analysis run, analysis.h). */
 int dt_session_intervals_pending(const dt_session *ss);
 void dt_session_finish_intervals(dt_session *ss);
+
+/* With fit_slice > 0: a change whose refit needed more than fit_slice
+ * seconds is shown at once (j as typed, the fit as far as it got) and
+ * left pending (dt_session_fit_pending 1).  dt_session_finish_fit then
+ * does it as dt_session_apply would have done: the whole refit again
+ * from the typed state (so the result does not depend on where the slice
+ * ended), the records, the undo step -- its status.  Every action of the
+ * session finishes a pending change first, so the records stay in order;
+ * a caller must finish it before it closes the session. */
+int dt_session_fit_pending(const dt_session *ss);
+int dt_session_finish_fit(dt_session *ss);
 
 #endif

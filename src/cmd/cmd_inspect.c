@@ -67,7 +67,9 @@ static void usage(FILE *f) {
           "  --screen-dump FILE   with --replay-keys: write the last screen as text\n"
           "  --size WxH           with --replay-keys: screen size (default 100x32)\n"
           "  --bench              with --replay-keys: print the time per keystroke\n"
-          "  --no-look-ahead      do not open the next spectra in the background\n");
+          "  --no-look-ahead      do not open the next spectra in the background\n"
+          "  --fit-slice MS       a refit longer than MS ms (default 5) is drawn as far\n"
+          "                       as it got and finished after the frame; 0: wait for it\n");
 }
 
 static void report_line(const char *list, const dt_err *e) { cli_report(list, e); }
@@ -75,7 +77,7 @@ static void report_line(const char *list, const dt_err *e) { cli_report(list, e)
 enum {
   O_LIST = 256, O_SESSION, O_USER, O_READONLY, O_DIS, O_DOUBLET, O_RES, O_FWHM, O_RESTAB, O_VSYS,
   O_ATOMIC, O_ASCII, O_NOCOLOUR, O_REPLAY, O_DUMP, O_SIZE, O_BENCH, O_FROM, O_AIR,
-  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD, O_HFS, O_HFSTAB,
+  O_FRAME, O_INFRAME, O_SITE, O_HI, O_TWIN, O_SYSTEM, O_MW, O_NOAHEAD, O_SLICE, O_HFS, O_HFSTAB,
   O_COVER
 };
 static const struct option LONGOPTS[] = {
@@ -110,6 +112,7 @@ static const struct option LONGOPTS[] = {
     {"size", required_argument, NULL, O_SIZE},
     {"bench", no_argument, NULL, O_BENCH},
     {"no-look-ahead", no_argument, NULL, O_NOAHEAD},
+    {"fit-slice", required_argument, NULL, O_SLICE},
     {"covering", no_argument, NULL, O_COVER},
     {NULL, 0, NULL, 0}};
 
@@ -215,6 +218,13 @@ static int inspect_option(int opt, const char *v, int argc, char **argv, inspect
   case O_SIZE: return parse_size(v, o);
   case O_BENCH: o->bench = 1; return 0;
   case O_NOAHEAD: o->no_look_ahead = 1; return 0;
+  case O_SLICE:
+    if (cli_parse_double("--fit-slice", v, &o->fit_slice_ms)) return 1;
+    if (!(o->fit_slice_ms >= 0) || o->fit_slice_ms > 1e6) {
+      cli_errorf("--fit-slice: '%s' is not a time in ms from 0 to 1e6", v);
+      return 1;
+    }
+    return 0;
   case O_COVER: o->covering = 1; return 0;
   }
   return 1;

@@ -777,6 +777,12 @@ int dt_analysis_no_intervals(dt_analysis *a, int off) {
   return was;
 }
 
+double dt_analysis_time_limit(dt_analysis *a, double seconds) {
+  double was = a->opts.time_limit;
+  a->opts.time_limit = seconds;
+  return was;
+}
+
 int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, dt_err *e) {
   int st = prepare(a, j, out, e);
   if (st != DT_OK) return st;

@@ -640,6 +640,7 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
     if (*iter - iter0 >= max_iter) { rs->why = "no convergence within the iteration limit"; break; }
     if (tlim > 0 && now_seconds() - t0 > tlim) {
       rs->why = "no convergence within the time limit";
+      w->info.timed_out = 1;
       break;
     }
     int gs = gsl_multifit_nlinear_iterate(slot->w);

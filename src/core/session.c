@@ -228,10 +228,66 @@ static void adopt(dt_session *ss, const dt_judgement *next) {
 
 static int model_change(dt_action_kind k) { return k != DT_ACT_VERDICT && k != DT_ACT_NOTE; }
 
+static int change_seq(dt_session *ss, const dt_action *const *a, int n);
+
+/* May the refit of state j after actions a[0..n) be cut at fit_slice?
+ * Not for linked species (a joint fit) nor actions that point to a state. */
+static int sliced(const dt_session *ss, const dt_judgement *j, const dt_action *const *a, int n) {
+  if (!(ss->fit_slice > 0) || !ss->auto_refit || j->nlinked > 0 || j->ncomp == 0 ||
+      n > (int)(sizeof ss->pend_a / sizeof ss->pend_a[0]))
+    return 0;
+  for (int i = 0; i < n; i++)
+    if (a[i]->state) return 0;
+  return 1;
+}
+
+/* The refit of *j (the state after the change), cut at fit_slice when
+ * allowed: 1 when it was cut -- the change is then pending, shown as typed
+ * with the fit as far as it got -- else 0 with *j refitted (or left when
+ * the fit failed, analysed as it stands). */
+static int refit_change(dt_session *ss, dt_judgement *j, const dt_action *const *a, int n) {
+  int cut = sliced(ss, j, a, n);
+  dt_judgement typed = *j;
+  double was = cut ? dt_analysis_time_limit(ss->an, ss->fit_slice) : 0.0;
+  ss->out.fit_info.timed_out = 0;
+  int failed = !ss->auto_refit || fit_into(ss, j);
+  if (cut) dt_analysis_time_limit(ss->an, was);
+  if (cut && ss->an_ok && ss->out.fit_info.timed_out) {
+    *j = typed;
+    ss->fit_pending = 1;
+    ss->pend_before = ss->j;
+    ss->pend_n = n;
+    for (int i = 0; i < n; i++) ss->pend_a[i] = *a[i];
+    ss->j = typed;
+    ss->an_msg[0] = '\0';
+    return 1;
+  }
+  if (failed) dt_session_analyse_state(ss, j, 0);
+  return 0;
+}
+
+int dt_session_fit_pending(const dt_session *ss) { return ss->fit_pending; }
+
+int dt_session_finish_fit(dt_session *ss) {
+  if (!ss->fit_pending) return DT_OK;
+  ss->fit_pending = 0;
+  ss->j = ss->pend_before;
+  const dt_action *a[sizeof ss->pend_a / sizeof ss->pend_a[0]];
+  for (int i = 0; i < ss->pend_n; i++) a[i] = &ss->pend_a[i];
+  double slice = ss->fit_slice;
+  ss->fit_slice = 0;
+  int rc = change_seq(ss, a, ss->pend_n);
+  ss->fit_slice = slice;
+  return rc;
+}
+
 /* Actions a[0..n) as one change (one undo step): each is recorded with the
  * state it leads to; the last one, when it changes the model, is refitted
- * first.  If a later record fails, the states recorded so far are kept. */
+ * first (before anything is recorded: a refit cut at fit_slice leaves the
+ * whole change pending).  If a later record fails, the states recorded so
+ * far are kept. */
 static int change_seq(dt_session *ss, const dt_action *const *a, int n) {
+  dt_session_finish_fit(ss);
   if (!dt_session_writable(ss)) return DT_EIO;
   dt_judgement next = ss->j;
   for (int i = 0; i < n; i++)
@@ -239,19 +295,20 @@ static int change_seq(dt_session *ss, const dt_action *const *a, int n) {
       dt_session_say(ss, DT_TONE_WARN, "that change does not fit the current state");
       return DT_EINVAL;
     }
+  int refit = n > 0 && model_change(a[n - 1]->kind) && ss->loaded;
+  dt_judgement fitted = next;
+  if (refit && refit_change(ss, &fitted, a, n)) return DT_OK;
   next = ss->j;
   dt_judgement done = ss->j;
   int ndone = 0;
   for (int i = 0; i < n; i++) {
     dt_judgement_apply(&next, a[i]);
-    int last = i == n - 1, mc = model_change(a[i]->kind);
-    if (last && mc && ss->loaded) {
-      if (!ss->auto_refit || fit_into(ss, &next)) dt_session_analyse_state(ss, &next, 0);
-    }
+    int last = i == n - 1;
+    if (last && refit) next = fitted;
     int rc = record(ss, a[i], &next, last && (ss->loaded || a[i]->kind != DT_ACT_NOTE));
     if (rc != DT_OK) {
       if (ndone) adopt(ss, &done);
-      if (mc || ndone) dt_session_analyse_state(ss, &ss->j, 0); /* back to what is on record */
+      if (model_change(a[i]->kind) || ndone) dt_session_analyse_state(ss, &ss->j, 0); /* back to what is on record */
       return rc;
     }
     done = next;
@@ -304,6 +361,7 @@ static double guess_logN(const dt_session *ss, double v) {
 }
 
 int dt_session_add(dt_session *ss, double v) {
+  dt_session_finish_fit(ss);
   if (ss->j.ncomp >= DT_MAX_COMP) {
     dt_session_say(ss, DT_TONE_WARN, "%d components at most", DT_MAX_COMP);
     return DT_EINVAL;
@@ -327,6 +385,7 @@ int dt_session_add(dt_session *ss, double v) {
 }
 
 int dt_session_remove(dt_session *ss) {
+  dt_session_finish_fit(ss);
   if (!need_comp(ss)) return DT_EINVAL;
   dt_action a;
   dt_action_init(&a, DT_ACT_COMP_REMOVE);
@@ -338,6 +397,7 @@ int dt_session_remove(dt_session *ss) {
 }
 
 int dt_session_select(dt_session *ss, int step) {
+  dt_session_finish_fit(ss);
   if (!need_comp(ss)) return DT_EINVAL;
   size_t n = ss->j.ncomp;
   ss->sel = (ss->sel + n + (size_t)(step % (int)n + (int)n)) % n;
@@ -348,6 +408,7 @@ static const unsigned hold_bit[3] = {DT_FREEZE_V, DT_FREEZE_B, DT_FREEZE_N};
 static const char *const param_name[3] = {"velocity", "b", "log N"};
 
 int dt_session_nudge(dt_session *ss, dt_session_param p, double d) {
+  dt_session_finish_fit(ss);
   if (!need_comp(ss)) return DT_EINVAL;
   dt_component c = ss->j.comp[ss->sel];
   if (p == DT_PARAM_V) {
@@ -391,6 +452,7 @@ int dt_session_nudge(dt_session *ss, dt_session_param p, double d) {
 }
 
 int dt_session_hold(dt_session *ss, dt_session_param p) {
+  dt_session_finish_fit(ss);
   if (!need_comp(ss)) return DT_EINVAL;
   dt_action a;
   dt_action_init(&a, DT_ACT_FREEZE);
@@ -405,6 +467,7 @@ int dt_session_hold(dt_session *ss, dt_session_param p) {
 }
 
 int dt_session_tie(dt_session *ss) {
+  dt_session_finish_fit(ss);
   dt_action a;
   dt_action_init(&a, DT_ACT_TIE_B);
   a.ival = !ss->j.tie_b;
@@ -414,6 +477,7 @@ int dt_session_tie(dt_session *ss) {
 }
 
 int dt_session_covering(dt_session *ss) {
+  dt_session_finish_fit(ss);
   dt_action a;
   dt_action_init(&a, DT_ACT_COVERING);
   a.ival = !ss->j.covering;
@@ -425,6 +489,7 @@ int dt_session_covering(dt_session *ss) {
 }
 
 int dt_session_order(dt_session *ss, int step) {
+  dt_session_finish_fit(ss);
   int o = ss->j.cont_order + step;
   if (o < -1 || o > DT_MAX_CONT - 1) {
     dt_session_say(ss, DT_TONE_WARN, "continuum order stays %d (range -1..%d)", ss->j.cont_order, DT_MAX_CONT - 1);
@@ -442,6 +507,7 @@ int dt_session_order(dt_session *ss, int step) {
 }
 
 int dt_session_window_add(dt_session *ss, double lo, double hi) {
+  dt_session_finish_fit(ss);
   dt_action a;
   dt_action_init(&a, DT_ACT_WINDOW_ADD);
   a.x[0] = lo < hi ? lo : hi;
@@ -456,6 +522,7 @@ int dt_session_window_add(dt_session *ss, double lo, double hi) {
 }
 
 int dt_session_window_remove(dt_session *ss, double lambda) {
+  dt_session_finish_fit(ss);
   for (size_t i = 0; i < ss->j.nwin; i++)
     if (lambda >= ss->j.win[i].lo && lambda <= ss->j.win[i].hi) {
       dt_action a;
@@ -472,6 +539,7 @@ int dt_session_window_remove(dt_session *ss, double lambda) {
 }
 
 int dt_session_refit(dt_session *ss) {
+  dt_session_finish_fit(ss);
   if (!dt_session_writable(ss)) return DT_EIO;
   dt_judgement next = ss->j;
   if (fit_into(ss, &next)) {
@@ -498,6 +566,7 @@ int dt_session_refit(dt_session *ss) {
  * base (j, or j with a new doublet), recording action a (NULL: an autofit
  * record of the new state).  why opens the message. */
 int dt_session_autofit_to(dt_session *ss, const dt_judgement *base, const dt_action *a, const char *why) {
+  dt_session_finish_fit(ss);
   if (!ss->loaded) {
     dt_session_say(ss, DT_TONE_WARN, "no data to fit");
     return DT_EINVAL;
@@ -565,6 +634,7 @@ static int covers(const dt_spectrum *sp, const dt_doublet *d, double vsys) {
 }
 
 int dt_session_switch_doublet(dt_session *ss) {
+  dt_session_finish_fit(ss);
   if (!ss->loaded) {
     dt_session_say(ss, DT_TONE_WARN, "no data: the doublet cannot change");
     return DT_EINVAL;
@@ -589,6 +659,7 @@ int dt_session_switch_doublet(dt_session *ss) {
 }
 
 static int undo_redo(dt_session *ss, int redo) {
+  dt_session_finish_fit(ss);
   size_t *n = redo ? &ss->nredo : &ss->nundo;
   dt_judgement *stack = redo ? ss->redo : ss->undo;
   if (*n == 0) {
@@ -615,6 +686,7 @@ int dt_session_undo(dt_session *ss) { return undo_redo(ss, 0); }
 int dt_session_redo(dt_session *ss) { return undo_redo(ss, 1); }
 
 int dt_session_verdict(dt_session *ss, dt_verdict v) {
+  dt_session_finish_fit(ss);
   if (!ss->loaded && v != DT_VERDICT_UNUSABLE) {
     dt_session_say(ss, DT_TONE_WARN, "this file cannot be read: only 'unusable' or a note");
     return DT_EINVAL;
@@ -639,6 +711,7 @@ int dt_session_verdict(dt_session *ss, dt_verdict v) {
 }
 
 int dt_session_select_system(dt_session *ss, int step) {
+  dt_session_finish_fit(ss);
   size_t n = ss->systems.n;
   if (n <= 1) {
     dt_session_say(ss, DT_TONE_WARN, "only the target system here%s%s",
@@ -656,6 +729,7 @@ int dt_session_select_system(dt_session *ss, int step) {
 }
 
 int dt_session_note(dt_session *ss, const char *text) {
+  dt_session_finish_fit(ss);
   if (!strcmp(text, ss->j.note)) {
     dt_session_say(ss, DT_TONE_TEXT, "note unchanged");
     return DT_OK;

@@ -266,6 +266,7 @@ size_t dt_session_linkable(const dt_session *ss, const dt_doublet **out, size_t 
 }
 
 int dt_session_link(dt_session *ss, const char *name) {
+  dt_session_finish_fit(ss);
   if (!ss->loaded) {
     dt_session_say(ss, DT_TONE_WARN, "no data: nothing can be linked");
     return DT_EINVAL;
@@ -302,6 +303,7 @@ int dt_session_link(dt_session *ss, const char *name) {
 }
 
 int dt_session_btie_next(dt_session *ss) {
+  dt_session_finish_fit(ss);
   dt_action a;
   dt_action_init(&a, DT_ACT_BTIE);
   a.ival = (ss->j.btie + 1) % DT_BTIE__COUNT;

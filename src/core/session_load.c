@@ -255,6 +255,7 @@ void dt_session_target_init(dt_session_target *t, const char *path, const char *
 }
 
 int dt_session_load(dt_session *ss, const dt_session_target *t) {
+  dt_session_finish_fit(ss);
   reset(ss, t);
   ss->hyperfine = t->hyperfine;
   ss->lsf_constant = t->lsf_constant;

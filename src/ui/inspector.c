@@ -26,6 +26,7 @@
 void dt_inspect_opts_init(dt_inspect_opts *o) {
   memset(o, 0, sizeof *o);
   o->colour = -1;
+  o->fit_slice_ms = DT_INSPECT_FIT_SLICE_MS;
   dt_system_opts_init(&o->systems);
 }
 
@@ -456,6 +457,9 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
     if (rp.f) fclose(rp.f);
     return 1;
   }
+  /* a longer refit is drawn as far as it got and finished in the next idle
+   * moment (or before the next key), then recorded (session.h) */
+  s->ss->fit_slice = o->fit_slice_ms * 1e-3;
   s->atomic = t;
   s->cog = dt_cog_cache_alloc(); /* NULL: the exact inverse */
   s->pf = o->no_look_ahead ? NULL : dt_prefetch_start(t);
@@ -468,9 +472,10 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
 
   open_first(s, jn, o);
 
-  /* keystroke times: all, those that refitted within one spectrum, and the
-   * moves to another spectrum */
-  key_times kt[3];
+  /* keystroke times: all, those that refitted within one spectrum, the
+   * moves to another spectrum, and the refits until their fit was done
+   * (a refit cut at the frame finished) */
+  key_times kt[4];
   memset(kt, 0, sizeof kt);
   int status = 0;
   msg[0] = '\0';
@@ -489,37 +494,47 @@ int dt_inspect_run(dt_queue *q, const dt_atomic *t, dt_journal *jn, const dt_ins
         break;
       }
     } else {
-      /* the log N intervals of a new fit follow in the next frame, when no
-       * key comes within INTERVALS_IDLE_MS */
-      int pending = dt_session_intervals_pending(s->ss);
+      /* a refit cut at the frame and the log N intervals of a new fit
+       * follow in the next frames, when no key comes within
+       * INTERVALS_IDLE_MS */
+      int fitp = dt_session_fit_pending(s->ss), pending = fitp || dt_session_intervals_pending(s->ss);
       key = dt_term_getkey(pending ? INTERVALS_IDLE_MS : -1);
       if (key == DT_KEY_NONE) {
-        if (pending) {
-          dt_session_finish_intervals(s->ss);
-          draw(s);
-        }
+        if (fitp) dt_session_finish_fit(s->ss);
+        else if (pending) dt_session_finish_intervals(s->ss);
+        if (pending) draw(s);
         continue;
       }
     }
     double t0 = now_ms();
+    dt_session_finish_fit(s->ss); /* a change still fitting is recorded before the next */
     long f0 = s->ss->nfits;
     size_t c0 = s->cur;
     int ev = dt_insp_handle(s, key);
     if (ev & EV_QUIT) break;
     draw(s);
-    double dt = now_ms() - t0;
-    if (rp.f && dt_session_intervals_pending(s->ss)) { /* a replay has no idle time */
+    double dt = now_ms() - t0, settled = dt;
+    if (rp.f && dt_session_fit_pending(s->ss)) { /* a replay has no idle time */
+      dt_session_finish_fit(s->ss);
+      draw(s);
+      settled = now_ms() - t0;
+    }
+    if (rp.f && dt_session_intervals_pending(s->ss)) {
       dt_session_finish_intervals(s->ss);
       draw(s);
     }
     key_times_add(&kt[0], dt);
-    if (s->ss->nfits > f0 && s->cur == c0) key_times_add(&kt[1], dt);
+    if (s->ss->nfits > f0 && s->cur == c0) {
+      key_times_add(&kt[1], dt);
+      key_times_add(&kt[3], settled);
+    }
     if (s->cur != c0) key_times_add(&kt[2], dt);
   }
+  dt_session_finish_fit(s->ss); /* nothing typed is lost on the way out */
   if (o->dump) dump_screen(s, o->dump);
   dt_term_close();
-  static const char *const label[3] = {"keys", "refits", "next"};
-  for (int k = 0; k < 3; k++) {
+  static const char *const label[4] = {"keys", "refits", "next", "refits settled"};
+  for (int k = 0; k < 4; k++) {
     if (o->bench && kt[0].n > 0) key_times_print(label[k], &kt[k]);
     free(kt[k].t);
   }

@@ -40,10 +40,15 @@ typedef struct dt_inspect_opts {
   int width, height;       /* headless screen size (0: 100 x 32) */
   int bench;               /* print per-keystroke timing at the end */
   int no_look_ahead;       /* 1: open each spectrum only when it is shown */
+  double fit_slice_ms;     /* a change's refit may take this long before the
+                              frame, the rest after it (session.h fit_slice);
+                              0: all before it (default DT_INSPECT_FIT_SLICE_MS) */
   /* set by the command, for the inspector to show and use */
   const char *session_path; /* shown at the start (NULL: the journal's path) */
   const struct dt_hicube *hi; /* a 21-cm cube to show at each sightline (or NULL) */
 } dt_inspect_opts;
+
+#define DT_INSPECT_FIT_SLICE_MS 5.0
 
 void dt_inspect_opts_init(dt_inspect_opts *o);
 

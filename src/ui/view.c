@@ -764,7 +764,9 @@ static void table_fit(dt_insp *s, const syms *y, int x, int row, int maxw) {
   cx += dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, " %s %.3f  dof %ld  BIC %.1f   %s%s%s", y->chi, chi2r,
                        dof, bic, cont, j->covering ? "  partial covering" : "",
                        s->ss->auto_refit ? "" : "  refit: manual");
-  if (status != 0 && cx < maxw)
+  if (s->ss->fit_pending && cx < maxw)
+    dt_grid_printf(g, x + cx, row, DT_R_TEXT, 0, maxw - cx, "  fitting...");
+  else if (status != 0 && cx < maxw)
     dt_grid_printf(g, x + cx, row, DT_R_BAD, DT_A_BOLD, maxw - cx, "  %s",
                    status == DT_ENOCONV ? "NOT CONVERGED" : "FIT FAILED");
 }

@@ -4,9 +4,13 @@
 # demo survey; every keystroke is timed from the key to the finished screen,
 # including the refit and the fsync'd session record.  Reports the median,
 # 90th percentile and maximum over all keys, over the keys that refitted,
-# and over the moves to the next spectrum (a verdict: record, open the next
-# one, draw), each after a pause of 200 ms as a person looks before judging
-# (the budget is one frame, 16 ms).  The session file lives in the working directory's file system
+# over the moves to the next spectrum (a verdict: record, open the next
+# one, draw; each after a pause of 200 ms as a person looks before
+# judging), and over the refitting keys until their fit was done (a refit
+# longer than the frame's slice, inspect --fit-slice, is drawn as far as it
+# got and finished, then recorded, after the frame).  The budget is one
+# frame, 16 ms.  The session file lives in the working directory's file
+# system
 # (a real disk: fsync costs what it costs there); a second run on /dev/shm,
 # when there is one, shows the part that is the disk.
 set -u
