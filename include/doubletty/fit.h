@@ -108,6 +108,10 @@ typedef struct dt_fit_problem {
                                     solution looks suspicious (near a bound
                                     or a high chi2) -- for refits that start
                                     next to an optimum on purpose */
+  int plain;                     /* 1: plain Levenberg-Marquardt steps from the
+                                    start (no geodesic acceleration, which
+                                    costs a model evaluation per iteration):
+                                    for a start next to the optimum */
   double time_limit;             /* seconds (monotonic clock); 0: DT_FIT_TIME_LIMIT;
                                     < 0: none (the iteration limit still holds) */
   /* Partial covering (cover.h).  covering = 1: every component has its own

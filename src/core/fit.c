@@ -762,7 +762,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   dt_gsl_quiet();
   int iter = 0;
   run_state rs;
-  solve(w, &fdf, x0, FIRST_ACCEL, max_iter, tlim, t0, &iter, &rs);
+  solve(w, &fdf, x0, p->plain ? 0 : FIRST_ACCEL, max_iter, tlim, t0, &iter, &rs);
   if (rs.slot && !p->single_run && suspicious(w, &rs)) {
     /* Plain LM's long first steps can overshoot into a wrong valley; the
      * geodesic-accelerated steps are shorter where the model bends.  Try

@@ -99,6 +99,9 @@ static int out_of_budget(prof *P) {
 static double refit(prof *P, const dt_component *comp, const double *cont, int iter,
                     dt_component *sol, double *csol) {
   P->q.max_iter = iter;
+  /* a start next to its optimum: plain steps (not in the thorough search,
+   * whose refits go further out) */
+  P->q.plain = iter == PROFILE_MAX_ITER && !P->deep;
   memcpy(P->comp, comp, P->r->ncomp * sizeof P->comp[0]);
   P->q.comp = P->comp;
   if (P->r->ncont) P->q.cont_init = cont;
@@ -113,13 +116,25 @@ static double refit(prof *P, const dt_component *comp, const double *cont, int i
   return fr.chi2;
 }
 
+/* Has a far start come back to the valley of near (every free b within
+ * SAME_VALLEY in ln b of near's)?  It would end where near is. */
+#define SAME_VALLEY 0.2
+static int same_valley(const prof *P, const dt_component *sol, const dt_component *near) {
+  for (size_t q = 0; q < P->r->ncomp; q++)
+    if (!(P->frozen[q] & DT_FREEZE_B) && !(fabs(log(sol[q].b / near[q].b)) < SAME_VALLEY)) return 0;
+  return 1;
+}
+
 /* A refit from a start far from its optimum (another valley): a few
  * iterations first, the rest only when chi2 is then below chi0 + reach
- * + PEEK_DCHI2 (most such starts end far above: cheap to drop). */
+ * + PEEK_DCHI2 (most such starts end far above: cheap to drop) and the b
+ * are not back in the valley of near (the refit from next to the optimum
+ * at the same point, or NULL: that refit would end there too). */
 static double far_refit(prof *P, const dt_component *comp, const double *cont, double reach,
-                        dt_component *sol, double *csol) {
+                        const dt_component *near, dt_component *sol, double *csol) {
   double c = refit(P, comp, cont, PROFILE_PEEK_ITER, sol, csol);
   if (!(c < P->chi0 + reach + PEEK_DCHI2)) return c;
+  if (near && isfinite(c) && same_valley(P, sol, near)) return c;
   dt_component s2[DT_MAX_COMP];
   double c2[DT_MAX_CONT];
   memcpy(s2, sol, P->r->ncomp * sizeof s2[0]);
@@ -215,7 +230,10 @@ static double chi2_at(prof *P, double x, double target) {
       } else if (!exchange(P, alt, x)) {
         break;
       }
-      double ca = far_refit(P, alt, P->cfrom, target, sol, csol);
+      /* (a column exchanged keeps the b: no test of the valley by b; nor
+       * in the thorough search) */
+      double ca = far_refit(P, alt, P->cfrom, target, i < 2 && !P->deep && isfinite(c) ? best : NULL,
+                            sol, csol);
       if (ca < c) {
         c = ca;
         memcpy(best, sol, P->r->ncomp * sizeof best[0]);
@@ -350,7 +368,7 @@ static void other_valleys(prof *P, const dt_fit_problem *p) {
         }
       }
     }
-    double c = far_refit(P, alt, P->r->cont_coef, 9.0, sol, csol);
+    double c = far_refit(P, alt, P->r->cont_coef, 9.0, NULL, sol, csol);
     note_lower(P, c, sol, csol);
     if (isfinite(c) && fabs(sol[k].logN - P->r->comp[k].logN) > XTOL && P->nalt < MAX_ALT) {
       int n = P->nalt++;
@@ -495,7 +513,7 @@ int dt_profile_other_valley(dt_fit_workspace *w, const dt_fit_problem *p, const 
     alt[k].logN = r->comp[k].logN + (i == 0 ? h3 : -h3);
     other_b(&P, alt, i);
     P.chi0 = r->chi2;
-    double c = far_refit(&P, alt, r->cont_coef, d3, sol, csol);
+    double c = far_refit(&P, alt, r->cont_coef, d3, NULL, sol, csol);
     if (c - r->chi2 < VERIFY * d3) return 1;
   }
   return 0;
