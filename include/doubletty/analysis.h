@@ -87,6 +87,8 @@ typedef struct dt_analysis_opts {
                            several times the refits */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
+  double stall_chi2;    /* fit.h: a fit also ends when its last iterations
+                           gain less chi2 than this (0: off; for trials) */
   const dt_hyperfine *hyperfine; /* hyperfine components (hyperfine.h):
                            lines with a row in this table are modelled as
                            the sum of their components; NULL (default): every
@@ -224,6 +226,9 @@ int dt_analysis_no_intervals(dt_analysis *a, int off);
 /* Set the fits' time limit [s] (opts.time_limit: 0 the fit's default, < 0
  * none) without touching the other options; returns the previous one. */
 double dt_analysis_time_limit(dt_analysis *a, double seconds);
+
+/* Set opts.stall_chi2 alone; returns the previous value. */
+double dt_analysis_stall(dt_analysis *a, double chi2);
 
 /* The intervals dt_analysis_run computes itself unless opts.defer_intervals,
  * within its time (DT_ANALYSIS_RUN_INTERVAL_S), for out of the last run of

@@ -82,6 +82,8 @@ typedef struct dt_fit_result {
 #define DT_FIT_MAX_ITER 200
 #define DT_FIT_TIME_LIMIT 2.0      /* seconds per fit */
 
+#define DT_FIT_STALL_ITERS 5
+
 typedef struct dt_fit_problem {
   dt_model *model;               /* the doublet model on the fit pixels */
   const double *wave;            /* pixel centres [Angstrom] (the model's);
@@ -108,6 +110,10 @@ typedef struct dt_fit_problem {
                                     solution looks suspicious (near a bound
                                     or a high chi2) -- for refits that start
                                     next to an optimum on purpose */
+  double stall_chi2;             /* > 0: also converged when the last
+                                    DT_FIT_STALL_ITERS iterations together
+                                    lowered chi2 by less than this (a trial
+                                    whose chi2 is all that is asked; 0: off) */
   int plain;                     /* 1: plain Levenberg-Marquardt steps from the
                                     start (no geodesic acceleration, which
                                     costs a model evaluation per iteration):
@@ -130,10 +136,12 @@ typedef struct dt_fit_info {
   int at_bound[DT_MAX_COMP];     /* DT_FREEZE_* style bits: parameter within
                                     1% of its range from a bound (ln b for b) */
   int reason;                    /* 1 small step, 2 small gradient (GSL tests),
+                                    6 stalled (stall_chi2),
                                     3 converged with parameters at bounds */
   size_t nparam;                 /* fitted parameters */
   double seconds;                /* duration of the fit */
   int timed_out;                 /* 1: a run stopped at the time limit */
+  int stalled;                   /* 1: the kept run ended by stall_chi2 */
 } dt_fit_info;
 
 typedef struct dt_fit_workspace dt_fit_workspace;

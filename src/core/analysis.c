@@ -464,6 +464,7 @@ static void fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *
   p->vhi = j->vhi;
   p->max_iter = a->opts.max_iter;
   p->time_limit = a->opts.time_limit;
+  p->stall_chi2 = a->opts.stall_chi2;
   p->covering = j->covering;
   p->cf = j->cf;
   p->cover_model = j->covering ? a->mc : NULL;
@@ -780,6 +781,12 @@ int dt_analysis_no_intervals(dt_analysis *a, int off) {
 double dt_analysis_time_limit(dt_analysis *a, double seconds) {
   double was = a->opts.time_limit;
   a->opts.time_limit = seconds;
+  return was;
+}
+
+double dt_analysis_stall(dt_analysis *a, double chi2) {
+  double was = a->opts.stall_chi2;
+  a->opts.stall_chi2 = chi2;
   return was;
 }
 

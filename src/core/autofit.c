@@ -66,6 +66,9 @@
 #define POOR_CHI2 3.0       /* reduced chi2 of a poor fit */
 #define RESID_SIGMA 3.0     /* residual significance worth a new component */
 #define DOUBT_SIGMA 3.0     /* chi2 this many sigma above dof: a poor model */
+#define TRIAL_STALL 0.02    /* a trial of one more component ends when its last
+                               DT_FIT_STALL_ITERS iterations gain less chi2
+                               (the BIC margin is 10: common practice) */
 
 enum { G_WEAK, G_CONFIRMED, G_ODD };
 
@@ -699,9 +702,23 @@ static void grow_by_bic(const ctx *c, dt_analysis *a, const dt_judgement *base,
       next[nc].b = fmax(c->fwhm / 3.0, 5.0);
       next[nc].v = 0.5 * (j->vlo + j->vhi);
     }
+    /* a trial for the BIC ends once it gains little more (its chi2
+     * decides); one kept is then fitted to the end from where it stopped
+     * (a fixed number of components: each fitted to the end at once) */
     dt_analysis_out trial;
+    double was = dt_analysis_stall(a, want ? 0.0 : TRIAL_STALL);
     int ts = fit_with(a, base, next, nc + 1, &trial, &f->fe);
+    dt_analysis_stall(a, was);
     int accept = ts == DT_OK && (want || trial.fit.bic < f->best.fit.bic - op->bic_min);
+    if (accept && trial.fit_info.stalled) {
+      dt_analysis_out full;
+      int fs = fit_with(a, base, trial.fit.comp, nc + 1, &full, &f->fe);
+      if (fs == DT_OK || fs == DT_ENOCONV) {
+        trial = full;
+        ts = fs;
+        accept = ts == DT_OK && (want || trial.fit.bic < f->best.fit.bic - op->bic_min);
+      }
+    }
     if (!accept && ts == DT_OK && !want && doubtful_model(&f->best.fit, &trial.fit)) {
       f->doubt_dchi2 = f->best.fit.chi2 - trial.fit.chi2;
       f->doubt_short = trial.fit.bic - (f->best.fit.bic - op->bic_min);

@@ -634,6 +634,7 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
   dt_lsq_slot *slot = rs->slot;
   int stalls = 0, done = 0, n = 0;
   double chi2 = INFINITY;
+  double gain[DT_FIT_STALL_ITERS] = {0};   /* the last iterations' drops of chi2 */
   if (gsl_multifit_nlinear_init(&xv.vector, fdf, slot->w) != GSL_SUCCESS)
     rs->why = "the solver could not start";
   while (!rs->why && !done) {
@@ -676,10 +677,18 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
     double fn = gsl_blas_dnrm2(gsl_multifit_nlinear_residual(slot->w));
     double drop = chi2 - fn * fn;
     chi2 = fn * fn;
+    gain[n % DT_FIT_STALL_ITERS] = drop;
     if (gsl_multifit_nlinear_test(XTOL, GTOL, 0.0, &info, slot->w) == GSL_SUCCESS) {
       done = 1;
     } else if ((info = extra_converged(w, slot->w, slot->cov, chi2, drop)) != 0) {
       done = 1;
+    } else if (w->prob->stall_chi2 > 0 && n >= DT_FIT_STALL_ITERS) {
+      double g = 0;
+      for (int k = 0; k < DT_FIT_STALL_ITERS; k++) g += gain[k];
+      if (g < w->prob->stall_chi2) {
+        info = 6;
+        done = 1;
+      }
     }
     rs->info = info;
   }
@@ -822,6 +831,7 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
     }
   }
   w->info.reason = rs.info;
+  w->info.stalled = rs.info == 6;
   w->info.seconds = now_seconds() - t0;
   if (why) {
     r->status = DT_ENOCONV;

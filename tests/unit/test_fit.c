@@ -407,6 +407,41 @@ static void test_hostile(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rng)
   CHECK(dt_fit_alloc(0, 1, 0) == NULL, "workspace of 0 pixels refused");
 }
 
+/* A fit with stall_chi2 (the first pass's trials of one more component):
+ * a superfluous second component on one real line crawls along a flat
+ * valley; with the stall test it ends early, says so (reason 6, stalled),
+ * and its chi2 is never below that of the fit run to the end (a trial's
+ * gain is not overstated; it may be understated: here by 4.0, the fit to
+ * the end finding a lower valley after 67 iterations -- no local test
+ * foresaw it, not even the Newton decrement); without it, stalled is never
+ * set. */
+static void test_stall(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rng) {
+  synth s = make(d, 5880, 5910, 0.1, 20000);
+  dt_component truth[1] = {{12.3, 6.0, 10.0}};
+  fill(&s, truth, 1, 30.0, rng, NULL);
+  dt_component start[2] = {{12.3, 6.0, 10.0}, {11.0, 20.0, 150.0}};
+  dt_fit_problem p = problem(&s, start, 2);
+  dt_fit_result full, quick;
+  dt_fit_run(w, &p, &full, NULL);
+  CHECK(!dt_fit_last_info(w)->stalled, "without stall_chi2: never stalled (reason %d)",
+        dt_fit_last_info(w)->reason);
+  p.stall_chi2 = 0.02;
+  int st = dt_fit_run(w, &p, &quick, NULL);
+  const dt_fit_info *in = dt_fit_last_info(w);
+  CHECK(st == DT_OK, "a stalled fit counts as converged (status %d)", st);
+  CHECK(in->stalled == (in->reason == 6), "stalled is reason 6 (%d, %d)", in->stalled, in->reason);
+  CHECK(quick.niter <= full.niter, "no more iterations than to the end (%d vs %d)", quick.niter,
+        full.niter);
+  CHECK(quick.chi2 >= full.chi2 - 1e-6, "chi2 not below the fit to the end's (%.4f vs %.4f)",
+        quick.chi2, full.chi2);
+  p.stall_chi2 = 1e9;   /* any five iterations gain less: it ends at the fifth */
+  dt_fit_run(w, &p, &quick, NULL);
+  CHECK(dt_fit_last_info(w)->stalled && quick.niter >= DT_FIT_STALL_ITERS &&
+            quick.niter <= DT_FIT_STALL_ITERS + 1,
+        "a huge margin ends it after DT_FIT_STALL_ITERS iterations (%d)", quick.niter);
+  unmake(&s);
+}
+
 int main(void) {
   dt_doublet d = nai();
   gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
@@ -418,6 +453,7 @@ int main(void) {
   test_freeze_tie_bounds(&d, w, rng);
   test_joint_continuum(&d, w, rng);
   test_hostile(&d, w, rng);
+  test_stall(&d, w, rng);
   dt_fit_free(w);
   gsl_rng_free(rng);
   return dt_test_done();
