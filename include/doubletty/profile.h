@@ -33,8 +33,8 @@
  *     iterations first and go on only when chi2 is then within reach
  *     and -- outside DT_PROFILE_DEEP -- the b have not come back within
  *     20% of the near refit's, whose valley they would end in); the near
- *     refits take plain Levenberg-Marquardt steps, outside
- *     DT_PROFILE_DEEP;
+ *     refits and the first iterations of the far ones take plain
+ *     Levenberg-Marquardt steps, outside DT_PROFILE_DEEP;
  *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere (no b at the
  *     edge of its range) means the fit was not the minimum: the reference
  *     moves there (a full refit from

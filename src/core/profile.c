@@ -99,9 +99,9 @@ static int out_of_budget(prof *P) {
 static double refit(prof *P, const dt_component *comp, const double *cont, int iter,
                     dt_component *sol, double *csol) {
   P->q.max_iter = iter;
-  /* a start next to its optimum: plain steps (not in the thorough search,
-   * whose refits go further out) */
-  P->q.plain = iter == PROFILE_MAX_ITER && !P->deep;
+  /* a start next to its optimum, and the first look from a far one:
+   * plain steps (not in the thorough search, whose refits go further out) */
+  P->q.plain = (iter == PROFILE_MAX_ITER || iter == PROFILE_PEEK_ITER) && !P->deep;
   memcpy(P->comp, comp, P->r->ncomp * sizeof P->comp[0]);
   P->q.comp = P->comp;
   if (P->r->ncont) P->q.cont_init = cont;
