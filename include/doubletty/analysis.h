@@ -174,6 +174,12 @@ typedef struct dt_analysis dt_analysis;
  * NULL when out of memory. */
 dt_analysis *dt_analysis_alloc(const dt_spectrum *s, const dt_atomic *t);
 void dt_analysis_free(dt_analysis *a);
+/* The same analysis for another spectrum s (it must outlive the analysis;
+ * the previous one need not): nothing of the last run is kept but the
+ * workspaces, and the model when s has the same wavelengths over its
+ * pixels and no line-spread width per pixel -- what a batch of spectra from
+ * one instrument reuses.  The options stay.  DT_EINVAL when s is NULL. */
+int dt_analysis_rebind(dt_analysis *a, const dt_spectrum *s);
 /* Replace the options (NULL: defaults).  Takes effect at the next run. */
 void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o);
 

@@ -31,6 +31,10 @@ struct batch {
   pthread_cond_t have_work, have_done;
   pthread_t *thr;
   int nthr;
+  struct worker_arg {
+    struct batch *b;
+    int id;
+  } *args;                       /* each worker's */
 };
 
 int batch_cores(void) {
@@ -39,14 +43,15 @@ int batch_cores(void) {
 }
 
 static void *worker(void *arg) {
-  batch *b = arg;
+  const struct worker_arg *wa = arg;
+  batch *b = wa->b;
   pthread_mutex_lock(&b->mu);
   for (;;) {
     while (b->next == b->tail && !b->stop) pthread_cond_wait(&b->have_work, &b->mu);
     if (b->next == b->tail) break; /* stopping and nothing left */
     slot *s = &b->ring[b->next++ % b->window];
     pthread_mutex_unlock(&b->mu);
-    b->work(b->ctx, s->task);
+    b->work(b->ctx, s->task, wa->id);
     pthread_mutex_lock(&b->mu);
     s->done = 1;
     pthread_cond_signal(&b->have_done);
@@ -68,7 +73,8 @@ batch *batch_start(int jobs, size_t window, batch_work_fn work, batch_done_fn do
   if (jobs == 1) return b;
   b->ring = calloc(window, sizeof *b->ring);
   b->thr = calloc((size_t)jobs, sizeof *b->thr);
-  if (!b->ring || !b->thr) goto fail;
+  b->args = calloc((size_t)jobs, sizeof *b->args);
+  if (!b->ring || !b->thr || !b->args) goto fail;
   if (pthread_mutex_init(&b->mu, NULL)) goto fail;
   if (pthread_cond_init(&b->have_work, NULL)) {
     pthread_mutex_destroy(&b->mu);
@@ -79,8 +85,11 @@ batch *batch_start(int jobs, size_t window, batch_work_fn work, batch_done_fn do
     pthread_mutex_destroy(&b->mu);
     goto fail;
   }
-  for (; b->nthr < jobs; b->nthr++)
-    if (pthread_create(&b->thr[b->nthr], NULL, worker, b)) break;
+  for (; b->nthr < jobs; b->nthr++) {
+    b->args[b->nthr].b = b;
+    b->args[b->nthr].id = b->nthr;
+    if (pthread_create(&b->thr[b->nthr], NULL, worker, &b->args[b->nthr])) break;
+  }
   if (b->nthr == 0) {
     pthread_cond_destroy(&b->have_done);
     pthread_cond_destroy(&b->have_work);
@@ -91,6 +100,7 @@ batch *batch_start(int jobs, size_t window, batch_work_fn work, batch_done_fn do
 fail:
   free(b->ring);
   free(b->thr);
+  free(b->args);
   free(b);
   return NULL;
 }
@@ -121,7 +131,7 @@ static void drain(batch *b, int wait) {
 
 void batch_submit(batch *b, void *task) {
   if (!b->ring) { /* one job: here and now */
-    b->work(b->ctx, task);
+    b->work(b->ctx, task, 0);
     b->done(b->ctx, task);
     return;
   }
@@ -150,5 +160,6 @@ void batch_finish(batch *b) {
   }
   free(b->ring);
   free(b->thr);
+  free(b->args);
   free(b);
 }

@@ -13,8 +13,9 @@
 
 typedef struct batch batch;
 
-/* Runs on a worker thread (any worker; tasks of one batch never share one). */
-typedef void (*batch_work_fn)(void *ctx, void *task);
+/* Runs on a worker thread (any worker; tasks of one batch never share one);
+ * worker: which one, 0 .. jobs - 1 (workspaces kept per worker). */
+typedef void (*batch_work_fn)(void *ctx, void *task, int worker);
 /* Runs on the caller's thread, once per task, in submission order. */
 typedef void (*batch_done_fn)(void *ctx, void *task);
 

@@ -191,10 +191,11 @@ typedef struct {
 } fit_task;
 
 /* On a worker: fit the input (or report its bad line) into the buffers. */
-static void task_work(void *ctx, void *arg) {
-  (void)ctx;
+static void task_work(void *ctx, void *arg, int worker) {
+  const run *m = ctx;
   fit_task *k = arg;
   run *r = &k->r;
+  r->an_slot = m->ans ? &m->ans[worker] : NULL;
   if (k->bad) {
     fit_report(r, k->t.path, 0, &k->err);
     fit_row_failed(r, &k->t, NULL, 0, r->cfg->doublet ? r->cfg->doublet : "", NAN, &k->err);
@@ -729,9 +730,13 @@ int cmd_fit(int argc, char **argv) {
   int jobs = c.jobs > 0 ? (int)c.jobs : batch_cores();
   /* a FITS library built without thread support reads on one thread only */
   if (jobs > 1 && dt_spectrum_threads_init() != DT_OK) jobs = 1;
+  /* each worker keeps its analysis (workspaces, and the model of spectra
+   * on the same pixels) from one spectrum to the next */
+  r.ans = calloc((size_t)jobs, sizeof *r.ans); /* NULL: one per spectrum */
   r.pool = batch_start(jobs, (size_t)jobs * FIT_WINDOW_PER_JOB, task_work, task_done, &r);
   if (!r.pool) {
     cli_errorf("fit: cannot start %d threads: out of memory or threads", jobs);
+    free(r.ans);
     cli_out_abort(&of);
     rc = 1;
     goto done;
@@ -749,6 +754,9 @@ int cmd_fit(int argc, char **argv) {
     fflush(of.f);
   }
   batch_finish(r.pool);
+  for (int k = 0; r.ans && k < jobs; k++) dt_analysis_free(r.ans[k]);
+  free(r.ans);
+  r.ans = NULL;
   bar_clear(&r);
   if (r.oom) {
     cli_errorf("fit: out of memory after %ld inputs", r.ninputs);

@@ -83,6 +83,9 @@ typedef struct {
   int oom;                      /* a task could not be set up: stop */
   dt_cog_cache *cog;            /* curve-of-growth tables of the limits, shared */
   const dt_hyperfine *hfs;      /* hyperfine table (NULL: could not be read) */
+  dt_analysis **ans;            /* the run's: an analysis per worker, kept
+                                   from spectrum to spectrum (NULL: none) */
+  dt_analysis **an_slot;        /* a task's: its worker's (NULL: its own) */
   const char *lsf_label;        /* the current spectrum's line-spread function: */
   double lsf_fwhm;              /*   where from, FWHM at the line [km/s] */
 } run;

@@ -124,6 +124,19 @@ static int setup_systems(const config *c, const dt_target_spec *t, const dt_spec
 }
 
 /* Fit one spectrum (one row of a table, or the only one) for one doublet. */
+/* An analysis of s: the worker's own, kept from the last spectrum, or a
+ * new one (which becomes the worker's when it has none). */
+static dt_analysis *analysis_for(run *r, const dt_spectrum *s) {
+  if (r->an_slot && *r->an_slot && dt_analysis_rebind(*r->an_slot, s) == DT_OK) return *r->an_slot;
+  dt_analysis *an = dt_analysis_alloc(s, r->atomic);
+  if (an && r->an_slot && !*r->an_slot) *r->an_slot = an;
+  return an;
+}
+
+static void analysis_done(run *r, dt_analysis *an) {
+  if (!(r->an_slot && *r->an_slot == an)) dt_analysis_free(an);
+}
+
 static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const char *dname) {
   const config *c = r->cfg;
   dt_err e;
@@ -158,7 +171,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
   dt_autofit_out o;
   memset(&o, 0, sizeof o);
   if (st == DT_OK) {
-    an = dt_analysis_alloc(s, r->atomic);
+    an = analysis_for(r, s);
     if (!an) st = dt_err_set(&e, DT_ENOMEM, NULL, "out of memory");
   }
   if (st == DT_OK) {
@@ -200,7 +213,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     fit_row_failed(r, t, s, shown_row, d ? d->name : dname, vsys, &e);
     r->failed++;
   }
-  dt_analysis_free(an);
+  analysis_done(r, an);
   dt_spectrum_free(s);
 }
 

@@ -82,6 +82,7 @@ static void free_buffers(dt_analysis *a) {
 void dt_analysis_free(dt_analysis *a) {
   if (!a) return;
   free_buffers(a);
+  free(a->mwave);
   free(a->rcont);
   free(a->rerr);
   dt_model_free(a->m);
@@ -94,11 +95,26 @@ void dt_analysis_free(dt_analysis *a) {
   free(a);
 }
 
+int dt_analysis_rebind(dt_analysis *a, const dt_spectrum *s) {
+  if (!a || !s) return DT_EINVAL;
+  const size_t i0 = a->mkey.i0, n = a->mkey.n;
+  int keep = a->have_model && a->mwave && !s->lsf_fwhm_kms && !a->mkey.lsf && i0 + n <= s->n &&
+             memcmp(a->mwave, s->wave + i0, n * sizeof *a->mwave) == 0;
+  a->s = s;
+  a->have_run = a->have_cont = a->have_ltr = 0;
+  if (!keep) a->have_model = a->have_sm = 0;
+  memset(a->compmod_ok, 0, sizeof a->compmod_ok);
+  memset(a->cog_cache, 0, sizeof a->cog_cache);
+  a->covering = 0;
+  return DT_OK;
+}
+
 void dt_analysis_set_opts(dt_analysis *a, const dt_analysis_opts *o) {
   if (o) a->opts = *o;
   else dt_analysis_opts_init(&a->opts);
   if (a->opts.joint_cont > DT_MAX_CONT) a->opts.joint_cont = DT_MAX_CONT;
-  a->have_model = 0;   /* oversample / tau_cut may have changed */
+  /* (a model is rebuilt when its key -- oversample, tau_cut, the hyperfine
+   * table, the line-spread widths among them -- changes) */
   a->have_run = 0;
 }
 
@@ -311,6 +327,13 @@ static int ensure_model(dt_analysis *a, const dt_judgement *j, const dt_doublet 
     a->fw_cap = n;
     if (!a->fw) return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
   }
+  /* its wavelengths, to know a spectrum on the same pixels (rebind) */
+  if (a->mwave_cap < n) {
+    free(a->mwave);
+    a->mwave = malloc(n * sizeof *a->mwave);
+    a->mwave_cap = a->mwave ? n : 0;
+  }
+  if (a->mwave) memcpy(a->mwave, a->s->wave + i0, n * sizeof *a->mwave);
   a->mkey = mk;
   a->have_model = 1;
   return j->covering ? ensure_cover_model(a, d, e) : DT_OK;

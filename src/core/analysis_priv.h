@@ -48,6 +48,8 @@ struct dt_analysis {
   int cont_status, cont_order_used;
   dt_err cont_e;
   dt_model *m;
+  double *mwave;                 /* the model's pixel wavelengths (mkey.n) */
+  size_t mwave_cap;
   /* partial covering (cover.h): a second model on the same pixels for one
    * component at a time, made when a covered judgement first needs it;
    * the covering factors of the last run */
