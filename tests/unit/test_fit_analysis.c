@@ -256,6 +256,55 @@ static void test_errors(const dt_atomic *t, gsl_rng *rng) {
   dt_spectrum_free(s);
 }
 
+/* An analysis rebound from spectrum to spectrum (as each worker of `fit`
+ * keeps one) gives what a new analysis of each gives: on the same pixels
+ * (its model kept), on other pixels (rebuilt), and after the previous
+ * spectrum is freed. */
+static int same_run(const dt_analysis_out *x, const dt_analysis_out *y) {
+  if (x->fit.ncomp != y->fit.ncomp || x->fit.chi2 != y->fit.chi2) return 0;
+  for (size_t k = 0; k < x->fit.ncomp; k++)
+    if (x->fit.comp[k].logN != y->fit.comp[k].logN || x->fit.comp[k].b != y->fit.comp[k].b ||
+        x->fit.comp[k].v != y->fit.comp[k].v || x->fit.err[k].logN != y->fit.err[k].logN)
+      return 0;
+  return x->line[0].W == y->line[0].W && x->line[1].W == y->line[1].W;
+}
+
+static void test_rebind(const dt_atomic *t, gsl_rng *rng) {
+  double cc[3] = {100.0, 5.0, -2.0};
+  dt_component tr1[1] = {{12.2, 6.0, 20.0}}, tr2[1] = {{12.3, 9.0, -25.0}};
+  dt_spectrum *s1 = make(t, 5860, 5930, 0.1, 20000, tr1, 1, cc, 40, rng);
+  dt_spectrum *s2 = make(t, 5860, 5930, 0.1, 20000, tr2, 1, cc, 40, rng);
+  dt_spectrum *s3 = make(t, 5860.05, 5930.05, 0.1, 20000, tr1, 1, cc, 40, rng); /* shifted */
+  dt_judgement j;
+  base_judgement(&j);
+  j.ncomp = 1;
+  j.comp[0] = (dt_component){12.0, 8.0, 0.0};
+  dt_analysis *kept = dt_analysis_alloc(s1, t);
+  dt_analysis_out o1, o2, o3, f2, f3;
+  CHECK(dt_analysis_run(kept, &j, &o1, NULL) == DT_OK, "a run on the first spectrum");
+  dt_spectrum_free(s1);
+  CHECK(dt_analysis_rebind(kept, s2) == DT_OK && dt_analysis_run(kept, &j, &o2, NULL) == DT_OK,
+        "rebound to a spectrum on the same pixels (the first one freed)");
+  dt_analysis *fresh = dt_analysis_alloc(s2, t);
+  CHECK(dt_analysis_run(fresh, &j, &f2, NULL) == DT_OK && same_run(&o2, &f2),
+        "the same as a new analysis of it (v %.4f, %.4f)", o2.fit.comp[0].v, f2.fit.comp[0].v);
+  dt_analysis_free(fresh);
+  CHECK(dt_analysis_rebind(kept, s3) == DT_OK && dt_analysis_run(kept, &j, &o3, NULL) == DT_OK,
+        "rebound to a spectrum on other pixels");
+  fresh = dt_analysis_alloc(s3, t);
+  CHECK(dt_analysis_run(fresh, &j, &f3, NULL) == DT_OK && same_run(&o3, &f3) &&
+            o3.n == f3.n,
+        "the same as a new analysis of it (%zu pixels; log N %.4f, %.4f)", o3.n,
+        o3.fit.comp[0].logN, f3.fit.comp[0].logN);
+  CHECK(fabs(o3.fit.comp[0].v - 20.0) < 3.0 && fabs(o2.fit.comp[0].v + 25.0) < 3.0,
+        "each finds its own line (%.1f, %.1f km/s)", o3.fit.comp[0].v, o2.fit.comp[0].v);
+  CHECK(dt_analysis_rebind(kept, NULL) == DT_EINVAL, "no spectrum: refused");
+  dt_analysis_free(fresh);
+  dt_analysis_free(kept);
+  dt_spectrum_free(s2);
+  dt_spectrum_free(s3);
+}
+
 int main(void) {
   dt_atomic *t = dt_atomic_new();
   CHECK(dt_atomic_parse(t, table, sizeof table - 1, NULL) == DT_OK, "atomic table");
@@ -264,6 +313,7 @@ int main(void) {
   test_fit_and_arrays(t, rng);
   test_options(t, rng);
   test_errors(t, rng);
+  test_rebind(t, rng);
   gsl_rng_free(rng);
   dt_atomic_free(t);
   return dt_test_done();
