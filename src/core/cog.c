@@ -108,7 +108,7 @@ double dt_cog_logN(const dt_line *l, double W, double b) {
  * (GSL gsl_interp_steffen: the curve of growth rises strictly, and the
  * interpolant neither overshoots nor turns back).  Outside the table the
  * exact inverse is taken. */
-#define COG_TABLE_STEP 0.025
+#define COG_TABLE_STEP 0.04
 #define COG_TABLE_TAU_LO 1e-4
 #define COG_TABLE_LOGN_HI 22.5
 #define COG_CACHE_MAX 32
