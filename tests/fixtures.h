@@ -6,7 +6,12 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+
 #include "doubletty/atomic.h"
+#include "doubletty/num.h"
 
 /* Na I D: vacuum wavelengths [A], oscillator strengths and damping
  * constants [s^-1] from Morton (2003, ApJS 149, 205). */
@@ -48,4 +53,57 @@ static inline void spit(const char *path, const void *b, size_t n) {
   if (n) fwrite(b, 1, n, f);
   fclose(f);
 }
+/* The number of lines of a file (0 when it cannot be read). */
+static inline long file_lines(const char *path) {
+  size_t n;
+  unsigned char *b = slurp(path, &n);
+  long k = 0;
+  for (size_t i = 0; b && i < n; i++) k += b[i] == '\n';
+  free(b);
+  return k;
+}
+
+/* 1 when the last line of a session file records action act ("act=ACT"). */
+static inline int last_action_is(const char *path, const char *act) {
+  size_t n;
+  unsigned char *b = slurp(path, &n);
+  int ok = 0;
+  if (b && n > 1) {
+    size_t i = n - 1;
+    while (i > 0 && b[i - 1] != '\n') i--;
+    char want[64];
+    snprintf(want, sizeof want, "act=%s\t", act);
+    ok = strstr((char *)b + i, want) != NULL;
+  }
+  free(b);
+  return ok;
+}
+
+/* A text spectrum (wavelength, flux, error; 5850 A up to hi in steps of
+ * step) with Na I D absorption at v [km/s]: Gaussian optical-depth
+ * profiles of width sigma [km/s], central depth tau0 in the stronger line
+ * and tau0 / 2 in the weaker (the ratio of f lambda, Morton 2003),
+ * continuum 100, noise 2 (S/N 50) from a Mersenne Twister seeded seed. */
+static inline void write_nai_text(const char *path, unsigned long seed, double hi, double step,
+                                  double v, double tau0, double sigma) {
+  FILE *f = fopen(path, "w");
+  gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(r, seed);
+  const double l0[2] = {5891.5833, 5897.5581}, t0[2] = {tau0, 0.5 * tau0}, c = 299792.458;
+  for (double w = 5850; w <= hi; w += step) {
+    double tau = 0;
+    for (int k = 0; k < 2; k++) {
+      double u = (w / l0[k] - 1) * c - v;
+      tau += t0[k] * exp(-0.5 * u * u / (sigma * sigma));
+    }
+    double flux = 100.0 * exp(-tau) + gsl_ran_gaussian(r, 2.0);
+    char a[40], b[40];
+    dt_num_format(a, sizeof a, w);
+    dt_num_format(b, sizeof b, flux);
+    fprintf(f, "%s %s 2\n", a, b);
+  }
+  gsl_rng_free(r);
+  fclose(f);
+}
+
 #endif

@@ -19,56 +19,6 @@
 /* Na I D, Morton (2003, ApJS 149, 205): the same values as fixtures.h. */
 static const char table[] = "NaI 5891.5833 0.6408 6.16e7 5897.5581 0.3201 6.14e7 Morton (2003) ApJS 149, 205\n";
 
-/* A text spectrum with absorption at +40 km/s in both lines: Gaussian
- * optical-depth profiles whose central depths are in the ratio of f*lambda
- * of the two lines (2.0 for Na I D, Morton 2003), S/N 50. */
-static void write_spectrum(const char *path) {
-  FILE *f = fopen(path, "w");
-  gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
-  gsl_rng_set(r, 4242);
-  const double l0[2] = {5891.5833, 5897.5581}, tau0[2] = {1.2, 0.6}, c = 299792.458;
-  for (double w = 5850; w <= 5940; w += 0.2) {
-    double tau = 0;
-    for (int k = 0; k < 2; k++) {
-      double v = (w / l0[k] - 1) * c - 40.0;
-      tau += tau0[k] * exp(-0.5 * v * v / (12.0 * 12.0));
-    }
-    double flux = 100.0 * exp(-tau) + gsl_ran_gaussian(r, 2.0);
-    char a[40], b[40];
-    dt_num_format(a, sizeof a, w);
-    dt_num_format(b, sizeof b, flux);
-    fprintf(f, "%s %s 2\n", a, b);
-  }
-  gsl_rng_free(r);
-  fclose(f);
-}
-
-static long lines_of(const char *path) {
-  size_t n;
-  unsigned char *b = slurp(path, &n);
-  long k = 0;
-  for (size_t i = 0; b && i < n; i++) k += b[i] == '\n';
-  free(b);
-  return k;
-}
-
-/* The action of the last line of the session file. */
-static int last_is(const char *path, const char *act) {
-  size_t n;
-  unsigned char *b = slurp(path, &n);
-  if (!b || n < 2) {
-    free(b);
-    return 0;
-  }
-  size_t i = n - 1;
-  while (i > 0 && b[i - 1] != '\n') i--;
-  char want[64];
-  snprintf(want, sizeof want, "act=%s\t", act);
-  int ok = strstr((char *)b + i, want) != NULL;
-  free(b);
-  return ok;
-}
-
 static void target(dt_session_target *t, const char *path) {
   dt_session_target_init(t, path, path, 0);
   t->initial.resolution = 20000;
@@ -83,7 +33,8 @@ int main(void) {
   snprintf(spec, sizeof spec, "%s/s.txt", dir);
   snprintf(sess, sizeof sess, "%s/a.session", dir);
   snprintf(bad, sizeof bad, "%s/missing.txt", dir);
-  write_spectrum(spec);
+  /* absorption at +40 km/s, tau0 1.2, sigma 12 km/s, S/N 50 */
+  write_nai_text(spec, 4242, 5940, 0.2, 40.0, 1.2, 12.0);
   dt_atomic *at = dt_atomic_new();
   CHECK(dt_atomic_parse(at, table, sizeof table - 1, NULL) == DT_OK, "atomic table");
   dt_journal *jn = NULL;
@@ -91,57 +42,57 @@ int main(void) {
   dt_session *ss = dt_session_alloc(at, jn);
   CHECK(ss != NULL, "session allocated");
   CHECK(ss->nsigma == 3.0, "limits at the analysis' default significance (3 sigma)");
-  long n0 = lines_of(sess);
+  long n0 = file_lines(sess);
 
   /* a first look: the first pass is shown, nothing is written */
   dt_session_target t;
   target(&t, spec);
   CHECK(dt_session_load(ss, &t) == DT_OK && ss->loaded, "spectrum loaded");
   CHECK(ss->pending && ss->has_suggest, "first pass pending, with a suggestion");
-  CHECK(lines_of(sess) == n0, "looking writes nothing");
+  CHECK(file_lines(sess) == n0, "looking writes nothing");
 
   /* add a component */
   size_t nc = ss->j.ncomp;
   CHECK(dt_session_add(ss, 150.0) == DT_OK, "component added at +150 km/s");
   CHECK(ss->j.ncomp == nc + 1 && ss->sel == nc, "one more component, selected");
-  CHECK(lines_of(sess) == n0 + 1 && last_is(sess, "comp-add"), "one comp-add record");
+  CHECK(file_lines(sess) == n0 + 1 && last_action_is(sess, "comp-add"), "one comp-add record");
   CHECK(!ss->pending, "the first pass is part of the record now");
   CHECK(dt_session_add(ss, 900.0) == DT_EINVAL && strstr(ss->msg, "km/s"), "outside the window: refused, in km/s");
 
   /* a nudge holds what it moved: the refit does not put it back */
   double v0 = ss->j.comp[ss->sel].v;
-  long n1 = lines_of(sess);
+  long n1 = file_lines(sess);
   CHECK(dt_session_nudge(ss, DT_PARAM_V, 2.0) == DT_OK, "velocity nudged");
   CHECK(ss->j.frozen[ss->sel] & DT_FREEZE_V, "the nudged velocity is held");
   CHECK(ss->j.comp[ss->sel].v == v0 + 2.0, "and stays where it was put through the refit (%.3f)",
         ss->j.comp[ss->sel].v);
   CHECK(strstr(ss->msg, "held") != NULL, "the message says it is held: %s", ss->msg);
-  CHECK(lines_of(sess) == n1 + 2 && last_is(sess, "comp-set"), "hold and set: two records");
-  CHECK(dt_session_nudge(ss, DT_PARAM_V, 2.0) == DT_OK && lines_of(sess) == n1 + 3,
+  CHECK(file_lines(sess) == n1 + 2 && last_action_is(sess, "comp-set"), "hold and set: two records");
+  CHECK(dt_session_nudge(ss, DT_PARAM_V, 2.0) == DT_OK && file_lines(sess) == n1 + 3,
         "a second nudge of a held velocity: one record");
   CHECK(ss->j.comp[ss->sel].v == v0 + 4.0, "velocity moved twice");
 
   /* undo / redo */
   CHECK(dt_session_undo(ss) == DT_OK && ss->j.comp[ss->sel].v == v0 + 2.0, "undo: one nudge back");
-  CHECK(last_is(sess, "restore"), "undo is recorded as a restore");
+  CHECK(last_action_is(sess, "restore"), "undo is recorded as a restore");
   CHECK(dt_session_undo(ss) == DT_OK && ss->j.comp[ss->sel].v == v0 && !(ss->j.frozen[ss->sel] & DT_FREEZE_V),
         "undo again: hold and nudge taken back together");
   CHECK(dt_session_redo(ss) == DT_OK && ss->j.comp[ss->sel].v == v0 + 2.0 && (ss->j.frozen[ss->sel] & DT_FREEZE_V),
         "redo: nudged and held again");
   CHECK(dt_session_hold(ss, DT_PARAM_V) == DT_OK && !(ss->j.frozen[ss->sel] & DT_FREEZE_V), "released");
   CHECK(strstr(ss->msg, "released") != NULL, "the message says released: %s", ss->msg);
-  long n2 = lines_of(sess);
-  CHECK(dt_session_redo(ss) == DT_EINVAL && lines_of(sess) == n2, "nothing to redo after a change: nothing written");
+  long n2 = file_lines(sess);
+  CHECK(dt_session_redo(ss) == DT_EINVAL && file_lines(sess) == n2, "nothing to redo after a change: nothing written");
 
   /* note and verdict */
-  CHECK(dt_session_note(ss, "weak; check the red wing") == DT_OK && last_is(sess, "note"), "note recorded");
-  CHECK(dt_session_note(ss, "weak; check the red wing") == DT_OK && lines_of(sess) == n2 + 1,
+  CHECK(dt_session_note(ss, "weak; check the red wing") == DT_OK && last_action_is(sess, "note"), "note recorded");
+  CHECK(dt_session_note(ss, "weak; check the red wing") == DT_OK && file_lines(sess) == n2 + 1,
         "the same note again writes nothing");
-  CHECK(dt_session_verdict(ss, DT_VERDICT_DETECTED) == DT_OK && last_is(sess, "verdict"), "verdict recorded");
+  CHECK(dt_session_verdict(ss, DT_VERDICT_DETECTED) == DT_OK && last_action_is(sess, "verdict"), "verdict recorded");
   CHECK(ss->j.verdict == DT_VERDICT_DETECTED, "the state has it");
 
   /* the automatic first pass replaces the components */
-  CHECK(dt_session_autofit(ss) == DT_OK && last_is(sess, "autofit"), "first pass recorded");
+  CHECK(dt_session_autofit(ss) == DT_OK && last_action_is(sess, "autofit"), "first pass recorded");
   CHECK(ss->j.ncomp >= 1, "it finds the absorption (%zu components)", ss->j.ncomp);
   int near = 0;
   for (size_t k = 0; k < ss->j.ncomp; k++) near |= fabs(ss->j.comp[k].v - 40.0) < 15.0;
@@ -153,9 +104,9 @@ int main(void) {
 
   /* a continuum window too narrow to carry a continuum: recorded, and the
    * components are drawn on the automatic continuum meanwhile */
-  long nw = lines_of(sess);
-  CHECK(dt_session_window_add(ss, 5920.00, 5920.05) == DT_OK && last_is(sess, "window-add"), "narrow window recorded");
-  CHECK(lines_of(sess) == nw + 1, "one record");
+  long nw = file_lines(sess);
+  CHECK(dt_session_window_add(ss, 5920.00, 5920.05) == DT_OK && last_action_is(sess, "window-add"), "narrow window recorded");
+  CHECK(file_lines(sess) == nw + 1, "one record");
   CHECK(ss->an_ok && ss->an_fallback && strstr(ss->msg, "automatic"), "the automatic continuum stands in: %s", ss->msg);
   CHECK(isfinite(ss->out.line[0].W), "the measurement is there to draw");
   CHECK(dt_session_undo(ss) == DT_OK && ss->j.nwin == 0 && !ss->an_fallback, "undone: no window, no stand-in");
@@ -184,10 +135,10 @@ int main(void) {
   /* read-only: looking only */
   ss = dt_session_alloc(at, jn);
   CHECK(dt_session_load(ss, &t) == DT_OK && !ss->pending, "resumed from the record");
-  long n3 = lines_of(sess);
+  long n3 = file_lines(sess);
   CHECK(dt_session_verdict(ss, DT_VERDICT_UNSURE) != DT_OK && strstr(ss->msg, "read-only"),
         "read-only: a verdict is refused (%s)", ss->msg);
-  CHECK(lines_of(sess) == n3, "and nothing is written");
+  CHECK(file_lines(sess) == n3, "and nothing is written");
   CHECK(dt_session_recorded_verdict(ss, spec, 0) == DT_VERDICT_DETECTED, "the recorded verdict");
   dt_session_free(ss);
   dt_journal_close(jn);
@@ -235,8 +186,8 @@ int main(void) {
   CHECK(dt_session_load(ss, &t) != DT_OK && !ss->loaded && ss->load_msg[0], "missing file: not loaded");
   CHECK(dt_session_verdict(ss, DT_VERDICT_DETECTED) == DT_EINVAL, "'detected' refused");
   CHECK(dt_session_add(ss, 0.0) != DT_OK || !ss->loaded, "no fit without data");
-  CHECK(dt_session_verdict(ss, DT_VERDICT_UNUSABLE) == DT_OK && last_is(sess, "verdict"), "'unusable' recorded");
-  CHECK(dt_session_note(ss, "file lost") == DT_OK && last_is(sess, "note"), "a note recorded");
+  CHECK(dt_session_verdict(ss, DT_VERDICT_UNUSABLE) == DT_OK && last_action_is(sess, "verdict"), "'unusable' recorded");
+  CHECK(dt_session_note(ss, "file lost") == DT_OK && last_action_is(sess, "note"), "a note recorded");
   dt_session_free(ss);
   dt_journal_close(jn);
 

@@ -61,28 +61,6 @@ static void write_spectrum(const char *path) {
   fclose(f);
 }
 
-static int last_is(const char *path, const char *act) {
-  size_t n;
-  unsigned char *b = slurp(path, &n);
-  if (!b || n < 2) return free(b), 0;
-  size_t i = n - 1;
-  while (i > 0 && b[i - 1] != '\n') i--;
-  char want[64];
-  snprintf(want, sizeof want, "act=%s\t", act);
-  int ok = strstr((char *)b + i, want) != NULL;
-  free(b);
-  return ok;
-}
-
-static long lines_of(const char *path) {
-  size_t n;
-  unsigned char *b = slurp(path, &n);
-  long k = 0;
-  for (size_t i = 0; b && i < n; i++) k += b[i] == '\n';
-  free(b);
-  return k;
-}
-
 /* The component nearest velocity v. */
 static size_t nearest(const dt_judgement *j, double v) {
   size_t best = 0;
@@ -121,12 +99,12 @@ int main(void) {
   size_t nl = dt_session_linkable(ss, can, 8);
   CHECK(nl == 1 && !strcmp(can[0]->name, "CaII"), "linkable: Ca II only (K I lies beyond the data)");
 
-  long n0 = lines_of(sess);
-  CHECK(dt_session_link(ss, "KI") == DT_ERANGE && lines_of(sess) == n0, "K I refused: not covered");
-  CHECK(dt_session_link(ss, "NaI") == DT_EINVAL && lines_of(sess) == n0, "the main doublet refused");
+  long n0 = file_lines(sess);
+  CHECK(dt_session_link(ss, "KI") == DT_ERANGE && file_lines(sess) == n0, "K I refused: not covered");
+  CHECK(dt_session_link(ss, "NaI") == DT_EINVAL && file_lines(sess) == n0, "the main doublet refused");
   CHECK(dt_session_link(ss, "MgII") == DT_ENOTFOUND, "a doublet the table lacks refused");
 
-  CHECK(dt_session_link(ss, "CaII") == DT_OK && ss->j.nlinked == 1 && last_is(sess, "link"),
+  CHECK(dt_session_link(ss, "CaII") == DT_OK && ss->j.nlinked == 1 && last_action_is(sess, "link"),
         "Ca II linked and recorded: %s", ss->msg);
   CHECK(ss->j.has_fit && ss->j.has_joint && ss->j.joint.nspecies == 1, "the state holds a joint fit");
   CHECK(ss->lsp[0].ok && ss->lsp[0].out.n > 0, "Ca II's lines are analysed for display");
@@ -137,7 +115,7 @@ int main(void) {
   CHECK_CLOSE(ss->j.joint.sp[0].logN[k1], logN_ca[1], 0.15, "Ca II log N of the +25 km/s cloud");
   CHECK(ss->j.joint.sp[0].b[k0] == ss->j.comp[k0].b, "rule same: Ca II has the main doublet's b");
 
-  CHECK(dt_session_btie_next(ss) == DT_OK && ss->j.btie == DT_BTIE_THERMAL && last_is(sess, "b-tie"),
+  CHECK(dt_session_btie_next(ss) == DT_OK && ss->j.btie == DT_BTIE_THERMAL && last_action_is(sess, "b-tie"),
         "b rule: thermal, recorded");
   CHECK(ss->j.has_joint, "refitted jointly under the new rule");
   /* b^2 = b_turb^2 + 2 k T / m for each species (Spitzer 1978, ch. 3 -- from
@@ -163,9 +141,9 @@ int main(void) {
   CHECK(dt_session_verdict(ss, DT_VERDICT_DETECTED) == DT_OK, "verdict detected");
   CHECK(dt_session_undo(ss) == DT_OK && dt_judgement_same(&ss->j, &free_state), "undo: the joint state back exactly");
   CHECK(dt_session_redo(ss) == DT_OK && ss->j.verdict == DT_VERDICT_DETECTED, "redo");
-  CHECK(dt_session_refit(ss) == DT_OK && last_is(sess, "joint-fit") && ss->j.has_joint,
+  CHECK(dt_session_refit(ss) == DT_OK && last_action_is(sess, "joint-fit") && ss->j.has_joint,
         "a refit is a joint fit, recorded as one");
-  CHECK(dt_session_autofit(ss) == DT_OK && ss->j.has_joint && ss->j.nlinked == 1 && last_is(sess, "autofit"),
+  CHECK(dt_session_autofit(ss) == DT_OK && ss->j.has_joint && ss->j.nlinked == 1 && last_action_is(sess, "autofit"),
         "the first pass keeps the link and is fitted jointly");
   dt_judgement held = ss->j;
 

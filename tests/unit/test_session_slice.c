@@ -20,52 +20,6 @@
 /* Na I D, Morton (2003, ApJS 149, 205). */
 static const char table[] = "NaI 5891.5833 0.6408 6.16e7 5897.5581 0.3201 6.14e7 Morton (2003) ApJS 149, 205\n";
 
-/* Absorption at +40 km/s in both lines (Gaussian optical depths in the
- * ratio 2 of f lambda, Morton 2003), S/N 50, continuum 100. */
-static void write_spectrum(const char *path) {
-  FILE *f = fopen(path, "w");
-  gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
-  gsl_rng_set(r, 77);
-  const double l0[2] = {5891.5833, 5897.5581}, tau0[2] = {1.0, 0.5}, c = 299792.458;
-  for (double w = 5850; w <= 5940; w += 0.2) {
-    double tau = 0;
-    for (int k = 0; k < 2; k++) {
-      double v = (w / l0[k] - 1) * c - 40.0;
-      tau += tau0[k] * exp(-0.5 * v * v / (10.0 * 10.0));
-    }
-    char a[40], b[40];
-    dt_num_format(a, sizeof a, w);
-    dt_num_format(b, sizeof b, 100.0 * exp(-tau) + gsl_ran_gaussian(r, 2.0));
-    fprintf(f, "%s %s 2\n", a, b);
-  }
-  gsl_rng_free(r);
-  fclose(f);
-}
-
-static long lines_of(const char *path) {
-  size_t n;
-  unsigned char *b = slurp(path, &n);
-  long k = 0;
-  for (size_t i = 0; b && i < n; i++) k += b[i] == '\n';
-  free(b);
-  return k;
-}
-
-static int last_is(const char *path, const char *act) {
-  size_t n;
-  unsigned char *b = slurp(path, &n);
-  int ok = 0;
-  if (b && n > 1) {
-    size_t i = n - 1;
-    while (i > 0 && b[i - 1] != '\n') i--;
-    char want[64];
-    snprintf(want, sizeof want, "act=%s\t", act);
-    ok = strstr((char *)b + i, want) != NULL;
-  }
-  free(b);
-  return ok;
-}
-
 /* The records of a session file without what differs between two runs:
  * the header line, each record's time (its first field) and checksum. */
 static char *records(const char *path) {
@@ -108,7 +62,8 @@ int main(void) {
   snprintf(spec, sizeof spec, "%s/s.txt", dir);
   snprintf(pc, sizeof pc, "%s/cut.session", dir);
   snprintf(pr, sizeof pr, "%s/ref.session", dir);
-  write_spectrum(spec);
+  /* absorption at +40 km/s, tau0 1.0, sigma 10 km/s, S/N 50 */
+  write_nai_text(spec, 77, 5940, 0.2, 40.0, 1.0, 10.0);
   dt_atomic *at = dt_atomic_new();
   CHECK(dt_atomic_parse(at, table, sizeof table - 1, NULL) == DT_OK, "atomic table");
   dt_journal *jc = NULL, *jr = NULL;
@@ -121,7 +76,7 @@ int main(void) {
   dt_session_target t;
   target(&t, spec);
   CHECK(dt_session_load(sc, &t) == DT_OK && dt_session_load(sr, &t) == DT_OK, "the spectrum loaded in both");
-  long n0 = lines_of(pc);
+  long n0 = file_lines(pc);
   size_t nc = sc->j.ncomp;
 
   /* a component added: shown as typed, not recorded */
@@ -129,25 +84,25 @@ int main(void) {
   CHECK(dt_session_fit_pending(sc) && !dt_session_fit_pending(sr), "cut: pending; without a slice: done");
   CHECK(sc->j.ncomp == nc + 1 && sc->sel == nc && fabs(sc->j.comp[nc].v - 150.0) < 1e-9,
         "the new component is shown where it was typed (%.3f km/s)", sc->j.comp[nc].v);
-  CHECK(lines_of(pc) == n0, "nothing recorded while it is fitting");
+  CHECK(file_lines(pc) == n0, "nothing recorded while it is fitting");
   CHECK(sc->an_ok && sc->out.fit_info.timed_out, "the fit as far as it got is there to draw");
 
   /* the next action records it first, then is cut itself */
   CHECK(dt_session_nudge(sc, DT_PARAM_V, 2.0) == DT_OK && dt_session_nudge(sr, DT_PARAM_V, 2.0) == DT_OK,
         "the velocity nudged in both");
-  CHECK(lines_of(pc) == n0 + 1 && last_is(pc, "comp-add"), "the add recorded first (%ld lines)",
-        lines_of(pc) - n0);
+  CHECK(file_lines(pc) == n0 + 1 && last_action_is(pc, "comp-add"), "the add recorded first (%ld lines)",
+        file_lines(pc) - n0);
   CHECK(dt_session_fit_pending(sc), "the nudge's refit pending (the hold and the move: one change)");
   CHECK(dt_session_finish_fit(sc) == DT_OK && !dt_session_fit_pending(sc), "finished");
-  CHECK(lines_of(pc) == n0 + 3 && last_is(pc, "comp-set"), "and recorded: the hold and the move");
-  CHECK(dt_session_finish_fit(sc) == DT_OK && lines_of(pc) == n0 + 3, "finishing again writes nothing");
+  CHECK(file_lines(pc) == n0 + 3 && last_action_is(pc, "comp-set"), "and recorded: the hold and the move");
+  CHECK(dt_session_finish_fit(sc) == DT_OK && file_lines(pc) == n0 + 3, "finishing again writes nothing");
 
   /* undo and a verdict finish nothing more, and agree */
   CHECK(dt_session_undo(sc) == DT_OK && dt_session_undo(sr) == DT_OK, "undo in both");
   CHECK(dt_session_remove(sc) == DT_OK && dt_session_remove(sr) == DT_OK, "a component removed in both");
   CHECK(dt_session_verdict(sc, DT_VERDICT_DETECTED) == DT_OK && dt_session_verdict(sr, DT_VERDICT_DETECTED) == DT_OK,
         "a verdict in both (the removal recorded first)");
-  CHECK(last_is(pc, "verdict"), "the verdict is the last record");
+  CHECK(last_action_is(pc, "verdict"), "the verdict is the last record");
   CHECK(dt_judgement_same(&sc->j, &sr->j), "the same state as without a slice");
   char *a = records(pc), *b = records(pr);
   CHECK(a && b && !strcmp(a, b), "the same records as without a slice");
