@@ -85,6 +85,14 @@ typedef struct dt_analysis_opts {
                            line are first refitted from the other valleys
                            of chi2 (DT_PROFILE_DEEP): a thorough search at
                            several times the refits */
+  int calibrated;       /* 1: where the profile of log N is not a parabola
+                           (a limit, lopsided halves, halves unlike the
+                           covariance error) each end of the interval is
+                           searched again at a threshold calibrated by a
+                           parametric bootstrap (calib.h) instead of
+                           Wilks' dchi2 -- for calls without a time budget
+                           (dt_analysis_intervals, the first pass); about
+                           200 fits per such component.  0 (default): dchi2 */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
   const dt_hyperfine *hyperfine; /* hyperfine components (hyperfine.h):
@@ -164,6 +172,10 @@ typedef struct dt_analysis_out {
   int have_intervals;       /* 1: logN_int holds the components' intervals */
   dt_profile_interval logN_int[DT_MAX_COMP]; /* 1-sigma profile-likelihood
                                interval of each component's log N (profile.h) */
+  double logN_dchi2[DT_MAX_COMP][2]; /* the dchi2 threshold of each
+                               interval's lower [0] and upper [1] end: the
+                               one asked, or calibrated (calib.h) */
+  double logN_dchi2_3[DT_MAX_COMP][2]; /* ... of its 3-sigma ends */
 } dt_analysis_out;
 
 typedef struct dt_analysis dt_analysis;

@@ -90,6 +90,7 @@ void dt_analysis_free(dt_analysis *a) {
   dt_model_free(a->sm[0]);
   dt_model_free(a->sm[1]);
   dt_fit_free(a->fw);
+  dt_calib_free(a->calw);
   dt_cont_free(a->cw);
   free(a);
 }
@@ -693,6 +694,82 @@ static unsigned scan_flags(const dt_analysis *a, const dt_analysis_out *out, siz
   return fl;
 }
 
+/* Component k's profile is not a parabola, so dchi2 = 1 (Wilks) need not
+ * give 68% (calib.h): its interval is a limit, its two halves differ by
+ * more than LOPSIDED of the longer, or either half differs from the
+ * covariance error (the parabola's half-width) by more than LOPSIDED of
+ * it.  (A saturated line with a profile that is a parabola all the same
+ * is left alone: most of a survey's, measured to a few hundredths of a
+ * dex.) */
+#define LOPSIDED 0.25
+static int not_parabolic(const dt_analysis_out *out, size_t k) {
+  const dt_profile_interval *pi = &out->logN_int[k];
+  if (pi->flag != DT_PROFILE_BOUNDED) return 1;
+  double up = pi->hi - pi->best, dn = pi->best - pi->lo, e = out->fit.err[k].logN;
+  if (fabs(up - dn) > LOPSIDED * fmax(up, dn)) return 1;
+  return !(fabs(up - e) <= LOPSIDED * e && fabs(dn - e) <= LOPSIDED * e);
+}
+
+/* The flag of an interval [lo, hi] (NaN: no end there), as profile.h. */
+static int ends_flag(double lo, double hi) {
+  return isfinite(lo) ? (isfinite(hi) ? DT_PROFILE_BOUNDED : DT_PROFILE_LOWER_LIMIT)
+                      : (isfinite(hi) ? DT_PROFILE_UPPER_LIMIT : DT_PROFILE_UNBOUNDED);
+}
+
+/* The profile intervals (not the covariance's: no refits) of the
+ * components whose profile is not a parabola, each end again at its own
+ * calibrated threshold (calib.h): the test of log N_k = the end, its
+ * world the data's fit held there, inverted (an end belongs to the
+ * interval when its dchi2 is below that test's threshold; one step of
+ * the inversion, from the uncalibrated end).  An end is searched again
+ * only where its threshold differs from dchi2 by more than CALIB_SAME of
+ * it; its 3-sigma end (outer_intervals) only where that threshold grew
+ * (it never shrinks below 9 dchi2).  A limit's open side stays open.  An
+ * end whose new search does not finish, or finds a lower chi2, stays. */
+#define CALIB_SAME 0.02
+#define CALIB_MAX_DCHI2 4.0   /* beyond (95%), DT_CALIB_NSIM simulations put
+                                 too few in the tail: Wilks' threshold stands */
+static void calibrate(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2) {
+  if (!a->calw || a->calw_cap < a->n) {
+    dt_calib_free(a->calw);
+    a->calw = dt_calib_alloc(a->n, 0);
+    a->calw_cap = a->calw ? a->n : 0;
+    if (!a->calw) return;
+  }
+  dt_fit_problem p;
+  fill_problem(a, j, &p);
+  const dt_fit_result *r = &out->fit;
+  for (size_t k = 0; k < r->ncomp; k++) {
+    dt_profile_interval *pi = &out->logN_int[k];
+    if (pi->nfits == 0 || pi->incomplete || pi->moved || !not_parabolic(out, k)) continue;
+    dt_profile_interval res = *pi;
+    unsigned fl = scan_flags(a, out, k, p.tie_b);
+    if (a->opts.outer_intervals) fl |= at_risk(a, out, k) ? DT_PROFILE_DEEP : 0;
+    for (int side = 0; side < 2; side++) {   /* 0 lower end, 1 upper */
+      double end = side ? pi->hi : pi->lo;
+      if (!isfinite(end)) continue;
+      dt_calib_result cr;
+      if (dt_calib_logN(a->calw, a->fw, &p, r, k, end, dchi2, 0, &cr) != DT_OK) continue;
+      if (fabs(cr.dchi2 - dchi2) <= CALIB_SAME * dchi2) continue;
+      int outer = a->opts.outer_intervals && cr.dchi2_3 > 9.0 * dchi2;
+      dt_profile_interval ci;
+      dt_profile_logN(a->fw, &p, r, k, cr.dchi2, 0, fl | (outer ? DT_PROFILE_OUTER : 0), &ci,
+                      NULL);
+      if (ci.incomplete || ci.moved) continue;
+      res.nfits += ci.nfits;
+      *(side ? &res.hi : &res.lo) = side ? ci.hi : ci.lo;
+      out->logN_dchi2[k][side] = cr.dchi2;
+      if (outer && !ci.incomplete3 && !res.incomplete3) {
+        *(side ? &res.hi3 : &res.lo3) = side ? ci.hi3 : ci.lo3;
+        out->logN_dchi2_3[k][side] = cr.dchi2_3;
+      }
+    }
+    res.flag = ends_flag(res.lo, res.hi);
+    if (!res.incomplete3) res.flag3 = ends_flag(res.lo3, res.hi3);
+    *pi = res;
+  }
+}
+
 /* A refit that turned up a better minimum restarts the intervals from it,
  * at most MAX_MOVES times (each move lowers chi2 by DT_PROFILE_MOVE or
  * more, so this ends anyway) -- with no time budget only (explicit calls,
@@ -750,6 +827,13 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
     }
     if (!again) break;
   }
+  for (size_t k = 0; k < out->fit.ncomp; k++)
+    for (int side = 0; side < 2; side++) {
+      out->logN_dchi2[k][side] = dchi2;
+      out->logN_dchi2_3[k][side] = dchi2 < 9.0 ? 9.0 * dchi2 : dchi2;
+    }
+  if (budget == 0 && dchi2 <= CALIB_MAX_DCHI2 && a->opts.calibrated && !a->opts.covariance_only)
+    calibrate(a, j, out, dchi2);
   out->have_intervals = 1;
   return DT_OK;
 }

@@ -3,6 +3,7 @@
 #ifndef DOUBLETTY_ANALYSIS_PRIV_H
 #define DOUBLETTY_ANALYSIS_PRIV_H
 #include "doubletty/analysis.h"
+#include "doubletty/calib.h"
 #include "doubletty/cog.h"
 #include "doubletty/continuum.h"
 #include "doubletty/cover.h"
@@ -58,6 +59,9 @@ struct dt_analysis {
   double cf[DT_MAX_COMP];
   dt_fit_workspace *fw;
   size_t fw_cap;
+  dt_calib_workspace *calw;      /* calibrated interval thresholds (calib.h),
+                                    made when first needed */
+  size_t calw_cap;
   dt_cont_work *cw;
   /* the last run */
   size_t i0, n, ncomp;
