@@ -36,7 +36,7 @@
 #include <stddef.h>
 #include "doubletty/fit.h"
 
-#define DT_CALIB_NSIM 48       /* simulated spectra per calibration (default) */
+#define DT_CALIB_NSIM 32       /* simulated spectra per calibration (default) */
 #define DT_CALIB_MAX_ITER 40   /* iterations of each of their fits */
 #define DT_CALIB_SCALE_MIN 0.25 /* the scale c kept within these (a few */
 #define DT_CALIB_SCALE_MAX 9.0  /* dozen simulations do not tell more) */

@@ -716,6 +716,16 @@ static int ends_flag(double lo, double hi) {
                       : (isfinite(hi) ? DT_PROFILE_UPPER_LIMIT : DT_PROFILE_UNBOUNDED);
 }
 
+/* An end searched again at a higher threshold (out = 1) lies outward of
+ * the old one (dir +1 the upper end, -1 the lower; NaN, no end, is the
+ * farthest), at a lower one inward: a new end on the wrong side is the
+ * search's, not the threshold's (another valley seen or missed), and the
+ * old end stands. */
+static double moved_end(double old, double nw, int dir, int out) {
+  double o = isfinite(old) ? dir * old : INFINITY, n = isfinite(nw) ? dir * nw : INFINITY;
+  return (out ? n >= o : n <= o) ? nw : old;
+}
+
 /* The profile intervals (not the covariance's: no refits) of the
  * components whose profile is not a parabola, each end again at its own
  * calibrated threshold (calib.h): the test of log N_k = the end, its
@@ -757,10 +767,12 @@ static void calibrate(dt_analysis *a, const dt_judgement *j, dt_analysis_out *ou
                       NULL);
       if (ci.incomplete || ci.moved) continue;
       res.nfits += ci.nfits;
-      *(side ? &res.hi : &res.lo) = side ? ci.hi : ci.lo;
+      if (side) res.hi = moved_end(pi->hi, ci.hi, +1, cr.dchi2 > dchi2);
+      else res.lo = moved_end(pi->lo, ci.lo, -1, cr.dchi2 > dchi2);
       out->logN_dchi2[k][side] = cr.dchi2;
       if (outer && !ci.incomplete3 && !res.incomplete3) {
-        *(side ? &res.hi3 : &res.lo3) = side ? ci.hi3 : ci.lo3;
+        if (side) res.hi3 = moved_end(pi->hi3, ci.hi3, +1, 1);
+        else res.lo3 = moved_end(pi->lo3, ci.lo3, -1, 1);
         out->logN_dchi2_3[k][side] = cr.dchi2_3;
       }
     }
