@@ -13,12 +13,13 @@
  * "Bootstrap Methods and their Application", ch. 4 on parametric
  * bootstrap tests and ch. 5 on confidence limits from inverted tests;
  * Hall 1992, "The Bootstrap and Edgeworth Expansion", ch. 3 -- chapters
- * from memory): the best fit stands in for the truth; M spectra are simulated
- * from it (the fitted model plus Gaussian noise of each pixel's sigma);
- * each is fitted once free and once with log N_k held at the best fit's
- * value, both from the best fit's parameters (the truth of the simulated
- * world); the quantile of lambda_m at the level of dchi2 under chi2_1
- * (68.27% for dchi2 = 1) is the calibrated threshold.
+ * from memory): a fit stands in for the truth -- the best fit, or, to
+ * test a value x of log N_k (an end of the interval), the data's fit with
+ * log N_k held at x; M spectra are simulated from it (its model plus
+ * Gaussian noise of each pixel's sigma); each is fitted once free and
+ * once with log N_k held at the world's value, both from the world's
+ * parameters; the quantile of lambda_m at the level of dchi2 under chi2_1
+ * (68.27% for dchi2 = 1) is the calibrated threshold of that test.
  *
  * The 3-sigma threshold (level 99.73%, dchi2 = 9) would need thousands of
  * simulations.  It is extrapolated instead by the scale the core found:
@@ -29,7 +30,7 @@
  * (the tail of a two-valleyed profile is heavier than its core tells).
  *
  * Deterministic: the random stream (GSL's MT19937) is seeded from the
- * data (a hash of the best fit's parameters, chi2, the pixel count and k),
+ * data (a hash of the world's parameters, chi2, the pixel count and k),
  * so a rerun, or a run on another thread, gives the same threshold. */
 #ifndef DOUBLETTY_CALIB_H
 #define DOUBLETTY_CALIB_H
