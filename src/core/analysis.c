@@ -721,9 +721,9 @@ static int ends_flag(double lo, double hi) {
  * farthest), at a lower one inward: a new end on the wrong side is the
  * search's, not the threshold's (another valley seen or missed), and the
  * old end stands. */
-static double moved_end(double old, double nw, int dir, int out) {
+static int moved_right(double old, double nw, int dir, int out) {
   double o = isfinite(old) ? dir * old : INFINITY, n = isfinite(nw) ? dir * nw : INFINITY;
-  return (out ? n >= o : n <= o) ? nw : old;
+  return out ? n >= o : n <= o;
 }
 
 /* The profile intervals (not the covariance's: no refits) of the
@@ -767,12 +767,15 @@ static void calibrate(dt_analysis *a, const dt_judgement *j, dt_analysis_out *ou
                       NULL);
       if (ci.incomplete || ci.moved) continue;
       res.nfits += ci.nfits;
-      if (side) res.hi = moved_end(pi->hi, ci.hi, +1, cr.dchi2 > dchi2);
-      else res.lo = moved_end(pi->lo, ci.lo, -1, cr.dchi2 > dchi2);
-      out->logN_dchi2[k][side] = cr.dchi2;
-      if (outer && !ci.incomplete3 && !res.incomplete3) {
-        if (side) res.hi3 = moved_end(pi->hi3, ci.hi3, +1, 1);
-        else res.lo3 = moved_end(pi->lo3, ci.lo3, -1, 1);
+      int dir = side ? +1 : -1;
+      double *e1 = side ? &res.hi : &res.lo, n1 = side ? ci.hi : ci.lo;
+      if (moved_right(*e1, n1, dir, cr.dchi2 > dchi2)) {
+        *e1 = n1;
+        out->logN_dchi2[k][side] = cr.dchi2;
+      }
+      double *e3 = side ? &res.hi3 : &res.lo3, n3 = side ? ci.hi3 : ci.lo3;
+      if (outer && !ci.incomplete3 && !res.incomplete3 && moved_right(*e3, n3, dir, 1)) {
+        *e3 = n3;
         out->logN_dchi2_3[k][side] = cr.dchi2_3;
       }
     }
