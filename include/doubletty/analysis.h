@@ -85,6 +85,15 @@ typedef struct dt_analysis_opts {
                            line are first refitted from the other valleys
                            of chi2 (DT_PROFILE_DEEP): a thorough search at
                            several times the refits */
+  int calibrated;       /* 1: where the profile of log N is not a parabola
+                           (a limit, lopsided halves, halves unlike the
+                           covariance error) each end of the interval is
+                           searched again at a threshold calibrated by a
+                           parametric bootstrap (calib.h) instead of
+                           Wilks' dchi2 -- for calls without a time budget
+                           (dt_analysis_intervals, the first pass); 130
+                           fits and up to two more searches per such
+                           component.  0 (default): dchi2 */
   int max_iter;         /* fit iteration limit (0: fit default) */
   double time_limit;    /* fit time limit [s] (0: fit default) */
   double stall_chi2;    /* fit.h: a fit also ends when its last iterations
@@ -166,6 +175,10 @@ typedef struct dt_analysis_out {
   int have_intervals;       /* 1: logN_int holds the components' intervals */
   dt_profile_interval logN_int[DT_MAX_COMP]; /* 1-sigma profile-likelihood
                                interval of each component's log N (profile.h) */
+  double logN_dchi2[DT_MAX_COMP][2]; /* the dchi2 threshold of each
+                               interval's lower [0] and upper [1] end: the
+                               one asked, or calibrated (calib.h) */
+  double logN_dchi2_3[DT_MAX_COMP][2]; /* ... of its 3-sigma ends */
 } dt_analysis_out;
 
 typedef struct dt_analysis dt_analysis;
@@ -207,7 +220,10 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
  * tau0 < 0.3; covariance error < 0.1 dex; no saturation flag, bound or
  * neighbour within FWHM + 2 (b_k + b_j)), where the covariance error is
  * the interval.  With opts.outer_intervals each interval also holds its
- * ends at 9 dchi2 (lo3, hi3: 3 sigma).  When a refit of the search finds a chi2 below the fit's (the
+ * ends at 9 dchi2 (lo3, hi3: 3 sigma).  With opts.calibrated (and dchi2
+ * <= 4) the ends of profiles that are not parabolas are searched again at
+ * thresholds from a parametric bootstrap (calib.h; out->logN_dchi2 and
+ * logN_dchi2_3 say which).  When a refit of the search finds a chi2 below the fit's (the
  * fit sat in a local minimum: profile.h), this call -- not the runs' own
  * intervals -- moves the fit there: out is then the run from the better
  * components (out->fit differs from j->comp; take it) and the intervals

@@ -97,7 +97,9 @@ static void usage(FILE *f) {
           "  --limit-b KMS           Doppler parameter of column-density limits\n"
           "                          (full curve of growth; default 2)\n"
           "  --intervals M           log N intervals: profile (default: the profile\n"
-          "                          likelihood where the lines are not thin) or\n"
+          "                          likelihood where the lines are not thin),\n"
+          "                          calibrated (profile, its threshold from simulated\n"
+          "                          spectra where it is not a parabola: slower) or\n"
           "                          covariance (symmetric, from the fit alone: faster)\n"
           "  --atomic FILE           extra atomic table (adds or replaces doublets)\n"
           "  --hyperfine             model Na I and K I lines as their hyperfine\n"
@@ -576,11 +578,12 @@ static int fit_option(int opt, const char *v, config *c, source *src, size_t *ns
     return cli_system_option("--milky-way", v, &c->systems);
   case O_JOBS: return ranged("--jobs", v, 1, FIT_MAX_JOBS, &c->jobs);
   case O_INTERVALS:
-    if (strcmp(v, "profile") && strcmp(v, "covariance")) {
-      cli_errorf("--intervals: '%s' is not profile or covariance", v);
+    if (strcmp(v, "profile") && strcmp(v, "covariance") && strcmp(v, "calibrated")) {
+      cli_errorf("--intervals: '%s' is not profile, calibrated or covariance", v);
       return 1;
     }
     c->cov_only = !strcmp(v, "covariance");
+    c->calibrated = !strcmp(v, "calibrated");
     return 0;
   }
   return 1;

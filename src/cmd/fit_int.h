@@ -57,6 +57,7 @@ typedef struct {
   int air;                      /* text spectra give air wavelengths */
   dt_system_opts systems;       /* --target-window, --system, --milky-way */
   int cov_only;                 /* --intervals covariance */
+  int calibrated;               /* --intervals calibrated */
   int have_mw;                  /* --milky-way given */
   int hyperfine;                /* --hyperfine: every target's lines split */
   const char *hfs_file;         /* --hyperfine-table FILE */

@@ -376,7 +376,7 @@ static void write_settings(dt_csv *w, const config *c) {
   dt_csv_comment(w, "limit-sigma", buf);
   dt_num_format(buf, sizeof buf, c->limit_b);
   dt_csv_comment(w, "limit-b", buf);
-  dt_csv_comment(w, "intervals", c->cov_only ? "covariance" : "profile");
+  dt_csv_comment(w, "intervals", c->cov_only ? "covariance" : c->calibrated ? "calibrated" : "profile");
   dt_csv_comment(w, "covering", c->covering ? "yes" : "");
   dt_csv_comment(w, "atomic", c->atomic_file ? c->atomic_file : "");
   if (c->hyperfine) /* only when asked for: without it the header is as before */

@@ -181,6 +181,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     ao.limit_b = c->limit_b;
     ao.cog = r->cog;
     ao.covariance_only = c->cov_only;
+    ao.calibrated = c->calibrated;
     ao.joint_cont = (size_t)c->joint_cont;
     if (c->hyperfine || t->hyperfine) ao.hyperfine = r->hfs;
     j.hyperfine = c->hyperfine || t->hyperfine;
@@ -311,6 +312,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
     jo.an.limit_b = c->limit_b;
     jo.an.cog = r->cog;
     jo.an.covariance_only = c->cov_only;
+    jo.an.calibrated = c->calibrated;
     if (c->hyperfine || t->hyperfine) jo.an.hyperfine = r->hfs;
     j.hyperfine = c->hyperfine || t->hyperfine;
     jo.an.lsf_constant = lsf_constant;

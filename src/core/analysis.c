@@ -16,7 +16,8 @@
  * is measured on its own view (line_view: the other line divided out with
  * the fitted model, masked pixels filled from it).  Limits scan a box over
  * the range (measure.h, dt_measure_limit) and go through the curve of
- * growth (cog.h); the profile-likelihood intervals are profile.c's. */
+ * growth (cog.h); the profile-likelihood intervals are profile.c's, run
+ * from analysis_intervals.c. */
 #include "doubletty/analysis.h"
 
 #include <math.h>
@@ -33,10 +34,6 @@
 #include "doubletty/model.h"
 
 #include "analysis_priv.h"
-
-
-static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
-                     double budget);
 
 void dt_analysis_opts_init(dt_analysis_opts *o) {
   memset(o, 0, sizeof *o);
@@ -91,6 +88,7 @@ void dt_analysis_free(dt_analysis *a) {
   dt_model_free(a->sm[0]);
   dt_model_free(a->sm[1]);
   dt_fit_free(a->fw);
+  dt_calib_free(a->calw);
   dt_cont_free(a->cw);
   free(a);
 }
@@ -470,7 +468,7 @@ static int prepare(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, 
   return DT_OK;
 }
 
-static void fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *p) {
+void dt_an_fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *p) {
   memset(p, 0, sizeof *p);
   p->model = a->m;
   p->wave = a->s->wave + a->i0;
@@ -599,7 +597,7 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   int st = prepare(a, j, out, e);
   if (st != DT_OK) return st;
   dt_fit_problem p;
-  fill_problem(a, j, &p);
+  dt_an_fill_problem(a, j, &p);
   dt_err fe;
   dt_err_clear(&fe);
   int fst = dt_fit_run(a->fw, &p, &out->fit, &fe);
@@ -631,163 +629,6 @@ int dt_analysis_run(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   return DT_OK;
 }
 
-/* Component k is in the linear regime, where chi2 is a parabola in log N
- * and the covariance error is the profile-likelihood interval (the
- * profile search would accept its first probe, at two refits) -- unless a
- * second valley in b lies within reach (dt_profile_other_valley, two
- * refits; an unresolved line fitted broad and thin may as well be narrow
- * and saturated): optically
- * thin at its fitted b (tau0 < LINEAR_TAU0, cog.h) with a covariance
- * error below LINEAR_ERR dex (so log N and N are linear to within a few
- * per cent over the interval), no saturation flag from the doublet ratios,
- * no parameter at a bound, and no other component within FWHM + 2 (b_k +
- * b_j) (a blend correlates the columns non-linearly). */
-#define LINEAR_TAU0 0.3
-#define LINEAR_ERR 0.1
-static int linear_regime(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
-  const dt_fit_result *r = &out->fit;
-  const dt_component *c = &r->comp[k];
-  double e = r->err[k].logN;
-  if (!(e > 0) || !(e < LINEAR_ERR) || out->saturated || out->fit_info.at_bound[k]) return 0;
-  if (!(dt_cog_tau0(&a->d->line[0], c->logN, c->b) < LINEAR_TAU0)) return 0;
-  for (size_t q = 0; q < r->ncomp; q++)
-    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 0;
-  return 1;
-}
-
-/* The fit moves to a lower chi2 the profile search found (profile.h):
- * a run from those components (intervals deferred, measurements and
- * limits as usual), kept when its chi2 is lower, else the run of j again.
- * 1 when it moved. */
-static int move_fit(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
-                    const dt_fit_result *lower) {
-  if (lower->ncomp != j->ncomp || !isfinite(lower->chi2) || !(lower->chi2 < out->fit.chi2))
-    return 0;
-  dt_judgement jm = *j;
-  memcpy(jm.comp, lower->comp, jm.ncomp * sizeof jm.comp[0]);
-  int defer = a->opts.defer_intervals;
-  a->opts.defer_intervals = 1;
-  double chi0 = out->fit.chi2;
-  dt_analysis_out o2;
-  int st = dt_analysis_run(a, &jm, &o2, NULL);
-  int moved = st == DT_OK && o2.fit.ncomp == j->ncomp && o2.fit.chi2 < chi0 - DT_PROFILE_MOVE;
-  if (moved) *out = o2;
-  else dt_analysis_run(a, j, out, NULL);   /* the analysis holds j's fit again */
-  a->opts.defer_intervals = defer;
-  return moved;
-}
-
-/* Component k may sit in the wrong valley of chi2 (profile.h): saturated
- * at its fitted b (tau0 > 1), unresolved (b below the LSF's FWHM), or
- * blended (another component within FWHM + 2 (b_k + b_j)).  With
- * opts.outer_intervals its profile then starts with refits from the other
- * valleys (DT_PROFILE_DEEP), and in the linear regime two refits check
- * for a second valley (dt_profile_other_valley).  Without, the search
- * relies on the refits of the points that would end the interval: about
- * a third of the refits, for the first pass over a survey. */
-static int at_risk(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
-  const dt_fit_result *r = &out->fit;
-  const dt_component *c = &r->comp[k];
-  if (out->saturated || dt_cog_tau0(&a->d->line[0], c->logN, c->b) > 1.0 || c->b < a->fwhm_kms)
-    return 1;
-  for (size_t q = 0; q < r->ncomp; q++)
-    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 1;
-  return 0;
-}
-
-/* The scan's shortcuts for component k (profile.h): DT_PROFILE_ISOLATED
- * when no other component lies within FWHM + 2 (b_k + b_j) (no blend to
- * hand the column to), DT_PROFILE_RESOLVED when its b, not at a bound and
- * not tied, exceeds the line-spread function's b (FWHM / (2 sqrt(ln 2)))
- * by two errors and is measured to 20% (a narrow saturated line or a
- * broad thin one would have another width than the observed). */
-#define RESOLVED_BERR 0.2
-static unsigned scan_flags(const dt_analysis *a, const dt_analysis_out *out, size_t k,
-                           int tie_b) {
-  const dt_fit_result *r = &out->fit;
-  const dt_component *c = &r->comp[k];
-  unsigned fl = DT_PROFILE_ISOLATED;
-  for (size_t q = 0; q < r->ncomp; q++)
-    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b))
-      fl = 0;
-  double be = r->err[k].b, binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
-  if (!tie_b && !(out->fit_info.at_bound[k] & DT_FREEZE_B) && be > 0 &&
-      be < RESOLVED_BERR * c->b && c->b - 2.0 * be > binst)
-    fl |= DT_PROFILE_RESOLVED;
-  return fl;
-}
-
-/* A refit that turned up a better minimum restarts the intervals from it,
- * at most MAX_MOVES times (each move lowers chi2 by DT_PROFILE_MOVE or
- * more, so this ends anyway) -- with no time budget only (explicit calls,
- * the first pass: the caller then takes out->fit); a run's intervals
- * (budget > 0: the inspector's keystrokes, whose judgement holds its own
- * fit) keep the fit and count such an interval as incomplete. */
-#define MAX_MOVES 3
-static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
-                     double budget) {
-  out->have_intervals = 0;
-  if (!a->have_run || !a->fw || out->fit.status != DT_OK || out->fit.ncomp != j->ncomp ||
-      !(dchi2 > 0))
-    return DT_EINVAL;
-  int keep = -1;   /* the interval already found around a moved fit */
-  for (int moves = 0;; moves++) {
-    dt_fit_problem p;
-    fill_problem(a, j, &p);
-    const dt_fit_result *r = &out->fit;
-    int again = 0;
-    for (size_t k = 0; k < r->ncomp && !again; k++) {
-      if ((int)k == keep) continue;
-      dt_profile_interval *pi = &out->logN_int[k];
-      double h = r->err[k].logN * sqrt(dchi2);
-      double h3 = dchi2 < 9.0 ? 3.0 * h : h;
-      if (a->opts.covariance_only ||
-          (linear_regime(a, out, k) &&
-           !(a->opts.outer_intervals && at_risk(a, out, k) &&
-             dt_profile_other_valley(a->fw, &p, r, k, h3, dchi2 < 9.0 ? 9.0 * dchi2 : dchi2)))) {
-        /* the covariance interval is the profile's here (see above), or
-         * was asked for */
-        memset(pi, 0, sizeof *pi);
-        pi->best = r->comp[k].logN;
-        pi->lo = pi->best - h;
-        pi->hi = pi->best + h;
-        pi->lo3 = pi->best - h3;
-        pi->hi3 = pi->best + h3;
-        pi->incomplete3 = !a->opts.outer_intervals;
-        continue;
-      }
-      dt_fit_result lower;
-      lower.status = DT_EINVAL;
-      unsigned fl = scan_flags(a, out, k, p.tie_b);
-      if (a->opts.outer_intervals)
-        fl |= DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0);
-      dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);
-      if (budget == 0 && pi->moved && moves < MAX_MOVES && lower.status == DT_OK) {
-        dt_profile_interval found = *pi;
-        if (move_fit(a, j, out, &lower)) {
-          /* the others' intervals were around the old fit: again */
-          out->logN_int[k] = found;
-          keep = (int)k;
-          again = 1;
-        }
-      }
-    }
-    if (!again) break;
-  }
-  out->have_intervals = 1;
-  return DT_OK;
-}
-
-int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
-                          double dchi2) {
-  return intervals(a, j, out, dchi2, 0);
-}
-
-int dt_analysis_run_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out) {
-  if (!out->fit.ncomp) return DT_EINVAL;
-  return intervals(a, j, out, 1.0, DT_ANALYSIS_RUN_INTERVAL_S / (double)out->fit.ncomp);
-}
-
 int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out) {
   if (!a->have_run) return DT_EINVAL;
   out->measure_status = dt_an_measure_lines(a, a->mv1, a->mv2, a->ml1, a->ml2, 1, out->line,
@@ -817,7 +658,7 @@ int dt_analysis_eval(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
   int st = prepare(a, j, out, e);
   if (st != DT_OK) return st;
   dt_fit_problem p;
-  fill_problem(a, j, &p);
+  dt_an_fill_problem(a, j, &p);
   /* the joint polynomial: the recorded fit's, else 1 -- never the least-
    * squares polynomial of the data against these components, which bends
    * into any absorption the components do not model (with none, into all

@@ -3,6 +3,7 @@
 #ifndef DOUBLETTY_ANALYSIS_PRIV_H
 #define DOUBLETTY_ANALYSIS_PRIV_H
 #include "doubletty/analysis.h"
+#include "doubletty/calib.h"
 #include "doubletty/cog.h"
 #include "doubletty/continuum.h"
 #include "doubletty/cover.h"
@@ -60,6 +61,9 @@ struct dt_analysis {
   double cf[DT_MAX_COMP];
   dt_fit_workspace *fw;
   size_t fw_cap;
+  dt_calib_workspace *calw;      /* calibrated interval thresholds (calib.h),
+                                    made when first needed */
+  size_t calw_cap;
   dt_cont_work *cw;
   /* the last run */
   size_t i0, n, ncomp;
@@ -83,6 +87,10 @@ struct dt_analysis {
     double W, b, logN;
   } cog_cache[2];
 };
+
+/* analysis.c: the fit problem of j on the analysis' pixels, model and
+ * continuum (as dt_analysis_run fits it). */
+void dt_an_fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *p);
 
 /* analysis_measure.c: the measurement input and options of the current
  * selection; both lines measured over v1..v2 (limits over l1..l2; full:

@@ -232,6 +232,23 @@ check "... and every interval is logN -+ logN_err" awk -F, '/^#/ { next } !h++ {
   END { exit !(n > 0 && bad == 0) }' "$TMP/cov.csv"
 "$DT" fit --list "$TMP/dmo/targets.list" -o "$TMP/prof.csv" 2>/dev/null
 check "the default: profile, with asymmetric intervals somewhere" sh -c "grep -q '^# intervals=profile$' '$TMP/prof.csv' && awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[\$i] = i; next } \$c[\"logN\"] != \"\" && \$c[\"logN_err_lo\"] != \$c[\"logN_err_hi\"] { f = 1 } END { exit !f }' '$TMP/prof.csv'"
-expect_fail "--intervals of another kind" "not profile or covariance" "$DT" fit --intervals exact "$TMP/dmo/vpq01.fits"
+# --intervals calibrated: the same fits, and where a profile is not a
+# parabola its ends searched again at a threshold from simulated spectra
+# (calib.h): some interval changes (three sightlines of the demo)
+grep -E '^(vpq01|vpq04|vpg05)' "$TMP/dmo/targets.list" | sed "s|^|$TMP/dmo/|" >"$TMP/three.list"
+"$DT" fit --list "$TMP/three.list" -o "$TMP/p3.csv" 2>/dev/null
+"$DT" fit --list "$TMP/three.list" --intervals calibrated -o "$TMP/c3.csv" 2>/dev/null
+check "--intervals calibrated: the settings say so" grep -q '^# intervals=calibrated$' "$TMP/c3.csv"
+cols() { # FILE: logN and its interval per row
+  awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[$i] = i; next }
+    { print $c["logN"], $c["logN_err_lo"], $c["logN_err_hi"] }' "$1"
+}
+cols "$TMP/p3.csv" >"$TMP/p3.cols"
+cols "$TMP/c3.csv" >"$TMP/c3.cols"
+cut -d' ' -f1 "$TMP/p3.cols" >"$TMP/p3.n"
+cut -d' ' -f1 "$TMP/c3.cols" >"$TMP/c3.n"
+check "... the same columns (fits) as the profile's" sh -c "[ -s '$TMP/p3.n' ] && cmp -s '$TMP/p3.n' '$TMP/c3.n'"
+check "... and some interval calibrated away from dchi2 = 1" sh -c "! cmp -s '$TMP/p3.cols' '$TMP/c3.cols'"
+expect_fail "--intervals of another kind" "not profile, calibrated or covariance" "$DT" fit --intervals exact "$TMP/dmo/vpq01.fits"
 
 finish

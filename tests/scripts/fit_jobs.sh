@@ -22,6 +22,15 @@ for n in 2 3 8 default; do
 done
 check "the thread count is not a setting of the table" sh -c "! grep -q jobs '$TMP/d1.csv'"
 
+# calibrated intervals (a random stream seeded from each fit): threads and
+# reruns give the same bytes (three sightlines)
+grep -E '^(vpq01|vpq04|vpg05)' "$TMP/demo/targets.list" | sed "s|^|$TMP/demo/|" >"$TMP/three.list"
+$DT fit --jobs 1 --intervals calibrated --list "$TMP/three.list" >"$TMP/c1.csv" 2>/dev/null
+$DT fit --jobs 3 --intervals calibrated --list "$TMP/three.list" >"$TMP/c3.csv" 2>/dev/null
+$DT fit --jobs 1 --intervals calibrated --list "$TMP/three.list" >"$TMP/c1b.csv" 2>/dev/null
+check "calibrated, --jobs 3: the --jobs 1 table byte for byte" sh -c "[ -s '$TMP/c1.csv' ] && cmp -s '$TMP/c1.csv' '$TMP/c3.csv'"
+check "calibrated: a rerun gives the same bytes" cmp -s "$TMP/c1.csv" "$TMP/c1b.csv"
+
 # failures interleaved with good inputs: missing files, a bad list line,
 # a file that is no spectrum, a doublet outside the data, a directory
 # given as a list, a multi-row table

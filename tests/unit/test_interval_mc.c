@@ -4,25 +4,29 @@
  * In each regime synthetic Na I spectra (dt_model_eval plus Gaussian noise
  * of known sigma, continuum known and fixed at 1 so that only the interval
  * method is tested) are fitted from a displaced start with the right
- * number of components; the 1-sigma (dchi2 = 1) interval comes from the
- * default search (as `fit` reports it), the 3-sigma one (dchi2 = 9,
- * lo3/hi3) from the thorough search (opts.outer_intervals).  The truth
- * must lie
+ * number of components; the 1-sigma interval comes from the default
+ * search with calibrated thresholds (opts.calibrated, as `fit --intervals
+ * calibrated` reports it: dchi2 = 1, and where the profile is not a
+ * parabola a threshold per end from a parametric bootstrap, calib.h), the
+ * 3-sigma one (lo3/hi3) from the thorough search (opts.outer_intervals;
+ * see `calibrated3` below).  The truth must lie
  *   - inside the 3-sigma interval (or above its lower limit) in >= 99%
  *     (99.73% for a Gaussian), every regime;
  *   - inside the 1-sigma interval in 68.27% +- 5% of the cases
  *     (erf(1/sqrt 2), Abramowitz & Stegun 1964, 26.2), a lower limit
- *     counting as the interval [lo, inf) -- where Wilks' theorem holds.
- *     It does not in the saturated and unresolved regimes: there the
- *     profile likelihood's own 1-sigma coverage, found by brute force
- *     (the fit and the profile point at the truth each from 21 starts in
- *     b and log N, 200 spectra), is 76% (R 5000), 62% (R 40000) and 80%
- *     (R 2000) -- a flat or two-valleyed likelihood in (N, b), not a fault
- *     of the search; there the 1-sigma coverage is only held to 55..85%.
+ *     counting as the interval [lo, inf).
+ *     Wilks' theorem (dchi2 = 1) fails in the saturated and unresolved
+ *     regimes: there the profile likelihood's own 1-sigma coverage, found
+ *     by brute force (the fit and the profile point at the truth each from
+ *     21 starts in b and log N, 200 spectra), is 76% (R 5000), 62%
+ *     (R 40000) and 80% (R 2000) -- a flat or two-valleyed likelihood in
+ *     (N, b).  The calibration brings R 40000 to the target (63.3% at
+ *     DT_MC_SCALE=4) but R 5000 and R 2000 only to 74-75%: those two
+ *     (short1) are held to 55..85%.
  * With N cases the binomial error of a coverage p is sqrt(p (1-p) / N);
  * the 1-sigma tolerance is the larger of 5% and three binomial errors
  * (22-40 cases per regime in the suite: a coarse check that keeps the
- * suite near 10 s; DT_MC_SCALE=4 for the README's figures), the 3-sigma
+ * test near 25 s; DT_MC_SCALE=4 for the README's figures), the 3-sigma
  * one 99% less three binomial errors.  DT_MC_VERBOSE=1 prints the 3-sigma
  * misses.  Regimes: thin (R 20000, log N 11.9, b 10, S/N 50); saturated
  * at R 5000 and at R 40000 (b 2, log N 13.5 and 13.0, S/N 30); unresolved
@@ -40,8 +44,8 @@
 #include "doubletty/model.h"
 #include "harness.h"
 
-/* where Wilks' theorem fails (short1) the 1-sigma coverage must still lie
- * in this band: what the exact profile gives there (header) */
+/* where the calibration falls short (short1) the 1-sigma coverage must
+ * still lie in this band: what the exact profile gives there (header) */
 #define SHORT1_LO 0.55
 #define SHORT1_HI 0.85
 
@@ -60,6 +64,15 @@ typedef struct regime {
                            checked only against SHORT1_LO..SHORT1_HI */
 } regime;
 
+/* 1: the 1-sigma intervals with calibrated thresholds (opts.calibrated,
+ * `fit --intervals calibrated`; DT_MC_WILKS=1: dchi2 = 1).  The 3-sigma
+ * ones of the calibrated search are never narrower than the thorough
+ * search's at dchi2 = 9 (their threshold is 9 max(c, 1) and an end moves
+ * only outward, analysis.c), so that search's coverage is a lower bound
+ * of theirs: it is what the suite checks (half the time);
+ * DT_MC_CALIB3=1 calibrates the 3-sigma search too. */
+static int calibrated = 1, calibrated3 = 0;
+
 static int by_v(const void *a, const void *b) {
   const double *x = a, *y = b;
   return (x[2] > y[2]) - (x[2] < y[2]);
@@ -68,12 +81,13 @@ static int by_v(const void *a, const void *b) {
 /* Fit j (ncomp components) and its intervals of log N, the default search
  * (outer 0) or the thorough one with the 3-sigma ends (1); the intervals
  * and fitted columns (est, may be NULL) in the order of velocity. */
-static int sorted_intervals(dt_analysis *a, const dt_judgement *j, int outer,
+static int sorted_intervals(dt_analysis *a, const dt_judgement *j, int outer, int calibrated,
                             dt_profile_interval *iv, double *est, int *nf) {
   dt_analysis_opts ao;
   dt_analysis_opts_init(&ao);
   ao.no_intervals = 1;
   ao.outer_intervals = outer;
+  ao.calibrated = calibrated;
   dt_analysis_set_opts(a, &ao);
   dt_analysis_out o;
   if (dt_analysis_run(a, j, &o, NULL) != DT_OK || o.fit.ncomp != j->ncomp) return DT_EINVAL;
@@ -148,8 +162,8 @@ static void run_regime(const dt_atomic *t, const regime *g, unsigned long seed) 
     dt_profile_interval i1[2], i3[2];
     double est[2];
     int nf = 0;
-    if (sorted_intervals(a, &j, 0, i1, est, &nf) != DT_OK) continue;
-    if (sorted_intervals(a, &j, 1, i3, NULL, &nf) != DT_OK) continue;
+    if (sorted_intervals(a, &j, 0, calibrated, i1, est, &nf) != DT_OK) continue;
+    if (sorted_intervals(a, &j, 1, calibrated3, i3, NULL, &nf) != DT_OK) continue;
     for (size_t q = 0; q < g->nc; q++) {
       i3[q].lo = i3[q].lo3;
       i3[q].hi = i3[q].hi3;
@@ -187,7 +201,7 @@ static void run_regime(const dt_atomic *t, const regime *g, unsigned long seed) 
         g->ntrial);
   double tol = fmax(0.05, 3.0 * sqrt(0.6827 * 0.3173 / (ncase ? ncase : 1)));
   if (g->short1) {
-    printf("# %s: 1 sigma a known shortfall of Wilks' theorem here (README, Measurements)\n",
+    printf("# %s: 1 sigma a known shortfall here (README, Measurements)\n",
            g->name);
     CHECK(c1 >= SHORT1_LO - tol && c1 <= SHORT1_HI + tol,
           "%s: truth inside the 1-sigma interval %.1f%% (%.0f..%.0f +- %.1f)", g->name, 100 * c1,
@@ -214,11 +228,13 @@ int main(int argc, char **argv) {
    * argument) for the figures of the README */
   const char *env = getenv("DT_MC_SCALE");
   int scale = argc > 1 ? atoi(argv[1]) : env ? atoi(env) : 1;
+  calibrated = !getenv("DT_MC_WILKS");
+  calibrated3 = calibrated && getenv("DT_MC_CALIB3");
   if (scale < 1) scale = 1;
   regime rs[] = {
       {"thin R 20000", 20000, 0.1, 50, 1, {{11.9, 10.0, 0.0}}, 40, 120, 0},
       {"saturated R 5000", 5000, 0.4, 30, 1, {{13.5, 2.0, 0.0}}, 32, 200, 1},
-      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 32, 100, 1},
+      {"saturated R 40000", 40000, 0.05, 30, 1, {{13.0, 2.0, 0.0}}, 32, 100, 0},
       {"unresolved R 2000 S/N 100", 2000, 1.0, 100, 1, {{12.5, 1.0, 0.0}}, 26, 350, 1},
       {"blend 15 km/s R 20000", 20000, 0.1, 50, 2, {{11.8, 5.0, -7.5}, {11.6, 5.0, 7.5}}, 22,
        120, 0},

@@ -1,0 +1,272 @@
+/* The log N intervals of an analysis' components (analysis.h):
+ * covariance where chi2 is a parabola in log N, else the profile
+ * likelihood (profile.c) with the shortcuts and the deeper search the
+ * component's regime calls for, a move of the fit to a lower minimum the
+ * search found, and with opts.calibrated the ends of a profile that is
+ * not a parabola searched again at bootstrap-calibrated thresholds
+ * (calib.c). */
+#include "doubletty/analysis.h"
+
+#include <math.h>
+#include <string.h>
+
+#include "doubletty/cog.h"
+#include "doubletty/profile.h"
+
+#include "analysis_priv.h"
+
+/* Component k is in the linear regime, where chi2 is a parabola in log N
+ * and the covariance error is the profile-likelihood interval (the
+ * profile search would accept its first probe, at two refits) -- unless a
+ * second valley in b lies within reach (dt_profile_other_valley, two
+ * refits; an unresolved line fitted broad and thin may as well be narrow
+ * and saturated): optically
+ * thin at its fitted b (tau0 < LINEAR_TAU0, cog.h) with a covariance
+ * error below LINEAR_ERR dex (so log N and N are linear to within a few
+ * per cent over the interval), no saturation flag from the doublet ratios,
+ * no parameter at a bound, and no other component within FWHM + 2 (b_k +
+ * b_j) (a blend correlates the columns non-linearly). */
+#define LINEAR_TAU0 0.3
+#define LINEAR_ERR 0.1
+static int linear_regime(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  double e = r->err[k].logN;
+  if (!(e > 0) || !(e < LINEAR_ERR) || out->saturated || out->fit_info.at_bound[k]) return 0;
+  if (!(dt_cog_tau0(&a->d->line[0], c->logN, c->b) < LINEAR_TAU0)) return 0;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 0;
+  return 1;
+}
+
+/* The fit moves to a lower chi2 the profile search found (profile.h):
+ * a run from those components (intervals deferred, measurements and
+ * limits as usual), kept when its chi2 is lower, else the run of j again.
+ * 1 when it moved. */
+static int move_fit(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                    const dt_fit_result *lower) {
+  if (lower->ncomp != j->ncomp || !isfinite(lower->chi2) || !(lower->chi2 < out->fit.chi2))
+    return 0;
+  dt_judgement jm = *j;
+  memcpy(jm.comp, lower->comp, jm.ncomp * sizeof jm.comp[0]);
+  int defer = a->opts.defer_intervals;
+  a->opts.defer_intervals = 1;
+  double chi0 = out->fit.chi2;
+  dt_analysis_out o2;
+  int st = dt_analysis_run(a, &jm, &o2, NULL);
+  int moved = st == DT_OK && o2.fit.ncomp == j->ncomp && o2.fit.chi2 < chi0 - DT_PROFILE_MOVE;
+  if (moved) *out = o2;
+  else dt_analysis_run(a, j, out, NULL);   /* the analysis holds j's fit again */
+  a->opts.defer_intervals = defer;
+  return moved;
+}
+
+/* Component k may sit in the wrong valley of chi2 (profile.h): saturated
+ * at its fitted b (tau0 > 1), unresolved (b below the LSF's FWHM), or
+ * blended (another component within FWHM + 2 (b_k + b_j)).  With
+ * opts.outer_intervals its profile then starts with refits from the other
+ * valleys (DT_PROFILE_DEEP), and in the linear regime two refits check
+ * for a second valley (dt_profile_other_valley).  Without, the search
+ * relies on the refits of the points that would end the interval: about
+ * a third of the refits, for the first pass over a survey. */
+static int at_risk(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  if (out->saturated || dt_cog_tau0(&a->d->line[0], c->logN, c->b) > 1.0 || c->b < a->fwhm_kms)
+    return 1;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 1;
+  return 0;
+}
+
+/* The scan's shortcuts for component k (profile.h): DT_PROFILE_ISOLATED
+ * when no other component lies within FWHM + 2 (b_k + b_j) (no blend to
+ * hand the column to), DT_PROFILE_RESOLVED when its b, not at a bound and
+ * not tied, exceeds the line-spread function's b (FWHM / (2 sqrt(ln 2)))
+ * by two errors and is measured to 20% (a narrow saturated line or a
+ * broad thin one would have another width than the observed). */
+#define RESOLVED_BERR 0.2
+static unsigned scan_flags(const dt_analysis *a, const dt_analysis_out *out, size_t k,
+                           int tie_b) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  unsigned fl = DT_PROFILE_ISOLATED;
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b))
+      fl = 0;
+  double be = r->err[k].b, binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
+  if (!tie_b && !(out->fit_info.at_bound[k] & DT_FREEZE_B) && be > 0 &&
+      be < RESOLVED_BERR * c->b && c->b - 2.0 * be > binst)
+    fl |= DT_PROFILE_RESOLVED;
+  return fl;
+}
+
+/* Component k's profile is not a parabola, so dchi2 = 1 (Wilks) need not
+ * give 68% (calib.h): its interval is a limit, its two halves differ by
+ * more than LOPSIDED of the longer, or either half differs from the
+ * covariance error (the parabola's half-width) by more than LOPSIDED of
+ * it.  (A saturated line with a profile that is a parabola all the same
+ * is left alone: most of a survey's, measured to a few hundredths of a
+ * dex.) */
+#define LOPSIDED 0.25
+static int not_parabolic(const dt_analysis_out *out, size_t k) {
+  const dt_profile_interval *pi = &out->logN_int[k];
+  if (pi->flag != DT_PROFILE_BOUNDED) return 1;
+  double up = pi->hi - pi->best, dn = pi->best - pi->lo, e = out->fit.err[k].logN;
+  if (fabs(up - dn) > LOPSIDED * fmax(up, dn)) return 1;
+  return !(fabs(up - e) <= LOPSIDED * e && fabs(dn - e) <= LOPSIDED * e);
+}
+
+/* The flag of an interval [lo, hi] (NaN: no end there), as profile.h. */
+static int ends_flag(double lo, double hi) {
+  return isfinite(lo) ? (isfinite(hi) ? DT_PROFILE_BOUNDED : DT_PROFILE_LOWER_LIMIT)
+                      : (isfinite(hi) ? DT_PROFILE_UPPER_LIMIT : DT_PROFILE_UNBOUNDED);
+}
+
+/* An end searched again at a higher threshold (out = 1) lies outward of
+ * the old one (dir +1 the upper end, -1 the lower; NaN, no end, is the
+ * farthest), at a lower one inward: a new end on the wrong side is the
+ * search's, not the threshold's (another valley seen or missed), and the
+ * old end stands. */
+static int moved_right(double old, double nw, int dir, int out) {
+  double o = isfinite(old) ? dir * old : INFINITY, n = isfinite(nw) ? dir * nw : INFINITY;
+  return out ? n >= o : n <= o;
+}
+
+/* The profile intervals (not the covariance's: no refits) of the
+ * components whose profile is not a parabola, each end again at its own
+ * calibrated threshold (calib.h): the test of log N_k = the end, its
+ * world the data's fit held there, inverted (an end belongs to the
+ * interval when its dchi2 is below that test's threshold; one step of
+ * the inversion, from the uncalibrated end).  An end is searched again
+ * only where its threshold differs from dchi2 by more than CALIB_SAME of
+ * it; its 3-sigma end (outer_intervals) only where that threshold grew
+ * (it never shrinks below 9 dchi2).  A limit's open side stays open.  An
+ * end whose new search does not finish, or finds a lower chi2, stays. */
+#define CALIB_SAME 0.02
+#define CALIB_MAX_DCHI2 4.0   /* beyond (95%), DT_CALIB_NSIM simulations put
+                                 too few in the tail: Wilks' threshold stands */
+static void calibrate(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2) {
+  if (!a->calw || a->calw_cap < a->n) {
+    dt_calib_free(a->calw);
+    a->calw = dt_calib_alloc(a->n, 0);
+    a->calw_cap = a->calw ? a->n : 0;
+    if (!a->calw) return;
+  }
+  dt_fit_problem p;
+  dt_an_fill_problem(a, j, &p);
+  const dt_fit_result *r = &out->fit;
+  for (size_t k = 0; k < r->ncomp; k++) {
+    dt_profile_interval *pi = &out->logN_int[k];
+    if (pi->nfits == 0 || pi->incomplete || pi->moved || !not_parabolic(out, k)) continue;
+    dt_profile_interval res = *pi;
+    unsigned fl = scan_flags(a, out, k, p.tie_b);
+    if (a->opts.outer_intervals) fl |= at_risk(a, out, k) ? DT_PROFILE_DEEP : 0;
+    for (int side = 0; side < 2; side++) {   /* 0 lower end, 1 upper */
+      double end = side ? pi->hi : pi->lo;
+      if (!isfinite(end)) continue;
+      dt_calib_result cr;
+      if (dt_calib_logN(a->calw, a->fw, &p, r, k, end, dchi2, 0, &cr) != DT_OK) continue;
+      if (fabs(cr.dchi2 - dchi2) <= CALIB_SAME * dchi2) continue;
+      int outer = a->opts.outer_intervals && cr.dchi2_3 > 9.0 * dchi2;
+      dt_profile_interval ci;
+      dt_profile_logN(a->fw, &p, r, k, cr.dchi2, 0, fl | (outer ? DT_PROFILE_OUTER : 0), &ci,
+                      NULL);
+      if (ci.incomplete || ci.moved) continue;
+      res.nfits += ci.nfits;
+      int dir = side ? +1 : -1;
+      double *e1 = side ? &res.hi : &res.lo, n1 = side ? ci.hi : ci.lo;
+      if (moved_right(*e1, n1, dir, cr.dchi2 > dchi2)) {
+        *e1 = n1;
+        out->logN_dchi2[k][side] = cr.dchi2;
+      }
+      double *e3 = side ? &res.hi3 : &res.lo3, n3 = side ? ci.hi3 : ci.lo3;
+      if (outer && !ci.incomplete3 && !res.incomplete3 && moved_right(*e3, n3, dir, 1)) {
+        *e3 = n3;
+        out->logN_dchi2_3[k][side] = cr.dchi2_3;
+      }
+    }
+    res.flag = ends_flag(res.lo, res.hi);
+    if (!res.incomplete3) res.flag3 = ends_flag(res.lo3, res.hi3);
+    *pi = res;
+  }
+}
+
+/* A refit that turned up a better minimum restarts the intervals from it,
+ * at most MAX_MOVES times (each move lowers chi2 by DT_PROFILE_MOVE or
+ * more, so this ends anyway) -- with no time budget only (explicit calls,
+ * the first pass: the caller then takes out->fit); a run's intervals
+ * (budget > 0: the inspector's keystrokes, whose judgement holds its own
+ * fit) keep the fit and count such an interval as incomplete. */
+#define MAX_MOVES 3
+static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out, double dchi2,
+                     double budget) {
+  out->have_intervals = 0;
+  if (!a->have_run || !a->fw || out->fit.status != DT_OK || out->fit.ncomp != j->ncomp ||
+      !(dchi2 > 0))
+    return DT_EINVAL;
+  int keep = -1;   /* the interval already found around a moved fit */
+  for (int moves = 0;; moves++) {
+    dt_fit_problem p;
+    dt_an_fill_problem(a, j, &p);
+    const dt_fit_result *r = &out->fit;
+    int again = 0;
+    for (size_t k = 0; k < r->ncomp && !again; k++) {
+      if ((int)k == keep) continue;
+      dt_profile_interval *pi = &out->logN_int[k];
+      double h = r->err[k].logN * sqrt(dchi2);
+      double h3 = dchi2 < 9.0 ? 3.0 * h : h;
+      if (a->opts.covariance_only ||
+          (linear_regime(a, out, k) &&
+           !(a->opts.outer_intervals && at_risk(a, out, k) &&
+             dt_profile_other_valley(a->fw, &p, r, k, h3, dchi2 < 9.0 ? 9.0 * dchi2 : dchi2)))) {
+        /* the covariance interval is the profile's here (see above), or
+         * was asked for */
+        memset(pi, 0, sizeof *pi);
+        pi->best = r->comp[k].logN;
+        pi->lo = pi->best - h;
+        pi->hi = pi->best + h;
+        pi->lo3 = pi->best - h3;
+        pi->hi3 = pi->best + h3;
+        pi->incomplete3 = !a->opts.outer_intervals;
+        continue;
+      }
+      dt_fit_result lower;
+      lower.status = DT_EINVAL;
+      unsigned fl = scan_flags(a, out, k, p.tie_b);
+      if (a->opts.outer_intervals)
+        fl |= DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0);
+      dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);
+      if (budget == 0 && pi->moved && moves < MAX_MOVES && lower.status == DT_OK) {
+        dt_profile_interval found = *pi;
+        if (move_fit(a, j, out, &lower)) {
+          /* the others' intervals were around the old fit: again */
+          out->logN_int[k] = found;
+          keep = (int)k;
+          again = 1;
+        }
+      }
+    }
+    if (!again) break;
+  }
+  for (size_t k = 0; k < out->fit.ncomp; k++)
+    for (int side = 0; side < 2; side++) {
+      out->logN_dchi2[k][side] = dchi2;
+      out->logN_dchi2_3[k][side] = dchi2 < 9.0 ? 9.0 * dchi2 : dchi2;
+    }
+  if (budget == 0 && dchi2 <= CALIB_MAX_DCHI2 && a->opts.calibrated && !a->opts.covariance_only)
+    calibrate(a, j, out, dchi2);
+  out->have_intervals = 1;
+  return DT_OK;
+}
+
+int dt_analysis_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
+                          double dchi2) {
+  return intervals(a, j, out, dchi2, 0);
+}
+
+int dt_analysis_run_intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out) {
+  if (!out->fit.ncomp) return DT_EINVAL;
+  return intervals(a, j, out, 1.0, DT_ANALYSIS_RUN_INTERVAL_S / (double)out->fit.ncomp);
+}
+
