@@ -31,10 +31,10 @@
  *     DT_PROFILE_ISOLATED), with the column handed to the nearest
  *     component, and keeps the lowest chi2 (such far starts run 6
  *     iterations first and go on only when chi2 is then within reach
- *     and -- outside DT_PROFILE_DEEP -- the b have not come back within
- *     20% of the near refit's, whose valley they would end in); the near
- *     refits and the first iterations of the far ones take plain
- *     Levenberg-Marquardt steps, outside DT_PROFILE_DEEP;
+ *     and -- with DT_PROFILE_QUICK -- the b have not come back within
+ *     20% of the near refit's, whose valley they would end in); with
+ *     DT_PROFILE_QUICK the near refits and the first iterations of the
+ *     far ones take plain Levenberg-Marquardt steps;
  *   - a chi2 below chi2_0 - DT_PROFILE_MOVE found anywhere (no b at the
  *     edge of its range) means the fit was not the minimum: the reference
  *     moves there (a full refit from
@@ -104,8 +104,13 @@ enum {
                             the interval are not refitted from the other b
                             valley (a narrow saturated or broad thin line
                             would not have the observed width) */
-  DT_PROFILE_ISOLATED = 8  /* no other component overlaps k: ... nor with
+  DT_PROFILE_ISOLATED = 8, /* no other component overlaps k: ... nor with
                             the column handed to the nearest one */
+  DT_PROFILE_QUICK = 16    /* (without DEEP) plain Levenberg-Marquardt steps
+                            for the refits next to the optimum and the first
+                            look from another valley, and a far start back
+                            in the near refit's valley stops: the first
+                            pass's search over a survey */
 };
 
 /* The interval of component k for the problem p (as fitted) and its best

@@ -233,7 +233,7 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
       }
       dt_fit_result lower;
       lower.status = DT_EINVAL;
-      unsigned fl = scan_flags(a, out, k, p.tie_b);
+      unsigned fl = scan_flags(a, out, k, p.tie_b) | DT_PROFILE_QUICK;
       if (a->opts.outer_intervals)
         fl |= DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0);
       dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);

@@ -60,6 +60,7 @@ typedef struct prof {
   int dir;            /* side being searched (+1, -1) */
   int deep;           /* DT_PROFILE_DEEP */
   unsigned flags;     /* DT_PROFILE_* */
+  int quick;          /* DT_PROFILE_QUICK without DT_PROFILE_DEEP */
   int moved;          /* a chi2 below chi0 - DT_PROFILE_MOVE was found ... */
   dt_component mcomp[DT_MAX_COMP];  /* ... with these components */
   double mcont[DT_MAX_CONT];        /* and joint continuum */
@@ -100,8 +101,9 @@ static double refit(prof *P, const dt_component *comp, const double *cont, int i
                     dt_component *sol, double *csol) {
   P->q.max_iter = iter;
   /* a start next to its optimum, and the first look from a far one:
-   * plain steps (not in the thorough search, whose refits go further out) */
-  P->q.plain = (iter == PROFILE_MAX_ITER || iter == PROFILE_PEEK_ITER) && !P->deep;
+   * plain steps (DT_PROFILE_QUICK: not in the thorough search, whose
+   * refits go further out) */
+  P->q.plain = (iter == PROFILE_MAX_ITER || iter == PROFILE_PEEK_ITER) && P->quick;
   memcpy(P->comp, comp, P->r->ncomp * sizeof P->comp[0]);
   P->q.comp = P->comp;
   if (P->r->ncont) P->q.cont_init = cont;
@@ -230,9 +232,9 @@ static double chi2_at(prof *P, double x, double target) {
       } else if (!exchange(P, alt, x)) {
         break;
       }
-      /* (a column exchanged keeps the b: no test of the valley by b; nor
-       * in the thorough search) */
-      double ca = far_refit(P, alt, P->cfrom, target, i < 2 && !P->deep && isfinite(c) ? best : NULL,
+      /* (a column exchanged keeps the b: no test of the valley by b; only
+       * with DT_PROFILE_QUICK) */
+      double ca = far_refit(P, alt, P->cfrom, target, i < 2 && P->quick && isfinite(c) ? best : NULL,
                             sol, csol);
       if (ca < c) {
         c = ca;
@@ -410,6 +412,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
   P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
   P.deep = (flags & DT_PROFILE_DEEP) != 0;
   P.flags = flags;
+  P.quick = (flags & DT_PROFILE_QUICK) && !(flags & DT_PROFILE_DEEP);
   P.t0 = now_s();
   P.budget = budget > 0 ? fmin(budget, PROFILE_BUDGET) : INFINITY;
   P.maxfits = max_fits(p);
