@@ -67,6 +67,17 @@ struct dt_journal {
   char warn[MAX_WARN][WARN_LEN];
   char *buf;
   size_t bufcap;
+  unsigned long index_gen; /* changes of the index so far */
+  struct {                 /* the last lookup of a replayed record's target */
+    int valid;
+    unsigned long gen;     /* ... and the index it was made in */
+    char *path;
+    size_t cap;
+    char sha256[DT_SHA256_HEX];
+    int hdu;
+    long row;
+    long idx;
+  } last;
 };
 
 
@@ -104,6 +115,7 @@ static dt_journal_entry *find(const dt_journal *j, const dt_target *t, int hint)
 
 /* Give entry i the keys of target t (its digest and its path hint). */
 static int index_entry(dt_journal *j, size_t i, const dt_target *t) {
+  j->index_gen++;
   char b0[KEYBUF], b1[KEYBUF];
   char *k[2] = {dt_jn_id_key(t, b0, sizeof b0), dt_jn_path_key(t->path, b1, sizeof b1)};
   int rc = k[1] ? DT_OK : DT_ENOMEM;
@@ -246,9 +258,36 @@ static void note_verdict(dt_journal_entry *en, dt_verdict before, dt_action_kind
   }
 }
 
+/* find_index(j, t, 0), remembered: a target looked up before, the index
+ * unchanged since, has the same answer (a session's records come in runs
+ * of one target: the keys need not be built and hashed again). */
+static long find_replayed(dt_journal *j, const dt_target *t) {
+  if (!t->path) return -1;
+  if (j->last.valid && j->last.gen == j->index_gen && j->last.hdu == t->hdu &&
+      j->last.row == t->row && !strcmp(j->last.sha256, t->sha256) && !strcmp(j->last.path, t->path))
+    return j->last.idx;
+  long idx = find_index(j, t, 0);
+  size_t n = strlen(t->path) + 1;
+  j->last.valid = 0;
+  if (n > j->last.cap) {
+    char *p = realloc(j->last.path, n);
+    if (!p) return idx; /* not remembered */
+    j->last.path = p;
+    j->last.cap = n;
+  }
+  memcpy(j->last.path, t->path, n);
+  memcpy(j->last.sha256, t->sha256, sizeof j->last.sha256);
+  j->last.hdu = t->hdu;
+  j->last.row = t->row;
+  j->last.idx = idx;
+  j->last.gen = j->index_gen;
+  j->last.valid = 1;
+  return idx;
+}
+
 /* Replay one record into the session. */
 static int replay(dt_journal *j, const dt_journal_record *rec) {
-  long idx = find_index(j, &rec->target, 0);
+  long idx = find_replayed(j, &rec->target);
   dt_journal_entry *en = idx >= 0 ? j->ent[idx] : add_entry(j, &rec->target);
   if (!en) return DT_ENOMEM;
   if (idx < 0) idx = (long)j->nent - 1;
@@ -550,6 +589,7 @@ void dt_journal_close(dt_journal *j) {
     free(j->ent[i]);
   }
   free(j->ent);
+  free(j->last.path);
   dt_jn_index_free(&j->index);
   free(j->dir);
   free(j->rdir);

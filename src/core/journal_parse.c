@@ -175,7 +175,7 @@ typedef struct pstate {
 static const dt_jn_field *lookup(const char *k, int part, int *num) {
   for (size_t i = 0; i < dt_jn_nfields; i++) {
     const dt_jn_field *f = &dt_jn_fields[i];
-    if (part == JP_STATE ? f->part < JP_STATE : f->part != part) continue;
+    if (f->key[0] != k[0] || (part == JP_STATE ? f->part < JP_STATE : f->part != part)) continue;
     if (f->flags & JF_NUMBERED) {
       size_t n = strlen(f->key);
       if (!strncmp(k, f->key, n) && k[n] >= '1' && k[n] < '1' + f->hi && !k[n + 1]) {
