@@ -106,12 +106,11 @@ static void cover_cells(dt_csv *w, const dt_doublet *d, const dt_judgement *j,
                                                dt_cover_lsf_fwhm(j->resolution, j->fwhm_kms))));
 }
 
-void fit_row_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
-                    const char *doublet, double vsys, const dt_err *e) {
-  char msg[sizeof e->where + sizeof e->what + 4];
-  if (e->where[0]) snprintf(msg, sizeof msg, "%s: %s", e->where, e->what);
-  else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
-  row_head(r, t, s, row, doublet, "", vsys, "failed");
+/* A row of a doublet without a fit: the head with status, empty cells up
+ * to the reason, msg as the reason, and the trailing groups empty. */
+static void message_row(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                        const char *doublet, double vsys, const char *status, const char *msg) {
+  row_head(r, t, s, row, doublet, "", vsys, status);
   /* ncomp .. suggested: empty */
   for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS + NCOVERCOLUMNS < NCOLUMNS;
        k++)
@@ -122,6 +121,14 @@ void fit_row_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long 
   tail_cells(&r->csv, NULL, 0);
   cover_cells(&r->csv, NULL, NULL, NULL, 0);
   dt_csv_end(&r->csv);
+}
+
+void fit_row_failed(run *r, const dt_target_spec *t, const dt_spectrum *s, long row,
+                    const char *doublet, double vsys, const dt_err *e) {
+  char msg[sizeof e->where + sizeof e->what + 4];
+  if (e->where[0]) snprintf(msg, sizeof msg, "%s: %s", e->where, e->what);
+  else snprintf(msg, sizeof msg, "%s", e->what[0] ? e->what : dt_status_str(e->code));
+  message_row(r, t, s, row, doublet, vsys, "failed", msg);
 }
 
 /* The reason column: the first pass's words for the row's system in base, and
@@ -310,17 +317,8 @@ void fit_row_joint_missing(run *r, const dt_target_spec *t, const dt_spectrum *s
   char msg[sizeof why->where + sizeof why->what + 48];
   if (why->where[0]) snprintf(msg, sizeof msg, "left out of the joint fit: %s: %s", why->where, why->what);
   else snprintf(msg, sizeof msg, "left out of the joint fit: %s", why->what);
-  row_head(r, t, s, row, name, "", vsys,
-           why->code == DT_ERANGE || why->code == DT_EMASKED ? "not-covered" : "failed");
-  for (size_t k = 10; k + 1 + NPOSCOLUMNS + NLSFCOLUMNS + NTAILCOLUMNS + NCOVERCOLUMNS < NCOLUMNS;
-       k++)
-    dt_csv_empty(&r->csv);
-  dt_csv_text(&r->csv, msg);
-  pos_cells(&r->csv, s);
-  lsf_cells(&r->csv, r, 0);
-  tail_cells(&r->csv, NULL, 0);
-  cover_cells(&r->csv, NULL, NULL, NULL, 0);
-  dt_csv_end(&r->csv);
+  message_row(r, t, s, row, name, vsys,
+              why->code == DT_ERANGE || why->code == DT_EMASKED ? "not-covered" : "failed", msg);
 }
 
 /* The run's settings as "# key=value" lines above the header: what was

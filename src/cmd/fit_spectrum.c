@@ -124,6 +124,26 @@ static int setup_systems(const config *c, const dt_target_spec *t, const dt_spec
 }
 
 /* Fit one spectrum (one row of a table, or the only one) for one doublet. */
+/* The first pass's options of the run: components asked for and seeds. */
+static void autofit_opts_of(const config *c, dt_autofit_opts *fo) {
+  dt_autofit_opts_init(fo);
+  fo->ncomp = c->ncomp;
+  fo->nseed = c->nseed;
+  for (size_t k = 0; k < c->nseed; k++) fo->seed_v[k] = c->seed_v[k];
+}
+
+/* Row row of the input t, read with the run's options and the list line's
+ * own (air, position, frame). */
+static int read_target(const config *c, const dt_target_spec *t, long row, dt_spectrum **s,
+                       dt_err *e) {
+  dt_read_opts ro = c->ropts;
+  ro.row = row;
+  if (t->air) ro.air = 1;
+  if (t->has_pos) ro.has_pos = 1, ro.ra = t->ra, ro.dec = t->dec;
+  if (t->frame != DT_FRAME_UNSET) ro.in_frame = t->frame;
+  return dt_spectrum_read(t->path, &ro, s, e);
+}
+
 /* An analysis of s: the worker's own, kept from the last spectrum, or a
  * new one (which becomes the worker's when it has none). */
 static dt_analysis *analysis_for(run *r, const dt_spectrum *s) {
@@ -142,14 +162,9 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
   dt_err e;
   dt_err_clear(&e);
   double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
-  dt_read_opts ro = c->ropts;
-  ro.row = row;
-  if (t->air) ro.air = 1;
-  if (t->has_pos) ro.has_pos = 1, ro.ra = t->ra, ro.dec = t->dec;
-  if (t->frame != DT_FRAME_UNSET) ro.in_frame = t->frame;
   dt_spectrum *s = NULL;
   dt_analysis *an = NULL;
-  int st = dt_spectrum_read(t->path, &ro, &s, &e);
+  int st = read_target(c, t, row, &s, &e);
   const dt_doublet *d = NULL;
   if (st == DT_OK) {
     d = dt_atomic_find(r->atomic, dname);
@@ -188,10 +203,7 @@ static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const cha
     ao.lsf_constant = lsf_constant;
     dt_analysis_set_opts(an, &ao);
     dt_autofit_opts fo;
-    dt_autofit_opts_init(&fo);
-    fo.ncomp = c->ncomp;
-    fo.nseed = c->nseed;
-    for (size_t k = 0; k < c->nseed; k++) fo.seed_v[k] = c->seed_v[k];
+    autofit_opts_of(c, &fo);
     st = dt_autofit_run(an, &j, &fo, &o, &e);
     if ((st == DT_OK || st == DT_ENOCONV) &&
         (c->covering || (t->has_covering && t->covering))) {
@@ -260,13 +272,8 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
   int lsf_constant = 1;
   r->lsf_label = NULL;
   r->lsf_fwhm = 0;
-  dt_read_opts ro = c->ropts;
-  ro.row = row;
-  if (t->air) ro.air = 1;
-  if (t->has_pos) ro.has_pos = 1, ro.ra = t->ra, ro.dec = t->dec;
-  if (t->frame != DT_FRAME_UNSET) ro.in_frame = t->frame;
   dt_spectrum *s = NULL;
-  int st = dt_spectrum_read(t->path, &ro, &s, &e);
+  int st = read_target(c, t, row, &s, &e);
   /* the lead: the first known doublet the spectrum covers */
   size_t lead = n;
   dt_err first_e;
@@ -337,10 +344,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
     }
     dt_joint_analysis_set_opts(ja, &jo);
     dt_autofit_opts fo;
-    dt_autofit_opts_init(&fo);
-    fo.ncomp = c->ncomp;
-    fo.nseed = c->nseed;
-    for (size_t k = 0; k < c->nseed; k++) fo.seed_v[k] = c->seed_v[k];
+    autofit_opts_of(c, &fo);
     st = dt_joint_autofit_run(ja, &j, linked, nl, c->btie, &fo, 1, o, &strongest, &e);
   }
   long shown_row = s ? s->row : row;
