@@ -196,8 +196,8 @@ int dt_spectrum_file_count(const dt_spectrum_file *f, const dt_read_opts *opts, 
                            dt_err *e);
 int dt_spectrum_file_read(const dt_spectrum_file *f, const dt_read_opts *opts,
                           dt_spectrum **out, dt_err *e);
-/* Bytes held in memory; 0 when the file is kept by name (or is empty). */
-size_t dt_spectrum_file_bytes(const dt_spectrum_file *f);
+/* Bytes held in memory (0 for an empty file); -1 when kept by name. */
+long long dt_spectrum_file_bytes(const dt_spectrum_file *f);
 void dt_spectrum_file_free(dt_spectrum_file *f);
 
 /* Arrays of n pixels, zeroed; NULL when out of memory. */

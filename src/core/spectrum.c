@@ -584,7 +584,9 @@ int dt_spectrum_file_load(const char *path, dt_spectrum_file **out, dt_err *e) {
   return DT_OK;
 }
 
-size_t dt_spectrum_file_bytes(const dt_spectrum_file *f) { return f && f->bytes ? f->len : 0; }
+long long dt_spectrum_file_bytes(const dt_spectrum_file *f) {
+  return f && f->bytes ? (long long)f->len : -1;
+}
 
 int dt_spectrum_file_count(const dt_spectrum_file *f, const dt_read_opts *opts, long *count,
                            dt_err *e) {
