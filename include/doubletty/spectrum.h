@@ -170,6 +170,36 @@ int dt_spectrum_threads_init(void);
 int dt_spectrum_count(const char *path, const dt_read_opts *opts,
                       long *count, dt_err *e);
 
+/* A spectrum file read from the disk once, then counted and read as often
+ * as needed (every row of a table, a spectrum fitted for several doublets):
+ * one open, one fstat, the reads of its bytes, one close.
+ *
+ * dt_spectrum_file_load takes a path as dt_spectrum_read does ("FILE[N]",
+ * "FILE[NAME]" included) and reads the bytes of FILE when it is a regular
+ * file of at most DT_SPECTRUM_LOAD_MAX bytes.  Anything else -- a missing
+ * or unreadable file, a directory, a named pipe, a device, a larger file
+ * -- is kept by name, and counting and reading it go to the disk readers.
+ * It fails only when out of memory (DT_ENOMEM); whatever is wrong with the
+ * file is said by the count or the read.
+ *
+ * dt_spectrum_file_count and dt_spectrum_file_read give what
+ * dt_spectrum_count and dt_spectrum_read give for the path: the same
+ * count, the same spectrum, and the same error word for word (an error
+ * met in the bytes is the disk reader's to word: it is asked again, since
+ * cfitsio words some damage differently on disk and in memory). */
+typedef struct dt_spectrum_file dt_spectrum_file;
+
+#define DT_SPECTRUM_LOAD_MAX (256u * 1024u * 1024u) /* bytes; larger stay on disk */
+
+int dt_spectrum_file_load(const char *path, dt_spectrum_file **out, dt_err *e);
+int dt_spectrum_file_count(const dt_spectrum_file *f, const dt_read_opts *opts, long *count,
+                           dt_err *e);
+int dt_spectrum_file_read(const dt_spectrum_file *f, const dt_read_opts *opts,
+                          dt_spectrum **out, dt_err *e);
+/* Bytes held in memory (0 for an empty file); -1 when kept by name. */
+long long dt_spectrum_file_bytes(const dt_spectrum_file *f);
+void dt_spectrum_file_free(dt_spectrum_file *f);
+
 /* Arrays of n pixels, zeroed; NULL when out of memory. */
 dt_spectrum *dt_spectrum_alloc(size_t n);
 void dt_spectrum_free(dt_spectrum *s);

@@ -132,16 +132,16 @@ static void autofit_opts_of(const config *c, dt_autofit_opts *fo) {
   for (size_t k = 0; k < c->nseed; k++) fo->seed_v[k] = c->seed_v[k];
 }
 
-/* Row row of the input t, read with the run's options and the list line's
- * own (air, position, frame). */
-static int read_target(const config *c, const dt_target_spec *t, long row, dt_spectrum **s,
-                       dt_err *e) {
+/* Row row of the input t (its file f, loaded once), read with the run's
+ * options and the list line's own (air, position, frame). */
+static int read_target(const config *c, const dt_target_spec *t, const dt_spectrum_file *f,
+                       long row, dt_spectrum **s, dt_err *e) {
   dt_read_opts ro = c->ropts;
   ro.row = row;
   if (t->air) ro.air = 1;
   if (t->has_pos) ro.has_pos = 1, ro.ra = t->ra, ro.dec = t->dec;
   if (t->frame != DT_FRAME_UNSET) ro.in_frame = t->frame;
-  return dt_spectrum_read(t->path, &ro, s, e);
+  return dt_spectrum_file_read(f, &ro, s, e);
 }
 
 /* An analysis of s: the worker's own, kept from the last spectrum, or a
@@ -157,14 +157,15 @@ static void analysis_done(run *r, dt_analysis *an) {
   if (!(r->an_slot && *r->an_slot == an)) dt_analysis_free(an);
 }
 
-static void fit_one_doublet(run *r, const dt_target_spec *t, long row, const char *dname) {
+static void fit_one_doublet(run *r, const dt_target_spec *t, const dt_spectrum_file *f, long row,
+                            const char *dname) {
   const config *c = r->cfg;
   dt_err e;
   dt_err_clear(&e);
   double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
   dt_spectrum *s = NULL;
   dt_analysis *an = NULL;
-  int st = read_target(c, t, row, &s, &e);
+  int st = read_target(c, t, f, row, &s, &e);
   const dt_doublet *d = NULL;
   if (st == DT_OK) {
     d = dt_atomic_find(r->atomic, dname);
@@ -263,7 +264,7 @@ static size_t doublet_names(const config *c, const dt_target_spec *t,
  * the spectrum covers leads (its settings, systems and window), the
  * first pass finds the components in the strongest, the rows come per
  * doublet in the order given. */
-static void fit_joint(run *r, const dt_target_spec *t, long row,
+static void fit_joint(run *r, const dt_target_spec *t, const dt_spectrum_file *f, long row,
                       char names[DT_JOINT_MAX_SPECIES][16], size_t n) {
   const config *c = r->cfg;
   dt_err e;
@@ -273,7 +274,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
   r->lsf_label = NULL;
   r->lsf_fwhm = 0;
   dt_spectrum *s = NULL;
-  int st = read_target(c, t, row, &s, &e);
+  int st = read_target(c, t, f, row, &s, &e);
   /* the lead: the first known doublet the spectrum covers */
   size_t lead = n;
   dt_err first_e;
@@ -387,7 +388,7 @@ static void fit_joint(run *r, const dt_target_spec *t, long row,
 }
 
 /* Fit one spectrum: jointly, or each doublet on its own. */
-static void fit_one(run *r, const dt_target_spec *t, long row) {
+static void fit_one(run *r, const dt_target_spec *t, const dt_spectrum_file *f, long row) {
   const config *c = r->cfg;
   char names[DT_JOINT_MAX_SPECIES][16];
   dt_err e;
@@ -400,13 +401,13 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
     return;
   }
   if (c->joint) {
-    fit_joint(r, t, row, names, n);
+    fit_joint(r, t, f, row, names, n);
     return;
   }
   /* counted once per spectrum: fitted when every doublet was, failed
    * when any failed */
   long fitted = r->fitted, failed = r->failed, noconv = r->noconv, mw = r->mw_joined;
-  for (size_t q = 0; q < n; q++) fit_one_doublet(r, t, row, names[q]);
+  for (size_t q = 0; q < n; q++) fit_one_doublet(r, t, f, row, names[q]);
   if (n > 1) {
     int anyfail = r->failed > failed;
     r->failed = failed + anyfail;
@@ -416,27 +417,28 @@ static void fit_one(run *r, const dt_target_spec *t, long row) {
   }
 }
 
-/* One input: every row of a multi-row table (or --row), else the spectrum. */
+/* One input: every row of a multi-row table (or --row), else the spectrum.
+ * Its file is read from the disk once, for the count and every row. */
 void fit_input(run *r, const dt_target_spec *t) {
   const config *c = r->cfg;
   long row = c->row > 0 ? c->row : t->row;
-  if (row > 0) {
-    fit_one(r, t, row);
-    return;
-  }
   long count = 1;
   dt_err e;
-  if (dt_spectrum_count(t->path, &c->ropts, &count, &e) != DT_OK) {
+  dt_spectrum_file *f = NULL;
+  int st = dt_spectrum_file_load(t->path, &f, &e);
+  if (st == DT_OK && row <= 0) st = dt_spectrum_file_count(f, &c->ropts, &count, &e);
+  if (st != DT_OK) {
     const char *dname = c->doublet ? c->doublet : (t->doublet[0] ? t->doublet : "NaI");
     double vsys = c->have_vsys ? c->vsys : (t->has_vsys ? t->vsys : 0.0);
     fit_report(r, t->path, 0, &e);
     fit_row_failed(r, t, NULL, 0, dname, vsys, &e);
     r->failed++;
-    return;
+  } else if (row > 0) {
+    fit_one(r, t, f, row);
+  } else if (count <= 1) {
+    fit_one(r, t, f, 0);
+  } else {
+    for (long k = 1; k <= count; k++) fit_one(r, t, f, k);
   }
-  if (count <= 1) {
-    fit_one(r, t, 0);
-    return;
-  }
-  for (long k = 1; k <= count; k++) fit_one(r, t, k);
+  dt_spectrum_file_free(f);
 }

@@ -6,7 +6,9 @@
  * layout shares: wavelengths finite and strictly monotonic (a decreasing
  * spectrum is reversed), masks for non-finite flux and bad uncertainties, an
  * estimated sigma when the file has none, and at least one usable pixel.
- * dt_spectrum_read_mem does the same for a file's bytes already in memory.
+ * dt_spectrum_read_mem does the same for a file's bytes already in memory,
+ * and dt_spectrum_file_load reads a file's bytes once so that its spectra
+ * can be counted and read without going back to the disk.
  * The summaries used by `doubletty info` (median S/N, pixel size) live here
  * too. */
 #include "doubletty/spectrum.h"
@@ -466,23 +468,29 @@ int dt_spectrum_read(const char *path, const dt_read_opts *opts, dt_spectrum **o
   return rc;
 }
 
-int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
-                         dt_spectrum **out, dt_err *e) {
-  *out = NULL;
-  dt_err_clear(e);
+/* Read or count (count != NULL) the spectra in a file's bytes buf[0..len),
+ * sel being the "[ext]" of the file's name or NULL: the checks of prepare
+ * in the same order, then the readers on memory. */
+static int from_bytes(const void *buf, size_t len, const char *sel, const dt_read_opts *opts,
+                      dt_spectrum **out, long *count, dt_err *e) {
   if (!buf && len) return dt_err_set(e, DT_EINVAL, NULL, "no bytes to read");
   file_kind kind = KIND_TEXT;
   dt_hdu_sel hs = {0, NULL};
   int rc = sniff_bytes(buf, len < SNIFF_BYTES ? len : SNIFF_BYTES, &kind, e);
+  if (rc == DT_OK) rc = parse_sel(sel, &hs, e);
   if (rc == DT_OK) rc = check_opts(opts, kind, &hs, e);
-  if (rc == DT_OK) {
-    if (kind == KIND_FITS)
-      rc = dt_spectrum_read_fits_mem(buf, len, &hs, opts, out, e);
-    else if (opts && opts->row > 1)
-      rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
-    else
-      rc = dt_spectrum_read_text_mem(buf, len, opts, out, e);
+  if (rc != DT_OK) return rc;
+  if (count) {
+    if (kind == KIND_FITS) return dt_spectrum_count_fits_mem(buf, len, &hs, opts, count, e);
+    *count = 1;
+    return DT_OK;
   }
+  if (kind == KIND_FITS) {
+    rc = dt_spectrum_read_fits_mem(buf, len, &hs, opts, out, e);
+  } else if (opts && opts->row > 1)
+    rc = dt_err_set(e, DT_EINVAL, NULL, "row %ld: a text file holds one spectrum", opts->row);
+  else
+    rc = dt_spectrum_read_text_mem(buf, len, opts, out, e);
   if (rc == DT_OK && *out) rc = dt_spectrum_settle_frame(*out, opts, e);
   if (rc == DT_OK && *out && opts && opts->lsf_table) rc = dt_lsf_table_apply(opts->lsf_table, *out, e);
   if (rc != DT_OK && *out) {
@@ -490,6 +498,13 @@ int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
     *out = NULL;
   }
   return rc;
+}
+
+int dt_spectrum_read_mem(const void *buf, size_t len, const dt_read_opts *opts,
+                         dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  dt_err_clear(e);
+  return from_bytes(buf, len, NULL, opts, out, NULL, e);
 }
 
 int dt_spectrum_count(const char *path, const dt_read_opts *opts, long *count, dt_err *e) {
@@ -507,4 +522,97 @@ int dt_spectrum_count(const char *path, const dt_read_opts *opts, long *count, d
   free(base);
   free(sel);
   return rc;
+}
+
+/* ---- a file read once, counted and read many times ---------------------- */
+
+struct dt_spectrum_file {
+  char *path;           /* as given, "[ext]" included */
+  char *sel;            /* the "[ext]" of it, or NULL */
+  unsigned char *bytes; /* the file's bytes, or NULL: kept by name (disk) */
+  size_t len;
+};
+
+/* The bytes of a regular file of at most DT_SPECTRUM_LOAD_MAX bytes, read
+ * with one open: NULL for anything else (not there, not regular, too big,
+ * a read error, out of memory), which the disk readers then report. */
+static unsigned char *load_bytes(const char *file, size_t *len) {
+  *len = 0;
+  int fd = open(file, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+  if (fd < 0) return NULL;
+  struct stat st;
+  unsigned char *buf = NULL;
+  if (fstat(fd, &st) == 0 && S_ISREG(st.st_mode) && st.st_size >= 0 &&
+      (unsigned long long)st.st_size <= DT_SPECTRUM_LOAD_MAX) {
+    size_t want = (size_t)st.st_size, got = 0;
+    buf = malloc(want ? want : 1);
+    /* the size at fstat, as the disk readers take it (a file cut meanwhile
+     * ends at its end) */
+    while (buf && got < want) {
+      ssize_t k = read(fd, buf + got, want - got);
+      if (k < 0 && errno == EINTR) continue;
+      if (k < 0) {
+        free(buf);
+        buf = NULL;
+      }
+      if (k <= 0) break;
+      got += (size_t)k;
+    }
+    *len = got;
+  }
+  close(fd);
+  return buf;
+}
+
+int dt_spectrum_file_load(const char *path, dt_spectrum_file **out, dt_err *e) {
+  dt_err_clear(e);
+  *out = NULL;
+  dt_spectrum_file *f = calloc(1, sizeof *f);
+  if (!f || !(f->path = strdup(path ? path : ""))) {
+    free(f);
+    return dt_err_set(e, DT_ENOMEM, NULL, "out of memory");
+  }
+  char *base = NULL, *sel = NULL;
+  if (path && *path && split_path(path, &base, &sel) == 0) {
+    f->bytes = load_bytes(base, &f->len);
+    f->sel = sel;
+    sel = NULL;
+  }
+  free(base);
+  free(sel);
+  *out = f;
+  return DT_OK;
+}
+
+long long dt_spectrum_file_bytes(const dt_spectrum_file *f) {
+  return f && f->bytes ? (long long)f->len : -1;
+}
+
+int dt_spectrum_file_count(const dt_spectrum_file *f, const dt_read_opts *opts, long *count,
+                           dt_err *e) {
+  *count = 0;
+  if (f->bytes) {
+    dt_err_clear(e);
+    if (from_bytes(f->bytes, f->len, f->sel, opts, NULL, count, e) == DT_OK) return DT_OK;
+  }
+  /* kept by name, or an error: the disk reader's words for it */
+  return dt_spectrum_count(f->path, opts, count, e);
+}
+
+int dt_spectrum_file_read(const dt_spectrum_file *f, const dt_read_opts *opts,
+                          dt_spectrum **out, dt_err *e) {
+  *out = NULL;
+  if (f->bytes) {
+    dt_err_clear(e);
+    if (from_bytes(f->bytes, f->len, f->sel, opts, out, NULL, e) == DT_OK) return DT_OK;
+  }
+  return dt_spectrum_read(f->path, opts, out, e);
+}
+
+void dt_spectrum_file_free(dt_spectrum_file *f) {
+  if (!f) return;
+  free(f->path);
+  free(f->sel);
+  free(f->bytes);
+  free(f);
 }

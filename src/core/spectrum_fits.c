@@ -13,7 +13,8 @@
  *     row (spectrum_fits_table.c).
  * Air wavelengths are converted to vacuum (dt_spectrum_settle_air); everything else that
  * all layouts share is done by dt_spectrum_finish (spectrum.c).  A file can
- * also be read from its bytes in memory (cfitsio's memory driver). */
+ * also be read, or its spectra counted, from its bytes in memory (cfitsio's
+ * memory driver). */
 #include <ctype.h>
 #include <limits.h>
 #include <math.h>
@@ -715,7 +716,7 @@ static int call_read(void *arg) {
 static int call_count(void *arg) {
   fits_call *a = arg;
   fctx c;
-  int rc = open_fits(a->file, NULL, 0, &c, a->e);
+  int rc = open_fits(a->file, a->buf, a->len, &c, a->e);
   if (rc) return rc;
   int hdu = 0, type = 0;
   rc = select_hdu(&c, a->sel, &hdu, &type, a->e);
@@ -752,5 +753,12 @@ int dt_spectrum_count_fits(const char *file, const dt_hdu_sel *sel, const dt_rea
                            long *count, dt_err *e) {
   *count = 0;
   fits_call a = {file, NULL, 0, sel, o, NULL, count, e};
+  return dt_num_with_c_locale(call_count, &a);
+}
+
+int dt_spectrum_count_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
+                               const dt_read_opts *o, long *count, dt_err *e) {
+  *count = 0;
+  fits_call a = {NULL, buf, len, sel, o, NULL, count, e};
   return dt_num_with_c_locale(call_count, &a);
 }

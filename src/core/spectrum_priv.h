@@ -31,6 +31,8 @@ int dt_spectrum_read_text(const char *file, const dt_read_opts *o, dt_spectrum *
  * those of the file readers on a file holding these bytes. */
 int dt_spectrum_read_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
                               const dt_read_opts *o, dt_spectrum **out, dt_err *e);
+int dt_spectrum_count_fits_mem(const void *buf, size_t len, const dt_hdu_sel *sel,
+                               const dt_read_opts *o, long *count, dt_err *e);
 int dt_spectrum_read_text_mem(const void *buf, size_t len, const dt_read_opts *o,
                               dt_spectrum **out, dt_err *e);
 
