@@ -15,6 +15,15 @@
 
 #include "analysis_priv.h"
 
+/* Another component lies within FWHM + 2 (b_k + b_j) of component k. */
+static int blended(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  for (size_t q = 0; q < r->ncomp; q++)
+    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 1;
+  return 0;
+}
+
 /* Component k is in the linear regime, where chi2 is a parabola in log N
  * and the covariance error is the profile-likelihood interval (the
  * profile search would accept its first probe, at two refits) -- unless a
@@ -34,9 +43,7 @@ static int linear_regime(const dt_analysis *a, const dt_analysis_out *out, size_
   double e = r->err[k].logN;
   if (!(e > 0) || !(e < LINEAR_ERR) || out->saturated || out->fit_info.at_bound[k]) return 0;
   if (!(dt_cog_tau0(&a->d->line[0], c->logN, c->b) < LINEAR_TAU0)) return 0;
-  for (size_t q = 0; q < r->ncomp; q++)
-    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 0;
-  return 1;
+  return !blended(a, out, k);
 }
 
 /* The fit moves to a lower chi2 the profile search found (profile.h):
@@ -61,22 +68,22 @@ static int move_fit(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out,
   return moved;
 }
 
-/* Component k may sit in the wrong valley of chi2 (profile.h): saturated
- * at its fitted b (tau0 > 1), unresolved (b below the LSF's FWHM), or
- * blended (another component within FWHM + 2 (b_k + b_j)).  With
+/* Component k may sit in the wrong valley of chi2 in b (two_b_valleys):
+ * saturated at its fitted b (tau0 > 1) or unresolved (b below the LSF's
+ * FWHM).  It is at risk so, or blended (another component within FWHM +
+ * 2 (b_k + b_j)).  With
  * opts.outer_intervals its profile then starts with refits from the other
  * valleys (DT_PROFILE_DEEP), and in the linear regime two refits check
  * for a second valley (dt_profile_other_valley).  Without, the search
  * relies on the refits of the points that would end the interval: about
  * a third of the refits, for the first pass over a survey. */
+static int two_b_valleys(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
+  const dt_component *c = &out->fit.comp[k];
+  return out->saturated || dt_cog_tau0(&a->d->line[0], c->logN, c->b) > 1.0 || c->b < a->fwhm_kms;
+}
+
 static int at_risk(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
-  const dt_fit_result *r = &out->fit;
-  const dt_component *c = &r->comp[k];
-  if (out->saturated || dt_cog_tau0(&a->d->line[0], c->logN, c->b) > 1.0 || c->b < a->fwhm_kms)
-    return 1;
-  for (size_t q = 0; q < r->ncomp; q++)
-    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b)) return 1;
-  return 0;
+  return two_b_valleys(a, out, k) || blended(a, out, k);
 }
 
 /* The scan's shortcuts for component k (profile.h): DT_PROFILE_ISOLATED
@@ -90,10 +97,7 @@ static unsigned scan_flags(const dt_analysis *a, const dt_analysis_out *out, siz
                            int tie_b) {
   const dt_fit_result *r = &out->fit;
   const dt_component *c = &r->comp[k];
-  unsigned fl = DT_PROFILE_ISOLATED;
-  for (size_t q = 0; q < r->ncomp; q++)
-    if (q != k && fabs(r->comp[q].v - c->v) < a->fwhm_kms + 2.0 * (c->b + r->comp[q].b))
-      fl = 0;
+  unsigned fl = blended(a, out, k) ? 0 : DT_PROFILE_ISOLATED;
   double be = r->err[k].b, binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
   if (!tie_b && !(out->fit_info.at_bound[k] & DT_FREEZE_B) && be > 0 &&
       be < RESOLVED_BERR * c->b && c->b - 2.0 * be > binst)
@@ -234,8 +238,17 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
       dt_fit_result lower;
       lower.status = DT_EINVAL;
       unsigned fl = scan_flags(a, out, k, p.tie_b) | DT_PROFILE_QUICK;
+      /* the thorough search starts from the other valleys where at risk;
+       * so does the calibrated one for a lone line whose valley in b may
+       * lie elsewhere (its thresholds hold around the best fit only: a fit
+       * left in the other valley covers too often) -- not in a blend,
+       * whose own fit covers well and whose split starts over-cover
+       * (README, Measurements) */
       if (a->opts.outer_intervals)
         fl |= DT_PROFILE_OUTER | (at_risk(a, out, k) ? DT_PROFILE_DEEP : 0);
+      else if (a->opts.calibrated && budget == 0 && two_b_valleys(a, out, k) &&
+               !blended(a, out, k))
+        fl |= DT_PROFILE_DEEP;
       dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);
       if (budget == 0 && pi->moved && moves < MAX_MOVES && lower.status == DT_OK) {
         dt_profile_interval found = *pi;
