@@ -239,16 +239,16 @@ grep -E '^(vpq01|vpq04|vpg05)' "$TMP/dmo/targets.list" | sed "s|^|$TMP/dmo/|" >"
 "$DT" fit --list "$TMP/three.list" -o "$TMP/p3.csv" 2>/dev/null
 "$DT" fit --list "$TMP/three.list" --intervals calibrated -o "$TMP/c3.csv" 2>/dev/null
 check "--intervals calibrated: the settings say so" grep -q '^# intervals=calibrated$' "$TMP/c3.csv"
-cols() { # FILE: logN and its interval per row
+cols() { # FILE: name, system, logN, its interval and chi2_red per row
   awk -F, '/^#/ { next } !h++ { for (i = 1; i <= NF; i++) c[$i] = i; next }
-    { print $c["logN"], $c["logN_err_lo"], $c["logN_err_hi"] }' "$1"
+    { print $c["name"] "|" $c["system"] "|" $c["logN"] "|" $c["logN_err_lo"] "|" $c["logN_err_hi"] "|" $c["chi2_red"] }' "$1"
 }
 cols "$TMP/p3.csv" >"$TMP/p3.cols"
 cols "$TMP/c3.csv" >"$TMP/c3.cols"
-cut -d' ' -f1 "$TMP/p3.cols" >"$TMP/p3.n"
-cut -d' ' -f1 "$TMP/c3.cols" >"$TMP/c3.n"
-check "... the same columns (fits) as the profile's" sh -c "[ -s '$TMP/p3.n' ] && cmp -s '$TMP/p3.n' '$TMP/c3.n'"
-check "... and some interval calibrated away from dchi2 = 1" sh -c "! cmp -s '$TMP/p3.cols' '$TMP/c3.cols'"
+# its search refits a lone saturated or unresolved line from the other
+# valleys first, and a lower chi2 found there moves the fit
+check "... the same rows, each the profile's fit or one of lower chi2" sh -c "[ -s '$TMP/p3.cols' ] && paste -d'|' '$TMP/p3.cols' '$TMP/c3.cols' | awk -F'|' '{ if (\$1 != \$7 || \$2 != \$8) bad++; else if (\$3 != \$9 && !(\$12 < \$6)) bad++ } END { exit !(NR > 0 && bad == 0) }'"
+check "... and some interval calibrated away from dchi2 = 1" sh -c "paste -d'|' '$TMP/p3.cols' '$TMP/c3.cols' | awk -F'|' '\$3 == \$9 && (\$4 != \$10 || \$5 != \$11) { f = 1 } END { exit !f }'"
 expect_fail "--intervals of another kind" "not profile, calibrated or covariance" "$DT" fit --intervals exact "$TMP/dmo/vpq01.fits"
 
 finish
