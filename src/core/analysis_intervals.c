@@ -137,6 +137,82 @@ static int moved_right(double old, double nw, int dir, int out) {
   return out ? n >= o : n <= o;
 }
 
+/* The curve-of-growth companion of component k (common practice: a
+ * saturated or unresolved line's equivalent width is met both by a narrow
+ * line with a large column -- on the flat or damped part of the curve of
+ * growth -- and by a broad one with a small column, and at R of a few
+ * thousand the two can fit about equally): for a line fitted narrower than
+ * the line-spread function (b below its FWHM / (2 sqrt(ln 2))), b
+ * COG_SPREAD times broader with the column that keeps the stronger line's
+ * W (cog.h).  (The other way, a broad fit's narrow companion, is the
+ * profile scan's: its refits from the narrow valley at the ends.)  The
+ * whole problem is refitted from there (COG_PEEK_ITER iterations first, the
+ * rest -- COG_MAX_ITER more -- only when chi2 is then within COG_PEEK_DCHI2
+ * of the fit's and b has not come back within 20% of the fit's).  Returns
+ * 1 when that found a lower chi2 (*lower, the fit to move to); else 0, with
+ * the companion's log N_k, its chi2 above the fit's and its covariance
+ * error in cx, cd, ce (cd INFINITY: none). */
+#define COG_SPREAD 5.0
+#define COG_PEEK_ITER 6
+#define COG_PEEK_DCHI2 25.0
+#define COG_MAX_ITER 30       /* iterations of the rest */
+#define COG_SAME_VALLEY 0.2   /* in ln b */
+static int companion(dt_analysis *a, const dt_fit_problem *p0, const dt_analysis_out *out,
+                     size_t k, dt_fit_result *lower, double *cx, double *cd, double *ce) {
+  const dt_fit_result *r = &out->fit;
+  const dt_component *c = &r->comp[k];
+  const dt_line *line = &a->d->line[0];
+  *cd = INFINITY;
+  double binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
+  if (!(c->b < binst)) return 0;
+  double b2 = fmin(c->b * COG_SPREAD, DT_FIT_B_MAX / 1.05);
+  double n2 = dt_cog_logN(line, dt_cog_W(line, c->logN, c->b), b2);
+  if (!isfinite(n2) || !(n2 > DT_FIT_LOGN_MIN) || !(n2 < DT_FIT_LOGN_MAX)) return 0;
+  dt_component start[DT_MAX_COMP];
+  memcpy(start, r->comp, r->ncomp * sizeof start[0]);
+  start[k].b = b2;
+  start[k].logN = n2;
+  dt_fit_problem q = *p0;
+  q.comp = start;
+  q.cont_init = r->ncont ? r->cont_coef : NULL;
+  q.single_run = 1;
+  q.time_limit = -1;
+  q.max_iter = COG_PEEK_ITER;
+  int st = dt_fit_run(a->fw, &q, lower, NULL);
+  /* back in the fit's own valley (b within 20%): it would end there */
+  if (fabs(log(lower->comp[k].b / c->b)) < COG_SAME_VALLEY) return 0;
+  if (st == DT_ENOCONV && lower->chi2 < r->chi2 + COG_PEEK_DCHI2) {
+    memcpy(start, lower->comp, r->ncomp * sizeof start[0]);
+    double cont[DT_MAX_CONT];
+    if (r->ncont) memcpy(cont, lower->cont_coef, r->ncont * sizeof cont[0]);
+    q.cont_init = r->ncont ? cont : NULL;
+    q.max_iter = COG_MAX_ITER;
+    st = dt_fit_run(a->fw, &q, lower, NULL);
+  }
+  if ((st != DT_OK && st != DT_ENOCONV) || !isfinite(lower->chi2) || lower->ncomp != r->ncomp)
+    return 0;
+  /* not a degenerate solution held at a bound of b */
+  if (lower->comp[k].b < 1.1 * DT_FIT_B_MIN || lower->comp[k].b > DT_FIT_B_MAX / 1.1) return 0;
+  lower->status = DT_OK;
+  if (lower->chi2 < r->chi2 - DT_PROFILE_MOVE) return 1;
+  if (fabs(lower->comp[k].logN - c->logN) > 0.1) {   /* another valley, not this one */
+    *cx = lower->comp[k].logN;
+    *cd = fmax(lower->chi2 - r->chi2, 0.0);
+    *ce = lower->err[k].logN > 0 ? lower->err[k].logN : 0.0;
+  }
+  return 0;
+}
+
+/* An interval's ends (NaN: none, left open) widened to cover the
+ * companion's valley (log N x, chi2 d above the fit's, error e) where it
+ * lies below the threshold: x -+ e sqrt(threshold - d). */
+static void cover_companion(double *lo, double *hi, double x, double d, double e, double t) {
+  if (!(d < t)) return;
+  double h = e * sqrt(t - d);
+  if (isfinite(*lo)) *lo = fmin(*lo, x - h);
+  if (isfinite(*hi)) *hi = fmax(*hi, x + h);
+}
+
 /* The profile intervals (not the covariance's: no refits) of the
  * components whose profile is not a parabola, each end again at its own
  * calibrated threshold (calib.h): the test of log N_k = the end, its
@@ -220,8 +296,17 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
       dt_profile_interval *pi = &out->logN_int[k];
       double h = r->err[k].logN * sqrt(dchi2);
       double h3 = dchi2 < 9.0 ? 3.0 * h : h;
+      double t3 = dchi2 < 9.0 ? 9.0 * dchi2 : dchi2;
+      double cx = NAN, cd = INFINITY, ce = 0;
+      dt_fit_result lower;
+      if (budget == 0 && !a->opts.covariance_only && two_b_valleys(a, out, k) &&
+          !blended(a, out, k) && companion(a, &p, out, k, &lower, &cx, &cd, &ce) &&
+          moves < MAX_MOVES && move_fit(a, j, out, &lower)) {
+        again = 1;   /* a better fit in the other valley: all again */
+        break;
+      }
       if (a->opts.covariance_only ||
-          (linear_regime(a, out, k) &&
+          (cd >= t3 && linear_regime(a, out, k) &&
            !(a->opts.outer_intervals && at_risk(a, out, k) &&
              dt_profile_other_valley(a->fw, &p, r, k, h3, dchi2 < 9.0 ? 9.0 * dchi2 : dchi2)))) {
         /* the covariance interval is the profile's here (see above), or
@@ -235,7 +320,6 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
         pi->incomplete3 = !a->opts.outer_intervals;
         continue;
       }
-      dt_fit_result lower;
       lower.status = DT_EINVAL;
       unsigned fl = scan_flags(a, out, k, p.tie_b) | DT_PROFILE_QUICK;
       /* the thorough search starts from the other valleys where at risk;
@@ -250,6 +334,14 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
                !blended(a, out, k))
         fl |= DT_PROFILE_DEEP;
       dt_profile_logN(a->fw, &p, r, k, dchi2, budget, fl, pi, &lower);
+      if (!pi->incomplete && !pi->moved) {
+        cover_companion(&pi->lo, &pi->hi, cx, cd, ce, dchi2);
+        pi->flag = ends_flag(pi->lo, pi->hi);
+        if (!pi->incomplete3) {
+          cover_companion(&pi->lo3, &pi->hi3, cx, cd, ce, t3);
+          pi->flag3 = ends_flag(pi->lo3, pi->hi3);
+        }
+      }
       if (budget == 0 && pi->moved && moves < MAX_MOVES && lower.status == DT_OK) {
         dt_profile_interval found = *pi;
         if (move_fit(a, j, out, &lower)) {
