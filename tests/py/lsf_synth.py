@@ -22,27 +22,13 @@ import sys
 
 import numpy as np
 from astropy.io import fits
-from scipy.special import erf, wofz
+from scipy.special import erf
 
-C_KMS = 299792.458                 # [km/s], exact (SI)
-C_CGS = 2.99792458e10
-SIGMA0 = 0.02654008850             # pi e^2/(m_e c) [cm^2/s] (from memory, CODATA)
-# Na I D2, D1: vacuum wavelength [A], f, Gamma [1/s] (Morton 2003, ApJS 149, 205)
-NAI = [(5891.5833, 0.6408, 6.16e7), (5897.5581, 0.3201, 6.14e7)]
+from nai_tau import C_KMS, NAI, tau
+
 LOGN, B, V = 12.4, 6.0, 4.0       # the component (invented, for the test)
 R0, R1, L0, L1 = 3000.0, 9000.0, 5850.0, 5940.0
 ERR = 0.002
-
-
-def tau(lam):
-    t = np.zeros_like(lam)
-    for lam0, f, gam in NAI:
-        dnu_d = B * 1e5 / (lam0 * 1e-8)
-        lam_rest = lam / (1 + V / C_KMS)
-        x = (C_CGS / (lam_rest * 1e-8) - C_CGS / (lam0 * 1e-8)) / dnu_d
-        a = gam / (4 * np.pi * dnu_d)
-        t += 10 ** LOGN * SIGMA0 * f * wofz(x + 1j * a).real / (np.sqrt(np.pi) * dnu_d)
-    return t
 
 
 def observe(wave, fwhm):
@@ -56,7 +42,7 @@ def observe(wave, fwhm):
     s = fwhm / (2 * np.sqrt(2 * np.log(2)))
     dv = 0.2
     g = np.arange(e[0] - 8 * s.max(), e[-1] + 8 * s.max(), dv)
-    dep = -np.expm1(-tau(np.exp(g / C_KMS)))
+    dep = -np.expm1(-tau(np.exp(g / C_KMS), [(LOGN, B, V)]))
     phi = lambda x: 0.5 * (1 + erf(x / np.sqrt(2)))
     out = np.empty(len(y))
     for i in range(len(y)):
