@@ -2,9 +2,11 @@
  * tests. */
 #ifndef DT_TEST_FIXTURES_H
 #define DT_TEST_FIXTURES_H
+#include <dirent.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
@@ -29,6 +31,25 @@ static inline dt_doublet nai(void) {
   d.line[1].gamma = 6.14e7;
   strcpy(d.source, "Morton (2003) ApJS 149, 205");
   return d;
+}
+
+/* DIR/NAME, in one of four buffers used in turn (so one call may take
+ * the results of up to four). */
+static inline const char *dir_path(const char *dir, const char *name) {
+  static char p[4][256];
+  static int k;
+  k = (k + 1) % 4;
+  snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
+  return p[k];
+}
+
+/* Remove the files of a flat temporary directory, then the directory. */
+static inline void remove_dir(const char *dir) {
+  DIR *d = opendir(dir);
+  for (struct dirent *de; d && (de = readdir(d));)
+    if (de->d_name[0] != '.') remove(dir_path(dir, de->d_name));
+  if (d) closedir(d);
+  rmdir(dir);
 }
 
 /* The bytes of a file (NUL-terminated, *n without the NUL); NULL if it

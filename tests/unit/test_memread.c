@@ -20,19 +20,14 @@
 #include "doubletty/judge.h"
 #include "doubletty/spectrum.h"
 #include "fixtures.h"
+#include "fixtures_fits.h"
 #include "harness.h"
 
 #define NPIX 40
 
 static char dir[64];
 
-static const char *tpath(const char *name) {
-  static char p[4][128];
-  static int k;
-  k = (k + 1) % 4;
-  snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
-  return p[k];
-}
+#define tpath(name) dir_path(dir, (name))
 
 /* A 1-D image with an uncertainty image and a mask image. */
 static int write_image(const char *path) {
@@ -68,31 +63,6 @@ static int write_image(const char *path) {
   return st;
 }
 
-/* A binary table holding three spectra, one per row. */
-static int write_rows(const char *path) {
-  fitsfile *f;
-  int st = 0;
-  char *ttype[] = {"WAVE", "FLUX", "IVAR"};
-  char *tform[] = {"40D", "40E", "40E"};
-  char *tunit[] = {"Angstrom", "", ""};
-  remove(path);
-  fits_create_file(&f, path, &st);
-  fits_create_tbl(f, BINARY_TBL, 3, 3, ttype, tform, tunit, "ROWS", &st);
-  for (long r = 1; r <= 3; r++) {
-    double w[NPIX];
-    float fl[NPIX], iv[NPIX];
-    for (int i = 0; i < NPIX; i++) {
-      w[i] = 3930.0 + 0.5 * i;
-      fl[i] = (float)(r + 0.01 * i);
-      iv[i] = i == 3 && r == 2 ? 0.0f : 400.0f;
-    }
-    fits_write_col(f, TDOUBLE, 1, r, 1, NPIX, w, &st);
-    fits_write_col(f, TFLOAT, 2, r, 1, NPIX, fl, &st);
-    fits_write_col(f, TFLOAT, 3, r, 1, NPIX, iv, &st);
-  }
-  fits_close_file(f, &st);
-  return st;
-}
 
 /* Two error texts alike up to cfitsio's own explanation. */
 static int same_what(const char *a, const char *b) {
@@ -101,19 +71,6 @@ static int same_what(const char *a, const char *b) {
   return la == lb && !memcmp(a, b, la) && !pa == !pb;
 }
 
-static int same_array(const void *a, const void *b, size_t n) { return !memcmp(a, b, n); }
-
-static int same_spectrum(const dt_spectrum *a, const dt_spectrum *b) {
-  if (!a || !b) return 0;
-  return a->n == b->n && same_array(a->wave, b->wave, a->n * sizeof(double)) &&
-         same_array(a->flux, b->flux, a->n * sizeof(double)) &&
-         same_array(a->sigma, b->sigma, a->n * sizeof(double)) &&
-         same_array(a->mask, b->mask, a->n) && a->has_sigma == b->has_sigma &&
-         a->resolution == b->resolution && !strcmp(a->layout, b->layout) && a->hdu == b->hdu &&
-         a->row == b->row && a->air == b->air && !strcmp(a->object, b->object) &&
-         !strcmp(a->extname, b->extname) && !strcmp(a->sigma_from, b->sigma_from) &&
-         !strcmp(a->unit, b->unit);
-}
 
 /* Read path and its bytes with the same options; compare.  Returns the
  * file reader's status; *out (if non-NULL) gets the file's spectrum. */
@@ -125,7 +82,8 @@ static int both(const char *label, const char *path, const dt_read_opts *o, dt_s
   int rf = dt_spectrum_read(path, o, &sf, &ef);
   int rm = dt_spectrum_read_mem(buf, len, o, &sm, &em);
   if (rf == DT_OK) {
-    CHECK(rm == DT_OK && same_spectrum(sf, sm), "%s: memory and file give the same spectrum", label);
+    CHECK(rm == DT_OK && same_spectrum_data(sf, sm, 0),
+          "%s: memory and file give the same spectrum", label);
   } else {
     CHECK(rm == rf && !sm && !strcmp(ef.where, em.where) && same_what(ef.what, em.what),
           "%s: memory and file give the same error (%s: %s)", label, ef.where, ef.what);
@@ -144,7 +102,7 @@ static int both(const char *label, const char *path, const dt_read_opts *o, dt_s
 static void test_spectra(void) {
   const char *img = tpath("image.fits"), *rows = tpath("rows.fits");
   CHECK(write_image(img) == 0, "image written");
-  CHECK(write_rows(rows) == 0, "table written");
+  CHECK(write_row_table(rows, 3, NPIX, 3930.0) == 0, "table written");
 
   dt_spectrum *s = NULL;
   CHECK(both("image", img, NULL, &s) == DT_OK, "image read");
@@ -353,10 +311,6 @@ int main(void) {
   if (!mkdtemp(dir)) return 1;
   test_spectra();
   test_sessions();
-  DIR *d = opendir(dir);
-  for (struct dirent *de; d && (de = readdir(d));)
-    if (de->d_name[0] != '.') remove(tpath(de->d_name));
-  if (d) closedir(d);
-  rmdir(dir);
+  remove_dir(dir);
   return dt_test_done();
 }
