@@ -145,8 +145,10 @@ static int moved_right(double old, double nw, int dir, int out) {
  * the line-spread function (b below its FWHM / (2 sqrt(ln 2))), b
  * COG_SPREAD times broader with the column that keeps the stronger line's
  * W (cog.h).  (The other way, a broad fit's narrow companion, is the
- * profile scan's: its refits from the narrow valley at the ends.)  The
- * whole problem is refitted from there (COG_PEEK_ITER iterations first, the
+ * profile scan's: its refits from the narrow valley at the ends.)  Unless
+ * its chi2 there, the profile alone, lies COG_START_DCHI2 or more above
+ * the fit's (a resolved line, whose shape tells b), the whole problem is
+ * refitted from there (COG_PEEK_ITER iterations first, the
  * rest -- COG_MAX_ITER more -- only when chi2 is then within COG_PEEK_DCHI2
  * of the fit's and b has not come back within 20% of the fit's).  Returns
  * 1 when that found a lower chi2 (*lower, the fit to move to); else 0, with
@@ -155,6 +157,7 @@ static int moved_right(double old, double nw, int dir, int out) {
 #define COG_SPREAD 5.0
 #define COG_PEEK_ITER 6
 #define COG_PEEK_DCHI2 25.0
+#define COG_START_DCHI2 100.0 /* its start at most this far above the fit's */
 #define COG_MAX_ITER 30       /* iterations of the rest */
 #define COG_SAME_VALLEY 0.2   /* in ln b */
 static int companion(dt_analysis *a, const dt_fit_problem *p0, const dt_analysis_out *out,
@@ -177,6 +180,13 @@ static int companion(dt_analysis *a, const dt_fit_problem *p0, const dt_analysis
   q.cont_init = r->ncont ? r->cont_coef : NULL;
   q.single_run = 1;
   q.time_limit = -1;
+  /* a companion that starts this far above fits another profile (a
+   * resolved line's): no refit */
+  double c0;
+  size_t npix;
+  if (dt_fit_chi2(a->fw, &q, start, q.cont_init, NULL, &c0, &npix) != DT_OK ||
+      !(c0 < r->chi2 + COG_START_DCHI2))
+    return 0;
   q.max_iter = COG_PEEK_ITER;
   int st = dt_fit_run(a->fw, &q, lower, NULL);
   /* back in the fit's own valley (b within 20%): it would end there */
