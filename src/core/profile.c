@@ -22,6 +22,7 @@
 #define PROFILE_PEEK_ITER 6  /* of which the first few: it goes on only when
                                 its chi2 is then within PEEK_DCHI2 */
 #define PEEK_DCHI2 25.0
+#define PEEK_START_DCHI2 100.0
 #define PROFILE_TIME 0.1     /* seconds of one refit */
 #define PROFILE_MAX_FITS 240 /* refits of one interval at most, for windows of up
                                 to PROFILE_PIX pixels (larger ones: in
@@ -134,6 +135,19 @@ static int same_valley(const prof *P, const dt_component *sol, const dt_componen
  * at the same point, or NULL: that refit would end there too). */
 static double far_refit(prof *P, const dt_component *comp, const double *cont, double reach,
                         const dt_component *near, dt_component *sol, double *csol) {
+  if (P->quick) {
+    /* DT_PROFILE_QUICK: a start whose chi2 alone lies PEEK_START_DCHI2
+     * beyond the reach is not refitted (it ends far above, or back in
+     * the valley of near) */
+    double c0;
+    size_t npix;
+    if (dt_fit_chi2(P->w, &P->q, comp, P->r->ncont ? cont : NULL, NULL, &c0, &npix) == DT_OK &&
+        !(c0 < P->chi0 + reach + PEEK_START_DCHI2)) {
+      memcpy(sol, comp, P->r->ncomp * sizeof sol[0]);
+      if (P->r->ncont) memcpy(csol, cont, P->r->ncont * sizeof csol[0]);
+      return c0;
+    }
+  }
   double c = refit(P, comp, cont, PROFILE_PEEK_ITER, sol, csol);
   if (!(c < P->chi0 + reach + PEEK_DCHI2)) return c;
   if (near && isfinite(c) && same_valley(P, sol, near)) return c;
