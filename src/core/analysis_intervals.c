@@ -313,6 +313,7 @@ static int intervals(dt_analysis *a, const dt_judgement *j, dt_analysis_out *out
           !blended(a, out, k) && companion(a, &p, out, k, &lower, &cx, &cd, &ce) &&
           moves < MAX_MOVES && move_fit(a, j, out, &lower)) {
         again = 1;   /* a better fit in the other valley: all again */
+        keep = -1;
         break;
       }
       if (a->opts.covariance_only ||
