@@ -14,6 +14,7 @@
 
 #include "doubletty/atomic.h"
 #include "doubletty/num.h"
+#include "doubletty/session.h"
 
 /* Na I D: vacuum wavelengths [A], oscillator strengths and damping
  * constants [s^-1] from Morton (2003, ApJS 149, 205). */
@@ -31,6 +32,14 @@ static inline dt_doublet nai(void) {
   d.line[1].gamma = 6.14e7;
   strcpy(d.source, "Morton (2003) ApJS 149, 205");
   return d;
+}
+
+/* A session target for path at R 20 000, window -400..400 km/s. */
+static inline void session_target_r20000(dt_session_target *t, const char *path) {
+  dt_session_target_init(t, path, path, 0);
+  t->initial.resolution = 20000;
+  t->initial.vlo = -400;
+  t->initial.vhi = 400;
 }
 
 /* DIR/NAME, in one of four buffers used in turn (so one call may take

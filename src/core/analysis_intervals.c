@@ -15,6 +15,10 @@
 
 #include "analysis_priv.h"
 
+/* The line-spread function's Doppler parameter: a Gaussian of the
+ * analysis' FWHM is exp(-(v / b)^2) with b = FWHM / (2 sqrt(ln 2)). */
+static double lsf_b(const dt_analysis *a) { return a->fwhm_kms / (2.0 * sqrt(log(2.0))); }
+
 /* Another component lies within FWHM + 2 (b_k + b_j) of component k. */
 static int blended(const dt_analysis *a, const dt_analysis_out *out, size_t k) {
   const dt_fit_result *r = &out->fit;
@@ -98,7 +102,7 @@ static unsigned scan_flags(const dt_analysis *a, const dt_analysis_out *out, siz
   const dt_fit_result *r = &out->fit;
   const dt_component *c = &r->comp[k];
   unsigned fl = blended(a, out, k) ? 0 : DT_PROFILE_ISOLATED;
-  double be = r->err[k].b, binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
+  double be = r->err[k].b, binst = lsf_b(a);
   if (!tie_b && !(out->fit_info.at_bound[k] & DT_FREEZE_B) && be > 0 &&
       be < RESOLVED_BERR * c->b && c->b - 2.0 * be > binst)
     fl |= DT_PROFILE_RESOLVED;
@@ -166,8 +170,7 @@ static int companion(dt_analysis *a, const dt_fit_problem *p0, const dt_analysis
   const dt_component *c = &r->comp[k];
   const dt_line *line = &a->d->line[0];
   *cd = INFINITY;
-  double binst = a->fwhm_kms / (2.0 * sqrt(log(2.0)));
-  if (!(c->b < binst)) return 0;
+  if (!(c->b < lsf_b(a))) return 0;
   double b2 = fmin(c->b * COG_SPREAD, DT_FIT_B_MAX / 1.05);
   double n2 = dt_cog_logN(line, dt_cog_W(line, c->logN, c->b), b2);
   if (!isfinite(n2) || !(n2 > DT_FIT_LOGN_MIN) || !(n2 < DT_FIT_LOGN_MAX)) return 0;

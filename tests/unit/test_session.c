@@ -19,12 +19,6 @@
 /* Na I D, Morton (2003, ApJS 149, 205): the same values as fixtures.h. */
 static const char table[] = "NaI 5891.5833 0.6408 6.16e7 5897.5581 0.3201 6.14e7 Morton (2003) ApJS 149, 205\n";
 
-static void target(dt_session_target *t, const char *path) {
-  dt_session_target_init(t, path, path, 0);
-  t->initial.resolution = 20000;
-  t->initial.vlo = -400;
-  t->initial.vhi = 400;
-}
 
 int main(void) {
   char dir[] = "/tmp/dt-session-XXXXXX";
@@ -46,7 +40,7 @@ int main(void) {
 
   /* a first look: the first pass is shown, nothing is written */
   dt_session_target t;
-  target(&t, spec);
+  session_target_r20000(&t, spec);
   CHECK(dt_session_load(ss, &t) == DT_OK && ss->loaded, "spectrum loaded");
   CHECK(ss->pending && ss->has_suggest, "first pass pending, with a suggestion");
   CHECK(file_lines(sess) == n0, "looking writes nothing");
@@ -155,7 +149,7 @@ int main(void) {
           "two more session files");
     dt_session *s2 = dt_session_alloc(at, j2), *s3 = dt_session_alloc(at, j3);
     dt_session_target t2;
-    target(&t2, spec);
+    session_target_r20000(&t2, spec);
     t2.defer_intervals = 1;
     CHECK(s2 && s3 && dt_session_load(s2, &t2) == DT_OK && dt_session_load(s3, &t) == DT_OK, "loaded twice");
     CHECK(dt_session_add(s2, 150.0) == DT_OK && dt_session_add(s3, 150.0) == DT_OK, "a component added to both");
@@ -182,7 +176,7 @@ int main(void) {
   /* an unreadable spectrum: only 'unusable' or a note */
   CHECK(dt_journal_open(sess, DT_JOURNAL_RW, "tester", &jn, NULL) == DT_OK, "reopened for writing");
   ss = dt_session_alloc(at, jn);
-  target(&t, bad);
+  session_target_r20000(&t, bad);
   CHECK(dt_session_load(ss, &t) != DT_OK && !ss->loaded && ss->load_msg[0], "missing file: not loaded");
   CHECK(dt_session_verdict(ss, DT_VERDICT_DETECTED) == DT_EINVAL, "'detected' refused");
   CHECK(dt_session_add(ss, 0.0) != DT_OK || !ss->loaded, "no fit without data");

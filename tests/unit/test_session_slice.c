@@ -48,12 +48,6 @@ static char *records(const char *path) {
   return out;
 }
 
-static void target(dt_session_target *t, const char *path) {
-  dt_session_target_init(t, path, path, 0);
-  t->initial.resolution = 20000;
-  t->initial.vlo = -400;
-  t->initial.vhi = 400;
-}
 
 int main(void) {
   char dir[] = "/tmp/dt-slice-XXXXXX";
@@ -74,7 +68,7 @@ int main(void) {
   CHECK(sc && sr, "two sessions");
   sc->fit_slice = 1e-9; /* every refit is cut */
   dt_session_target t;
-  target(&t, spec);
+  session_target_r20000(&t, spec);
   CHECK(dt_session_load(sc, &t) == DT_OK && dt_session_load(sr, &t) == DT_OK, "the spectrum loaded in both");
   long n0 = file_lines(pc);
   size_t nc = sc->j.ncomp;
