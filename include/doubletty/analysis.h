@@ -98,6 +98,8 @@ typedef struct dt_analysis_opts {
   double time_limit;    /* fit time limit [s] (0: fit default) */
   double stall_chi2;    /* fit.h: a fit also ends when its last iterations
                            gain less chi2 than this (0: off; for trials) */
+  double give_up_bic;   /* fit.h: a trial ends once its BIC cannot come
+                           below this (0: off) */
   const dt_hyperfine *hyperfine; /* hyperfine components (hyperfine.h):
                            lines with a row in this table are modelled as
                            the sum of their components; NULL (default): every
@@ -251,6 +253,8 @@ double dt_analysis_time_limit(dt_analysis *a, double seconds);
 
 /* Set opts.stall_chi2 alone; returns the previous value. */
 double dt_analysis_stall(dt_analysis *a, double chi2);
+/* Set opts.give_up_bic alone; returns the previous value. */
+double dt_analysis_give_up(dt_analysis *a, double bic);
 
 /* The intervals dt_analysis_run computes itself unless opts.defer_intervals,
  * within its time (DT_ANALYSIS_RUN_INTERVAL_S), for out of the last run of

@@ -114,10 +114,26 @@ typedef struct dt_fit_problem {
                                     DT_FIT_STALL_ITERS iterations together
                                     lowered chi2 by less than this (a trial
                                     whose chi2 is all that is asked; 0: off) */
+  double give_up_bic;            /* > 0: a trial that must bring the BIC (chi2
+                                    + parameters x ln pixels) below this ends,
+                                    reported as stalled, once it clearly
+                                    cannot: well above it and far more than
+                                    its last gain and its Newton decrement
+                                    (the chi2 a Gauss-Newton step would still
+                                    gain) away; 0: off */
   int plain;                     /* 1: plain Levenberg-Marquardt steps from the
                                     start (no geodesic acceleration, which
                                     costs a model evaluation per iteration):
                                     for a start next to the optimum */
+  int no_errors;                 /* 1: no covariance errors (err, cont_err and
+                                    cf_err stay 0) -- for refits whose chi2
+                                    and parameters are all that is asked */
+  double dec_tol;                /* > 0: converged once the Newton decrement
+                                    (the chi2 a Gauss-Newton step would still
+                                    gain) is below this, tested after every
+                                    iteration -- for refits whose chi2 is all
+                                    that is asked, to this precision; 0: the
+                                    default (1e-4, once the steps gain little) */
   double time_limit;             /* seconds (monotonic clock); 0: DT_FIT_TIME_LIMIT;
                                     < 0: none (the iteration limit still holds) */
   /* Partial covering (cover.h).  covering = 1: every component has its own

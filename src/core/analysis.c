@@ -486,6 +486,7 @@ void dt_an_fill_problem(dt_analysis *a, const dt_judgement *j, dt_fit_problem *p
   p->max_iter = a->opts.max_iter;
   p->time_limit = a->opts.time_limit;
   p->stall_chi2 = a->opts.stall_chi2;
+  p->give_up_bic = a->opts.give_up_bic;
   p->covering = j->covering;
   p->cf = j->cf;
   p->cover_model = j->covering ? a->mc : NULL;
@@ -651,6 +652,12 @@ double dt_analysis_time_limit(dt_analysis *a, double seconds) {
 double dt_analysis_stall(dt_analysis *a, double chi2) {
   double was = a->opts.stall_chi2;
   a->opts.stall_chi2 = chi2;
+  return was;
+}
+
+double dt_analysis_give_up(dt_analysis *a, double bic) {
+  double was = a->opts.give_up_bic;
+  a->opts.give_up_bic = bic;
   return was;
 }
 

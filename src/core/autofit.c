@@ -669,17 +669,22 @@ static int first_fit(dt_analysis *a, const dt_judgement *base, dt_component *see
   return DT_OK;
 }
 
-/* A model in doubt: its chi2 lies well above its degrees of freedom
+/* A model whose chi2 lies well above its degrees of freedom
  * (chi2 - dof > DOUBT_SIGMA sqrt(2 dof), chi2 having mean dof and variance
- * 2 dof for a right model) while a model with more components, rejected by
+ * 2 dof for a right model). */
+static int in_doubt(const dt_fit_result *cur) {
+  double dof = (double)cur->dof;
+  return cur->dof > 0 && cur->chi2 - dof > DOUBT_SIGMA * sqrt(2.0 * dof);
+}
+
+/* A model in doubt (in_doubt) while a model with more components, rejected by
  * the BIC margin, improves chi2 by more than the 0.1% point of chi2 with as
  * many degrees of freedom as it adds (3 per component: 16.27 for 3, from
  * gsl_cdf_chisq_Qinv; Wilks' theorem -- common practice). */
 static int doubtful_model(const dt_fit_result *cur, const dt_fit_result *more) {
   if (cur->dof <= 0 || more->dof <= 0 || !isfinite(cur->chi2) || !isfinite(more->chi2))
     return 0;
-  double dof = (double)cur->dof;
-  if (!(cur->chi2 - dof > DOUBT_SIGMA * sqrt(2.0 * dof))) return 0;
+  if (!in_doubt(cur)) return 0;
   double dk = (double)(cur->dof - more->dof);
   if (!(dk > 0)) return 0;
   return cur->chi2 - more->chi2 > gsl_cdf_chisq_Qinv(1e-3, dk);
@@ -707,8 +712,13 @@ static void grow_by_bic(const ctx *c, dt_analysis *a, const dt_judgement *base,
      * (a fixed number of components: each fitted to the end at once) */
     dt_analysis_out trial;
     double was = dt_analysis_stall(a, want ? 0.0 : TRIAL_STALL);
+    /* ... or once it cannot pass the BIC margin -- unless the model is in
+     * doubt, where the trial's whole gain is reported */
+    double gave = dt_analysis_give_up(a, want || in_doubt(&f->best.fit) ? 0.0
+                                                : f->best.fit.bic - op->bic_min);
     int ts = fit_with(a, base, next, nc + 1, &trial, &f->fe);
     dt_analysis_stall(a, was);
+    dt_analysis_give_up(a, gave);
     int accept = ts == DT_OK && (want || trial.fit.bic < f->best.fit.bic - op->bic_min);
     if (accept && trial.fit_info.stalled) {
       dt_analysis_out full;
