@@ -73,6 +73,10 @@ typedef struct dt_analysis_opts {
                               excluding the continuum module's default band) */
   int no_intervals;     /* 1: dt_analysis_run skips the profile-likelihood
                            intervals of log N (dt_analysis_intervals) */
+  int no_measure;       /* 1: runs and evaluations leave the measurements
+                           (lines, N_a profiles) out, measure_status
+                           DT_EINVAL: a search whose many fits need only
+                           chi2, model and residuals (dt_analysis_no_measure) */
   int defer_intervals;  /* 1: dt_analysis_run leaves the intervals of log N
                            to a later dt_analysis_run_intervals (the
                            inspector computes them after the frame) */
@@ -246,6 +250,10 @@ int dt_analysis_warning(const dt_analysis_out *o, char *buf, size_t n);
  * also skip the upper limits (W_limit, logN_limit NaN): a search that
  * runs many fits measures them once at the end (dt_analysis_remeasure). */
 int dt_analysis_no_intervals(dt_analysis *a, int off);
+
+/* Switch the measurements of runs and evaluations off (1) or on (0);
+ * returns the previous setting (opts.no_measure). */
+int dt_analysis_no_measure(dt_analysis *a, int off);
 
 /* Set the fits' time limit [s] (opts.time_limit: 0 the fit's default, < 0
  * none) without touching the other options; returns the previous one. */

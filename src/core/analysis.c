@@ -557,6 +557,10 @@ static void finish(dt_analysis *a, const dt_judgement *j, const dt_component *co
   }
   out->meas_vlo = v1;
   out->meas_vhi = v2;
+  if (a->opts.no_measure) {   /* a search's fit: chi2, model and residuals only */
+    out->measure_status = DT_EINVAL;
+    return;
+  }
   /* limits: where absorption may be, the whole window unless a
    * measurement window was given */
   int given = a->opts.int_vlo < a->opts.int_vhi;
@@ -635,6 +639,12 @@ int dt_analysis_remeasure(dt_analysis *a, dt_analysis_out *out) {
   out->measure_status = dt_an_measure_lines(a, a->mv1, a->mv2, a->ml1, a->ml2, 1, out->line,
                                       &out->saturated, NULL);
   return out->measure_status;
+}
+
+int dt_analysis_no_measure(dt_analysis *a, int off) {
+  int was = a->opts.no_measure;
+  a->opts.no_measure = off;
+  return was;
 }
 
 int dt_analysis_no_intervals(dt_analysis *a, int off) {

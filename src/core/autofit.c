@@ -383,7 +383,11 @@ static int fit_frozen(dt_analysis *a, const dt_judgement *base, const dt_compone
   memcpy(w.comp, comp, nc * sizeof comp[0]);
   memset(w.frozen, freeze, sizeof w.frozen);
   w.has_fit = 0;
-  return dt_analysis_run(a, &w, out, e);
+  /* the search's fits: no measurements (hold_state measures the one kept) */
+  int was = dt_analysis_no_measure(a, 1);
+  int st = dt_analysis_run(a, &w, out, e);
+  dt_analysis_no_measure(a, was);
+  return st;
 }
 
 static int fit_with(dt_analysis *a, const dt_judgement *base, const dt_component *comp,
@@ -400,7 +404,9 @@ static void restore_state(dt_analysis *a, const dt_judgement *base, const dt_ana
   memset(w.frozen, 0, sizeof w.frozen);
   w.has_fit = 0;
   dt_analysis_out tmp;
+  int was = dt_analysis_no_measure(a, 1);
   (void)dt_analysis_eval(a, &w, &tmp, NULL);
+  dt_analysis_no_measure(a, was);
 }
 
 static int by_sig(const void *x, const void *y) {
