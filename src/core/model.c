@@ -484,7 +484,6 @@ static int setup_lines(dt_model *m, const dt_component *comp, size_t ncomp) {
  * point), then 1 - exp(-tau) and exp(-tau) over the nu spans of m->uni. */
 static void optical_depths(dt_model *m, const dt_component *comp, size_t ncomp, int nu) {
   const size_t nf = m->nf;
-  for (int i = 0; i < CORE_SLOTS; i++) m->core[i].k = 0;   /* no table of an earlier one */
   for (size_t k = 0; k < ncomp; k++) {
     double *qk = m->q + k * nf * 3, *sqk = m->sq + k * m->pmax * 3;
     for (int u = 0; u < m->ncspan[k]; u++)

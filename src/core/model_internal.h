@@ -41,14 +41,6 @@
 #define WING_XMIN 4.0
 #define CORE_KMAX 256
 #define CORE_HMAX 0.25
-/* Within one evaluation a core table serves again any line whose damping
- * parameter a differs by da with t0 da^2 <= CORE_REUSE tau_cut
- * (H(a + da) = H(a) - da Im w'(a) + O(da^2), |d^2H/da^2| <= 2) and whose
- * t0 and Xc it covers: the weaker line of a doublet after the stronger, a
- * component with the b of another.  Each evaluation starts with none, so
- * that it does not depend on the ones before. */
-#define CORE_SLOTS 4
-#define CORE_REUSE 0.01
 
 /* Sub-sampling of cells near narrow lines (see sub_setup for the reasons):
  *  - core sub-cell width h b with h = min(SUB_H_THIN, SUB_H_SAT/sqrt(ln t0))
@@ -102,16 +94,6 @@ typedef struct line_setup {
   size_t nsp;      /* sub-points in its range (any line) */
 } line_setup;
 
-/* One core table: H = Re w, Re w' and Im w' at damping a for 0 <= x <= xc,
- * k intervals of 1/invh, steps fine enough for scales up to t0 (k = 0:
- * empty); used: when it last served. */
-typedef struct core_slot {
-  double a, t0, xc, invh;
-  int k;
-  unsigned long used;
-  double c[CORE_KMAX][18]; /* per interval: quintic coefficients of H, Re w', Im w' */
-} core_slot;
-
 struct dt_model {
   const dt_doublet *dbl;
   /* The lines one component gives: line[l] of the doublet split into its
@@ -137,8 +119,7 @@ struct dt_model {
                        after fold the cell value of exp(-tau) d tau_k / d p */
   int exact;        /* no wing interpolation */
   double wing[WING_KMAX][12]; /* per interval: cubic coefficients of H, Re w', Im w' */
-  core_slot core[CORE_SLOTS]; /* core tables kept for reuse (model_voigt.c) */
-  unsigned long core_tick;
+  double core[CORE_KMAX][18]; /* per interval: quintic coefficients of H, Re w', Im w' */
   span prev[MAX_LINES]; /* cells where tau was set by the last evaluation */
   int nprev;
   /* The last evaluation's components and flux: a Jacobian asked for at the

@@ -134,14 +134,13 @@ static double wing_table(dt_model *m, double a, double smin, double smax, int K)
  *   w^(n+1)(z) = -2z w^(n)(z) - 2n w^(n-1)(z),  w'(z) = -2z w(z) + 2i/sqrt(pi).
  * Error bound h^6/46080 max|f^(6)| (|d^6 exp(-x^2)/dx^6| <= 120), so
  * h <= (38.4 tau_cut/t0)^(1/6) keeps the error in tau below 0.1 tau_cut. */
-static int core_table(core_slot *sl, double tau_cut, double t0, double a, double Xc) {
-  double h = pow(38.4 * tau_cut / t0, 1.0 / 6.0);
+static int core_table(dt_model *m, double t0, double a, double Xc, double *invh) {
+  double h = pow(38.4 * m->tau_cut / t0, 1.0 / 6.0);
   if (h > CORE_HMAX) h = CORE_HMAX;
   double kd = ceil(Xc / h);
   if (kd > CORE_KMAX) return -1;
   int K = (int)kd;
   h = Xc / K;
-  sl->k = 0;
   double f0[3] = {0}, d0[3] = {0}, e0[3] = {0};
   for (int k = 0; k <= K; k++) {
     double complex z = cplx(k * h, a);
@@ -153,7 +152,7 @@ static int core_table(core_slot *sl, double tau_cut, double t0, double a, double
     double d1[3] = {h * creal(w1), h * creal(w2), h * cimag(w2)};
     double e1[3] = {h * h * creal(w2), h * h * creal(w3), h * h * cimag(w3)};
     if (k > 0) {
-      double *c = sl->c[k - 1];
+      double *c = m->core[k - 1];
       for (int q = 0; q < 3; q++) {
         double D = f1[q] - f0[q];
         c[6 * q + 0] = f0[q];
@@ -168,37 +167,8 @@ static int core_table(core_slot *sl, double tau_cut, double t0, double a, double
     memcpy(d0, d1, sizeof d0);
     memcpy(e0, e1, sizeof e0);
   }
-  sl->a = a;
-  sl->t0 = t0;
-  sl->xc = Xc;
-  sl->invh = 1.0 / h;
-  sl->k = K;
+  *invh = 1.0 / h;
   return K;
-}
-
-/* A kept core table that serves a line of scale t0 and damping a out to
- * Xc (CORE_REUSE; the nearest in a), or NULL. */
-static core_slot *core_kept(dt_model *m, double t0, double a, double Xc) {
-  core_slot *best = NULL;
-  for (int i = 0; i < CORE_SLOTS; i++) {
-    core_slot *sl = &m->core[i];
-    double da = a - sl->a;
-    if (sl->k > 0 && t0 <= sl->t0 && Xc <= sl->xc && t0 * da * da <= CORE_REUSE * m->tau_cut &&
-        (!best || fabs(da) < fabs(a - best->a)))
-      best = sl;
-  }
-  return best;
-}
-
-/* The slot to build a new core table in: an empty one, else the one
- * unused longest. */
-static core_slot *core_free(dt_model *m) {
-  core_slot *old = &m->core[0];
-  for (int i = 0; i < CORE_SLOTS; i++) {
-    if (m->core[i].k <= 0) return &m->core[i];
-    if (m->core[i].used < old->used) old = &m->core[i];
-  }
-  return old;
 }
 
 /* ---- evaluation of one line ------------------------------------------- */
@@ -207,8 +177,6 @@ static core_slot *core_free(dt_model *m) {
 typedef struct voigt_src {
   double a, Xc;     /* |x| <= Xc: core table (kcore > 0) or w(z) */
   double cinvh;
-  const double (*core)[18]; /* the core table, built at damping a - da */
-  double da;
   int kcore, kwing; /* wing table for Xc < |x| <= xw when kwing > 0 */
   double smin, winvh, xw;
 } voigt_src;
@@ -224,13 +192,11 @@ static inline double voigt_at(const dt_model *m, const voigt_src *v, double x, i
     int k = (int)u;
     if (k > v->kcore - 1) k = v->kcore - 1;
     double t = u - k;
-    const double *c = v->core[k];
+    const double *c = m->core[k];
     H = c[0] + t * (c[1] + t * (c[2] + t * (c[3] + t * (c[4] + t * c[5]))));
-    /* Im w' = -dH/da: to first order in da, H at a from the table's */
-    double wi = c[12] + t * (c[13] + t * (c[14] + t * (c[15] + t * (c[16] + t * c[17]))));
-    H -= v->da * wi;
     if (deriv) {
       double wr = c[6] + t * (c[7] + t * (c[8] + t * (c[9] + t * (c[10] + t * c[11]))));
+      double wi = c[12] + t * (c[13] + t * (c[14] + t * (c[15] + t * (c[16] + t * c[17]))));
       *Hx = x < 0 ? -wr : wr;
       *Ha = -wi;
     }
@@ -299,21 +265,10 @@ void dt_model_eval_line(dt_model *m, const line_setup *s, double b, double *qk, 
     } else {
       v.Xc = xmax; /* everything is core */
     }
-    /* a kept table; else one built where the core cells (both sides) and
-     * sub-points outnumber its nodes (one side) */
-    core_slot *sl = core_kept(m, t0, a, v.Xc);
+    /* core cells (both sides) and sub-points against table nodes (one side) */
     double nodes = v.Xc * fmax(pow(t0 / (38.4 * m->tau_cut), 1.0 / 6.0), 1.0 / CORE_HMAX) + 1.0;
-    if (!sl && 2.0 * v.Xc * cells_per_x + (double)s->nsp > 1.3 * nodes) {
-      sl = core_free(m);
-      if (core_table(sl, m->tau_cut, t0, a, v.Xc) <= 0) sl = NULL;
-    }
-    if (sl) {
-      sl->used = ++m->core_tick;
-      v.kcore = sl->k;
-      v.cinvh = sl->invh;
-      v.core = (const double (*)[18])sl->c;
-      v.da = a - sl->a;
-    }
+    if (2.0 * v.Xc * cells_per_x + (double)s->nsp > 1.3 * nodes)
+      v.kcore = core_table(m, t0, a, v.Xc, &v.cinvh);
   }
   const double dxdv = s->dxdv_fac;
   const int deriv = qk != NULL;
