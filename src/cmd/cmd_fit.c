@@ -58,9 +58,11 @@
  * parameters at their bounds, so such an R is refused as a mistake. */
 #define FIT_MIN_R 100
 
-/* --jobs: at most this many threads; inputs in flight per thread. */
+/* --jobs: at most this many threads; inputs in flight per thread (a few
+ * kilobytes each: enough that one slow spectrum at the head, whose rows
+ * must go out first, does not leave the other threads idle). */
 #define FIT_MAX_JOBS 1024
-#define FIT_WINDOW_PER_JOB 4
+#define FIT_WINDOW_PER_JOB 32
 
 
 
