@@ -128,12 +128,6 @@ typedef struct dt_fit_problem {
   int no_errors;                 /* 1: no covariance errors (err, cont_err and
                                     cf_err stay 0) -- for refits whose chi2
                                     and parameters are all that is asked */
-  double dec_tol;                /* > 0: converged once the Newton decrement
-                                    (the chi2 a Gauss-Newton step would still
-                                    gain) is below this, tested after every
-                                    iteration -- for refits whose chi2 is all
-                                    that is asked, to this precision; 0: the
-                                    default (1e-4, once the steps gain little) */
   double time_limit;             /* seconds (monotonic clock); 0: DT_FIT_TIME_LIMIT;
                                     < 0: none (the iteration limit still holds) */
   /* Partial covering (cover.h).  covering = 1: every component has its own

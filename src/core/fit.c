@@ -573,9 +573,7 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
     nbound += at[q];
   }
   if (nbound == 0) {
-    /* (the decrement costs a J^T J: only worth it once the steps gain
-     * little, unless a looser tolerance was asked for) */
-    if (w->prob->dec_tol > 0) return newton_decrement(s, cov) <= w->prob->dec_tol ? 4 : 0;
+    /* (the decrement costs a J^T J: only worth it once the steps gain little) */
     return last_drop < DEC_GATE && newton_decrement(s, cov) <= DEC_TOL ? 4 : 0;
   }
   double g[MAXPAR];
@@ -656,8 +654,6 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
   double gain[DT_FIT_STALL_ITERS] = {0};   /* the last iterations' drops of chi2 */
   if (gsl_multifit_nlinear_init(&xv.vector, fdf, slot->w) != GSL_SUCCESS)
     rs->why = "the solver could not start";
-  else if (w->prob->dec_tol > 0 && newton_decrement(slot->w, slot->cov) <= w->prob->dec_tol)
-    rs->info = done = 4;   /* a start at the minimum already, to the precision asked */
   while (!rs->why && !done) {
     if (*iter - iter0 >= max_iter) { rs->why = "no convergence within the iteration limit"; break; }
     if (tlim > 0 && now_seconds() - t0 > tlim) {
@@ -832,9 +828,12 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   if (w->covering) cover_columns(w, J, cf_ext);
   if (!p->no_errors) gsl_multifit_nlinear_covar(J, 1e-11, slot->cov);
   for (size_t q = 0; q < w->npar; q++) {
-    double var = p->no_errors ? 0.0 : gsl_matrix_get(slot->cov, q, q);
-    double slope = cf_ext[q] ? 1.0 : fabs(w->dvdu[q]);
-    double err = p->no_errors ? 0.0 : (var > 0 && isfinite(var)) ? sqrt(var) * slope : INFINITY;
+    double err = 0.0;
+    if (!p->no_errors) {
+      double var = gsl_matrix_get(slot->cov, q, q);
+      double slope = cf_ext[q] ? 1.0 : fabs(w->dvdu[q]);
+      err = (var > 0 && isfinite(var)) ? sqrt(var) * slope : INFINITY;
+    }
     int k = w->pcomp[q];
     switch (w->ptype[q]) {
     case P_N: r->err[k].logN = err; break;

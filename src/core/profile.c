@@ -23,8 +23,6 @@
                                 its chi2 is then within PEEK_DCHI2 */
 #define PEEK_DCHI2 25.0
 #define PEEK_START_DCHI2 100.0
-#define PROFILE_DEC_TOL 0.01 /* chi2 a refit may leave ungained (its ends are
-                                sought to |sqrt(dchi2) - t| < 0.05) */
 #define PROFILE_TIME 0.1     /* seconds of one refit */
 #define PROFILE_MAX_FITS 240 /* refits of one interval at most, for windows of up
                                 to PROFILE_PIX pixels (larger ones: in
@@ -426,8 +424,7 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
    * N writes the same bytes as --jobs 1). */
   P.q.time_limit = budget > 0 ? PROFILE_TIME : -1;
   P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
-  P.q.dec_tol = PROFILE_DEC_TOL;
-  P.q.no_errors = 1;
+  P.q.no_errors = 1;    /* its chi2 and parameters are all that is used */
   P.deep = (flags & DT_PROFILE_DEEP) != 0;
   P.flags = flags;
   P.quick = (flags & DT_PROFILE_QUICK) && !(flags & DT_PROFILE_DEEP);
