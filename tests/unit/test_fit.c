@@ -442,6 +442,71 @@ static void test_stall(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rng) {
   unmake(&s);
 }
 
+/* A trial of one more component with give_up_bic (the first pass's mark:
+ * the BIC of the fit without it less the margin of 10, common practice):
+ * a superfluous component that cannot pass ends early as stalled, with
+ * the verdict of the trial run to the end; a real one is fitted exactly as
+ * without the mark. */
+static void test_give_up(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rng) {
+  synth s = make(d, 5880, 5910, 0.1, 20000);
+  dt_component truth[2] = {{12.3, 6.0, 10.0}, {11.9, 9.0, -120.0}};
+  fill(&s, truth, 1, 30.0, rng, NULL);
+  dt_component one[1] = {{12.3, 6.0, 10.0}};
+  dt_fit_problem p = problem(&s, one, 1);
+  dt_fit_result r1, full, quick;
+  dt_fit_run(w, &p, &r1, NULL);
+  double mark = r1.bic - 10.0;
+  dt_component start[2] = {r1.comp[0], {11.0, 20.0, 150.0}};
+  p = problem(&s, start, 2);
+  dt_fit_run(w, &p, &full, NULL);
+  p.give_up_bic = mark;
+  int st = dt_fit_run(w, &p, &quick, NULL);
+  const dt_fit_info *in = dt_fit_last_info(w);
+  CHECK(!(full.bic < mark), "a superfluous component does not pass (BIC %.1f, mark %.1f)",
+        full.bic, mark);
+  CHECK(st == DT_OK && in->stalled && quick.niter < full.niter,
+        "given up: stalled after %d iterations (%d to the end)", quick.niter, full.niter);
+  CHECK(!(quick.bic < mark), "... with the same verdict (BIC %.1f)", quick.bic);
+  /* a second line that is there: the same fit as without the mark */
+  fill(&s, truth, 2, 30.0, rng, NULL);
+  p = problem(&s, one, 1);
+  dt_fit_run(w, &p, &r1, NULL);
+  dt_component real[2] = {r1.comp[0], {11.7, 12.0, -100.0}};
+  p = problem(&s, real, 2);
+  dt_fit_run(w, &p, &full, NULL);
+  p.give_up_bic = r1.bic - 10.0;
+  dt_fit_run(w, &p, &quick, NULL);
+  CHECK(full.bic < r1.bic - 10.0, "a real component passes (BIC %.1f, mark %.1f)", full.bic,
+        r1.bic - 10.0);
+  CHECK(quick.chi2 == full.chi2 && quick.niter == full.niter &&
+            memcmp(quick.comp, full.comp, 2 * sizeof quick.comp[0]) == 0,
+        "... and is fitted as without the mark (chi2 %.4f, %d iterations)", quick.chi2,
+        quick.niter);
+  unmake(&s);
+}
+
+/* no_errors: the same fit, to the bit, without the covariance errors. */
+static void test_no_errors(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rng) {
+  synth s = make(d, 5880, 5910, 0.1, 20000);
+  dt_component truth[2] = {{12.1, 7.5, -35.0}, {11.6, 12.0, 48.0}};
+  fill(&s, truth, 2, 50.0, rng, NULL);
+  dt_component start[2] = {{11.8, 10.0, -30.0}, {11.8, 10.0, 40.0}};
+  dt_fit_problem p = problem(&s, start, 2);
+  dt_fit_result a, b;
+  dt_fit_run(w, &p, &a, NULL);
+  p.no_errors = 1;
+  dt_fit_run(w, &p, &b, NULL);
+  CHECK(a.chi2 == b.chi2 && a.niter == b.niter && memcmp(a.comp, b.comp, sizeof a.comp) == 0,
+        "no_errors: the same parameters and chi2 (%.6f, %.6f)", a.chi2, b.chi2);
+  int zero = 1, some = 1;
+  for (size_t k = 0; k < 2; k++) {
+    zero &= b.err[k].logN == 0 && b.err[k].b == 0 && b.err[k].v == 0;
+    some &= a.err[k].logN > 0 && a.err[k].b > 0 && a.err[k].v > 0;
+  }
+  CHECK(zero && some, "no_errors: errors 0 (with them: positive)");
+  unmake(&s);
+}
+
 int main(void) {
   dt_doublet d = nai();
   gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
@@ -454,6 +519,8 @@ int main(void) {
   test_joint_continuum(&d, w, rng);
   test_hostile(&d, w, rng);
   test_stall(&d, w, rng);
+  test_give_up(&d, w, rng);
+  test_no_errors(&d, w, rng);
   dt_fit_free(w);
   gsl_rng_free(rng);
   return dt_test_done();

@@ -144,6 +144,23 @@ static void test_fit_and_arrays(const dt_atomic *t, gsl_rng *rng) {
         "W(5891)/W_lin = %.3f +- %.3f vs %.3f", o.line[0].W / Wlin, o.line[0].W_err / Wlin, ratio);
   CHECK(o.line[0].W_sig > 5, "line detected in W (%.1f sigma)", o.line[0].W_sig);
   CHECK(o.meas_vlo < 35 && o.meas_vhi > 35, "measurement window around the component");
+
+  /* a search's run without measurements: the same fit, model and
+   * residuals, measure_status DT_EINVAL; the setting restores */
+  double rmid = res[mid];
+  j2.comp[0].logN += 0.3;   /* other residuals first */
+  dt_analysis_eval(a, &j2, &o2, NULL);
+  CHECK(dt_analysis_no_measure(a, 1) == 0, "measurements are on by default");
+  dt_analysis_out o4;
+  dt_analysis_run(a, &j, &o4, NULL);
+  CHECK(dt_analysis_no_measure(a, 0) == 1, "no_measure was on");
+  CHECK(o4.measure_status == DT_EINVAL && o4.fit.chi2 == o.fit.chi2 &&
+            memcmp(o4.fit.comp, o.fit.comp, sizeof o.fit.comp) == 0 &&
+            dt_analysis_residual(a)[mid] == rmid,
+        "no_measure: the same fit and residuals, not measured (status %d)", o4.measure_status);
+  dt_analysis_run(a, &j, &o4, NULL);
+  CHECK(o4.measure_status == DT_OK && o4.line[0].W == o.line[0].W,
+        "measured again once it is off (W %.5f)", o4.line[0].W);
   dt_analysis_free(a);
   dt_spectrum_free(s);
 }
