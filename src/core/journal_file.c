@@ -29,6 +29,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/file.h>
+#include <sys/mman.h>
 #include <sys/stat.h>
 #include <sys/sysmacros.h>
 #include <time.h>
@@ -58,6 +59,9 @@ struct dt_journal {
   ino_t ino;
   dt_journal_entry **ent;
   size_t nent, capent;
+  /* the entries themselves, ENTRY_SLAB to a slab (new_entry) */
+  void **slab;
+  size_t nslab, capslab, slab_used;
   dt_jn_index index; /* identity and path keys -> entry index */
   char *dir, *rdir;  /* the session file's directory, lexically and resolved */
   int version;       /* the format version of the file (appends keep it) */
@@ -136,6 +140,36 @@ static int set_str(char **dst, const char *src) {
 }
 
 /* A new entry for t (its path the recorded hint), at index j->nent - 1. */
+/* A zeroed entry, carved from slabs of ENTRY_SLAB entries: 2 MB-aligned
+ * and, where the system has them, in huge pages -- a session of 100 000
+ * spectra holds 450 MB of entries, which in 4 kB pages cost 110 000 page
+ * faults to open (a fifth of the time). */
+#define ENTRY_SLAB 448
+#define SLAB_ALIGN ((size_t)2 << 20)
+static dt_journal_entry *new_entry(dt_journal *j) {
+  if (j->nslab == 0 || j->slab_used == ENTRY_SLAB) {
+    if (j->nslab == j->capslab) {
+      size_t cap = j->capslab ? j->capslab * 2 : 16;
+      void **p = realloc(j->slab, cap * sizeof *p);
+      if (!p) return NULL;
+      j->slab = p;
+      j->capslab = cap;
+    }
+    size_t bytes = ENTRY_SLAB * sizeof(dt_journal_entry);
+    bytes = (bytes + SLAB_ALIGN - 1) / SLAB_ALIGN * SLAB_ALIGN;
+    void *p = aligned_alloc(SLAB_ALIGN, bytes);
+    if (!p) return NULL;
+#ifdef MADV_HUGEPAGE
+    (void)madvise(p, bytes, MADV_HUGEPAGE);   /* a hint: without it, 4 kB pages */
+#endif
+    j->slab[j->nslab++] = p;
+    j->slab_used = 0;
+  }
+  dt_journal_entry *en = (dt_journal_entry *)j->slab[j->nslab - 1] + j->slab_used++;
+  memset(en, 0, sizeof *en);
+  return en;
+}
+
 static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
   if (j->nent == j->capent) {
     size_t cap = j->capent ? j->capent * 2 : 64;
@@ -144,10 +178,9 @@ static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
     j->ent = p;
     j->capent = cap;
   }
-  dt_journal_entry *en = calloc(1, sizeof *en);
   char *path = strdup(t->path);
-  if (!en || !path) {
-    free(en);
+  dt_journal_entry *en = path ? new_entry(j) : NULL;
+  if (!en) {
     free(path);
     return NULL;
   }
@@ -586,8 +619,9 @@ void dt_journal_close(dt_journal *j) {
   for (size_t i = 0; i < j->nent; i++) {
     free((char *)j->ent[i]->target.path);
     free((char *)j->ent[i]->target.name);
-    free(j->ent[i]);
   }
+  for (size_t i = 0; i < j->nslab; i++) free(j->slab[i]);
+  free(j->slab);
   free(j->ent);
   free(j->last.path);
   dt_jn_index_free(&j->index);
