@@ -139,7 +139,6 @@ static int set_str(char **dst, const char *src) {
   return DT_OK;
 }
 
-/* A new entry for t (its path the recorded hint), at index j->nent - 1. */
 /* A zeroed entry, carved from slabs of ENTRY_SLAB entries: 2 MB-aligned
  * and, where the system has them, in huge pages -- a session of 100 000
  * spectra holds 450 MB of entries, which in 4 kB pages cost 110 000 page
@@ -170,6 +169,7 @@ static dt_journal_entry *new_entry(dt_journal *j) {
   return en;
 }
 
+/* A new entry for t (its path the recorded hint), at index j->nent - 1. */
 static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
   if (j->nent == j->capent) {
     size_t cap = j->capent ? j->capent * 2 : 64;
