@@ -146,12 +146,12 @@ typedef struct dt_fit_info {
   int at_bound[DT_MAX_COMP];     /* DT_FREEZE_* style bits: parameter within
                                     1% of its range from a bound (ln b for b) */
   int reason;                    /* 1 small step, 2 small gradient (GSL tests),
-                                    6 stalled (stall_chi2),
+                                    6 stalled (stall_chi2, give_up_bic),
                                     3 converged with parameters at bounds */
   size_t nparam;                 /* fitted parameters */
   double seconds;                /* duration of the fit */
   int timed_out;                 /* 1: a run stopped at the time limit */
-  int stalled;                   /* 1: the kept run ended by stall_chi2 */
+  int stalled;                   /* 1: the kept run ended by stall_chi2 or give_up_bic */
 } dt_fit_info;
 
 typedef struct dt_fit_workspace dt_fit_workspace;
