@@ -123,7 +123,6 @@ static int setup_systems(const config *c, const dt_target_spec *t, const dt_spec
                           &j->vhi, set, e);
 }
 
-/* Fit one spectrum (one row of a table, or the only one) for one doublet. */
 /* The first pass's options of the run: components asked for and seeds. */
 static void autofit_opts_of(const config *c, dt_autofit_opts *fo) {
   dt_autofit_opts_init(fo);
@@ -157,6 +156,7 @@ static void analysis_done(run *r, dt_analysis *an) {
   if (!(r->an_slot && *r->an_slot == an)) dt_analysis_free(an);
 }
 
+/* Fit one spectrum (one row of a table, or the only one) for one doublet. */
 static void fit_one_doublet(run *r, const dt_target_spec *t, const dt_spectrum_file *f, long row,
                             const char *dname) {
   const config *c = r->cfg;

@@ -74,6 +74,23 @@ typedef struct prof {
   double alt_cont[MAX_ALT][DT_MAX_CONT];
 } prof;
 
+/* The scan of component k of p: its refits hold log N_k, with time_limit
+ * each (fit.h), in one run (a high chi2 away from the optimum is the
+ * point), their chi2 and parameters all that is used (no errors). */
+static void prof_init(prof *P, dt_fit_workspace *w, const dt_fit_problem *p, size_t k,
+                      double time_limit) {
+  memset(P, 0, sizeof *P);
+  P->w = w;
+  P->q = *p;
+  P->k = k;
+  if (p->frozen) memcpy(P->frozen, p->frozen, p->ncomp);
+  P->frozen[k] |= DT_FREEZE_N;
+  P->q.frozen = P->frozen;
+  P->q.time_limit = time_limit;
+  P->q.single_run = 1;
+  P->q.no_errors = 1;
+}
+
 static double now_s(void) {
   struct timespec ts;
   clock_gettime(CLOCK_MONOTONIC, &ts);
@@ -410,21 +427,11 @@ int dt_profile_logN(dt_fit_workspace *w, const dt_fit_problem *p, const dt_fit_r
     return DT_OK;
   }
   prof P;
-  memset(&P, 0, sizeof P);
-  P.w = w;
-  P.q = *p;
-  P.k = k;
-  if (p->frozen) memcpy(P.frozen, p->frozen, p->ncomp);
-  P.frozen[k] |= DT_FREEZE_N;
-  P.q.frozen = P.frozen;
-  /* refits start next to an optimum: a short leash */
   /* With a time budget (the inspector's keystrokes) every refit has a
    * short clock too; without one (batch fits) only the counts bound the
    * work, so the result does not depend on the machine's load (fit --jobs
    * N writes the same bytes as --jobs 1). */
-  P.q.time_limit = budget > 0 ? PROFILE_TIME : -1;
-  P.q.single_run = 1;   /* a high chi2 away from the optimum is the point */
-  P.q.no_errors = 1;    /* its chi2 and parameters are all that is used */
+  prof_init(&P, w, p, k, budget > 0 ? PROFILE_TIME : -1);
   P.deep = (flags & DT_PROFILE_DEEP) != 0;
   P.flags = flags;
   P.quick = (flags & DT_PROFILE_QUICK) && !(flags & DT_PROFILE_DEEP);
@@ -513,17 +520,10 @@ int dt_profile_other_valley(dt_fit_workspace *w, const dt_fit_problem *p, const 
     return 0;
   if (p->frozen && (p->frozen[k] & DT_FREEZE_N)) return 0;
   prof P;
-  memset(&P, 0, sizeof P);
-  P.w = w;
-  P.q = *p;
-  P.k = k;
+  /* two refits bounded by their iterations: the same answer whatever the
+   * machine's load */
+  prof_init(&P, w, p, k, -1);
   P.r = r;
-  if (p->frozen) memcpy(P.frozen, p->frozen, p->ncomp);
-  P.frozen[k] |= DT_FREEZE_N;
-  P.q.frozen = P.frozen;
-  P.q.time_limit = -1; /* two refits bounded by their iterations: the same
-                          answer whatever the machine's load */
-  P.q.single_run = 1;
   for (int i = 0; i < 2; i++) {
     dt_component alt[DT_MAX_COMP], sol[DT_MAX_COMP];
     double csol[DT_MAX_CONT];
