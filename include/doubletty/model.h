@@ -205,13 +205,17 @@ int dt_model_eval(dt_model *m, const dt_component *comp, size_t ncomp,
  * Given: a >= 0, the damping parameter Gamma/(4 pi dnu_D); u, the distance
  *   from the line centre in Doppler widths.
  * Returned: H(a, u); integral over u is sqrt(pi), H(0, u) = exp(-u^2).
- * Notes: w is the Faddeeva function from libcerf (w_of_z); it meets
- *   H(a, 0) = erfcx(a) and H(0, u) = exp(-u^2) to 1e-12 relative
- *   (tests/unit/test_voigt.c).  dt_model_eval interpolates it in tables
- *   (model_voigt.c); this is the exact value.
+ * Notes: w is the Faddeeva function: near the real axis (a <= 0.25,
+ *   |u| <= 25, a |u| <= 1: every doublet's core) its Taylor series in a
+ *   from libcerf's Im w(u) on the axis, elsewhere libcerf's w_of_z; it
+ *   meets H(a, 0) = erfcx(a) and H(0, u) = exp(-u^2) to 1e-12 relative,
+ *   and w_of_z to 3e-12 (tests/unit/test_voigt.c).  dt_model_eval
+ *   interpolates it in tables (model_voigt.c); this is the exact value.
  * References: Armstrong 1967, JQSRT 7, 61 (H as Re w, from memory);
- *   Abramowitz & Stegun 1964, 7.1.3 (w). */
+ *   Abramowitz & Stegun 1964, 7.1.3 (w), 7.1.20 (its derivatives). */
 double dt_voigt_H(double a, double u);
+/* H(a, u) and L(a, u) = Im w(u + i a), the same way. */
+void dt_voigt_HL(double a, double u, double *H, double *L);
 
 /* Unconvolved, untruncated optical depth of one line of one component at a
  * vacuum wavelength (reference evaluation; slow). */

@@ -179,6 +179,10 @@ static inline double complex cplx(double x, double y) {
   return z;
 }
 
+/* w(x + ia), a >= 0: near the real axis by a series (model_voigt.c), else
+ * libcerf's w_of_z. */
+double complex dt_faddeeva(double x, double a);
+
 /* First sub-point of cell j of sub-sampled span u (model_narrow.c). */
 static inline size_t *sub_first(const dt_model *m, int u, long j) {
   return m->sfirst + m->sbase[u] + (size_t)(j - m->sub[u].lo);

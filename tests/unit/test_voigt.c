@@ -78,6 +78,36 @@ static void test_identities(void) {
   CHECK(dt_voigt_H(0.01, -2.7) == dt_voigt_H(0.01, 2.7), "H is even in u");
 }
 
+/* dt_voigt_HL against libcerf's w_of_z, inside and around the domain where
+ * it sums the Taylor series about the real axis (a <= 0.25, |u| <= 25,
+ * a |u| <= 1) and beyond it (libcerf itself): H and L = Im w to 3e-12 and
+ * 1e-12 relative (the far wing's H, a difference of two terms, loses ~u^2
+ * of the precision), and the whole dense grid within the model's needs. */
+static void test_series(void) {
+  double worst_h = 0, worst_l = 0, worst_core = 0;
+  long inside = 0, n = 0;
+  for (int i = 0; i <= 150; i++) {
+    double a = i < 100 ? 1e-6 + 0.003 * i : 0.3 + 0.01 * (i - 100);
+    for (int k = -4000; k <= 4000; k++) {
+      double u = 0.01 * k + 1e-3 * (i % 7);
+      double H, L;
+      dt_voigt_HL(a, u, &H, &L);
+      double complex w = w_at(u, a);
+      double dh = fabs(H - creal(w)) / creal(w);
+      double dl = fabs(L - cimag(w)) / fmax(fabs(cimag(w)), 1e-3);
+      if (dh > worst_h) worst_h = dh;
+      if (dl > worst_l) worst_l = dl;
+      if (fabs(u) <= 6 && dh > worst_core) worst_core = dh;
+      inside += a <= 0.25 && fabs(u) <= 25 && a * fabs(u) <= 1;
+      n++;
+    }
+  }
+  CHECK(inside > n / 10 && inside < n, "the grid covers the series (%ld of %ld points) and beyond", inside, n);
+  CHECK(worst_h < 3e-12, "H(a, u) = Re w_of_z for a = 0..0.8, |u| <= 40 (relative %.1e)", worst_h);
+  CHECK(worst_core < 1e-13, "... in the core, |u| <= 6 (relative %.1e)", worst_core);
+  CHECK(worst_l < 1e-12, "L(a, u) = Im w_of_z there (relative %.1e)", worst_l);
+}
+
 static double h_integrand(double u, void *p) { return dt_voigt_H(*(double *)p, u); }
 
 static void test_normalisation(void) {
@@ -124,6 +154,7 @@ static void test_line_tau_scale(void) {
 int main(void) {
   test_published_values();
   test_identities();
+  test_series();
   test_normalisation();
   test_line_tau_scale();
   return dt_test_done();
