@@ -147,7 +147,10 @@ typedef struct dt_fit_info {
                                     1% of its range from a bound (ln b for b) */
   int reason;                    /* 1 small step, 2 small gradient (GSL tests),
                                     6 stalled (stall_chi2, give_up_bic),
-                                    3 converged with parameters at bounds */
+                                    3 converged with parameters at bounds,
+                                    7 nothing left to gain (the last
+                                    DT_FIT_STALL_ITERS iterations together
+                                    lowered chi2 by less than 1e-6) */
   size_t nparam;                 /* fitted parameters */
   double seconds;                /* duration of the fit */
   int timed_out;                 /* 1: a run stopped at the time limit */

@@ -68,6 +68,11 @@
 #define DEC_STALL 1e-3       /* ... accepted when no step can improve chi2 (the
                                 model's own rounding and wing truncation make
                                 chi2 noisy at about this level) */
+#define NO_GAIN 1e-6         /* chi2 the last DT_FIT_STALL_ITERS iterations
+                                together gain at most in a fit that is done
+                                all the same (far below DEC_STALL: a fit
+                                creeping along a parameter held at its bound
+                                would otherwise run to the iteration limit) */
 #define BOUND_MARGIN 1e-6    /* start values moved this far (relative) inside */
 #define BOUND_FLAG 1e-2      /* a parameter this close (relative, in the
                                 logistic's argument) is at a bound */
@@ -702,10 +707,13 @@ static void solve(dt_fit_workspace *w, gsl_multifit_nlinear_fdf *fdf, const doub
     } else if (hopeless(w, slot, n, chi2, drop)) {
       info = 6;   /* a trial that cannot pass: stalled */
       done = 1;
-    } else if (w->prob->stall_chi2 > 0 && n >= DT_FIT_STALL_ITERS) {
+    } else if (n >= DT_FIT_STALL_ITERS) {
       double g = 0;
       for (int k = 0; k < DT_FIT_STALL_ITERS; k++) g += gain[k];
-      if (g < w->prob->stall_chi2) {
+      if (g < NO_GAIN) {
+        info = 7;   /* nothing left to gain */
+        done = 1;
+      } else if (w->prob->stall_chi2 > 0 && g < w->prob->stall_chi2) {
         info = 6;
         done = 1;
       }

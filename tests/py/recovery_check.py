@@ -11,11 +11,15 @@ logN_err_lo below; none when the truth lies above a lower limit), v and b.
 
 prints "found MATCHED TRUE", then per parameter "pull NAME COUNT MEAN SD
 WITHIN1" (WITHIN1: the fraction of |pull| <= 1, 0.6827 for a unit
-normal)."""
+normal), then "poor COUNT SPECTRA WORST": the spectra whose fit's chi2 lies
+beyond the upper 1e-6 point of the chi-square distribution with its
+degrees of freedom (scipy.stats.chi2.sf), which a search that found the
+components the data were made of leaves with chance 1e-6 each."""
 import csv
 import sys
 
 import numpy as np
+from scipy.stats import chi2
 
 
 def rows(path):
@@ -30,6 +34,11 @@ def main(truth_path, fit_path):
         if r["logN"] and r["system"] == "target":
             fits.setdefault(r["name"], []).append(r)
     found, pulls = 0, {"logN": [], "v": [], "b": []}
+    fitp = {}
+    for name, rs in fits.items():
+        if rs[0]["chi2_red"] and rs[0]["dof"]:
+            dof = int(rs[0]["dof"])
+            fitp[name] = chi2.sf(float(rs[0]["chi2_red"]) * dof, dof)
     for t in truth:
         cands = fits.get(t["name"], [])
         tv = float(t["v"])
@@ -49,6 +58,9 @@ def main(truth_path, fit_path):
     for k, p in pulls.items():
         p = np.array(p)
         print(f"pull {k} {len(p)} {p.mean():.4f} {p.std(ddof=1):.4f} {np.mean(np.abs(p) <= 1):.4f}")
+    worst = min(fitp, key=fitp.get, default="-")
+    poor = sum(1 for p in fitp.values() if p < 1e-6)
+    print(f"poor {poor} {len(fitp)} {worst}")
     return 0
 
 
