@@ -578,8 +578,10 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
     nbound += at[q];
   }
   if (nbound == 0) {
-    /* (the decrement costs a J^T J: only worth it once the steps gain little) */
-    return last_drop < DEC_GATE && newton_decrement(s, cov) <= DEC_TOL ? 4 : 0;
+    /* (the decrement costs a J^T J: only worth it once the steps gain
+     * little -- or in a plain run, which starts next to its optimum, where
+     * a quarter of the scan refits end after their first step) */
+    return (last_drop < DEC_GATE || w->prob->plain) && newton_decrement(s, cov) <= DEC_TOL ? 4 : 0;
   }
   double g[MAXPAR];
   chi2_gradient(s, g);
