@@ -54,7 +54,8 @@ typedef struct dt_fit_result {
   int niter;
   size_t ncomp;
   dt_component comp[DT_MAX_COMP];  /* best fit */
-  dt_component err[DT_MAX_COMP];   /* 1-sigma errors (0 for frozen/tied-to) */
+  dt_component err[DT_MAX_COMP];   /* 1-sigma errors (0 for frozen/tied-to; +infinity
+                                      at a bound or unconstrained) */
   size_t ncont;                    /* continuum coefficients fitted jointly */
   double cont_coef[DT_MAX_CONT];
   double cont_err[DT_MAX_CONT];

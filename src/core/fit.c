@@ -543,6 +543,36 @@ static double newton_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *co
 }
 
 
+/* The Newton decrement over the parameters q with !held[q] alone (the
+ * others held where they are). */
+static double free_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *cov,
+                             const int *held) {
+  gsl_matrix *J = gsl_multifit_nlinear_jac(s);
+  gsl_vector *f = gsl_multifit_nlinear_residual(s);
+  size_t idx[MAXPAR], m = 0;
+  for (size_t q = 0; q < J->size2; q++)
+    if (!held[q]) idx[m++] = q;
+  if (m == 0) return 0.0;
+  double g[MAXPAR], y[MAXPAR];
+  gsl_matrix_view M = gsl_matrix_submatrix(cov, 0, 0, m, m);
+  for (size_t i = 0; i < m; i++) {
+    gsl_vector_const_view ci = gsl_matrix_const_column(J, idx[i]);
+    gsl_blas_ddot(&ci.vector, f, &g[i]);
+    for (size_t k = 0; k <= i; k++) {
+      gsl_vector_const_view ck = gsl_matrix_const_column(J, idx[k]);
+      double d;
+      gsl_blas_ddot(&ci.vector, &ck.vector, &d);
+      gsl_matrix_set(&M.matrix, i, k, d);
+    }
+  }
+  gsl_vector_view gv = gsl_vector_view_array(g, m), yv = gsl_vector_view_array(y, m);
+  if (gsl_linalg_cholesky_decomp1(&M.matrix) != GSL_SUCCESS) return INFINITY;
+  if (gsl_linalg_cholesky_solve(&M.matrix, &gv.vector, &yv.vector) != GSL_SUCCESS) return INFINITY;
+  double dec;
+  gsl_blas_ddot(&gv.vector, &yv.vector, &dec);
+  return isfinite(dec) ? fabs(dec) : INFINITY;
+}
+
 /* Gradient of chi2 with respect to the internal parameters, 2 J^T f. */
 static void chi2_gradient(gsl_multifit_nlinear_workspace *s, double *g) {
   gsl_matrix *J = gsl_multifit_nlinear_jac(s);
@@ -573,9 +603,9 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
     at[q] = 0;
     if (w->ptype[q] != P_C) {
       double sg = dt_lsq_to_external(x[q], 0.0, 1.0, NULL);
-      at[q] = sg < BOUND_FLAG || sg > 1.0 - BOUND_FLAG;
+      at[q] = sg < BOUND_FLAG ? -1 : sg > 1.0 - BOUND_FLAG ? 1 : 0;   /* which bound */
     }
-    nbound += at[q];
+    nbound += at[q] != 0;
   }
   if (nbound == 0) {
     /* (the decrement costs a J^T J: only worth it once the steps gain
@@ -586,15 +616,20 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
   double g[MAXPAR];
   chi2_gradient(s, g);
   double phi = 0.5 * chi2 > 1 ? 0.5 * chi2 : 1;
-  for (size_t q = 0; q < w->npar; q++) {
-    if (at[q]) {
-      if (fabs(g[q]) > BOUND_GAIN) return 0;
-    } else {
-      double xs = fabs(x[q]) > 1 ? fabs(x[q]) : 1;
-      if (0.5 * fabs(g[q]) * xs > GTOL_STALL * phi) return 0;
-    }
+  /* every parameter at a bound presses against it (chi2 falls towards the
+   * bound, by at most BOUND_GAIN still): one that would rather move inwards
+   * only looks flat through the logistic */
+  for (size_t q = 0; q < w->npar; q++)
+    if (at[q] && (fabs(g[q]) > BOUND_GAIN || at[q] * g[q] > 0)) return 0;
+  int flat = 1;
+  for (size_t q = 0; q < w->npar && flat; q++) {
+    double xs = fabs(x[q]) > 1 ? fabs(x[q]) : 1;
+    if (!at[q] && 0.5 * fabs(g[q]) * xs > GTOL_STALL * phi) flat = 0;
   }
-  return 3;
+  if (flat) return 3;
+  /* ... or the others at their minimum for all statistical purposes:
+   * their Newton decrement alone below DEC_TOL, as without bounds */
+  return (last_drop < DEC_GATE || w->prob->plain) && free_decrement(s, cov, at) <= DEC_TOL ? 3 : 0;
 }
 
 /* A trial (prob->give_up_bic > 0) that cannot pass: from its second
@@ -832,14 +867,28 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   r->niter = iter;
 
   /* 1-sigma errors: (J^T J)^-1 of the weighted residuals, not scaled by
-   * chi2_red; mapped through the transforms. */
+   * chi2_red; mapped through the transforms.  A parameter at a bound
+   * (BOUND_FLAG) is held there: its column is dropped, so it has no error
+   * (infinite, as one the data do not constrain), and the others' errors
+   * do not depend on how far into the logistic's flat end the solver
+   * crept before it stopped. */
   gsl_matrix *J = gsl_multifit_nlinear_jac(slot->w);
   int cf_ext[MAXPAR] = {0};
   if (w->covering) cover_columns(w, J, cf_ext);
+  int held[MAXPAR] = {0};
+  for (size_t q = 0; q < w->npar && !p->no_errors; q++) {
+    if (w->ptype[q] == P_C || w->ptype[q] == P_F) continue;
+    double sg = dt_lsq_to_external(xs->data[q], 0.0, 1.0, NULL);
+    if (sg < BOUND_FLAG || sg > 1 - BOUND_FLAG) {
+      gsl_vector_view col = gsl_matrix_column(J, q);
+      gsl_vector_set_zero(&col.vector);
+      held[q] = 1;
+    }
+  }
   if (!p->no_errors) gsl_multifit_nlinear_covar(J, 1e-11, slot->cov);
   for (size_t q = 0; q < w->npar; q++) {
-    double err = 0.0;
-    if (!p->no_errors) {
+    double err = held[q] ? INFINITY : 0.0;
+    if (!p->no_errors && !held[q]) {
       double var = gsl_matrix_get(slot->cov, q, q);
       double slope = cf_ext[q] ? 1.0 : fabs(w->dvdu[q]);
       err = (var > 0 && isfinite(var)) ? sqrt(var) * slope : INFINITY;

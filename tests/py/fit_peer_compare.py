@@ -52,7 +52,9 @@ def read_table(path):
             if r["component"] == "":
                 continue
             p = [float(r["logN"]), float(r["b_kms"]), float(r["v_kms"])]
-            e = [float(r["logN_err"]), float(r["b_err"]), float(r["v_err"])]
+            # (an error is left blank for a parameter at the limit of its
+            # range; only the peer's errors are used below)
+            e = [float(r[k]) if r[k] else math.nan for k in ("logN_err", "b_err", "v_err")]
             comps.append((p, e))
     out = {}
     for name, (st, comps) in rows.items():

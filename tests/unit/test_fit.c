@@ -507,6 +507,56 @@ static void test_no_errors(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rn
   unmake(&s);
 }
 
+/* A parameter at a bound.  Pressing against it (a line narrower than
+ * DT_FIT_B_MIN): the fit ends there within 30 iterations (43 when only
+ * the gradient of the others may end it), the parameter
+ * without an error, and the others' errors are those of a fit that holds
+ * it there.  Started at the bound but pulled away from it (a broad line,
+ * its column held and plain steps, as in a profile's refits, from just
+ * inside the bound, where those refits start the narrow valley): the fit leaves the
+ * bound and reaches the chi2 of a start from the inside -- a gradient that
+ * looks flat only through the bound's logistic map does not end it (here
+ * with v held too: nothing else left to converge). */
+static void test_at_bound(const dt_doublet *d, dt_fit_workspace *w, gsl_rng *rng) {
+  synth s = make(d, 5880, 5910, 0.1, 20000);
+  dt_component narrow[1] = {{12.5, 0.1, 15.0}};
+  fill(&s, narrow, 1, 100.0, rng, NULL);
+  dt_component start[1] = {{12.3, 0.6, 12.0}};
+  dt_fit_problem p = problem(&s, start, 1);
+  dt_fit_result r, held;
+  int st = dt_fit_run(w, &p, &r, NULL);
+  const dt_fit_info *in = dt_fit_last_info(w);
+  CHECK(st == DT_OK && (in->at_bound[0] & DT_FREEZE_B) && r.comp[0].b < 1.01 * DT_FIT_B_MIN,
+        "a line narrower than the bound ends at it (b %.4f, status %d, reason %d)", r.comp[0].b,
+        st, in->reason);
+  CHECK(r.niter <= 30, "... within 30 iterations (%d)", r.niter);
+  CHECK(isinf(r.err[0].b), "... with no error for b (%g)", r.err[0].b);
+  unsigned char fb[1] = {DT_FREEZE_B};
+  p.comp = r.comp;
+  p.frozen = fb;
+  dt_fit_run(w, &p, &held, NULL);
+  CHECK(fabs(held.err[0].logN / r.err[0].logN - 1) < 0.02 &&
+            fabs(held.err[0].v / r.err[0].v - 1) < 0.02,
+        "... and log N, v errors as with b held there (%.4f %.4f, %.4f %.4f)", r.err[0].logN,
+        held.err[0].logN, r.err[0].v, held.err[0].v);
+
+  dt_component broad[1] = {{12.2, 10.0, 0.0}};
+  fill(&s, broad, 1, 40.0, rng, NULL);
+  unsigned char fn[1] = {DT_FREEZE_N | DT_FREEZE_V};
+  dt_component in_start[1] = {{12.2, 6.0, 0.0}}, bound_start[1] = {{12.2, 1.00001 * DT_FIT_B_MIN, 0.0}};
+  p = problem(&s, in_start, 1);
+  p.frozen = fn;
+  dt_fit_run(w, &p, &held, NULL);
+  p.comp = bound_start;
+  p.plain = 1;   /* as a profile's refits run */
+  st = dt_fit_run(w, &p, &r, NULL);
+  CHECK(st == DT_OK && fabs(r.comp[0].b - held.comp[0].b) < 0.01 * held.comp[0].b &&
+            r.chi2 < held.chi2 + 0.01,
+        "started at the bound, b leaves it (b %.3f, %.3f from inside; chi2 %.3f, %.3f; reason %d, %d iterations)",
+        r.comp[0].b, held.comp[0].b, r.chi2, held.chi2, dt_fit_last_info(w)->reason, r.niter);
+  unmake(&s);
+}
+
 int main(void) {
   dt_doublet d = nai();
   gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
@@ -521,6 +571,7 @@ int main(void) {
   test_stall(&d, w, rng);
   test_give_up(&d, w, rng);
   test_no_errors(&d, w, rng);
+  test_at_bound(&d, w, rng);
   dt_fit_free(w);
   gsl_rng_free(rng);
   return dt_test_done();
