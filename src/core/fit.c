@@ -525,23 +525,29 @@ int dt_fit_chi2(dt_fit_workspace *w, const dt_fit_problem *p, const dt_component
  * would bring if chi2 were exactly quadratic, g^T (J^T J)^-1 g with
  * g = J^T f.  It measures, in units of chi2, how far the fit is from its
  * minimum (parameters within sqrt(decrement) sigma).  cov is scratch. */
-static double newton_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *cov) {
-  gsl_matrix *J = gsl_multifit_nlinear_jac(s);
-  gsl_vector *f = gsl_multifit_nlinear_residual(s);
-  size_t p = J->size2;
-  double g[MAXPAR], y[MAXPAR];
+/* g^T M^-1 g for M = J^T J (its lower triangle filled, overwritten by its
+ * Cholesky factor); a singular M means a direction without curvature: not
+ * converged (INFINITY). */
+static double decrement_of(gsl_matrix *M, double *g) {
+  size_t p = M->size1;
+  double y[MAXPAR];
   gsl_vector_view gv = gsl_vector_view_array(g, p), yv = gsl_vector_view_array(y, p);
-  gsl_blas_dgemv(CblasTrans, 1.0, J, f, 0.0, &gv.vector);
-  /* J^T J by its Cholesky factor (cov is p x p scratch); a singular
-   * matrix means a direction without curvature: not converged */
-  gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, J, 0.0, cov);
-  if (gsl_linalg_cholesky_decomp1(cov) != GSL_SUCCESS) return INFINITY;
-  if (gsl_linalg_cholesky_solve(cov, &gv.vector, &yv.vector) != GSL_SUCCESS) return INFINITY;
+  if (gsl_linalg_cholesky_decomp1(M) != GSL_SUCCESS) return INFINITY;
+  if (gsl_linalg_cholesky_solve(M, &gv.vector, &yv.vector) != GSL_SUCCESS) return INFINITY;
   double dec;
   gsl_blas_ddot(&gv.vector, &yv.vector, &dec);
   return isfinite(dec) ? fabs(dec) : INFINITY;
 }
 
+static double newton_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *cov) {
+  gsl_matrix *J = gsl_multifit_nlinear_jac(s);
+  gsl_vector *f = gsl_multifit_nlinear_residual(s);
+  double g[MAXPAR];
+  gsl_vector_view gv = gsl_vector_view_array(g, J->size2);
+  gsl_blas_dgemv(CblasTrans, 1.0, J, f, 0.0, &gv.vector);
+  gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, J, 0.0, cov);   /* cov: p x p scratch */
+  return decrement_of(cov, g);
+}
 
 /* The Newton decrement over the parameters q with !held[q] alone (the
  * others held where they are). */
@@ -553,7 +559,7 @@ static double free_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *cov,
   for (size_t q = 0; q < J->size2; q++)
     if (!held[q]) idx[m++] = q;
   if (m == 0) return 0.0;
-  double g[MAXPAR], y[MAXPAR];
+  double g[MAXPAR];
   gsl_matrix_view M = gsl_matrix_submatrix(cov, 0, 0, m, m);
   for (size_t i = 0; i < m; i++) {
     gsl_vector_const_view ci = gsl_matrix_const_column(J, idx[i]);
@@ -565,12 +571,7 @@ static double free_decrement(gsl_multifit_nlinear_workspace *s, gsl_matrix *cov,
       gsl_matrix_set(&M.matrix, i, k, d);
     }
   }
-  gsl_vector_view gv = gsl_vector_view_array(g, m), yv = gsl_vector_view_array(y, m);
-  if (gsl_linalg_cholesky_decomp1(&M.matrix) != GSL_SUCCESS) return INFINITY;
-  if (gsl_linalg_cholesky_solve(&M.matrix, &gv.vector, &yv.vector) != GSL_SUCCESS) return INFINITY;
-  double dec;
-  gsl_blas_ddot(&gv.vector, &yv.vector, &dec);
-  return isfinite(dec) ? fabs(dec) : INFINITY;
+  return decrement_of(&M.matrix, g);
 }
 
 /* Gradient of chi2 with respect to the internal parameters, 2 J^T f. */

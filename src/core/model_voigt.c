@@ -1,8 +1,9 @@
-/* The Voigt part of the model: w(z) from libcerf, the optical depth scale of
- * a line, the cells where a line can exceed tau_cut, and one line's optical
- * depth and its derivatives over those cells.
+/* The Voigt part of the model: w(z) (near the real axis from its Taylor
+ * series on libcerf's values on the axis, elsewhere from libcerf), the
+ * optical depth scale of a line, the cells where a line can exceed tau_cut,
+ * and one line's optical depth and its derivatives over those cells.
  *
- * Within a line's range w(z) comes from libcerf either at every cell or,
+ * Within a line's range w(z) is computed either at every cell or,
  * where that is cheaper, from two small tables built from exact values and
  * derivatives: quintic Hermite in x in the core, cubic Hermite in 1/x in the
  * far wings, with steps chosen from the error bounds so that tau is off by
@@ -25,7 +26,8 @@
  * half the time of libcerf's w(z) for the small damping of the doublets
  * (tests/bench/bench_model.c); within 3e-12 of it (test_voigt.c: the far
  * wing's H, a difference of two terms, loses ~x^2 of the precision).
- * Elsewhere libcerf's w(z). */
+ * Elsewhere libcerf's w(z); the model's exact_wings reference keeps
+ * libcerf everywhere. */
 #define SERIES_AMAX 0.25
 #define SERIES_XMAX 25.0
 #define SERIES_AX 1.0

@@ -7,13 +7,18 @@
  * 0.5 A at R 3000 and 1 A at R 2000; then pixels much finer than the LSF
  * (0.028 km/s at R 40000, up to the 47 000 pixels of an 80 A window): the
  * allocation, the size of the pixel operator and the evaluation.  Prints
- * medians in microseconds.
+ * medians in microseconds.  First, the Voigt function itself: libcerf's
+ * w(z) against dt_voigt_HL (the Taylor series near the real axis) over the
+ * cores and near wings (|x| <= 8) at the damping of the doublets.
  *
  *   cc -std=c11 -O2 -Iinclude -D_POSIX_C_SOURCE=200809L tests/bench/bench_model.c \
  *      build/libdoubletty.a $(pkg-config --libs gsl cfitsio libcerf libcrypto) -lm
  */
 #include "doubletty/atomic.h"
 #include "doubletty/model.h"
+
+#include <cerf.h>
+#include <complex.h>
 
 #include <stdio.h>
 #include <stdlib.h>
@@ -158,6 +163,29 @@ static void bench_fine(const dt_doublet *d, size_t npix, double dv, double R) {
   free(jac);
 }
 
+/* Nanoseconds per value of w(x + ia), |x| <= 8, by libcerf (lib = 1) or by
+ * dt_voigt_HL; the sum keeps the loop from being optimised away. */
+static double bench_w(double a, int lib, double *sum) {
+  const int n = 400000;
+  double t0 = now_us(), s = 0;
+  for (int i = 0; i < n; i++) {
+    double x = -8.0 + 16.0 * i / n, H, L;
+    if (lib) {
+      double complex z;
+      ((double *)&z)[0] = x;
+      ((double *)&z)[1] = a;
+      double complex w = w_of_z(z);
+      H = creal(w);
+      L = cimag(w);
+    } else {
+      dt_voigt_HL(a, x, &H, &L);
+    }
+    s += H + L;
+  }
+  *sum += s;
+  return (now_us() - t0) * 1e3 / n;
+}
+
 int main(int argc, char **argv) {
   const char *table = argc > 1 ? argv[1] : "share/doubletty/atomic.dat";
   dt_atomic *at;
@@ -168,6 +196,14 @@ int main(int argc, char **argv) {
   }
   const dt_doublet *d = dt_atomic_find(at, "NaI");
   int nrep;
+  printf("w(x + ia), |x| <= 8 [ns per value]: libcerf w_of_z, dt_voigt_HL\n");
+  double sum = 0;
+  const double as[] = {1e-4, 1e-3, 1e-2, 0.1};
+  for (size_t i = 0; i < sizeof as / sizeof as[0]; i++) {
+    double tl = bench_w(as[i], 1, &sum), ts = bench_w(as[i], 0, &sum);
+    printf("  a = %-6g %8.1f %8.1f\n", as[i], tl, ts);
+  }
+  if (sum == 0) printf("\n");
   printf("doublet model, Na I, R = 20000, 0.1 A pixels, oversample 5 (median of evaluations)\n");
   printf("flux: model only; flux+jac: model and Jacobian at new parameters; step: model at new\n"
          "parameters then the Jacobian at the same ones (one solver iteration)\n");
