@@ -585,6 +585,13 @@ static void chi2_gradient(gsl_multifit_nlinear_workspace *s, double *g) {
   }
 }
 
+/* Which bound an internal parameter x of a bounded (logistic) one lies at:
+ * -1 the lower, +1 the upper (within BOUND_FLAG of its range), 0 neither. */
+static int bound_side(double x) {
+  double sg = dt_lsq_to_external(x, 0.0, 1.0, NULL);
+  return sg < BOUND_FLAG ? -1 : sg > 1.0 - BOUND_FLAG ? 1 : 0;
+}
+
 /* Extra convergence tests, after GSL's step and gradient tests:
  *  - parameters run against a bound: there the logistic flattens and the
  *    solver creeps towards the bound for ever.  The chi2 still to be gained
@@ -601,19 +608,14 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
   const double *x = gsl_multifit_nlinear_position(s)->data;
   int at[MAXPAR], nbound = 0;
   for (size_t q = 0; q < w->npar; q++) {
-    at[q] = 0;
-    if (w->ptype[q] != P_C) {
-      double sg = dt_lsq_to_external(x[q], 0.0, 1.0, NULL);
-      at[q] = sg < BOUND_FLAG ? -1 : sg > 1.0 - BOUND_FLAG ? 1 : 0;   /* which bound */
-    }
+    at[q] = w->ptype[q] == P_C ? 0 : bound_side(x[q]);
     nbound += at[q] != 0;
   }
-  if (nbound == 0) {
-    /* (the decrement costs a J^T J: only worth it once the steps gain
-     * little -- or in a plain run, which starts next to its optimum, where
-     * a quarter of the scan refits end after their first step) */
-    return (last_drop < DEC_GATE || w->prob->plain) && newton_decrement(s, cov) <= DEC_TOL ? 4 : 0;
-  }
+  /* (the decrement costs a J^T J: only worth it once the steps gain
+   * little -- or in a plain run, which starts next to its optimum, where a
+   * quarter of the scan refits end after their first step) */
+  int gate = last_drop < DEC_GATE || w->prob->plain;
+  if (nbound == 0) return gate && newton_decrement(s, cov) <= DEC_TOL ? 4 : 0;
   double g[MAXPAR];
   chi2_gradient(s, g);
   double phi = 0.5 * chi2 > 1 ? 0.5 * chi2 : 1;
@@ -630,7 +632,7 @@ static int extra_converged(dt_fit_workspace *w, gsl_multifit_nlinear_workspace *
   if (flat) return 3;
   /* ... or the others at their minimum for all statistical purposes:
    * their Newton decrement alone below DEC_TOL, as without bounds */
-  return (last_drop < DEC_GATE || w->prob->plain) && free_decrement(s, cov, at) <= DEC_TOL ? 3 : 0;
+  return gate && free_decrement(s, cov, at) <= DEC_TOL ? 3 : 0;
 }
 
 /* A trial (prob->give_up_bic > 0) that cannot pass: from its second
@@ -876,20 +878,20 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
   gsl_matrix *J = gsl_multifit_nlinear_jac(slot->w);
   int cf_ext[MAXPAR] = {0};
   if (w->covering) cover_columns(w, J, cf_ext);
-  int held[MAXPAR] = {0};
-  for (size_t q = 0; q < w->npar && !p->no_errors; q++) {
-    if (w->ptype[q] == P_C || w->ptype[q] == P_F) continue;
-    double sg = dt_lsq_to_external(xs->data[q], 0.0, 1.0, NULL);
-    if (sg < BOUND_FLAG || sg > 1 - BOUND_FLAG) {
+  int held[MAXPAR] = {0};   /* at a bound (not the continuum, not a C_f) */
+  for (size_t q = 0; q < w->npar; q++) {
+    held[q] = w->ptype[q] != P_C && w->ptype[q] != P_F && bound_side(xs->data[q]);
+    if (held[q] && !p->no_errors) {
       gsl_vector_view col = gsl_matrix_column(J, q);
       gsl_vector_set_zero(&col.vector);
-      held[q] = 1;
     }
   }
   if (!p->no_errors) gsl_multifit_nlinear_covar(J, 1e-11, slot->cov);
   for (size_t q = 0; q < w->npar; q++) {
-    double err = held[q] ? INFINITY : 0.0;
-    if (!p->no_errors && !held[q]) {
+    double err = 0.0;
+    if (!p->no_errors && held[q]) {
+      err = INFINITY;
+    } else if (!p->no_errors) {
       double var = gsl_matrix_get(slot->cov, q, q);
       double slope = cf_ext[q] ? 1.0 : fabs(w->dvdu[q]);
       err = (var > 0 && isfinite(var)) ? sqrt(var) * slope : INFINITY;
@@ -902,15 +904,12 @@ int dt_fit_run(dt_fit_workspace *w, const dt_fit_problem *p, dt_fit_result *r, d
     case P_F: r->cf_err[k] = err; break;
     default: r->cont_err[k] = err;
     }
-    if (w->ptype[q] != P_C && w->ptype[q] != P_F) {
-      double s = (dt_lsq_to_external(xs->data[q], 0.0, 1.0, NULL));
-      if (s < BOUND_FLAG || s > 1 - BOUND_FLAG) {
-        int bit = w->ptype[q] == P_N ? DT_FREEZE_N : w->ptype[q] == P_B ? DT_FREEZE_B
-                                                                          : DT_FREEZE_V;
-        if (k < 0)
-          for (size_t c = 0; c < w->ncomp; c++) w->info.at_bound[c] |= bit;
-        else w->info.at_bound[k] |= bit;
-      }
+    if (held[q]) {
+      int bit = w->ptype[q] == P_N ? DT_FREEZE_N : w->ptype[q] == P_B ? DT_FREEZE_B
+                                                                        : DT_FREEZE_V;
+      if (k < 0)
+        for (size_t c = 0; c < w->ncomp; c++) w->info.at_bound[c] |= bit;
+      else w->info.at_bound[k] |= bit;
     }
   }
   w->info.reason = rs.info;

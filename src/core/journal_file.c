@@ -139,6 +139,15 @@ static int set_str(char **dst, const char *src) {
   return DT_OK;
 }
 
+/* arr (of *cap elements of elsize bytes) grown to twice as many, or to
+ * first; NULL when out of memory (arr and *cap then unchanged). */
+static void *grown(void *arr, size_t *cap, size_t first, size_t elsize) {
+  size_t c = *cap ? *cap * 2 : first;
+  void *p = realloc(arr, c * elsize);
+  if (p) *cap = c;
+  return p;
+}
+
 /* A zeroed entry, carved from slabs of ENTRY_SLAB entries: 2 MB-aligned
  * and, where the system has them, in huge pages -- a session of 100 000
  * spectra holds 450 MB of entries, which in 4 kB pages cost 110 000 page
@@ -148,11 +157,9 @@ static int set_str(char **dst, const char *src) {
 static dt_journal_entry *new_entry(dt_journal *j) {
   if (j->nslab == 0 || j->slab_used == ENTRY_SLAB) {
     if (j->nslab == j->capslab) {
-      size_t cap = j->capslab ? j->capslab * 2 : 16;
-      void **p = realloc(j->slab, cap * sizeof *p);
+      void **p = grown(j->slab, &j->capslab, 16, sizeof *p);
       if (!p) return NULL;
       j->slab = p;
-      j->capslab = cap;
     }
     size_t bytes = ENTRY_SLAB * sizeof(dt_journal_entry);
     bytes = (bytes + SLAB_ALIGN - 1) / SLAB_ALIGN * SLAB_ALIGN;
@@ -172,11 +179,9 @@ static dt_journal_entry *new_entry(dt_journal *j) {
 /* A new entry for t (its path the recorded hint), at index j->nent - 1. */
 static dt_journal_entry *add_entry(dt_journal *j, const dt_target *t) {
   if (j->nent == j->capent) {
-    size_t cap = j->capent ? j->capent * 2 : 64;
-    dt_journal_entry **p = realloc(j->ent, cap * sizeof *p);
+    dt_journal_entry **p = grown(j->ent, &j->capent, 64, sizeof *p);
     if (!p) return NULL;
     j->ent = p;
-    j->capent = cap;
   }
   char *path = strdup(t->path);
   dt_journal_entry *en = path ? new_entry(j) : NULL;
