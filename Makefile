@@ -27,7 +27,7 @@ endif
 
 WARN     := -Wall -Wextra -Werror
 CSTD     := -std=c11
-OPT      ?= -O2 -g
+OPT      ?= -O3 -g
 CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -DDT_VERSION=\"$(VERSION)\" \
             -DDT_DATADIR=\"$(PREFIX)/share/doubletty\"
 CFLAGS   += $(CSTD) $(WARN) $(OPT) -pthread $(shell pkg-config --cflags $(PKGS) 2>/dev/null)

@@ -45,10 +45,11 @@ static inline void session_target_r20000(dt_session_target *t, const char *path)
 /* DIR/NAME, in one of four buffers used in turn (so one call may take
  * the results of up to four). */
 static inline const char *dir_path(const char *dir, const char *name) {
-  static char p[4][256];
+  static char p[4][4096];
   static int k;
   k = (k + 1) % 4;
-  snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
+  int n = snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
+  if (n < 0 || (size_t)n >= sizeof p[k]) abort(); /* a test's own paths are short */
   return p[k];
 }
 

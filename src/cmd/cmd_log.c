@@ -263,8 +263,9 @@ static int target_matches(const char *pattern, const dt_target *t) {
  * aside)? */
 static int exists(const char *path) {
   char plain[4200];
-  snprintf(plain, sizeof plain, "%s", path);
-  size_t n = strlen(plain);
+  int len = snprintf(plain, sizeof plain, "%s", path);
+  if (len < 0 || (size_t)len >= sizeof plain) return 0; /* no such file name */
+  size_t n = (size_t)len;
   char *lb = strrchr(plain, '[');
   if (lb && n && plain[n - 1] == ']') *lb = '\0';
   FILE *f = fopen(plain, "rb");

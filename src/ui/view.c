@@ -693,7 +693,7 @@ static const char *logn_text(const dt_insp *s, size_t k, char *buf, size_t size,
 static int table_components(dt_insp *s, const syms *y, int x, int row, int maxw, int end) {
   dt_grid *g = &s->g;
   const dt_judgement *j = &s->ss->j;
-  char b1[64], b2[64];
+  char b1[64], b2[72]; /* b2: a sign and b1 */
   int errs = j->has_fit && j->fit.status == 0 && j->fit.ncomp == j->ncomp;
   int rows = end - row - 5;
   if (rows < 1) rows = 1;
