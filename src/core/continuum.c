@@ -10,7 +10,15 @@
  *
  * Flux units are arbitrary (often ~1e-17), so the fit works on flux divided
  * by the median |flux| of the candidate pixels and scales back afterwards;
- * the SVD inside GSL then sees numbers of order one. */
+ * the solver then sees numbers of order one.
+ *
+ * The solver: a Legendre polynomial on distinct wavelengths has full rank,
+ * so its weighted problem is solved by Householder QR (gsl_linalg_QR_decomp,
+ * QR_lssolve; the covariance (R^T R)^-1 from R by gsl_linalg_cholesky_invert),
+ * a few microseconds for the usual three coefficients.  A B-spline may have a
+ * basis function with no candidate under it (a gap wider than its support),
+ * so the spline goes through gsl_multifit_wlinear's truncated SVD.  Each
+ * candidate's basis values are computed once and serve every clipping pass. */
 #include "doubletty/continuum.h"
 
 #include <math.h>
@@ -20,7 +28,8 @@
 #include <gsl/gsl_bspline.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_multifit.h>
-#include <gsl/gsl_sort.h>
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_linalg.h>
 #include <gsl/gsl_statistics_double.h>
 
 #include "doubletty/model.h"
@@ -28,12 +37,15 @@
 struct dt_cont_work {
   size_t cap;                    /* pixels the buffers hold */
   double *X;                     /* cap x DT_CONT_MAX_COEF design matrix */
+  double *rows;                  /* cap x ncoef: the basis at every candidate */
+  double *res;                   /* weighted residuals of the QR solution */
   double *y, *wt;                /* scaled flux, weights of the fitted pixels */
   double *r;                     /* normalised residuals of the candidates */
   double *scratch;               /* for the median / MAD */
   size_t *cand;                  /* candidate pixel indices (region-relative) */
   unsigned char *keep, *keep_new;
   gsl_multifit_linear_workspace *lin;
+  double qtau[DT_CONT_MAX_ORDER + 1];  /* Householder coefficients (QR) */
   double coef[DT_CONT_MAX_COEF];
   double cov[DT_CONT_MAX_COEF * DT_CONT_MAX_COEF];
   double basis[DT_CONT_MAX_COEF];
@@ -64,6 +76,8 @@ void dt_cont_opts_init(dt_cont_opts *o) {
 
 static void free_buffers(dt_cont_work *w) {
   free(w->X);
+  free(w->rows);
+  free(w->res);
   free(w->y);
   free(w->wt);
   free(w->r);
@@ -72,7 +86,7 @@ static void free_buffers(dt_cont_work *w) {
   free(w->keep);
   free(w->keep_new);
   if (w->lin) gsl_multifit_linear_free(w->lin);
-  w->X = w->y = w->wt = w->r = w->scratch = NULL;
+  w->X = w->rows = w->res = w->y = w->wt = w->r = w->scratch = NULL;
   w->cand = NULL;
   w->keep = w->keep_new = NULL;
   w->lin = NULL;
@@ -85,6 +99,8 @@ static int ensure(dt_cont_work *w, size_t n, dt_err *e) {
   if (n < DT_CONT_MAX_COEF) n = DT_CONT_MAX_COEF;
   free_buffers(w);
   w->X = malloc(n * DT_CONT_MAX_COEF * sizeof *w->X);
+  w->rows = malloc(n * DT_CONT_MAX_COEF * sizeof *w->rows);
+  w->res = malloc(n * sizeof *w->res);
   w->y = malloc(n * sizeof *w->y);
   w->wt = malloc(n * sizeof *w->wt);
   w->r = malloc(n * sizeof *w->r);
@@ -93,7 +109,7 @@ static int ensure(dt_cont_work *w, size_t n, dt_err *e) {
   w->keep = malloc(n);
   w->keep_new = malloc(n);
   w->lin = gsl_multifit_linear_alloc(n, DT_CONT_MAX_COEF);
-  if (!w->X || !w->y || !w->wt || !w->r || !w->scratch || !w->cand || !w->keep ||
+  if (!w->X || !w->rows || !w->res || !w->y || !w->wt || !w->r || !w->scratch || !w->cand || !w->keep ||
       !w->keep_new || !w->lin) {
     free_buffers(w);
     return dt_err_set(e, DT_ENOMEM, "continuum", "out of memory for %zu pixels", n);
@@ -202,28 +218,55 @@ static int in_bands(double lam, const dt_cont_opts *o) {
   return 0;
 }
 
+/* The Legendre problem by Householder QR: X (m x p) holds the rows scaled
+ * by sqrt(weight), y likewise. */
+static int solve_qr(dt_cont_work *w, size_t m, double *chi2) {
+  size_t p = w->ncoef;
+  gsl_matrix_view A = gsl_matrix_view_array(w->X, m, p);
+  gsl_vector_view b = gsl_vector_view_array(w->y, m);
+  gsl_vector_view tau = gsl_vector_view_array(w->qtau, p);
+  gsl_vector_view cv = gsl_vector_view_array(w->coef, p);
+  gsl_vector_view res = gsl_vector_view_array(w->res, m);
+  int st = gsl_linalg_QR_decomp(&A.matrix, &tau.vector);
+  if (st == GSL_SUCCESS) st = gsl_linalg_QR_lssolve(&A.matrix, &tau.vector, &b.vector, &cv.vector,
+                                                    &res.vector);
+  if (st != GSL_SUCCESS) return st;
+  gsl_blas_ddot(&res.vector, &res.vector, chi2);
+  /* (X^T W X)^-1 = (R^T R)^-1: R^T is a Cholesky factor of X^T W X */
+  gsl_matrix_view cov = gsl_matrix_view_array(w->cov, p, p);
+  for (size_t k = 0; k < p; k++)
+    for (size_t l = 0; l <= k; l++) gsl_matrix_set(&cov.matrix, k, l, gsl_matrix_get(&A.matrix, l, k));
+  return gsl_linalg_cholesky_invert(&cov.matrix);
+}
+
 /* Weighted fit over the kept candidates; fills w->coef/cov and *chi2. */
 static int solve(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t ncand,
                  double scale, double *chi2, size_t *nk, dt_err *e) {
   size_t p = w->ncoef, m = 0;
+  int qr = w->kind == DT_CONT_LEGENDRE;
   for (size_t c = 0; c < ncand; c++) {
     if (!w->keep[c]) continue;
     size_t i = i0 + w->cand[c];
-    basis_at(w, s->wave[i]);
-    memcpy(w->X + m * p, w->basis, p * sizeof(double));
-    w->y[m] = s->flux[i] / scale;
     double sg = s->sigma[i] / scale;
+    double rw = qr ? 1.0 / sg : 1.0;   /* QR: rows scaled by sqrt(weight) */
+    for (size_t k = 0; k < p; k++) w->X[m * p + k] = rw * w->rows[c * p + k];
+    w->y[m] = rw * s->flux[i] / scale;
     w->wt[m] = 1.0 / (sg * sg);
     m++;
   }
   *nk = m;
-  gsl_matrix_view X = gsl_matrix_view_array(w->X, m, p);
-  gsl_vector_view y = gsl_vector_view_array(w->y, m);
-  gsl_vector_view wt = gsl_vector_view_array(w->wt, m);
-  gsl_vector_view cv = gsl_vector_view_array(w->coef, p);
-  gsl_matrix_view cov = gsl_matrix_view_array(w->cov, p, p);
-  int st = gsl_multifit_wlinear(&X.matrix, &wt.vector, &y.vector, &cv.vector,
-                                &cov.matrix, chi2, w->lin);
+  int st;
+  if (qr) {
+    st = solve_qr(w, m, chi2);
+  } else {
+    gsl_matrix_view X = gsl_matrix_view_array(w->X, m, p);
+    gsl_vector_view y = gsl_vector_view_array(w->y, m);
+    gsl_vector_view wt = gsl_vector_view_array(w->wt, m);
+    gsl_vector_view cv = gsl_vector_view_array(w->coef, p);
+    gsl_matrix_view cov = gsl_matrix_view_array(w->cov, p, p);
+    st = gsl_multifit_wlinear(&X.matrix, &wt.vector, &y.vector, &cv.vector, &cov.matrix, chi2,
+                              w->lin);
+  }
   if (st != GSL_SUCCESS || !isfinite(*chi2))
     return dt_err_set(e, DT_EINVAL, "continuum", "the least-squares fit failed (%s)",
                       gsl_strerror(st));
@@ -313,9 +356,14 @@ int dt_cont_fit(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t i1,
 
   /* flux scale: median |flux| of the candidates */
   for (size_t c = 0; c < ncand; c++) w->scratch[c] = fabs(s->flux[i0 + w->cand[c]]);
-  gsl_sort(w->scratch, 1, ncand);
-  double scale = gsl_stats_median_from_sorted_data(w->scratch, 1, ncand);
+  double scale = gsl_stats_median(w->scratch, 1, ncand);
   if (!(scale > 0) || !isfinite(scale)) scale = 1.0;
+
+  /* the basis at every candidate, once */
+  for (size_t c = 0; c < ncand; c++) {
+    basis_at(w, s->wave[i0 + w->cand[c]]);
+    memcpy(w->rows + c * w->ncoef, w->basis, w->ncoef * sizeof w->basis[0]);
+  }
 
   memset(w->keep, 1, ncand);
   double chi2 = 0.0;
@@ -331,9 +379,9 @@ int dt_cont_fit(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t i1,
     size_t m = 0;
     for (size_t c = 0; c < ncand; c++) {
       size_t i = i0 + w->cand[c];
-      basis_at(w, s->wave[i]);
+      const double *row = w->rows + c * w->ncoef;
       double model = 0.0;
-      for (size_t k = 0; k < w->ncoef; k++) model += w->coef[k] * w->basis[k];
+      for (size_t k = 0; k < w->ncoef; k++) model += w->coef[k] * row[k];
       w->r[c] = (s->flux[i] / scale - model) / (s->sigma[i] / scale);
       if (w->keep[c]) w->scratch[m++] = w->r[c];
     }

@@ -87,6 +87,68 @@ static void test_legendre(void) {
   CHECK_CLOSE(dt_legendre_sum(c, 0, 0.5), 1.0, 0.0, "no coefficients: 1");
 }
 
+/* A straight line (order 1) by weighted least squares against the closed
+ * form of the normal equations (Bevington & Robinson 2003, Data Reduction
+ * and Error Analysis, ch. 6, from memory): with S = sum w, Sx = sum w x,
+ * Sxx = sum w x^2, Sy = sum w y, Sxy = sum w x y and D = S Sxx - Sx^2,
+ *   a = (Sxx Sy - Sx Sxy) / D,  b = (S Sxy - Sx Sy) / D,
+ *   var a = Sxx / D,  var b = S / D,  cov(a, b) = -Sx / D,
+ * in the Legendre variable x in [-1, 1] (P0 = 1, P1 = x), so the
+ * continuum a + b x has the variance var a + 2 x cov + x^2 var b.  Two
+ * windows, unequal errors, no clipping (user windows). */
+static void test_line_closed_form(void) {
+  gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+  gsl_rng_set(rng, 77);
+  spec p;
+  make(&p, rng, 40.0);
+  for (size_t i = 0; i < NPIX; i++) p.sigma[i] *= 1.0 + 0.5 * (double)(i % 7) / 6.0;
+  dt_window win[2] = {{5862.0, 5875.0}, {5905.0, 5911.0}};
+  dt_cont_opts o;
+  dt_cont_opts_init(&o);
+  o.order = 1;
+  o.nwin = 2;
+  o.win = win;
+  dt_cont_work *w = dt_cont_alloc(NPIX, NULL);
+  double cont[NPIX], cerr[NPIX];
+  dt_cont_result r;
+  int st = dt_cont_fit(w, &p.s, 0, NPIX, &o, cont, cerr, NULL, &r, NULL);
+  double S = 0, Sx = 0, Sxx = 0, Sy = 0, Sxy = 0;
+  size_t m = 0;
+  for (size_t i = 0; i < NPIX; i++) {
+    if (!((p.wave[i] >= 5862.0 && p.wave[i] <= 5875.0) ||
+          (p.wave[i] >= 5905.0 && p.wave[i] <= 5911.0)))
+      continue;
+    double x = dt_legendre_x(p.wave[i], p.wave[0], p.wave[NPIX - 1]);
+    double wt = 1.0 / (p.sigma[i] * p.sigma[i]), y = p.flux[i];
+    S += wt; Sx += wt * x; Sxx += wt * x * x; Sy += wt * y; Sxy += wt * x * y;
+    m++;
+  }
+  double D = S * Sxx - Sx * Sx;
+  double a = (Sxx * Sy - Sx * Sxy) / D, b = (S * Sxy - Sx * Sy) / D;
+  double va = Sxx / D, vb = S / D, cab = -Sx / D;
+  double worst = 0, worst_err = 0, chi2 = 0;
+  for (size_t i = 0; i < NPIX; i++) {
+    double x = dt_legendre_x(p.wave[i], p.wave[0], p.wave[NPIX - 1]);
+    double c = a + b * x, e = sqrt(va + 2.0 * x * cab + x * x * vb);
+    worst = fmax(worst, fabs(cont[i] - c) / fabs(c));
+    worst_err = fmax(worst_err, fabs(cerr[i] - e) / e);
+  }
+  for (size_t i = 0; i < NPIX; i++) {
+    if (!((p.wave[i] >= 5862.0 && p.wave[i] <= 5875.0) ||
+          (p.wave[i] >= 5905.0 && p.wave[i] <= 5911.0)))
+      continue;
+    double x = dt_legendre_x(p.wave[i], p.wave[0], p.wave[NPIX - 1]);
+    double d = (p.flux[i] - a - b * x) / p.sigma[i];
+    chi2 += d * d;
+  }
+  CHECK(st == DT_OK && r.nused == m, "order 1 in two windows: %zu pixels used of %zu", r.nused, m);
+  CHECK(worst < 1e-12, "the line is the closed form's (max rel. diff %.2g)", worst);
+  CHECK(worst_err < 1e-10, "its error is the closed form's (max rel. diff %.2g)", worst_err);
+  CHECK_CLOSE(r.chi2, chi2, 1e-9 * chi2, "its chi2 is the closed form's");
+  dt_cont_free(w);
+  gsl_rng_free(rng);
+}
+
 /* Many noisy realisations: the continuum at a few pixels must scatter about
  * the truth as its error bar says: pulls with mean ~0, standard deviation
  * ~1 and 68.27% within 1 sigma (Gaussian statistics). */
@@ -317,6 +379,7 @@ static void test_spline(void) {
 int main(void) {
   test_legendre();
   test_recovery();
+  test_line_closed_form();
   test_windows();
   test_clipping();
   test_spline();
