@@ -15,7 +15,7 @@
  * The solver: a Legendre polynomial on distinct wavelengths has full rank,
  * so its weighted problem is solved by Householder QR (gsl_linalg_QR_decomp,
  * QR_lssolve; the covariance (R^T R)^-1 from R by gsl_linalg_cholesky_invert),
- * a few microseconds for the usual three coefficients.  A B-spline may have a
+ * cheaper than GSL's SVD for the usual three coefficients.  A B-spline may have a
  * basis function with no candidate under it (a gap wider than its support),
  * so the spline goes through gsl_multifit_wlinear's truncated SVD.  Each
  * candidate's basis values are computed once and serve every clipping pass. */
@@ -25,11 +25,11 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <gsl/gsl_blas.h>
 #include <gsl/gsl_bspline.h>
 #include <gsl/gsl_errno.h>
-#include <gsl/gsl_multifit.h>
-#include <gsl/gsl_blas.h>
 #include <gsl/gsl_linalg.h>
+#include <gsl/gsl_multifit.h>
 #include <gsl/gsl_statistics_double.h>
 
 #include "doubletty/model.h"
@@ -109,8 +109,8 @@ static int ensure(dt_cont_work *w, size_t n, dt_err *e) {
   w->keep = malloc(n);
   w->keep_new = malloc(n);
   w->lin = gsl_multifit_linear_alloc(n, DT_CONT_MAX_COEF);
-  if (!w->X || !w->rows || !w->res || !w->y || !w->wt || !w->r || !w->scratch || !w->cand || !w->keep ||
-      !w->keep_new || !w->lin) {
+  if (!w->X || !w->rows || !w->res || !w->y || !w->wt || !w->r || !w->scratch || !w->cand ||
+      !w->keep || !w->keep_new || !w->lin) {
     free_buffers(w);
     return dt_err_set(e, DT_ENOMEM, "continuum", "out of memory for %zu pixels", n);
   }
@@ -228,14 +228,15 @@ static int solve_qr(dt_cont_work *w, size_t m, double *chi2) {
   gsl_vector_view cv = gsl_vector_view_array(w->coef, p);
   gsl_vector_view res = gsl_vector_view_array(w->res, m);
   int st = gsl_linalg_QR_decomp(&A.matrix, &tau.vector);
-  if (st == GSL_SUCCESS) st = gsl_linalg_QR_lssolve(&A.matrix, &tau.vector, &b.vector, &cv.vector,
-                                                    &res.vector);
+  if (st == GSL_SUCCESS)
+    st = gsl_linalg_QR_lssolve(&A.matrix, &tau.vector, &b.vector, &cv.vector, &res.vector);
   if (st != GSL_SUCCESS) return st;
   gsl_blas_ddot(&res.vector, &res.vector, chi2);
   /* (X^T W X)^-1 = (R^T R)^-1: R^T is a Cholesky factor of X^T W X */
   gsl_matrix_view cov = gsl_matrix_view_array(w->cov, p, p);
   for (size_t k = 0; k < p; k++)
-    for (size_t l = 0; l <= k; l++) gsl_matrix_set(&cov.matrix, k, l, gsl_matrix_get(&A.matrix, l, k));
+    for (size_t l = 0; l <= k; l++)
+      gsl_matrix_set(&cov.matrix, k, l, gsl_matrix_get(&A.matrix, l, k));
   return gsl_linalg_cholesky_invert(&cov.matrix);
 }
 
