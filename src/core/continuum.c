@@ -39,12 +39,12 @@ struct dt_cont_work {
   double *X;                     /* cap x DT_CONT_MAX_COEF design matrix */
   double *rows;                  /* cap x ncoef: the basis at every candidate */
   double *res;                   /* weighted residuals of the QR solution */
-  double *y, *wt;                /* scaled flux, weights of the fitted pixels */
+  double *y, *wt;                /* scaled flux, weights (the spline's) of the fitted pixels */
   double *r;                     /* normalised residuals of the candidates */
   double *scratch;               /* for the median / MAD */
   size_t *cand;                  /* candidate pixel indices (region-relative) */
   unsigned char *keep, *keep_new;
-  gsl_multifit_linear_workspace *lin;
+  gsl_multifit_linear_workspace *lin;  /* the spline's SVD: made at its first fit */
   double qtau[DT_CONT_MAX_ORDER + 1];  /* Householder coefficients (QR) */
   double coef[DT_CONT_MAX_COEF];
   double cov[DT_CONT_MAX_COEF * DT_CONT_MAX_COEF];
@@ -95,7 +95,7 @@ static void free_buffers(dt_cont_work *w) {
 
 /* Make room for n pixels (allocation happens only when n grows). */
 static int ensure(dt_cont_work *w, size_t n, dt_err *e) {
-  if (n <= w->cap && w->lin) return DT_OK;
+  if (n <= w->cap && w->X) return DT_OK;
   if (n < DT_CONT_MAX_COEF) n = DT_CONT_MAX_COEF;
   free_buffers(w);
   w->X = malloc(n * DT_CONT_MAX_COEF * sizeof *w->X);
@@ -108,9 +108,8 @@ static int ensure(dt_cont_work *w, size_t n, dt_err *e) {
   w->cand = malloc(n * sizeof *w->cand);
   w->keep = malloc(n);
   w->keep_new = malloc(n);
-  w->lin = gsl_multifit_linear_alloc(n, DT_CONT_MAX_COEF);
   if (!w->X || !w->rows || !w->res || !w->y || !w->wt || !w->r || !w->scratch || !w->cand ||
-      !w->keep || !w->keep_new || !w->lin) {
+      !w->keep || !w->keep_new) {
     free_buffers(w);
     return dt_err_set(e, DT_ENOMEM, "continuum", "out of memory for %zu pixels", n);
   }
@@ -252,7 +251,7 @@ static int solve(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t ncand,
     double rw = qr ? 1.0 / sg : 1.0;   /* QR: rows scaled by sqrt(weight) */
     for (size_t k = 0; k < p; k++) w->X[m * p + k] = rw * w->rows[c * p + k];
     w->y[m] = rw * s->flux[i] / scale;
-    w->wt[m] = 1.0 / (sg * sg);
+    if (!qr) w->wt[m] = 1.0 / (sg * sg);
     m++;
   }
   *nk = m;
@@ -260,6 +259,8 @@ static int solve(dt_cont_work *w, const dt_spectrum *s, size_t i0, size_t ncand,
   if (qr) {
     st = solve_qr(w, m, chi2);
   } else {
+    if (!w->lin) w->lin = gsl_multifit_linear_alloc(w->cap, DT_CONT_MAX_COEF);
+    if (!w->lin) return dt_err_set(e, DT_ENOMEM, "continuum", "out of memory");
     gsl_matrix_view X = gsl_matrix_view_array(w->X, m, p);
     gsl_vector_view y = gsl_vector_view_array(w->y, m);
     gsl_vector_view wt = gsl_vector_view_array(w->wt, m);
